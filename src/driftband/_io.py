@@ -1,0 +1,134 @@
+"""Small file utilities shared by every stage: atomic outputs, checksums, provenance."""
+
+from __future__ import annotations
+
+import contextlib
+import datetime as _dt
+import hashlib
+import os
+import platform
+import sys
+import tempfile
+from collections.abc import Iterable, Iterator
+from pathlib import Path
+from typing import IO, Any
+
+from .exceptions import OutputExistsError
+
+__all__ = ["atomic_output", "check_outputs", "file_record", "provenance", "sha256sum"]
+
+
+def check_outputs(paths: Iterable[str | os.PathLike | None], force: bool = False) -> None:
+    """Refuse, before any work is done, to overwrite existing outputs without ``force``.
+
+    Parameters
+    ----------
+    paths : iterable of path-like or None
+        Output paths; ``None`` entries are skipped. ``-`` means standard output.
+    force : bool
+        Allow overwriting.
+
+    Raises
+    ------
+    OutputExistsError
+        If a path exists and ``force`` is false.
+    """
+    for p in paths:
+        if p is None or os.fspath(p) == "-":
+            continue
+        if not force and os.path.exists(p):
+            raise OutputExistsError(p)
+
+
+@contextlib.contextmanager
+def atomic_output(path: str | os.PathLike, mode: str = "w", force: bool = False,
+                  **open_kwargs: Any) -> Iterator[IO]:
+    """Open ``path`` for writing through a temporary file renamed into place on success.
+
+    If the block raises, the temporary file is removed and ``path`` is untouched, so an
+    error never leaves a half-written output.
+
+    Parameters
+    ----------
+    path : path-like
+        Final output path.
+    mode : {"w", "wb"}
+        Text or binary.
+    force : bool
+        Overwrite an existing file.
+    **open_kwargs
+        Passed to :func:`open` (e.g. ``encoding``, ``newline``).
+
+    Yields
+    ------
+    file object
+        The open temporary file.
+    """
+    path = Path(path)
+    if not force and path.exists():
+        raise OutputExistsError(path)
+    directory = path.parent if str(path.parent) else Path(".")
+    directory.mkdir(parents=True, exist_ok=True)
+    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=directory)
+    os.close(fd)
+    if "b" not in mode:
+        open_kwargs.setdefault("encoding", "utf-8")
+    try:
+        with open(tmp, mode, **open_kwargs) as fh:
+            yield fh
+        os.replace(tmp, path)
+    except BaseException:
+        with contextlib.suppress(FileNotFoundError):
+            os.unlink(tmp)
+        raise
+
+
+def sha256sum(path: str | os.PathLike, chunk: int = 1 << 20) -> str:
+    """Hex SHA-256 checksum of a file."""
+    h = hashlib.sha256()
+    with open(path, "rb") as fh:
+        while block := fh.read(chunk):
+            h.update(block)
+    return h.hexdigest()
+
+
+def file_record(path: str | os.PathLike | None) -> dict[str, Any] | None:
+    """Path, size and SHA-256 of an input file (``-`` for standard input)."""
+    if path is None:
+        return None
+    p = os.fspath(path)
+    if p == "-":
+        return {"path": "-", "size": None, "sha256": None}
+    return {"path": os.path.abspath(p), "size": os.path.getsize(p), "sha256": sha256sum(p)}
+
+
+def provenance(options: dict[str, Any] | None = None,
+               inputs: dict[str, Any] | None = None) -> dict[str, Any]:
+    """Provenance dictionary embedded in every output: version, command, options, inputs.
+
+    Parameters
+    ----------
+    options : dict, optional
+        The options the result depends on (JSON-serialisable).
+    inputs : dict, optional
+        Input name → :func:`file_record` (or list of them).
+    """
+    import numpy
+    import scipy
+
+    from . import __version__
+
+    return {
+        "software": "driftband",
+        "version": __version__,
+        "command": [os.path.basename(sys.argv[0]), *sys.argv[1:]],
+        "date": _dt.datetime.now(_dt.timezone.utc).isoformat(timespec="seconds"),
+        "options": options or {},
+        "inputs": inputs or {},
+        "environment": {
+            "python": platform.python_version(),
+            "platform": platform.platform(),
+            "numpy": numpy.__version__,
+            "scipy": scipy.__version__,
+        },
+    }

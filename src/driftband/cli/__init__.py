@@ -1,0 +1,112 @@
+"""The ``driftband`` command line: a thin layer over the importable API.
+
+Each subcommand lives in its own module of this package with an ``add_parser(subparsers)``
+function that registers it and sets ``runner`` (a function of the parsed arguments that
+returns an exit code). User errors (:class:`driftband.exceptions.DriftbandError`) become
+one line on stderr and exit code 2; nothing else is printed.
+"""
+
+from __future__ import annotations
+
+import argparse
+import importlib
+import logging
+import os
+import sys
+from collections.abc import Sequence
+
+from .._version import __version__
+from ..exceptions import DriftbandError
+
+__all__ = ["get_parser", "main"]
+
+# Subcommand modules, in the order of the pipeline.
+_SUBCOMMANDS = ["classify", "spectra", "fit", "compare", "report", "run", "demo", "simulate"]
+
+log = logging.getLogger("driftband")
+
+
+def _available_subcommands() -> list:
+    mods = []
+    for name in _SUBCOMMANDS:
+        try:
+            mods.append(importlib.import_module(f"{__name__}.{name}"))
+        except ModuleNotFoundError as err:
+            if err.name != f"{__name__}.{name}":
+                raise
+    return mods
+
+
+def get_parser() -> argparse.ArgumentParser:
+    """Build the argument parser of the ``driftband`` command (all subcommands)."""
+    parser = argparse.ArgumentParser(
+        prog="driftband",
+        description=(
+            "Distribution of fitness effects of new mutations per population, and the share "
+            "that is effectively neutral (|Ne*s| < 1), from variant calls."
+        ),
+        epilog="Run 'driftband SUBCOMMAND --help' for the options and examples of each step.",
+    )
+    parser.add_argument("--version", action="version", version=f"driftband {__version__}")
+    sub = parser.add_subparsers(title="subcommands", metavar="SUBCOMMAND")
+    for mod in _available_subcommands():
+        mod.add_parser(sub)
+    return parser
+
+
+def _setup_logging(verbosity: int) -> None:
+    level = logging.WARNING - 10 * min(verbosity, 2) + (10 if verbosity < 0 else 0)
+    level = max(logging.DEBUG, min(logging.WARNING, level)) if verbosity >= 0 else logging.ERROR
+    handler = logging.StreamHandler(sys.stderr)
+    handler.setFormatter(logging.Formatter("driftband: %(message)s"))
+    log.handlers[:] = [handler]
+    log.setLevel(level)
+    log.propagate = False
+    logging.captureWarnings(True)
+    wlog = logging.getLogger("py.warnings")
+    wlog.handlers[:] = [handler]
+    wlog.propagate = False
+
+
+def main(argv: Sequence[str] | None = None) -> int:
+    """Entry point of the ``driftband`` command.
+
+    Parameters
+    ----------
+    argv : sequence of str, optional
+        Arguments without the program name (default: ``sys.argv[1:]``).
+
+    Returns
+    -------
+    int
+        Exit code: 0 success, 2 bad input or options, 1 an internal error, 130 interrupted.
+    """
+    parser = get_parser()
+    args = parser.parse_args(argv)
+    if not hasattr(args, "runner"):
+        parser.print_help(sys.stderr)
+        return 2
+    _setup_logging(getattr(args, "verbose", 0) - getattr(args, "quiet", 0))
+    prog = f"driftband {getattr(args, 'subcommand', '')}".strip()
+    try:
+        return int(args.runner(args) or 0)
+    except DriftbandError as err:
+        print(f"{prog}: error: {err}", file=sys.stderr)
+        return 2
+    except (FileNotFoundError, IsADirectoryError, PermissionError) as err:
+        name = err.filename if err.filename is not None else ""
+        print(f"{prog}: error: {name}: {err.strerror}", file=sys.stderr)
+        return 2
+    except KeyboardInterrupt:
+        print(f"{prog}: interrupted", file=sys.stderr)
+        return 130
+    except Exception as err:  # a bug: say so in one line, traceback only on request
+        if os.environ.get("DRIFTBAND_DEBUG") or getattr(args, "verbose", 0) >= 2:
+            raise
+        print(f"{prog}: internal error: {type(err).__name__}: {err} "
+              "(rerun with -vv for the traceback, and please report it)", file=sys.stderr)
+        return 1
+
+
+def _entry() -> None:  # pragma: no cover - console script shim
+    sys.exit(main())

@@ -1,0 +1,48 @@
+"""Argument helpers shared by the subcommands."""
+
+from __future__ import annotations
+
+import argparse
+import textwrap
+
+__all__ = ["add_common_arguments", "add_subcommand", "parse_kv"]
+
+
+def add_subcommand(subparsers, name: str, help: str, description: str,
+                   examples: str) -> argparse.ArgumentParser:
+    """Register a subcommand with a description and an Examples epilog."""
+    p = subparsers.add_parser(
+        name,
+        help=help,
+        description=description,
+        epilog="examples:\n" + textwrap.indent(textwrap.dedent(examples).strip(), "  "),
+        formatter_class=argparse.RawDescriptionHelpFormatter,
+    )
+    p.set_defaults(subcommand=name)
+    return p
+
+
+def add_common_arguments(p: argparse.ArgumentParser, output: bool = True) -> None:
+    """``-v/--verbose``, ``-q/--quiet`` and, for writers, ``--force``."""
+    g = p.add_argument_group("general")
+    g.add_argument("-v", "--verbose", action="count", default=0,
+                   help="more messages on stderr (-vv: debugging, with tracebacks)")
+    g.add_argument("-q", "--quiet", action="count", default=0, help="only errors on stderr")
+    if output:
+        g.add_argument("--force", action="store_true", help="overwrite existing outputs")
+
+
+def parse_kv(items: list[str] | None, option: str, convert=str) -> dict[str, object]:
+    """Parse ``KEY=VALUE`` items of a repeated option into a dict (errors name the option)."""
+    from ..exceptions import OptionError
+
+    out: dict[str, object] = {}
+    for it in items or []:
+        if "=" not in it:
+            raise OptionError(f"{option} expects KEY=VALUE, got {it!r}")
+        k, v = it.split("=", 1)
+        try:
+            out[k] = convert(v)
+        except ValueError:
+            raise OptionError(f"{option} {it!r}: {v!r} is not a valid value") from None
+    return out

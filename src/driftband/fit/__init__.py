@@ -1,0 +1,1 @@
+"""driftband.fit."""

@@ -1,0 +1,303 @@
+"""Reading and writing spectra files.
+
+The spectra file is JSON, schema ``driftband-spectra`` version 1::
+
+    {
+      "schema": "driftband-spectra", "schema_version": 1,
+      "blocks": [{"chrom": "1", "start": 0, "end": 100000, "name": ""}, ...],
+      "populations": {
+        "lake": {
+          "n": 20, "folded": false, "polarisation": "aa",
+          "classes": {
+            "0fold": {"sfs": [...n+1 ints...], "sites": 123456,
+                      "block_sfs": [[...], ...], "block_sites": [...]},
+            "4fold": {...}
+          },
+          "stats": {"0fold": {"pi": ..., "theta_w": ..., "tajimas_d": ...,
+                              "segregating": ...}, ..., "piN_piS": ...}
+        }
+      },
+      "skipped": {"multiallelic": 3, ...},
+      "provenance": {...}
+    }
+
+``sfs`` and ``sites`` are the sums of the block arrays (checked on reading).
+A long TSV (columns ``population, class, n, folded, count, sites``: ``sites`` sites of
+the class carry ``count`` derived, or minor, copies) is written beside it for pipelines,
+and the same table, or a wide one, can be read back (reviewer mode, see
+:func:`read_spectra_tsv`).
+"""
+
+from __future__ import annotations
+
+import csv
+import json
+import os
+from typing import Any
+
+import numpy as np
+
+from .._io import atomic_output
+from ..exceptions import InputError
+from ._types import Block, ClassSpectrum, PopulationSpectra, SpectraSet, spectrum_length
+from .stats import diversity
+
+__all__ = [
+    "SCHEMA",
+    "SCHEMA_VERSION",
+    "add_diversity",
+    "read_spectra",
+    "read_spectra_json",
+    "read_spectra_tsv",
+    "spectra_to_dict",
+    "write_spectra_json",
+    "write_spectra_tsv",
+]
+
+SCHEMA = "driftband-spectra"
+SCHEMA_VERSION = 1
+
+
+def add_diversity(pop: PopulationSpectra, neutral: str = "4fold",
+                  selected: str = "0fold") -> None:
+    """Fill ``pop.stats`` with π, θ_W, Tajima's D per class and π_N/π_S."""
+    stats: dict[str, Any] = {}
+    for name, cs in pop.classes.items():
+        stats[name] = diversity(cs.sfs, pop.n, pop.folded, cs.sites)
+    if neutral in stats and selected in stats:
+        pis, pin = stats[neutral]["pi"], stats[selected]["pi"]
+        stats["piN_piS"] = pin / pis if pis and np.isfinite(pis) else float("nan")
+    pop.stats = stats
+
+
+def _clean(x: Any) -> Any:
+    """JSON-safe copy: numpy scalars to Python, NaN/inf to None."""
+    if isinstance(x, dict):
+        return {str(k): _clean(v) for k, v in x.items()}
+    if isinstance(x, list | tuple):
+        return [_clean(v) for v in x]
+    if isinstance(x, np.ndarray):
+        return _clean(x.tolist())
+    if isinstance(x, np.integer):
+        return int(x)
+    if isinstance(x, float | np.floating):
+        x = float(x)
+        return x if np.isfinite(x) else None
+    return x
+
+
+def spectra_to_dict(ss: SpectraSet) -> dict[str, Any]:
+    """The JSON document of a :class:`SpectraSet`."""
+    pops = {}
+    for name, pop in ss.populations.items():
+        pops[name] = {
+            "n": pop.n,
+            "folded": pop.folded,
+            "polarisation": pop.polarisation,
+            "classes": {
+                c: {
+                    "sfs": cs.sfs.tolist(),
+                    "sites": cs.sites,
+                    "block_sfs": cs.block_sfs.tolist(),
+                    "block_sites": cs.block_sites.tolist(),
+                }
+                for c, cs in pop.classes.items()
+            },
+            "stats": pop.stats,
+        }
+    return _clean({
+        "schema": SCHEMA,
+        "schema_version": SCHEMA_VERSION,
+        "blocks": [{"chrom": b.chrom, "start": b.start, "end": b.end, "name": b.name}
+                   for b in ss.blocks],
+        "populations": pops,
+        "skipped": ss.skipped,
+        "provenance": ss.provenance,
+    })
+
+
+def write_spectra_json(ss: SpectraSet, path: str | os.PathLike, force: bool = False) -> None:
+    """Write a spectra file atomically (see the module docstring for the schema)."""
+    doc = spectra_to_dict(ss)
+    with atomic_output(path, force=force) as fh:
+        json.dump(doc, fh, separators=(",", ":"))
+        fh.write("\n")
+
+
+def write_spectra_tsv(ss: SpectraSet, path: str | os.PathLike, force: bool = False) -> None:
+    """Write the long spectra table ``population, class, n, folded, count, sites``."""
+    with atomic_output(path, force=force, newline="") as fh:
+        w = csv.writer(fh, delimiter="\t", lineterminator="\n")
+        w.writerow(["population", "class", "n", "folded", "count", "sites"])
+        for name, pop in ss.populations.items():
+            for c, cs in pop.classes.items():
+                for i, v in enumerate(cs.sfs.tolist()):
+                    w.writerow([name, c, pop.n, str(pop.folded).lower(), i, v])
+
+
+def _fail(path, msg: str) -> InputError:
+    return InputError(msg, path)
+
+
+def read_spectra_json(path: str | os.PathLike) -> SpectraSet:
+    """Read and validate a spectra file.
+
+    Raises
+    ------
+    InputError
+        Not JSON, another schema or version, or inconsistent arrays (named).
+    """
+    try:
+        with open(path, encoding="utf-8") as fh:
+            doc = json.load(fh)
+    except FileNotFoundError:
+        raise _fail(path, "file not found") from None
+    except (json.JSONDecodeError, UnicodeDecodeError) as err:
+        raise _fail(path, f"not a spectra JSON file ({err})") from None
+    if not isinstance(doc, dict) or doc.get("schema") != SCHEMA:
+        raise _fail(path, f"not a spectra file (expected \"schema\": \"{SCHEMA}\")")
+    ver = doc.get("schema_version")
+    if ver != SCHEMA_VERSION:
+        raise _fail(path, f"spectra schema version {ver!r} is not supported "
+                          f"(this driftband reads version {SCHEMA_VERSION})")
+    try:
+        blocks = [Block(str(b["chrom"]), int(b["start"]), int(b["end"]), str(b.get("name", "")))
+                  for b in doc.get("blocks", [])]
+        pops: dict[str, PopulationSpectra] = {}
+        for name, p in doc["populations"].items():
+            n, folded = int(p["n"]), bool(p["folded"])
+            m = spectrum_length(n, folded)
+            classes = {}
+            for c, cd in p["classes"].items():
+                bs = np.asarray(cd.get("block_sfs", [cd["sfs"]]), dtype=np.int64)
+                bsites = np.asarray(cd.get("block_sites", [cd["sites"]]), dtype=np.int64)
+                if bs.ndim != 2 or bs.shape[1] != m:
+                    raise _fail(path, f"population {name!r} class {c!r}: spectra must have "
+                                      f"{m} entries for n={n}{' folded' if folded else ''}")
+                if np.any(bs < 0):
+                    raise _fail(path, f"population {name!r} class {c!r}: negative counts")
+                cs = ClassSpectrum(bs, bsites)
+                if "sfs" in cd and not np.array_equal(cs.sfs, np.asarray(cd["sfs"])):
+                    raise _fail(path, f"population {name!r} class {c!r}: \"sfs\" is not the "
+                                      "sum of \"block_sfs\"")
+                if np.any(bs.sum(axis=1) != bsites):
+                    raise _fail(path, f"population {name!r} class {c!r}: block spectra do not "
+                                      "add up to block_sites")
+                classes[c] = cs
+            pops[name] = PopulationSpectra(name, n, folded, classes,
+                                           str(p.get("polarisation", "given")),
+                                           dict(p.get("stats") or {}))
+    except (KeyError, TypeError, ValueError) as err:
+        raise _fail(path, f"malformed spectra file ({type(err).__name__}: {err})") from None
+    return SpectraSet(pops, blocks, dict(doc.get("skipped", {})), dict(doc.get("provenance", {})))
+
+
+def read_spectra_tsv(path: str | os.PathLike, folded: bool | None = None) -> SpectraSet:
+    """Read spectra from a plain TSV (reviewer mode: spectra published in a table).
+
+    Two layouts are accepted (header line required; ``#`` lines are comments):
+
+    * **wide**: ``population, class, sites, c0, c1, ..., cn`` -- one row per population and
+      class, ``sites`` callable sites, then the site counts for 0..n derived copies (the
+      count columns may have any names; their number fixes n). If the ``c0`` entry is
+      empty, it is filled as ``sites`` minus the other entries.
+    * **long**: ``population, class, count, sites`` (``count_index`` is accepted for
+      ``count``), one row per entry: ``sites`` sites with ``count`` derived copies. Optional
+      columns ``n`` and ``folded``.
+
+    Parameters
+    ----------
+    path : path-like
+    folded : bool, optional
+        Whether the counts are minor-allele (folded) spectra of length n//2+1; wide tables
+        cannot tell, so they are taken as unfolded unless this is True. Long tables with a
+        ``folded`` column say it themselves.
+    """
+    try:
+        with open(path, encoding="utf-8", newline="") as fh:
+            rows = [r for r in csv.reader(fh, delimiter="\t") if r and not r[0].startswith("#")]
+    except FileNotFoundError:
+        raise _fail(path, "file not found") from None
+    if len(rows) < 2:
+        raise _fail(path, "empty spectra table (a header and at least one row are needed)")
+    header = [h.strip().lower() for h in rows[0]]
+    long = ("count" in header or "count_index" in header) and "sites" in header
+    if header[:2] != ["population", "class"]:
+        raise InputError("the first two columns must be 'population' and 'class'", path, 1)
+    data: dict[str, dict[str, dict[int, int]]] = {}
+    sites: dict[tuple[str, str], int] = {}
+    fold_of: dict[str, bool] = {}
+    n_of: dict[str, int] = {}
+    for ln, r in enumerate(rows[1:], start=2):
+        r = [x.strip() for x in r]
+        if len(r) != len(header):
+            raise InputError(f"{len(r)} fields, the header has {len(header)}", path, ln)
+        pop, cls = r[0], r[1]
+        try:
+            if long:
+                rec = dict(zip(header, r))
+                k = int(rec.get("count", rec.get("count_index")))
+                v = int(float(rec["sites"]))
+                if k < 0 or v < 0:
+                    raise ValueError("negative value")
+                if k in data.setdefault(pop, {}).setdefault(cls, {}):
+                    raise ValueError(f"count {k} given twice")
+                data[pop][cls][k] = v
+                if rec.get("folded"):
+                    fold_of[pop] = rec["folded"].lower() in ("true", "1", "yes")
+                if rec.get("n"):
+                    n_of[pop] = int(rec["n"])
+            else:
+                total = int(float(r[2]))
+                vals = r[3:]
+                counts = {k: int(float(x)) for k, x in enumerate(vals) if x != ""}
+                if 0 not in counts:
+                    counts[0] = total - sum(counts.values())
+                if any(v < 0 for v in counts.values()):
+                    raise ValueError("negative count (or entries exceed 'sites')")
+                data.setdefault(pop, {})[cls] = counts
+                sites[(pop, cls)] = total
+        except ValueError as err:
+            raise InputError(f"not a valid number ({err})", path, ln) from None
+    pops = {}
+    for pop, classes in data.items():
+        is_folded = fold_of.get(pop, bool(folded))
+        m = max(max(c) for c in classes.values()) + 1 if not long or pop not in n_of else None
+        if long and pop in n_of:
+            n = n_of[pop]
+        elif is_folded:
+            raise _fail(path, f"population {pop!r}: folded spectra need an 'n' column")
+        else:
+            n = m - 1
+        length = spectrum_length(n, is_folded)
+        out = {}
+        for cls, counts in classes.items():
+            arr = np.zeros(length, dtype=np.int64)
+            for k, v in counts.items():
+                if k >= length:
+                    raise _fail(path, f"population {pop!r} class {cls!r}: count {k} beyond "
+                                      f"the spectrum length {length}")
+                arr[k] = v
+            if not long and len(counts) != length:
+                raise _fail(path, f"population {pop!r} class {cls!r}: {len(counts)} entries, "
+                                  f"others of this population have {length}")
+            if (pop, cls) in sites and arr.sum() != sites[(pop, cls)]:
+                raise _fail(path, f"population {pop!r} class {cls!r}: entries add up to "
+                                  f"{arr.sum()}, not to sites={sites[(pop, cls)]}")
+            out[cls] = ClassSpectrum.from_total(arr)
+        ps = PopulationSpectra(pop, n, is_folded, out, "fold" if is_folded else "given")
+        add_diversity(ps)
+        pops[pop] = ps
+    return SpectraSet(pops, [Block("all", 0, 0, "table")], {},
+                      {"source": {"path": os.path.abspath(path), "layout":
+                                  "long" if long else "wide"}})
+
+
+def read_spectra(path: str | os.PathLike) -> SpectraSet:
+    """Read a spectra file: JSON (``.json``) or a plain TSV table (anything else)."""
+    p = os.fspath(path)
+    with open(p, "rb") as fh:
+        head = fh.read(64).lstrip()
+    if head.startswith(b"{"):
+        return read_spectra_json(p)
+    return read_spectra_tsv(p)

@@ -1,0 +1,26 @@
+"""Repository-level checks: the README's test command is the one CI runs."""
+
+from pathlib import Path
+
+ROOT = Path(__file__).resolve().parents[1]
+
+
+def _readme_commands() -> list[str]:
+    text = (ROOT / "README.md").read_text(encoding="utf-8")
+    blocks = text.split("```bash")[1:]
+    return [b.split("```")[0].strip() for b in blocks]
+
+
+def test_ci_runs_readme_test_command():
+    cmds = _readme_commands()
+    assert len(cmds) >= 2, "README quick start must have two commands"
+    test_cmd = cmds[1]
+    ci = (ROOT / ".ci" / "run").read_text(encoding="utf-8")
+    ci_lines = [ln.strip() for ln in ci.splitlines() if ln.strip() and not ln.startswith("#")]
+    assert test_cmd in ci_lines
+
+
+def test_readme_first_paragraph_states_the_job():
+    text = (ROOT / "README.md").read_text(encoding="utf-8")
+    first = text.split("\n\n")[1]
+    assert "distribution of" in first and "effectively neutral" in first

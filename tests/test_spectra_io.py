@@ -1,0 +1,90 @@
+"""Spectra file round trip and validation."""
+
+import json
+
+import numpy as np
+import pytest
+
+from driftband.exceptions import InputError
+from driftband.spectra import (
+    Block,
+    ClassSpectrum,
+    PopulationSpectra,
+    SpectraSet,
+    add_diversity,
+    read_spectra,
+    read_spectra_json,
+    write_spectra_json,
+    write_spectra_tsv,
+)
+
+
+def _set(n=6):
+    rng = np.random.default_rng(1)
+    classes = {}
+    for c in ("0fold", "4fold"):
+        b = rng.integers(0, 20, size=(3, n + 1))
+        classes[c] = ClassSpectrum(b, b.sum(axis=1))
+    pop = PopulationSpectra("lake", n, False, classes, "aa")
+    add_diversity(pop)
+    blocks = [Block("1", 0, 100), Block("1", 100, 200), Block("2", 0, 100)]
+    return SpectraSet({"lake": pop}, blocks, {"multiallelic": 2}, {"x": 1})
+
+
+def test_json_round_trip(tmp_path):
+    ss = _set()
+    p = tmp_path / "s.json"
+    write_spectra_json(ss, p)
+    back = read_spectra_json(p)
+    a, b = ss.populations["lake"], back.populations["lake"]
+    assert b.n == a.n and b.folded == a.folded and b.polarisation == "aa"
+    for c in a.classes:
+        np.testing.assert_array_equal(a.classes[c].block_sfs, b.classes[c].block_sfs)
+        assert a.classes[c].sites == b.classes[c].sites
+    assert back.blocks == ss.blocks and back.skipped == {"multiallelic": 2}
+
+
+def test_existing_output_refused(tmp_path):
+    p = tmp_path / "s.json"
+    write_spectra_json(_set(), p)
+    with pytest.raises(Exception, match="--force"):
+        write_spectra_json(_set(), p)
+    write_spectra_json(_set(), p, force=True)
+
+
+def test_unknown_schema_version(tmp_path):
+    p = tmp_path / "s.json"
+    write_spectra_json(_set(), p)
+    doc = json.loads(p.read_text())
+    doc["schema_version"] = 99
+    p.write_text(json.dumps(doc))
+    with pytest.raises(InputError, match="schema version 99"):
+        read_spectra_json(p)
+
+
+def test_tsv_long_round_trip(tmp_path):
+    ss = _set()
+    p = tmp_path / "s.tsv"
+    write_spectra_tsv(ss, p)
+    back = read_spectra(p)
+    for c, cs in ss.populations["lake"].classes.items():
+        np.testing.assert_array_equal(back.populations["lake"].classes[c].sfs, cs.sfs)
+
+
+def test_tsv_wide_fills_entry_zero(tmp_path):
+    p = tmp_path / "w.tsv"
+    p.write_text("population\tclass\tsites\tc0\tc1\tc2\tc3\tc4\n"
+                 "spring\t0fold\t1000\t\t10\t5\t3\t1\n"
+                 "spring\t4fold\t500\t\t20\t9\t6\t2\n")
+    ss = read_spectra(p)
+    pop = ss.populations["spring"]
+    assert pop.n == 4
+    np.testing.assert_array_equal(pop.classes["0fold"].sfs, [981, 10, 5, 3, 1])
+    assert pop.classes["4fold"].sites == 500
+
+
+def test_tsv_bad_number_names_line(tmp_path):
+    p = tmp_path / "w.tsv"
+    p.write_text("population\tclass\tsites\tc0\tc1\n" "a\t0fold\tx\t1\t2\n")
+    with pytest.raises(InputError, match=r"w.tsv:2"):
+        read_spectra(p)
