@@ -354,7 +354,9 @@ def classify_chromosome(seq: np.ndarray, transcripts: Sequence[Transcript],
     bits = mask[sites]
     del mask
     single = _SINGLE_CLASS[bits]
-    excluded["class_conflict"] = int((single < 0).sum())
+    # A conflict: transcripts give different classes, or one gives a class and another
+    # cannot classify the site (sites no transcript can classify are counted by codon).
+    excluded["class_conflict"] = int(((single < 0) & ((bits & 0x0F) != 0)).sum())
     good = (single >= 0) & (single < 4)
     if exclude_softmasked:
         soft = seq[sites] >= ord("a")
