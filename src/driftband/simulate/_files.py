@@ -1,0 +1,295 @@
+"""Files of a simulated study: spectra, and a VCF + sites BED + popmap on synthetic chromosomes.
+
+VCF layout (``PREFIX.vcf.gz`` with a tabix index ``PREFIX.vcf.gz.tbi``):
+
+* one record per site that is variable in the sample of some population (or a
+  substitution within the divergence window); each population's variable sites lie at
+  positions of their own (no two populations share a variable site);
+* ``INFO/AA`` is the ancestral base; ``REF`` is the ancestral base, except for a chosen
+  fraction of records (``ref_derived``) where the reference carries the derived base;
+* diploid samples ``POP_01``, ``POP_02``, ... (consecutive sampled gene copies are paired
+  into an individual; unphased); FORMAT ``GT:DP:GQ`` with depth ~ Poisson(``depth``)
+  (at least 1) and a genotype quality that grows with depth; a fraction ``missing`` of
+  genotypes is set to ``./.``;
+* an optional outgroup population, homozygous for the ancestral base at every record, so
+  that at a substitution it differs from the population that fixed the derived base.
+
+``PREFIX.sites.bed`` is the BED4 of every callable site with its class (all simulated
+sites are callable) and ``PREFIX.popmap.tsv`` maps each sample to its population (no
+header). The spectra written beside them are the complete-data truth: with missing
+genotypes, spectra recounted from the VCF differ by the projection to a common n.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import logging
+import os
+import tempfile
+from collections.abc import Sequence
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from .._io import atomic_output, check_outputs
+from .._version import __version__
+from ..exceptions import OptionError
+from ..sites.bed import write_bed4
+from ..spectra.io import write_spectra_json, write_spectra_tsv
+from ._model import PopulationModel
+from ._study import CLASSES, SimulatedStudy, _seed_stream
+
+__all__ = ["check_vcf_options", "study_paths", "write_study", "write_study_vcf"]
+
+log = logging.getLogger("driftband")
+
+_BASES = np.array(list("ACGT"))
+_GT = np.array(["0/0", "0/1", "1/1"])
+
+
+def study_paths(vcf_prefix: str | os.PathLike) -> dict[str, str]:
+    """Output paths of the VCF set for a prefix: ``vcf``, ``tbi``, ``bed``, ``popmap``."""
+    p = os.fspath(vcf_prefix)
+    return {"vcf": p + ".vcf.gz", "tbi": p + ".vcf.gz.tbi", "bed": p + ".sites.bed",
+            "popmap": p + ".popmap.tsv"}
+
+
+def _sample_names(name: str, count: int) -> list[str]:
+    width = max(2, len(str(count)))
+    return [f"{name}_{i + 1:0{width}d}" for i in range(count)]
+
+
+def write_study_vcf(study: SimulatedStudy, prefix: str | os.PathLike, missing: float = 0.0,
+                    outgroup: tuple[str, int] | None = None, ref_derived: float = 0.0,
+                    depth: float = 20.0, force: bool = False,
+                    command: str | None = None) -> dict[str, str]:
+    """Write ``PREFIX.vcf.gz`` (+ ``.tbi``), ``PREFIX.sites.bed`` and ``PREFIX.popmap.tsv``.
+
+    Parameters
+    ----------
+    study : SimulatedStudy
+        Every population's sample size must be even (diploid individuals).
+    prefix : path-like
+    missing : float
+        Probability that a genotype is missing, in [0, 1).
+    outgroup : (str, int), optional
+        Name and gene copies (even) of an outgroup fixed for the ancestral base.
+    ref_derived : float
+        Fraction of records whose REF is the derived base, in [0, 1].
+    depth : float
+        Mean read depth of a called genotype (> 0).
+    force : bool
+        Overwrite existing outputs.
+    command : str, optional
+        Recorded in the VCF header.
+
+    Returns
+    -------
+    dict of str to str
+        The paths written (keys as in :func:`study_paths`).
+    """
+    paths = study_paths(prefix)
+    check_vcf_options(study.populations, missing, outgroup, ref_derived, depth)
+    check_outputs(paths.values(), force)
+    rng = _seed_stream(study.seed, 2)
+    lay = study.layout
+    pops = study.populations
+    # Records: class, population, site index -> chromosome and position.
+    rec_chrom, rec_pos, rec_pop, rec_k = [], [], [], []
+    for ci, c in enumerate(CLASSES):
+        for pi, samp in enumerate(study.samples):
+            idx = study.site_index[c][pi]
+            rec_chrom.append(lay.block_chrom[lay.block_of(ci, idx)])
+            rec_pos.append(lay.site_positions(ci, idx))
+            rec_pop.append(np.full(idx.size, pi, np.int64))
+            rec_k.append(samp.classes[c].derived)
+    chrom = np.concatenate(rec_chrom) if rec_chrom else np.empty(0, np.int64)
+    pos0 = np.concatenate(rec_pos)
+    rpop = np.concatenate(rec_pop)
+    rk = np.concatenate(rec_k)
+    order = np.lexsort((pos0, chrom))
+    chrom, pos0, rpop, rk = chrom[order], pos0[order], rpop[order], rk[order]
+    m = chrom.size
+    anc = rng.integers(0, 4, m)
+    der = (anc + rng.integers(1, 4, m)) % 4
+    flip = rng.random(m) < ref_derived          # REF carries the derived base
+    ref = np.where(flip, der, anc)
+    alt = np.where(flip, anc, der)
+    # Gene copies: populations in order, then the outgroup; 1 = carries the derived base.
+    ns = [p.n for p in pops]
+    n_out = outgroup[1] if outgroup else 0
+    offs = np.concatenate([[0], np.cumsum(ns)])
+    copies = np.zeros((m, int(offs[-1]) + n_out), dtype=np.int8)
+    for pi, n in enumerate(ns):
+        sel = np.flatnonzero(rpop == pi)
+        if sel.size:
+            u = rng.random((sel.size, n))
+            rank = u.argsort(axis=1).argsort(axis=1)
+            copies[sel[:, None], offs[pi] + np.arange(n)] = rank < rk[sel, None]
+    # Allele index in the VCF: derived is ALT (1) unless REF is derived.
+    allele = np.where(flip[:, None], 1 - copies, copies).astype(np.int8)
+    gt = allele[:, 0::2] + allele[:, 1::2]      # 0, 1, 2 ALT copies per individual
+    n_ind = gt.shape[1]
+    miss = rng.random((m, n_ind)) < missing if missing > 0 else np.zeros((m, n_ind), bool)
+    dp = np.maximum(rng.poisson(depth, (m, n_ind)), 1)
+    gq = np.clip(np.rint(3.0 * dp - 3.0 + rng.normal(0.0, 4.0, (m, n_ind))), 0, 99)
+    gq = np.where(gt == 1, np.minimum(gq, np.maximum(dp * 2, 3)), gq).astype(np.int64)
+    samples = [s for p in pops for s in _sample_names(p.name, p.n // 2)]
+    if outgroup:
+        samples += _sample_names(outgroup[0], n_out // 2)
+    fmt = np.char.add(np.char.add(np.char.add(_GT[gt], ":"), dp.astype(str)),
+                      np.char.add(":", gq.astype(str)))
+    if miss.any():
+        fmt[miss] = "./.:.:."
+    header = _header(study, samples, command)
+    _write_vcf(paths["vcf"], paths["tbi"], header, chrom, pos0, ref, alt, anc, fmt, lay)
+    write_bed4(paths["bed"], lay.bed_rows(), force=force)
+    with atomic_output(paths["popmap"], force=force, newline="") as fh:
+        for p in pops:
+            for s in _sample_names(p.name, p.n // 2):
+                fh.write(f"{s}\t{p.name}\n")
+        if outgroup:
+            for s in _sample_names(outgroup[0], n_out // 2):
+                fh.write(f"{s}\t{outgroup[0]}\n")
+    log.info("wrote %d VCF records for %d samples to %s", m, len(samples), paths["vcf"])
+    return paths
+
+
+def check_vcf_options(populations: Sequence[PopulationModel], missing: float = 0.0,
+                      outgroup: tuple[str, int] | None = None, ref_derived: float = 0.0,
+                      depth: float = 20.0) -> None:
+    """Check the VCF options against the populations before any work.
+
+    Raises
+    ------
+    OptionError
+        An odd sample size, a rate outside its range, or a bad outgroup.
+    """
+    for p in populations:
+        if p.n % 2:
+            raise OptionError(f"population {p.name!r}: n={p.n} is odd; a VCF needs diploid "
+                              "individuals (an even number of gene copies)")
+    if not 0.0 <= missing < 1.0:
+        raise OptionError(f"--missing {missing}: must be in [0, 1)")
+    if not 0.0 <= ref_derived <= 1.0:
+        raise OptionError(f"--ref-derived {ref_derived}: must be in [0, 1]")
+    if not depth > 0:
+        raise OptionError(f"--depth {depth}: must be > 0")
+    if outgroup is not None:
+        name, n = outgroup
+        if name in {p.name for p in populations}:
+            raise OptionError(f"--outgroup {name!r}: a population of that name exists")
+        if n < 2 or n % 2:
+            raise OptionError(f"--outgroup {name}: n={n} must be an even number >= 2")
+
+
+def _header(study: SimulatedStudy, samples: list[str], command: str | None) -> str:
+    lay = study.layout
+    lines = ["##fileformat=VCFv4.2",
+             f"##source=driftband-simulate-{__version__}",
+             f"##driftband_simulate_seed={study.seed}"]
+    if command:
+        lines.append(f"##driftband_simulate_command={command}")
+    lines += [f"##contig=<ID={c},length={int(n)}>"
+              for c, n in zip(lay.chrom_names, lay.chrom_lengths)]
+    lines += [
+        '##FILTER=<ID=PASS,Description="All filters passed">',
+        '##INFO=<ID=AA,Number=1,Type=String,Description="Ancestral allele">',
+        '##FORMAT=<ID=GT,Number=1,Type=String,Description="Genotype">',
+        '##FORMAT=<ID=DP,Number=1,Type=Integer,Description="Read depth">',
+        '##FORMAT=<ID=GQ,Number=1,Type=Integer,Description="Genotype quality '
+        '(phred-scaled)">',
+        "\t".join(["#CHROM", "POS", "ID", "REF", "ALT", "QUAL", "FILTER", "INFO", "FORMAT",
+                   *samples]),
+    ]
+    return "\n".join(lines) + "\n"
+
+
+def _umask() -> int:
+    cur = os.umask(0)
+    os.umask(cur)
+    return cur
+
+
+def _write_vcf(path: str, tbi: str, header: str, chrom: np.ndarray, pos0: np.ndarray,
+               ref: np.ndarray, alt: np.ndarray, anc: np.ndarray, fmt: np.ndarray,
+               lay: Any) -> None:
+    """bgzip-compressed VCF and its tabix index, written atomically (temp then rename)."""
+    import pysam
+
+    directory = Path(path).parent
+    directory.mkdir(parents=True, exist_ok=True)
+    fd, tmp = tempfile.mkstemp(prefix=f".{Path(path).name}.", suffix=".tmp.gz",
+                               dir=directory)
+    os.close(fd)
+    tmp_tbi = tmp + ".tbi"
+    try:
+        with pysam.BGZFile(tmp, "wb") as fh:
+            fh.write(header.encode())
+            names = np.array(lay.chrom_names)[chrom] if chrom.size else np.empty(0, str)
+            chunk = 5000
+            for a in range(0, chrom.size, chunk):
+                b = min(a + chunk, chrom.size)
+                rows = [
+                    f"{names[i]}\t{pos0[i] + 1}\t.\t{_BASES[ref[i]]}\t{_BASES[alt[i]]}\t100\t"
+                    f"PASS\tAA={_BASES[anc[i]]}\tGT:DP:GQ\t" + "\t".join(fmt[i].tolist())
+                    for i in range(a, b)
+                ]
+                fh.write(("\n".join(rows) + "\n").encode())
+        pysam.tabix_index(tmp, preset="vcf", index=tmp_tbi, force=True)
+        mode = 0o666 & ~_umask()
+        os.chmod(tmp, mode)
+        os.chmod(tmp_tbi, mode)
+        os.replace(tmp, path)
+        os.replace(tmp_tbi, tbi)
+    except BaseException:
+        for f in (tmp, tmp_tbi):
+            with contextlib.suppress(FileNotFoundError):
+                os.unlink(f)
+        raise
+
+
+def write_study(study: SimulatedStudy, output: str | os.PathLike | None = None,
+                tsv: str | os.PathLike | None = None,
+                vcf_prefix: str | os.PathLike | None = None, force: bool = False,
+                **vcf_options: Any) -> dict[str, str]:
+    """Write a simulated study's spectra (JSON, optional TSV) and optionally its VCF set.
+
+    Every output path is checked before anything is written.
+
+    Parameters
+    ----------
+    study : SimulatedStudy
+    output : path-like, optional
+        Spectra JSON.
+    tsv : path-like, optional
+        Long spectra table.
+    vcf_prefix : path-like, optional
+        Prefix of the VCF set (see :func:`write_study_vcf`).
+    force : bool
+    **vcf_options
+        ``missing``, ``outgroup``, ``ref_derived``, ``depth``, ``command``.
+
+    Returns
+    -------
+    dict of str to str
+        Paths written, by kind (``spectra``, ``tsv``, ``vcf``, ``tbi``, ``bed``, ``popmap``).
+    """
+    out: dict[str, str] = {}
+    planned = [output, tsv]
+    if vcf_prefix is not None:
+        check_vcf_options(study.populations, vcf_options.get("missing", 0.0),
+                           vcf_options.get("outgroup"), vcf_options.get("ref_derived", 0.0),
+                           vcf_options.get("depth", 20.0))
+        planned += list(study_paths(vcf_prefix).values())
+    check_outputs(planned, force)
+    if vcf_prefix is not None:
+        out.update(write_study_vcf(study, vcf_prefix, force=force, **vcf_options))
+    if tsv is not None:
+        write_spectra_tsv(study.spectra, tsv, force=force)
+        out["tsv"] = os.fspath(tsv)
+    if output is not None:
+        write_spectra_json(study.spectra, output, force=force)
+        out["spectra"] = os.fspath(output)
+    return out
