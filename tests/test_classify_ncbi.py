@@ -35,7 +35,7 @@ import pytest
 from Bio.Data import CodonTable
 
 from driftband.sites.classify import classify_sites, coding_sequences
-from driftband.sites.gff import read_gff3
+from driftband.sites.gff import Annotation, read_gff3
 
 DATASETS = {
     # name: (genome FASTA, GFF3, CDS FASTA, chromosome to classify)
@@ -122,9 +122,9 @@ def dataset(request, tmp_path_factory):
         os.symlink(files[0], fasta)
     except OSError:
         shutil.copy(files[0], fasta)
-    ann = read_gff3(files[1])
-    ann.transcripts = [t for t in ann.transcripts if t.seqid == chrom]
-    ann.seqid_lines = {chrom: ann.seqid_lines[chrom]}
+    full = read_gff3(files[1])
+    ann = Annotation([t for t in full.transcripts if t.seqid == chrom], full.path,
+                     full.n_cds_lines, {chrom: full.seqid_lines[chrom]})
     result = classify_sites(fasta, ann)
     return {"fasta": fasta, "ann": ann, "result": result, "chrom": chrom,
             "ncbi": _read_ncbi_cds(files[2], chrom)}

@@ -15,8 +15,9 @@ Excluded, and counted by reason: transcripts with an internal stop codon, pseudo
 other than A, C, G, T (soft-masked lowercase bases are used unless asked otherwise);
 incomplete codons; the terminal stop codon. Where several transcripts cover a site, the
 site is written only when every one of them gives the same class (``agree``), or only the
-longest CDS of each gene is used (``longest``); sites where transcripts disagree are
-counted as conflicts.
+longest CDS of each gene is used (``longest``); sites where transcripts disagree, or where
+one transcript gives a class and another cannot classify the site, are counted as
+conflicts (``class_conflict``). The written classes of all chromosomes are disjoint.
 
 The work is vectorised per chromosome: all coding bases of the chromosome's transcripts
 form one array, codons become indices 0..63 and classes are read from a 64 × 3 table.

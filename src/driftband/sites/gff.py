@@ -98,6 +98,11 @@ class Annotation:
         return list(self.seqid_lines)
 
 
+# Feature types that are never the parent of a CDS (not remembered, to save memory).
+_LEAF_TYPES = frozenset({"exon", "intron", "five_prime_UTR", "three_prime_UTR",
+                         "start_codon", "stop_codon", "region", "repeat_region"})
+
+
 def _open_text(path: str):
     with open(path, "rb") as fh:
         magic = fh.read(2)
@@ -178,7 +183,7 @@ def read_gff3(path: str | os.PathLike) -> Annotation:
                 attrs = _attributes(f[8])
                 fid = attrs.get("ID")
                 if ftype != "CDS":
-                    if fid is not None:
+                    if fid is not None and ftype not in _LEAF_TYPES:
                         fid = _dec(fid)
                         par = _parents(attrs.get("Parent"))
                         if par:
