@@ -186,65 +186,73 @@ def simulate_population(model: PopulationModel, dfe: SimDFE, mu: float,
         return s
 
     # Neutral equilibrium guess at the ancestral size: Poisson(theta L / j) at j copies.
+    # State: derived copies of each segregating mutation, selected class (with its s)
+    # and neutral class kept apart so that neutral sites skip the selection arithmetic.
     theta0 = 4.0 * N0 * mu
     j = np.arange(1, 2 * N0, dtype=np.int64)
-    parts_c, parts_s, parts_k = [], [], []
-    for ci in (0, 1):
-        k = rng.poisson(theta0 * L[ci] / j)
-        c = np.repeat(j, k)
-        parts_c.append(c)
-        parts_k.append(np.full(c.size, ci, np.int8))
-        parts_s.append(draw_s(c.size) if ci == 0 else np.zeros(c.size))
-    cnt = np.concatenate(parts_c)
-    sv = np.concatenate(parts_s)
-    cls = np.concatenate(parts_k)
+    cnt_s = np.repeat(j, rng.poisson(theta0 * L[0] / j))
+    sv = draw_s(cnt_s.size)
+    cnt_n = np.repeat(j, rng.poisson(theta0 * L[1] / j))
     sub_s: list[np.ndarray] = []
-    sub_c: list[np.ndarray] = []
+    n_sub_neutral = 0
     # Size of each generation, by generations before the sample.
     sizes = np.array([model.size_at(a) for a in range(model.history_generations + 1)],
                      dtype=np.int64)
     step = max(1, total // 100)
+    one = np.ones(0, np.int64)
     for g in range(total):
         ago = total - 1 - g
         two_n = 2 * int(sizes[min(ago, sizes.size - 1)])
-        cnt = wf_generation(cnt, sv, two_n_prev, two_n, rng)
-        fixed = cnt == two_n
+        # Selected class: selection then drift.
+        cnt_s = wf_generation(cnt_s, sv, two_n_prev, two_n, rng)
+        fixed = cnt_s == two_n
         nf = int(np.count_nonzero(fixed))
         if nf:
-            n_fixed += np.bincount(cls[fixed], minlength=2)
+            n_fixed[0] += nf
             if ago < T:
                 sub_s.append(sv[fixed])
-                sub_c.append(cls[fixed])
-        keep = (cnt > 0) & ~fixed
+        keep = (cnt_s > 0) & ~fixed
         if not keep.all():
-            cnt, sv, cls = cnt[keep], sv[keep], cls[keep]
-        k0, k4 = rng.poisson(two_n * mu * L)
+            cnt_s, sv = cnt_s[keep], sv[keep]
+        # Neutral class: drift only (s = 0 leaves p unchanged exactly).
+        cnt_n = rng.binomial(two_n, cnt_n / two_n_prev)
+        nf = int(np.count_nonzero(cnt_n == two_n))
+        if nf:
+            n_fixed[1] += nf
+            if ago < T:
+                n_sub_neutral += nf
+        keep = (cnt_n > 0) & (cnt_n < two_n)
+        if not keep.all():
+            cnt_n = cnt_n[keep]
+        # New mutations, one copy each.
+        k0, k4 = (int(x) for x in rng.poisson(two_n * mu * L))
         n_new += (k0, k4)
-        cnt = np.concatenate([cnt, np.ones(k0 + k4, np.int64)])
-        sv = np.concatenate([sv, draw_s(int(k0)), np.zeros(k4)])
-        cls = np.concatenate([cls, np.zeros(k0, np.int8), np.ones(k4, np.int8)])
+        if one.size < max(k0, k4):
+            one = np.ones(2 * max(k0, k4), np.int64)
+        cnt_s = np.concatenate([cnt_s, one[:k0]])
+        sv = np.concatenate([sv, draw_s(k0)])
+        cnt_n = np.concatenate([cnt_n, one[:k4]])
         two_n_prev = two_n
         if progress is not None and (g % step == 0 or g == total - 1):
             progress(g + 1, total)
     # Sample n of the 2N gene copies without replacement.
     n = model.n
-    if cnt.size:
-        k = rng.hypergeometric(cnt, two_n_prev - cnt, n)
-    else:
-        k = np.empty(0, np.int64)
+    k_s = rng.hypergeometric(cnt_s, two_n_prev - cnt_s, n) if cnt_s.size else cnt_s
+    k_n = rng.hypergeometric(cnt_n, two_n_prev - cnt_n, n) if cnt_n.size else cnt_n
     sub_s_all = np.concatenate(sub_s) if sub_s else np.empty(0)
-    sub_c_all = np.concatenate(sub_c) if sub_c else np.empty(0, np.int8)
+    n_subs = (sub_s_all.size, n_sub_neutral)
     classes = {}
-    seg_end = np.bincount(cls, minlength=2)
-    for ci, name in enumerate(CLASSES):
-        var = (cls == ci) & (k > 0)
-        subs = sub_c_all == ci
+    for ci, (name, k, s_seg, s_sub) in enumerate((
+            (CLASSES[0], k_s, sv, sub_s_all),
+            (CLASSES[1], k_n, np.zeros(cnt_n.size), np.zeros(n_sub_neutral)))):
+        var = k > 0
         classes[name] = ClassVariants(
-            derived=np.concatenate([k[var], np.full(int(subs.sum()), n)]).astype(np.int64),
-            s=np.concatenate([sv[var], sub_s_all[subs]]),
+            derived=np.concatenate([k[var], np.full(n_subs[ci], n)]).astype(np.int64),
+            s=np.concatenate([s_seg[var], s_sub]),
             substitution=np.concatenate([np.zeros(int(var.sum()), bool),
-                                         np.ones(int(subs.sum()), bool)]),
+                                         np.ones(n_subs[ci], bool)]),
         )
+    seg_end = (cnt_s.size, cnt_n.size)
     truth = {
         "generations": total,
         "burn_in": int(burn_in),
@@ -253,8 +261,7 @@ def simulate_population(model: PopulationModel, dfe: SimDFE, mu: float,
         "theta_present": 4.0 * model.present_size * mu,
         "new_mutations": {CLASSES[i]: int(n_new[i]) for i in (0, 1)},
         "fixations": {CLASSES[i]: int(n_fixed[i]) for i in (0, 1)},
-        "substitutions_in_window": {CLASSES[i]: int(np.count_nonzero(sub_c_all == i))
-                                    for i in (0, 1)},
+        "substitutions_in_window": {CLASSES[i]: int(n_subs[i]) for i in (0, 1)},
         "segregating_at_end": {CLASSES[i]: int(seg_end[i]) for i in (0, 1)},
         "clipped_s": n_clipped,
     }
