@@ -1,0 +1,158 @@
+"""``driftband spectra``: VCF + popmap + site classes -> spectra file (JSON) and TSV."""
+
+from __future__ import annotations
+
+import argparse
+import sys
+import time
+
+from .._io import check_outputs
+from ..exceptions import OptionError
+from ._common import add_common_arguments, add_subcommand
+
+__all__ = ["add_parser", "parse_project", "run"]
+
+DESCRIPTION = """\
+Count per-population, per-class site frequency spectra from a multi-sample VCF/BCF,
+kept per genomic block for the block bootstrap.
+
+Keeps biallelic SNPs at the sites of the class BED (intersected with --callable);
+callable sites absent from the VCF count as monomorphic ancestral (entry 0). Missing
+genotypes are handled by hypergeometric projection to n gene copies per population
+(default n: the largest n called at >= 90% of the usable records; without missing data,
+all gene copies). Skipped records are counted by reason. A summary (skip counts, n,
+sites, segregating sites, pi, Watterson's theta, Tajima's D, piN/piS) goes to stderr."""
+
+EXAMPLES = """\
+driftband spectra calls.vcf.gz --popmap pops.tsv --sites classes.bed -o spectra.json
+driftband spectra calls.bcf --popmap pops.tsv --sites classes.bed --callable mask.bed \\
+    --ancestral outgroup:snail_out --project 20 --tsv spectra.tsv -o spectra.json
+driftband spectra calls.vcf.gz --popmap pops.tsv --sites classes.bed --ancestral fold \\
+    --blocks genes.bed --min-dp 8 --min-gq 20 --pass-only --regions chr1 chr2:1-5000000 \\
+    -o spectra.json
+bcftools view -s A1,A2,B1,B2 calls.vcf.gz | driftband spectra - --popmap pops.tsv \\
+    --sites classes.bed -o spectra.json
+"""
+
+
+def add_parser(subparsers) -> argparse.ArgumentParser:
+    """Register the ``spectra`` subcommand."""
+    p = add_subcommand(subparsers, "spectra", help="VCF -> per-population site frequency "
+                       "spectra (JSON + TSV)", description=DESCRIPTION, examples=EXAMPLES)
+    p.add_argument("vcf", metavar="VCF",
+                   help="VCF (bgzipped + indexed, bgzipped, gzipped or plain), BCF, or - "
+                        "for standard input")
+    p.add_argument("--popmap", required=True, metavar="FILE",
+                   help="TSV sample<TAB>population (header optional)")
+    p.add_argument("--sites", required=True, metavar="BED",
+                   help="BED4 of site classes (class in column 4, e.g. 0fold, 4fold)")
+    p.add_argument("--callable", dest="callable_mask", metavar="BED",
+                   help="BED of callable sites; classes are intersected with it")
+    p.add_argument("--ancestral", default="aa", metavar="aa|fold|outgroup:POP",
+                   help="polarisation: INFO/AA (default), fold (minor-allele spectra), or "
+                        "the alleles of outgroup population POP of the popmap")
+    p.add_argument("--project", action="append", metavar="N|POP=N",
+                   help="project every population (N) or one (POP=N, repeatable) to N gene "
+                        "copies (default: the largest N called at >= 90%% of usable records)")
+    g = p.add_mutually_exclusive_group()
+    g.add_argument("--block-size", type=int, default=100_000, metavar="BP",
+                   help="length of the bootstrap blocks (default 100000)")
+    g.add_argument("--blocks", metavar="BED", help="BED of blocks (e.g. genes) instead")
+    p.add_argument("--regions", nargs="+", metavar="REGION",
+                   help="only these regions: CHROM, CHROM:START-END (1-based, inclusive) or "
+                        "BED files")
+    p.add_argument("--min-gq", type=int, metavar="Q",
+                   help="set genotypes with GQ < Q (or no GQ) to missing")
+    p.add_argument("--min-dp", type=int, metavar="D",
+                   help="set genotypes with DP < D (or no DP) to missing")
+    p.add_argument("--pass-only", action="store_true",
+                   help="keep only records whose FILTER is PASS or .")
+    p.add_argument("-o", "--output", required=True, metavar="JSON",
+                   help="spectra file (JSON) to write")
+    p.add_argument("--tsv", metavar="TSV",
+                   help="also write the long table population, class, n, folded, count, sites")
+    add_common_arguments(p)
+    p.set_defaults(runner=run)
+    return p
+
+
+def parse_project(items: list[str] | None) -> int | dict[str, int] | None:
+    """``--project`` values: ``N`` for all populations and/or ``POP=N`` for one."""
+    if not items:
+        return None
+    out: dict[str, int] = {}
+    for it in items:
+        key, _, val = it.rpartition("=")
+        key = key or "*"
+        try:
+            n = int(val)
+        except ValueError:
+            raise OptionError(f"--project {it!r}: expected N or POP=N with an integer N") \
+                from None
+        if key in out:
+            what = "all populations" if key == "*" else key
+            raise OptionError(f"--project given twice for {what}")
+        out[key] = n
+    if list(out) == ["*"]:
+        return out["*"]
+    return out
+
+
+class _Progress:
+    """A progress line on stderr, only when it is a terminal."""
+
+    def __init__(self, enabled: bool) -> None:
+        self.enabled = enabled and sys.stderr.isatty()
+        self.t0 = time.monotonic()
+        self.last = 0.0
+
+    def __call__(self, done: int, total: int, records: int) -> None:
+        if not self.enabled:
+            return
+        now = time.monotonic()
+        if now - self.last < 0.2 and done != total:
+            return
+        self.last = now
+        if total:
+            w = 30
+            k = int(w * done / total)
+            bar = f"[{'#' * k}{'.' * (w - k)}] {done}/{total} regions"
+        else:
+            bar = "[streaming]"
+        sys.stderr.write(f"\rdriftband spectra: {bar} {records:,} records "
+                         f"{now - self.t0:.0f}s ")
+        sys.stderr.flush()
+
+    def close(self) -> None:
+        if self.enabled:
+            sys.stderr.write("\n")
+
+
+def run(args: argparse.Namespace) -> int:
+    """Run ``driftband spectra``."""
+    from ..spectra.build import build_spectra, summary_lines
+    from ..spectra.io import write_spectra_json, write_spectra_tsv
+
+    outs = [args.output, args.tsv]
+    if args.tsv is not None and args.tsv == args.output:
+        raise OptionError("-o and --tsv must be different files")
+    check_outputs(outs, args.force)
+    project = parse_project(args.project)
+    bar = _Progress(not args.quiet)
+    try:
+        ss = build_spectra(args.vcf, args.popmap, args.sites,
+                           callable_mask=args.callable_mask, ancestral=args.ancestral,
+                           project=project, block_size=args.block_size, blocks=args.blocks,
+                           regions=args.regions, min_gq=args.min_gq, min_dp=args.min_dp,
+                           pass_only=args.pass_only, progress=bar)
+    finally:
+        bar.close()
+    write_spectra_json(ss, args.output, force=args.force)
+    if args.tsv:
+        write_spectra_tsv(ss, args.tsv, force=args.force)
+    if not args.quiet:
+        for line in summary_lines(ss):
+            print(line, file=sys.stderr)
+        print(f"wrote {args.output}" + (f" and {args.tsv}" if args.tsv else ""),
+              file=sys.stderr)
+    return 0

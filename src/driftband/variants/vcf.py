@@ -1,0 +1,1087 @@
+"""Reading VCF and BCF through htslib (pysam), with a vectorised genotype decoder.
+
+Accepted inputs: bgzipped VCF with a tabix (``.tbi``) or CSI (``.csi``) index, read region
+by region; bgzipped or gzipped VCF without an index, plain VCF and ``-`` (standard input,
+plain or compressed), read as one stream; BCF (indexed or not, also on standard input)
+through pysam's record objects.
+
+For text VCF, htslib (pysam's ``TabixFile``/``BGZFile``) opens, seeks and inflates; the
+records of about a megabyte of text at a time are split with numpy and the GT subfield (and
+integer subfields such as DP and GQ, when asked for) of every sample of thousands of records
+is decoded in one pass (the *fast path*). A record the fast path does not handle (a
+polyploid or multi-digit GT, an odd value) is decoded by pysam instead, record by record
+(the *fallback*), so both give the same answer; the tests check this on every fixture.
+
+Genotypes are returned as allele indices, shape (records, samples, copies), int8: ``-1`` a
+missing copy (``.``), ``-2`` no such copy (a haploid call in a diploid-width array).
+No model code here.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import gzip
+import os
+import re
+import sys
+import tempfile
+import threading
+from collections.abc import Iterator, Sequence
+from dataclasses import dataclass, field
+
+import numpy as np
+import pysam
+from pysam import libcbgzf
+
+from ..exceptions import InputError, VcfFormatError
+
+__all__ = [
+    "GenotypeData",
+    "GenotypeTable",
+    "VariantBatch",
+    "VcfHeader",
+    "VcfSource",
+    "open_vcf",
+    "read_genotype_table",
+]
+
+BGZF_EOF = bytes.fromhex("1f8b08040000000000ff0600424302001b0003000000000000000000")
+BATCH_BYTES = 1 << 20
+_PAD = b"\0\0\0\0\0\0\0\0"
+
+
+# ---------------------------------------------------------------------------- header
+
+@dataclass
+class VcfHeader:
+    """What driftband needs from a VCF header.
+
+    Attributes
+    ----------
+    samples : list of str
+        Sample columns, in order.
+    contigs : list of str
+        ``##contig`` IDs, in order.
+    contig_lengths : dict of str to int
+        Lengths given in ``##contig`` lines.
+    info, formats : set of str
+        Declared INFO and FORMAT IDs.
+    text : str
+        The header text (``##`` lines and the ``#CHROM`` line), for the pysam fallback.
+    n_lines : int
+        Number of header lines (record ``i``, 0-based, is on line ``n_lines + i + 1``).
+    """
+
+    samples: list[str]
+    contigs: list[str]
+    contig_lengths: dict[str, int]
+    info: set[str]
+    formats: set[str]
+    text: str
+    n_lines: int
+
+
+_ID = re.compile(r"<ID=([^,>]+)")
+_LEN = re.compile(r"[<,]length=(\d+)")
+
+
+def parse_header(text: str, path: str) -> VcfHeader:
+    """Parse the header text of a VCF (``##`` lines and the ``#CHROM`` line).
+
+    Raises
+    ------
+    VcfFormatError
+        No ``##fileformat=VCF`` line, no ``#CHROM`` line, or no sample columns.
+    """
+    lines = text.splitlines()
+    if not lines or not lines[0].startswith("##fileformat=VCF"):
+        raise VcfFormatError("not a VCF file (the first line must be ##fileformat=VCFv4.x)",
+                             path, 1)
+    contigs, lengths, info, formats = [], {}, set(), set()
+    chrom_line = None
+    for ln, line in enumerate(lines, start=1):
+        if line.startswith("##contig="):
+            m = _ID.search(line)
+            if m:
+                contigs.append(m.group(1))
+                lm = _LEN.search(line)
+                if lm:
+                    lengths[m.group(1)] = int(lm.group(1))
+        elif line.startswith("##INFO="):
+            m = _ID.search(line)
+            if m:
+                info.add(m.group(1))
+        elif line.startswith("##FORMAT="):
+            m = _ID.search(line)
+            if m:
+                formats.add(m.group(1))
+        elif line.startswith("#CHROM"):
+            chrom_line = (ln, line)
+        elif not line.startswith("##"):
+            raise VcfFormatError("header line does not start with ## (or the #CHROM line "
+                                 "is missing)", path, ln)
+    if chrom_line is None:
+        raise VcfFormatError("no #CHROM header line (truncated file, or not a VCF)", path)
+    ln, line = chrom_line
+    cols = line.rstrip("\r").split("\t")
+    if len(cols) < 10 or cols[8] != "FORMAT":
+        raise VcfFormatError("the VCF has no sample columns (a FORMAT column and at least "
+                             "one sample are needed for spectra)", path, ln)
+    return VcfHeader(cols[9:], contigs, lengths, info, formats, text, len(lines))
+
+
+# ---------------------------------------------------------------------------- genotypes
+
+@dataclass
+class GenotypeData:
+    """Decoded genotypes of some records of a batch.
+
+    Attributes
+    ----------
+    alleles : ndarray of int8, shape (r, s, p)
+        Allele index per copy; -1 missing copy, -2 no such copy; ``p >= 2``.
+    fields : dict of str to ndarray of int32, shape (r, s)
+        Integer FORMAT subfields asked for (e.g. DP, GQ); -1 where missing.
+    fast : ndarray of bool, shape (r,)
+        Which records the vectorised decoder handled (the rest went through pysam).
+    """
+
+    alleles: np.ndarray
+    fields: dict[str, np.ndarray]
+    fast: np.ndarray
+
+
+def _gt_tuple_to_row(gt, width: int, out: np.ndarray) -> None:
+    out[:] = -2
+    for k, a in enumerate(gt[:width]):
+        out[k] = -1 if a is None else a
+
+
+def _records_genotypes(records: Sequence, cols: np.ndarray, fields: Sequence[str],
+                       names: Sequence[str]) -> tuple[np.ndarray, dict[str, np.ndarray]]:
+    """Genotypes of pysam records (the fallback, and the BCF path)."""
+    r, s = len(records), len(cols)
+    gts = []
+    ploidy = 2
+    vals = {f: np.full((r, s), -1, np.int32) for f in fields}
+    for i, rec in enumerate(records):
+        if "GT" not in rec.format:
+            raise VcfFormatError(f"record {rec.chrom}:{rec.pos} has no GT field "
+                                 f"(FORMAT {':'.join(rec.format.keys()) or '.'})", names[0])
+        smp = rec.samples
+        row = []
+        for j, c in enumerate(cols.tolist()):
+            call = smp[c]
+            gt = call["GT"]
+            if gt == () and list(rec.format.keys())[0] != "GT":
+                raise VcfFormatError(f"record {rec.chrom}:{rec.pos}: GT must be the first "
+                                     "FORMAT key (VCF specification)", names[0])
+            row.append(gt)
+            ploidy = max(ploidy, len(gt))
+            for f in fields:
+                if f in rec.format:
+                    v = call[f]
+                    if isinstance(v, tuple):
+                        v = v[0] if v else None
+                    if v is not None:
+                        vals[f][i, j] = int(v)
+        gts.append(row)
+    alleles = np.full((r, s, ploidy), -2, np.int8)
+    for i, row in enumerate(gts):
+        for j, gt in enumerate(row):
+            _gt_tuple_to_row(gt, ploidy, alleles[i, j])
+    return alleles, vals
+
+
+def _decode_gt(buf: np.ndarray, p: np.ndarray, e: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Vectorised GT decoding of sample fields ``buf[p:e]`` (GT first), shape (r, s).
+
+    Handles haploid and diploid calls with single-digit allele indices and ``.``; returns
+    ``alleles`` (r, s, 2) int8 and ``ok`` (r,) bool for the records fully handled.
+    """
+    c0 = buf[p]
+    c1 = buf[p + 1]
+    c2 = buf[p + 2]
+    c3 = buf[p + 3]
+    w = e - p
+    hap = (w == 1) | (c1 == 58)  # one character, then ':' or the end of the field
+    dip = ((c1 == 47) | (c1 == 124)) & ((w == 3) | (c3 == 58))
+    d0 = c0.astype(np.int16) - 48
+    d2 = c2.astype(np.int16) - 48
+    m0 = c0 == 46
+    m2 = c2 == 46
+    v0 = ((d0 >= 0) & (d0 <= 9)) | m0
+    v2 = ((d2 >= 0) & (d2 <= 9)) | m2
+    ok = (v0 & (hap | (dip & v2))).all(axis=1)
+    alleles = np.empty(p.shape + (2,), np.int8)
+    alleles[..., 0] = np.where(m0, -1, d0)
+    alleles[..., 1] = np.where(hap, -2, np.where(m2, -1, d2))
+    return alleles, ok
+
+
+def _parse_uint(buf: np.ndarray, s: np.ndarray, w: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Decode the unsigned integers ``buf[s:s+w]`` (shape of ``s``); ``.`` or empty -> -1.
+
+    Returns the values (int32) and ``good`` (bool): False where the text is neither an
+    integer of at most 9 digits nor ``.``.
+    """
+    wmax = int(w.max()) if w.size else 0
+    val = np.zeros(s.shape, np.int32)
+    good = (w >= 0) & (w <= 9)
+    lim = buf.size - 1
+    for j in range(min(wmax, 10)):
+        d = buf[np.minimum(s + j, lim)] - np.uint8(48)  # wraps below '0'
+        inr = w > j
+        good &= (d <= 9) | ~inr
+        val = np.where(inr, val * 10 + d, val)
+    miss = (w == 0) | ((w == 1) & (buf[np.minimum(s, lim)] == 46))
+    val[miss] = -1
+    good |= miss
+    val[~good] = -1
+    return val, good
+
+
+def _decode_int(buf: np.ndarray, p: np.ndarray, e: np.ndarray, k: int, nkeys: int,
+                cols: np.ndarray, first: np.ndarray, total: np.ndarray, n_samples: int,
+                colpos: np.ndarray, cc_fn) -> tuple[np.ndarray, np.ndarray]:
+    """Vectorised decoding of the integer subfield ``k`` (0-based) of sample fields.
+
+    ``p``/``e`` are the starts/ends of the sample fields (r, s) of VCF columns ``cols``;
+    ``colpos`` are the positions of ':' in ``buf`` (with sentinels at the end), ``first``
+    the index in ``colpos`` of the first colon of each record's sample part and ``total``
+    their number. In the usual layout every sample field has ``nkeys - 1`` colons, and the
+    colon before subfield ``k`` of column ``c`` is ``colpos[first + c (nkeys - 1) + k - 1]``;
+    records with dropped trailing subfields go through an inclusive cumulative count of
+    colons (``cc_fn()``) instead. Returns values (r, s) int32 (-1 missing or absent) and
+    ``ok`` (r,) bool.
+    """
+    regular = total == n_samples * (nkeys - 1)
+    before = np.empty(p.shape, np.int64)
+    if regular.any():
+        before[regular] = first[regular, None] + cols[None, :] * (nkeys - 1)
+    if not regular.all():
+        cc = cc_fn()
+        irr = ~regular
+        before[irr] = cc[p[irr] - 1]
+    lim = colpos.size - 1
+    if k == 0:
+        s = p
+        has = np.ones(p.shape, bool)
+    else:
+        c1 = colpos[np.minimum(before + (k - 1), lim)]
+        has = (c1 >= p) & (c1 < e)
+        s = c1 + 1
+    en = np.minimum(colpos[np.minimum(before + k, lim)], e)
+    w = np.where(has, en - s, 0)
+    val, good = _parse_uint(buf, s, w)
+    if k > 0 and regular.any():  # guard against invalid layouts taken as regular
+        good[regular] &= has[regular] | (w[regular] == 0)
+    return val, good.all(axis=1)
+
+
+# ---------------------------------------------------------------------------- batches
+
+class VariantBatch:
+    """Records of one chromosome read together.
+
+    Attributes
+    ----------
+    chrom : str
+    pos : ndarray of int64, shape (k,)
+        1-based positions.
+    ref, alt, filt, fmt : list of bytes
+        REF, ALT, FILTER and FORMAT columns (bytes, as in the file).
+    lineno : ndarray of int64 or None
+        1-based line numbers (streams only).
+    path : str
+        The file, for messages.
+    """
+
+    chrom: str
+    pos: np.ndarray
+    ref: list
+    alt: list
+    filt: list
+    fmt: list
+    lineno: np.ndarray | None
+    path: str
+
+    def __len__(self) -> int:
+        return int(self.pos.size)
+
+    def where(self, i: int) -> tuple[str, int | None]:
+        """A name for record ``i`` in messages, and its line number when known."""
+        ln = None if self.lineno is None else int(self.lineno[i])
+        return f"record {self.chrom}:{int(self.pos[i])}", ln
+
+    def info(self, rows: Sequence[int], key: str) -> list[bytes | None]:
+        """INFO values of ``key`` (bytes) for some records; None where absent."""
+        raise NotImplementedError
+
+    def slice(self, a: int, z: int) -> VariantBatch:
+        """Records ``a`` to ``z - 1`` as a batch of their own (no copy of the text)."""
+        raise NotImplementedError
+
+    def genotypes(self, rows: np.ndarray, cols: np.ndarray, fields: Sequence[str] = (),
+                  fast: bool = True) -> GenotypeData:
+        """Decode the genotypes of some records.
+
+        Parameters
+        ----------
+        rows : ndarray of int, shape (r,)
+            Records of the batch.
+        cols : ndarray of int64, shape (s,)
+            Sample columns (0-based, in VCF order).
+        fields : sequence of str
+            Integer FORMAT subfields to decode as well (e.g. ``("DP", "GQ")``).
+        fast : bool
+            Use the vectorised decoder where possible (False: pysam for every record).
+        """
+        raise NotImplementedError
+
+
+def _info_get(info: bytes, key: bytes) -> bytes | None:
+    if info.startswith(key):
+        v = info[len(key):]
+    else:
+        k = info.find(b";" + key)
+        if k < 0:
+            return None
+        v = info[k + len(key) + 1:]
+    e = v.find(b";")
+    return v if e < 0 else v[:e]
+
+
+class TextBatch(VariantBatch):
+    """Records of VCF text: the raw bytes, the tab positions and the fixed columns."""
+
+    def __init__(self, data: bytes, buf: np.ndarray, tabs: np.ndarray, nl: np.ndarray,
+                 starts: np.ndarray, cols: tuple, pos: np.ndarray,
+                 lineno: np.ndarray | None, header: VcfHeader, path: str) -> None:
+        self._data, self._buf, self._tabs, self._nl, self._starts = data, buf, tabs, nl, starts
+        self.chrom = cols[0][0].decode()
+        self.pos = pos
+        _, _, _, self.ref, self.alt, _, self.filt, self._info, self.fmt = (list(c) for c in cols)
+        self.lineno = lineno
+        self._header = header
+        self.path = path
+        self._colons = None
+        self._n_samples = len(header.samples)
+
+    def info(self, rows, key):
+        kb = key.encode() + b"="
+        return [_info_get(self._info[i], kb) for i in rows]
+
+    def slice(self, a, z):
+        out = object.__new__(TextBatch)
+        out.__dict__.update(self.__dict__)
+        out._tabs, out._nl, out._starts = self._tabs[a:z], self._nl[a:z], self._starts[a:z]
+        out.pos = self.pos[a:z]
+        out.ref, out.alt, out.filt, out.fmt = (self.ref[a:z], self.alt[a:z], self.filt[a:z],
+                                               self.fmt[a:z])
+        out._info = self._info[a:z]
+        out.lineno = None if self.lineno is None else self.lineno[a:z]
+        return out
+
+    def line(self, i: int) -> bytes:
+        """The raw text of record ``i`` (without the newline)."""
+        return self._data[int(self._starts[i]):int(self._nl[i])]
+
+    def _colon_index(self):
+        """Positions of ':' (with sentinels) and a lazy inclusive cumulative count."""
+        if self._colons is None:
+            is_colon = self._buf == 58
+            colpos = np.concatenate([np.flatnonzero(is_colon),
+                                     np.full(16, self._buf.size + 1, np.int64)])
+            cache: dict[str, np.ndarray] = {}
+
+            def cc_fn() -> np.ndarray:
+                if "cc" not in cache:
+                    cache["cc"] = np.cumsum(self._buf == 58, dtype=np.int32)
+                return cache["cc"]
+
+            self._colons = (colpos, cc_fn)
+        return self._colons
+
+    def genotypes(self, rows, cols, fields=(), fast=True):
+        rows = np.asarray(rows, dtype=np.int64)
+        cols = np.asarray(cols, dtype=np.int64)
+        r, s = rows.size, cols.size
+        fmts = [self.fmt[i] for i in rows.tolist()]
+        gt_first = np.array([f == b"GT" or f.startswith(b"GT:") for f in fmts], dtype=bool)
+        for i in np.flatnonzero(~gt_first).tolist():
+            if b"GT" not in fmts[i].split(b":"):
+                name, ln = self.where(int(rows[i]))
+                raise VcfFormatError(f"{name} has no GT field (FORMAT "
+                                     f"{fmts[i].decode(errors='replace')}); spectra need "
+                                     "genotypes", self.path, ln)
+            name, ln = self.where(int(rows[i]))
+            raise VcfFormatError(f"{name}: GT must be the first FORMAT key (VCF "
+                                 "specification)", self.path, ln)
+        alleles = np.full((r, s, 2), -2, np.int8)
+        vals = {f: np.full((r, s), -1, np.int32) for f in fields}
+        ok = np.zeros(r, bool)
+        if fast and r:
+            tr = self._tabs[rows]
+            ext = np.concatenate([tr[:, 9:], self._nl[rows, None]], axis=1)
+            p = tr[:, 8 + cols] + 1
+            e = ext[:, cols]
+            alleles, ok = _decode_gt(self._buf, p, e)
+            if fields:
+                colpos, cc_fn = self._colon_index()
+                first = np.searchsorted(colpos, tr[:, 8])
+                total = np.searchsorted(colpos, self._nl[rows]) - first
+                keys: dict[bytes, list[bytes]] = {f: f.split(b":") for f in set(fmts)}
+                nk = np.array([len(keys[f]) for f in fmts])
+                for name in fields:
+                    nb = name.encode()
+                    kidx = np.array([keys[f].index(nb) if nb in keys[f] else -1 for f in fmts])
+                    for k, n_k in {(int(a), int(b)) for a, b in zip(kidx, nk)}:
+                        if k < 0:
+                            continue
+                        sel = np.flatnonzero((kidx == k) & (nk == n_k))
+                        v, okv = _decode_int(self._buf, p[sel], e[sel], k, n_k, cols,
+                                             first[sel], total[sel], self._n_samples,
+                                             colpos, cc_fn)
+                        vals[name][sel] = v
+                        ok[sel] &= okv
+        slow = np.flatnonzero(~ok)
+        if slow.size:
+            a2, v2 = self._fallback(rows[slow], cols, fields)
+            if a2.shape[2] > alleles.shape[2]:
+                wide = np.full((r, s, a2.shape[2]), -2, np.int8)
+                wide[:, :, :alleles.shape[2]] = alleles
+                alleles = wide
+            alleles[slow] = -2
+            alleles[slow, :, :a2.shape[2]] = a2
+            for f in fields:
+                vals[f][slow] = v2[f]
+        return GenotypeData(alleles, vals, ok)
+
+    def _fallback(self, rows: np.ndarray, cols: np.ndarray, fields: Sequence[str]):
+        """Decode records with pysam (through a small temporary VCF)."""
+        lines = [self.line(i) for i in rows.tolist()]
+        try:
+            records = _pysam_parse(self._header.text, lines)
+        except _ParseError as err:
+            name, ln = self.where(int(rows[err.index]))
+            raise VcfFormatError(f"{name}: htslib cannot parse this record ({err}); check "
+                                 "its GT and FORMAT values", self.path, ln) from None
+        try:
+            return _records_genotypes(records, cols, fields, [self.path])
+        except (ValueError, TypeError) as err:
+            raise VcfFormatError(f"record {self.chrom}: bad FORMAT value ({err})",
+                                 self.path) from None
+
+
+class _ParseError(Exception):
+    def __init__(self, index: int, msg: str) -> None:
+        super().__init__(msg)
+        self.index = index
+
+
+_VERBOSITY_LOCK = threading.Lock()
+
+
+@contextlib.contextmanager
+def _quiet_htslib():
+    """Silence htslib's own stderr messages (errors are reported by driftband)."""
+    with _VERBOSITY_LOCK:
+        old = pysam.set_verbosity(0)
+        try:
+            yield
+        finally:
+            pysam.set_verbosity(old)
+
+
+def _pysam_parse(header_text: str, lines: list[bytes]) -> list:
+    """Parse VCF record lines with pysam; returns the records (kept alive by a list)."""
+    with tempfile.TemporaryDirectory(prefix="driftband-") as d:
+        p = os.path.join(d, "records.vcf")
+        with open(p, "wb") as fh:
+            fh.write(header_text.encode())
+            if not header_text.endswith("\n"):
+                fh.write(b"\n")
+            for ln in lines:
+                fh.write(ln + b"\n")
+        out = []
+        with _quiet_htslib(), pysam.VariantFile(p) as vf:
+            it = iter(vf)
+            for i in range(len(lines)):
+                try:
+                    rec = next(it)
+                except (OSError, ValueError, StopIteration) as err:
+                    raise _ParseError(i, str(err) or type(err).__name__) from None
+                out.append(rec)
+        return out
+
+
+class RecordBatch(VariantBatch):
+    """Records decoded by pysam (BCF input)."""
+
+    def __init__(self, records: list, path: str) -> None:
+        self._records = records
+        self.chrom = records[0].chrom
+        self.pos = np.fromiter((r.pos for r in records), np.int64, len(records))
+        self.ref = [r.ref.encode() for r in records]
+        self.alt = [",".join(r.alts).encode() if r.alts else b"." for r in records]
+        self.filt = [";".join(r.filter.keys()).encode() or b"." for r in records]
+        self.fmt = [":".join(r.format.keys()).encode() or b"." for r in records]
+        self.lineno = None
+        self.path = path
+
+    def slice(self, a, z):
+        return RecordBatch(self._records[a:z], self.path)
+
+    def info(self, rows, key):
+        out = []
+        for i in rows:
+            v = self._records[i].info.get(key)
+            if isinstance(v, tuple):
+                v = v[0] if v else None
+            out.append(None if v is None else str(v).encode())
+        return out
+
+    def genotypes(self, rows, cols, fields=(), fast=True):
+        rows = np.asarray(rows, dtype=np.int64)
+        recs = [self._records[i] for i in rows.tolist()]
+        alleles, vals = _records_genotypes(recs, np.asarray(cols, np.int64), fields,
+                                           [self.path])
+        return GenotypeData(alleles, vals, np.zeros(rows.size, bool))
+
+
+# ---------------------------------------------------------------------------- text parsing
+
+def _parse_text(data: bytes, header: VcfHeader, path: str,
+                lineno0: int | None) -> list[TextBatch]:
+    """Split complete record lines (``data`` ends with a newline) into per-chromosome batches.
+
+    ``lineno0`` is the 1-based line number of the first line (None when unknown).
+    """
+    if b"\r" in data:
+        data = data.replace(b"\r\n", b"\n")
+    raw = np.frombuffer(data, np.uint8)
+    nl = np.flatnonzero(raw == 10)
+    starts = np.empty(nl.size, np.int64)
+    if nl.size:
+        starts[0] = 0
+        starts[1:] = nl[:-1] + 1
+    lineno = None if lineno0 is None else lineno0 + np.arange(nl.size, dtype=np.int64)
+    empty = nl == starts
+    if empty.any():
+        keep = ~empty
+        lineno = None if lineno is None else lineno[keep]
+        data = b"\n".join(ln for ln in data.split(b"\n") if ln) + b"\n"
+        raw = np.frombuffer(data, np.uint8)
+        nl = np.flatnonzero(raw == 10)
+        starts = np.empty(nl.size, np.int64)
+        starts[0] = 0
+        starts[1:] = nl[:-1] + 1
+    if nl.size == 0:
+        return []
+    buf = np.frombuffer(data + _PAD, np.uint8)
+    tabs = np.flatnonzero(raw == 9)
+    ntab = 8 + len(header.samples)
+    per_line = np.diff(np.searchsorted(tabs, nl), prepend=0)
+    bad = np.flatnonzero(per_line != ntab)
+    if bad.size:
+        i = int(bad[0])
+        line = data[starts[i]:nl[i]]
+        f = line.split(b"\t", 2)
+        name = (f"record {f[0].decode(errors='replace')}:{f[1].decode(errors='replace')}"
+                if len(f) > 2 else "record")
+        ln = None if lineno is None else int(lineno[i])
+        last = i == nl.size - 1
+        hint = " (truncated file?)" if last and per_line[i] < ntab else ""
+        raise VcfFormatError(f"{name} has {per_line[i] + 1} columns, the header has "
+                             f"{ntab + 1} (9 + {len(header.samples)} samples){hint}", path, ln)
+    tabs = tabs.reshape(nl.size, ntab)
+    e8 = tabs[:, 8].tolist()
+    fixed = [data[a:b].split(b"\t") for a, b in zip(starts.tolist(), e8)]
+    cols = tuple(zip(*fixed))
+    try:
+        pos = np.array(list(map(int, cols[1])), dtype=np.int64)
+    except ValueError:
+        for i, v in enumerate(cols[1]):
+            if not v.isdigit():
+                raise VcfFormatError(f"POS {v.decode(errors='replace')!r} is not a positive "
+                                     "integer", path,
+                                     None if lineno is None else int(lineno[i])) from None
+        raise
+    chroms = cols[0]
+    if chroms[0] == chroms[-1] and len(set(chroms)) == 1:
+        return [TextBatch(data, buf, tabs, nl, starts, cols, pos, lineno, header, path)]
+    cut = [0] + [i for i in range(1, len(chroms)) if chroms[i] != chroms[i - 1]] + [len(chroms)]
+    out = []
+    for a, b in zip(cut[:-1], cut[1:]):
+        sub = tuple(c[a:b] for c in cols)
+        out.append(TextBatch(data, buf, tabs[a:b], nl[a:b], starts[a:b], sub, pos[a:b],
+                             None if lineno is None else lineno[a:b], header, path))
+    return out
+
+
+def _read_header(fh, path: str, chunk: int) -> tuple[VcfHeader, bytes]:
+    """Read the header from a binary stream; returns it and the bytes after it."""
+    buf = b""
+    while True:
+        k = 0 if buf.startswith(b"#CHROM") else buf.find(b"\n#CHROM")
+        if k >= 0:
+            e = buf.find(b"\n", k + 1)
+            if e >= 0:
+                text = buf[:e + 1]
+                try:
+                    header = parse_header(text.decode("utf-8"), path)
+                except UnicodeDecodeError:
+                    raise VcfFormatError("the header is not UTF-8 text (not a VCF?)",
+                                         path) from None
+                return header, buf[e + 1:]
+        more = _read(fh, chunk, path)
+        if not more:
+            if not buf:
+                raise VcfFormatError("empty file (no VCF header)", path)
+            if not buf.startswith(b"##fileformat=VCF"):
+                raise VcfFormatError("not a VCF file (the first line must be "
+                                     "##fileformat=VCFv4.x)", path, 1)
+            raise VcfFormatError("no #CHROM header line (truncated file, or not a VCF)", path)
+        buf += more
+        if len(buf) >= 16 and not buf.startswith(b"##"):
+            raise VcfFormatError("not a VCF file (the first line must be "
+                                 "##fileformat=VCFv4.x)", path, 1)
+
+
+def _read(fh, n: int, path: str) -> bytes:
+    try:
+        return fh.read(n)
+    except (OSError, EOFError, gzip.BadGzipFile) as err:
+        raise VcfFormatError(f"cannot decompress the file ({err}); it is truncated or "
+                             "corrupt", path) from None
+
+
+def _line_blocks(fh, first: bytes, path: str, chunk: int) -> Iterator[bytes]:
+    """Blocks of complete lines from a binary stream (a final line gets its newline)."""
+    carry = first
+    while True:
+        more = _read(fh, chunk, path)
+        if not more:
+            if carry:
+                yield carry if carry.endswith(b"\n") else carry + b"\n"
+            return
+        data = carry + more
+        cut = data.rfind(b"\n") + 1
+        if cut == 0:
+            carry = data
+            continue
+        carry = data[cut:]
+        yield data[:cut]
+
+
+# ---------------------------------------------------------------------------- sources
+
+def _sniff(path: str) -> tuple[str, bytes]:
+    """Kind of a file: 'bcf', 'bgzf', 'gzip' or 'plain', and its first bytes."""
+    with open(path, "rb") as fh:
+        head = fh.read(18)
+    if head[:2] == b"\x1f\x8b":
+        is_bgzf = len(head) >= 16 and head[3] & 4 and head[12:14] == b"BC"
+        with libcbgzf.BGZFile(path) as bg:
+            try:
+                inner = bg.read(5)
+            except OSError:
+                inner = b""
+        if inner.startswith(b"BCF"):
+            return "bcf", inner
+        return ("bgzf" if is_bgzf else "gzip"), inner
+    if head.startswith(b"BCF"):
+        return "bcf", head
+    return "plain", head
+
+
+class VcfSource:
+    """An open VCF or BCF: its kind, header, index and readers.
+
+    Parameters
+    ----------
+    path : str or path-like
+        A file, or ``-`` for standard input.
+
+    Attributes
+    ----------
+    path : str
+    kind : {"bgzf", "gzip", "plain", "bcf"}
+    stdin : bool
+    index_path : str or None
+        The ``.tbi``/``.csi`` index, when there is one (random access is then possible).
+    header : VcfHeader
+    index_chroms : list of str
+        Chromosomes with records, from the index (empty without one).
+
+    Raises
+    ------
+    InputError
+        Missing file, stale index, truncated BGZF, or a header that is not VCF.
+    """
+
+    def __init__(self, path: str | os.PathLike) -> None:
+        self.path = os.fspath(path)
+        self.stdin = self.path == "-"
+        self.index_path: str | None = None
+        self.index_chroms: list[str] = []
+        self._tabix = None
+        self._bgzf = None
+        self._spool: tempfile.TemporaryDirectory | None = None
+        self._stream_fh = None
+        self._stream_rest = b""
+        if self.stdin:
+            self._open_stdin()
+            return
+        if not os.path.exists(self.path):
+            raise InputError("VCF file not found", self.path)
+        if os.path.isdir(self.path):
+            raise InputError("is a directory, not a VCF file", self.path)
+        self.kind, _ = _sniff(self.path)
+        if self.kind in ("bgzf", "bcf") and self._is_bgzf_file():
+            self._check_eof()
+        for ext in (".tbi", ".csi"):
+            if os.path.exists(self.path + ext):
+                self.index_path = self.path + ext
+                break
+        if self.index_path is not None:
+            if os.path.getmtime(self.index_path) < os.path.getmtime(self.path):
+                raise InputError(f"the index {self.index_path} is older than the file; "
+                                 "rebuild it (tabix -f -p vcf FILE, or bcftools index -f "
+                                 "FILE)", self.path)
+        if self.kind == "bcf":
+            self._open_bcf()
+        else:
+            if self.index_path is not None and self.kind != "bgzf":
+                self.index_path = None  # an index is only usable with BGZF compression
+            with self._open_text_stream() as fh:
+                self.header, _ = _read_header(fh, self.path, BATCH_BYTES)
+            if self.index_path is not None:
+                try:
+                    with _quiet_htslib():
+                        self._tabix = pysam.TabixFile(self.path, index=self.index_path)
+                except (OSError, ValueError) as err:
+                    raise InputError(f"cannot read the index {self.index_path} ({err}); "
+                                     "rebuild it with tabix -f -p vcf", self.path) from None
+                self.index_chroms = list(self._tabix.contigs)
+
+    # -- opening
+    def _is_bgzf_file(self) -> bool:
+        with open(self.path, "rb") as fh:
+            head = fh.read(16)
+        return head[:2] == b"\x1f\x8b" and bool(head[3] & 4) and head[12:14] == b"BC"
+
+    def _check_eof(self) -> None:
+        with open(self.path, "rb") as fh:
+            fh.seek(0, os.SEEK_END)
+            size = fh.tell()
+            fh.seek(max(0, size - len(BGZF_EOF)))
+            tail = fh.read()
+        if tail != BGZF_EOF:
+            raise VcfFormatError("the file is truncated (no BGZF end-of-file block); was it "
+                                 "copied or written completely?", self.path)
+
+    def _open_bcf(self, path: str | None = None) -> None:
+        p = path or self.path
+        try:
+            with _quiet_htslib():
+                self._vf = pysam.VariantFile(p)
+        except (OSError, ValueError) as err:
+            raise VcfFormatError(f"cannot read this BCF ({err})", self.path) from None
+        h = self._vf.header
+        text = str(h)
+        samples = list(h.samples)
+        if not samples:
+            raise VcfFormatError("the BCF has no sample columns (genotypes are needed)",
+                                 self.path)
+        contigs = list(h.contigs)
+        lengths = {c: h.contigs[c].length for c in contigs if h.contigs[c].length}
+        self.header = VcfHeader(samples, contigs, lengths, set(h.info.keys()),
+                                set(h.formats.keys()), text, text.count("\n"))
+        self.kind = "bcf"
+        if path is None and self.index_path is not None:
+            self.index_chroms = [c for c in contigs if self._bcf_has(c)]
+
+    def _bcf_has(self, chrom: str) -> bool:
+        try:
+            with _quiet_htslib():
+                next(self._vf.fetch(chrom))
+            return True
+        except (StopIteration, ValueError):
+            return False
+
+    def _open_stdin(self) -> None:
+        raw = sys.stdin.buffer
+        head = raw.peek(18)[:18] if hasattr(raw, "peek") else b""
+        if head[:2] == b"\x1f\x8b":
+            fh = gzip.GzipFile(fileobj=raw, mode="rb")
+            self.kind = "gzip"
+        else:
+            fh = raw
+            self.kind = "plain"
+        first = _read(fh, 5, "-")
+        if first.startswith(b"BCF"):
+            # htslib needs a file for BCF: spool standard input to a temporary one.
+            self._spool = tempfile.TemporaryDirectory(prefix="driftband-stdin-")
+            p = os.path.join(self._spool.name, "stdin.bcf")
+            with open(p, "wb") as out:
+                out.write(first)
+                while block := _read(fh, 1 << 22, "-"):
+                    out.write(block)
+            self._open_bcf(p)
+            return
+        self._stream_fh = fh
+        self.header, self._stream_rest = _read_header(_Prefixed(first, fh), "-", BATCH_BYTES)
+
+    def _open_text_stream(self):
+        if self.kind == "plain":
+            return open(self.path, "rb")
+        return libcbgzf.BGZFile(self.path)
+
+    @property
+    def indexed(self) -> bool:
+        """True when records can be fetched by region."""
+        return self.index_path is not None and not self.stdin
+
+    @property
+    def chroms(self) -> list[str]:
+        """Chromosomes the VCF knows: ``##contig`` lines, then index names."""
+        return list(dict.fromkeys([*self.header.contigs, *self.index_chroms]))
+
+    def close(self) -> None:
+        """Close the files."""
+        for h in (self._tabix, self._bgzf, getattr(self, "_vf", None)):
+            if h is not None:
+                with contextlib.suppress(Exception):
+                    h.close()
+        if self._spool is not None:
+            self._spool.cleanup()
+
+    def __enter__(self) -> VcfSource:
+        return self
+
+    def __exit__(self, *exc) -> None:
+        self.close()
+
+    # -- reading
+    def fetch(self, chrom: str, start: int, end: int,
+              batch_bytes: int = BATCH_BYTES) -> Iterator[VariantBatch]:
+        """Records with ``start <= POS - 1 < end`` (0-based, half-open) on ``chrom``.
+
+        Needs an index. Batches hold about ``batch_bytes`` of text.
+        """
+        if not self.indexed:
+            raise ValueError(f"{self.path} has no index; read it with stream()")
+        if self.kind == "bcf":
+            yield from self._fetch_bcf(chrom, start, end)
+            return
+        if chrom not in self.index_chroms:
+            return
+        with _quiet_htslib():
+            it = self._tabix.fetch(chrom, start, end)
+            try:
+                first = next(it)
+            except StopIteration:
+                return
+            except OSError as err:
+                raise VcfFormatError(f"cannot read records of {chrom} ({err})",
+                                     self.path) from None
+            voff = self._tabix.tell()
+        if self._bgzf is None:
+            self._bgzf = libcbgzf.BGZFile(self.path)
+        self._bgzf.seek(voff)
+        last = -1
+        for block in _line_blocks(self._bgzf, first.encode() + b"\n", self.path, batch_bytes):
+            done = False
+            for b in _parse_text(block, self.header, self.path, None):
+                if b.chrom != chrom:
+                    done = True
+                    break
+                sel = (b.pos - 1 >= start) & (b.pos - 1 < end)
+                if b.pos.size and b.pos[-1] - 1 >= end:
+                    done = True
+                if b.pos.size and (b.pos[0] < last or np.any(np.diff(b.pos) < 0)):
+                    i = int(np.flatnonzero(np.diff(np.r_[last, b.pos]) < 0)[0])
+                    raise VcfFormatError(f"{b.where(i)[0]} is out of order (positions must "
+                                         "increase; sort the file with bcftools sort)",
+                                         self.path)
+                last = int(b.pos[-1]) if b.pos.size else last
+                if sel.all():
+                    yield b
+                elif sel.any():
+                    idx = np.flatnonzero(sel)  # positions are sorted: a contiguous run
+                    yield b.slice(int(idx[0]), int(idx[-1]) + 1)
+            if done:
+                return
+
+    def _fetch_bcf(self, chrom, start, end, n=2000):
+        if chrom not in self.index_chroms:
+            return
+        recs = []
+        with _quiet_htslib():
+            try:
+                for rec in self._vf.fetch(chrom, start, end):
+                    if rec.pos - 1 < start:
+                        continue
+                    recs.append(rec)
+                    if len(recs) >= n:
+                        yield RecordBatch(recs, self.path)
+                        recs = []
+            except OSError as err:
+                raise VcfFormatError(f"cannot read records of {chrom} ({err})",
+                                     self.path) from None
+        if recs:
+            yield RecordBatch(recs, self.path)
+
+    def stream(self, batch_bytes: int = BATCH_BYTES) -> Iterator[VariantBatch]:
+        """All records in file order, in per-chromosome batches; checks the sort order.
+
+        Raises
+        ------
+        VcfFormatError
+            A chromosome that reappears after another, or a position that decreases.
+        """
+        seen: set[str] = set()
+        chrom, last = None, 0
+        for b in self._stream_batches(batch_bytes):
+            if b.chrom != chrom:
+                if b.chrom in seen:
+                    name, ln = b.where(0)
+                    raise VcfFormatError(f"{name}: chromosome {b.chrom} appears again after "
+                                         "another one; the file is not sorted (bcftools "
+                                         "sort)", b.path, ln)
+                seen.add(b.chrom)
+                chrom, last = b.chrom, 0
+            d = np.diff(np.r_[last, b.pos])
+            if np.any(d < 0):
+                i = int(np.flatnonzero(d < 0)[0])
+                name, ln = b.where(i)
+                prev = last if i == 0 else int(b.pos[i - 1])
+                raise VcfFormatError(f"{name} comes after position {prev}; the file is not "
+                                     "sorted (bcftools sort)", b.path, ln)
+            last = int(b.pos[-1])
+            yield b
+
+    def _stream_batches(self, batch_bytes):
+        if self.kind == "bcf":
+            recs, chrom = [], None
+            with _quiet_htslib():
+                try:
+                    for rec in self._vf:
+                        if recs and (rec.chrom != chrom or len(recs) >= 2000):
+                            yield RecordBatch(recs, self.path)
+                            recs = []
+                        chrom = rec.chrom
+                        recs.append(rec)
+                except OSError as err:
+                    raise VcfFormatError(f"cannot read the BCF ({err}); truncated or "
+                                         "corrupt?", self.path) from None
+            if recs:
+                yield RecordBatch(recs, self.path)
+            return
+        if self.stdin:
+            fh, rest, close = self._stream_fh, self._stream_rest, False
+        else:
+            fh = self._open_text_stream()
+            _, rest = _read_header(fh, self.path, batch_bytes)
+            close = True
+        try:
+            lineno = self.header.n_lines + 1
+            for block in _line_blocks(fh, rest, self.path, batch_bytes):
+                batches = _parse_text(block, self.header, self.path, lineno)
+                yield from batches
+                if batches:
+                    last = batches[-1]
+                    lineno = int(last.lineno[-1]) + 1 if last.lineno is not None else lineno
+        finally:
+            if close:
+                fh.close()
+
+
+class _Prefixed:
+    """A read-only stream with some bytes put back in front."""
+
+    def __init__(self, first: bytes, fh) -> None:
+        self._first, self._fh = first, fh
+
+    def read(self, n: int) -> bytes:
+        if self._first:
+            out, self._first = self._first, b""
+            return out + self._fh.read(max(n - len(out), 0))
+        return self._fh.read(n)
+
+
+def open_vcf(path: str | os.PathLike) -> VcfSource:
+    """Open a VCF/BCF (see :class:`VcfSource`)."""
+    return VcfSource(path)
+
+
+# ---------------------------------------------------------------------------- whole table
+
+@dataclass
+class GenotypeTable:
+    """All records of a file with decoded genotypes (small files, tests and checks).
+
+    Attributes
+    ----------
+    chrom : list of str
+    pos : ndarray of int64, shape (k,)
+    ref, alt : list of str
+    alleles : ndarray of int8, shape (k, s, p)
+    fields : dict of str to ndarray of int32, shape (k, s)
+    fast : ndarray of bool, shape (k,)
+    samples : list of str
+    """
+
+    chrom: list[str]
+    pos: np.ndarray
+    ref: list[str]
+    alt: list[str]
+    alleles: np.ndarray
+    fields: dict[str, np.ndarray] = field(default_factory=dict)
+    fast: np.ndarray = field(default_factory=lambda: np.zeros(0, bool))
+    samples: list[str] = field(default_factory=list)
+
+
+def read_genotype_table(path: str | os.PathLike, fields: Sequence[str] = (),
+                        fast: bool = True, batch_bytes: int = BATCH_BYTES) -> GenotypeTable:
+    """Read every record and decode all genotypes (memory grows with the file).
+
+    Parameters
+    ----------
+    path : path-like
+    fields : sequence of str
+        Integer FORMAT subfields to decode too.
+    fast : bool
+        Vectorised decoder where possible; False decodes every record with pysam.
+    """
+    with VcfSource(path) as src:
+        cols = np.arange(len(src.header.samples), dtype=np.int64)
+        parts = []
+        for b in src.stream(batch_bytes):
+            g = b.genotypes(np.arange(len(b)), cols, fields, fast=fast)
+            parts.append((b, g))
+        samples = src.header.samples
+    if not parts:
+        return GenotypeTable([], np.zeros(0, np.int64), [], [], np.zeros((0, len(samples), 2),
+                             np.int8), {f: np.zeros((0, len(samples)), np.int32)
+                                        for f in fields}, np.zeros(0, bool), samples)
+    P = max(g.alleles.shape[2] for _, g in parts)
+    al = []
+    for _, g in parts:
+        a = g.alleles
+        if a.shape[2] < P:
+            a = np.concatenate([a, np.full(a.shape[:2] + (P - a.shape[2],), -2, np.int8)],
+                               axis=2)
+        al.append(a)
+    return GenotypeTable(
+        [b.chrom for b, _ in parts for _ in range(len(b))],
+        np.concatenate([b.pos for b, _ in parts]),
+        [r.decode() for b, _ in parts for r in b.ref],
+        [a.decode() for b, _ in parts for a in b.alt],
+        np.concatenate(al),
+        {f: np.concatenate([g.fields[f] for _, g in parts]) for f in fields},
+        np.concatenate([g.fast for _, g in parts]),
+        list(samples),
+    )
