@@ -88,3 +88,21 @@ def test_tsv_bad_number_names_line(tmp_path):
     p.write_text("population\tclass\tsites\tc0\tc1\n" "a\t0fold\tx\t1\t2\n")
     with pytest.raises(InputError, match=r"w.tsv:2"):
         read_spectra(p)
+
+
+def test_projected_float_spectra_round_trip(tmp_path):
+    # Hypergeometric projection gives expected (fractional) counts; they must survive
+    # JSON and TSV unchanged, while whole-number spectra stay int64.
+    b = np.array([[10.25, 2.5, 1.25], [7.0, 1.0, 0.0]])
+    cs = ClassSpectrum(b, [14, 8])
+    assert cs.block_sfs.dtype == np.float64
+    assert ClassSpectrum(np.array([[3.0, 1.0]]), [4]).block_sfs.dtype == np.int64
+    pop = PopulationSpectra("lake", 2, False, {"0fold": cs, "4fold": cs}, "aa")
+    add_diversity(pop)
+    ss = SpectraSet({"lake": pop}, [Block("1", 0, 100), Block("1", 100, 200)], {}, {})
+    write_spectra_json(ss, tmp_path / "f.json")
+    back = read_spectra_json(tmp_path / "f.json").populations["lake"].classes["0fold"]
+    np.testing.assert_allclose(back.block_sfs, b, rtol=0, atol=1e-12)
+    write_spectra_tsv(ss, tmp_path / "f.tsv")
+    t = read_spectra(tmp_path / "f.tsv").populations["lake"].classes["0fold"]
+    np.testing.assert_allclose(t.sfs, b.sum(axis=0), rtol=0, atol=1e-12)

@@ -22,6 +22,14 @@ def spectrum_length(n: int, folded: bool) -> int:
     return n // 2 + 1 if folded else n + 1
 
 
+def _counts_array(x) -> np.ndarray:
+    """Counts as int64, or float64 when some are not whole numbers (projected spectra)."""
+    a = np.asarray(x)
+    if a.dtype.kind == "f" and not np.all(a == np.round(a)):
+        return a.astype(np.float64)
+    return a.astype(np.int64)
+
+
 @dataclass(frozen=True)
 class Block:
     """A genomic block (0-based, half-open) used as the resampling unit of the bootstrap."""
@@ -38,8 +46,11 @@ class ClassSpectrum:
 
     Attributes
     ----------
-    block_sfs : ndarray of int64, shape (n_blocks, m)
-        Per-block spectra, ``m = n + 1`` (unfolded) or ``n // 2 + 1`` (folded).
+    block_sfs : ndarray of int64 or float64, shape (n_blocks, m)
+        Per-block spectra, ``m = n + 1`` (unfolded) or ``n // 2 + 1`` (folded). Counted
+        spectra are int64; spectra projected to fewer gene copies than were called
+        (hypergeometric projection of sites with missing data) hold expected counts and
+        are float64.
     block_sites : ndarray of int64, shape (n_blocks,)
         Callable sites of the class per block; equals ``block_sfs.sum(axis=1)``.
     """
@@ -48,7 +59,7 @@ class ClassSpectrum:
     block_sites: np.ndarray
 
     def __post_init__(self) -> None:
-        self.block_sfs = np.atleast_2d(np.asarray(self.block_sfs, dtype=np.int64))
+        self.block_sfs = np.atleast_2d(_counts_array(self.block_sfs))
         self.block_sites = np.asarray(self.block_sites, dtype=np.int64).reshape(-1)
         if self.block_sfs.shape[0] != self.block_sites.shape[0]:
             raise ValueError(
@@ -58,7 +69,7 @@ class ClassSpectrum:
 
     @property
     def sfs(self) -> np.ndarray:
-        """Total spectrum, shape (m,), int64."""
+        """Total spectrum, shape (m,), int64 (float64 when projected)."""
         return self.block_sfs.sum(axis=0)
 
     @property
@@ -69,8 +80,8 @@ class ClassSpectrum:
     @classmethod
     def from_total(cls, sfs: np.ndarray, sites: int | None = None) -> ClassSpectrum:
         """A one-block spectrum (e.g. from a published table or a simulation)."""
-        sfs = np.asarray(sfs, dtype=np.int64)
-        sites = int(sfs.sum()) if sites is None else int(sites)
+        sfs = _counts_array(sfs)
+        sites = int(round(float(sfs.sum()))) if sites is None else int(sites)
         return cls(sfs[None, :], np.array([sites]))
 
 

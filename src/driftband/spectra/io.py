@@ -39,7 +39,14 @@ import numpy as np
 
 from .._io import atomic_output
 from ..exceptions import InputError
-from ._types import Block, ClassSpectrum, PopulationSpectra, SpectraSet, spectrum_length
+from ._types import (
+    Block,
+    ClassSpectrum,
+    PopulationSpectra,
+    SpectraSet,
+    _counts_array,
+    spectrum_length,
+)
 from .stats import diversity
 
 __all__ = [
@@ -169,7 +176,8 @@ def read_spectra_json(path: str | os.PathLike) -> SpectraSet:
             m = spectrum_length(n, folded)
             classes = {}
             for c, cd in p["classes"].items():
-                bs = np.asarray(cd.get("block_sfs", [cd["sfs"]]), dtype=np.int64)
+                bs = _counts_array(np.asarray(cd.get("block_sfs", [cd["sfs"]]),
+                                              dtype=np.float64))
                 bsites = np.asarray(cd.get("block_sites", [cd["sites"]]), dtype=np.int64)
                 if bs.ndim != 2 or bs.shape[1] != m:
                     raise _fail(path, f"population {name!r} class {c!r}: spectra must have "
@@ -177,10 +185,11 @@ def read_spectra_json(path: str | os.PathLike) -> SpectraSet:
                 if np.any(bs < 0):
                     raise _fail(path, f"population {name!r} class {c!r}: negative counts")
                 cs = ClassSpectrum(bs, bsites)
-                if "sfs" in cd and not np.array_equal(cs.sfs, np.asarray(cd["sfs"])):
+                if "sfs" in cd and not np.allclose(cs.sfs, np.asarray(cd["sfs"], float),
+                                                   rtol=1e-9, atol=1e-6):
                     raise _fail(path, f"population {name!r} class {c!r}: \"sfs\" is not the "
                                       "sum of \"block_sfs\"")
-                if np.any(bs.sum(axis=1) != bsites):
+                if not np.allclose(bs.sum(axis=1), bsites, rtol=1e-9, atol=1e-6):
                     raise _fail(path, f"population {name!r} class {c!r}: block spectra do not "
                                       "add up to block_sites")
                 classes[c] = cs
@@ -237,7 +246,8 @@ def read_spectra_tsv(path: str | os.PathLike, folded: bool | None = None) -> Spe
             if long:
                 rec = dict(zip(header, r))
                 k = int(rec.get("count", rec.get("count_index")))
-                v = int(float(rec["sites"]))
+                v = float(rec["sites"])
+                v = int(v) if v == int(v) else v
                 if k < 0 or v < 0:
                     raise ValueError("negative value")
                 if k in data.setdefault(pop, {}).setdefault(cls, {}):
@@ -272,7 +282,7 @@ def read_spectra_tsv(path: str | os.PathLike, folded: bool | None = None) -> Spe
         length = spectrum_length(n, is_folded)
         out = {}
         for cls, counts in classes.items():
-            arr = np.zeros(length, dtype=np.int64)
+            arr = np.zeros(length, dtype=np.float64)
             for k, v in counts.items():
                 if k >= length:
                     raise _fail(path, f"population {pop!r} class {cls!r}: count {k} beyond "
@@ -284,7 +294,7 @@ def read_spectra_tsv(path: str | os.PathLike, folded: bool | None = None) -> Spe
             if (pop, cls) in sites and arr.sum() != sites[(pop, cls)]:
                 raise _fail(path, f"population {pop!r} class {cls!r}: entries add up to "
                                   f"{arr.sum()}, not to sites={sites[(pop, cls)]}")
-            out[cls] = ClassSpectrum.from_total(arr)
+            out[cls] = ClassSpectrum.from_total(_counts_array(arr))
         ps = PopulationSpectra(pop, n, is_folded, out, "fold" if is_folded else "given")
         add_diversity(ps)
         pops[pop] = ps
