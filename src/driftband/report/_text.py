@@ -1,0 +1,173 @@
+"""Number formatting and the fixed texts of the report (conventions, cautions).
+
+Everything here returns plain text; the HTML writer escapes it and the Markdown writer
+escapes it its own way, so both outputs carry the same words and numbers.
+"""
+
+from __future__ import annotations
+
+import math
+from typing import Any
+
+MINUS = "\u2212"
+NA = "n/a"
+
+#: Okabe & Ito (2008) colour-blind-safe palette, in the order used for populations
+#: (black last); see https://jfly.uni-koeln.de/color/ (from memory).
+OKABE_ITO = ("#0072B2", "#E69F00", "#009E73", "#D55E00", "#CC79A7", "#56B4E9", "#F0E442",
+             "#000000")
+#: Hatches that repeat the population distinction without colour.
+HATCHES = ("", "//", "..", "xx", "\\\\", "oo", "--", "++")
+
+ALPHA_LEVEL = 0.05  # the usual 5 % level for the plain-words verdicts (common practice)
+
+
+def is_num(v: Any) -> bool:
+    """True for a finite int or float (not bool)."""
+    return isinstance(v, int | float) and not isinstance(v, bool) and math.isfinite(v)
+
+
+def _minus(s: str) -> str:
+    return s.replace("-", MINUS) if s.startswith("-") else s
+
+
+def fnum(v: Any, digits: int = 3) -> str:
+    """Fixed-point number with ``digits`` decimals (``n/a`` when missing)."""
+    if not is_num(v):
+        return "inf" if v == math.inf else NA
+    return _minus(f"{v:.{digits}f}")
+
+
+def fsig(v: Any, sig: int = 4) -> str:
+    """Number with ``sig`` significant digits (parameters, diversity per site)."""
+    if not is_num(v):
+        return NA
+    if v != 0 and (abs(v) < 1e-3 or abs(v) >= 1e6):
+        m, e = f"{v:.{sig - 1}e}".split("e")
+        return _minus(f"{m}e{int(e)}").replace("e-", "e" + MINUS)
+    return _minus(f"{v:.{sig}g}")
+
+
+def fint(v: Any) -> str:
+    """Whole number with thin grouping (counts)."""
+    if not is_num(v):
+        return NA
+    return f"{int(round(v)):,}".replace(",", "\u2009")
+
+
+def fp(p: Any) -> str:
+    """A p-value: two decimals from 0.1, two significant digits down to 0.001, then
+    scientific (so that 0.0488 reads 0.049, not 0.05)."""
+    if not is_num(p):
+        return NA
+    if p >= 0.1:
+        return f"{p:.2f}"
+    if p >= 0.001:
+        return f"{p:.2g}"
+    if p < 1e-16:
+        return "< 1e" + MINUS + "16"
+    return fsig(p, 2)
+
+
+def frange(lo: Any, hi: Any, digits: int = 3) -> str:
+    """An interval ``lo–hi`` (``lo to hi`` when a bound is negative)."""
+    if not (is_num(lo) and is_num(hi)):
+        return NA
+    sep = " to " if (lo < 0 or hi < 0) else "\u2013"
+    return f"{fnum(lo, digits)}{sep}{fnum(hi, digits)}"
+
+
+def frange_sig(lo: Any, hi: Any, sig: int = 4) -> str:
+    """An interval with significant digits (parameters of any magnitude)."""
+    if not (is_num(lo) and is_num(hi)):
+        return NA
+    sep = " to " if (lo < 0 or hi < 0) else "\u2013"
+    return f"{fsig(lo, sig)}{sep}{fsig(hi, sig)}"
+
+
+def digits_for(*values: Any) -> int:
+    """Decimals for a sentence: 2, or 3 when some value is small (|x| < 0.05)."""
+    small = [abs(v) for v in values if is_num(v) and v != 0]
+    return 3 if small and min(small) < 0.05 else 2
+
+
+def band_label(lo: float, hi: float, scale: float = 1.0) -> str:
+    """``0–1``, ``10–100`` or ``≥100`` (``scale`` 4 gives the |S| edges)."""
+    if not is_num(hi):
+        return f"\u2265{lo * scale:g}"
+    return f"{lo * scale:g}\u2013{hi * scale:g}"
+
+
+def pct(level: Any) -> str:
+    """Confidence level as ``95 %``."""
+    return f"{100 * level:g} %" if is_num(level) else "95 %"
+
+
+CONVENTIONS = [
+    "Genotype fitnesses are 1 : 1+s : 1+2s (semidominant: the heterozygote effect is s).",
+    "The scaled selection coefficient is S = 4\u00b7Ne\u00b7s; deleterious mutations have "
+    "S < 0. The fixation probability of a new mutation relative to a neutral one is "
+    "about S/(1 \u2212 e^(\u2212S)) (Kimura 1962).",
+    "Band edges are on |Ne\u00b7s| (= |S|/4); the first band, |Ne\u00b7s| < 1 "
+    "(|S| < 4), is the effectively neutral one: there drift outweighs selection.",
+    "Shares are of new mutations at selected-class sites, not of polymorphisms or "
+    "substitutions; they sum to 1 over the bands.",
+    "Intervals are percentile intervals of a block bootstrap over genomic blocks "
+    "(blocks resampled with replacement, every model refitted).",
+    "Expected spectra come from Poisson random field theory (Sawyer & Hartl 1992) with "
+    "demographic nuisance factors r_i shared by both classes (Eyre-Walker, Woolfit & "
+    "Phelps 2006); Pearson residuals are (observed \u2212 expected)/\u221aexpected.",
+    "Models are ranked by AIC; Akaike weights are exp(\u2212\u0394AIC/2), normalised.",
+]
+
+CAUTIONS = [
+    ("Demographic misspecification",
+     "The nuisance factors absorb distortions of the spectra by changes in population "
+     "size, structure and sampling only approximately. Strong bottlenecks, expansions, "
+     "admixture or hidden structure can still shift the fitted DFE, and with it the "
+     "effectively neutral share."),
+    ("Linked selection and background selection",
+     "Selection at linked sites lowers the local Ne and distorts the neutral (4-fold) "
+     "spectrum unevenly along the genome. The method assumes that neutral and selected "
+     "sites share one genealogical history; where they do not, estimates are biased."),
+    ("GC-biased gene conversion",
+     "gBGC favours G/C over A/T alleles like weak selection, at neutral and selected sites "
+     "alike. It can make 4-fold sites look non-neutral and bias the DFE and \u03b1."),
+    ("Ancestral misidentification",
+     "Unfolded spectra rest on the ancestral allele being right. Misidentified sites "
+     "appear as high-frequency derived variants and can mimic positive selection; the "
+     "misorientation rate \u03b5 is fitted (or fixed) and shown with the parameters. "
+     "Folded spectra avoid this but carry less information."),
+    ("Sample size and number of blocks",
+     "Few sampled gene copies resolve weakly selected mutations poorly, and bootstrap "
+     "intervals from few genomic blocks (fewer than about 20) are unreliable; blocks "
+     "should be longer than the extent of linkage disequilibrium."),
+    ("Decisions",
+     "These estimates alone are no basis for conservation or management decisions. They "
+     "rest on the model assumptions above; have them reviewed by experts on the species' "
+     "biology and demography, together with other evidence, before acting on them."),
+]
+
+PARAM_LABELS = {
+    "shape": "shape \u03b2 of the gamma distribution of \u2212S",
+    "mean_S": "mean of \u2212S (mean |S| of deleterious mutations)",
+    "log_mean": "mean of ln(\u2212S) (median \u2212S = e^mean)",
+    "log_sd": "standard deviation of ln(\u2212S)",
+    "p_b": "share of beneficial new mutations",
+    "S_b": "S of beneficial mutations",
+    "eps": "ancestral misidentification rate \u03b5",
+    "theta": "\u03b8 per site (neutral class, r\u2081 = 1)",
+    "fixation_ratio": "mean fixation rate relative to neutral, r\u0304",
+}
+
+
+def param_label(name: str, edges: list[float] | None = None) -> str:
+    """Readable description of a DFE parameter name from a fit file."""
+    if name in PARAM_LABELS:
+        return PARAM_LABELS[name]
+    if name.startswith("mass_") and name[5:].isdigit() and edges:
+        k = int(name[5:])
+        e = list(edges) + [math.inf]
+        if k + 1 < len(e):
+            return f"mass in |Ne\u00b7s| band {band_label(e[k], e[k + 1])}"
+    return name

@@ -1,0 +1,426 @@
+"""What the report shows, gathered from the documents (no statistics, no I/O).
+
+:func:`collect` reads a fit document, comparison rows and spectra documents into plain
+view objects; the HTML and Markdown writers render the same objects, so both show the
+same numbers. Nothing here estimates anything: values are taken from the files, only
+selected, labelled and put into words.
+"""
+
+from __future__ import annotations
+
+import math
+import re
+from dataclasses import dataclass, field
+from typing import Any
+
+from ..exceptions import InputError
+from ._inputs import check_compare_rows, check_fit_doc, check_spectra_doc
+from ._text import ALPHA_LEVEL, band_label, digits_for, fnum, fp, frange, is_num, pct
+
+__all__ = ["Band", "PairView", "PopulationView", "ReportView", "collect"]
+
+RESIDUAL_FLAG = 3.0  # |Pearson residual| above which a class is pointed out
+
+
+@dataclass
+class Band:
+    """One |Ne·s| band of one population's best model."""
+
+    lo: float
+    hi: float
+    share: float | None
+    ci_low: float | None
+    ci_high: float | None
+
+    @property
+    def label(self) -> str:
+        """Band on |Ne·s|, e.g. ``0–1``."""
+        return band_label(self.lo, self.hi)
+
+    @property
+    def label_s(self) -> str:
+        """The same band on |S| = 4|Ne·s|, e.g. ``0–4``."""
+        return band_label(self.lo, self.hi, 4.0)
+
+
+@dataclass
+class PopulationView:
+    """One population: its record in the fit file and, if given, in a spectra file."""
+
+    name: str
+    anchor: str
+    record: dict[str, Any]
+    best: str
+    bands: list[Band]
+    level: float
+    replicates: int | None
+    blocks: int | None
+    flags: list[str] = field(default_factory=list)
+    spectra: dict[str, Any] | None = None
+    spectra_source: str | None = None
+
+    @property
+    def dataset(self) -> str:
+        """Dataset label of the population (may be empty)."""
+        return str(self.record.get("dataset") or "")
+
+    @property
+    def best_fit(self) -> dict[str, Any]:
+        """The record of the AIC-best model."""
+        return self.record["models"][self.best]
+
+    @property
+    def converged(self) -> bool:
+        """Whether the best model's fit converged."""
+        return bool(self.best_fit.get("success", False))
+
+    @property
+    def n(self) -> int:
+        """Sampled gene copies."""
+        return int(self.record["data"]["n"])
+
+    @property
+    def folded(self) -> bool:
+        """Whether the spectra are folded."""
+        return bool(self.record["data"].get("folded", False))
+
+    def model_ci(self, model: str) -> dict[str, Any]:
+        """The bootstrap record of a model (empty without bootstrap)."""
+        return ((self.record.get("bootstrap") or {}).get("models") or {}).get(model) or {}
+
+
+@dataclass
+class PairView:
+    """The comparison rows of one pair of populations, and their plain-words reading."""
+
+    a: str
+    b: str
+    rows: list[dict[str, Any]]
+    sentences: list[tuple[str, str]]  # (test, sentence)
+
+
+@dataclass
+class ReportView:
+    """Everything the report shows."""
+
+    options: dict[str, Any]
+    neutral: str
+    selected: str
+    populations: list[PopulationView]
+    pairs: list[PairView]
+    compare_rows: list[dict[str, Any]] | None
+    fit_provenance: dict[str, Any]
+    spectra_docs: dict[str, dict[str, Any]]
+    provenance: dict[str, Any]
+    adjust_method: str
+    adjust_known: bool
+
+    @property
+    def edges(self) -> list[float]:
+        """Band edges of the first population (lower edges and the open top)."""
+        return [b.lo for b in self.populations[0].bands] + [math.inf]
+
+    @property
+    def level(self) -> float:
+        """Confidence level of the intervals."""
+        return self.populations[0].level
+
+
+def _anchor(k: int, name: str) -> str:
+    return f"pop{k + 1}-" + (re.sub(r"[^a-z0-9]+", "-", name.lower()).strip("-") or "x")
+
+
+def _bands(p: dict[str, Any]) -> list[Band]:
+    best = p["best_model"]
+    f = p["models"][best]
+    edges = [float(e) for e in f["band_edges"]] + [math.inf]
+    ci = (((p.get("bootstrap") or {}).get("models") or {}).get(best) or {}).get("shares_ci")
+    out = []
+    for k, s in enumerate(f["shares"]):
+        lo = hi = None
+        if isinstance(ci, list) and k < len(ci) and isinstance(ci[k], list) and len(ci[k]) == 2:
+            lo, hi = ci[k]
+        out.append(Band(edges[k], edges[k + 1], s if is_num(s) else None,
+                        lo if is_num(lo) else None, hi if is_num(hi) else None))
+    return out
+
+
+def _flags(name: str, p: dict[str, Any], blocks: int | None) -> list[str]:
+    """Convergence and data warnings of one population, as sentences."""
+    out = []
+    best = p["best_model"]
+    for m, f in p["models"].items():
+        if not f.get("success", False):
+            msg = str(f.get("message") or "no message")
+            if m == best:
+                out.append(f"The best model {m} did not converge ({msg}); no fitted model "
+                           "converged, so its numbers are unreliable.")
+            else:
+                out.append(f"Model {m} did not converge ({msg}); it is left out of the "
+                           "AIC choice.")
+    se = p["models"][best].get("stderr") or {}
+    missing = [k for k, v in se.items() if not is_num(v)]
+    if missing:
+        out.append(f"No asymptotic standard error for {', '.join(missing)} of the best model "
+                   f"{best} (the Hessian was not usable there); rely on the bootstrap "
+                   "interval.")
+    boot = p.get("bootstrap") or {}
+    if not boot:
+        out.append("No bootstrap: the shares have no confidence intervals (rerun "
+                   "'driftband fit' with --bootstrap B).")
+    else:
+        reps = boot.get("replicates")
+        for m, b in (boot.get("models") or {}).items():
+            failed = b.get("failed") or 0
+            if is_num(failed) and failed > 0:
+                out.append(f"{int(failed)} of {reps} bootstrap refits of model {m} failed or "
+                           "did not converge.")
+        if is_num(blocks) and blocks < 20:
+            out.append(f"Only {int(blocks)} genomic blocks: bootstrap intervals from fewer "
+                       "than 20 blocks are unreliable.")
+    res = p["models"][best].get("pearson_residuals") or {}
+    vals = [v for arr in res.values() if isinstance(arr, list) for v in arr if is_num(v)]
+    big = [v for v in vals if abs(v) > RESIDUAL_FLAG]
+    if big:
+        out.append(f"{len(big)} of {len(vals)} spectrum classes have |Pearson residual| > "
+                   f"{RESIDUAL_FLAG:g} under {best}: check the residual plot; the model may "
+                   "not capture the shape of the spectra.")
+    return out
+
+
+def _match_spectra(views: list[PopulationView], docs: dict[str, dict[str, Any]]) -> None:
+    """Attach each population's spectra record (name, ``label/name`` or dataset match)."""
+    for v in views:
+        found: list[tuple[int, str, dict]] = []
+        for key, doc in docs.items():
+            for q, rec in doc["populations"].items():
+                if v.name == f"{key}/{q}":
+                    found.append((0, key, rec))
+                elif key == v.dataset and (v.name == q or v.name.endswith("/" + q)):
+                    found.append((1, key, rec))
+                elif v.name == q or ("/" in v.name and v.name.split("/", 1)[1] == q
+                                     and not v.dataset):
+                    found.append((2, key, rec))
+        if not found:
+            continue
+        top = min(f[0] for f in found)
+        best = [f for f in found if f[0] == top]
+        if len(best) > 1:
+            raise InputError(f"population {v.name!r} is in several spectra files "
+                             f"({', '.join(f[1] for f in best)}); give them as "
+                             "--spectra LABEL=FILE with the labels used by 'driftband fit'")
+        _, key, rec = best[0]
+        if int(rec["n"]) != v.n or bool(rec.get("folded", False)) != v.folded:
+            raise InputError(f"population {v.name!r}: the spectra file has n = {rec['n']} "
+                             f"({'folded' if rec.get('folded') else 'unfolded'}), the fit "
+                             f"has n = {v.n} ({'folded' if v.folded else 'unfolded'}); is it "
+                             "the spectra file the fit was made from?", key)
+        v.spectra, v.spectra_source = rec, key
+    for key, doc in docs.items():
+        if not any(v.spectra_source == key for v in views):
+            raise InputError(f"none of its populations ({', '.join(doc['populations'])}) is "
+                             f"in the fit file (it holds {', '.join(v.name for v in views)})",
+                             key)
+
+
+def _share(pops: dict[str, PopulationView], name: str, model: str) -> float | None:
+    v = pops.get(name)
+    if v is None or model not in v.record["models"]:
+        return None
+    s = v.record["models"][model]["shares"][0]
+    return s if is_num(s) else None
+
+
+def _p_text(r: dict[str, Any], method: str) -> str:
+    parts = []
+    if is_num(r.get("p_value")):
+        parts.append(f"p = {fp(r['p_value'])}")
+    if is_num(r.get("p_adjusted")):
+        parts.append(f"{method}-adjusted p = {fp(r['p_adjusted'])}")
+    return ", ".join(parts) if parts else "no p-value"
+
+
+def _p_for_verdict(r: dict[str, Any]) -> float | None:
+    p = r.get("p_adjusted")
+    if not is_num(p):
+        p = r.get("p_value")
+    return p if is_num(p) else None
+
+
+def _sentence_difference(r, pops, method, level) -> str:
+    a, b, model = r["population_a"], r["population_b"], r["model"]
+    d = r.get("estimate")
+    sa, sb = _share(pops, a, model), _share(pops, b, model)
+    if is_num(sa) and is_num(sb) and not is_num(d):
+        d = sb - sa
+    if not is_num(d):
+        return (f"{a} and {b}: no estimate of the difference in the effectively neutral "
+                f"share ({r.get('note') or 'empty row'}).")
+    lo, hi = r.get("ci_low"), r.get("ci_high")
+    if d < 0:  # say it with the larger population first
+        a, b, sa, sb, d = b, a, sb, sa, -d
+        lo, hi = (-hi if is_num(hi) else None), (-lo if is_num(lo) else None)
+    dig = digits_for(sa, sb, d, lo, hi)
+    if d == 0:
+        head = f"{b} and {a} carry the same effectively neutral share ({fnum(sb, dig)})"
+    else:
+        vs = f": {fnum(sb, dig)} vs {fnum(sa, dig)}" if is_num(sa) and is_num(sb) else ""
+        head = (f"{b} carries a larger effectively neutral share than {a}{vs}, difference "
+                f"{fnum(d, dig)}")
+    if is_num(lo) and is_num(hi):
+        head += f" ({pct(level)} CI {frange(lo, hi, dig)})"
+    p = _p_for_verdict(r)
+    if p is None:
+        return head + (f" ({model} model). There is no interval or p-value: "
+                       f"{r.get('note') or 'the fits have no bootstrap'}.")
+    head += f", {_p_text(r, method)} ({model} model)."
+    excl = is_num(lo) and is_num(hi) and (lo > 0 or hi < 0)
+    sig = p < ALPHA_LEVEL
+    if sig and (excl or not is_num(lo)):
+        verdict = " The data support a difference at the 5 % level."
+    elif not sig and not excl:
+        verdict = " At the 5 % level the data do not show a clear difference."
+    else:
+        verdict = (" The interval and the p-value disagree at the 5 % level (few bootstrap "
+                   "replicates?); treat the difference as uncertain.")
+    return head + verdict
+
+
+def _sentence_shared(r, method) -> str:
+    a, b, model = r["population_a"], r["population_b"], r["model"]
+    stat, df = r.get("statistic"), r.get("df")
+    p = _p_for_verdict(r)
+    core = (f"One {model} DFE shared by {a} and {b} (each keeping its own \u03b8, "
+            "demographic nuisance factors and misorientation rate) against separate DFEs: "
+            f"likelihood-ratio statistic {fnum(stat, 2)}, df {fnum(df, 0)}, "
+            f"{_p_text(r, method)}.")
+    if p is None:
+        return core
+    if p < ALPHA_LEVEL:
+        core += " The shared DFE is rejected at the 5 % level: the two DFEs differ."
+    else:
+        core += (" The shared DFE is not rejected at the 5 % level: the data are compatible "
+                 "with one DFE for both.")
+    if is_num(r.get("estimate")):
+        core += f" Under the shared DFE the effectively neutral share is {fnum(r['estimate'])}."
+    return core
+
+
+def _sentence_ne_only(r, pops, method) -> str:
+    a, b, model = r["population_a"], r["population_b"], r["model"]
+    rho = r.get("ne_ratio") if is_num(r.get("ne_ratio")) else r.get("estimate")
+    note = str(r.get("note") or "")
+    assumption = note.split("assuming ", 1)[1] if "assuming " in note else (
+        "equal mutation rates unless relative rates were given")
+    pred, obs = r.get("predicted_share_b"), r.get("observed_share_b")
+    if not is_num(obs):
+        obs = _share(pops, b, model)
+    dig = digits_for(pred, obs)
+    text = (f"Only Ne differs? If {a} and {b} shared one distribution of s and differed only "
+            f"in Ne, with Ne({b})/Ne({a}) = {fnum(rho, 2)} (from the ratio of diversity "
+            f"\u03c0 at neutral sites, assuming {assumption}), "
+            f"the effectively neutral share of {b} would be {fnum(pred, dig)}; observed "
+            f"{fnum(obs, dig)}. Likelihood-ratio test of this constraint against separate "
+            f"DFEs: statistic {fnum(r.get('statistic'), 2)}, df {fnum(r.get('df'), 0)}, "
+            f"{_p_text(r, method)}.")
+    p = _p_for_verdict(r)
+    if p is None:
+        return text
+    if p < ALPHA_LEVEL:
+        return text + (" Rejected at the 5 % level: a difference in Ne alone does not "
+                       "explain the two DFEs (the distributions of s may differ, or the Ne "
+                       "ratio is misestimated).")
+    return text + (" Not rejected at the 5 % level: a difference in Ne alone is compatible "
+                   "with the data.")
+
+
+def _pairs(rows, pops, method, level) -> list[PairView]:
+    order: dict[tuple[str, str], list] = {}
+    for r in rows:
+        order.setdefault((r["population_a"], r["population_b"]), []).append(r)
+    out = []
+    for (a, b), rs in order.items():
+        sent = []
+        for test in ("neutral_share_difference", "shared_dfe_lrt", "ne_only_lrt"):
+            for r in (x for x in rs if x["test"] == test):
+                if test == "neutral_share_difference":
+                    sent.append((test, _sentence_difference(r, pops, method, level)))
+                elif test == "shared_dfe_lrt":
+                    sent.append((test, _sentence_shared(r, method)))
+                else:
+                    sent.append((test, _sentence_ne_only(r, pops, method)))
+        out.append(PairView(a, b, rs, sent))
+    return out
+
+
+def collect(fit_doc: dict[str, Any], compare_rows: list[dict[str, Any]] | None,
+            spectra_docs: dict[str, dict[str, Any]] | None,
+            provenance: dict[str, Any]) -> ReportView:
+    """Gather what the report shows from the documents.
+
+    Parameters
+    ----------
+    fit_doc : dict
+        A fit document (``driftband fit`` output).
+    compare_rows : list of dict or None
+        Rows of compare.tsv (:func:`~driftband.report.read_compare_tsv`).
+    spectra_docs : dict of str to dict, or None
+        Spectra documents keyed by label (as in ``driftband fit --label``) or path.
+    provenance : dict
+        Provenance of the report itself.
+
+    Returns
+    -------
+    ReportView
+
+    Raises
+    ------
+    InputError
+        Documents that do not fit together (a comparison or spectra file naming
+        populations the fit file does not hold, a sample size that differs).
+    """
+    check_fit_doc(fit_doc)
+    spectra_docs = dict(spectra_docs or {})
+    for key, doc in spectra_docs.items():
+        check_spectra_doc(doc, key)
+    if compare_rows is not None:
+        check_compare_rows(compare_rows, fit_doc)
+    options = fit_doc.get("options") or {}
+    views = []
+    for k, (name, p) in enumerate(fit_doc["populations"].items()):
+        boot = p.get("bootstrap") or {}
+        level = boot.get("level", options.get("level", 0.95))
+        blocks = boot.get("blocks")
+        views.append(PopulationView(
+            name=name, anchor=_anchor(k, name), record=p, best=p["best_model"],
+            bands=_bands(p), level=level if is_num(level) else 0.95,
+            replicates=boot.get("replicates") if boot else None,
+            blocks=blocks if is_num(blocks) else None,
+            flags=_flags(name, p, blocks if is_num(blocks) else None)))
+    _match_spectra(views, spectra_docs)
+    first = [b.lo for b in views[0].bands]
+    if any([b.lo for b in v.bands] != first for v in views):
+        raise InputError("the populations of the fit file have different |Ne*s| band edges; "
+                         "the report needs one set (refit with the same --bands)")
+    methods = {str(r.get("adjust") or "") for r in compare_rows or []} - {""}
+    adjust_known = len(methods) == 1
+    method = methods.pop() if adjust_known else "Holm"
+    pops = {v.name: v for v in views}
+    pairs = _pairs(compare_rows or [], pops, method, views[0].level)
+    return ReportView(options=options, neutral=str(options.get("neutral", "4fold")),
+                      selected=str(options.get("selected", "0fold")), populations=views,
+                      pairs=pairs, compare_rows=compare_rows,
+                      fit_provenance=fit_doc.get("provenance") or {},
+                      spectra_docs=spectra_docs, provenance=provenance or {},
+                      adjust_method=method, adjust_known=adjust_known)
+
+
+def answer_sentence(v: PopulationView, selected: str) -> str:
+    """The headline of one population in words."""
+    b = v.bands[0]
+    ci = (f" ({pct(v.level)} CI {frange(b.ci_low, b.ci_high, 2)})"
+          if is_num(b.ci_low) and is_num(b.ci_high) else " (no interval: no bootstrap)")
+    status = "" if v.converged else " \u2014 the fit did not converge, see the flags"
+    return (f"{v.name}: a share of {fnum(b.share, 2)}{ci} of new {selected} mutations is "
+            f"effectively neutral (|Ne\u00b7s| < {b.hi:g}, |S| < {4 * b.hi:g}) under the "
+            f"{v.best} DFE (lowest AIC){status}.")
