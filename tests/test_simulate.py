@@ -26,6 +26,7 @@ from driftband.cli import main
 from driftband.exceptions import DriftbandWarning, OptionError
 from driftband.simulate import (
     CODON_PATTERNS,
+    CODON_POSITION_CLASSES,
     band_shares,
     build_populations,
     codon_pattern_counts,
@@ -423,7 +424,7 @@ def vcf_study(tmp_path_factory):
                         sites={"0fold": 12_000, "4fold": 6000}, blocks=12,
                         divergence_generations=300, seed=8, chromosomes=3)
     paths = write_study(st, d / "s.json", d / "s.tsv", d / "s", outgroup=("sister", 4),
-                        ref_derived=0.3, missing=0.0)
+                        ref_derived=0.3, missing=0.0, genome=True)
     return st, paths, d
 
 
@@ -559,4 +560,60 @@ def test_cli_bad_options_exit_2_with_one_line_and_write_nothing(tmp_path, capsys
     err = capsys.readouterr().err
     assert rc == 2
     assert err.count("\n") == 1 and msg in err
+    assert list(tmp_path.iterdir()) == []
+
+
+# --------------------------------------------------------------------------------------
+# Reference genome (FASTA + GFF3) behind the site classes
+# --------------------------------------------------------------------------------------
+
+
+def test_codon_position_classes_match_biopython_standard_table():
+    # Degeneracy of each codon position from Biopython's standard table (NCBI table 1):
+    # 0 synonymous changes -> 0-fold, 3 -> 4-fold (common practice; a change to a stop
+    # codon is nonsynonymous).
+    from Bio.Data import CodonTable
+
+    table = CodonTable.unambiguous_dna_by_id[1]
+    aa = dict(table.forward_table)
+    for stop in table.stop_codons:
+        aa[stop] = "*"
+    for idx in range(64):
+        codon = "ACGT"[idx // 16] + "ACGT"[(idx // 4) % 4] + "ACGT"[idx % 4]
+        if aa[codon] == "*":
+            assert (CODON_POSITION_CLASSES[idx] == -2).all()
+            continue
+        for k in range(3):
+            syn = sum(aa[codon[:k] + b + codon[k + 1:]] == aa[codon]
+                      for b in "ACGT" if b != codon[k])
+            want = 0 if syn == 0 else (1 if syn == 3 else -1)
+            assert CODON_POSITION_CLASSES[idx, k] == want, (codon, k)
+
+
+def test_genome_fasta_and_gff3_give_back_the_sites_bed(vcf_study):
+    # The project's own classifier (FASTA + GFF3 -> classes) reproduces the BED the
+    # simulator wrote, and REF agrees with the FASTA at every record (bcftools norm -c e).
+    _, paths, _ = vcf_study
+    from driftband.sites.classify import classify_sites
+
+    got = classify_sites(paths["fasta"], paths["gff"]).to_site_classes()
+    want = read_site_classes(paths["bed"])
+    for c in ("0fold", "4fold"):
+        assert set(got.classes[c].chroms) == set(want.classes[c].chroms)
+        for chrom, (s, e) in want.classes[c].chroms.items():
+            np.testing.assert_array_equal(got.classes[c].chroms[chrom][0], s)
+            np.testing.assert_array_equal(got.classes[c].chroms[chrom][1], e)
+    bcftools = shutil.which("bcftools")
+    if bcftools is None:
+        pytest.skip("bcftools is not installed")
+    out = subprocess.run([bcftools, "norm", "-c", "e", "-f", paths["fasta"], "-o",
+                          "/dev/null", paths["vcf"]], capture_output=True, text=True)
+    assert out.returncode == 0, out.stderr
+
+
+def test_genome_needs_more_0fold_than_4fold_sites(tmp_path, capsys):
+    rc = main(["simulate", "--population", "a:N=50,n=4", "--sites-0fold", "100",
+               "--sites-4fold", "200", "--blocks", "2", "--vcf", str(tmp_path / "g"),
+               "--genome", "-o", str(tmp_path / "g.json")])
+    assert rc == 2 and "--genome" in capsys.readouterr().err
     assert list(tmp_path.iterdir()) == []

@@ -23,7 +23,8 @@ After a burn-in at the ancestral size (default 10N generations) and an optional 
 history, n gene copies are sampled per population and their spectra written (entry 0:
 monomorphic ancestral sites; entry n: sites fixed in the sample, plus substitutions of the
 last --divergence-generations generations). With --vcf the study is also written as a
-VCF on synthetic chromosomes, with its sites BED and popmap.
+VCF on synthetic chromosomes, with its sites BED and popmap, and with --genome also
+as a reference FASTA and GFF3 of real codons whose classification gives back that BED.
 
 Conventions:
   --population NAME:N=SIZE,n=COPIES[,theta=T]   N = present diploid size, n = sampled
@@ -49,7 +50,8 @@ driftband simulate --population lake:N=1000,n=20 --dfe gamma:shape=0.3,mean=200 
 # "only Ne differs": a large and a small population, with divergence and a VCF
 driftband simulate --population lake:N=2000,n=20 --population spring:N=200,n=16 \\
     --dfe gamma:shape=0.3,mean=400 --divergence-generations 4000 \\
-    --vcf study --outgroup sister:n=4 --missing 0.02 --seed 7 -o study.spectra.json
+    --sites-0fold 200000 --sites-4fold 80000 --vcf study --genome \\
+    --outgroup sister:n=4 --missing 0.02 --ref-derived 0.05 --seed 7 -o study.spectra.json
 
 # a four-fold expansion 500 generations ago, beneficial mutations 1 %
 driftband simulate --population pop:N=4000,n=30 --history 0:4000,500:1000 \\
@@ -103,6 +105,10 @@ def add_parser(subparsers) -> None:
     o.add_argument("--vcf", default=None, metavar="PREFIX",
                    help="also write PREFIX.vcf.gz (+ .tbi), PREFIX.sites.bed, "
                         "PREFIX.popmap.tsv")
+    o.add_argument("--genome", action="store_true",
+                   help="with --vcf, also write the reference PREFIX.fa (+ .fai) and its "
+                        "genes PREFIX.gff3 (real codons: classifying them gives back "
+                        "PREFIX.sites.bed); needs at least as many 0fold as 4fold sites")
     o.add_argument("--missing", type=float, default=0.0, metavar="RATE",
                    help="share of missing genotypes in the VCF (default: 0)")
     o.add_argument("--outgroup", default=None, metavar="NAME:n=COPIES",
@@ -155,14 +161,18 @@ def run(args: argparse.Namespace) -> int:
         if L < 1:
             raise OptionError(f"--sites for {c}: {L} must be >= 1")
     outgroup = _parse_outgroup(args.outgroup)
+    if args.genome and args.vcf is None:
+        raise OptionError("--genome needs --vcf PREFIX (the genome is written beside it)")
     vcf_opts = {"missing": args.missing, "outgroup": outgroup,
-                "ref_derived": args.ref_derived, "depth": args.depth,
+                "ref_derived": args.ref_derived, "depth": args.depth, "genome": args.genome,
                 "command": shlex.join([os.path.basename(sys.argv[0]), *sys.argv[1:]])}
     # Check every output (and the VCF options) before the simulation runs.
     outputs = [args.output, args.tsv]
     if args.vcf is not None:
-        outputs += list(sim.study_paths(args.vcf).values())
+        outputs += list(sim.study_paths(args.vcf, args.genome).values())
         sim.check_vcf_options(pops, args.missing, outgroup, args.ref_derived, args.depth)
+        if args.genome:
+            sim.check_genome_option([sites["0fold"], sites["4fold"]])
     from .._io import check_outputs
     check_outputs(outputs, args.force)
     options = {k: v for k, v in vars(args).items() if k not in ("runner", "subcommand")}

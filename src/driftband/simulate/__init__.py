@@ -10,7 +10,14 @@ See :func:`simulate_study` for a whole study, :func:`write_study` for its files,
 """
 
 from ._dfe import S_MIN_CLIP, SimDFE, band_shares, parse_beneficial, parse_dfe, s_from_S
-from ._files import check_vcf_options, study_paths, write_study, write_study_vcf
+from ._files import (
+    check_genome_option,
+    check_vcf_options,
+    study_paths,
+    write_study,
+    write_study_vcf,
+)
+from ._genome import CODON_POSITION_CLASSES, PATTERN_CODONS, ReferenceGenome, build_reference
 from ._layout import CODON_PATTERNS, GenomeLayout, codon_pattern_counts, make_layout
 from ._model import PopulationModel, build_populations, parse_history, parse_population
 from ._study import (
@@ -32,16 +39,21 @@ from ._wf import (
 __all__ = [
     "CLASSES",
     "CODON_PATTERNS",
+    "CODON_POSITION_CLASSES",
+    "PATTERN_CODONS",
     "S_MIN_CLIP",
     "ClassVariants",
     "FixationResult",
     "GenomeLayout",
     "PopulationModel",
     "PopulationSample",
+    "ReferenceGenome",
     "SimDFE",
     "SimulatedStudy",
     "band_shares",
     "build_populations",
+    "build_reference",
+    "check_genome_option",
     "check_vcf_options",
     "codon_pattern_counts",
     "make_layout",

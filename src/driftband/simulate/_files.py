@@ -37,10 +37,12 @@ from .._version import __version__
 from ..exceptions import OptionError
 from ..sites.bed import write_bed4
 from ..spectra.io import write_spectra_json, write_spectra_tsv
+from ._genome import build_reference, fasta_index, write_fasta, write_gff3
 from ._model import PopulationModel
 from ._study import CLASSES, SimulatedStudy, _seed_stream
 
-__all__ = ["check_vcf_options", "study_paths", "write_study", "write_study_vcf"]
+__all__ = ["check_genome_option", "check_vcf_options", "study_paths", "write_study",
+           "write_study_vcf"]
 
 log = logging.getLogger("driftband")
 
@@ -48,11 +50,15 @@ _BASES = np.array(list("ACGT"))
 _GT = np.array(["0/0", "0/1", "1/1"])
 
 
-def study_paths(vcf_prefix: str | os.PathLike) -> dict[str, str]:
-    """Output paths of the VCF set for a prefix: ``vcf``, ``tbi``, ``bed``, ``popmap``."""
+def study_paths(vcf_prefix: str | os.PathLike, genome: bool = False) -> dict[str, str]:
+    """Output paths of the VCF set for a prefix: ``vcf``, ``tbi``, ``bed``, ``popmap``
+    and, with ``genome``, ``fasta``, ``fai``, ``gff``."""
     p = os.fspath(vcf_prefix)
-    return {"vcf": p + ".vcf.gz", "tbi": p + ".vcf.gz.tbi", "bed": p + ".sites.bed",
-            "popmap": p + ".popmap.tsv"}
+    out = {"vcf": p + ".vcf.gz", "tbi": p + ".vcf.gz.tbi", "bed": p + ".sites.bed",
+           "popmap": p + ".popmap.tsv"}
+    if genome:
+        out.update({"fasta": p + ".fa", "fai": p + ".fa.fai", "gff": p + ".gff3"})
+    return out
 
 
 def _sample_names(name: str, count: int) -> list[str]:
@@ -62,7 +68,7 @@ def _sample_names(name: str, count: int) -> list[str]:
 
 def write_study_vcf(study: SimulatedStudy, prefix: str | os.PathLike, missing: float = 0.0,
                     outgroup: tuple[str, int] | None = None, ref_derived: float = 0.0,
-                    depth: float = 20.0, force: bool = False,
+                    depth: float = 20.0, genome: bool = False, force: bool = False,
                     command: str | None = None) -> dict[str, str]:
     """Write ``PREFIX.vcf.gz`` (+ ``.tbi``), ``PREFIX.sites.bed`` and ``PREFIX.popmap.tsv``.
 
@@ -79,6 +85,9 @@ def write_study_vcf(study: SimulatedStudy, prefix: str | os.PathLike, missing: f
         Fraction of records whose REF is the derived base, in [0, 1].
     depth : float
         Mean read depth of a called genotype (> 0).
+    genome : bool
+        Also write the reference ``PREFIX.fa`` (+ ``.fai``) and ``PREFIX.gff3``, whose
+        classification gives back ``PREFIX.sites.bed`` (see :mod:`._genome`).
     force : bool
         Overwrite existing outputs.
     command : str, optional
@@ -89,8 +98,10 @@ def write_study_vcf(study: SimulatedStudy, prefix: str | os.PathLike, missing: f
     dict of str to str
         The paths written (keys as in :func:`study_paths`).
     """
-    paths = study_paths(prefix)
+    paths = study_paths(prefix, genome)
     check_vcf_options(study.populations, missing, outgroup, ref_derived, depth)
+    if genome:
+        check_genome_option(study.layout.block_sites.sum(axis=0))
     check_outputs(paths.values(), force)
     rng = _seed_stream(study.seed, 2)
     lay = study.layout
@@ -111,9 +122,22 @@ def write_study_vcf(study: SimulatedStudy, prefix: str | os.PathLike, missing: f
     order = np.lexsort((pos0, chrom))
     chrom, pos0, rpop, rk = chrom[order], pos0[order], rpop[order], rk[order]
     m = chrom.size
-    anc = rng.integers(0, 4, m)
+    # Ancestral bases from a reference of real codons; derived bases at random.
+    genome_ref = build_reference(lay, _seed_stream(study.seed, 3))
+    anc = np.array([genome_ref.seqs[c][p] for c, p in zip(chrom.tolist(), pos0.tolist())],
+                   dtype=np.int64)
     der = (anc + rng.integers(1, 4, m)) % 4
-    flip = rng.random(m) < ref_derived          # REF carries the derived base
+    # REF carries the derived base for a share of records, where the reference codon
+    # keeps its classes with it.
+    flip = np.zeros(m, dtype=bool)
+    for i in np.flatnonzero(rng.random(m) < ref_derived).tolist():
+        c, p = int(chrom[i]), int(pos0[i])
+        k = int(genome_ref.phase[c][p])
+        b = genome_ref.pick_ref_derived(c, p - k, k, int(anc[i]), rng) if k >= 0 else -1
+        if b >= 0:
+            der[i] = b
+            flip[i] = True
+            genome_ref.seqs[c][p] = b
     ref = np.where(flip, der, anc)
     alt = np.where(flip, anc, der)
     # Gene copies: populations in order, then the outgroup; 1 = carries the derived base.
@@ -145,6 +169,12 @@ def write_study_vcf(study: SimulatedStudy, prefix: str | os.PathLike, missing: f
     header = _header(study, samples, command)
     _write_vcf(paths["vcf"], paths["tbi"], header, chrom, pos0, ref, alt, anc, fmt, lay)
     write_bed4(paths["bed"], lay.bed_rows(), force=force)
+    if genome:
+        _write_with_index(paths["fasta"], paths["fai"],
+                          lambda fh: write_fasta(fh, lay.chrom_names, genome_ref.seqs),
+                          fasta_index)
+        with atomic_output(paths["gff"], force=force, newline="") as fh:
+            write_gff3(fh, lay.chrom_names, lay.chrom_lengths.tolist(), genome_ref)
     with atomic_output(paths["popmap"], force=force, newline="") as fh:
         for p in pops:
             for s in _sample_names(p.name, p.n // 2):
@@ -204,6 +234,37 @@ def _header(study: SimulatedStudy, samples: list[str], command: str | None) -> s
                    *samples]),
     ]
     return "\n".join(lines) + "\n"
+
+
+def check_genome_option(class_sites: np.ndarray) -> None:
+    """A genome needs at least as many 0fold as 4fold sites (real codons do)."""
+    if int(class_sites[0]) < int(class_sites[1]):
+        raise OptionError("--genome needs at least as many 0fold as 4fold sites (every "
+                          "codon's second position is 0-fold); raise --sites-0fold")
+
+
+def _write_with_index(path: str, index_path: str, write, make_index) -> None:
+    """Write a text file and its index through temporary files renamed into place."""
+    directory = Path(path).parent
+    directory.mkdir(parents=True, exist_ok=True)
+    fd, tmp = tempfile.mkstemp(prefix=f".{Path(path).name}.", suffix=".tmp",
+                               dir=directory)
+    os.close(fd)
+    tmp_index = tmp + Path(index_path).name[len(Path(path).name):]
+    try:
+        with open(tmp, "w", encoding="ascii", newline="") as fh:
+            write(fh)
+        make_index(tmp)
+        mode = 0o666 & ~_umask()
+        os.chmod(tmp, mode)
+        os.chmod(tmp_index, mode)
+        os.replace(tmp, path)
+        os.replace(tmp_index, index_path)
+    except BaseException:
+        for f in (tmp, tmp_index):
+            with contextlib.suppress(FileNotFoundError):
+                os.unlink(f)
+        raise
 
 
 def _umask() -> int:
@@ -269,7 +330,7 @@ def write_study(study: SimulatedStudy, output: str | os.PathLike | None = None,
         Prefix of the VCF set (see :func:`write_study_vcf`).
     force : bool
     **vcf_options
-        ``missing``, ``outgroup``, ``ref_derived``, ``depth``, ``command``.
+        ``missing``, ``outgroup``, ``ref_derived``, ``depth``, ``genome``, ``command``.
 
     Returns
     -------
@@ -278,11 +339,16 @@ def write_study(study: SimulatedStudy, output: str | os.PathLike | None = None,
     """
     out: dict[str, str] = {}
     planned = [output, tsv]
+    genome = bool(vcf_options.get("genome", False))
+    if genome and vcf_prefix is None:
+        raise OptionError("--genome needs --vcf PREFIX (the genome is written beside it)")
     if vcf_prefix is not None:
+        if genome:
+            check_genome_option(study.layout.block_sites.sum(axis=0))
         check_vcf_options(study.populations, vcf_options.get("missing", 0.0),
                            vcf_options.get("outgroup"), vcf_options.get("ref_derived", 0.0),
                            vcf_options.get("depth", 20.0))
-        planned += list(study_paths(vcf_prefix).values())
+        planned += list(study_paths(vcf_prefix, genome).values())
     check_outputs(planned, force)
     if vcf_prefix is not None:
         out.update(write_study_vcf(study, vcf_prefix, force=force, **vcf_options))

@@ -121,6 +121,21 @@ class GenomeLayout:
         ng = max(1, -(-ncod // self.gene_codons))
         return np.array([len(x) for x in np.array_split(np.arange(ncod), ng)], np.int64)
 
+    def block_codons(self, b: int) -> tuple[np.ndarray, np.ndarray]:
+        """Codons of block ``b``: 0-based start positions and pattern indices.
+
+        Returns
+        -------
+        start : ndarray of int64, shape (codons,)
+        pattern : ndarray of int8, shape (codons,)
+            Row of :data:`CODON_PATTERNS`.
+        """
+        pat = _interleave(codon_pattern_counts(*self.block_sites[b]))
+        sizes = self._genes(b)
+        gene_of = np.repeat(np.arange(sizes.size), sizes)
+        q = np.arange(pat.size, dtype=np.int64)
+        return self.block_start[b] + (gene_of + 1) * self.spacer + 3 * q, pat
+
     def block_positions(self, b: int) -> tuple[np.ndarray, np.ndarray]:
         """0-based positions and classes of every coding position of block ``b``.
 
@@ -130,12 +145,8 @@ class GenomeLayout:
         label : ndarray of int8, shape (3·codons,)
             0 (first class), 1 (second class) or −1 (neither).
         """
-        pat = _interleave(codon_pattern_counts(*self.block_sites[b]))
-        sizes = self._genes(b)
-        gene_of = np.repeat(np.arange(sizes.size), sizes)
-        q = np.arange(pat.size, dtype=np.int64)
-        cod_start = self.block_start[b] + (gene_of + 1) * self.spacer + 3 * q
-        pos = (cod_start[:, None] + np.arange(3)).reshape(-1)
+        start, pat = self.block_codons(b)
+        pos = (start[:, None] + np.arange(3)).reshape(-1)
         return pos, CODON_PATTERNS[pat].reshape(-1)
 
     def gene_intervals(self, b: int) -> list[tuple[int, int]]:
