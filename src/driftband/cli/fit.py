@@ -1,0 +1,149 @@
+"""``driftband fit``: DFE models fitted to spectra files."""
+
+from __future__ import annotations
+
+import argparse
+import logging
+import os
+import sys
+
+from .._io import check_outputs, file_record, provenance
+from ..exceptions import OptionError
+from ._common import add_common_arguments, add_subcommand, parse_kv
+
+log = logging.getLogger("driftband")
+
+EXAMPLES = """
+driftband fit spectra.json -o fit.json --bands-tsv bands.tsv
+driftband fit spectra.json --dfe gamma --misorientation fixed:0 --equilibrium -o fit.json
+driftband fit published_table.tsv --dfe gamma,discrete --bands 0,1,10,100 -o fit.json
+driftband fit a.json b.json --label a.json=lakesnail --label b.json=pondsnail -o fit.json
+"""
+
+
+def parse_misorientation(text: str) -> float | None:
+    """``free`` → None; ``fixed:E`` → E (checked to lie in [0, 0.5))."""
+    if text == "free":
+        return None
+    if text.startswith("fixed:"):
+        try:
+            e = float(text.split(":", 1)[1])
+        except ValueError:
+            e = float("nan")
+        if not 0.0 <= e < 0.5:
+            raise OptionError(f"--misorientation {text}: the rate must be a number in [0, 0.5)")
+        return e
+    raise OptionError(f"--misorientation {text!r}: use 'free' or 'fixed:RATE'")
+
+
+def parse_bands(text: str) -> tuple[float, ...]:
+    """``0,1,10,100`` → edges on |Ne·s| (validated)."""
+    from ..fit.api import check_edges
+
+    try:
+        edges = tuple(float(v) for v in text.split(","))
+    except ValueError:
+        raise OptionError(f"--bands {text!r}: give comma-separated numbers, e.g. 0,1,10,100"
+                          ) from None
+    return check_edges(edges)
+
+
+def add_parser(subparsers) -> None:
+    """Register ``driftband fit``."""
+    p = add_subcommand(
+        subparsers, "fit", help="fit DFE models to spectra",
+        description=(
+            "Fit Poisson-random-field models of the distribution of fitness effects (DFE) "
+            "of new selected-class mutations, with demographic nuisance parameters, to each "
+            "population's neutral and selected spectra; report the share of new mutations "
+            "in bands of |Ne*s| (S = 4*Ne*s). Input: spectra JSON from 'driftband spectra' "
+            "or a plain TSV table of spectra (see the README, 'Refitting published "
+            "spectra')."),
+        examples=EXAMPLES)
+    p.add_argument("spectra", nargs="+", metavar="SPECTRA",
+                   help="spectra file(s): JSON from 'driftband spectra', or a TSV table")
+    p.add_argument("--neutral", default="4fold", help="neutral class name (default 4fold)")
+    p.add_argument("--selected", default="0fold", help="selected class name (default 0fold)")
+    p.add_argument("--dfe", default="gamma,lognormal,discrete",
+                   help="comma-separated DFE families: gamma, lognormal, discrete; "
+                        "NAME+beneficial adds a beneficial point mass (default: %(default)s)")
+    p.add_argument("--beneficial", action="store_true",
+                   help="add a beneficial point mass (p_b, S_b > 0) to every family")
+    p.add_argument("--misorientation", default="free", metavar="free|fixed:E",
+                   help="ancestral misidentification rate: estimated ('free', default; "
+                        "unfolded spectra only) or fixed, e.g. fixed:0")
+    p.add_argument("--equilibrium", action="store_true",
+                   help="no demographic nuisance parameters (all r_i = 1)")
+    p.add_argument("--bands", default="0,1,10,100", metavar="EDGES",
+                   help="band edges on |Ne*s| (default %(default)s; the last band is open)")
+    p.add_argument("--populations", metavar="P,...",
+                   help="fit only these populations (default: all)")
+    p.add_argument("--label", action="append", metavar="FILE=NAME",
+                   help="prefix the populations of FILE with NAME/ (repeatable)")
+    p.add_argument("-o", "--output", required=True, help="fit file (JSON)")
+    p.add_argument("--bands-tsv", help="band table (TSV) of the AIC-best models")
+    b = p.add_argument_group("bootstrap")
+    b.add_argument("--bootstrap", type=int, default=0, metavar="B",
+                   help="block-bootstrap replicates (default 0: none)")
+    b.add_argument("--level", type=float, default=0.95,
+                   help="confidence level of percentile intervals (default 0.95)")
+    b.add_argument("--seed", type=int, default=1, help="random seed (default 1)")
+    b.add_argument("--workers", type=int, default=None,
+                   help="worker processes (default: the cores available)")
+    b.add_argument("--scheduler", metavar="ADDRESS",
+                   help="address of a dask.distributed scheduler to run replicates on")
+    add_common_arguments(p)
+    p.set_defaults(runner=run)
+
+
+def run(args: argparse.Namespace) -> int:
+    """Run ``driftband fit``."""
+    from ..fit.api import FitOptions, fit_population, pool_populations
+    from ..fit.io import fit_document, write_bands_tsv, write_fit_json
+    from ..fit.models import parse_models
+    from ..prf.dfe import DfeExpectation
+    from ..spectra.io import read_spectra
+
+    check_outputs([args.output, args.bands_tsv], args.force)
+    edges = parse_bands(args.bands)
+    eps = parse_misorientation(args.misorientation)
+    models = tuple(parse_models(args.dfe, args.beneficial, edges))
+    if args.bootstrap < 0:
+        raise OptionError("--bootstrap must be >= 0")
+    if not 0.5 < args.level < 1.0:
+        raise OptionError("--level must lie between 0.5 and 1, e.g. 0.95")
+    labels = parse_kv(args.label, "--label")
+    unknown = [k for k in labels if k not in args.spectra]
+    if unknown:
+        raise OptionError(f"--label {unknown[0]}=...: {unknown[0]} is not one of the spectra "
+                          "files given")
+    options = FitOptions(args.neutral, args.selected, models, eps, args.equilibrium, edges)
+    sets = [(p, str(labels.get(p, "")), read_spectra(p)) for p in args.spectra]
+    wanted = args.populations.split(",") if args.populations else None
+    pairs = pool_populations(sets, options, wanted)
+    tables: dict[int, DfeExpectation] = {}
+    fits = []
+    for name, label, data in pairs:
+        ex = tables.setdefault(data.n, DfeExpectation(data.n))
+        pf = fit_population(data, options, name, ex)
+        pf.dataset = label
+        fits.append(pf)
+        best = pf.best
+        log.warning("%s: best model %s, share with |Ne*s| < %g: %.3f", name, best.model,
+                    edges[1], best.shares[0])
+    if args.bootstrap:
+        from ..fit.bootstrap import bootstrap_fits
+
+        pops = {(f"{lab}/{n}" if lab else n): pop
+                for _p, lab, ss in sets for n, pop in ss.populations.items()}
+        bootstrap_fits(fits, pops, options, args.bootstrap, seed=args.seed,
+                       level=args.level, workers=args.workers, scheduler=args.scheduler)
+    opts = options.to_dict() | {"bootstrap": args.bootstrap, "seed": args.seed,
+                                "level": args.level}
+    prov = provenance(opts, {"spectra": [file_record(p) for p in args.spectra]})
+    doc = fit_document(fits, opts, prov)
+    write_fit_json(doc, args.output, force=args.force)
+    if args.bands_tsv:
+        write_bands_tsv(doc, args.bands_tsv, force=args.force)
+    print(os.path.abspath(args.output), file=sys.stderr if args.quiet else sys.stdout)
+    return 0

@@ -1,0 +1,194 @@
+"""Block bootstrap of DFE fits (resampling genomic blocks; no I/O).
+
+The blocks of a population are resampled with replacement; the neutral and the selected
+class of a block travel together. Each replicate is refitted warm-started from the point
+estimate. Replicate block draws are made up front from ``numpy.random.SeedSequence(seed)``
+per population, so results do not depend on how many workers run the refits.
+"""
+
+from __future__ import annotations
+
+import logging
+import warnings
+import zlib
+from concurrent.futures import ProcessPoolExecutor
+from typing import Any
+
+import numpy as np
+
+from ..exceptions import DriftbandWarning, InputError
+from ..prf.dfe import DfeExpectation
+from .adaptive import adaptive_summary
+from .api import FitOptions, PopulationFit
+from .likelihood import SpectrumPair
+from .mle import fit_model
+
+__all__ = ["MIN_BLOCKS", "bootstrap_fits", "percentile_interval", "resample_indices"]
+
+log = logging.getLogger("driftband")
+
+MIN_BLOCKS = 20
+
+
+def resample_indices(n_blocks: int, replicates: int, seed: int, stream: int = 0) -> np.ndarray:
+    """Block indices of each replicate, shape (replicates, n_blocks), reproducible.
+
+    Parameters
+    ----------
+    n_blocks : int
+    replicates : int
+    seed : int
+    stream : int
+        Separates populations (their draws are independent).
+    """
+    rng = np.random.default_rng(np.random.SeedSequence([seed, stream]))
+    return rng.integers(0, n_blocks, size=(replicates, n_blocks))
+
+
+def percentile_interval(values: np.ndarray, level: float = 0.95) -> tuple[float, float]:
+    """Percentile interval of bootstrap values (NaNs from failed refits dropped)."""
+    v = np.asarray(values, dtype=float)
+    v = v[np.isfinite(v)]
+    if v.size == 0:
+        return float("nan"), float("nan")
+    a = (1.0 - level) / 2.0
+    lo, hi = np.quantile(v, [a, 1.0 - a])
+    return float(lo), float(hi)
+
+
+def _block_arrays(pop, options: FitOptions) -> tuple[np.ndarray, np.ndarray, np.ndarray,
+                                                     np.ndarray]:
+    cn, cs = pop.classes[options.neutral], pop.classes[options.selected]
+    return cn.block_sfs, cs.block_sfs, cn.block_sites, cs.block_sites
+
+
+def _replicate_task(args) -> list[dict[str, Any]]:
+    """Refit one batch of replicates of one population (runs in a worker)."""
+    (n, folded, bn, bs, ln, ls, idx_batch, options, starts) = args
+    ex = DfeExpectation(n)
+    out = []
+    for idx in idx_batch:
+        counts = np.bincount(idx, minlength=bn.shape[0])
+        try:
+            data = SpectrumPair.from_arrays(n, folded, counts @ bn, counts @ bs,
+                                            float(counts @ ln), float(counts @ ls))
+        except InputError:
+            out.append({})
+            continue
+        rep = {}
+        for m in options.models:
+            with warnings.catch_warnings():
+                warnings.simplefilter("ignore")
+                f = fit_model(data, m, eps=options.eps, equilibrium=options.equilibrium,
+                              edges_nes=options.edges_nes, expectation=ex,
+                              starts=[starts[m.name]], stderr=False)
+            rep[m.name] = {"params": f.params, "eps": f.eps, "shares": f.shares.tolist(),
+                           "fixation_ratio": f.fixation_ratio, "theta": f.theta,
+                           "loglik": f.loglik, "success": f.success}
+            ad = adaptive_summary(data, f.fixation_ratio)
+            if ad is not None:
+                rep[m.name]["alpha_dfe"] = ad["alpha_dfe"]["alpha"]
+                rep[m.name]["omega_a"] = ad["alpha_dfe"]["omega_a"]
+                rep[m.name]["alpha_classic"] = ad["alpha_classic"]
+                rep[m.name]["alpha_asymptotic"] = ad["alpha_asymptotic"]["alpha"]
+        out.append(rep)
+    return out
+
+
+def _map(tasks: list, workers: int | None, scheduler: str | None) -> list:
+    if scheduler:
+        from .._parallel import dask_map
+
+        return dask_map(_replicate_task, tasks, scheduler)
+    if workers is None:
+        import os
+
+        workers = len(os.sched_getaffinity(0)) if hasattr(os, "sched_getaffinity") else (
+            os.cpu_count() or 1)
+    if workers <= 1 or len(tasks) <= 1:
+        return [_replicate_task(t) for t in tasks]
+    with ProcessPoolExecutor(max_workers=workers) as pool:
+        return list(pool.map(_replicate_task, tasks))
+
+
+def bootstrap_fits(fits: list[PopulationFit], pops: dict[str, Any], options: FitOptions,
+                   replicates: int, seed: int = 1, level: float = 0.95,
+                   workers: int | None = None, scheduler: str | None = None,
+                   batch: int = 10) -> None:
+    """Block-bootstrap every population fit in place (fills ``PopulationFit.bootstrap``).
+
+    Parameters
+    ----------
+    fits : list of PopulationFit
+        Point estimates (their ``x`` warm-start the refits).
+    pops : dict of str to PopulationSpectra
+        The per-block spectra of each population (by the names in ``fits``).
+    options : FitOptions
+    replicates : int
+    seed : int
+    level : float
+        Confidence level of the percentile intervals.
+    workers : int, optional
+        Local worker processes (default: available cores).
+    scheduler : str, optional
+        A dask.distributed scheduler address.
+    batch : int
+        Replicates per task.
+
+    Raises
+    ------
+    InputError
+        A population without per-block spectra (fewer than 2 blocks).
+    """
+    tasks, owners = [], []
+    for k, pf in enumerate(fits):
+        pop = pops[pf.population]
+        bn, bs, ln, ls = _block_arrays(pop, options)
+        nb = bn.shape[0]
+        if nb < 2:
+            raise InputError(f"population {pf.population!r}: the spectra have {nb} block; "
+                             "a block bootstrap needs per-block spectra (from 'driftband "
+                             "spectra' or 'driftband simulate')")
+        if nb < MIN_BLOCKS:
+            warnings.warn(f"population {pf.population!r}: only {nb} blocks; bootstrap "
+                          f"intervals from fewer than {MIN_BLOCKS} blocks are unreliable",
+                          DriftbandWarning, stacklevel=2)
+        # Populations of one dataset share genomic blocks: resample them jointly (paired),
+        # so that between-population comparisons keep the covariance of shared regions.
+        stream = zlib.crc32(pf.dataset.encode())
+        idx = resample_indices(nb, replicates, seed, stream)
+        starts = {name: f.x for name, f in pf.fits.items()}
+        for b0 in range(0, replicates, batch):
+            tasks.append((pf.data.n, pf.data.folded, bn, bs, ln, ls, idx[b0:b0 + batch],
+                          options, starts))
+            owners.append(k)
+    log.info("bootstrap: %d replicates x %d populations", replicates, len(fits))
+    results = _map(tasks, workers, scheduler)
+    per_pop: dict[int, list] = {}
+    for k, res in zip(owners, results):
+        per_pop.setdefault(k, []).extend(res)
+    for k, pf in enumerate(fits):
+        reps = per_pop.get(k, [])
+        models = {}
+        for name, f in pf.fits.items():
+            ok = [r[name] for r in reps if r and name in r]
+            shares = np.array([r["shares"] for r in ok]) if ok else np.empty((0, len(f.shares)))
+            params = {p: np.array([r["params"][p] for r in ok]) for p in f.params}
+            params["eps"] = np.array([r["eps"] for r in ok])
+            params["fixation_ratio"] = np.array([r["fixation_ratio"] for r in ok])
+            for key in ("alpha_dfe", "omega_a", "alpha_classic", "alpha_asymptotic"):
+                if ok and key in ok[0]:
+                    params[key] = np.array([r.get(key, np.nan) for r in ok], dtype=float)
+            models[name] = {
+                "replicates": len(ok),
+                "failed": int(replicates - len(ok) + sum(1 for r in ok if not r["success"])),
+                "params": {p: v.tolist() for p, v in params.items()},
+                "shares": shares.tolist(),
+                "params_ci": {p: list(percentile_interval(v, level)) for p, v in params.items()},
+                "shares_ci": [list(percentile_interval(shares[:, j], level))
+                              for j in range(shares.shape[1])],
+            }
+        pf.bootstrap = {"replicates": replicates, "blocks": int(pops[pf.population]
+                                                                .classes[options.neutral]
+                                                                .block_sfs.shape[0]),
+                        "seed": seed, "level": level, "models": models}

@@ -1,0 +1,284 @@
+r"""Poisson-random-field likelihood of a neutral and a selected spectrum (no I/O).
+
+Model (DESIGN §2). For polymorphic class :math:`i` of a sample of :math:`n` copies,
+
+.. math::
+
+    E[\xi^N_i] = \theta L_N\, r_i / i, \qquad
+    E[\xi^S_i] = \theta L_S\, r_i\, \bar g_i(\mathrm{DFE}),
+
+where :math:`\bar g_i` is the DFE-averaged expected count per :math:`\theta L`
+(Sawyer & Hartl 1992) and the :math:`r_i` (:math:`r_1 = 1`) are nuisance parameters that
+absorb demography and sampling in both classes alike (Eyre-Walker, Woolfit & Phelps
+2006). Ancestral misidentification mixes true class :math:`i` into observed
+:math:`n - i`: observed :math:`(1-\varepsilon) r_i E_i + \varepsilon r_{n-i} E_{n-i}`.
+Folded spectra use :math:`\eta_j = E_j + E_{n-j}` with one nuisance factor per folded
+class. The log-likelihood is Poisson over the polymorphic entries.
+
+Writing :math:`c_i = \theta r_i`, the :math:`c_i` are profiled out: in closed form
+without misorientation (then the profile is a binomial likelihood of the selected share
+of the polymorphisms in each class), by Newton steps over the independent pairs
+:math:`(i, n-i)` with it. Under equilibrium (all :math:`r_i = 1`) only :math:`\theta` is profiled.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+from scipy.special import gammaln, xlogy
+
+from ..exceptions import InputError
+from ..prf.dfe import DfeExpectation
+
+__all__ = ["SpectrumPair", "profile_counts", "poisson_loglik"]
+
+
+@dataclass
+class SpectrumPair:
+    """The data of one population: polymorphic entries of the neutral and selected class.
+
+    Attributes
+    ----------
+    n : int
+        Gene copies.
+    folded : bool
+    neutral, selected : ndarray of float, shape (m,)
+        Counts of polymorphic classes: i = 1..n−1 (unfolded) or j = 1..n//2 (folded).
+    sites_neutral, sites_selected : float
+        Callable sites L_N and L_S.
+    fixed_neutral, fixed_selected : float or None
+        Entry n (fixed derived in the sample) of unfolded spectra: divergence counts.
+    """
+
+    n: int
+    folded: bool
+    neutral: np.ndarray
+    selected: np.ndarray
+    sites_neutral: float
+    sites_selected: float
+    fixed_neutral: float | None = None
+    fixed_selected: float | None = None
+
+    @classmethod
+    def from_population(cls, pop, neutral: str = "4fold", selected: str = "0fold",
+                        path: str | None = None) -> SpectrumPair:
+        """Take the two classes of a :class:`~driftband.spectra.PopulationSpectra`.
+
+        Raises
+        ------
+        InputError
+            A missing class, n < 4, no callable sites, an all-zero selected spectrum.
+        """
+        for c in (neutral, selected):
+            if c not in pop.classes:
+                raise InputError(f"population {pop.name!r} has no class {c!r} (it has "
+                                 f"{', '.join(sorted(pop.classes)) or 'none'}); choose with "
+                                 "--neutral/--selected", path)
+        if pop.n < 4:
+            raise InputError(f"population {pop.name!r}: n = {pop.n} gene copies; a fit "
+                             "needs n >= 4", path)
+        cn, cs = pop.classes[neutral], pop.classes[selected]
+        return cls.from_arrays(pop.n, pop.folded, cn.sfs, cs.sfs, cn.sites, cs.sites,
+                               name=pop.name, path=path)
+
+    @classmethod
+    def from_arrays(cls, n: int, folded: bool, neutral_sfs, selected_sfs, sites_neutral,
+                    sites_selected, name: str = "", path: str | None = None) -> SpectrumPair:
+        """Build from full spectra (length n+1, or n//2+1 when folded)."""
+        nsfs = np.asarray(neutral_sfs, dtype=float)
+        ssfs = np.asarray(selected_sfs, dtype=float)
+        hi = n // 2 + 1 if folded else n
+        xn, xs = nsfs[1:hi], ssfs[1:hi]
+        who = f"population {name!r}" if name else "spectra"
+        for label, x, L in (("neutral", xn, sites_neutral), ("selected", xs, sites_selected)):
+            if L <= 0:
+                raise InputError(f"{who}: the {label} class has no callable sites", path)
+            if x.sum() <= 0:
+                raise InputError(f"{who}: the {label} spectrum has no polymorphic sites; "
+                                 "nothing to fit", path)
+        fixed = (None, None) if folded else (float(nsfs[n]), float(ssfs[n]))
+        return cls(n, folded, xn, xs, float(sites_neutral), float(sites_selected), *fixed)
+
+    @property
+    def m(self) -> int:
+        """Number of polymorphic classes."""
+        return self.neutral.size
+
+
+def poisson_loglik(obs: np.ndarray, lam: np.ndarray) -> float:
+    """Full Poisson log-likelihood Σ x log λ − λ − log x! (0·log 0 = 0)."""
+    return float(np.sum(xlogy(obs, lam) - lam - gammaln(obs + 1.0)))
+
+
+def _newton_pairs(xn, xs, a, b, eps, c0, tol=1e-13, max_iter=100):
+    """Maximise the Poisson likelihood over c with misorientation, pair by pair.
+
+    True classes i and n−i share observations only with each other, so the profile splits
+    into independent two-parameter problems (u = c_i, v = c_{n−i}). Each is concave in
+    (u, v) (the expectations are linear in them); damped Newton steps keep u, v > 0.
+    The middle class of an even n has the closed form (x^N + x^S)/(a + b).
+    """
+    m = a.size
+    h = m // 2
+    lo, hi = np.arange(h), m - 1 - np.arange(h)
+    c = c0.copy()
+    if m % 2:
+        j = h
+        c[j] = (xn[j] + xs[j]) / (a[j] + b[j])
+    # Observations of a pair: rows (neutral at i, selected at i, neutral at n−i, selected
+    # at n−i); columns u, v: derivatives of the expectations.
+    du = np.stack([(1 - eps) * a[lo], (1 - eps) * b[lo], eps * a[lo], eps * b[lo]])
+    dv = np.stack([eps * a[hi], eps * b[hi], (1 - eps) * a[hi], (1 - eps) * b[hi]])
+    x = np.stack([xn[lo], xs[lo], xn[hi], xs[hi]])
+    u, v = c[lo].copy(), c[hi].copy()
+    tiny = 1e-300
+    for _ in range(max_iter):
+        lam = du * u + dv * v
+        with np.errstate(divide="ignore", invalid="ignore"):
+            r = np.where(lam > 0, x / lam, 0.0)
+            w = np.where(lam > 0, x / lam**2, 0.0)
+        gu = np.sum((r - 1) * du, axis=0)
+        gv = np.sum((r - 1) * dv, axis=0)
+        huu = -np.sum(w * du * du, axis=0)
+        hvv = -np.sum(w * dv * dv, axis=0)
+        huv = -np.sum(w * du * dv, axis=0)
+        det = huu * hvv - huv**2
+        ok = det > 0
+        su = np.where(ok, -(hvv * gu - huv * gv) / np.where(ok, det, 1.0), 0.0)
+        sv = np.where(ok, -(huu * gv - huv * gu) / np.where(ok, det, 1.0), 0.0)
+        # Degenerate pairs (no counts on one side): fall back to one EM-like update.
+        bad = ~ok
+        if np.any(bad):
+            tot = (du + dv).sum(axis=0)
+            su = np.where(bad, (x * du * u / np.maximum(lam, tiny)).sum(0) / tot - u, su)
+            sv = np.where(bad, (x * dv * v / np.maximum(lam, tiny)).sum(0) / tot - v, sv)
+        # Largest step in (0, 1] keeping u, v positive (at most 0.9 of the way to zero).
+        with np.errstate(divide="ignore", invalid="ignore"):
+            au = np.where(su < 0, -0.9 * u / su, np.inf)
+            av = np.where(sv < 0, -0.9 * v / sv, np.inf)
+        step = np.minimum(1.0, np.minimum(au, av))
+        nu, nv = u + step * su, v + step * sv
+        done = np.all(np.abs(nu - u) <= tol * np.maximum(nu, tiny)) and np.all(
+            np.abs(nv - v) <= tol * np.maximum(nv, tiny))
+        u, v = np.maximum(nu, 0.0), np.maximum(nv, 0.0)
+        if done:
+            break
+    c[lo], c[hi] = u, v
+    return c
+
+
+def profile_counts(data: SpectrumPair, gbar: np.ndarray, eps: float = 0.0,
+                   equilibrium: bool = False, c0: np.ndarray | None = None,
+                   ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Profile out θ·r_i; return ``(c, lam_neutral, lam_selected)``.
+
+    Parameters
+    ----------
+    data : SpectrumPair
+    gbar : ndarray, shape (n−1,)
+        DFE-averaged expected counts per θL for i = 1..n−1 (unfolded classes).
+    eps : float
+        Ancestral misidentification rate (ignored for folded data).
+    equilibrium : bool
+        All r_i = 1: only θ is free.
+    c0 : ndarray, optional
+        Starting values of the Newton iteration (default: the ε = 0 profile).
+
+    Returns
+    -------
+    c : ndarray, shape (m,)
+        θ·r_i per (true) class.
+    lam_neutral, lam_selected : ndarray, shape (m,)
+        Expected observed counts.
+    """
+    n = data.n
+    i = np.arange(1, n)
+    a_full = data.sites_neutral / i
+    b_full = data.sites_selected * gbar
+    if data.folded:
+        h = n // 2
+        a = a_full[:h] + a_full[::-1][:h]
+        b = b_full[:h] + b_full[::-1][:h]
+        if n % 2 == 0:
+            a[-1], b[-1] = a_full[h - 1], b_full[h - 1]
+        eps = 0.0
+    else:
+        a, b = a_full, b_full
+    xn, xs = data.neutral, data.selected
+    if eps == 0.0:
+        if equilibrium:
+            c = np.full(a.size, (xn.sum() + xs.sum()) / (a.sum() + b.sum()))
+        else:
+            c = (xn + xs) / (a + b)
+        return c, c * a, c * b
+    ra, rb = a[::-1], b[::-1]
+    if equilibrium:
+        na = (1 - eps) * a + eps * ra
+        nb = (1 - eps) * b + eps * rb
+        c = np.full(a.size, (xn.sum() + xs.sum()) / (na.sum() + nb.sum()))
+        return c, c * na, c * nb
+    if c0 is None or c0.shape != a.shape:
+        c0 = np.maximum((xn + xs) / (a + b), 1e-300)
+    c = _newton_pairs(xn, xs, a, b, eps, c0)
+    rc = c[::-1]
+    return c, (1 - eps) * c * a + eps * rc * ra, (1 - eps) * c * b + eps * rc * rb
+
+
+class Objective:
+    """Negative profile log-likelihood of one population for one DFE model.
+
+    Parameters
+    ----------
+    data : SpectrumPair
+    model : DfeModel
+    eps : float or None
+        Fixed misorientation rate, or None to estimate it (unfolded data only).
+    equilibrium : bool
+    """
+
+    def __init__(self, data: SpectrumPair, model, eps: float | None = 0.0,
+                 equilibrium: bool = False, expectation: DfeExpectation | None = None):
+        self.data = data
+        self.model = model
+        self.free_eps = eps is None and not data.folded
+        self.eps = 0.0 if (eps is None or data.folded) else float(eps)
+        self.equilibrium = equilibrium
+        self.expect = expectation or DfeExpectation(data.n)
+        self.n_eval = 0
+
+    @property
+    def dim(self) -> int:
+        """Length of the unconstrained vector (DFE parameters, then logit ε if free)."""
+        return self.model.n_free + (1 if self.free_eps else 0)
+
+    def bounds(self) -> list[tuple[float, float]]:
+        """Bounds of the unconstrained vector (ε in [1e−6, 0.5))."""
+        b = self.model.bounds()
+        if self.free_eps:
+            b = b + [(-13.8, -0.01)]
+        return b
+
+    def split(self, x: np.ndarray) -> tuple[np.ndarray, float]:
+        """DFE part and ε of an unconstrained vector."""
+        x = np.asarray(x, dtype=float)
+        if self.free_eps:
+            return x[:-1], float(1.0 / (1.0 + np.exp(-x[-1])))
+        return x, self.eps
+
+    def evaluate(self, x: np.ndarray):
+        """``(loglik, c, lam_neutral, lam_selected, gbar)`` at ``x``."""
+        xd, eps = self.split(x)
+        dfe = self.model.to_dfe(xd)
+        gbar = self.expect.mean_g(dfe)
+        c, ln, ls = profile_counts(self.data, gbar, eps, self.equilibrium)
+        ll = poisson_loglik(self.data.neutral, ln) + poisson_loglik(self.data.selected, ls)
+        return ll, c, ln, ls, gbar
+
+    def __call__(self, x: np.ndarray) -> float:
+        self.n_eval += 1
+        try:
+            ll = self.evaluate(x)[0]
+        except (FloatingPointError, ValueError, ZeroDivisionError):
+            return 1e300
+        return -ll if np.isfinite(ll) else 1e300

@@ -1,0 +1,246 @@
+"""Maximum-likelihood fits of DFE models to one population (no I/O).
+
+Multi-start L-BFGS-B on the unconstrained scale, polished by Nelder–Mead from the best
+point; convergence is judged by the optimiser's own flag *and* by agreement of the best
+starts, and is reported, never hidden (a :class:`~driftband.exceptions.ConvergenceWarning`
+is issued for a fit that did not converge). Standard errors come from a central-difference
+Hessian of the profile log-likelihood, mapped to the natural scale by the delta method.
+"""
+
+from __future__ import annotations
+
+import warnings
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+from scipy import optimize
+
+from ..exceptions import ConvergenceWarning
+from ..prf.dfe import DfeExpectation, band_shares, mean_fixation_ratio
+from .likelihood import Objective, SpectrumPair
+from .models import DfeModel
+
+__all__ = ["DEFAULT_EDGES", "FitResult", "fit_model"]
+
+DEFAULT_EDGES = (0.0, 1.0, 10.0, 100.0)
+
+
+@dataclass
+class FitResult:
+    """A fitted DFE model for one population (scipy-style result object).
+
+    Attributes
+    ----------
+    population, model : str
+    params : dict of str to float
+        DFE parameters on the natural scale (``shape``, ``mean_S`` = mean of −S, ...).
+    stderr : dict of str to float
+        Asymptotic standard errors (NaN where the Hessian is not usable).
+    eps : float
+        Ancestral misidentification rate (estimated or fixed).
+    theta : float
+        θ per site (θ·r_1 with r_1 = 1) from the profile.
+    nuisance : ndarray
+        r_i per polymorphic class (all ones under equilibrium).
+    loglik : float
+        Poisson log-likelihood at the estimate (full, including constants).
+    n_params : int
+        Free parameters: DFE, θ, the r_i (i ≥ 2) and ε when estimated.
+    aic : float
+    success : bool
+    message : str
+    band_edges : tuple of float
+        Edges on |Ne·s|.
+    shares : ndarray
+        Share of new selected-class mutations in each |Ne·s| band.
+    """
+
+    population: str
+    model: str
+    params: dict[str, float]
+    stderr: dict[str, float]
+    eps: float
+    eps_free: bool
+    theta: float
+    nuisance: np.ndarray
+    loglik: float
+    n_params: int
+    aic: float
+    success: bool
+    message: str
+    band_edges: tuple[float, ...]
+    shares: np.ndarray
+    fixation_ratio: float
+    observed_neutral: np.ndarray
+    observed_selected: np.ndarray
+    expected_neutral: np.ndarray
+    expected_selected: np.ndarray
+    x: np.ndarray = field(repr=False, default=None)
+    n_starts: int = 0
+    n_eval: int = 0
+    equilibrium: bool = False
+
+    def residuals(self) -> dict[str, np.ndarray]:
+        """Pearson residuals (obs − exp)/√exp of both classes."""
+        def r(o, e):
+            with np.errstate(divide="ignore", invalid="ignore"):
+                return np.where(e > 0, (o - e) / np.sqrt(e), 0.0)
+        return {"neutral": r(self.observed_neutral, self.expected_neutral),
+                "selected": r(self.observed_selected, self.expected_selected)}
+
+    def neutral_share(self) -> float:
+        """Share of new selected-class mutations with |Ne·s| below the first inner edge."""
+        return float(self.shares[0])
+
+    def to_dict(self) -> dict[str, Any]:
+        """JSON-ready dictionary."""
+        res = self.residuals()
+        return {
+            "population": self.population, "model": self.model,
+            "params": self.params, "stderr": self.stderr,
+            "eps": self.eps, "eps_free": self.eps_free, "theta": self.theta,
+            "nuisance": self.nuisance.tolist(), "equilibrium": self.equilibrium,
+            "loglik": self.loglik, "n_params": self.n_params, "aic": self.aic,
+            "success": self.success, "message": self.message,
+            "band_edges": list(self.band_edges), "shares": self.shares.tolist(),
+            "fixation_ratio": self.fixation_ratio,
+            "observed": {"neutral": self.observed_neutral.tolist(),
+                         "selected": self.observed_selected.tolist()},
+            "expected": {"neutral": self.expected_neutral.tolist(),
+                         "selected": self.expected_selected.tolist()},
+            "pearson_residuals": {k: v.tolist() for k, v in res.items()},
+            "x": None if self.x is None else np.asarray(self.x).tolist(),
+            "optimizer": {"starts": self.n_starts, "evaluations": self.n_eval},
+        }
+
+
+def _hessian(f, x, bounds, h=1e-4):
+    """Central-difference Hessian of ``f`` at ``x`` (steps shrunk near the bounds)."""
+    k = x.size
+    H = np.empty((k, k))
+    steps = np.full(k, h)
+    f0 = f(x)
+    for a in range(k):
+        for b in range(a, k):
+            ea = np.zeros(k)
+            eb = np.zeros(k)
+            ea[a] = steps[a]
+            eb[b] = steps[b]
+            if a == b:
+                v = (f(x + ea) - 2 * f0 + f(x - ea)) / steps[a] ** 2
+            else:
+                v = (f(x + ea + eb) - f(x + ea - eb) - f(x - ea + eb) + f(x - ea - eb)) / (
+                    4 * steps[a] * steps[b])
+            H[a, b] = H[b, a] = v
+    return H
+
+
+def _natural_vector(obj: Objective, x: np.ndarray) -> np.ndarray:
+    xd, eps = obj.split(x)
+    vals = list(obj.model.natural(xd).values())
+    if obj.free_eps:
+        vals.append(eps)
+    return np.array(vals)
+
+
+def _stderr(obj: Objective, x: np.ndarray) -> dict[str, float]:
+    names = list(obj.model.param_names) + (["eps"] if obj.free_eps else [])
+    nan = {k: float("nan") for k in names}
+    try:
+        H = _hessian(obj, x, obj.bounds())
+        if not np.all(np.isfinite(H)):
+            return nan
+        cov = np.linalg.inv(H)
+        if np.any(np.diag(cov) < 0):
+            return nan
+        # Delta method: Jacobian of the natural parameters wrt the unconstrained vector.
+        J = np.empty((len(names), x.size))
+        for j in range(x.size):
+            d = np.zeros(x.size)
+            d[j] = 1e-6
+            J[:, j] = (_natural_vector(obj, x + d) - _natural_vector(obj, x - d)) / 2e-6
+        var = np.einsum("ij,jk,ik->i", J, cov, J)
+        return {k: float(np.sqrt(v)) if v >= 0 else float("nan") for k, v in zip(names, var)}
+    except np.linalg.LinAlgError:
+        return nan
+
+
+def fit_model(data: SpectrumPair, model: DfeModel, *, population: str = "",
+              eps: float | None = 0.0, equilibrium: bool = False,
+              edges_nes: tuple[float, ...] = DEFAULT_EDGES,
+              expectation: DfeExpectation | None = None,
+              starts: list[np.ndarray] | None = None, stderr: bool = True) -> FitResult:
+    """Fit one DFE model to one population by maximum likelihood.
+
+    Parameters
+    ----------
+    data : SpectrumPair
+        Neutral and selected spectra.
+    model : DfeModel
+    population : str
+        Label carried into the result.
+    eps : float or None
+        Fixed ancestral misidentification rate, or None to estimate it (unfolded only).
+    equilibrium : bool
+        Fix all nuisance factors r_i = 1.
+    edges_nes : tuple of float
+        Band edges on |Ne·s| for the reported shares.
+    expectation : DfeExpectation, optional
+        Reuse a per-n table.
+    starts : list of ndarray, optional
+        Starting points (unconstrained); default: the model's grid (a bootstrap passes
+        the point estimate to warm-start).
+    stderr : bool
+        Compute standard errors (skip in bootstrap replicates).
+
+    Returns
+    -------
+    FitResult
+    """
+    obj = Objective(data, model, eps=eps, equilibrium=equilibrium, expectation=expectation)
+    bounds = obj.bounds()
+    if starts is None:
+        starts = model.starts()
+        if obj.free_eps:
+            starts = [np.append(s, e) for s in starts for e in (np.log(0.02 / 0.98),)]
+    lo = np.array([b[0] for b in bounds])
+    hi = np.array([b[1] for b in bounds])
+    runs = []
+    for s in starts:
+        s = np.clip(np.asarray(s, dtype=float), lo, hi)
+        r = optimize.minimize(obj, s, method="L-BFGS-B", bounds=bounds,
+                              options={"maxiter": 500, "ftol": 1e-12, "gtol": 1e-7})
+        runs.append(r)
+    runs.sort(key=lambda r: r.fun)
+    best = runs[0]
+    # Polish the best start with a derivative-free method (robust to flat directions).
+    pol = optimize.minimize(obj, best.x, method="Nelder-Mead",
+                            options={"xatol": 1e-7, "fatol": 1e-9, "maxiter": 4000})
+    xbest = np.clip(pol.x, lo, hi) if pol.fun <= best.fun else best.x
+    fbest = min(pol.fun, best.fun)
+    agree = sum(1 for r in runs if r.fun - fbest < 1e-3)
+    success = bool(np.isfinite(fbest) and fbest < 1e299 and (best.success or pol.success)
+                   and (agree >= 2 or len(runs) == 1))
+    msg = (f"{agree} of {len(runs)} starts reached the best log-likelihood; "
+           f"optimiser: {best.message if isinstance(best.message, str) else best.message!s}")
+    ll, c, ln, ls, _gbar = obj.evaluate(xbest)
+    xd, e = obj.split(xbest)
+    dfe = model.to_dfe(xd)
+    nuis = c / c[0] if c[0] > 0 else np.full_like(c, np.nan)
+    k_nuis = 1 if equilibrium else data.m
+    n_params = model.n_free + k_nuis + (1 if obj.free_eps else 0)
+    se = _stderr(obj, xbest) if stderr else {}
+    if not success:
+        warnings.warn(f"{population or 'population'} / {model.name}: the fit did not "
+                      f"converge ({msg})", ConvergenceWarning, stacklevel=2)
+    return FitResult(
+        population=population, model=model.name, params=model.natural(xd),
+        stderr=se, eps=float(e), eps_free=obj.free_eps,
+        theta=float(c[0]), nuisance=nuis, loglik=float(ll), n_params=n_params,
+        aic=float(2 * n_params - 2 * ll), success=success, message=msg,
+        band_edges=tuple(edges_nes), shares=band_shares(dfe, edges_nes),
+        fixation_ratio=float(mean_fixation_ratio(dfe)),
+        observed_neutral=data.neutral.copy(), observed_selected=data.selected.copy(),
+        expected_neutral=ln, expected_selected=ls, x=xbest, n_starts=len(runs),
+        n_eval=obj.n_eval, equilibrium=equilibrium)

@@ -1,0 +1,158 @@
+"""DFE model specifications for the fit: parameters, transforms and starting points.
+
+A :class:`DfeModel` maps an unconstrained vector (what the optimiser sees) to a DFE
+object of :mod:`driftband.prf.dfe` and back. Transforms: log for positive parameters,
+softmax for band masses, logit for probabilities.
+"""
+
+from __future__ import annotations
+
+import itertools
+from dataclasses import dataclass
+
+import numpy as np
+
+from ..exceptions import OptionError
+from ..prf.dfe import DiscreteDfe, GammaDfe, LognormalDfe, WithBeneficial
+
+__all__ = ["FAMILIES", "DfeModel", "parse_models"]
+
+FAMILIES = ("gamma", "lognormal", "discrete")
+
+# Bounds on the unconstrained scale keep the optimiser in a numerically sane region:
+# shape in [0.01, 100], mean |S| in [1e-4, 1e7], lognormal sigma in [0.01, 30], S_b in
+# [0.01, 1e4], p_b in [1e-6, 0.5].
+_LOG = np.log
+
+
+def _logit(p: float) -> float:
+    return float(np.log(p) - np.log1p(-p))
+
+
+def _expit(x: float) -> float:
+    return float(1.0 / (1.0 + np.exp(-x)))
+
+
+@dataclass(frozen=True)
+class DfeModel:
+    """One DFE family, optionally with a beneficial point mass.
+
+    Parameters
+    ----------
+    family : {"gamma", "lognormal", "discrete"}
+    beneficial : bool
+        Add a fraction ``p_b`` of beneficial mutations at ``S = S_b > 0``.
+    edges_nes : tuple of float
+        Band edges on |Ne·s| for the discrete family (first edge 0).
+    """
+
+    family: str
+    beneficial: bool = False
+    edges_nes: tuple[float, ...] = (0.0, 1.0, 10.0, 100.0)
+
+    def __post_init__(self) -> None:
+        if self.family not in FAMILIES:
+            raise OptionError(f"unknown DFE family {self.family!r}; choose from "
+                              f"{', '.join(FAMILIES)}")
+
+    @property
+    def name(self) -> str:
+        """Model label, e.g. ``gamma`` or ``gamma+beneficial``."""
+        return self.family + ("+beneficial" if self.beneficial else "")
+
+    @property
+    def param_names(self) -> tuple[str, ...]:
+        """Names of the DFE parameters, in the order of the vector."""
+        if self.family == "gamma":
+            base = ("shape", "mean_S")
+        elif self.family == "lognormal":
+            base = ("log_mean", "log_sd")
+        else:
+            base = tuple(f"mass_{k}" for k in range(len(self.edges_nes)))
+        return base + (("p_b", "S_b") if self.beneficial else ())
+
+    @property
+    def n_free(self) -> int:
+        """Number of free DFE parameters (masses sum to one)."""
+        k = 2 if self.family != "discrete" else len(self.edges_nes) - 1
+        return k + (2 if self.beneficial else 0)
+
+    def bounds(self) -> list[tuple[float, float]]:
+        """Bounds on the unconstrained vector."""
+        if self.family == "gamma":
+            b = [(_LOG(0.01), _LOG(100.0)), (_LOG(1e-4), _LOG(1e7))]
+        elif self.family == "lognormal":
+            b = [(-12.0, 20.0), (_LOG(0.01), _LOG(30.0))]
+        else:
+            b = [(-30.0, 30.0)] * (len(self.edges_nes) - 1)
+        if self.beneficial:
+            b += [(_logit(1e-6), _logit(0.5)), (_LOG(0.01), _LOG(1e4))]
+        return b
+
+    def to_dfe(self, x: np.ndarray):
+        """DFE object for an unconstrained vector ``x``."""
+        x = np.asarray(x, dtype=float)
+        k = self.n_free - (2 if self.beneficial else 0)
+        base_x, ben_x = x[:k], x[k:]
+        if self.family == "gamma":
+            base = GammaDfe(shape=float(np.exp(base_x[0])), mean=float(np.exp(base_x[1])))
+        elif self.family == "lognormal":
+            base = LognormalDfe(mu=float(base_x[0]), sigma=float(np.exp(base_x[1])))
+        else:
+            z = np.concatenate([[0.0], base_x])
+            w = np.exp(z - z.max())
+            base = DiscreteDfe(masses=tuple(float(v) for v in w / w.sum()),
+                               edges_nes=tuple(self.edges_nes))
+        if not self.beneficial:
+            return base
+        return WithBeneficial(base, p_b=_expit(ben_x[0]), s_b=float(np.exp(ben_x[1])))
+
+    def natural(self, x: np.ndarray) -> dict[str, float]:
+        """Natural-scale parameters (named) for an unconstrained vector."""
+        d = self.to_dfe(x)
+        base = d.base if self.beneficial else d
+        if self.family == "gamma":
+            vals = [base.shape, base.mean]
+        elif self.family == "lognormal":
+            vals = [base.mu, base.sigma]
+        else:
+            vals = list(base.masses)
+        if self.beneficial:
+            vals += [d.p_b, d.s_b]
+        return dict(zip(self.param_names, (float(v) for v in vals)))
+
+    def starts(self) -> list[np.ndarray]:
+        """Starting points of the multi-start search (unconstrained scale)."""
+        if self.family == "gamma":
+            base = [np.log([b, m]) for b, m in itertools.product((0.2, 0.6, 2.0),
+                                                                 (5.0, 200.0, 5000.0))]
+        elif self.family == "lognormal":
+            base = [np.array([mu, np.log(sd)]) for mu, sd in itertools.product(
+                (0.0, 4.0, 8.0), (1.0, 3.0))]
+        else:
+            k = len(self.edges_nes) - 1
+            base = [np.zeros(k)]
+            for j in range(k):
+                e = np.full(k, -1.0)
+                e[j] = 1.5
+                base.append(e)
+        if not self.beneficial:
+            return base
+        ben = [np.array([_logit(0.01), np.log(10.0)]), np.array([_logit(0.05), np.log(100.0)])]
+        return [np.concatenate([b, e]) for b in base for e in ben]
+
+
+def parse_models(spec: str, beneficial: bool = False,
+                 edges_nes: tuple[float, ...] = (0.0, 1.0, 10.0, 100.0)) -> list[DfeModel]:
+    """Parse ``--dfe gamma,lognormal,...`` (``NAME+beneficial`` adds one model each)."""
+    out = []
+    for tok in (t.strip() for t in spec.split(",")):
+        if not tok:
+            continue
+        fam, _, extra = tok.partition("+")
+        if extra not in ("", "beneficial"):
+            raise OptionError(f"--dfe {tok!r}: only '+beneficial' may follow a family name")
+        out.append(DfeModel(fam, bool(extra) or beneficial, tuple(edges_nes)))
+    if not out:
+        raise OptionError("--dfe names no model")
+    return out
