@@ -5,7 +5,6 @@ from __future__ import annotations
 import argparse
 import logging
 import os
-import sys
 
 from .._io import check_outputs, file_record, provenance
 from ..exceptions import OptionError
@@ -145,5 +144,6 @@ def run(args: argparse.Namespace) -> int:
     write_fit_json(doc, args.output, force=args.force)
     if args.bands_tsv:
         write_bands_tsv(doc, args.bands_tsv, force=args.force)
-    print(os.path.abspath(args.output), file=sys.stderr if args.quiet else sys.stdout)
+    if not args.quiet:
+        print(os.path.abspath(args.output))
     return 0

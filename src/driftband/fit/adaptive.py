@@ -75,10 +75,12 @@ def alpha_asymptotic(data: SpectrumPair, x_min: float = 0.1) -> dict[str, float]
     n = data.n
     dn, ds = float(data.fixed_selected or 0.0), float(data.fixed_neutral or 0.0)
     x = np.arange(1, n) / n
+    if dn <= 0:
+        return {"alpha": float("nan"), "fit": "none"}
     with np.errstate(divide="ignore", invalid="ignore"):
         ax = 1.0 - (ds / dn) * (data.selected / data.neutral)
     ok = np.isfinite(ax) & (x >= x_min) & (data.neutral > 0)
-    if dn <= 0 or ok.sum() < 3:
+    if ok.sum() < 3:
         return {"alpha": float("nan"), "fit": "none"}
     xs, ys = x[ok], ax[ok]
     w = np.sqrt(data.neutral[ok])

@@ -170,7 +170,8 @@ def fit_model(data: SpectrumPair, model: DfeModel, *, population: str = "",
               eps: float | None = 0.0, equilibrium: bool = False,
               edges_nes: tuple[float, ...] = DEFAULT_EDGES,
               expectation: DfeExpectation | None = None,
-              starts: list[np.ndarray] | None = None, stderr: bool = True) -> FitResult:
+              starts: list[np.ndarray] | None = None, stderr: bool = True,
+              n_local: int = 3) -> FitResult:
     """Fit one DFE model to one population by maximum likelihood.
 
     Parameters
@@ -193,6 +194,9 @@ def fit_model(data: SpectrumPair, model: DfeModel, *, population: str = "",
         the point estimate to warm-start).
     stderr : bool
         Compute standard errors (skip in bootstrap replicates).
+    n_local : int
+        Starting points refined by L-BFGS-B: the best ``n_local`` of the grid, each
+        screened by one evaluation.
 
     Returns
     -------
@@ -203,27 +207,33 @@ def fit_model(data: SpectrumPair, model: DfeModel, *, population: str = "",
     if starts is None:
         starts = model.starts()
         if obj.free_eps:
-            starts = [np.append(s, e) for s in starts for e in (np.log(0.02 / 0.98),)]
+            starts = [np.append(s, e) for s in starts for e in (np.log(0.01 / 0.99),)]
     lo = np.array([b[0] for b in bounds])
     hi = np.array([b[1] for b in bounds])
+    starts = [np.clip(np.asarray(s, dtype=float), lo, hi) for s in starts]
+    if len(starts) > n_local:
+        # Screen the grid of starting points by one evaluation each; refine the best few.
+        vals = np.array([obj(s) for s in starts])
+        starts = [starts[j] for j in np.argsort(vals, kind="stable")[:n_local]]
     runs = []
     for s in starts:
-        s = np.clip(np.asarray(s, dtype=float), lo, hi)
         r = optimize.minimize(obj, s, method="L-BFGS-B", bounds=bounds,
-                              options={"maxiter": 500, "ftol": 1e-12, "gtol": 1e-7})
+                              options={"maxiter": 500, "ftol": 1e-13, "gtol": 1e-8})
         runs.append(r)
     runs.sort(key=lambda r: r.fun)
     best = runs[0]
-    # Polish the best start with a derivative-free method (robust to flat directions).
-    pol = optimize.minimize(obj, best.x, method="Nelder-Mead",
-                            options={"xatol": 1e-7, "fatol": 1e-9, "maxiter": 4000})
-    xbest = np.clip(pol.x, lo, hi) if pol.fun <= best.fun else best.x
-    fbest = min(pol.fun, best.fun)
+    xbest, fbest, converged = best.x, best.fun, bool(best.success)
+    if not converged:
+        # Polish with a derivative-free method (robust to flat or kinked directions).
+        pol = optimize.minimize(obj, best.x, method="Nelder-Mead",
+                                options={"xatol": 1e-7, "fatol": 1e-9, "maxiter": 4000})
+        if pol.fun <= fbest:
+            xbest, fbest = np.clip(pol.x, lo, hi), pol.fun
+        converged = bool(pol.success)
     agree = sum(1 for r in runs if r.fun - fbest < 1e-3)
-    success = bool(np.isfinite(fbest) and fbest < 1e299 and (best.success or pol.success)
-                   and (agree >= 2 or len(runs) == 1))
-    msg = (f"{agree} of {len(runs)} starts reached the best log-likelihood; "
-           f"optimiser: {best.message if isinstance(best.message, str) else best.message!s}")
+    success = bool(np.isfinite(fbest) and fbest < 1e299 and converged)
+    msg = (f"{agree} of {len(runs)} refined starts reached the best log-likelihood; "
+           f"optimiser: {best.message!s}")
     ll, c, ln, ls, _gbar = obj.evaluate(xbest)
     xd, e = obj.split(xbest)
     dfe = model.to_dfe(xd)

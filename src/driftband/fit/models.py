@@ -124,11 +124,11 @@ class DfeModel:
     def starts(self) -> list[np.ndarray]:
         """Starting points of the multi-start search (unconstrained scale)."""
         if self.family == "gamma":
-            base = [np.log([b, m]) for b, m in itertools.product((0.2, 0.6, 2.0),
-                                                                 (5.0, 200.0, 5000.0))]
+            base = [np.log([b, m]) for b, m in itertools.product(
+                (0.15, 0.3, 0.6, 1.5), (2.0, 20.0, 200.0, 2000.0, 2e4))]
         elif self.family == "lognormal":
             base = [np.array([mu, np.log(sd)]) for mu, sd in itertools.product(
-                (0.0, 4.0, 8.0), (1.0, 3.0))]
+                (0.0, 2.0, 4.0, 6.0, 8.0), (0.5, 1.5, 3.0))]
         else:
             k = len(self.edges_nes) - 1
             base = [np.zeros(k)]
