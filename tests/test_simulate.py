@@ -526,7 +526,8 @@ def test_cli_writes_spectra_and_vcf(tmp_path, capsys):
     out = tmp_path / "cli.json"
     rc = main(["simulate", "--population", "lake:N=100,n=8", "--population",
                "spring:N=30,n=6", "--sites-0fold", "3000", "--sites-4fold", "1500",
-               "--blocks", "5", "--seed", "4", "--divergence-generations", "100",
+               "--blocks", "5", "--gene-codons", "50", "--intergenic", "2000",
+               "--seed", "4", "--divergence-generations", "100",
                "--dfe", "lognormal:mu=3,sigma=1", "--beneficial", "p=0.01,S=20",
                "--vcf", str(tmp_path / "cli"), "--outgroup", "sis:n=2", "--tsv",
                str(tmp_path / "cli.tsv"), "-o", str(out)])
@@ -537,6 +538,9 @@ def test_cli_writes_spectra_and_vcf(tmp_path, capsys):
     assert ss.provenance["simulation"]["dfe"]["family"] == "lognormal"
     for suffix in (".vcf.gz", ".vcf.gz.tbi", ".sites.bed", ".popmap.tsv"):
         assert (tmp_path / f"cli{suffix}").exists()
+    # Layout options: 3000 + 1500 sites in genes of <= 50 codons with 2 kb before each.
+    blocks = ss.blocks
+    assert sum(b.end - b.start for b in blocks) > 2000 * (3000 // 100)
     # A rerun refuses to overwrite, naming the file; --force redoes it identically.
     rc = main(["simulate", "--population", "lake:N=100,n=8", "--seed", "4", "-o", str(out)])
     assert rc == 2 and "use --force" in capsys.readouterr().err
@@ -617,3 +621,11 @@ def test_genome_needs_more_0fold_than_4fold_sites(tmp_path, capsys):
                "--genome", "-o", str(tmp_path / "g.json")])
     assert rc == 2 and "--genome" in capsys.readouterr().err
     assert list(tmp_path.iterdir()) == []
+
+
+def test_cli_short_burn_in_warns_in_one_line(tmp_path, capsys):
+    rc = main(["simulate", "--population", "a:N=50,n=4", "--sites", "100", "--blocks", "2",
+               "--burn-in", "10", "-o", str(tmp_path / "w.json")])
+    err = capsys.readouterr().err
+    assert rc == 0
+    assert err.count("\n") == 1 and "burn-in of 10 generations" in err

@@ -7,8 +7,9 @@ import logging
 import os
 import shlex
 import sys
+import warnings
 
-from ..exceptions import OptionError
+from ..exceptions import DriftbandWarning, OptionError
 from ._common import add_common_arguments, add_subcommand
 
 log = logging.getLogger("driftband")
@@ -95,6 +96,11 @@ def add_parser(subparsers) -> None:
                    help="equal blocks per class, the bootstrap units (default: 100)")
     g.add_argument("--chromosomes", type=int, default=4,
                    help="synthetic chromosomes of the layout (default: 4)")
+    g.add_argument("--gene-codons", type=int, default=300, metavar="CODONS",
+                   help="codons per gene at most, in the layout (default: 300)")
+    g.add_argument("--intergenic", type=int, default=300, metavar="BASES",
+                   help="non-coding bases before each gene (default: 300; raise it for a "
+                        "genome of realistic gene density)")
     g.add_argument("--seed", type=int, default=None,
                    help="random seed (default: drawn at random and recorded)")
     o = p.add_argument_group("outputs")
@@ -176,12 +182,17 @@ def run(args: argparse.Namespace) -> int:
     from .._io import check_outputs
     check_outputs(outputs, args.force)
     options = {k: v for k, v in vars(args).items() if k not in ("runner", "subcommand")}
-    study = sim.simulate_study(
-        pops, dfe, theta=args.theta, sites=sites, blocks=args.blocks,
-        reference_size=args.reference_size, burn_in=args.burn_in,
-        divergence_generations=args.divergence_generations, seed=args.seed,
-        chromosomes=args.chromosomes, options=options,
-        progress=None if args.quiet else _progress_printer())
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always", DriftbandWarning)
+        study = sim.simulate_study(
+            pops, dfe, theta=args.theta, sites=sites, blocks=args.blocks,
+            reference_size=args.reference_size, burn_in=args.burn_in,
+            divergence_generations=args.divergence_generations, seed=args.seed,
+            chromosomes=args.chromosomes, gene_codons=args.gene_codons,
+            intergenic=args.intergenic, options=options,
+            progress=None if args.quiet else _progress_printer())
+    for w in caught:                      # one line each on stderr
+        log.warning("warning: %s", w.message)
     written = sim.write_study(study, args.output, args.tsv, args.vcf, force=args.force,
                               **(vcf_opts if args.vcf is not None else {}))
     log.info("seed %d; wrote %s", study.seed, ", ".join(written.values()))

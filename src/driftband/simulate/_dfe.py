@@ -231,7 +231,7 @@ def band_shares(dfe: SimDFE, n_ref: float, n_pop: float,
             return float(stats.gamma.cdf(t, p["shape"], scale=p["mean"] / p["shape"]))
         if dfe.family == "lognormal":
             if p["sigma"] == 0:
-                return float(t >= math.exp(p["mu"]))
+                return float(t > math.exp(p["mu"]))
             return float(stats.lognorm.cdf(t, p["sigma"], scale=math.exp(p["mu"])))
         raise ValueError(dfe.family)  # point masses are handled below
 

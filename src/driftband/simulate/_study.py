@@ -273,7 +273,8 @@ def simulate_study(populations: Sequence[PopulationModel], dfe: SimDFE,
                    blocks: int = 100, reference_size: float | None = None,
                    burn_in: int | None = None, burn_in_factor: float = 10.0,
                    divergence_generations: int = 0, seed: int | None = None,
-                   chromosomes: int = 4, options: dict[str, Any] | None = None,
+                   chromosomes: int = 4, gene_codons: int = 300, intergenic: int = 300,
+                   options: dict[str, Any] | None = None,
                    progress: Callable[[str, int, int], None] | None = None
                    ) -> SimulatedStudy:
     """Simulate every population of a study and build its spectra.
@@ -307,6 +308,8 @@ def simulate_study(populations: Sequence[PopulationModel], dfe: SimDFE,
         Seed of every random stream (drawn at random and recorded if None).
     chromosomes : int
         Synthetic chromosomes of the layout.
+    gene_codons, intergenic : int
+        Layout: codons per gene (at most) and non-coding bases before each gene.
     options : dict, optional
         Recorded in the provenance.
     progress : callable(population, done, total), optional
@@ -334,6 +337,9 @@ def simulate_study(populations: Sequence[PopulationModel], dfe: SimDFE,
         if L < K:
             raise OptionError(f"--sites for {c}: {L} sites cannot fill {K} blocks "
                               "(lower --blocks or raise --sites)")
+    if chromosomes < 1 or gene_codons < 1 or intergenic < 3:
+        raise OptionError("--chromosomes and --gene-codons must be >= 1 and --intergenic "
+                          ">= 3 (room for each gene's stop codon)")
     if not (theta > 0 and math.isfinite(theta)):
         raise OptionError(f"--theta {theta}: must be a positive number")
     n_ref = float(reference_size) if reference_size is not None else \
@@ -388,7 +394,8 @@ def simulate_study(populations: Sequence[PopulationModel], dfe: SimDFE,
             "ancestral_size": band_shares(dfe, n_ref, p.ancestral_size, _EDGES),
         }
         samples.append(samp)
-    layout = make_layout((sites[CLASSES[0]], sites[CLASSES[1]]), K, chromosomes, CLASSES)
+    layout = make_layout((sites[CLASSES[0]], sites[CLASSES[1]]), K, chromosomes, CLASSES,
+                         gene_codons=gene_codons, spacer=intergenic)
     # Distinct sites for the variable sites of all populations, per class.
     srng = _seed_stream(seed, 1)
     site_index: dict[str, list[np.ndarray]] = {}
