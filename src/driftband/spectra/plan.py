@@ -96,10 +96,12 @@ def aggregate(keys: np.ndarray, weights: np.ndarray) -> np.ndarray:
     ndarray of int64, shape (u, q + 1)
         Unique key rows followed by their summed weight; rows with weight 0 are kept.
     """
-    keys = np.asarray(keys, dtype=np.int64).reshape(len(weights), -1)
+    keys = np.asarray(keys, dtype=np.int64)
     weights = np.asarray(weights, dtype=np.int64)
-    if keys.shape[0] == 0:
-        return np.zeros((0, keys.shape[1] + 1), np.int64)
+    if weights.size == 0:
+        q = keys.shape[1] if keys.ndim == 2 else 1
+        return np.zeros((0, q + 1), np.int64)
+    keys = keys.reshape(weights.size, -1)
     order = np.lexsort(keys.T[::-1])
     ks = keys[order]
     ws = weights[order]

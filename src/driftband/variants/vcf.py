@@ -25,7 +25,6 @@ import os
 import re
 import sys
 import tempfile
-import threading
 from collections.abc import Iterator, Sequence
 from dataclasses import dataclass, field
 
@@ -480,18 +479,14 @@ class _ParseError(Exception):
         self.index = index
 
 
-_VERBOSITY_LOCK = threading.Lock()
-
-
 @contextlib.contextmanager
 def _quiet_htslib():
     """Silence htslib's own stderr messages (errors are reported by driftband)."""
-    with _VERBOSITY_LOCK:
-        old = pysam.set_verbosity(0)
-        try:
-            yield
-        finally:
-            pysam.set_verbosity(old)
+    old = pysam.set_verbosity(0)
+    try:
+        yield
+    finally:
+        pysam.set_verbosity(old)
 
 
 def _pysam_parse(header_text: str, lines: list[bytes]) -> list:
@@ -784,6 +779,7 @@ class VcfSource:
 
     def _open_bcf(self, path: str | None = None) -> None:
         p = path or self.path
+        self._bcf_path = p
         try:
             with _quiet_htslib():
                 self._vf = pysam.VariantFile(p)
@@ -915,24 +911,17 @@ class VcfSource:
             if done:
                 return
 
-    def _fetch_bcf(self, chrom, start, end, n=2000):
+    def _fetch_bcf(self, chrom, start, end):
         if chrom not in self.index_chroms:
             return
-        recs = []
         with _quiet_htslib():
-            try:
-                for rec in self._vf.fetch(chrom, start, end):
-                    if rec.pos - 1 < start:
-                        continue
-                    recs.append(rec)
-                    if len(recs) >= n:
-                        yield RecordBatch(recs, self.path)
-                        recs = []
-            except OSError as err:
-                raise VcfFormatError(f"cannot read records of {chrom} ({err})",
-                                     self.path) from None
-        if recs:
-            yield RecordBatch(recs, self.path)
+            it = self._vf.fetch(chrom, start, end)
+        for b in _bcf_batches(it, self.path):
+            keep = np.flatnonzero(b.pos - 1 >= start)
+            if keep.size == len(b):
+                yield b
+            elif keep.size:
+                yield b.slice(int(keep[0]), len(b))
 
     def stream(self, batch_bytes: int = BATCH_BYTES) -> Iterator[VariantBatch]:
         """All records in file order, in per-chromosome batches; checks the sort order.
@@ -965,20 +954,15 @@ class VcfSource:
 
     def _stream_batches(self, batch_bytes):
         if self.kind == "bcf":
-            recs, chrom = [], None
-            with _quiet_htslib():
-                try:
-                    for rec in self._vf:
-                        if recs and (rec.chrom != chrom or len(recs) >= 2000):
-                            yield RecordBatch(recs, self.path)
-                            recs = []
-                        chrom = rec.chrom
-                        recs.append(rec)
-                except OSError as err:
-                    raise VcfFormatError(f"cannot read the BCF ({err}); truncated or "
-                                         "corrupt?", self.path) from None
-            if recs:
-                yield RecordBatch(recs, self.path)
+            try:
+                with _quiet_htslib():
+                    vf = pysam.VariantFile(self._bcf_path)  # a fresh handle: from the start
+            except (OSError, ValueError) as err:
+                raise VcfFormatError(f"cannot read this BCF ({err})", self.path) from None
+            try:
+                yield from _bcf_batches(iter(vf), self.path)
+            finally:
+                vf.close()
             return
         if self.stdin:
             fh, rest, close = self._stream_fh, self._stream_rest, False
@@ -997,6 +981,31 @@ class VcfSource:
         finally:
             if close:
                 fh.close()
+
+
+def _bcf_batches(it, path: str, n: int = 2000) -> Iterator[RecordBatch]:
+    """Per-chromosome batches of up to ``n`` pysam records from a record iterator."""
+    held = None
+    while True:
+        recs = [] if held is None else [held]
+        held = None
+        with _quiet_htslib():
+            try:
+                while len(recs) < n:
+                    rec = next(it)
+                    if recs and rec.chrom != recs[0].chrom:
+                        held = rec
+                        break
+                    recs.append(rec)
+            except StopIteration:
+                it = None
+            except OSError as err:
+                raise VcfFormatError(f"cannot read the BCF ({err}); truncated or corrupt?",
+                                     path) from None
+        if recs:
+            yield RecordBatch(recs, path)
+        if it is None:
+            return
 
 
 class _Prefixed:
