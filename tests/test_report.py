@@ -323,6 +323,24 @@ def test_report_without_compare_and_spectra(docs):
     assert "headline" in page.tables and "diversity-pop1-lake" not in page.tables
 
 
+def test_minimal_fit_and_labelled_spectra(docs):
+    """A fit without bootstrap, divergence or AIC table; populations labelled by dataset."""
+    fit, _rows, spectra = docs
+    f2 = copy.deepcopy(fit)
+    f2["populations"] = {f"snails/{k}": dict(v, dataset="snails")
+                         for k, v in fit["populations"].items()}
+    for p in f2["populations"].values():
+        p["bootstrap"] = {}
+        p.pop("adaptive")
+        p.pop("aic_table")
+    page = parse(build_report(f2, None, {"snails": spectra["spectra.json"]}, PROV))
+    head = {r[0]: r for r in page.tables["headline"][1:]}
+    assert head["snails/lake"][3] == "n/a" and head["snails/lake"][4] == "none"
+    assert "diversity-pop1-snails-lake" in page.tables  # matched by label/name
+    assert "No bootstrap: the shares have no confidence intervals" in " ".join(page.text)
+    assert "mk-pop1-snails-lake" not in page.tables
+
+
 def test_documents_that_do_not_fit_together(docs):
     fit, rows, spectra = docs
     sp = copy.deepcopy(spectra)
