@@ -1,0 +1,121 @@
+"""Calibration of intervals and tests on replicate studies from ``driftband simulate``.
+
+Two scenarios, R replicate studies each (forward Wright–Fisher, one distribution of s,
+gamma shape 0.3; 1e5 sites per class; n = 20 gene copies; 50 blocks):
+
+* ``same``: A and B both N = 300 (same DFE on S, same Ne). Reports (a) the coverage of the
+  95 % bootstrap interval of the neutral-band share (both populations pooled; target
+  93–97 %), (b) the size at 5 % of ``shared_dfe_lrt`` and ``neutral_share_difference``
+  (target <= 6 %).
+* ``ne_only``: A N = 600, B N = 150 (the same distribution of s, so S̄_B = S̄_A / 4). Reports
+  (c) the size at 5 % of ``ne_only_lrt`` (true here) and (d) the power of
+  ``neutral_share_difference`` and ``shared_dfe_lrt`` to detect the difference in
+  neutral-band share (truth printed, about 0.1).
+
+Run: python benchmarks/calibrate.py [R] [B] [workers]   (defaults 100, 100, 2)
+"""
+
+from __future__ import annotations
+
+import os
+import sys
+import time
+import warnings
+from concurrent.futures import ProcessPoolExecutor
+
+os.environ.setdefault("OPENBLAS_NUM_THREADS", "1")
+
+import numpy as np
+from scipy.special import gammainc
+
+from driftband.compare import compare_pair
+from driftband.fit.api import FitOptions, fit_population
+from driftband.fit.bootstrap import bootstrap_fits
+from driftband.fit.io import fit_document
+from driftband.fit.likelihood import SpectrumPair
+from driftband.fit.models import DfeModel
+from driftband.simulate import build_populations, parse_dfe, simulate_study
+
+SHAPE, MEAN_S = 0.3, 200.0  # on S at the first population's size
+SCENARIOS = {"same": ("A:N=300,n=20", "B:N=300,n=20"),
+             "ne_only": ("A:N=600,n=20", "B:N=150,n=20")}
+
+
+def truth(scenario: str) -> dict[str, float]:
+    """True neutral-band shares P(t < 4) under Gamma(shape, mean) scaled by N_B/N_A."""
+    scale = 1.0 if scenario == "same" else 150 / 600
+    return {"A": float(gammainc(SHAPE, 4 * SHAPE / MEAN_S)),
+            "B": float(gammainc(SHAPE, 4 * SHAPE / (MEAN_S * scale)))}
+
+
+def one_replicate(args) -> dict[str, float]:
+    """Simulate, fit, bootstrap and compare one study; return the calibration events."""
+    scenario, rep, B = args
+    warnings.simplefilter("ignore")
+    pops = build_populations(list(SCENARIOS[scenario]), [])
+    study = simulate_study(pops, parse_dfe(f"gamma:shape={SHAPE},mean={MEAN_S}"),
+                           theta=0.02, sites=100_000, blocks=50,
+                           seed=1000 * (scenario == "ne_only") + rep)
+    ss = study.spectra
+    opts = FitOptions(models=(DfeModel("gamma"),), eps=0.0)
+    fits = []
+    for name, pop in ss.populations.items():
+        pf = fit_population(SpectrumPair.from_population(pop), opts, name)
+        pf.dataset = "sim"
+        fits.append(pf)
+    bootstrap_fits(fits, ss.populations, opts, B, seed=rep, workers=1)
+    doc = fit_document(fits, opts.to_dict(), {})
+    rows = compare_pair("A", "B", doc["populations"]["A"], doc["populations"]["B"],
+                        DfeModel("gamma"), doc["options"])
+    out = {}
+    tv = truth(scenario)
+    for pf in fits:
+        lo, hi = pf.bootstrap["models"]["gamma"]["shares_ci"][0]
+        out[f"cover_{pf.population}"] = float(lo <= tv[pf.population] <= hi)
+        out[f"share_{pf.population}"] = float(pf.best.shares[0])
+    for r in rows:
+        out[f"p_{r.test}"] = r.p_value
+    return out
+
+
+def main() -> None:
+    R = int(sys.argv[1]) if len(sys.argv) > 1 else 100
+    B = int(sys.argv[2]) if len(sys.argv) > 2 else 100
+    workers = int(sys.argv[3]) if len(sys.argv) > 3 else 2
+    t0 = time.perf_counter()
+    res = {}
+    with ProcessPoolExecutor(max_workers=workers) as pool:
+        for sc in SCENARIOS:
+            res[sc] = list(pool.map(one_replicate, [(sc, r, B) for r in range(R)]))
+    dt = time.perf_counter() - t0
+    print(f"calibration: R = {R} replicate studies per scenario, B = {B} bootstrap "
+          f"replicates, {dt:.0f} s")
+    print(f"{'quantity':<58} {'value':>7} {'target':>10}")
+
+    def rate(sc, key, f=lambda v: v):
+        v = np.array([f(r[key]) for r in res[sc] if np.isfinite(r[key])], dtype=float)
+        return float(v.mean()), v.size
+
+    cov = np.mean([r[k] for r in res["same"] for k in ("cover_A", "cover_B")])
+    print(f"{'(a) coverage of 95% CI of neutral share (same)':<58} {cov:>7.3f} {'0.93-0.97':>10}")
+    for test in ("shared_dfe_lrt", "neutral_share_difference"):
+        v, _ = rate("same", f"p_{test}", lambda p: p < 0.05)
+        print(f"{'(b) size at 5% of ' + test + ' (same DFE, same Ne)':<58} {v:>7.3f} "
+              f"{'<= 0.06':>10}")
+    v, _ = rate("ne_only", "p_ne_only_lrt", lambda p: p < 0.05)
+    print(f"{'(c) size at 5% of ne_only_lrt (only Ne differs)':<58} {v:>7.3f} {'~0.05':>10}")
+    tv = truth("ne_only")
+    for test in ("neutral_share_difference", "shared_dfe_lrt"):
+        v, _ = rate("ne_only", f"p_{test}", lambda p: p < 0.05)
+        label = f"(d) power of {test} (true diff {tv['B'] - tv['A']:.3f})"
+        print(f"{label:<58} {v:>7.3f} {'high':>10}")
+    for sc in SCENARIOS:
+        t = truth(sc)
+        for p in "AB":
+            est = np.array([r[f"share_{p}"] for r in res[sc]])
+            print(f"    {sc} {p}: truth {t[p]:.3f}, mean estimate {est.mean():.3f}, "
+                  f"sd {est.std(ddof=1) if est.size > 1 else float('nan'):.3f}")
+
+
+if __name__ == "__main__":
+    main()
