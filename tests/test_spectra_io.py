@@ -106,3 +106,27 @@ def test_projected_float_spectra_round_trip(tmp_path):
     write_spectra_tsv(ss, tmp_path / "f.tsv")
     t = read_spectra(tmp_path / "f.tsv").populations["lake"].classes["0fold"]
     np.testing.assert_allclose(t.sfs, b.sum(axis=0), rtol=0, atol=1e-12)
+
+
+def test_atomic_output_follows_umask(tmp_path):
+    import os
+    import stat
+
+    from driftband._io import atomic_output
+
+    old = os.umask(0o022)
+    try:
+        with atomic_output(tmp_path / "x.txt") as fh:
+            fh.write("x")
+    finally:
+        os.umask(old)
+    assert stat.S_IMODE((tmp_path / "x.txt").stat().st_mode) == 0o644
+
+
+def test_atomic_output_leaves_nothing_on_error(tmp_path):
+    from driftband._io import atomic_output
+
+    with pytest.raises(RuntimeError), atomic_output(tmp_path / "y.txt") as fh:
+        fh.write("half")
+        raise RuntimeError("boom")
+    assert list(tmp_path.iterdir()) == []

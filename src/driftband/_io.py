@@ -71,6 +71,10 @@ def atomic_output(path: str | os.PathLike, mode: str = "w", force: bool = False,
     directory.mkdir(parents=True, exist_ok=True)
     fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=directory)
     os.close(fd)
+    # mkstemp makes the file private (0600); outputs follow the umask like open() would.
+    umask = os.umask(0)
+    os.umask(umask)
+    os.chmod(tmp, 0o666 & ~umask)
     if "b" not in mode:
         open_kwargs.setdefault("encoding", "utf-8")
     try:
