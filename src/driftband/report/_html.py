@@ -39,7 +39,7 @@ h1{font-size:1.55rem;margin:.8rem 0 .2rem}h2{font-size:1.25rem;margin-top:2.2rem
 nav{background:#f3f6f9;border:1px solid #d6dee6;padding:.4rem .8rem;font-size:.92rem}
 nav a{margin-right:.9rem;color:#0a5a91}
 table{border-collapse:collapse;margin:.5rem 0 1rem;font-size:.9rem}
-.wrap{max-width:100%;overflow-x:auto}td.note{min-width:11rem}
+.wrap{max-width:100%;overflow-x:auto}td.note{min-width:9rem}
 #compare-table{font-size:.8rem}#compare-table td,#compare-table th{padding:.2rem .35rem}
 caption{caption-side:top;text-align:left;font-weight:600;padding:.2rem 0}
 th,td{border:1px solid #c9d1d9;padding:.25rem .55rem;vertical-align:top}
@@ -194,6 +194,8 @@ def _comparisons(view: ReportView) -> str:
                 cells.append(_num(fnum(v, 0)))
             elif c == "note":
                 cells.append(("" if v is None else v, "note"))
+            elif c == "test" and isinstance(v, str):  # let long test names wrap
+                cells.append(_H(esc(v).replace("_", "_<wbr>")))
             elif isinstance(v, float | int) and not isinstance(v, bool):
                 cells.append(_num(fsig(v)))
             else:
