@@ -25,6 +25,7 @@ import os
 import re
 import sys
 import tempfile
+import zlib
 from collections.abc import Iterator, Sequence
 from dataclasses import dataclass, field
 
@@ -646,8 +647,9 @@ def _read_header(fh, path: str, chunk: int) -> tuple[VcfHeader, bytes]:
 
 def _read(fh, n: int, path: str) -> bytes:
     try:
-        return fh.read(n)
-    except (OSError, EOFError, gzip.BadGzipFile) as err:
+        with _quiet_htslib():
+            return fh.read(n)
+    except (OSError, EOFError, zlib.error) as err:
         raise VcfFormatError(f"cannot decompress the file ({err}); it is truncated or "
                              "corrupt", path) from None
 
@@ -673,22 +675,39 @@ def _line_blocks(fh, first: bytes, path: str, chunk: int) -> Iterator[bytes]:
 # ---------------------------------------------------------------------------- sources
 
 def _sniff(path: str) -> tuple[str, bytes]:
-    """Kind of a file: 'bcf', 'bgzf', 'gzip' or 'plain', and its first bytes."""
+    """Kind of a file: 'bcf', 'bgzf', 'gzip' or 'plain', and its first bytes.
+
+    A BGZF file must end with the BGZF end-of-file block (else it is truncated).
+    """
     with open(path, "rb") as fh:
         head = fh.read(18)
     if head[:2] == b"\x1f\x8b":
-        is_bgzf = len(head) >= 16 and head[3] & 4 and head[12:14] == b"BC"
-        with libcbgzf.BGZFile(path) as bg:
-            try:
-                inner = bg.read(5)
-            except OSError:
-                inner = b""
+        is_bgzf = len(head) >= 16 and bool(head[3] & 4) and head[12:14] == b"BC"
+        if is_bgzf:
+            _check_eof(path)
+        try:
+            with gzip.open(path, "rb") as gz:
+                inner = gz.read(5)
+        except (OSError, EOFError, zlib.error) as err:
+            raise VcfFormatError(f"cannot decompress the file ({err}); it is truncated or "
+                                 "corrupt", path) from None
         if inner.startswith(b"BCF"):
             return "bcf", inner
         return ("bgzf" if is_bgzf else "gzip"), inner
     if head.startswith(b"BCF"):
         return "bcf", head
     return "plain", head
+
+
+def _check_eof(path: str) -> None:
+    with open(path, "rb") as fh:
+        fh.seek(0, os.SEEK_END)
+        size = fh.tell()
+        fh.seek(max(0, size - len(BGZF_EOF)))
+        tail = fh.read()
+    if tail != BGZF_EOF:
+        raise VcfFormatError("the file is truncated (no BGZF end-of-file block); was it "
+                             "copied or written completely?", path)
 
 
 class VcfSource:
@@ -734,8 +753,6 @@ class VcfSource:
         if os.path.isdir(self.path):
             raise InputError("is a directory, not a VCF file", self.path)
         self.kind, _ = _sniff(self.path)
-        if self.kind in ("bgzf", "bcf") and self._is_bgzf_file():
-            self._check_eof()
         for ext in (".tbi", ".csi"):
             if os.path.exists(self.path + ext):
                 self.index_path = self.path + ext
@@ -762,21 +779,6 @@ class VcfSource:
                 self.index_chroms = list(self._tabix.contigs)
 
     # -- opening
-    def _is_bgzf_file(self) -> bool:
-        with open(self.path, "rb") as fh:
-            head = fh.read(16)
-        return head[:2] == b"\x1f\x8b" and bool(head[3] & 4) and head[12:14] == b"BC"
-
-    def _check_eof(self) -> None:
-        with open(self.path, "rb") as fh:
-            fh.seek(0, os.SEEK_END)
-            size = fh.tell()
-            fh.seek(max(0, size - len(BGZF_EOF)))
-            tail = fh.read()
-        if tail != BGZF_EOF:
-            raise VcfFormatError("the file is truncated (no BGZF end-of-file block); was it "
-                                 "copied or written completely?", self.path)
-
     def _open_bcf(self, path: str | None = None) -> None:
         p = path or self.path
         self._bcf_path = p
@@ -833,7 +835,9 @@ class VcfSource:
     def _open_text_stream(self):
         if self.kind == "plain":
             return open(self.path, "rb")
-        return libcbgzf.BGZFile(self.path)
+        if self.kind == "gzip":
+            return gzip.open(self.path, "rb")
+        return _QuietClose(libcbgzf.BGZFile(self.path))
 
     @property
     def indexed(self) -> bool:
@@ -1006,6 +1010,26 @@ def _bcf_batches(it, path: str, n: int = 2000) -> Iterator[RecordBatch]:
             yield RecordBatch(recs, path)
         if it is None:
             return
+
+
+class _QuietClose:
+    """A BGZFile whose close() does not raise after a read error (already reported)."""
+
+    def __init__(self, fh) -> None:
+        self._fh = fh
+
+    def read(self, n: int) -> bytes:
+        return self._fh.read(n)
+
+    def close(self) -> None:
+        with contextlib.suppress(OSError), _quiet_htslib():
+            self._fh.close()
+
+    def __enter__(self):
+        return self
+
+    def __exit__(self, *exc) -> None:
+        self.close()
 
 
 class _Prefixed:
