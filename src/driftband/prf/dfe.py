@@ -544,7 +544,8 @@ def mean_fixation_ratio(dfe: Dfe) -> float:
             r = math.nan
     if math.isnan(r):
         def fn(t):
-            return t / np.expm1(t)
+            with np.errstate(over="ignore"):  # t/expm1(t) -> 0 for large t, as wanted
+                return t / np.expm1(t)
         r = _expect_t(base, fn, (1.0, -0.5))
     if p_b > 0:
         r = (1.0 - p_b) * r + p_b * float(fixation_ratio(s_b))
