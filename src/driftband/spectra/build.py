@@ -262,6 +262,17 @@ def _classify(ref: bytes, alt: bytes) -> tuple[int, int, int]:
     return _SNP, i, len(alts)
 
 
+def _aa_code(v: bytes | None, ref: bytes, alt: bytes, kind: tuple[int, int, int]) -> int:
+    """Ancestral state from INFO/AA: 0 REF, 1 ALT, 2 another base (a monomorphic record
+    fixed for the derived allele), -1 unpolarisable."""
+    v = v.split(b"|", 1)[0].strip().upper() if v else b""
+    r = ref.upper()
+    if kind[0] == _SNP:
+        a = alt.split(b",")[kind[1] - 1].upper()
+        return 0 if v == r else 1 if v == a else -1
+    return 2 if (v in _BASES and v != r) else 0
+
+
 class _RegionCounter:
     """Accumulates the records of one region; :meth:`result` gives its RegionCounts."""
 
@@ -269,9 +280,15 @@ class _RegionCounter:
         self.d = design
         self.sites = sites
         self.used, self.pidx, self.oidx = design.used_columns()
+        self.npop = len(design.populations)
+        groups = list(self.pidx) + ([self.oidx] if self.oidx is not None else [])
+        self.W = np.zeros((self.used.size, len(groups)), np.float32)
+        for k, ix in enumerate(groups):
+            self.W[ix, k] = 1.0
         self.fields = tuple(f for f, v in (("DP", design.min_dp), ("GQ", design.min_gq))
                             if v is not None)
         self.kinds: dict[tuple[bytes, bytes], tuple[int, int, int]] = {}
+        self.aa_cache: dict[tuple, int] = {}
         self.skip = dict.fromkeys(("no_site_class", "indel_or_symbolic"), 0)
         self.u_pos, self.u_cls, self.u_blk, self.u_m, self.u_d = [], [], [], [], []
         self.r_pos, self.r_cls, self.r_blk, self.r_why = [], [], [], []
@@ -306,20 +323,17 @@ class _RegionCounter:
         if self.d.ancestral == "aa":
             cand = np.flatnonzero(status == 0)
             aa = b.info(rows[cand].tolist(), "AA")
+            cache = self.aa_cache
             for j, v in zip(cand.tolist(), aa):
                 i = int(rows[j])
-                v = v.split(b"|", 1)[0].strip().upper() if v else b""
-                r = ref[i].upper()
-                if kind[j] == _SNP:
-                    a = alt[i].split(b",")[info[j][1] - 1].upper()
-                    if v == r:
-                        anc[j] = 0
-                    elif v == a:
-                        anc[j] = 1
-                    else:
-                        status[j] = 4
-                elif v in _BASES and v != r:
-                    anc[j] = 2
+                key = (v, ref[i], alt[i])
+                code = cache.get(key)
+                if code is None:
+                    code = cache.setdefault(key, _aa_code(v, ref[i], alt[i], info[j]))
+                if code < 0:
+                    status[j] = 4
+                else:
+                    anc[j] = code
         self.skip["indel_or_symbolic"] += int((status == 1).sum())
         good = np.flatnonzero(status == 0)
         if good.size:
@@ -341,32 +355,43 @@ class _RegionCounter:
     def _genotypes(self, b, rows, good, kind, info, anc, status) -> None:
         g = b.genotypes(rows[good], self.used, self.fields)
         a = g.alleles
-        alt_idx = np.array([info[j][1] for j in good.tolist()], np.int8)
+        snp = kind[good] == _SNP              # ALT allele index 1; monomorphic: none
         n_alts = np.array([info[j][2] for j in good.tolist()], np.int16)
-        if np.any(a.astype(np.int16) > n_alts[:, None, None]):
-            j = int(np.flatnonzero(np.any(a.astype(np.int16) > n_alts[:, None, None],
-                                          axis=(1, 2)))[0])
-            name, ln = b.where(int(rows[good[j]]))
-            raise InputError(f"{name}: a GT allele index exceeds the number of ALT alleles",
-                             b.path, ln)
-        is_alt = (a == alt_idx[:, None, None]) & (alt_idx[:, None, None] > 0)
-        called = ((a == 0) | is_alt).sum(axis=2, dtype=np.int32)
-        altc = is_alt.sum(axis=2, dtype=np.int32)
+        amax = int(a.max()) if a.size else 0
+        if amax > int(n_alts.min()):
+            over = np.any(a.astype(np.int16) > n_alts[:, None, None], axis=(1, 2))
+            if over.any():
+                name, ln = b.where(int(rows[good[int(np.flatnonzero(over)[0])]]))
+                raise InputError(f"{name}: a GT allele index exceeds the number of ALT "
+                                 "alleles", b.path, ln)
+        if amax <= 0:
+            is_alt = np.zeros(a.shape, bool)
+        elif snp.all():
+            is_alt = a == 1
+        else:
+            is_alt = (a == 1) & snp[:, None, None]
+        is_ref = a == 0
+        if a.shape[2] == 2:
+            altc = is_alt[..., 0].view(np.int8) + is_alt[..., 1].view(np.int8)
+            called = altc + is_ref[..., 0].view(np.int8) + is_ref[..., 1].view(np.int8)
+        else:
+            altc = is_alt.sum(axis=2, dtype=np.int8)
+            called = altc + is_ref.sum(axis=2, dtype=np.int8)
         for f, thr in (("DP", self.d.min_dp), ("GQ", self.d.min_gq)):
             if thr is not None:
                 fail = g.fields[f] < thr       # missing (-1) fails too
                 called[fail] = 0
                 altc[fail] = 0
-        m = np.stack([called[:, ix].sum(axis=1) for ix in self.pidx], axis=1)
-        x = np.stack([altc[:, ix].sum(axis=1) for ix in self.pidx], axis=1)
+        # per-population sums as one small matrix product (exact: integers < 2**24)
+        both = np.concatenate([called, altc]).astype(np.float32) @ self.W
+        both = np.rint(both).astype(np.int64)
+        r = called.shape[0]
+        m, x = both[:r, :self.npop], both[r:, :self.npop]
         ga = anc[good]
         if self.d.ancestral == "outgroup":
-            mo = called[:, self.oidx].sum(axis=1)
-            xo = altc[:, self.oidx].sum(axis=1)
-            snp = kind[good] == _SNP
-            ga = np.where(xo == 0, 0, 1)
+            mo, xo = both[:r, self.npop], both[r:, self.npop]
+            ga = np.where(snp, np.where(xo == 0, 0, 1), 0)
             unpol = snp & ((mo == 0) | ((xo > 0) & (xo < mo)))
-            ga = np.where(snp, ga, 0)
             status[good[unpol]] = 4
         dd = np.where(ga[:, None] == 0, x, np.where(ga[:, None] == 1, m - x, m))
         self._m, self._dd = m, dd

@@ -193,30 +193,32 @@ def _records_genotypes(records: Sequence, cols: np.ndarray, fields: Sequence[str
     return alleles, vals
 
 
-def _decode_gt(buf: np.ndarray, p: np.ndarray, e: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+_LUT_ALLELE = np.full(256, -100, np.int8)   # digit -> allele index, '.' -> -1
+_LUT_ALLELE[48:58] = np.arange(10)
+_LUT_ALLELE[46] = -1
+_LUT_SEP = np.full(256, 2, np.int8)        # 0: '/' or '|', 1: end of the GT subfield
+_LUT_SEP[[47, 124]] = 0
+_LUT_SEP[[58, 9, 10, 0]] = 1
+_LUT_END = np.zeros(256, bool)
+_LUT_END[[58, 9, 10, 0]] = True
+
+
+def _decode_gt(buf: np.ndarray, p: np.ndarray, e: np.ndarray
+               ) -> tuple[np.ndarray, np.ndarray]:
     """Vectorised GT decoding of sample fields ``buf[p:e]`` (GT first), shape (r, s).
 
     Handles haploid and diploid calls with single-digit allele indices and ``.``; returns
     ``alleles`` (r, s, 2) int8 and ``ok`` (r,) bool for the records fully handled.
     """
-    c0 = buf[p]
-    c1 = buf[p + 1]
-    c2 = buf[p + 2]
-    c3 = buf[p + 3]
-    w = e - p
-    hap = (w == 1) | (c1 == 58)  # one character, then ':' or the end of the field
-    dip = ((c1 == 47) | (c1 == 124)) & ((w == 3) | (c3 == 58))
-    d0 = c0.astype(np.int16) - 48
-    d2 = c2.astype(np.int16) - 48
-    m0 = c0 == 46
-    m2 = c2 == 46
-    v0 = ((d0 >= 0) & (d0 <= 9)) | m0
-    v2 = ((d2 >= 0) & (d2 <= 9)) | m2
-    ok = (v0 & (hap | (dip & v2))).all(axis=1)
+    a0 = _LUT_ALLELE.take(buf.take(p))
+    sep = _LUT_SEP.take(buf[1:].take(p))      # views: no index arithmetic
+    a2 = _LUT_ALLELE.take(buf[2:].take(p))
+    hap = sep == 1
+    ok = (a0 > -100) & (hap | ((sep == 0) & _LUT_END.take(buf[3:].take(p)) & (a2 > -100)))
     alleles = np.empty(p.shape + (2,), np.int8)
-    alleles[..., 0] = np.where(m0, -1, d0)
-    alleles[..., 1] = np.where(hap, -2, np.where(m2, -1, d2))
-    return alleles, ok
+    alleles[..., 0] = a0
+    alleles[..., 1] = np.where(hap, np.int8(-2), a2)
+    return alleles, ok.all(axis=1)
 
 
 def _parse_uint(buf: np.ndarray, s: np.ndarray, w: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -227,55 +229,52 @@ def _parse_uint(buf: np.ndarray, s: np.ndarray, w: np.ndarray) -> tuple[np.ndarr
     """
     wmax = int(w.max()) if w.size else 0
     val = np.zeros(s.shape, np.int32)
-    good = (w >= 0) & (w <= 9)
-    lim = buf.size - 1
-    for j in range(min(wmax, 10)):
-        d = buf[np.minimum(s + j, lim)] - np.uint8(48)  # wraps below '0'
+    bad = w > 9
+    for j in range(min(wmax, 9)):
+        d = buf[j:].take(s) - np.uint8(48)  # wraps below '0'
         inr = w > j
-        good &= (d <= 9) | ~inr
+        bad |= (d > 9) & inr
         val = np.where(inr, val * 10 + d, val)
-    miss = (w == 0) | ((w == 1) & (buf[np.minimum(s, lim)] == 46))
+    miss = (w == 0) | ((w == 1) & (buf.take(s) == 46))
     val[miss] = -1
-    good |= miss
+    good = ~bad | miss
     val[~good] = -1
     return val, good
 
 
 def _decode_int(buf: np.ndarray, p: np.ndarray, e: np.ndarray, k: int, nkeys: int,
-                cols: np.ndarray, first: np.ndarray, total: np.ndarray, n_samples: int,
-                colpos: np.ndarray, cc_fn) -> tuple[np.ndarray, np.ndarray]:
+                base: np.ndarray | None, colpos: np.ndarray, cc_fn
+                ) -> tuple[np.ndarray, np.ndarray]:
     """Vectorised decoding of the integer subfield ``k`` (0-based) of sample fields.
 
-    ``p``/``e`` are the starts/ends of the sample fields (r, s) of VCF columns ``cols``;
-    ``colpos`` are the positions of ':' in ``buf`` (with sentinels at the end), ``first``
-    the index in ``colpos`` of the first colon of each record's sample part and ``total``
-    their number. In the usual layout every sample field has ``nkeys - 1`` colons, and the
-    colon before subfield ``k`` of column ``c`` is ``colpos[first + c (nkeys - 1) + k - 1]``;
-    records with dropped trailing subfields go through an inclusive cumulative count of
-    colons (``cc_fn()``) instead. Returns values (r, s) int32 (-1 missing or absent) and
-    ``ok`` (r,) bool.
+    ``p``/``e`` are the starts/ends of the sample fields (r, s); ``colpos`` the positions
+    of ':' in ``buf`` (with sentinels at the end). In the usual layout every sample field
+    has ``nkeys - 1`` colons and ``base`` (r, s) is the index in ``colpos`` of the first
+    colon of each field; records with dropped trailing subfields (``base`` None) count
+    colons with an inclusive cumulative count (``cc_fn()``) instead. Returns values (r, s)
+    int32 (-1 missing or absent) and ``ok`` (r,) bool.
     """
-    regular = total == n_samples * (nkeys - 1)
-    before = np.empty(p.shape, np.int64)
-    if regular.any():
-        before[regular] = first[regular, None] + cols[None, :] * (nkeys - 1)
-    if not regular.all():
-        cc = cc_fn()
-        irr = ~regular
-        before[irr] = cc[p[irr] - 1]
     lim = colpos.size - 1
+    regular = base is not None
+    if not regular:
+        base = cc_fn()[p - 1].astype(np.int64)  # colons before each field
     if k == 0:
         s = p
         has = np.ones(p.shape, bool)
     else:
-        c1 = colpos[np.minimum(before + (k - 1), lim)]
+        c1 = colpos.take(np.minimum(base + (k - 1), lim) if not regular else base + (k - 1))
         has = (c1 >= p) & (c1 < e)
         s = c1 + 1
-    en = np.minimum(colpos[np.minimum(before + k, lim)], e)
-    w = np.where(has, en - s, 0)
+    if regular and k < nkeys - 1:
+        en = colpos.take(base + k)
+    else:
+        en = np.minimum(colpos.take(np.minimum(base + k, lim)), e)
+    w = en - s
+    if not regular:
+        w = np.where(has, w, 0)
+    elif k > 0 and not has.all():
+        return np.full(p.shape, -1, np.int32), np.zeros(p.shape[0], bool)
     val, good = _parse_uint(buf, s, w)
-    if k > 0 and regular.any():  # guard against invalid layouts taken as regular
-        good[regular] &= has[regular] | (w[regular] == 0)
     return val, good.all(axis=1)
 
 
@@ -422,29 +421,49 @@ class TextBatch(VariantBatch):
         vals = {f: np.full((r, s), -1, np.int32) for f in fields}
         ok = np.zeros(r, bool)
         if fast and r:
-            tr = self._tabs[rows]
-            ext = np.concatenate([tr[:, 9:], self._nl[rows, None]], axis=1)
-            p = tr[:, 8 + cols] + 1
-            e = ext[:, cols]
+            tr = self._tabs if rows.size == len(self.pos) and rows[-1] == rows.size - 1 \
+                else self._tabs[rows]
+            nlr = self._nl if tr is self._tabs else self._nl[rows]
+            if cols.size and cols[-1] - cols[0] == cols.size - 1:   # a run of columns
+                c0, c1 = int(cols[0]), int(cols[-1]) + 1
+                p = tr[:, 8 + c0:8 + c1] + 1
+                if c1 < self._n_samples:
+                    e = tr[:, 9 + c0:9 + c1]
+                else:
+                    e = np.concatenate([tr[:, 9 + c0:], nlr[:, None]], axis=1)
+            else:
+                ext = np.concatenate([tr[:, 9:], nlr[:, None]], axis=1)
+                p = tr[:, 8 + cols] + 1
+                e = ext[:, cols]
             alleles, ok = _decode_gt(self._buf, p, e)
             if fields:
                 colpos, cc_fn = self._colon_index()
                 first = np.searchsorted(colpos, tr[:, 8])
-                total = np.searchsorted(colpos, self._nl[rows]) - first
-                keys: dict[bytes, list[bytes]] = {f: f.split(b":") for f in set(fmts)}
-                nk = np.array([len(keys[f]) for f in fmts])
-                for name in fields:
-                    nb = name.encode()
-                    kidx = np.array([keys[f].index(nb) if nb in keys[f] else -1 for f in fmts])
-                    for k, n_k in {(int(a), int(b)) for a, b in zip(kidx, nk)}:
-                        if k < 0:
+                total = np.searchsorted(colpos, nlr) - first
+                groups: dict[bytes, list[int]] = {}
+                for i, f in enumerate(fmts):
+                    groups.setdefault(f, []).append(i)
+                for f, idx in groups.items():
+                    keys = f.split(b":")
+                    nk = len(keys)
+                    sel = np.array(idx) if len(idx) < r else slice(None)
+                    reg = total[sel] == self._n_samples * (nk - 1)
+                    for part, is_reg in ((reg, True), (~reg, False)):
+                        if not part.any():
                             continue
-                        sel = np.flatnonzero((kidx == k) & (nk == n_k))
-                        v, okv = _decode_int(self._buf, p[sel], e[sel], k, n_k, cols,
-                                             first[sel], total[sel], self._n_samples,
-                                             colpos, cc_fn)
-                        vals[name][sel] = v
-                        ok[sel] &= okv
+                        rr = (np.flatnonzero(part) if isinstance(sel, slice)
+                              else np.asarray(idx)[part])
+                        if rr.size == r:
+                            rr = slice(None)
+                        base = (first[rr, None] + cols * (nk - 1)) if is_reg else None
+                        for name in fields:
+                            nb = name.encode()
+                            if nb not in keys:
+                                continue
+                            v, okv = _decode_int(self._buf, p[rr], e[rr], keys.index(nb),
+                                                 nk, base, colpos, cc_fn)
+                            vals[name][rr] = v
+                            ok[rr] &= okv
         slow = np.flatnonzero(~ok)
         if slow.size:
             a2, v2 = self._fallback(rows[slow], cols, fields)
