@@ -1,6 +1,17 @@
 """Site frequency spectra: data objects, diversity statistics, files."""
 
 from ._types import Block, ClassSpectrum, PopulationSpectra, SpectraSet, spectrum_length
+from .build import (
+    CountDesign,
+    RegionCounts,
+    build_spectra,
+    choose_sample_size,
+    count_region,
+    count_stream,
+    make_design,
+    projection_matrix,
+    spectra_from_counts,
+)
 from .io import (
     add_diversity,
     read_spectra,
@@ -9,18 +20,31 @@ from .io import (
     write_spectra_json,
     write_spectra_tsv,
 )
+from .plan import RegionSites, SitePlan, make_plan
 from .stats import diversity, tajimas_d, watterson_a
 
 __all__ = [
     "Block",
     "ClassSpectrum",
+    "CountDesign",
     "PopulationSpectra",
+    "RegionCounts",
+    "RegionSites",
+    "SitePlan",
     "SpectraSet",
     "add_diversity",
+    "build_spectra",
+    "choose_sample_size",
+    "count_region",
+    "count_stream",
     "diversity",
+    "make_design",
+    "make_plan",
+    "projection_matrix",
     "read_spectra",
     "read_spectra_json",
     "read_spectra_tsv",
+    "spectra_from_counts",
     "spectrum_length",
     "tajimas_d",
     "watterson_a",
