@@ -111,7 +111,7 @@ def poisson_loglik(obs: np.ndarray, lam: np.ndarray) -> float:
     return float(np.sum(xlogy(obs, lam) - lam - gammaln(obs + 1.0)))
 
 
-def _newton_pairs(xn, xs, a, b, eps, c0, tol=1e-13, max_iter=100):
+def _newton_pairs(xn, xs, a, b, eps, c0, tol=1e-11, max_iter=100):
     """Maximise the Poisson likelihood over c with misorientation, pair by pair.
 
     True classes i and n−i share observations only with each other, so the profile splits
@@ -133,6 +133,7 @@ def _newton_pairs(xn, xs, a, b, eps, c0, tol=1e-13, max_iter=100):
     x = np.stack([xn[lo], xs[lo], xn[hi], xs[hi]])
     u, v = c[lo].copy(), c[hi].copy()
     tiny = 1e-300
+    scale = max(float(np.mean(c0)), tiny) * 1e-3
     for _ in range(max_iter):
         lam = du * u + dv * v
         with np.errstate(divide="ignore", invalid="ignore"):
@@ -159,8 +160,10 @@ def _newton_pairs(xn, xs, a, b, eps, c0, tol=1e-13, max_iter=100):
             av = np.where(sv < 0, -0.9 * v / sv, np.inf)
         step = np.minimum(1.0, np.minimum(au, av))
         nu, nv = u + step * su, v + step * sv
-        done = np.all(np.abs(nu - u) <= tol * np.maximum(nu, tiny)) and np.all(
-            np.abs(nv - v) <= tol * np.maximum(nv, tiny))
+        # Converged when the steps are negligible relative to the scale of c (an
+        # absolute floor keeps pairs whose optimum is at u = 0 or v = 0 from iterating on).
+        done = np.all(np.abs(nu - u) <= tol * np.maximum(nu, scale)) and np.all(
+            np.abs(nv - v) <= tol * np.maximum(nv, scale))
         u, v = np.maximum(nu, 0.0), np.maximum(nv, 0.0)
         if done:
             break
