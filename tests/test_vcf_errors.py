@@ -245,3 +245,11 @@ def test_bad_option_values(capfd, study):
 def test_overlapping_blocks(capfd, study):
     b = write_text(study["dir"] / "blk.bed", "1\t0\t100\tg1\n1\t50\t150\tg2\n")
     expect_error(capfd, study, "--blocks", str(b), names=["blk.bed:2", "overlap"])
+
+
+def test_non_integer_depth(capfd, study):
+    records = [GOOD[0], rec(1, 9, "C", "T", ["0/1:7", "0/0:1.5", "0/0:3", "0/0:4"],
+                            info="AA=C", fmt="GT:DP")]
+    p = write_text(study["dir"] / "dp.vcf", _vcf_text(records))
+    expect_error(capfd, study, "--min-dp", "2", vcf=p, names=["dp.vcf" + line(2),
+                                                             "record 1:9"])

@@ -94,6 +94,8 @@ _REMOVING = {2: "multiallelic", 3: "filter", 4: "unpolarisable", 5: "duplicate_p
 _PLACEHOLDERS = {b"<*>", b"<NON_REF>", b"<X>"}
 _BASES = {b"A", b"C", b"G", b"T"}
 _SNP, _MONO, _MULTI, _OTHER = 0, 1, 2, 3
+_IS_BASE = np.zeros(256, bool)
+_IS_BASE[[65, 67, 71, 84]] = True
 
 
 # ---------------------------------------------------------------------------- design
@@ -307,33 +309,55 @@ class _RegionCounter:
         self.skip["no_site_class"] += int(pos0.size - rows.size)
         if not rows.size:
             return
-        kinds = self.kinds
-        ref, alt, filt = b.ref, b.alt, b.filt
-        info = [kinds.get((ref[i], alt[i])) or kinds.setdefault((ref[i], alt[i]),
-                                                                 _classify(ref[i], alt[i]))
-                for i in rows.tolist()]
-        kind = np.array([x[0] for x in info], np.int64)
+        codes = b.codes()
+        r1, a1 = codes["ref1"][rows], codes["alt1"][rows]
+        base_r = _IS_BASE[r1]
+        simple_snp = base_r & _IS_BASE[a1] & (r1 != a1)
+        simple_mono = base_r & (a1 == 46)
+        kind = np.where(simple_snp, _SNP, np.where(simple_mono, _MONO, -1)).astype(np.int64)
+        alt_idx = simple_snp.astype(np.int64)
+        n_alts = alt_idx.copy()
+        hard = np.flatnonzero(kind < 0)
+        if hard.size:   # everything but plain SNPs and monomorphic records: per record
+            kinds = self.kinds
+            ref, alt = b.ref, b.alt
+            for j in hard.tolist():
+                i = int(rows[j])
+                x = kinds.get((ref[i], alt[i])) or kinds.setdefault(
+                    (ref[i], alt[i]), _classify(ref[i], alt[i]))
+                kind[j], alt_idx[j], n_alts[j] = x
         status = np.zeros(rows.size, np.int64)   # 0 usable, 1 indel, 2.. removing reasons
         status[kind == _OTHER] = 1
-        status[(kind == _MULTI)] = 2
+        status[kind == _MULTI] = 2
         if self.d.pass_only:
-            bad = np.array([filt[i] not in (b"PASS", b".") for i in rows.tolist()])
+            bad = codes["pass"][rows] == 0
             status[(status == 0) & bad] = 3
         anc = np.zeros(rows.size, np.int64)       # 0 REF, 1 ALT, 2 other (fixed derived)
         if self.d.ancestral == "aa":
-            cand = np.flatnonzero(status == 0)
-            aa = b.info(rows[cand].tolist(), "AA")
-            cache = self.aa_cache
-            for j, v in zip(cand.tolist(), aa):
-                i = int(rows[j])
-                key = (v, ref[i], alt[i])
-                code = cache.get(key)
-                if code is None:
-                    code = cache.setdefault(key, _aa_code(v, ref[i], alt[i], info[j]))
-                if code < 0:
-                    status[j] = 4
-                else:
-                    anc[j] = code
+            aa1 = codes["aa1"][rows]
+            easy = (status == 0) & (aa1 != 0) & (simple_snp | simple_mono)
+            snp_e = easy & simple_snp
+            anc[snp_e & (aa1 == a1)] = 1
+            status[snp_e & (aa1 != r1) & (aa1 != a1)] = 4
+            mono_e = easy & simple_mono
+            anc[mono_e & _IS_BASE[aa1] & (aa1 != r1)] = 2
+            cand = np.flatnonzero((status == 0) & ~easy)
+            if cand.size:
+                aa = b.info(rows[cand].tolist(), "AA")
+                cache = self.aa_cache
+                ref, alt = b.ref, b.alt
+                for j, v in zip(cand.tolist(), aa):
+                    i = int(rows[j])
+                    key = (v, ref[i], alt[i])
+                    code = cache.get(key)
+                    if code is None:
+                        code = cache.setdefault(key, _aa_code(
+                            v, ref[i], alt[i], (int(kind[j]), int(alt_idx[j]), 0)))
+                    if code < 0:
+                        status[j] = 4
+                    else:
+                        anc[j] = code
+        info = (alt_idx, n_alts)
         self.skip["indel_or_symbolic"] += int((status == 1).sum())
         good = np.flatnonzero(status == 0)
         if good.size:
@@ -356,7 +380,7 @@ class _RegionCounter:
         g = b.genotypes(rows[good], self.used, self.fields)
         a = g.alleles
         snp = kind[good] == _SNP              # ALT allele index 1; monomorphic: none
-        n_alts = np.array([info[j][2] for j in good.tolist()], np.int16)
+        n_alts = info[1][good].astype(np.int16)
         amax = int(a.max()) if a.size else 0
         if amax > int(n_alts.min()):
             over = np.any(a.astype(np.int16) > n_alts[:, None, None], axis=(1, 2))
@@ -377,11 +401,15 @@ class _RegionCounter:
         else:
             altc = is_alt.sum(axis=2, dtype=np.int8)
             called = altc + is_ref.sum(axis=2, dtype=np.int8)
+        keep = None
         for f, thr in (("DP", self.d.min_dp), ("GQ", self.d.min_gq)):
             if thr is not None:
-                fail = g.fields[f] < thr       # missing (-1) fails too
-                called[fail] = 0
-                altc[fail] = 0
+                ok = g.fields[f] >= thr        # missing (-1) fails too
+                keep = ok if keep is None else keep & ok
+        if keep is not None:
+            k8 = keep.view(np.int8)
+            called = called * k8
+            altc = altc * k8
         # per-population sums as one small matrix product (exact: integers < 2**24)
         both = np.concatenate([called, altc]).astype(np.float32) @ self.W
         both = np.rint(both).astype(np.int64)

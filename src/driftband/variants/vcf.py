@@ -47,7 +47,7 @@ __all__ = [
 
 BGZF_EOF = bytes.fromhex("1f8b08040000000000ff0600424302001b0003000000000000000000")
 BATCH_BYTES = 1 << 20
-_PAD = b"\0\0\0\0\0\0\0\0"
+_PAD = b"\0" * 24
 
 
 # ---------------------------------------------------------------------------- header
@@ -208,7 +208,8 @@ def _decode_gt(buf: np.ndarray, p: np.ndarray, e: np.ndarray
     """Vectorised GT decoding of sample fields ``buf[p:e]`` (GT first), shape (r, s).
 
     Handles haploid and diploid calls with single-digit allele indices and ``.``; returns
-    ``alleles`` (r, s, 2) int8 and ``ok`` (r,) bool for the records fully handled.
+    ``alleles`` (r, s, 2) int8, ``ok`` (r,) bool for the records fully handled, and
+    ``hap`` (r, s) bool, True where the GT has one character (haploid or ``.``).
     """
     a0 = _LUT_ALLELE.take(buf.take(p))
     sep = _LUT_SEP.take(buf[1:].take(p))      # views: no index arithmetic
@@ -218,7 +219,7 @@ def _decode_gt(buf: np.ndarray, p: np.ndarray, e: np.ndarray
     alleles = np.empty(p.shape + (2,), np.int8)
     alleles[..., 0] = a0
     alleles[..., 1] = np.where(hap, np.int8(-2), a2)
-    return alleles, ok.all(axis=1)
+    return alleles, ok.all(axis=1), hap
 
 
 def _parse_uint(buf: np.ndarray, s: np.ndarray, w: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -240,6 +241,38 @@ def _parse_uint(buf: np.ndarray, s: np.ndarray, w: np.ndarray) -> tuple[np.ndarr
     good = ~bad | miss
     val[~good] = -1
     return val, good
+
+
+def _scan_uint(buf: np.ndarray, s: np.ndarray, e: np.ndarray
+               ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Read the unsigned integer subfields starting at ``s`` (sample fields end at ``e``).
+
+    Digits are read up to the next non-digit, which must end the subfield (':', tab or
+    newline). Returns values (int32; -1 for ``.``, an empty or an absent subfield), the
+    text widths, and ``good`` (False where the text is not an integer of <= 9 digits).
+    """
+    present = s < e
+    val = np.zeros(s.shape, np.int32)
+    w = np.zeros(s.shape, np.int64)
+    active = present.copy()
+    for j in range(10):
+        d = buf[j:].take(s) - np.uint8(48)
+        isd = d <= 9
+        stop = active & ~isd
+        w[stop] = j
+        active &= isd
+        if not active.any():
+            break
+        val = np.where(active, val * 10 + d, val)
+    good = ~active & (w <= 9)
+    c0 = buf.take(s)
+    miss = present & (w == 0)
+    dot = miss & (c0 == 46)
+    w[dot] = 1
+    good &= _LUT_END.take(buf.take(s + w)) | ~present
+    val[miss | ~present] = -1
+    good |= ~present
+    return val, w, good
 
 
 def _decode_int(buf: np.ndarray, p: np.ndarray, e: np.ndarray, k: int, nkeys: int,
@@ -321,6 +354,19 @@ class VariantBatch:
         """Records ``a`` to ``z - 1`` as a batch of their own (no copy of the text)."""
         raise NotImplementedError
 
+    def codes(self) -> dict[str, np.ndarray]:
+        """Vectorised view of the common cases, uint8 byte codes (upper case) per record:
+        ``ref1``/``alt1`` the REF/ALT base when one character (else 0), ``aa1`` the INFO/AA
+        value when INFO starts with a one-character AA (else 0: look it up with
+        :meth:`info`), and ``pass`` (int8) 1 when FILTER is PASS or ``.``."""
+        one = [r if len(r) == 1 else b"\0" for r in self.ref]
+        ref1 = np.frombuffer(b"".join(one), np.uint8) if one else np.zeros(0, np.uint8)
+        one = [a if len(a) == 1 else b"\0" for a in self.alt]
+        alt1 = np.frombuffer(b"".join(one), np.uint8) if one else np.zeros(0, np.uint8)
+        passed = np.array([f in (b"PASS", b".") for f in self.filt], np.int8)
+        return {"ref1": _upper(ref1), "alt1": _upper(alt1), "pass": passed,
+                "aa1": np.zeros(len(self), np.uint8)}
+
     def genotypes(self, rows: np.ndarray, cols: np.ndarray, fields: Sequence[str] = (),
                   fast: bool = True) -> GenotypeData:
         """Decode the genotypes of some records.
@@ -339,6 +385,11 @@ class VariantBatch:
         raise NotImplementedError
 
 
+def _upper(c: np.ndarray) -> np.ndarray:
+    """ASCII upper case of byte codes."""
+    return np.where((c >= 97) & (c <= 122), c - 32, c).astype(np.uint8)
+
+
 def _info_get(info: bytes, key: bytes) -> bytes | None:
     if info.startswith(key):
         v = info[len(key):]
@@ -352,33 +403,80 @@ def _info_get(info: bytes, key: bytes) -> bytes | None:
 
 
 class TextBatch(VariantBatch):
-    """Records of VCF text: the raw bytes, the tab positions and the fixed columns."""
+    """Records of VCF text: the raw bytes, the tab positions, and the fixed columns (split
+    per line only when asked for; the common cases are decoded vectorised)."""
+
+    _LAZY = ("ref", "alt", "filt", "_info", "fmt")
 
     def __init__(self, data: bytes, buf: np.ndarray, tabs: np.ndarray, nl: np.ndarray,
-                 starts: np.ndarray, cols: tuple, pos: np.ndarray,
+                 starts: np.ndarray, chrom: str, pos: np.ndarray,
                  lineno: np.ndarray | None, header: VcfHeader, path: str) -> None:
         self._data, self._buf, self._tabs, self._nl, self._starts = data, buf, tabs, nl, starts
-        self.chrom = cols[0][0].decode()
+        self.chrom = chrom
         self.pos = pos
-        _, _, _, self.ref, self.alt, _, self.filt, self._info, self.fmt = (list(c) for c in cols)
         self.lineno = lineno
         self._header = header
         self.path = path
         self._colons = None
+        self._fixed = None
         self._n_samples = len(header.samples)
+
+    def __getattr__(self, name):  # the lazily split fixed columns
+        if name in TextBatch._LAZY:
+            self._split_fixed()
+            return self.__dict__[name]
+        raise AttributeError(name)
+
+    def _split_fixed(self) -> None:
+        d = self._data
+        fixed = [d[a:b].split(b"\t") for a, b in zip(self._starts.tolist(),
+                                                      self._tabs[:, 8].tolist())]
+        cols = tuple(zip(*fixed)) if fixed else ((),) * 9
+        _, _, _, ref, alt, _, filt, info, fmt = (list(c) for c in cols)
+        self.__dict__.update(ref=ref, alt=alt, filt=filt, _info=info, fmt=fmt)
+
+    def codes(self) -> dict[str, np.ndarray]:
+        buf, t, k = self._buf, self._tabs, len(self.pos)
+        ref1 = np.where(t[:, 3] - t[:, 2] == 2, buf.take(t[:, 2] + 1), 0).astype(np.uint8)
+        alt1 = np.where(t[:, 4] - t[:, 3] == 2, buf.take(t[:, 3] + 1), 0).astype(np.uint8)
+        fl = t[:, 6] - t[:, 5] - 1
+        f0 = t[:, 5] + 1
+        is_pass = (fl == 4) & (buf.take(f0) == 80) & (buf[1:].take(f0) == 65) & \
+            (buf[2:].take(f0) == 83) & (buf[3:].take(f0) == 83)
+        passed = np.where(is_pass | ((fl == 1) & (buf.take(f0) == 46)), 1, 0).astype(np.int8)
+        i0 = t[:, 6] + 1          # INFO "AA=X;..." or "AA=X"
+        simple_aa = (buf.take(i0) == 65) & (buf[1:].take(i0) == 65) & \
+            (buf[2:].take(i0) == 61) & np.isin(buf[4:].take(i0), (59, 9))
+        aa1 = np.where(simple_aa, buf[3:].take(i0), 0).astype(np.uint8)
+        del k
+        return {"ref1": _upper(ref1), "alt1": _upper(alt1), "pass": passed,
+                "aa1": _upper(aa1)}
+
+    def _uniform_format(self) -> bytes | None:
+        """The FORMAT of every record when they all have the same one, else None."""
+        t, buf = self._tabs, self._buf
+        w = t[:, 8] - t[:, 7] - 1
+        if not w.size or np.any(w != w[0]):
+            return None
+        f0 = self._data[int(t[0, 7]) + 1:int(t[0, 8])]
+        idx = t[:, 7, None] + 1 + np.arange(w[0])
+        if not np.all(buf.take(idx) == np.frombuffer(f0, np.uint8)):
+            return None
+        return f0
 
     def info(self, rows, key):
         kb = key.encode() + b"="
-        return [_info_get(self._info[i], kb) for i in rows]
+        info = self._info
+        return [_info_get(info[i], kb) for i in rows]
 
     def slice(self, a, z):
         out = object.__new__(TextBatch)
         out.__dict__.update(self.__dict__)
         out._tabs, out._nl, out._starts = self._tabs[a:z], self._nl[a:z], self._starts[a:z]
         out.pos = self.pos[a:z]
-        out.ref, out.alt, out.filt, out.fmt = (self.ref[a:z], self.alt[a:z], self.filt[a:z],
-                                               self.fmt[a:z])
-        out._info = self._info[a:z]
+        for name in TextBatch._LAZY:
+            if name in self.__dict__:
+                out.__dict__[name] = self.__dict__[name][a:z]
         out.lineno = None if self.lineno is None else self.lineno[a:z]
         return out
 
@@ -389,14 +487,14 @@ class TextBatch(VariantBatch):
     def _colon_index(self):
         """Positions of ':' (with sentinels) and a lazy inclusive cumulative count."""
         if self._colons is None:
-            is_colon = self._buf == 58
-            colpos = np.concatenate([np.flatnonzero(is_colon),
-                                     np.full(16, self._buf.size + 1, np.int64)])
+            buf = self._buf   # not self: no reference cycle keeping batches alive
+            colpos = np.concatenate([np.flatnonzero(buf == 58),
+                                     np.full(16, buf.size + 1, np.int64)])
             cache: dict[str, np.ndarray] = {}
 
             def cc_fn() -> np.ndarray:
                 if "cc" not in cache:
-                    cache["cc"] = np.cumsum(self._buf == 58, dtype=np.int32)
+                    cache["cc"] = np.cumsum(buf == 58, dtype=np.int32)
                 return cache["cc"]
 
             self._colons = (colpos, cc_fn)
@@ -406,8 +504,11 @@ class TextBatch(VariantBatch):
         rows = np.asarray(rows, dtype=np.int64)
         cols = np.asarray(cols, dtype=np.int64)
         r, s = rows.size, cols.size
-        fmts = [self.fmt[i] for i in rows.tolist()]
-        gt_first = np.array([f == b"GT" or f.startswith(b"GT:") for f in fmts], dtype=bool)
+        f0 = self._uniform_format()
+        fmts = [f0] * r if f0 is not None else [self.fmt[i] for i in rows.tolist()]
+        firsts = {f: f == b"GT" or f.startswith(b"GT:") for f in set(fmts)}
+        gt_first = np.array([firsts[f] for f in fmts], dtype=bool) if len(firsts) > 1 \
+            else np.full(r, all(firsts.values()), bool)
         for i in np.flatnonzero(~gt_first).tolist():
             if b"GT" not in fmts[i].split(b":"):
                 name, ln = self.where(int(rows[i]))
@@ -435,17 +536,35 @@ class TextBatch(VariantBatch):
                 ext = np.concatenate([tr[:, 9:], nlr[:, None]], axis=1)
                 p = tr[:, 8 + cols] + 1
                 e = ext[:, cols]
-            alleles, ok = _decode_gt(self._buf, p, e)
+            alleles, ok, hap = _decode_gt(self._buf, p, e)
             if fields:
                 colpos, cc_fn = self._colon_index()
                 first = np.searchsorted(colpos, tr[:, 8])
                 total = np.searchsorted(colpos, nlr) - first
                 groups: dict[bytes, list[int]] = {}
-                for i, f in enumerate(fmts):
-                    groups.setdefault(f, []).append(i)
+                if f0 is not None:
+                    groups[f0] = list(range(r))
+                else:
+                    for i, f in enumerate(fmts):
+                        groups.setdefault(f, []).append(i)
+                want = {f.encode() for f in fields}
                 for f, idx in groups.items():
                     keys = f.split(b":")
                     nk = len(keys)
+                    last = max((keys.index(x) for x in want if x in keys), default=0)
+                    if last and keys[0] == b"GT" and all(x in want for x in keys[1:last + 1]):
+                        # GT then only wanted integers: read them one after the other
+                        sel = np.array(idx) if len(idx) < r else slice(None)
+                        st = p[sel] + np.where(hap[sel], 2, 4)
+                        ee = e[sel]
+                        good = np.ones(st.shape, bool)
+                        for k in range(1, last + 1):
+                            v, w, okk = _scan_uint(self._buf, st, ee)
+                            vals[keys[k].decode()][sel] = v
+                            good &= okk
+                            st = st + w + 1
+                        ok[sel] &= good.all(axis=1)
+                        continue
                     sel = np.array(idx) if len(idx) < r else slice(None)
                     reg = total[sel] == self._n_samples * (nk - 1)
                     for part, is_reg in ((reg, True), (~reg, False)):
@@ -576,26 +695,32 @@ def _parse_text(data: bytes, header: VcfHeader, path: str,
     if b"\r" in data:
         data = data.replace(b"\r\n", b"\n")
     raw = np.frombuffer(data, np.uint8)
-    nl = np.flatnonzero(raw == 10)
+    # one pass for tabs and newlines: the only bytes below 11 in VCF text
+    ctl = np.flatnonzero(raw < 11)
+    is_nl = raw[ctl] == 10
+    nl = ctl[is_nl]
     starts = np.empty(nl.size, np.int64)
     if nl.size:
         starts[0] = 0
         starts[1:] = nl[:-1] + 1
     lineno = None if lineno0 is None else lineno0 + np.arange(nl.size, dtype=np.int64)
     empty = nl == starts
-    if empty.any():
-        keep = ~empty
-        lineno = None if lineno is None else lineno[keep]
-        data = b"\n".join(ln for ln in data.split(b"\n") if ln) + b"\n"
-        raw = np.frombuffer(data, np.uint8)
+    if empty.any() or not np.all((raw[ctl] == 9) | is_nl):
+        if empty.any():
+            lineno = None if lineno is None else lineno[~empty]
+            data = b"\n".join(ln for ln in data.split(b"\n") if ln) + b"\n"
+            raw = np.frombuffer(data, np.uint8)
         nl = np.flatnonzero(raw == 10)
         starts = np.empty(nl.size, np.int64)
-        starts[0] = 0
-        starts[1:] = nl[:-1] + 1
+        if nl.size:
+            starts[0] = 0
+            starts[1:] = nl[:-1] + 1
+        tabs = np.flatnonzero(raw == 9)
+    else:
+        tabs = ctl[~is_nl]
     if nl.size == 0:
         return []
     buf = np.frombuffer(data + _PAD, np.uint8)
-    tabs = np.flatnonzero(raw == 9)
     ntab = 8 + len(header.samples)
     per_line = np.diff(np.searchsorted(tabs, nl), prepend=0)
     bad = np.flatnonzero(per_line != ntab)
@@ -611,28 +736,42 @@ def _parse_text(data: bytes, header: VcfHeader, path: str,
         raise VcfFormatError(f"{name} has {per_line[i] + 1} columns, the header has "
                              f"{ntab + 1} (9 + {len(header.samples)} samples){hint}", path, ln)
     tabs = tabs.reshape(nl.size, ntab)
-    e8 = tabs[:, 8].tolist()
-    fixed = [data[a:b].split(b"\t") for a, b in zip(starts.tolist(), e8)]
-    cols = tuple(zip(*fixed))
-    try:
-        pos = np.array(list(map(int, cols[1])), dtype=np.int64)
-    except ValueError:
-        for i, v in enumerate(cols[1]):
-            if not v.isdigit():
-                raise VcfFormatError(f"POS {v.decode(errors='replace')!r} is not a positive "
-                                     "integer", path,
-                                     None if lineno is None else int(lineno[i])) from None
-        raise
-    chroms = cols[0]
-    if chroms[0] == chroms[-1] and len(set(chroms)) == 1:
-        return [TextBatch(data, buf, tabs, nl, starts, cols, pos, lineno, header, path)]
+    pos, good = _parse_pos(buf, tabs[:, 0] + 1, tabs[:, 1] - tabs[:, 0] - 1)
+    if not good.all():
+        i = int(np.flatnonzero(~good)[0])
+        v = data[int(tabs[i, 0]) + 1:int(tabs[i, 1])]
+        raise VcfFormatError(f"POS {v.decode(errors='replace')!r} is not a positive integer",
+                             path, None if lineno is None else int(lineno[i]))
+    c0 = data[int(starts[0]):int(tabs[0, 0])]
+    clen = tabs[:, 0] - starts
+    same = bool(np.all(clen == len(c0)))
+    if same and len(c0):
+        idx = starts[:, None] + np.arange(len(c0))
+        same = bool(np.all(buf.take(idx) == np.frombuffer(c0, np.uint8)))
+    if same:
+        return [TextBatch(data, buf, tabs, nl, starts, c0.decode(errors="replace"), pos,
+                          lineno, header, path)]
+    chroms = [data[a:b] for a, b in zip(starts.tolist(), tabs[:, 0].tolist())]
     cut = [0] + [i for i in range(1, len(chroms)) if chroms[i] != chroms[i - 1]] + [len(chroms)]
     out = []
     for a, b in zip(cut[:-1], cut[1:]):
-        sub = tuple(c[a:b] for c in cols)
-        out.append(TextBatch(data, buf, tabs[a:b], nl[a:b], starts[a:b], sub, pos[a:b],
-                             None if lineno is None else lineno[a:b], header, path))
+        out.append(TextBatch(data, buf, tabs[a:b], nl[a:b], starts[a:b],
+                             chroms[a].decode(errors="replace"),
+                             pos[a:b], None if lineno is None else lineno[a:b], header, path))
     return out
+
+
+def _parse_pos(buf: np.ndarray, s: np.ndarray, w: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """POS columns ``buf[s:s+w]`` as int64; ``good`` False unless 1-18 digits, > 0."""
+    wmax = int(w.max()) if w.size else 0
+    val = np.zeros(s.shape, np.int64)
+    good = (w >= 1) & (w <= 18)
+    for j in range(min(wmax, 18)):
+        d = buf[j:].take(s) - np.uint8(48)
+        inr = w > j
+        good &= (d <= 9) | ~inr
+        val = np.where(inr, val * 10 + d, val)
+    return val, good & (val > 0)
 
 
 def _read_header(fh, path: str, chunk: int) -> tuple[VcfHeader, bytes]:
@@ -689,6 +828,128 @@ def _line_blocks(fh, first: bytes, path: str, chunk: int) -> Iterator[bytes]:
             continue
         carry = data[cut:]
         yield data[:cut]
+
+
+
+# ---------------------------------------------------------------------------- inflating
+
+class _Libdeflate:
+    """The system's libdeflate (the inflater Debian's own htslib is built with), if any."""
+
+    _lib = None
+    _tried = False
+
+    @classmethod
+    def get(cls):
+        if os.environ.get("DRIFTBAND_INFLATE", "").lower() == "htslib":
+            return None
+        if not cls._tried:
+            cls._tried = True
+            import ctypes.util
+
+            name = ctypes.util.find_library("deflate")
+            try:
+                lib = ctypes.CDLL(name or "libdeflate.so.0")
+                lib.libdeflate_alloc_decompressor.restype = ctypes.c_void_p
+                lib.libdeflate_deflate_decompress.argtypes = [
+                    ctypes.c_void_p, ctypes.c_void_p, ctypes.c_size_t, ctypes.c_void_p,
+                    ctypes.c_size_t, ctypes.POINTER(ctypes.c_size_t)]
+                lib.libdeflate_deflate_decompress.restype = ctypes.c_int
+                lib.libdeflate_crc32.argtypes = [ctypes.c_uint32, ctypes.c_void_p,
+                                                 ctypes.c_size_t]
+                lib.libdeflate_crc32.restype = ctypes.c_uint32
+                cls._lib = (lib, lib.libdeflate_alloc_decompressor())
+            except (OSError, AttributeError):
+                cls._lib = None
+        return cls._lib
+
+
+class _DeflateBGZF:
+    """Sequential BGZF reading with libdeflate; ``seek`` takes htslib virtual offsets
+    (``TabixFile.tell()``), so htslib still opens, indexes and seeks."""
+
+    def __init__(self, path: str, lib) -> None:
+        self._fh = open(path, "rb")
+        self._lib, self._dec = lib
+        self._cbuf = b""
+        self._skip = 0
+
+    def seek(self, voffset: int) -> None:
+        self._fh.seek(voffset >> 16)
+        self._cbuf = b""
+        self._skip = voffset & 0xFFFF
+
+    def _blocks(self, want: int) -> list[tuple[int, int, int, int]]:
+        """Whole blocks of the compressed buffer: (data offset, data length, isize, crc)."""
+        out, off, total = [], 0, 0
+        cb = self._cbuf
+        while total < want:
+            if len(cb) - off < 18 or len(cb) - off < int.from_bytes(cb[off + 16:off + 18],
+                                                                    "little") + 1:
+                more = self._fh.read(max(1 << 20, want // 2))
+                if not more:
+                    if off < len(cb):
+                        raise OSError("truncated BGZF block")
+                    break
+                cb = cb + more   # keep the offsets of the blocks found so far
+                self._cbuf = cb
+                continue
+            if cb[off:off + 4] != b"\x1f\x8b\x08\x04" or cb[off + 12:off + 14] != b"BC":
+                raise OSError("not a BGZF block")
+            xlen = int.from_bytes(cb[off + 10:off + 12], "little")
+            bsize = int.from_bytes(cb[off + 16:off + 18], "little") + 1
+            crc = int.from_bytes(cb[off + bsize - 8:off + bsize - 4], "little")
+            isize = int.from_bytes(cb[off + bsize - 4:off + bsize], "little")
+            out.append((off + 12 + xlen, bsize - 20 - xlen, isize, crc))
+            total += isize
+            off += bsize
+        self._consumed = off
+        return out
+
+    def read(self, n: int) -> bytes:
+        import ctypes
+
+        blocks = self._blocks(n + self._skip)
+        if not blocks:
+            return b""
+        total = sum(b[2] for b in blocks)
+        out = bytearray(total)
+        dst = ctypes.addressof((ctypes.c_char * max(total, 1)).from_buffer(out)) if total \
+            else 0
+        src = ctypes.cast(ctypes.c_char_p(self._cbuf), ctypes.c_void_p).value
+        got = ctypes.c_size_t()
+        pos = 0
+        for off, clen, isize, crc in blocks:
+            if isize:
+                r = self._lib.libdeflate_deflate_decompress(self._dec, src + off, clen,
+                                                            dst + pos, isize,
+                                                            ctypes.byref(got))
+                if r != 0 or got.value != isize or \
+                        self._lib.libdeflate_crc32(0, dst + pos, isize) != crc:
+                    raise OSError("corrupt BGZF block (inflate or CRC check failed)")
+            pos += isize
+        self._cbuf = self._cbuf[self._consumed:]
+        data = bytes(out)
+        if self._skip:
+            data, self._skip = data[self._skip:], 0
+        return data
+
+    def close(self) -> None:
+        self._fh.close()
+
+    def __enter__(self):
+        return self
+
+    def __exit__(self, *exc) -> None:
+        self.close()
+
+
+def _open_bgzf(path: str):
+    """A BGZF reader: libdeflate when available (faster), else htslib's (pysam)."""
+    lib = _Libdeflate.get()
+    if lib is not None:
+        return _DeflateBGZF(path, lib)
+    return _QuietClose(libcbgzf.BGZFile(path))
 
 
 # ---------------------------------------------------------------------------- sources
@@ -856,7 +1117,7 @@ class VcfSource:
             return open(self.path, "rb")
         if self.kind == "gzip":
             return gzip.open(self.path, "rb")
-        return _QuietClose(libcbgzf.BGZFile(self.path))
+        return _open_bgzf(self.path)
 
     @property
     def indexed(self) -> bool:
@@ -908,7 +1169,7 @@ class VcfSource:
                                      self.path) from None
             voff = self._tabix.tell()
         if self._bgzf is None:
-            self._bgzf = libcbgzf.BGZFile(self.path)
+            self._bgzf = _open_bgzf(self.path)
         self._bgzf.seek(voff)
         last = -1
         for block in _line_blocks(self._bgzf, first.encode() + b"\n", self.path, batch_bytes):
@@ -1039,6 +1300,9 @@ class _QuietClose:
 
     def read(self, n: int) -> bytes:
         return self._fh.read(n)
+
+    def seek(self, voffset: int) -> None:
+        self._fh.seek(voffset)
 
     def close(self) -> None:
         with contextlib.suppress(OSError), _quiet_htslib():
