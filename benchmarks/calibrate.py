@@ -13,10 +13,14 @@ gamma shape 0.3; 1e5 sites per class; n = 20 gene copies; 50 blocks):
   neutral-band share (truth printed, about 0.1).
 
 Run: python benchmarks/calibrate.py [R] [B] [workers]   (defaults 100, 100, 2)
+Each replicate's result is appended as a JSON line to ``benchmarks/_data/calibration.jsonl``
+as it finishes; ``python benchmarks/calibrate.py --summary`` prints the table from that
+file (e.g. for a run cut short).
 """
 
 from __future__ import annotations
 
+import json
 import os
 import sys
 import time
@@ -78,22 +82,38 @@ def one_replicate(args) -> dict[str, float]:
     return out
 
 
-def main() -> None:
-    R = int(sys.argv[1]) if len(sys.argv) > 1 else 100
-    B = int(sys.argv[2]) if len(sys.argv) > 2 else 100
-    workers = int(sys.argv[3]) if len(sys.argv) > 3 else 2
+LOG = os.path.join(os.path.dirname(os.path.abspath(__file__)), "_data", "calibration.jsonl")
+
+
+def _run(R: int, B: int, workers: int) -> None:
+    os.makedirs(os.path.dirname(LOG), exist_ok=True)
     t0 = time.perf_counter()
-    res = {}
-    with ProcessPoolExecutor(max_workers=workers) as pool:
-        for sc in SCENARIOS:
-            res[sc] = list(pool.map(one_replicate, [(sc, r, B) for r in range(R)]))
-    dt = time.perf_counter() - t0
-    print(f"calibration: R = {R} replicate studies per scenario, B = {B} bootstrap "
-          f"replicates, {dt:.0f} s")
+    tasks = [(sc, r, B) for r in range(R) for sc in SCENARIOS]
+    with open(LOG, "w") as log, ProcessPoolExecutor(max_workers=workers) as pool:
+        log.write(json.dumps({"R": R, "B": B}) + "\n")
+        for (sc, r, _b), out in zip(tasks, pool.map(one_replicate, tasks)):
+            log.write(json.dumps({"scenario": sc, "replicate": r, **out}) + "\n")
+            log.flush()
+    print(f"{time.perf_counter() - t0:.0f} s for {len(tasks)} replicate studies")
+
+
+def main() -> None:
+    if sys.argv[1:2] != ["--summary"]:
+        R = int(sys.argv[1]) if len(sys.argv) > 1 else 100
+        B = int(sys.argv[2]) if len(sys.argv) > 2 else 100
+        workers = int(sys.argv[3]) if len(sys.argv) > 3 else 2
+        _run(R, B, workers)
+    with open(LOG) as fh:
+        head = json.loads(fh.readline())
+        lines = [json.loads(x) for x in fh if x.strip()]
+    res = {sc: [x for x in lines if x["scenario"] == sc] for sc in SCENARIOS}
+    print(f"calibration: {', '.join(f'{sc}: R = {len(v)}' for sc, v in res.items())} "
+          f"replicate studies, B = {head['B']} bootstrap replicates")
     print(f"{'quantity':<58} {'value':>7} {'target':>10}")
 
     def rate(sc, key, f=lambda v: v):
-        v = np.array([f(r[key]) for r in res[sc] if np.isfinite(r[key])], dtype=float)
+        v = np.array([f(r[key]) for r in res[sc] if r.get(key) is not None
+                      and np.isfinite(r[key])], dtype=float)
         return float(v.mean()), v.size
 
     cov = np.mean([r[k] for r in res["same"] for k in ("cover_A", "cover_B")])
