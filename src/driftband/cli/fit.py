@@ -87,21 +87,21 @@ def add_parser(subparsers) -> None:
     b.add_argument("--level", type=float, default=0.95,
                    help="confidence level of percentile intervals (default 0.95)")
     b.add_argument("--seed", type=int, default=1, help="random seed (default 1)")
-    b.add_argument("--workers", type=int, default=None,
-                   help="worker processes (default: the cores available)")
+    b.add_argument("--workers", type=int, default=None, metavar="N",
+                   help="local worker processes for the refits (default: the cores "
+                        "available; 1 runs them in this process)")
     b.add_argument("--scheduler", metavar="ADDRESS",
-                   help="address of a dask.distributed scheduler to run replicates on")
+                   help="run the refits on the dask.distributed scheduler at ADDRESS, e.g. "
+                        "tcp://HOST:8786 (needs driftband[cluster]; see the README, "
+                        "'Running on a cluster')")
     add_common_arguments(p)
     p.set_defaults(runner=run)
 
 
 def run(args: argparse.Namespace) -> int:
     """Run ``driftband fit``."""
-    from ..fit.api import FitOptions, fit_population, pool_populations
-    from ..fit.io import fit_document, write_bands_tsv, write_fit_json
+    from .._parallel import connect, resolve_workers
     from ..fit.models import parse_models
-    from ..prf.dfe import DfeExpectation
-    from ..spectra.io import read_spectra
 
     check_outputs([args.output, args.bands_tsv], args.force)
     edges = parse_bands(args.bands)
@@ -116,6 +116,25 @@ def run(args: argparse.Namespace) -> int:
     if unknown:
         raise OptionError(f"--label {unknown[0]}=...: {unknown[0]} is not one of the spectra "
                           "files given")
+    resolve_workers(args.workers)
+    if args.scheduler and not args.bootstrap:
+        log.warning("--scheduler is used by the bootstrap only; without --bootstrap it is "
+                    "ignored")
+    # connect before the point estimates: an unreachable scheduler fails at once
+    client = connect(args.scheduler) if args.scheduler and args.bootstrap else None
+    try:
+        return _run(args, edges, eps, models, labels, client)
+    finally:
+        if client is not None:
+            client.close()
+
+
+def _run(args: argparse.Namespace, edges, eps, models, labels, client) -> int:
+    from ..fit.api import FitOptions, fit_population, pool_populations
+    from ..fit.io import fit_document, write_bands_tsv, write_fit_json
+    from ..prf.dfe import DfeExpectation
+    from ..spectra.io import read_spectra
+
     options = FitOptions(args.neutral, args.selected, models, eps, args.equilibrium, edges)
     sets = [(p, str(labels.get(p, "")), read_spectra(p)) for p in args.spectra]
     wanted = args.populations.split(",") if args.populations else None
@@ -136,10 +155,13 @@ def run(args: argparse.Namespace) -> int:
         pops = {(f"{lab}/{n}" if lab else n): pop
                 for _p, lab, ss in sets for n, pop in ss.populations.items()}
         bootstrap_fits(fits, pops, options, args.bootstrap, seed=args.seed,
-                       level=args.level, workers=args.workers, scheduler=args.scheduler)
+                       level=args.level, workers=args.workers, scheduler=client)
     opts = options.to_dict() | {"bootstrap": args.bootstrap, "seed": args.seed,
                                 "level": args.level}
     prov = provenance(opts, {"spectra": [file_record(p) for p in args.spectra]})
+    if args.bootstrap:   # how the refits ran (does not change the results)
+        prov["execution"] = {"scheduler": args.scheduler or None,
+                             "workers": None if args.scheduler else args.workers}
     doc = fit_document(fits, opts, prov)
     write_fit_json(doc, args.output, force=args.force)
     if args.bands_tsv:

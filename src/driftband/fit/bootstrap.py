@@ -11,7 +11,6 @@ from __future__ import annotations
 import logging
 import warnings
 import zlib
-from concurrent.futures import ProcessPoolExecutor
 from typing import Any
 
 import numpy as np
@@ -95,25 +94,20 @@ def _replicate_task(args) -> list[dict[str, Any]]:
     return out
 
 
-def _map(tasks: list, workers: int | None, scheduler: str | None) -> list:
-    if scheduler:
-        from .._parallel import dask_map
+def _map(tasks: list, workers: int | None, scheduler) -> list:
+    """Refit the batches on local worker processes or a dask cluster (results in task
+    order; see :mod:`driftband._parallel`)."""
+    from .._parallel import parallel_map
 
-        return dask_map(_replicate_task, tasks, scheduler)
-    if workers is None:
-        import os
-
-        workers = len(os.sched_getaffinity(0)) if hasattr(os, "sched_getaffinity") else (
-            os.cpu_count() or 1)
-    if workers <= 1 or len(tasks) <= 1:
-        return [_replicate_task(t) for t in tasks]
-    with ProcessPoolExecutor(max_workers=workers) as pool:
-        return list(pool.map(_replicate_task, tasks))
+    if scheduler is None and len(tasks) <= 1:
+        workers = 1
+    return parallel_map(_replicate_task, tasks, workers=workers, scheduler=scheduler,
+                        name="bootstrap")
 
 
 def bootstrap_fits(fits: list[PopulationFit], pops: dict[str, Any], options: FitOptions,
                    replicates: int, seed: int = 1, level: float = 0.95,
-                   workers: int | None = None, scheduler: str | None = None,
+                   workers: int | None = None, scheduler: Any = None,
                    batch: int = 10) -> None:
     """Block-bootstrap every population fit in place (fills ``PopulationFit.bootstrap``).
 
@@ -129,9 +123,9 @@ def bootstrap_fits(fits: list[PopulationFit], pops: dict[str, Any], options: Fit
     level : float
         Confidence level of the percentile intervals.
     workers : int, optional
-        Local worker processes (default: available cores).
-    scheduler : str, optional
-        A dask.distributed scheduler address.
+        Local worker processes (default: available cores; 1 runs in this process).
+    scheduler : str or distributed.Client, optional
+        A dask.distributed scheduler address (or Client) to run the refits on instead.
     batch : int
         Replicates per task.
 

@@ -1,0 +1,567 @@
+"""Independent tasks on local worker processes or on a Dask cluster (DESIGN §5).
+
+One small layer serves region counting (``driftband spectra``) and bootstrap refits
+(``driftband fit --bootstrap``):
+
+* **Local** (the default, needs nothing beyond the standard library):
+  :class:`concurrent.futures.ProcessPoolExecutor` with ``workers`` processes (default: the
+  cores this process may use). ``workers=1`` runs the tasks in this process, one after the
+  other. A worker process that dies (killed, out of memory) breaks the pool; the pool is
+  started again and the tasks that had not returned are submitted again (at most
+  ``retries`` times each).
+* **Cluster**: ``scheduler`` is the address of a running ``dask.distributed`` scheduler
+  (``tcp://HOST:8786``) or a :class:`distributed.Client`. Tasks are submitted with
+  ``retries=``; a task whose worker dies is run again elsewhere by the scheduler (up to
+  ``distributed.scheduler.allowed-failures`` times). Dask is an optional dependency
+  (``pip install 'driftband[cluster]'``).
+
+Whatever runs the tasks, a result is kept once per task index (a task run twice after a
+failure is never counted twice, a task never returned is never silently missing), and
+:func:`map_reduce` combines results in a tree whose shape depends only on the number of
+tasks, in task order, so the outcome is the same for 1, 2 or N workers and for local or
+cluster runs. At most a few tasks per worker are in flight, so memory stays bounded by a
+few tasks, not by the whole job.
+
+Errors a user can fix (:class:`~driftband.exceptions.DriftbandError`) raised in a task are
+sent back as values, not retried, and raised again here, unchanged.
+"""
+
+from __future__ import annotations
+
+import concurrent.futures as cf
+import contextlib
+import gc
+import logging
+import multiprocessing
+import os
+import signal
+import socket
+import sys
+import threading
+import time
+from collections.abc import Callable, Iterable
+from concurrent.futures.process import BrokenProcessPool
+from typing import Any
+
+from .exceptions import DriftbandError, OptionError
+
+__all__ = [
+    "CONNECT_TIMEOUT",
+    "DEFAULT_RETRIES",
+    "WorkerLostError",
+    "available_cores",
+    "connect",
+    "dask_map",
+    "map_reduce",
+    "parallel_map",
+    "resolve_workers",
+    "tree_reduce",
+]
+
+log = logging.getLogger("driftband")
+
+#: Times a task is submitted again after its worker died (or, on a cluster, after it
+#: raised an unexpected error).
+DEFAULT_RETRIES = 3
+#: Seconds to wait for a dask scheduler to answer (environment variable
+#: ``DRIFTBAND_CONNECT_TIMEOUT`` overrides it).
+CONNECT_TIMEOUT = 10.0
+_CLUSTER_HINT = "pip install 'driftband[cluster]'"
+
+
+class WorkerLostError(DriftbandError):
+    """Worker processes kept dying on the same tasks (e.g. out of memory)."""
+
+
+# ---------------------------------------------------------------------------- workers
+
+def available_cores() -> int:
+    """Cores this process may run on (its CPU affinity where known), at least 1."""
+    try:
+        return max(1, len(os.sched_getaffinity(0)))
+    except (AttributeError, OSError):
+        return max(1, os.cpu_count() or 1)
+
+
+def resolve_workers(workers: int | None) -> int:
+    """The number of local worker processes: ``workers``, or :func:`available_cores`.
+
+    Raises
+    ------
+    OptionError
+        ``workers`` below 1.
+    """
+    if workers is None:
+        return available_cores()
+    if isinstance(workers, bool) or not isinstance(workers, int) or workers < 1:
+        raise OptionError(f"--workers must be a whole number >= 1, got {workers!r}")
+    return workers
+
+
+def _call(fn: Callable[[Any], Any], task: Any) -> tuple[bool, Any]:
+    """Run ``fn(task)`` in a worker; a user-fixable error comes back as a value."""
+    try:
+        return True, fn(task)
+    except DriftbandError as err:
+        return False, err
+
+
+def _init_local_worker() -> None:
+    """Initializer of local worker processes."""
+    # Ctrl-C goes to the whole process group: the parent handles it and stops the workers.
+    signal.signal(signal.SIGINT, signal.SIG_IGN)
+    # One BLAS thread per worker process (takes effect where numpy is not yet loaded,
+    # i.e. in spawned workers; forked ones inherit the parent's BLAS).
+    for key in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS"):
+        os.environ.setdefault(key, "1")
+
+
+def _mp_context():
+    """Start method of local workers: the platform's default, but never ``fork`` from a
+    process that runs other threads (forking then can deadlock)."""
+    method = multiprocessing.get_start_method(allow_none=True) or \
+        multiprocessing.get_context().get_start_method()
+    if method == "fork" and threading.active_count() > 1:
+        method = "spawn"
+    return multiprocessing.get_context(method)
+
+
+class _LocalBackend:
+    """A ProcessPoolExecutor that is started again when a worker process dies."""
+
+    broken_errors: tuple[type[BaseException], ...] = (BrokenProcessPool,)
+
+    def __init__(self, workers: int) -> None:
+        self.workers = workers
+        self.pool: cf.ProcessPoolExecutor | None = None
+        self.start()
+
+    @property
+    def slots(self) -> int:
+        return self.workers
+
+    def start(self) -> None:
+        self.pool = cf.ProcessPoolExecutor(max_workers=self.workers, mp_context=_mp_context(),
+                                           initializer=_init_local_worker)
+
+    def restart(self) -> None:
+        self.abort()
+        self.start()
+
+    def submit(self, fn, task, index: int, attempt: int):
+        return self.pool.submit(_call, fn, task)
+
+    def wait(self, futures) -> set:
+        done, _ = cf.wait(futures, return_when=cf.FIRST_COMPLETED)
+        return done
+
+    def abort(self) -> None:
+        """Stop at once: cancel queued tasks and end the worker processes."""
+        pool, self.pool = self.pool, None
+        if pool is None:
+            return
+        procs = list((getattr(pool, "_processes", None) or {}).values())
+        pool.shutdown(wait=False, cancel_futures=True)
+        for p in procs:
+            with contextlib.suppress(Exception):
+                p.terminate()
+        for p in procs:
+            with contextlib.suppress(Exception):
+                p.join(5)
+
+    def close(self) -> None:
+        pool, self.pool = self.pool, None
+        if pool is not None:
+            pool.shutdown(wait=True)
+
+
+class _DaskBackend:
+    """Tasks on a dask.distributed cluster through a Client."""
+
+    def __init__(self, client, retries: int, owned: bool, name: str) -> None:
+        from distributed import KilledWorker
+
+        self.client = client
+        self.retries = retries
+        self.owned = owned
+        self.name = name
+        self.broken_errors = (KilledWorker,)
+        self._slots = 0
+        self._checked = 0.0
+        self._token = os.urandom(4).hex()
+
+    @property
+    def slots(self) -> int:
+        now = time.monotonic()
+        if now - self._checked > 2.0:   # clusters grow and shrink (adaptive, batch jobs)
+            self._checked = now
+            try:
+                self._slots = int(sum(self.client.nthreads().values()))
+            except Exception:  # a transient scheduler hiccup: keep the last figure
+                pass
+        return max(self._slots, 2)
+
+    def submit(self, fn, task, index: int, attempt: int):
+        return self.client.submit(_call, fn, task, retries=self.retries, pure=False,
+                                  key=f"driftband-{self.name}-{self._token}-{index}-{attempt}",
+                                  priority=-index)
+
+    def wait(self, futures) -> set:
+        from distributed import wait
+
+        with self.client.as_current():
+            return set(wait(list(futures), return_when="FIRST_COMPLETED").done)
+
+    def restart(self) -> None:  # the scheduler replaces lost workers' tasks itself
+        pass
+
+    def abort(self) -> None:
+        self.close()
+
+    def close(self) -> None:
+        if self.owned and self.client is not None:
+            with _quiet_dask(), contextlib.suppress(Exception):
+                self.client.close()
+        self.client = None
+
+
+# ---------------------------------------------------------------------------- dask
+
+@contextlib.contextmanager
+def _quiet_dask():
+    """Keep distributed's connection chatter off stderr (driftband says it in one line)."""
+    names = ("distributed", "tornado", "asyncio")
+    old = {n: logging.getLogger(n).level for n in names}
+    for n in names:
+        logging.getLogger(n).setLevel(logging.CRITICAL)
+    hook = sys.unraisablehook
+    sys.unraisablehook = lambda *_: None
+    try:
+        yield
+    finally:
+        gc.collect()   # a half-made Client is closed here, silently
+        sys.unraisablehook = hook
+        for n, lv in old.items():
+            logging.getLogger(n).setLevel(lv)
+
+
+def _connect_timeout(timeout: float | None) -> float:
+    if timeout is not None:
+        return float(timeout)
+    text = os.environ.get("DRIFTBAND_CONNECT_TIMEOUT")
+    if not text:
+        return CONNECT_TIMEOUT
+    try:
+        value = float(text)
+    except ValueError:
+        value = -1.0
+    if not value > 0:
+        raise OptionError(f"DRIFTBAND_CONNECT_TIMEOUT={text!r}: give a number of seconds > 0")
+    return value
+
+
+def _probe(address: str, timeout: float) -> None:
+    """Fail fast, in one line, when nothing listens at a TCP scheduler address."""
+    from distributed.comm import parse_address, parse_host_port
+
+    try:
+        scheme, loc = parse_address(address)
+    except ValueError as err:
+        raise OptionError(f"--scheduler {address!r}: not a scheduler address ({err}); "
+                          "expected e.g. tcp://HOST:8786") from None
+    if scheme not in ("tcp", "tls"):
+        return
+    try:
+        host, port = parse_host_port(loc, 8786)
+    except ValueError as err:
+        raise OptionError(f"--scheduler {address!r}: not a scheduler address ({err}); "
+                          "expected e.g. tcp://HOST:8786") from None
+    try:
+        with socket.create_connection((host, port), timeout=timeout):
+            pass
+    except OSError as err:
+        why = "timed out" if isinstance(err, TimeoutError | socket.timeout) else (
+            err.strerror or type(err).__name__)
+        raise OptionError(f"--scheduler {address}: cannot reach a dask scheduler within "
+                          f"{timeout:g} s ({why}); start one with 'dask scheduler' and check "
+                          "the host, the port and the firewall") from None
+
+
+def connect(address: str, timeout: float | None = None):
+    """A :class:`distributed.Client` of the scheduler at ``address``.
+
+    Parameters
+    ----------
+    address : str
+        E.g. ``tcp://node17:8786`` (a bare ``HOST:PORT`` means TCP).
+    timeout : float, optional
+        Seconds to wait (default :data:`CONNECT_TIMEOUT`, or the environment variable
+        ``DRIFTBAND_CONNECT_TIMEOUT``).
+
+    Raises
+    ------
+    OptionError
+        dask.distributed is not installed, the address is malformed, or no scheduler
+        answers within the timeout (one line).
+    """
+    try:
+        from distributed import Client
+    except ImportError:
+        raise OptionError("--scheduler needs dask.distributed, which is not installed; "
+                          f"install it with: {_CLUSTER_HINT}") from None
+    t = _connect_timeout(timeout)
+    address = address.strip()
+    if "://" not in address:
+        address = "tcp://" + address
+    _probe(address, t)
+    with _quiet_dask():
+        try:
+            client = Client(address, timeout=t, set_as_default=False)
+        except (OSError, TimeoutError, ValueError) as err:
+            msg = str(err).splitlines()[0] if str(err) else type(err).__name__
+            raise OptionError(f"--scheduler {address}: cannot connect to a dask scheduler "
+                              f"within {t:g} s ({msg}); check that 'dask scheduler' runs "
+                              "there and that the client and the cluster use compatible "
+                              "dask versions") from None
+    n = len(client.scheduler_info().get("workers", {}))
+    log.info("connected to the dask scheduler at %s (%d worker(s))", address, n)
+    if n == 0:
+        log.warning("the dask scheduler at %s has no workers yet; tasks wait until "
+                    "workers connect (dask worker %s ...)", address, address)
+    return client
+
+
+def _backend(workers: int | None, scheduler, retries: int, name: str):
+    """``None`` (run in this process), a local pool or a dask backend."""
+    if scheduler is not None and not (isinstance(scheduler, str) and not scheduler.strip()):
+        if isinstance(scheduler, str):
+            return _DaskBackend(connect(scheduler), retries, owned=True, name=name)
+        return _DaskBackend(scheduler, retries, owned=False, name=name)
+    n = resolve_workers(workers)
+    return None if n <= 1 else _LocalBackend(n)
+
+
+# ---------------------------------------------------------------------------- running
+
+def _lost(index: int, attempts: int, err: BaseException | None) -> WorkerLostError:
+    what = f" ({type(err).__name__}: {err})" if err is not None and str(err) else ""
+    return WorkerLostError(f"task {index} was lost {attempts} times because its worker "
+                           f"process died{what}; it may need more memory than a worker has: "
+                           "use fewer workers per machine or smaller tasks (e.g. "
+                           "--region-size)")
+
+
+def _run(fn: Callable[[Any], Any], tasks: Iterable[Any], backend,
+         on_result: Callable[[int, Any], None], window: int | None = None,
+         retries: int = DEFAULT_RETRIES) -> int:
+    """Run every task, calling ``on_result(index, result)`` once per task index.
+
+    ``window`` bounds how far submission may run ahead of the lowest unfinished index
+    (it bounds the results an in-order consumer must buffer). Returns the task count.
+    """
+    it = enumerate(tasks)
+    if backend is None:
+        n = 0
+        for i, task in it:
+            ok, value = _call(fn, task)
+            if not ok:
+                raise value
+            on_result(i, value)
+            n = i + 1
+        return n
+    pending: dict[Any, tuple[int, Any, int]] = {}
+    finished: set[int] = set()
+    lowest_open = [0]   # smallest index not finished yet (for the window)
+    state = {"next": 0, "exhausted": False}
+
+    def fill() -> None:
+        while not state["exhausted"] and len(pending) < 2 * backend.slots + 1:
+            if window is not None and state["next"] >= lowest_open[0] + window:
+                return
+            try:
+                i, task = next(it)
+            except StopIteration:
+                state["exhausted"] = True
+                return
+            state["next"] = i + 1
+            pending[backend.submit(fn, task, i, 0)] = (i, task, 0)
+
+    try:
+        fill()
+        while pending:
+            done = backend.wait(list(pending))
+            broken: list[tuple[int, Any, int, BaseException]] = []
+            for fut in sorted(done, key=lambda f: pending[f][0]):
+                i, task, attempts = pending.pop(fut)
+                try:
+                    ok, value = fut.result()
+                except backend.broken_errors as err:
+                    broken.append((i, task, attempts, err))
+                    continue
+                except cf.CancelledError:
+                    broken.append((i, task, attempts, None))
+                    continue
+                if not ok:
+                    raise value
+                if i < lowest_open[0] or i in finished:  # cannot happen: one future
+                    # per index at a time
+                    raise RuntimeError(f"task {i} returned twice")
+                finished.add(i)
+                on_result(i, value)
+            if broken:
+                if isinstance(backend, _LocalBackend):
+                    # the whole pool is gone: every task not returned is submitted again
+                    broken += [(i, t, a, None) for i, t, a in pending.values()]
+                    pending.clear()
+                    log.warning("a worker process died; restarting the workers and "
+                                "resubmitting %d task(s)", len(broken))
+                    backend.restart()
+                for i, task, attempts, err in sorted(broken, key=lambda x: x[0]):
+                    if attempts >= retries:
+                        raise _lost(i, attempts + 1, err)
+                    pending[backend.submit(fn, task, i, attempts + 1)] = (i, task,
+                                                                          attempts + 1)
+            while lowest_open[0] in finished:
+                finished.discard(lowest_open[0])
+                lowest_open[0] += 1
+            fill()
+    except BaseException:
+        backend.abort()
+        raise
+    backend.close()
+    return state["next"]
+
+
+def parallel_map(fn: Callable[[Any], Any], tasks: Iterable[Any], *,
+                 workers: int | None = None, scheduler=None,
+                 retries: int = DEFAULT_RETRIES, name: str = "task",
+                 on_result: Callable[[int, Any], None] | None = None) -> list:
+    """``[fn(t) for t in tasks]``, run on worker processes or a dask cluster.
+
+    Parameters
+    ----------
+    fn : callable
+        A module-level function (it is pickled by reference for local workers).
+    tasks : iterable
+        Picklable task arguments; consumed lazily (a few per worker in flight).
+    workers : int, optional
+        Local worker processes (default :func:`available_cores`; 1 runs here, in turn).
+    scheduler : str or distributed.Client, optional
+        Run on this dask cluster instead (``workers`` is then ignored).
+    retries : int
+        Resubmissions of a task whose worker died.
+    name : str
+        Label of the tasks (dask keys, messages).
+    on_result : callable, optional
+        Called as ``on_result(index, result)`` as each task finishes (any order).
+
+    Returns
+    -------
+    list
+        Results in task order.
+    """
+    out: dict[int, Any] = {}
+
+    def keep(i: int, value: Any) -> None:
+        out[i] = value
+        if on_result is not None:
+            on_result(i, value)
+
+    n = _run(fn, tasks, _backend(workers, scheduler, retries, name), keep, retries=retries)
+    missing = [i for i in range(n) if i not in out]
+    if missing:  # a guard: _run returns only when every task has returned
+        raise RuntimeError(f"tasks {missing[:5]} returned no result")
+    return [out[i] for i in range(n)]
+
+
+def dask_map(fn: Callable[[Any], Any], tasks: Iterable[Any], scheduler,
+             retries: int = DEFAULT_RETRIES) -> list:
+    """:func:`parallel_map` on a dask cluster (address or Client)."""
+    return parallel_map(fn, tasks, scheduler=scheduler, retries=retries)
+
+
+class _OrderedTree:
+    """Combine values pushed in order in a balanced binary tree of fixed shape.
+
+    The shape depends only on how many values are pushed (a binary counter: two partial
+    results of equal size are combined as soon as both exist), and the left operand is
+    always the earlier one, so the result is the same however the values were computed.
+    At most log2(n) partial results are held.
+    """
+
+    def __init__(self, combine: Callable[[Any, Any], Any]) -> None:
+        self.combine = combine
+        self.stack: list[tuple[int, Any]] = []
+
+    def push(self, value: Any) -> None:
+        size = 1
+        while self.stack and self.stack[-1][0] == size:
+            _, left = self.stack.pop()
+            value = self.combine(left, value)
+            size *= 2
+        self.stack.append((size, value))
+
+    def result(self, empty: Callable[[], Any] | None = None) -> Any:
+        if not self.stack:
+            if empty is None:
+                raise ValueError("nothing to combine")
+            return empty()
+        value = self.stack[-1][1]
+        for _, left in reversed(self.stack[:-1]):
+            value = self.combine(left, value)
+        return value
+
+
+def tree_reduce(values: Iterable[Any], combine: Callable[[Any, Any], Any],
+                empty: Callable[[], Any] | None = None) -> Any:
+    """Combine ``values`` in order in a fixed-shape binary tree (see :func:`map_reduce`)."""
+    tree = _OrderedTree(combine)
+    for v in values:
+        tree.push(v)
+    return tree.result(empty)
+
+
+def map_reduce(fn: Callable[[Any], Any], tasks: Iterable[Any],
+               combine: Callable[[Any, Any], Any], *, empty: Callable[[], Any] | None = None,
+               workers: int | None = None, scheduler=None, retries: int = DEFAULT_RETRIES,
+               name: str = "task", on_result: Callable[[int, Any], None] | None = None
+               ) -> Any:
+    """Run ``fn`` over ``tasks`` in parallel and combine the results in a fixed tree.
+
+    Results are folded in task order as soon as the earlier ones are in, into a binary tree
+    whose shape depends only on the number of tasks: ``((r0+r1)+(r2+r3))+...``. Only the
+    results that arrived ahead of an unfinished task and log2(n) partial sums are held.
+
+    Parameters
+    ----------
+    fn, tasks, workers, scheduler, retries, name, on_result
+        As for :func:`parallel_map`.
+    combine : callable
+        ``combine(earlier, later)``, associative.
+    empty : callable, optional
+        Result for no tasks (an error without it).
+
+    Returns
+    -------
+    object
+        The combined result.
+    """
+    tree = _OrderedTree(combine)
+    buffer: dict[int, Any] = {}
+    nxt = [0]
+
+    def take(i: int, value: Any) -> None:
+        if on_result is not None:
+            on_result(i, value)
+        buffer[i] = value
+        while nxt[0] in buffer:
+            tree.push(buffer.pop(nxt[0]))
+            nxt[0] += 1
+
+    backend = _backend(workers, scheduler, retries, name)
+    window = None if backend is None else max(8, 8 * backend.slots)
+    n = _run(fn, tasks, backend, take, window=window, retries=retries)
+    if buffer or nxt[0] != n:  # a guard: every index is pushed exactly once
+        raise RuntimeError(f"{n - nxt[0]} task result(s) were not combined")
+    return tree.result(empty)
+
