@@ -55,6 +55,24 @@ def test_gamma_mean_spectrum_vs_mpmath(shape, mean):
     assert_allclose(got, want, rtol=1e-10)
 
 
+@pytest.mark.parametrize("n,shape,mean", [
+    (10, 50.0, 100.0),
+    pytest.param(10, 2000.0, 30.0, marks=pytest.mark.slow),
+])
+def test_narrow_gamma_vs_mpmath(n, shape, mean):
+    # Source: mpmath Hurwitz-zeta kernel (as above). Shapes above 4.48 have sd(ln t) < 0.5
+    # and use refined panels over their bulk (16 and 64 panels per decade here).
+    want = ref.gamma_mean_sfs(n, shape, mean)
+    assert_allclose(expectation(n).mean_g(GammaDfe(shape, mean)), want, rtol=1e-10)
+
+
+@pytest.mark.slow
+def test_very_narrow_lognormal_vs_mpmath():
+    # Source: mpmath hyp1f1 quadrature; sigma = 0.005 gets a table of its own.
+    want = ref.lognormal_mean_sfs(4, 2.0, 0.005)
+    assert_allclose(expectation(4).mean_g(LognormalDfe(2.0, 0.005)), want, rtol=1e-10)
+
+
 @pytest.mark.slow
 @pytest.mark.parametrize("shape", [0.05, 0.1, 0.3, 1.0, 3.0, 5.0])
 def test_gamma_mean_spectrum_vs_mpmath_wide(shape):

@@ -29,6 +29,7 @@ from dataclasses import dataclass
 
 import numpy as np
 from numpy.typing import ArrayLike
+from scipy.optimize import brentq
 from scipy.special import digamma, gammainc, gammaincc, gammaln, ndtr, polygamma, zeta
 
 from .expected import SfsKernel, _log_binom, fixation_ratio, kernel
@@ -59,6 +60,12 @@ T_LO, T_MID, T_HI = 1e-8, 1e8, 1e12
 NODES_PER_DECADE = 16
 #: A DFE whose ln t has a standard deviation below this gets extra panels over its bulk.
 NARROW_SD = 0.5
+#: Narrow DFEs: the decades holding the bulk (mean +- 14 sd of ln t) are split into
+#: this many panels each (the first level with panel width <= 4.6 sd, the ratio that the
+#: standard one-panel-per-decade table has at sd = 0.5); narrower still: a table per call.
+FINE_LEVELS = (4, 16, 64)
+#: Gamma shape above which sd(ln t) = sqrt(trigamma(shape)) < NARROW_SD.
+_GAMMA_NARROW_SHAPE = float(brentq(lambda b: polygamma(1, b) - NARROW_SD ** 2, 0.5, 100.0))
 
 
 def _check_pos(name: str, value: float) -> float:
@@ -106,6 +113,14 @@ class _Deleterious:
         """(mean, sd) of ln t, used to refine quadrature for narrow DFEs, or None."""
         return None
 
+    def is_narrow(self) -> bool:
+        """Whether sd(ln t) < NARROW_SD (needs refined panels)."""
+        return False
+
+    def _small_t(self, c: float) -> tuple[float, float]:
+        """(P(T < c), E[T; T < c])."""
+        return float(self.cdf_t(c)), self.partial_mean_t(c)
+
 
 @dataclass(frozen=True)
 class GammaDfe(_Deleterious):
@@ -143,15 +158,25 @@ class GammaDfe(_Deleterious):
         """P(T > t), array like ``t`` (no cancellation where it is small)."""
         return gammaincc(self.shape, self.rate * np.asarray(t, dtype=float))
 
-    def logpdf_t(self, t: ArrayLike) -> np.ndarray:
-        """Log density of t, array like ``t``."""
+    def logpdf_t(self, t: ArrayLike, log_t: np.ndarray | None = None) -> np.ndarray:
+        """Log density of t, array like ``t`` (``log_t``: precomputed ``ln t``)."""
         t = np.asarray(t, dtype=float)
         b, lam = self.shape, self.rate
-        return b * math.log(lam) - math.lgamma(b) + (b - 1.0) * np.log(t) - lam * t
+        lt = np.log(t) if log_t is None else log_t
+        return (b * math.log(lam) - math.lgamma(b)) + (b - 1.0) * lt - lam * t
 
     def partial_mean_t(self, c: float) -> float:
         """E[T; T < c] (float)."""
         return float(self.mean * gammainc(self.shape + 1.0, self.rate * c))
+
+    def _small_t(self, c: float) -> tuple[float, float]:
+        """(P(T < c), E[T; T < c]) in one call."""
+        P = gammainc(np.array([self.shape, self.shape + 1.0]), self.rate * c)
+        return float(P[0]), float(self.mean * P[1])
+
+    def is_narrow(self) -> bool:
+        """Whether sd(ln t) < NARROW_SD (needs refined panels)."""
+        return self.shape > _GAMMA_NARROW_SHAPE
 
     def bulk_log_t(self) -> tuple[float, float]:
         return (float(digamma(self.shape) - math.log(self.rate)),
@@ -196,11 +221,15 @@ class LognormalDfe(_Deleterious):
         """P(T > t), array like ``t``."""
         return ndtr(-self._z(t))
 
-    def logpdf_t(self, t: ArrayLike) -> np.ndarray:
-        """Log density of t, array like ``t``."""
-        t = np.asarray(t, dtype=float)
-        z = self._z(t)
-        return -np.log(t) - math.log(self.sigma) - 0.5 * math.log(2 * math.pi) - 0.5 * z * z
+    def logpdf_t(self, t: ArrayLike, log_t: np.ndarray | None = None) -> np.ndarray:
+        """Log density of t, array like ``t`` (``log_t``: precomputed ``ln t``)."""
+        lt = np.log(np.asarray(t, dtype=float)) if log_t is None else log_t
+        z = (lt - self.mu) / self.sigma
+        return -lt - (math.log(self.sigma) + 0.5 * math.log(2 * math.pi)) - 0.5 * z * z
+
+    def is_narrow(self) -> bool:
+        """Whether sd(ln t) < NARROW_SD (needs refined panels)."""
+        return self.sigma < NARROW_SD
 
     def partial_mean_t(self, c: float) -> float:
         """E[T; T < c] (float)."""
@@ -298,7 +327,7 @@ class DiscreteDfe(_Deleterious):
         return sum(m * (1.0 - self._frac(t, a, b, lg))
                    for m, (a, b, lg) in zip(self.masses, self.bands_t))
 
-    def logpdf_t(self, t: ArrayLike) -> np.ndarray:
+    def logpdf_t(self, t: ArrayLike, log_t: np.ndarray | None = None) -> np.ndarray:
         """Log density of t (``-inf`` outside the support), array like ``t``."""
         t = np.asarray(t, dtype=float)
         dens = np.zeros_like(t)
@@ -485,12 +514,43 @@ def _panels(breaks: tuple[float, ...], per_panel: int = NODES_PER_DECADE):
     return np.exp(u), u, w
 
 
+_LN10 = math.log(10.0)
+_K_LO, _K_HI = round(math.log10(T_LO)), round(math.log10(T_HI)) - 1  # decades of t
+
+
+@functools.lru_cache(maxsize=256)
+def _decade_nodes(k: int, p: int):
+    """GL nodes in ln t on decade [10^k, 10^(k+1)] split into p equal panels."""
+    edges = _LN10 * (k + np.arange(p + 1) / p)
+    xg, wg = np.polynomial.legendre.leggauss(NODES_PER_DECADE)
+    a, b = edges[:-1, None], edges[1:, None]
+    u = (0.5 * (b - a) * xg[None, :] + 0.5 * (a + b)).ravel()
+    w = (0.5 * (b - a) * wg[None, :]).ravel()
+    return np.exp(u), u, w
+
+
+def _fine_plan(base: BaseDfe) -> tuple[int, int, int] | None:
+    """(level, first decade, last decade) for a narrow DFE, or None."""
+    if not base.is_narrow():
+        return None
+    c, sd = base.bulk_log_t()
+    for p in FINE_LEVELS:
+        if _LN10 / p <= 4.6 * sd:
+            break
+    else:
+        return None
+    k_lo = max(math.floor((c - 14 * sd) / _LN10), _K_LO)
+    k_hi = min(math.floor((c + 14 * sd) / _LN10), _K_HI)
+    return (p, k_lo, k_hi) if k_lo <= k_hi else None
+
+
 def _narrow_breaks(base: BaseDfe) -> tuple[float, ...]:
-    """Extra panel edges over the bulk of a DFE whose ln t is narrow."""
-    bulk = base.bulk_log_t()
-    if bulk is None or not bulk[1] < NARROW_SD:
+    """Extra panel edges over the bulk of a DFE too narrow for the fine levels."""
+    if not base.is_narrow():
         return ()
-    c, sd = bulk
+    c, sd = base.bulk_log_t()
+    if _LN10 / FINE_LEVELS[-1] <= 4.6 * sd:
+        return ()
     step = min(sd, 0.25)
     return tuple(math.exp(c + k * step) for k in range(-int(14 * sd / step) - 1,
                                                        int(14 * sd / step) + 2))
@@ -595,6 +655,38 @@ def _asymptotic_g(n: int, t: np.ndarray) -> np.ndarray:
     return np.exp(logv) * tot
 
 
+def _g_rows(k: SfsKernel, t: np.ndarray) -> np.ndarray:
+    """g_i(-t_j), shape (len(t), n - 1): the trapezoid kernel up to T_MID, then the
+    large-|S| expansion."""
+    out = np.empty((t.size, k.n - 1))
+    mid = t <= T_MID
+    out[mid] = k.g(-t[mid])
+    out[~mid] = _asymptotic_g(k.n, t[~mid])
+    return out
+
+
+class _Fine:
+    """Refined nodes over decades k_lo..k_hi (level p) for narrow DFEs."""
+
+    def __init__(self, k: SfsKernel, p: int, k_lo: int, k_hi: int, pieces: dict) -> None:
+        parts = []
+        for d in range(k_lo, k_hi + 1):
+            if (p, d) not in pieces:
+                t, _, _ = _decade_nodes(d, p)
+                pieces[p, d] = _g_rows(k, t)
+            parts.append(pieces[p, d])
+        nodes = [_decade_nodes(d, p) for d in range(k_lo, k_hi + 1)]
+        self.t = np.concatenate([v[0] for v in nodes])
+        self.log_t = np.concatenate([v[1] for v in nodes])
+        self.log_tw = self.log_t + np.log(np.concatenate([v[2] for v in nodes]))
+        self.G = np.concatenate(parts)
+        # rows of the standard table that these nodes replace
+        self.std_rows = slice(NODES_PER_DECADE * (k_lo - _K_LO),
+                              NODES_PER_DECADE * (k_hi + 1 - _K_LO))
+
+    node_weights = None  # set below (same as _Table's)
+
+
 class _Table:
     """Nodes in t and the matrix of g at S = -t, plus two rows for the mass below T_LO."""
 
@@ -604,16 +696,28 @@ class _Table:
         G = np.empty((self.t.size + 2, n - 1))
         G[0] = 1.0 / np.arange(1, n)           # weight: P(T < T_LO)
         G[1] = -1.0 / (2.0 * (n + 1))          # weight: E[T; T < T_LO]
-        mid = self.t <= T_MID
-        G[2:][mid] = k.g(-self.t[mid])
-        G[2:][~mid] = _asymptotic_g(n, self.t[~mid])
+        G[2:] = _g_rows(k, self.t)
         self.G = G
+        self.G_nodes = G[2:]
+        self.log_tw = self.log_t + np.log(self.w)
+
+    def node_weights(self, base: BaseDfe) -> np.ndarray:
+        """W_j f(t_j) t_j, shape (J,)."""
+        with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+            dens = np.exp(np.asarray(base.logpdf_t(self.t, self.log_t)) + self.log_tw)
+        if not np.all(np.isfinite(dens)):
+            dens[~np.isfinite(dens)] = 0.0
+        return dens
 
     def weights(self, base: BaseDfe) -> np.ndarray:
-        with np.errstate(divide="ignore", invalid="ignore"):
-            dens = np.exp(np.asarray(base.logpdf_t(self.t)) + self.log_t) * self.w
-        dens[~np.isfinite(dens)] = 0.0
-        return np.concatenate(([float(base.cdf_t(T_LO)), base.partial_mean_t(T_LO)], dens))
+        return np.concatenate((base._small_t(T_LO), self.node_weights(base)))
+
+    def mean(self, base: BaseDfe) -> np.ndarray:
+        p0, m0 = base._small_t(T_LO)
+        return self.node_weights(base) @ self.G_nodes + (p0 * self.G[0] + m0 * self.G[1])
+
+
+_Fine.node_weights = _Table.node_weights
 
 
 class DfeExpectation:
@@ -625,8 +729,10 @@ class DfeExpectation:
     spectrum above :math:`10^8` from its terminating large-|S| expansion, and a
     beneficial point mass through :meth:`SfsKernel.g` at :math:`+s_b`. The table of
     :math:`g_i(-t_j)` is built once per ``n`` (and once per set of band edges for
-    :class:`DiscreteDfe`, whose panels are split at its edges; narrow DFEs -- sd of
-    ln t below 0.5 -- get a table with extra panels over their bulk, built per call).
+    :class:`DiscreteDfe`, whose panels are split at its edges). Narrow DFEs (sd of ln t
+    below 0.5, e.g. gamma shape above 4.48) have the decades holding their bulk split
+    into 4, 16 or 64 panels, built on first use and cached per decade; only DFEs with
+    sd(ln t) < 0.008 get a table of their own per call (slow).
 
     Parameters
     ----------
@@ -655,7 +761,10 @@ class DfeExpectation:
         self.n = self.kernel.n
         self._tables: dict[tuple[float, ...], _Table] = {}
         self._band_means: dict[tuple[float, ...], np.ndarray] = {}
+        self._fine_pieces: dict[tuple[int, int], np.ndarray] = {}
+        self._fine: dict[tuple[int, int, int], _Fine] = {}
         std = self._table(())
+        self._std = std
         self.G = std.G
         self.t = std.t
 
@@ -667,9 +776,31 @@ class DfeExpectation:
                 self._tables[breaks] = tab
         return tab
 
+    def _fine_block(self, plan: tuple[int, int, int]) -> _Fine:
+        blk = self._fine.get(plan)
+        if blk is None:
+            blk = _Fine(self.kernel, *plan, self._fine_pieces)
+            if len(self._fine) >= 32:
+                self._fine.pop(next(iter(self._fine)))
+            self._fine[plan] = blk
+        return blk
+
+    def _narrow(self, base: BaseDfe):
+        """(standard node weights with the refined decades zeroed, fine block) or None."""
+        plan = _fine_plan(base)
+        if plan is None:
+            return None
+        blk = self._fine_block(plan)
+        w_std = self._std.node_weights(base)
+        w_std[blk.std_rows] = 0.0
+        return w_std, blk
+
     def table(self, dfe: Dfe) -> np.ndarray:
         """Table of spectra the weights of ``dfe`` apply to, shape (J' + 2, n - 1)."""
         base, _, _ = _split(dfe)
+        plan = _fine_plan(base)
+        if plan is not None:
+            return np.concatenate((self.G, self._fine_block(plan).G))
         return self._table(_breaks(base)).G
 
     def weights(self, dfe: Dfe) -> np.ndarray:
@@ -683,7 +814,11 @@ class DfeExpectation:
             lognormal DFEs of ordinary width).
         """
         base, p_b, _ = _split(dfe)
-        w = self._table(_breaks(base)).weights(base)
+        nar = self._narrow(base)
+        if nar is not None:
+            w = np.concatenate((base._small_t(T_LO), nar[0], nar[1].node_weights(base)))
+        else:
+            w = self._table(_breaks(base)).weights(base)
         return w * (1.0 - p_b) if p_b else w
 
     @functools.lru_cache(maxsize=32)  # noqa: B019 -- few instances, each kept for a fit
@@ -712,8 +847,15 @@ class DfeExpectation:
             Expected count per unit :math:`\theta L` in each class.
         """
         base, p_b, s_b = _split(dfe)
-        tab = self._table(_breaks(base))
-        out = tab.weights(base) @ tab.G
+        if isinstance(base, DiscreteDfe):
+            out = np.asarray(base.masses) @ self.band_means(base.edges_nes)
+        elif base.is_narrow() and (nar := self._narrow(base)) is not None:
+            w_std, blk = nar
+            p0, m0 = base._small_t(T_LO)
+            out = (w_std @ self._std.G_nodes + blk.node_weights(base) @ blk.G
+                   + (p0 * self.G[0] + m0 * self.G[1]))
+        else:
+            out = self._table(_breaks(base)).mean(base)
         if p_b:
             out = (1.0 - p_b) * out + p_b * self._g_plus(s_b)
         return out
@@ -752,7 +894,8 @@ class DfeExpectation:
         out = self._band_means.get(e)
         if out is None:
             K = len(e)
-            out = np.array([self.mean_g(DiscreteDfe(tuple(float(j == k) for j in range(K)), e))
+            tab = self._table(DiscreteDfe((1.0,) + (0.0,) * (K - 1), e).breakpoints_t)
+            out = np.array([tab.mean(DiscreteDfe(tuple(float(j == k) for j in range(K)), e))
                             for k in range(K)])
             out.setflags(write=False)
             self._band_means[e] = out

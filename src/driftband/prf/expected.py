@@ -55,7 +55,7 @@ H_MAX = 0.2
 #: Below this value ``g`` is recomputed in log space by :meth:`SfsKernel.log_g`.
 _SAFE_MIN = 1e-280
 #: Number of S values processed per block (bounds the memory of the W matrix).
-_CHUNK = 4096
+_CHUNK = 512
 
 
 def _log1mexp(z: np.ndarray) -> np.ndarray:
@@ -149,26 +149,40 @@ class SfsKernel:
 
     # -- weights ---------------------------------------------------------------------
     def _weights(self, S: np.ndarray) -> np.ndarray:
-        """``w_S(x_j)``, shape (len(S), J), for a 1-D array ``S``."""
-        Sc = S[:, None]
+        """``w_S(x_j)``, shape (len(S), J), for a 1-D array ``S`` of one kind: all
+        ``S >= 1e-150``, all ``S <= -1e-150``, or all tiny (``|S| < 1e-150``, where
+        ``w = (1-x)(1 + O(S))`` is the S = 0 limit) or NaN."""
+        col = S[:, None]
         with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
-            W = np.empty((S.size, self.y.size))
-            tiny = np.abs(S) < 1e-150  # w = (1-x)(1 + O(S)): the S = 0 limit to 1e-150
-            pos = S >= 1e-150
-            if pos.any():
-                sp = Sc[pos]
-                W[pos] = np.expm1(-sp * self.one_minus_x) / np.expm1(-sp)
-            neg = S <= -1e-150
-            if neg.any():
-                t = -Sc[neg]
-                W[neg] = (np.exp(-t * self.x) * np.expm1(-t * self.one_minus_x)
-                          / np.expm1(-t))
-            if tiny.any():
-                W[tiny] = self.one_minus_x
-            nan = np.isnan(S)
-            if nan.any():
-                W[nan] = np.nan
+            if S[0] >= 1e-150:
+                W = np.multiply(-col, self.one_minus_x)
+                np.expm1(W, out=W)
+                W /= np.expm1(-col)
+            elif S[0] <= -1e-150:
+                W = np.multiply(col, self.x)           # -t x
+                np.exp(W, out=W)
+                tmp = np.multiply(col, self.one_minus_x)
+                np.expm1(tmp, out=tmp)
+                W *= tmp
+                W /= np.expm1(col)
+            else:
+                W = np.empty((S.size, self.y.size))
+                W[:] = self.one_minus_x
+                W[np.isnan(S)] = np.nan
         return W
+
+    def _g_flat(self, flat: np.ndarray) -> np.ndarray:
+        out = np.empty((flat.size, self.n - 1))
+        kinds = np.where(flat >= 1e-150, 0, np.where(flat <= -1e-150, 1, 2))
+        for kind in (0, 1, 2):
+            idx = np.flatnonzero(kinds == kind)
+            for lo in range(0, idx.size, _CHUNK):
+                sub = idx[lo:lo + _CHUNK]
+                res = self._weights(flat[sub]) @ self.A.T
+                if sub.size == flat.size:
+                    return res
+                out[sub] = res
+        return out
 
     def _log_weights(self, s: float) -> np.ndarray:
         """``log w_s(x_j)``, shape (J,), for one scalar ``s``."""
@@ -197,12 +211,7 @@ class SfsKernel:
             every non-NaN ``S``; values below about 1e-300 underflow (see :meth:`log_g`).
         """
         S = np.asarray(S, dtype=float)
-        flat = S.reshape(-1)
-        out = np.empty((flat.size, self.n - 1))
-        for lo in range(0, flat.size, _CHUNK):
-            blk = flat[lo:lo + _CHUNK]
-            out[lo:lo + blk.size] = self._weights(blk) @ self.A.T
-        return out.reshape(S.shape + (self.n - 1,))
+        return self._g_flat(S.reshape(-1)).reshape(S.shape + (self.n - 1,))
 
     def log_g(self, S: ArrayLike) -> np.ndarray:
         r"""Natural logarithm of :math:`g_i(S)`, accurate also where ``g`` underflows.
