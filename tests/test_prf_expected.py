@@ -291,3 +291,4 @@ def test_fixation_ratio_table_values():
     assert_allclose(fixation_ratio([1, -1, 2, -2, 4, -4]),
                     [1.582, 0.582, 2.313, 0.313, 4.075, 0.0746], rtol=2e-3)
     assert fixation_ratio(np.inf) == np.inf and fixation_ratio(-np.inf) == 0.0
+    assert log_fixation_ratio(-np.inf) == -np.inf and log_fixation_ratio(np.inf) == np.inf

@@ -393,7 +393,8 @@ def log_fixation_ratio(S: ArrayLike) -> np.ndarray:
     Returns
     -------
     ndarray, same shape as ``S``, float64
-        :math:`\ln S - \ln(1 - e^{-S})` (and its continuation, 0 at ``S = 0``).
+        :math:`\ln S - \ln(1 - e^{-S})` (and its continuation, 0 at ``S = 0``);
+        ``-inf`` at ``S = -inf``.
     """
     S = np.asarray(S, dtype=float)
     a = np.abs(S)
@@ -401,5 +402,7 @@ def log_fixation_ratio(S: ArrayLike) -> np.ndarray:
     with np.errstate(divide="ignore"):
         base = np.log(safe) - _log1mexp(safe)
     base = np.where(a == 0, 0.0, base)
-    out = np.where(S < 0, base - a, base)
+    with np.errstate(invalid="ignore"):
+        out = np.where(S < 0, base - a, base)
+    out = np.where(np.isneginf(S), -np.inf, out)
     return out[()] if out.ndim == 0 else out
