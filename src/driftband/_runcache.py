@@ -1,0 +1,222 @@
+"""Stage cache, run log and stage errors of ``driftband run`` (see :mod:`driftband.run`).
+
+``provenance/stages.json`` holds one record per stage: the stage key (SHA-256 of the
+stage's name, driftband's version, the SHA-256 of every input file and the options), the
+inputs, the options, the SHA-256 of every output, when it finished and how long it took.
+A stage is skipped when its key is unchanged and its outputs are still as recorded.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import datetime as _dt
+import hashlib
+import json
+import logging
+import os
+import sys
+import time
+import warnings
+from collections.abc import Callable, Iterator
+from pathlib import Path
+from typing import Any
+
+from ._io import atomic_output, sha256sum
+from ._version import __version__
+from .exceptions import DriftbandError, InputError
+
+__all__ = ["StageError", "stage_key"]
+
+log = logging.getLogger("driftband")
+
+_STAGES_SCHEMA = "driftband-run-stages"
+
+
+class StageError(DriftbandError):
+    """A stage of ``driftband run`` failed on a problem the user can fix.
+
+    Parameters
+    ----------
+    stage : str
+        The stage, e.g. ``spectra[snail]``.
+    error : Exception
+        The original error (its one-line message is kept).
+    """
+
+    def __init__(self, stage: str, error: BaseException) -> None:
+        self.stage = stage
+        self.error = error
+        super().__init__(f"stage {stage}: {error}")
+
+
+# ------------------------------------------------------------------------ stage cache
+
+def _canonical(obj: Any) -> str:
+    return json.dumps(obj, sort_keys=True, separators=(",", ":"), default=str)
+
+
+def stage_key(stage: str, inputs: dict[str, str | None], options: dict[str, Any]) -> str:
+    """Checksum of a stage: its name, driftband's version, input checksums and options."""
+    blob = {"stage": stage, "driftband": __version__, "inputs": inputs, "options": options}
+    return hashlib.sha256(_canonical(blob).encode()).hexdigest()
+
+
+class _Cache:
+    """``provenance/stages.json``: one record per stage (key, inputs, outputs, time)."""
+
+    def __init__(self, path: Path, force: bool) -> None:
+        self.path = path
+        self.force = force
+        self.records: dict[str, Any] = {}
+        try:
+            doc = json.loads(path.read_text(encoding="utf-8"))
+            if doc.get("schema") == _STAGES_SCHEMA and isinstance(doc.get("stages"), dict):
+                self.records = doc["stages"]
+        except (OSError, ValueError, AttributeError):
+            self.records = {}
+
+    def fresh(self, sid: str, key: str, outputs: list[Path]) -> bool:
+        rec = self.records.get(sid)
+        if self.force or not rec or rec.get("key") != key:
+            return False
+        want = rec.get("outputs") or {}
+        if sorted(want) != sorted(p.name for p in outputs):
+            return False
+        for p in outputs:
+            if not p.is_file() or sha256sum(p) != want.get(p.name):
+                return False
+        return True
+
+    def record(self, sid: str, rec: dict[str, Any]) -> None:
+        self.records[sid] = rec
+        self._write()
+
+    def drop(self, sid: str) -> None:
+        if self.records.pop(sid, None) is not None:
+            self._write()
+
+    def _write(self) -> None:
+        doc = {"schema": _STAGES_SCHEMA, "schema_version": 1, "stages": self.records}
+        with atomic_output(self.path, force=True) as fh:
+            json.dump(doc, fh, indent=1, sort_keys=True)
+            fh.write("\n")
+
+
+class _Collector(logging.Handler):
+    """Keeps the formatted log records of a run (written to run.log at the end)."""
+
+    def __init__(self) -> None:
+        super().__init__(logging.INFO)
+        self.lines: list[str] = []
+        self.setFormatter(logging.Formatter("%(asctime)s %(levelname)s %(message)s",
+                                            "%Y-%m-%d %H:%M:%S"))
+
+    def emit(self, record: logging.LogRecord) -> None:
+        try:
+            self.lines.append(self.format(record))
+        except Exception:  # pragma: no cover - never let logging break a run
+            self.handleError(record)
+
+    def note(self, level: int, message: str) -> None:
+        """A record for run.log only (not for the console)."""
+        self.emit(logging.LogRecord("driftband", level, __file__, 0, message, None, None))
+
+
+@contextlib.contextmanager
+def _run_log(path: Path) -> Iterator[_Collector]:
+    """Collect the log of ``driftband`` (and warnings) at INFO for run.log.
+
+    Console handlers keep their level; without any handler a stderr handler at WARNING
+    stands in for Python's last-resort one. run.log gets the earlier runs' log followed
+    by this run's, written atomically when the run ends (also on errors and interrupts).
+    """
+    col = _Collector()
+    extra: list[tuple[logging.Logger, logging.Handler]] = []
+    saved: list[tuple[logging.Logger, int]] = []
+    fixed: list[logging.Handler] = []
+    captured = warnings.showwarning is getattr(logging, "_showwarning", None)
+    logging.captureWarnings(True)
+    for lg in (logging.getLogger("driftband"), logging.getLogger("py.warnings")):
+        eff = lg.getEffectiveLevel()
+        if not lg.hasHandlers():
+            h = logging.StreamHandler(sys.stderr)
+            h.setLevel(logging.WARNING)
+            h.setFormatter(logging.Formatter("driftband: %(message)s"))
+            lg.addHandler(h)
+            extra.append((lg, h))
+        for h in lg.handlers:
+            if h.level == logging.NOTSET:
+                h.setLevel(eff)
+                fixed.append(h)
+        saved.append((lg, lg.level))
+        lg.setLevel(min(eff, logging.INFO))
+        lg.addHandler(col)
+    try:
+        yield col
+    finally:
+        for lg, level in saved:
+            lg.removeHandler(col)
+            lg.setLevel(level)
+        for lg, h in extra:
+            lg.removeHandler(h)
+        for h in fixed:
+            h.setLevel(logging.NOTSET)
+        if not captured:
+            logging.captureWarnings(False)
+        old = ""
+        with contextlib.suppress(OSError, UnicodeDecodeError):
+            old = path.read_text(encoding="utf-8")
+        with contextlib.suppress(OSError):
+            with atomic_output(path, force=True) as fh:
+                fh.write(old + "\n".join(col.lines) + "\n")
+
+
+class _Runner:
+    """Runs stages through the cache; turns user errors into one StageError."""
+
+    def __init__(self, cache: _Cache, col: _Collector, stages: dict[str, str]) -> None:
+        self.cache = cache
+        self.col = col
+        self.stages = stages
+
+    def run(self, sid: str, inputs: dict[str, Path | str | None], options: dict[str, Any],
+            outputs: list[Path], fn: Callable[[], Any]) -> bool:
+        """Run stage ``sid`` unless cached; returns True when it ran."""
+        sums = {k: (None if p is None else sha256sum(p)) for k, p in inputs.items()}
+        key = stage_key(sid.split("[")[0], sums, options)
+        if self.cache.fresh(sid, key, outputs):
+            log.info("stage %s: skipped (inputs and options unchanged)", sid)
+            self.stages[sid] = "skipped"
+            return False
+        log.info("stage %s: running", sid)
+        t0 = time.monotonic()
+        try:
+            fn()
+        except StageError:
+            raise
+        except DriftbandError as err:
+            self.col.note(logging.ERROR, f"stage {sid}: {err}")
+            raise StageError(sid, err) from None
+        except (FileNotFoundError, IsADirectoryError, PermissionError) as err:
+            msg = f"{err.filename}: {err.strerror}" if err.filename else str(err)
+            self.col.note(logging.ERROR, f"stage {sid}: {msg}")
+            raise StageError(sid, InputError(msg)) from None
+        except KeyboardInterrupt:
+            self.col.note(logging.ERROR, f"stage {sid}: interrupted; rerun to resume here")
+            raise
+        except Exception as err:
+            self.col.note(logging.ERROR, f"stage {sid}: internal error "
+                                         f"{type(err).__name__}: {err}")
+            raise
+        secs = time.monotonic() - t0
+        self.cache.record(sid, {
+            "key": key, "inputs": {k: (None if p is None else os.fspath(p))
+                                   for k, p in inputs.items()},
+            "input_sha256": sums, "options": options,
+            "outputs": {p.name: sha256sum(p) for p in outputs},
+            "finished": _dt.datetime.now(_dt.timezone.utc).isoformat(timespec="seconds"),
+            "seconds": round(secs, 2)})
+        log.info("stage %s: done in %.1f s (%s)", sid, secs,
+                 ", ".join(p.name for p in outputs))
+        self.stages[sid] = "ran"
+        return True

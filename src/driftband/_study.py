@@ -1,0 +1,558 @@
+"""Study files of ``driftband run``: what a study is, read from TOML or from flags.
+
+A study is one or more datasets (each a VCF, a popmap and the site classes: a sites BED
+or a reference FASTA + GFF3 annotation, with its own polarisation) and the options of the
+fit, the bootstrap and the comparisons. Every key is listed in :data:`STUDY_KEYS` (the
+README's "Study files" section documents them); an unknown key is an error naming the
+key, its section, the file and the line. Relative paths are taken relative to the study
+file's folder. See :func:`read_study`, :func:`study_from_dict` and :func:`check_files`.
+"""
+
+from __future__ import annotations
+
+import os
+import re
+import sys
+from dataclasses import asdict, dataclass, field
+from pathlib import Path
+from typing import Any
+
+from .exceptions import DriftbandError, InputError, OptionError
+
+__all__ = [
+    "STUDY_KEYS",
+    "BootstrapSettings",
+    "CompareSettings",
+    "Dataset",
+    "FitSettings",
+    "Study",
+    "check_files",
+    "read_study",
+    "study_from_dict",
+]
+
+#: Section -> key -> (kind, meaning). ``dataset`` is an array of tables (``[[dataset]]``).
+STUDY_KEYS: dict[str, dict[str, tuple[str, str]]] = {
+    "study": {
+        "name": ("str", "name of the study (default: the study file's name)"),
+        "description": ("str", "free text, recorded in the provenance"),
+        "out_dir": ("path", "output folder (default: none; --out-dir overrides it)"),
+    },
+    "dataset": {
+        "name": ("name", "label of the dataset; population names become NAME/POP when "
+                         "the study has several datasets (default: the VCF's name)"),
+        "vcf": ("file", "VCF/BCF of all samples (bgzipped + indexed, bgzipped or plain)"),
+        "popmap": ("file", "TSV sample<TAB>population (header optional)"),
+        "sites": ("file", "BED4 of site classes (0fold, 4fold); or give fasta + gff"),
+        "fasta": ("file", "reference FASTA (plain or bgzipped) to classify sites from"),
+        "gff": ("file", "GFF3 gene annotation of that reference"),
+        "code": ("int", "NCBI translation table for classify (default 1)"),
+        "transcripts": ("str", "classify: 'agree' (default) or 'longest'"),
+        "exclude_softmasked": ("bool", "classify: drop soft-masked (lowercase) sites"),
+        "callable": ("file", "BED of callable sites; classes are intersected with it"),
+        "ancestral": ("str", "polarisation: 'aa' (INFO/AA, default), 'fold' or "
+                             "'outgroup:POP'"),
+        "project": ("project", "gene copies to project to: N for all populations or a "
+                               "table {POP = N} (default: automatic)"),
+        "block_size": ("posint", "bootstrap block length in bp (default 100000)"),
+        "blocks": ("file", "BED of bootstrap blocks (e.g. genes) instead of block_size"),
+        "regions": ("strlist", "only these regions: CHROM, CHROM:START-END or BED files"),
+        "min_gq": ("int", "genotypes with GQ below this become missing"),
+        "min_dp": ("int", "genotypes with DP below this become missing"),
+        "pass_only": ("bool", "keep only records whose FILTER is PASS or '.'"),
+    },
+    "fit": {
+        "dfe": ("strlist", "DFE families fitted (default gamma, lognormal, discrete; "
+                           "NAME+beneficial adds a beneficial class)"),
+        "beneficial": ("bool", "add a beneficial class to every family"),
+        "misorientation": ("str", "'free' (default) or 'fixed:RATE'"),
+        "equilibrium": ("bool", "no demographic nuisance parameters"),
+        "bands": ("numlist", "band edges on |Ne*s| (default [0, 1, 10, 100])"),
+        "neutral": ("str", "neutral class (default 4fold)"),
+        "selected": ("str", "selected class (default 0fold)"),
+        "populations": ("strlist", "fit only these populations (default: all)"),
+    },
+    "bootstrap": {
+        "replicates": ("nonnegint", "block-bootstrap replicates (default 100; 0: none)"),
+        "level": ("float", "confidence level of the intervals (default 0.95)"),
+        "seed": ("int", "random seed (default 1)"),
+        "workers": ("posint", "worker processes (default: the cores available)"),
+        "models": ("str", "'best' (default: each population's AIC-best model and the "
+                          "model compared) or 'all'"),
+    },
+    "compare": {
+        "model": ("str", "DFE model of the comparisons: 'auto' (default: lowest AIC "
+                         "summed over all populations) or a fitted model"),
+        "tests": ("strlist", "tests (default all: shared_dfe_lrt, "
+                             "neutral_share_difference, ne_only_lrt); [] for none"),
+        "adjust": ("str", "multiple-testing adjustment (default holm)"),
+        "pairs": ("strlist", "pairs as 'A:B' (default: every pair)"),
+        "relative_mutation_rate": ("floattable", "{POP = R}: mutation rate relative to "
+                                                 "the others (default 1)"),
+    },
+}
+
+DEFAULT_DFE = ("gamma", "lognormal", "discrete")
+DEFAULT_TESTS = ("shared_dfe_lrt", "neutral_share_difference", "ne_only_lrt")
+_NAME_RE = re.compile(r"^[A-Za-z0-9][A-Za-z0-9_.-]*$")
+_FILE_KEYS = ("vcf", "popmap", "sites", "fasta", "gff", "callable", "blocks")
+
+
+@dataclass
+class Dataset:
+    """One dataset of a study: its files and how its spectra are made.
+
+    Paths are absolute (resolved against the study file's folder).
+    """
+
+    name: str
+    vcf: str
+    popmap: str
+    sites: str | None = None
+    fasta: str | None = None
+    gff: str | None = None
+    code: int = 1
+    transcripts: str = "agree"
+    exclude_softmasked: bool = False
+    callable: str | None = None
+    ancestral: str = "aa"
+    project: int | dict[str, int] | None = None
+    block_size: int = 100_000
+    blocks: str | None = None
+    regions: list[str] | None = None
+    min_gq: int | None = None
+    min_dp: int | None = None
+    pass_only: bool = False
+
+    @property
+    def classify(self) -> bool:
+        """True when the site classes come from FASTA + GFF3."""
+        return self.sites is None
+
+    def spectra_options(self) -> dict[str, Any]:
+        """Options of the spectra stage (JSON-ready)."""
+        return {"ancestral": self.ancestral, "project": self.project,
+                "block_size": self.block_size, "regions": self.regions,
+                "min_gq": self.min_gq, "min_dp": self.min_dp, "pass_only": self.pass_only}
+
+    def classify_options(self) -> dict[str, Any]:
+        """Options of the classify stage (JSON-ready)."""
+        return {"code": self.code, "transcripts": self.transcripts,
+                "exclude_softmasked": self.exclude_softmasked}
+
+
+@dataclass
+class FitSettings:
+    """Options of the fit stage."""
+
+    dfe: tuple[str, ...] = DEFAULT_DFE
+    beneficial: bool = False
+    misorientation: str = "free"
+    equilibrium: bool = False
+    bands: tuple[float, ...] = (0.0, 1.0, 10.0, 100.0)
+    neutral: str = "4fold"
+    selected: str = "0fold"
+    populations: list[str] | None = None
+
+
+@dataclass
+class BootstrapSettings:
+    """Options of the bootstrap stage (``workers`` does not change the results)."""
+
+    replicates: int = 100
+    level: float = 0.95
+    seed: int = 1
+    workers: int | None = None
+    models: str = "best"
+
+
+@dataclass
+class CompareSettings:
+    """Options of the compare stage."""
+
+    model: str = "auto"
+    tests: tuple[str, ...] = DEFAULT_TESTS
+    adjust: str = "holm"
+    pairs: list[str] | None = None
+    relative_mutation_rate: dict[str, float] = field(default_factory=dict)
+
+
+@dataclass
+class Study:
+    """A whole study: datasets and options (see the module docstring).
+
+    Attributes
+    ----------
+    name : str
+    datasets : list of Dataset
+    fit, bootstrap, compare : settings
+    description : str
+    out_dir : str or None
+        Output folder named in the study file (absolute), if any.
+    source : str or None
+        The study file (None: built from command-line flags).
+    text : str or None
+        The study file's text (kept in the output's provenance).
+    """
+
+    name: str
+    datasets: list[Dataset]
+    fit: FitSettings = field(default_factory=FitSettings)
+    bootstrap: BootstrapSettings = field(default_factory=BootstrapSettings)
+    compare: CompareSettings = field(default_factory=CompareSettings)
+    description: str = ""
+    out_dir: str | None = None
+    source: str | None = None
+    text: str | None = None
+
+    @property
+    def several(self) -> bool:
+        """True when population names carry their dataset's label."""
+        return len(self.datasets) > 1
+
+    def to_dict(self) -> dict[str, Any]:
+        """JSON-ready copy (without the file text)."""
+        d = asdict(self)
+        d.pop("text", None)
+        return d
+
+    def identity(self) -> dict[str, Any]:
+        """What makes two runs the same study: names and the input files' names.
+
+        Option changes or edited file contents keep the identity (the stage cache
+        redoes what they affect); another name or other input files make another study.
+        """
+        return {"name": self.name, "datasets": [
+            {"name": d.name, **{k: os.path.basename(getattr(d, k)) for k in _FILE_KEYS
+                                if getattr(d, k) is not None}} for d in self.datasets]}
+
+
+# ------------------------------------------------------------------------- TOML reading
+
+def _load_toml(path: Path) -> tuple[dict[str, Any], str]:
+    if sys.version_info >= (3, 11):
+        import tomllib
+    else:  # pragma: no cover
+        import tomli as tomllib
+    try:
+        text = path.read_text(encoding="utf-8")
+    except FileNotFoundError:
+        raise InputError("study file not found", path) from None
+    except IsADirectoryError:
+        raise InputError("is a folder, not a study file", path) from None
+    except UnicodeDecodeError:
+        raise InputError("not a study file (not UTF-8 text)", path) from None
+    try:
+        doc = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as err:
+        m = re.search(r"line (\d+)", str(err))
+        raise InputError(f"not valid TOML ({err})", path,
+                         int(m.group(1)) if m else None) from None
+    return doc, text
+
+
+def _key_lines(text: str) -> dict[tuple[str, str | None], int]:
+    """Line of each ``key =`` per section (``dataset[0]`` for the first ``[[dataset]]``)."""
+    out: dict[tuple[str, str | None], int] = {}
+    section, counts = "", {}
+    for k, raw in enumerate(text.splitlines(), start=1):
+        s = raw.strip()
+        if s.startswith("[["):
+            name = s[2:].split("]]", 1)[0].strip()
+            idx = counts.get(name, 0)
+            counts[name] = idx + 1
+            section = f"{name}[{idx}]"
+            out.setdefault((section, None), k)
+        elif s.startswith("["):
+            section = s[1:].split("]", 1)[0].strip()
+            out.setdefault((section, None), k)
+        else:
+            m = re.match(r'^("[^"]*"|\'[^\']*\'|[A-Za-z0-9_.-]+)\s*=', s)
+            if m:
+                out.setdefault((section, m.group(1).strip("\"'")), k)
+    return out
+
+
+class _Where:
+    """Names a key in messages: ``study.toml:12`` + ``[fit] key 'dfe'`` or ``--dfe``."""
+
+    def __init__(self, path: str | None, lines: dict | None = None,
+                 flags: dict[str, str] | None = None) -> None:
+        self.path = path
+        self.lines = lines or {}
+        self.flags = flags or {}
+
+    def line(self, section: str, key: str | None) -> int | None:
+        return self.lines.get((section, key)) or self.lines.get((section, None))
+
+    def name(self, section: str, key: str) -> str:
+        if self.path is None:
+            return self.flags.get(key, f"--{key.replace('_', '-')}")
+        shown = "dataset" if section.startswith("dataset") else section
+        return f"[{shown}] key {key!r}"
+
+    def error(self, section: str, key: str | None, message: str) -> DriftbandError:
+        if self.path is None:
+            return OptionError(message)
+        return InputError(message, self.path, self.line(section, key))
+
+
+def _value(where: _Where, section: str, key: str, v: Any, kind: str) -> Any:
+    what = where.name(section, key)
+
+    def bad(expect: str) -> DriftbandError:
+        return where.error(section, key, f"{what} must be {expect}, not {v!r}")
+
+    if kind in ("str", "path", "file", "name"):
+        if not isinstance(v, str) or not v.strip():
+            raise bad("a non-empty string")
+        if kind == "name" and not _NAME_RE.match(v):
+            raise bad("a name of letters, digits, '_', '.' and '-' (no '/' or spaces)")
+        return v
+    if kind in ("int", "posint", "nonnegint"):
+        if isinstance(v, bool) or not isinstance(v, int):
+            raise bad("an integer")
+        if kind == "posint" and v < 1:
+            raise bad("a positive integer")
+        if kind == "nonnegint" and v < 0:
+            raise bad("an integer >= 0")
+        return v
+    if kind == "float":
+        if isinstance(v, bool) or not isinstance(v, int | float):
+            raise bad("a number")
+        return float(v)
+    if kind == "bool":
+        if not isinstance(v, bool):
+            raise bad("true or false")
+        return v
+    if kind == "strlist":
+        if isinstance(v, str):
+            v = [t.strip() for t in v.split(",") if t.strip()]
+        if not isinstance(v, list) or not all(isinstance(t, str) and t for t in v):
+            raise bad("a list of strings")
+        return list(v)
+    if kind == "numlist":
+        if not isinstance(v, list) or not all(isinstance(t, int | float) and
+                                              not isinstance(t, bool) for t in v):
+            raise bad("a list of numbers")
+        return tuple(float(t) for t in v)
+    if kind == "project":
+        if isinstance(v, int) and not isinstance(v, bool) and v > 0:
+            return v
+        if isinstance(v, dict) and v and all(isinstance(n, int) and not isinstance(n, bool)
+                                             and n > 0 for n in v.values()):
+            return {str(k): int(n) for k, n in v.items()}
+        raise bad("a positive integer or a table {POP = N}")
+    if kind == "floattable":
+        if isinstance(v, dict) and all(isinstance(r, int | float) and not isinstance(r, bool)
+                                       for r in v.values()):
+            return {str(k): float(r) for k, r in v.items()}
+        raise bad("a table {POP = number}")
+    raise AssertionError(kind)  # pragma: no cover
+
+
+def _section(where: _Where, section: str, table: Any, schema: str) -> dict[str, Any]:
+    """Check a table's keys and types; returns the converted values."""
+    shown = "dataset" if section.startswith("dataset") else section
+    if not isinstance(table, dict):
+        raise where.error(section, None, f"[{shown}] must be a table of keys")
+    keys = STUDY_KEYS[schema]
+    out = {}
+    for key, v in table.items():
+        if key not in keys:
+            known = ", ".join(keys)
+            raise where.error(section, key, f"unknown key {key!r} in [{shown}] (known keys: "
+                                            f"{known})")
+        out[key] = _value(where, section, key, v, keys[key][0])
+    return out
+
+
+def _resolve(base: Path, p: str) -> str:
+    q = Path(os.path.expanduser(p))
+    return os.path.abspath(q if q.is_absolute() else base / q)
+
+
+def _default_name(vcf: str) -> str:
+    name = os.path.basename(vcf)
+    for ext in (".gz", ".bgz", ".vcf", ".bcf"):
+        if name.endswith(ext):
+            name = name[: -len(ext)]
+    name = re.sub(r"[^A-Za-z0-9_.-]", "_", name).strip("._-")
+    return name or "dataset"
+
+
+def _dataset(where: _Where, section: str, vals: dict[str, Any], base: Path) -> Dataset:
+    label = vals.get("name")
+    who = (f"dataset {label!r}" if label else f"dataset {int(section[8:-1]) + 1}"
+           if where.path is not None else "the dataset")
+    for key in ("vcf", "popmap"):
+        if key not in vals:
+            raise where.error(section, None, f"{who}: {where.name(section, key)} is "
+                                             "required")
+    has_sites, has_genome = "sites" in vals, ("fasta" in vals or "gff" in vals)
+    if has_sites and has_genome:
+        raise where.error(section, "sites", f"{who}: give either sites (a BED of site "
+                                            "classes) or fasta + gff, not both")
+    if not has_sites and not ("fasta" in vals and "gff" in vals):
+        missing = "gff" if "fasta" in vals else "fasta" if "gff" in vals else "sites"
+        raise where.error(section, None, f"{who}: needs the site classes: sites = BED, or "
+                                         f"fasta + gff ({where.name(section, missing)} "
+                                         "is missing)")
+    if has_sites:
+        for key in ("code", "transcripts", "exclude_softmasked"):
+            if key in vals:
+                raise where.error(section, key, f"{who}: {where.name(section, key)} applies "
+                                                "only to site classes made from fasta + gff")
+    if vals.get("transcripts", "agree") not in ("agree", "longest"):
+        raise where.error(section, "transcripts", f"{who}: transcripts must be 'agree' or "
+                                                  "'longest'")
+    anc = vals.get("ancestral", "aa")
+    kind, _, pop = anc.partition(":")
+    if not (anc in ("aa", "fold") or (kind == "outgroup" and pop)):
+        raise where.error(section, "ancestral", f"{who}: ancestral must be 'aa', 'fold' or "
+                                                f"'outgroup:POP', not {anc!r}")
+    if "blocks" in vals and "block_size" in vals:
+        raise where.error(section, "blocks", f"{who}: give blocks or block_size, not both")
+    d = {k: (_resolve(base, v) if k in _FILE_KEYS else v) for k, v in vals.items()}
+    regions = d.get("regions")
+    if regions:  # BED files among the regions are paths too
+        d["regions"] = [_resolve(base, r) if r.endswith((".bed", ".bed.gz")) else r
+                        for r in regions]
+    d.setdefault("name", _default_name(d["vcf"]))
+    return Dataset(**d)
+
+
+def study_from_dict(doc: dict[str, Any], source: str | os.PathLike | None = None,
+                    base: str | os.PathLike | None = None, text: str | None = None,
+                    flags: dict[str, str] | None = None) -> Study:
+    """Build and check a :class:`Study` from a parsed study document.
+
+    Parameters
+    ----------
+    doc : dict
+        Sections ``study``, ``dataset`` (a list of tables, or one table), ``fit``,
+        ``bootstrap``, ``compare`` with the keys of :data:`STUDY_KEYS`.
+    source : path-like, optional
+        The study file (named in messages); None for command-line flags.
+    base : path-like, optional
+        Folder relative paths are taken from (default: the study file's folder, or the
+        current folder).
+    text : str, optional
+        The file's text (for line numbers in messages).
+    flags : dict, optional
+        Key -> command-line flag, for messages when ``source`` is None.
+
+    Returns
+    -------
+    Study
+
+    Raises
+    ------
+    InputError
+        An unknown section or key, a value of the wrong type, a dataset without its
+        required files, several datasets with the same name (file and line named).
+    OptionError
+        The same problems in command-line flags.
+    """
+    src = None if source is None else os.fspath(source)
+    where = _Where(src, _key_lines(text) if text else None, flags)
+    base_dir = Path(base) if base is not None else (Path(src).parent if src else Path.cwd())
+    for sec in doc:
+        if sec not in STUDY_KEYS:
+            what = (f"unknown section [{sec}]" if isinstance(doc[sec], dict | list)
+                    else f"unknown key {sec!r} outside any section")
+            known = ", ".join("[[dataset]]" if s == "dataset" else f"[{s}]" for s in STUDY_KEYS)
+            raise where.error(sec if isinstance(doc[sec], dict | list) else "", sec,
+                              f"{what} (known sections: {known})")
+    st = _section(where, "study", doc.get("study", {}), "study")
+    raw = doc.get("dataset")
+    if raw is None or raw == []:
+        raise where.error("", None, "the study has no dataset (add a [[dataset]] table with "
+                                    "vcf, popmap and sites or fasta + gff)")
+    tables = raw if isinstance(raw, list) else [raw]
+    datasets = [_dataset(where, f"dataset[{i}]", _section(where, f"dataset[{i}]", t,
+                                                            "dataset"), base_dir)
+                for i, t in enumerate(tables)]
+    names = [d.name for d in datasets]
+    dup = next((n for n in names if names.count(n) > 1), None)
+    if dup is not None:
+        k = len(names) - 1 - names[::-1].index(dup)
+        raise where.error(f"dataset[{k}]", "name", f"two datasets are named {dup!r}; give "
+                                                   "each dataset its own name")
+    fit = _section(where, "fit", doc.get("fit", {}), "fit")
+    boot = _section(where, "bootstrap", doc.get("bootstrap", {}), "bootstrap")
+    comp = _section(where, "compare", doc.get("compare", {}), "compare")
+    if "dfe" in fit:
+        fit["dfe"] = tuple(fit["dfe"])
+        if not fit["dfe"]:
+            raise where.error("fit", "dfe", f"{where.name('fit', 'dfe')} names no model")
+    if "tests" in comp:
+        comp["tests"] = tuple(comp["tests"])
+        bad = [t for t in comp["tests"] if t not in DEFAULT_TESTS]
+        if bad:
+            raise where.error("compare", "tests", f"unknown test {bad[0]!r} (choose from "
+                                                  f"{', '.join(DEFAULT_TESTS)})")
+    if "models" in boot and boot["models"] not in ("best", "all"):
+        raise where.error("bootstrap", "models", f"{where.name('bootstrap', 'models')} must "
+                                                 f"be 'best' or 'all', not {boot['models']!r}")
+    if "level" in boot and not 0.5 < boot["level"] < 1.0:
+        raise where.error("bootstrap", "level", f"{where.name('bootstrap', 'level')} must "
+                                                "lie between 0.5 and 1, e.g. 0.95")
+    default_name = Path(src).name.split(".")[0] if src else datasets[0].name
+    out_dir = _resolve(base_dir, st["out_dir"]) if "out_dir" in st else None
+    return Study(name=st.get("name", default_name), datasets=datasets,
+                 fit=FitSettings(**fit), bootstrap=BootstrapSettings(**boot),
+                 compare=CompareSettings(**comp), description=st.get("description", ""),
+                 out_dir=out_dir, source=None if src is None else os.path.abspath(src),
+                 text=text)
+
+
+def read_study(path: str | os.PathLike) -> Study:
+    """Read a study file (TOML) and check its keys; see :data:`STUDY_KEYS`.
+
+    Parameters
+    ----------
+    path : path-like
+
+    Returns
+    -------
+    Study
+
+    Raises
+    ------
+    InputError
+        Not TOML, or any problem listed in :func:`study_from_dict`.
+    """
+    p = Path(path)
+    doc, text = _load_toml(p)
+    return study_from_dict(doc, p, text=text)
+
+
+def check_files(study: Study) -> None:
+    """Check that every input file of the study exists, before any work.
+
+    Raises
+    ------
+    InputError
+        Naming the missing file, its key and dataset, and the study file and line.
+    """
+    lines = _key_lines(study.text) if study.text else {}
+    for i, d in enumerate(study.datasets):
+        for key in _FILE_KEYS:
+            p = getattr(d, key)
+            if p is None:
+                continue
+            if not os.path.exists(p):
+                if study.source is None:
+                    raise InputError(f"file not found (--{key})", p)
+                line = lines.get((f"dataset[{i}]", key))
+                raise InputError(f"dataset {d.name!r}: {key} file {p} not found", study.source,
+                                 line)
+            if os.path.isdir(p):
+                where = f"--{key}" if study.source is None else \
+                    f"dataset {d.name!r}, key {key!r} of {study.source}"
+                raise InputError(f"is a folder, not a file ({where})", p)
+        for r in d.regions or []:
+            if r.endswith((".bed", ".bed.gz")) and not os.path.exists(r):
+                raise InputError(f"dataset {d.name!r}: regions file {r} not found",
+                                 study.source or r, lines.get((f"dataset[{i}]", "regions")))
