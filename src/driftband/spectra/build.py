@@ -572,15 +572,19 @@ def projection_matrix(m: int, n: int) -> np.ndarray:
     """
     if not 0 <= n <= m:
         raise ValueError(f"projection needs 0 <= n <= m, got n={n}, m={m}")
-    d = np.arange(m + 1, dtype=float)[:, None]
-    j = np.arange(n + 1, dtype=float)[None, :]
+    return _projection_rows(m, n, np.arange(m + 1))
+
+
+def _projection_rows(m: int, n: int, d: np.ndarray) -> np.ndarray:
+    """Rows ``d`` of :func:`projection_matrix`, from a table of log-factorials."""
+    lf = gammaln(np.arange(1, m + 2, dtype=float))   # lf[k] = log(k!)
+    d = np.asarray(d, dtype=np.int64)[:, None]
+    j = np.arange(n + 1, dtype=np.int64)[None, :]
     ok = (j <= d) & (n - j <= m - d)
-
-    def lc(a, b):
-        return gammaln(a + 1) - gammaln(b + 1) - gammaln(a - b + 1)
-
-    with np.errstate(invalid="ignore"):
-        logp = lc(d, np.minimum(j, d)) + lc(m - d, np.clip(n - j, 0, m - d)) - lc(m, n)
+    jj = np.minimum(j, d)
+    kk = np.clip(n - j, 0, m - d)
+    logp = (lf[d] - lf[jj] - lf[d - jj] + lf[m - d] - lf[kk] - lf[m - d - kk]
+            - (lf[m] - lf[n] - lf[m - n]))
     return np.where(ok, np.exp(np.where(ok, logp, 0.0)), 0.0)
 
 
@@ -702,9 +706,10 @@ def spectra_from_counts(counts: RegionCounts, design: CountDesign, blocks: Seque
             Sf = S.astype(np.float64)
             for mm in np.unique(m[proj]).tolist():
                 sel = proj & (m == mm)
-                H = scipy.sparse.csr_matrix((w[sel].astype(float), (tgt[sel], d[sel])),
-                                            shape=(C * B, mm + 1))
-                Sf += H @ projection_matrix(mm, n)
+                ud, dinv = np.unique(d[sel], return_inverse=True)   # only the rows needed
+                H = scipy.sparse.csr_matrix((w[sel].astype(float), (tgt[sel], dinv)),
+                                            shape=(C * B, ud.size))
+                Sf += H @ _projection_rows(mm, n, ud)
             S = Sf
         S[:, 0] += sites - counted
         if np.any(S[:, 0] < -1e-6):
@@ -797,6 +802,7 @@ def build_spectra(vcf: str | os.PathLike, popmap: Popmap | str | os.PathLike,
 
 def _build(src, vcf, popmap, sites, callable_mask, ancestral, project, block_size, blocks,
            regions, min_gq, min_dp, pass_only, region_size, keep, progress, checksums):
+    digest = _Checksum(vcf if checksums else None)   # hashed while counting runs
     pm = _as_popmap(popmap)
     kind, _, og = ancestral.partition(":")
     if kind == "outgroup" and not og:
@@ -882,7 +888,8 @@ def _build(src, vcf, popmap, sites, callable_mask, ancestral, project, block_siz
     rec = file_record if checksums else (lambda p: None if p is None else
                                          {"path": os.path.abspath(os.fspath(p))
                                           if os.fspath(p) != "-" else "-"})
-    inputs = {"vcf": rec(vcf), "popmap": rec(pm.path), "sites": rec(sc.path),
+    inputs = {"vcf": digest.result() or rec(vcf), "popmap": rec(pm.path),
+              "sites": rec(sc.path),
               "callable": rec(callable_mask) if isinstance(callable_mask, str | os.PathLike)
               else None, "blocks": rec(blocks)}
     prov = provenance(opts, {k: v for k, v in inputs.items() if v is not None})
@@ -894,6 +901,36 @@ def _build(src, vcf, popmap, sites, callable_mask, ancestral, project, block_siz
                       "outgroup": design.outgroup}
     ss.provenance = prov
     return ss
+
+
+class _Checksum:
+    """SHA-256 of the VCF for the provenance, computed in a helper thread while counting
+    runs (it is I/O bound, and file reads and hashlib release the GIL)."""
+
+    def __init__(self, path) -> None:
+        import threading
+
+        self.path = None if path is None or os.fspath(path) == "-" else os.fspath(path)
+        self.record: dict[str, Any] | None = None
+        self.error: BaseException | None = None
+        self._t = None
+        if self.path is not None:
+            self._t = threading.Thread(target=self._run, name="driftband-sha256", daemon=True)
+            self._t.start()
+
+    def _run(self) -> None:
+        try:
+            self.record = file_record(self.path)
+        except BaseException as err:  # re-raised by result()
+            self.error = err
+
+    def result(self) -> dict[str, Any] | None:
+        """The file record (path, size, sha256), or None without a checksum."""
+        if self._t is not None:
+            self._t.join()
+        if self.error is not None:
+            raise self.error
+        return self.record
 
 
 def _check_chroms(plan: SitePlan, sc: SiteClasses, vchroms: Sequence[str], bed_path: str,

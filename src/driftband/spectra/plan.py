@@ -102,6 +102,15 @@ def aggregate(keys: np.ndarray, weights: np.ndarray) -> np.ndarray:
         q = keys.shape[1] if keys.ndim == 2 else 1
         return np.zeros((0, q + 1), np.int64)
     keys = keys.reshape(weights.size, -1)
+    lo, hi = keys.min(axis=0), keys.max(axis=0)
+    bits = [int(h).bit_length() for h in hi]
+    if lo.min() >= 0 and sum(bits) <= 62:   # pack the key columns into one int64
+        packed = np.zeros(weights.size, np.int64)
+        for j, b in enumerate(bits):
+            packed = (packed << b) | keys[:, j]
+        u, first, inv = np.unique(packed, return_index=True, return_inverse=True)
+        sums = np.bincount(inv.reshape(-1), weights=weights, minlength=u.size)
+        return np.column_stack([keys[first], np.rint(sums).astype(np.int64)])
     order = np.lexsort(keys.T[::-1])
     ks = keys[order]
     ws = weights[order]

@@ -196,15 +196,17 @@ def _records_genotypes(records: Sequence, cols: np.ndarray, fields: Sequence[str
 _LUT_ALLELE = np.full(256, -100, np.int8)   # digit -> allele index, '.' -> -1
 _LUT_ALLELE[48:58] = np.arange(10)
 _LUT_ALLELE[46] = -1
-_LUT_SEP = np.full(256, 2, np.int8)        # 0: '/' or '|', 1: end of the GT subfield
-_LUT_SEP[[47, 124]] = 0
-_LUT_SEP[[58, 9, 10, 0]] = 1
-_LUT_END = np.zeros(256, bool)
+_LUT_END = np.zeros(256, bool)              # bytes that end a subfield
 _LUT_END[[58, 9, 10, 0]] = True
 
 
+_LUT_SEP = np.full(256, 2, np.int8)        # 0: '/' or '|', 1: end of the GT subfield
+_LUT_SEP[[47, 124]] = 0
+_LUT_SEP[[58, 9, 10, 0]] = 1
+
+
 def _decode_gt(buf: np.ndarray, p: np.ndarray, e: np.ndarray
-               ) -> tuple[np.ndarray, np.ndarray]:
+               ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Vectorised GT decoding of sample fields ``buf[p:e]`` (GT first), shape (r, s).
 
     Handles haploid and diploid calls with single-digit allele indices and ``.``; returns
@@ -212,7 +214,7 @@ def _decode_gt(buf: np.ndarray, p: np.ndarray, e: np.ndarray
     ``hap`` (r, s) bool, True where the GT has one character (haploid or ``.``).
     """
     a0 = _LUT_ALLELE.take(buf.take(p))
-    sep = _LUT_SEP.take(buf[1:].take(p))      # views: no index arithmetic
+    sep = _LUT_SEP.take(buf[1:].take(p))      # shifted views: no index arithmetic
     a2 = _LUT_ALLELE.take(buf[2:].take(p))
     hap = sep == 1
     ok = (a0 > -100) & (hap | ((sep == 0) & _LUT_END.take(buf[3:].take(p)) & (a2 > -100)))
