@@ -120,6 +120,31 @@ def sfs(n: int, S: float, classes=None) -> tuple[np.ndarray, np.ndarray]:
     return np.array([r[0] for r in res]), np.array([r[1] for r in res])
 
 
+# ------------------------------------------------------------------- scipy second oracle
+def kummer_scipy(n: int, S) -> np.ndarray:
+    """g_i(S) from the closed form through scipy.special.hyp1f1, argument always -|S|.
+
+    S > 0: n/(i(n-i)) [1 - M(n-i, n, -S)] / (1 - e^-S);
+    S = -t < 0: n/(i(n-i)) [M(i, n, -t) - e^-t] / (1 - e^-t)
+    (Euler's integral for M, DLMF 13.4.1, and Kummer's transformation, from memory).
+    A second, double-precision oracle: it loses accuracy for |S| < 1e-2 (1 - M cancels).
+    Shape ``np.shape(S) + (n - 1,)``; S must be non-zero.
+    """
+    from scipy.special import hyp1f1
+
+    S = np.asarray(S, dtype=float)
+    flat = S.reshape(-1)
+    i = np.arange(1, n, dtype=float)
+    c = n / (i * (n - i))
+    out = np.empty((flat.size, n - 1))
+    pos = flat > 0
+    Sp = flat[pos][:, None]
+    out[pos] = c * (1 - hyp1f1(n - i, n, -Sp)) / -np.expm1(-Sp)
+    t = -flat[~pos][:, None]
+    out[~pos] = c * (hyp1f1(i, n, -t) - np.exp(-t)) / -np.expm1(-t)
+    return out.reshape(S.shape + (n - 1,))
+
+
 # --------------------------------------------------------------------------- gamma DFE
 class ReferenceNotConverged(RuntimeError):
     """Two quadrature orders disagree: the reference value cannot be trusted."""

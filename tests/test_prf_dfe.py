@@ -265,13 +265,14 @@ def test_fixation_ratio_other_families():
     # Source: mpmath.quad of the defining expectation.
     import mpmath as mp
 
-    mu, sigma = 1.0, 1.2
-    with mp.workdps(30):
-        f = lambda z: (mp.npdf(z) * mp.exp(mu + sigma * z)  # noqa: E731
-                       / mp.expm1(mp.exp(mu + sigma * z)))
-        # |z| > 12 holds mass < 4e-33 (and mpmath would meet exp(exp(large)) there)
-        want = float(mp.quad(f, list(range(-12, 13, 2))))
-    assert_allclose(mean_fixation_ratio(LognormalDfe(mu, sigma)), want, rtol=1e-10)
+    for mu, sigma in ((1.0, 1.2), (1.0, 0.1)):  # 0.1: a narrow DFE (refined panels)
+        with mp.workdps(30):
+            def f(z, mu=mu, sigma=sigma):
+                return mp.npdf(z) * mp.exp(mu + sigma * z) / mp.expm1(mp.exp(mu + sigma * z))
+
+            # |z| > 12 holds mass < 4e-33 (and mpmath would meet exp(exp(large)) there)
+            want = float(mp.quad(f, list(range(-12, 13, 2))))
+        assert_allclose(mean_fixation_ratio(LognormalDfe(mu, sigma)), want, rtol=1e-10)
     # discrete: uniform band [0, 4): (1/4) int_0^4 t/(e^t - 1) dt, by mpmath.quad
     with mp.workdps(30):
         want0 = float(mp.quad(lambda t: t / mp.expm1(t) if t else 1, [0, 4]) / 4)

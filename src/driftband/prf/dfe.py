@@ -560,13 +560,30 @@ def _breaks(base: BaseDfe) -> tuple[float, ...]:
     return tuple(base.breakpoints_t) + _narrow_breaks(base)
 
 
+def _nodes_for(base: BaseDfe) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """(t, ln t, weights in ln t) of the quadrature used for ``base``."""
+    plan = _fine_plan(base)
+    if plan is None:
+        return _panels(_breaks(base))
+    p, k_lo, k_hi = plan
+    t, lt, w = _panels(())
+    keep = np.ones(t.size, dtype=bool)
+    keep[NODES_PER_DECADE * (k_lo - _K_LO):NODES_PER_DECADE * (k_hi + 1 - _K_LO)] = False
+    fine = [_decade_nodes(d, p) for d in range(k_lo, k_hi + 1)]
+    return tuple(np.concatenate([v[keep]] + [f[j] for f in fine]) for j, v in
+                 enumerate((t, lt, w)))
+
+
 def _expect_t(base: BaseDfe, fn, small_t: tuple[float, float]) -> float:
-    """E[fn(T)] by the ln t panels; ``small_t = (fn(0), fn'(0))`` for the mass below T_LO."""
-    t, lt, w = _panels(_breaks(base))
-    with np.errstate(divide="ignore", invalid="ignore"):
-        dens = np.exp(np.asarray(base.logpdf_t(t)) + lt) * w
-    low = float(base.cdf_t(T_LO)) * small_t[0] + base.partial_mean_t(T_LO) * small_t[1]
-    return float(dens @ fn(t)) + low
+    """E[fn(T)] on the same ln t nodes as the DFE-averaged spectra (standard decades,
+    refined where a narrow DFE has its bulk); ``small_t = (fn(0), fn'(0))`` for the mass
+    below T_LO."""
+    t, lt, w = _nodes_for(base)
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        dens = np.exp(np.asarray(base.logpdf_t(t, lt)) + lt) * w
+    dens[~np.isfinite(dens)] = 0.0
+    p0, m0 = base._small_t(T_LO)
+    return float(dens @ fn(t)) + p0 * small_t[0] + m0 * small_t[1]
 
 
 def mean_fixation_ratio(dfe: Dfe) -> float:
@@ -665,7 +682,23 @@ def _g_rows(k: SfsKernel, t: np.ndarray) -> np.ndarray:
     return out
 
 
-class _Fine:
+class _Nodes:
+    """Quadrature nodes ``t``, ``log_t`` and ``log_tw`` = ln t + ln(weight in ln t)."""
+
+    t: np.ndarray
+    log_t: np.ndarray
+    log_tw: np.ndarray
+
+    def node_weights(self, base: BaseDfe) -> np.ndarray:
+        """W_j f(t_j) t_j, shape (J,)."""
+        with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+            dens = np.exp(np.asarray(base.logpdf_t(self.t, self.log_t)) + self.log_tw)
+        if not np.all(np.isfinite(dens)):
+            dens[~np.isfinite(dens)] = 0.0
+        return dens
+
+
+class _Fine(_Nodes):
     """Refined nodes over decades k_lo..k_hi (level p) for narrow DFEs."""
 
     def __init__(self, k: SfsKernel, p: int, k_lo: int, k_hi: int, pieces: dict) -> None:
@@ -684,10 +717,8 @@ class _Fine:
         self.std_rows = slice(NODES_PER_DECADE * (k_lo - _K_LO),
                               NODES_PER_DECADE * (k_hi + 1 - _K_LO))
 
-    node_weights = None  # set below (same as _Table's)
 
-
-class _Table:
+class _Table(_Nodes):
     """Nodes in t and the matrix of g at S = -t, plus two rows for the mass below T_LO."""
 
     def __init__(self, k: SfsKernel, breaks: tuple[float, ...]) -> None:
@@ -701,14 +732,6 @@ class _Table:
         self.G_nodes = G[2:]
         self.log_tw = self.log_t + np.log(self.w)
 
-    def node_weights(self, base: BaseDfe) -> np.ndarray:
-        """W_j f(t_j) t_j, shape (J,)."""
-        with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
-            dens = np.exp(np.asarray(base.logpdf_t(self.t, self.log_t)) + self.log_tw)
-        if not np.all(np.isfinite(dens)):
-            dens[~np.isfinite(dens)] = 0.0
-        return dens
-
     def weights(self, base: BaseDfe) -> np.ndarray:
         return np.concatenate((base._small_t(T_LO), self.node_weights(base)))
 
@@ -716,8 +739,6 @@ class _Table:
         p0, m0 = base._small_t(T_LO)
         return self.node_weights(base) @ self.G_nodes + (p0 * self.G[0] + m0 * self.G[1])
 
-
-_Fine.node_weights = _Table.node_weights
 
 
 class DfeExpectation:
@@ -849,7 +870,7 @@ class DfeExpectation:
         base, p_b, s_b = _split(dfe)
         if isinstance(base, DiscreteDfe):
             out = np.asarray(base.masses) @ self.band_means(base.edges_nes)
-        elif base.is_narrow() and (nar := self._narrow(base)) is not None:
+        elif (nar := self._narrow(base)) is not None:
             w_std, blk = nar
             p0, m0 = base._small_t(T_LO)
             out = (w_std @ self._std.G_nodes + blk.node_weights(base) @ blk.G
