@@ -1,8 +1,18 @@
 """driftband: the distribution of fitness effects of new mutations and its effectively
 neutral share (|Ne*s| < 1), per population, from variant calls.
 
-The public API mirrors the command line; see the subpackages ``sites``, ``variants``,
-``spectra``, ``prf`` and ``fit``.
+The public API mirrors the command line, stage by stage:
+
+- sites: :func:`classify_sites` (FASTA + GFF3 → 0-fold/4-fold), :func:`read_site_classes`
+- spectra: :func:`build_spectra` (VCF → :class:`SpectraSet`), :func:`read_spectra`,
+  :func:`write_spectra_json`
+- model: :class:`GammaDfe`, :class:`LognormalDfe`, :class:`DiscreteDfe`,
+  :class:`WithBeneficial`, :func:`expected_sfs`, :class:`DfeExpectation`,
+  :func:`band_shares`
+- fit: :class:`SpectrumPair`, :class:`DfeModel`, :func:`fit_model`,
+  :class:`FitOptions`, :func:`fit_population`, :func:`bootstrap_fits`
+- compare: :func:`compare_pair`
+- simulate: :func:`simulate_study`
 """
 
 from ._version import __version__
@@ -16,13 +26,80 @@ from .exceptions import (
     VcfFormatError,
 )
 
+# The stages are imported on first use (PEP 562), so that the command line and
+# ``import driftband`` stay fast; ``from driftband import *`` still gives all names.
+_LAZY = {
+    "compare_pair": "compare",
+    "FitOptions": "fit.api",
+    "PopulationFit": "fit.api",
+    "fit_population": "fit.api",
+    "bootstrap_fits": "fit.bootstrap",
+    "SpectrumPair": "fit.likelihood",
+    "FitResult": "fit.mle",
+    "fit_model": "fit.mle",
+    "DfeModel": "fit.models",
+    "DfeExpectation": "prf",
+    "DiscreteDfe": "prf",
+    "GammaDfe": "prf",
+    "LognormalDfe": "prf",
+    "WithBeneficial": "prf",
+    "band_shares": "prf",
+    "expected_sfs": "prf",
+    "simulate_study": "simulate",
+    "classify_sites": "sites",
+    "read_site_classes": "sites",
+    "SpectraSet": "spectra",
+    "read_spectra": "spectra",
+    "write_spectra_json": "spectra",
+    "build_spectra": "spectra.build",
+}
+
+
+def __getattr__(name: str):
+    mod = _LAZY.get(name)
+    if mod is None:
+        raise AttributeError(f"module 'driftband' has no attribute {name!r}")
+    import importlib
+
+    value = getattr(importlib.import_module(f".{mod}", __name__), name)
+    globals()[name] = value
+    return value
+
+
+def __dir__() -> list[str]:
+    return sorted(set(globals()) | set(_LAZY))
+
+
 __all__ = [
     "ConvergenceWarning",
+    "DfeExpectation",
+    "DfeModel",
+    "DiscreteDfe",
     "DriftbandError",
     "DriftbandWarning",
+    "FitOptions",
+    "FitResult",
+    "GammaDfe",
     "InputError",
+    "LognormalDfe",
     "OptionError",
     "OutputExistsError",
+    "PopulationFit",
+    "SpectraSet",
+    "SpectrumPair",
     "VcfFormatError",
+    "WithBeneficial",
     "__version__",
+    "band_shares",
+    "bootstrap_fits",
+    "build_spectra",
+    "classify_sites",
+    "compare_pair",
+    "expected_sfs",
+    "fit_model",
+    "fit_population",
+    "read_site_classes",
+    "read_spectra",
+    "simulate_study",
+    "write_spectra_json",
 ]
