@@ -287,6 +287,9 @@ class _RegionCounter:
         self.W = np.zeros((self.used.size, len(groups)), np.float32)
         for k, ix in enumerate(groups):
             self.W[ix, k] = 1.0
+        runs = [(int(ix[0]), int(ix[-1]) + 1) for ix in groups
+                if ix.size and ix[-1] - ix[0] == ix.size - 1]
+        self.slices = runs if len(runs) == len(groups) else None
         self.fields = tuple(f for f, v in (("DP", design.min_dp), ("GQ", design.min_gq))
                             if v is not None)
         self.kinds: dict[tuple[bytes, bytes], tuple[int, int, int]] = {}
@@ -377,9 +380,27 @@ class _RegionCounter:
             self.u_d.append(self._dd[np.searchsorted(good, ok)])
 
     def _genotypes(self, b, rows, good, kind, info, anc, status) -> None:
+        snp = kind[good] == _SNP
+        fast = None
+        if not self.fields and hasattr(b, "allele_counts"):
+            fast = b.allele_counts(rows[good], self.used)
+        if fast is not None:
+            altc, called, ok = fast
+            if not snp.all():   # allele 1 in a monomorphic record: placeholder or error
+                ok = ok & (snp | (altc.max(axis=1) == 0))
+            if not ok.all():
+                slow = np.flatnonzero(~ok)
+                a2, c2 = self._counts(b, rows, good[slow], kind, info, snp[slow])
+                altc, called = altc.copy(), called.copy()
+                altc[slow], called[slow] = a2, c2
+        else:
+            altc, called = self._counts(b, rows, good, kind, info, snp)
+        self._finish(altc, called, snp, anc[good], good, status)
+
+    def _counts(self, b, rows, good, kind, info, snp):
+        """Per-sample ALT and called copies through the generic genotype decoder."""
         g = b.genotypes(rows[good], self.used, self.fields)
         a = g.alleles
-        snp = kind[good] == _SNP              # ALT allele index 1; monomorphic: none
         n_alts = info[1][good].astype(np.int16)
         amax = int(a.max()) if a.size else 0
         if amax > int(n_alts.min()):
@@ -410,12 +431,20 @@ class _RegionCounter:
             k8 = keep.view(np.int8)
             called = called * k8
             altc = altc * k8
-        # per-population sums as one small matrix product (exact: integers < 2**24)
-        both = np.concatenate([called, altc]).astype(np.float32) @ self.W
-        both = np.rint(both).astype(np.int64)
+        return altc, called
+
+    def _finish(self, altc, called, snp, ga, good, status) -> None:
+        """Per-population called (m) and derived (d) copies of the usable records."""
         r = called.shape[0]
+        if self.slices is not None:     # populations are runs of columns: slice sums
+            both = np.empty((2 * r, len(self.slices)), np.int64)
+            for k, (a, z) in enumerate(self.slices):
+                both[:r, k] = called[:, a:z].sum(axis=1, dtype=np.int64)
+                both[r:, k] = altc[:, a:z].sum(axis=1, dtype=np.int64)
+        else:  # one small matrix product (exact: integers < 2**24)
+            both = np.rint(np.concatenate([called, altc]).astype(np.float32) @ self.W
+                           ).astype(np.int64)
         m, x = both[:r, :self.npop], both[r:, :self.npop]
-        ga = anc[good]
         if self.d.ancestral == "outgroup":
             mo, xo = both[:r, self.npop], both[r:, self.npop]
             ga = np.where(snp, np.where(xo == 0, 0, 1), 0)

@@ -200,6 +200,10 @@ _LUT_END = np.zeros(256, bool)              # bytes that end a subfield
 _LUT_END[[58, 9, 10, 0]] = True
 
 
+_LUT_COUNT = np.zeros(256, np.uint8)       # bit 0: allele 1, bit 1: called 0/1, bit 2: valid
+_LUT_COUNT[48] = 6
+_LUT_COUNT[49] = 7
+_LUT_COUNT[46] = 4
 _LUT_SEP = np.full(256, 2, np.int8)        # 0: '/' or '|', 1: end of the GT subfield
 _LUT_SEP[[47, 124]] = 0
 _LUT_SEP[[58, 9, 10, 0]] = 1
@@ -465,6 +469,38 @@ class TextBatch(VariantBatch):
         if not np.all(buf.take(idx) == np.frombuffer(f0, np.uint8)):
             return None
         return f0
+
+    def allele_counts(self, rows: np.ndarray, cols: np.ndarray
+                      ) -> tuple[np.ndarray, np.ndarray, np.ndarray] | None:
+        """Per-sample copies of allele 1 and called copies (alleles 0 or 1), GT only.
+
+        The vectorised path for biallelic counting: returns ``alt``, ``called`` (r, s)
+        int8 and ``ok`` (r,) bool (False: a record with another allele index, ploidy or
+        odd GT, to be decoded by :meth:`genotypes`), or None when the records do not all
+        have one FORMAT starting with GT.
+        """
+        f0 = self._uniform_format()
+        if f0 is None or not (f0 == b"GT" or f0.startswith(b"GT:")):
+            return None
+        rows = np.asarray(rows, dtype=np.int64)
+        cols = np.asarray(cols, dtype=np.int64)
+        full = rows.size == len(self.pos) and rows.size and rows[-1] == rows.size - 1
+        tr = self._tabs if full else self._tabs[rows]
+        if cols.size and cols[-1] - cols[0] == cols.size - 1:
+            t = tr[:, 8 + int(cols[0]):9 + int(cols[-1])]
+        else:
+            t = tr[:, 8 + cols]
+        buf = self._buf            # t: the tab before each sample field
+        k0 = _LUT_COUNT.take(buf[1:].take(t))
+        sep = _LUT_SEP.take(buf[2:].take(t))
+        k2 = _LUT_COUNT.take(buf[3:].take(t))
+        hap = sep == 1
+        dip = (sep == 0) & _LUT_END.take(buf[4:].take(t))
+        ok = ((k0 >= 4) & (hap | (dip & (k2 >= 4)))).all(axis=1)
+        k2 = k2 * dip.view(np.uint8)
+        alt = (k0 & 1) + (k2 & 1)
+        called = ((k0 >> 1) & 1) + ((k2 >> 1) & 1)
+        return alt.view(np.int8), called.view(np.int8), ok
 
     def info(self, rows, key):
         kb = key.encode() + b"="
