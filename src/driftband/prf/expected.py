@@ -109,7 +109,8 @@ class SfsKernel:
         Derived-allele frequency at the nodes and its complement (both computed
         without cancellation).
     A : ndarray, shape (n - 1, J), float64
-        ``h * C(n, i) * x_j**i * (1 - x_j)**(n - i)`` for classes ``i = 1..n-1``.
+        ``h * C(n, i) * x_j**i * (1 - x_j)**(n - i)`` for classes ``i = 1..n-1``
+        (J = 2736 nodes at n = 200, 8647 at n = 2000, where A takes 138 MB).
 
     Notes
     -----
