@@ -413,3 +413,22 @@ def test_flags_mode_errors(tmp_path, capsys):
     assert "--gff is missing" in _err(capsys)
     assert main(["run", str(DEMO)]) == 2
     assert "no output folder" in _err(capsys)
+
+
+def test_readme_documents_every_study_key():
+    """The README's "Study files" listing holds every key of STUDY_KEYS, and no other."""
+    text = (ROOT / "README.md").read_text(encoding="utf-8")
+    block = text.split("## Study files", 1)[1].split("```toml", 1)[1].split("```", 1)[0]
+    found: dict[str, set] = {}
+    section = None
+    for line in block.splitlines():
+        s = line.strip()
+        m = re.match(r"^\[\[?(\w+)\]?\]", s)
+        if m:
+            section = m.group(1)
+            found.setdefault(section, set())
+            continue
+        m = re.match(r"^#?\s*(\w+)\s*=", s)
+        if m and section:
+            found[section].add(m.group(1))
+    assert found == {k: set(v) for k, v in runmod.STUDY_KEYS.items()}
