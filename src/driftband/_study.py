@@ -265,6 +265,8 @@ def _key_lines(text: str) -> dict[tuple[str, str | None], int]:
             out.setdefault((section, None), k)
         elif s.startswith("["):
             section = s[1:].split("]", 1)[0].strip()
+            if section == "dataset":  # one [dataset] table: the first dataset
+                section = "dataset[0]"
             out.setdefault((section, None), k)
         else:
             m = re.match(r'^("[^"]*"|\'[^\']*\'|[A-Za-z0-9_.-]+)\s*=', s)

@@ -314,9 +314,8 @@ def stage_fit(spectra: list[tuple[str, str, str | os.PathLike]], options,
     sets = _spectra_sets(spectra)
     by_path = {os.fspath(p): name for name, _lab, p in spectra}
     pooled = pool_populations(sets, options, populations)
-    # One task per population and model, each with its own per-n table: a table's cache
-    # of refined quadratures is shared by every DFE evaluated with it, so families fitted
-    # one after the other would crowd each other out.
+    # One task per population and model, run on the worker processes (each task builds
+    # its own per-n table of expected spectra).
     tasks = [(data, dataclasses.replace(options, models=(m,)), name)
              for name, _ds, data in pooled for m in options.models]
     for name, _ds, data in pooled:
@@ -476,10 +475,7 @@ def stage_bootstrap(point_json: str | os.PathLike,
         groups: dict[tuple[str, ...], list] = {}
         for pf in fits:
             want = set(order) if settings.models == "all" else {pf.best.model, chosen}
-            # Discrete families first: DfeExpectation caches a bounded number of tables
-            # per worker task, and the discrete family reuses one table for all its fits.
-            names = tuple(sorted((m for m in order if m in want),
-                                 key=lambda m: (not m.startswith("discrete"), order.index(m))))
+            names = tuple(m for m in order if m in want)
             groups.setdefault(names, []).append(pf)
             booted[pf.population] = list(names)
         nw = workers or settings.workers or _cores()
