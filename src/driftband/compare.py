@@ -207,6 +207,9 @@ def compare_pair(name_a: str, name_b: str, pop_a: dict, pop_b: dict, model: DfeM
             row.p_value = float(min(1.0, 2.0 * (tail + 1) / (d.size + 1)))
             row.statistic = float((sb - sa) / np.std(d, ddof=1)) if d.size > 1 else np.nan
             row.note = f"bootstrap: {d.size} replicates, level {level:g}"
+            if tail == 0:
+                row.note += (f"; no replicate crossed zero, so p is at the floor "
+                             f"2/(B+1) = {row.p_value:.2g} of this B")
         else:
             row.note = "no bootstrap in the fit files: rerun 'driftband fit' with --bootstrap B"
         rows.append(row)
