@@ -51,7 +51,6 @@ from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
-import scipy.sparse
 from scipy.special import gammaln
 
 from .._io import file_record, provenance
@@ -604,6 +603,25 @@ def projection_matrix(m: int, n: int) -> np.ndarray:
     return _projection_rows(m, n, np.arange(m + 1))
 
 
+def _projection_band(m: int, n: int, d: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """The non-zero band of :func:`projection_matrix` for sites with ``d`` derived copies.
+
+    Entry ``(d, j)`` can be non-zero only for ``d - (m - n) <= j <= d``. Returns ``j``
+    and the probabilities, both shape (len(d), m - n + 1); columns with ``j`` outside
+    ``0..n`` hold 0.
+    """
+    q = m - n
+    lf = gammaln(np.arange(1, m + 2, dtype=float))   # lf[k] = log(k!)
+    d = np.asarray(d, dtype=np.int64)[:, None]
+    t = np.arange(q + 1, dtype=np.int64)[None, :]
+    j = d - q + t
+    ok = (j >= 0) & (j <= n)
+    jc = np.clip(j, 0, n)
+    logp = (lf[d] + lf[m - d] - lf[jc] - lf[n - jc] - lf[q - t] - lf[t]
+            - (lf[m] - lf[n] - lf[q]))
+    return j, np.where(ok, np.exp(np.where(ok, logp, 0.0)), 0.0)
+
+
 def _projection_rows(m: int, n: int, d: np.ndarray) -> np.ndarray:
     """Rows ``d`` of :func:`projection_matrix`, from a table of log-factorials."""
     lf = gammaln(np.arange(1, m + 2, dtype=float))   # lf[k] = log(k!)
@@ -733,12 +751,14 @@ def spectra_from_counts(counts: RegionCounts, design: CountDesign, blocks: Seque
         proj = kept & (m > n)
         if proj.any():
             Sf = S.astype(np.float64)
+            flat = Sf.reshape(-1)
             for mm in np.unique(m[proj]).tolist():
                 sel = proj & (m == mm)
-                ud, dinv = np.unique(d[sel], return_inverse=True)   # only the rows needed
-                H = scipy.sparse.csr_matrix((w[sel].astype(float), (tgt[sel], dinv)),
-                                            shape=(C * B, ud.size))
-                Sf += H @ _projection_rows(mm, n, ud)
+                j, prob = _projection_band(mm, n, d[sel])
+                idx = tgt[sel, None] * (n + 1) + j
+                ok = (j >= 0) & (j <= n)
+                flat += np.bincount(idx[ok], weights=(prob * w[sel, None])[ok],
+                                    minlength=flat.size)
             S = Sf
         S[:, 0] += sites - counted
         if np.any(S[:, 0] < -1e-6):
