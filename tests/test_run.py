@@ -287,7 +287,10 @@ def test_several_datasets_force_and_interrupted_resume(demo_run, tmp_path, monke
     assert "stage report: interrupted" in last
     monkeypatch.undo()
 
-    # The next run resumes: everything but the report is reused.
+    # The next run resumes: everything but the report is reused. (A temporary file left
+    # by a run killed mid-write is removed.)
+    stale = out / ".report.html.k1ll3d.tmp"
+    stale.write_text("<html>")
     assert main(["run", str(study), "--out-dir", str(out), "--workers", "2", "-q"]) == 0
     last = _last_run((out / "run.log").read_text())
     assert _stage_lines(last) == {"classify[north]": "skipped", "spectra[north]": "skipped",
@@ -295,6 +298,7 @@ def test_several_datasets_force_and_interrupted_resume(demo_run, tmp_path, monke
                                   "bootstrap": "skipped", "compare": "skipped",
                                   "report": "running"}
     assert _sha(out / "report.html") != old_report  # rewritten by this run
+    assert not stale.exists() and "left by an interrupted run" in last
 
     # A changed option reruns its stage and those after it, nothing before.
     text = study.read_text().replace('tests = ["neutral_share_difference"]', "tests = []")

@@ -675,6 +675,20 @@ def _check_out_dir(out: Path, study: Study, rec_path: Path, force: bool) -> None
                           "use --force to write into it")
 
 
+def _remove_stale_temporaries(paths: dict[str, Any]) -> None:
+    """Remove temporary files of our outputs left by a run that was killed mid-write."""
+    outs = [p for k, p in paths.items() if isinstance(p, Path) and k not in (
+        "out_dir", "provenance")]
+    for d in paths["datasets"].values():
+        outs += [d["spectra"], d["classify_summary"]] + ([d["sites"]] if d["classified"]
+                                                          else [])
+    for p in outs:
+        for tmp in p.parent.glob(f".{p.name}.*.tmp"):
+            with contextlib.suppress(OSError):
+                tmp.unlink()
+                log.info("removed %s, left by an interrupted run", tmp)
+
+
 def _apply(study: Study, replicates: int | None, workers: int | None,
            seed: int | None, level: float | None) -> Study:
     b = study.bootstrap
@@ -742,6 +756,7 @@ def run_study(study: Study, out_dir: str | os.PathLike | None = None, *, force: 
     with _run_log(paths["log"]) as col:
         log.info("driftband %s: run of study %r (%s) into %s%s", __version__, study.name,
                  study.source or "command-line flags", out, " (--force)" if force else "")
+        _remove_stale_temporaries(paths)
         with atomic_output(paths["study"], force=True) as fh:
             json.dump({"schema": _STUDY_SCHEMA, "schema_version": 1,
                        "identity": study.identity(), "study": study.to_dict(),
