@@ -51,7 +51,6 @@ from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
-from scipy.special import gammaln
 
 from .._io import file_record, provenance
 from ..exceptions import InputError, OptionError
@@ -603,6 +602,11 @@ def projection_matrix(m: int, n: int) -> np.ndarray:
     return _projection_rows(m, n, np.arange(m + 1))
 
 
+def _log_factorials(m: int) -> np.ndarray:
+    """``log(k!)`` for k = 0..m (math.lgamma: no scipy import on the command line's path)."""
+    return np.array([math.lgamma(k + 1.0) for k in range(m + 1)])
+
+
 def _projection_band(m: int, n: int, d: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """The non-zero band of :func:`projection_matrix` for sites with ``d`` derived copies.
 
@@ -611,7 +615,7 @@ def _projection_band(m: int, n: int, d: np.ndarray) -> tuple[np.ndarray, np.ndar
     ``0..n`` hold 0.
     """
     q = m - n
-    lf = gammaln(np.arange(1, m + 2, dtype=float))   # lf[k] = log(k!)
+    lf = _log_factorials(m)
     d = np.asarray(d, dtype=np.int64)[:, None]
     t = np.arange(q + 1, dtype=np.int64)[None, :]
     j = d - q + t
@@ -624,7 +628,7 @@ def _projection_band(m: int, n: int, d: np.ndarray) -> tuple[np.ndarray, np.ndar
 
 def _projection_rows(m: int, n: int, d: np.ndarray) -> np.ndarray:
     """Rows ``d`` of :func:`projection_matrix`, from a table of log-factorials."""
-    lf = gammaln(np.arange(1, m + 2, dtype=float))   # lf[k] = log(k!)
+    lf = _log_factorials(m)
     d = np.asarray(d, dtype=np.int64)[:, None]
     j = np.arange(n + 1, dtype=np.int64)[None, :]
     ok = (j <= d) & (n - j <= m - d)
