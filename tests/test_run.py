@@ -436,3 +436,25 @@ def test_readme_documents_every_study_key():
         if m and section:
             found[section].add(m.group(1))
     assert found == {k: set(v) for k, v in runmod.STUDY_KEYS.items()}
+
+
+def test_flags_make_the_same_kind_of_study(tmp_path):
+    """One dataset from flags: paths, options and the defaults of the study file."""
+    from driftband.cli import get_parser
+    from driftband.cli.run import study_from_args
+
+    args = get_parser().parse_args([
+        "run", "--vcf", str(EX / "snail.vcf.gz"), "--popmap", str(EX / "snail.popmap.tsv"),
+        "--fasta", str(EX / "snail.fa.gz"), "--gff", str(EX / "snail.gff3"),
+        "--ancestral", "outgroup:sister", "--project", "lake=20", "--project", "spring=18",
+        "--block-size", "50000", "--regions", "chr1", "--dfe", "gamma,lognormal",
+        "--bands", "0,1,10", "--out-dir", str(tmp_path)])
+    st = study_from_args(args)
+    (d,) = st.datasets
+    assert st.name == d.name == "snail" and st.source is None
+    assert d.classify and d.fasta == str(EX / "snail.fa.gz")
+    assert d.project == {"lake": 20, "spring": 18} and d.block_size == 50_000
+    assert d.regions == ["chr1"] and d.ancestral == "outgroup:sister"
+    assert st.fit.dfe == ("gamma", "lognormal") and st.fit.bands == (0.0, 1.0, 10.0)
+    assert st.bootstrap.replicates == 100 and st.compare.model == "auto"
+    runmod.check_files(st)
