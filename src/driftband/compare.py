@@ -35,10 +35,15 @@ from .fit.likelihood import Objective, SpectrumPair
 from .fit.models import DfeModel
 from .prf.dfe import DfeExpectation, band_shares
 
-__all__ = ["TESTS", "ComparisonRow", "adjust_pvalues", "compare_pair", "neutral_pi",
-           "scale_shift"]
+__all__ = ["COLUMNS", "TESTS", "ComparisonRow", "adjust_pvalues", "compare_pair",
+           "neutral_pi", "scale_shift", "write_compare_tsv"]
 
 TESTS = ("shared_dfe_lrt", "neutral_share_difference", "ne_only_lrt")
+
+#: Columns of ``compare.tsv``.
+COLUMNS = ["population_a", "population_b", "test", "model", "statistic", "df", "p_value",
+           "p_adjusted", "estimate", "ci_low", "ci_high", "ne_ratio", "predicted_share_b",
+           "observed_share_b", "note"]
 
 
 @dataclass
@@ -247,3 +252,25 @@ def adjust_pvalues(rows: list[ComparisonRow], method: str = "holm") -> None:
         _rej, padj, _a, _b = multipletests([r.p_value for r in sel], method=method)
         for r, p in zip(sel, padj):
             r.p_adjusted = float(p)
+
+
+def _fmt(v: Any) -> str:
+    if v is None:
+        return ""
+    if isinstance(v, float):
+        return "" if np.isnan(v) else f"{v:.6g}"
+    return str(v)
+
+
+def write_compare_tsv(rows: list[ComparisonRow], path, force: bool = False) -> None:
+    """Write ``compare.tsv`` (columns :data:`COLUMNS`) atomically."""
+    import csv
+
+    from ._io import atomic_output
+
+    with atomic_output(path, force=force, newline="") as fh:
+        w = csv.writer(fh, delimiter="\t", lineterminator="\n")
+        w.writerow(COLUMNS)
+        for r in rows:
+            d = {**r.__dict__, **r.extra}
+            w.writerow([_fmt(d.get(c)) for c in COLUMNS])

@@ -158,8 +158,7 @@ def output_paths(study: Study, out: str | os.PathLike) -> dict[str, Any]:
 
 def _fit_options(study: Study):
     """FitOptions of the study (errors name the [fit] key)."""
-    from .cli.fit import parse_misorientation
-    from .fit.api import FitOptions, check_edges
+    from .fit.api import FitOptions, check_edges, parse_misorientation
     from .fit.models import parse_models
 
     fs = study.fit
@@ -229,9 +228,8 @@ def stage_classify(dataset: Dataset, out_bed: str | os.PathLike,
     -------
     ClassifyResult
     """
-    from .cli.classify import write_summary
     from .sites.bed import write_bed4
-    from .sites.classify import classify_sites
+    from .sites.classify import classify_sites, write_summary
 
     res = classify_sites(dataset.fasta, dataset.gff, code=dataset.code,
                          transcripts=dataset.transcripts,
@@ -509,13 +507,6 @@ def stage_bootstrap(point_json: str | os.PathLike,
     return out
 
 
-def _fmt(v: Any) -> str:
-    if v is None:
-        return ""
-    if isinstance(v, float):
-        return "" if math.isnan(v) else f"{v:.6g}"
-    return str(v)
-
 
 def _compare_task(task: tuple) -> list:
     """One test of one pair (runs in a worker process)."""
@@ -543,10 +534,7 @@ def stage_compare(fit_json: str | os.PathLike, settings: CompareSettings,
     -------
     list of driftband.compare.ComparisonRow
     """
-    import csv
-
-    from .cli.compare import COLUMNS
-    from .compare import TESTS, adjust_pvalues, compare_pair
+    from .compare import TESTS, adjust_pvalues, compare_pair, write_compare_tsv
     from .fit.io import read_fit_json
     from .fit.models import DfeModel
 
@@ -589,12 +577,7 @@ def stage_compare(fit_json: str | os.PathLike, settings: CompareSettings,
         parts = [compare_pair(*t, cache) for t in tasks]
     rows = [r for part in parts for r in part]
     adjust_pvalues(rows, settings.adjust)
-    with atomic_output(out_tsv, force=True, newline="") as fh:
-        w = csv.writer(fh, delimiter="\t", lineterminator="\n")
-        w.writerow(COLUMNS)
-        for r in rows:
-            d = {**r.__dict__, **r.extra}
-            w.writerow([_fmt(d.get(c)) for c in COLUMNS])
+    write_compare_tsv(rows, out_tsv, force=True)
     return rows
 
 

@@ -6,10 +6,10 @@ import argparse
 import logging
 import os
 
-from .._io import atomic_output, check_outputs, provenance
+from .._io import check_outputs
 from ..exceptions import OptionError
 from ..sites.bed import write_bed4
-from ..sites.classify import ClassifyResult, classify_sites
+from ..sites.classify import classify_sites, write_summary
 from ..sites.codes import NCBI_TABLES
 from ._common import add_common_arguments, add_subcommand
 
@@ -57,20 +57,6 @@ def add_parser(subparsers) -> argparse.ArgumentParser:
     p.set_defaults(runner=run)
     return p
 
-
-def write_summary(result: ClassifyResult, path: str | os.PathLike, force: bool = False
-                  ) -> None:
-    """Write the summary TSV (``chrom, kind, name, count, unit``) of a classification."""
-    prov = provenance(result.options)
-    with atomic_output(path, force=force, newline="") as fh:
-        fh.write(f"# driftband {prov['version']} classify: sites per class and "
-                 "exclusions by reason\n")
-        fh.write(f"# fasta={result.fasta} gff={result.gff} code={result.code} "
-                 f"transcripts={result.transcripts} "
-                 f"exclude_softmasked={str(result.exclude_softmasked).lower()}\n")
-        fh.write("chrom\tkind\tname\tcount\tunit\n")
-        for row in result.summary_rows():
-            fh.write("\t".join(str(x) for x in row) + "\n")
 
 
 def run(args: argparse.Namespace) -> int:

@@ -3,12 +3,10 @@
 from __future__ import annotations
 
 import argparse
-import csv
 import itertools
 import logging
-import math
 
-from .._io import atomic_output, check_outputs
+from .._io import check_outputs
 from ..exceptions import InputError, OptionError
 from ._common import add_common_arguments, add_subcommand, parse_kv
 
@@ -20,9 +18,6 @@ driftband compare fit.json --pairs lake:spring --model gamma -o compare.tsv
 driftband compare snails.json slugs.json --relative-mutation-rate slugs/north=1.3 -o compare.tsv
 """
 
-COLUMNS = ["population_a", "population_b", "test", "model", "statistic", "df", "p_value",
-           "p_adjusted", "estimate", "ci_low", "ci_high", "ne_ratio", "predicted_share_b",
-           "observed_share_b", "note"]
 
 
 def add_parser(subparsers) -> None:
@@ -72,17 +67,10 @@ def load_populations(paths: list[str]) -> tuple[dict[str, dict], dict]:
     return pops, options
 
 
-def _fmt(v) -> str:
-    if v is None:
-        return ""
-    if isinstance(v, float):
-        return "" if math.isnan(v) else f"{v:.6g}"
-    return str(v)
-
 
 def run(args: argparse.Namespace) -> int:
     """Run ``driftband compare``."""
-    from ..compare import TESTS, adjust_pvalues, compare_pair
+    from ..compare import TESTS, adjust_pvalues, compare_pair, write_compare_tsv
     from ..fit.models import DfeModel
 
     check_outputs([args.output], args.force)
@@ -133,10 +121,5 @@ def run(args: argparse.Namespace) -> int:
         log.warning("neutral_share_difference has no interval or p-value: the fits have no "
                     "bootstrap (rerun 'driftband fit' with --bootstrap B)")
     adjust_pvalues(rows, args.adjust)
-    with atomic_output(args.output, force=args.force, newline="") as fh:
-        w = csv.writer(fh, delimiter="\t", lineterminator="\n")
-        w.writerow(COLUMNS)
-        for r in rows:
-            d = {**r.__dict__, **r.extra}
-            w.writerow([_fmt(d.get(c)) for c in COLUMNS])
+    write_compare_tsv(rows, args.output, force=args.force)
     return 0

@@ -8,6 +8,7 @@ import os
 
 from .._io import check_outputs, file_record, provenance
 from ..exceptions import OptionError
+from ..fit.api import parse_misorientation
 from ._common import add_common_arguments, add_subcommand, parse_kv
 
 log = logging.getLogger("driftband")
@@ -18,21 +19,6 @@ driftband fit spectra.json --dfe gamma --misorientation fixed:0 --equilibrium -o
 driftband fit published_table.tsv --dfe gamma,discrete --bands 0,1,10,100 -o fit.json
 driftband fit a.json b.json --label a.json=lakesnail --label b.json=pondsnail -o fit.json
 """
-
-
-def parse_misorientation(text: str) -> float | None:
-    """``free`` → None; ``fixed:E`` → E (checked to lie in [0, 0.5))."""
-    if text == "free":
-        return None
-    if text.startswith("fixed:"):
-        try:
-            e = float(text.split(":", 1)[1])
-        except ValueError:
-            e = float("nan")
-        if not 0.0 <= e < 0.5:
-            raise OptionError(f"--misorientation {text}: the rate must be a number in [0, 0.5)")
-        return e
-    raise OptionError(f"--misorientation {text!r}: use 'free' or 'fixed:RATE'")
 
 
 def parse_bands(text: str) -> tuple[float, ...]:

@@ -15,7 +15,8 @@ from .likelihood import SpectrumPair
 from .mle import DEFAULT_EDGES, FitResult, fit_model
 from .models import DfeModel
 
-__all__ = ["FitOptions", "PopulationFit", "check_edges", "fit_population", "pool_populations"]
+__all__ = ["FitOptions", "PopulationFit", "check_edges", "fit_population",
+           "parse_misorientation", "pool_populations"]
 
 log = logging.getLogger("driftband")
 
@@ -28,6 +29,21 @@ def check_edges(edges: tuple[float, ...]) -> tuple[float, ...]:
         raise OptionError(f"--bands {','.join(f'{v:g}' for v in e)}: edges on |Ne*s| must "
                           "start at 0 and increase strictly, e.g. 0,1,10,100")
     return e
+
+
+def parse_misorientation(text: str) -> float | None:
+    """``free`` → None; ``fixed:E`` → E (checked to lie in [0, 0.5))."""
+    if text == "free":
+        return None
+    if text.startswith("fixed:"):
+        try:
+            e = float(text.split(":", 1)[1])
+        except ValueError:
+            e = float("nan")
+        if not 0.0 <= e < 0.5:
+            raise OptionError(f"--misorientation {text}: the rate must be a number in [0, 0.5)")
+        return e
+    raise OptionError(f"--misorientation {text!r}: use 'free' or 'fixed:RATE'")
 
 
 @dataclass(frozen=True)

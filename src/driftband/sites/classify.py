@@ -33,6 +33,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from .._io import atomic_output, provenance
 from ..exceptions import InputError, OptionError
 from .bed import IntervalSet, SiteClasses
 from .codes import DEGENERACY_NAMES, GeneticCode, genetic_code
@@ -47,6 +48,7 @@ __all__ = [
     "classify_sites",
     "coding_sequences",
     "open_fasta",
+    "write_summary",
 ]
 
 log = logging.getLogger("driftband")
@@ -611,3 +613,18 @@ def coding_sequences(fasta: str | os.PathLike, gff: str | os.PathLike | Annotati
     finally:
         fa.close()
     return out
+
+
+def write_summary(result: ClassifyResult, path: str | os.PathLike, force: bool = False
+                  ) -> None:
+    """Write the summary TSV (``chrom, kind, name, count, unit``) of a classification."""
+    prov = provenance(result.options)
+    with atomic_output(path, force=force, newline="") as fh:
+        fh.write(f"# driftband {prov['version']} classify: sites per class and "
+                 "exclusions by reason\n")
+        fh.write(f"# fasta={result.fasta} gff={result.gff} code={result.code} "
+                 f"transcripts={result.transcripts} "
+                 f"exclude_softmasked={str(result.exclude_softmasked).lower()}\n")
+        fh.write("chrom\tkind\tname\tcount\tunit\n")
+        for row in result.summary_rows():
+            fh.write("\t".join(str(x) for x in row) + "\n")
