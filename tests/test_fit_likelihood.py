@@ -141,3 +141,29 @@ def test_folded_fit_recovers_shape():
     f = fit_model(data, DfeModel("gamma"), eps=None, stderr=False)
     assert not f.eps_free
     assert f.params["shape"] == pytest.approx(0.25, rel=1e-2)
+
+
+def test_non_convergence_is_flagged_and_warned(monkeypatch):
+    # A fit whose optimiser reports failure is kept, flagged and warned about.
+    import warnings
+
+    from driftband.exceptions import ConvergenceWarning
+    from driftband.fit import mle
+
+    real = mle.optimize.minimize
+
+    def failing(*args, **kwargs):
+        r = real(*args, **{**kwargs, "options": {"maxiter": 1}})
+        r.success = False
+        return r
+
+    monkeypatch.setattr(mle.optimize, "minimize", failing)
+    n = 10
+    en, es = _model_spectra(n, GammaDfe(0.5, 50.0), 0.01, 1e5, 1e5)
+    data = _pair(n, en, es, 1e5, 1e5)
+    with warnings.catch_warnings(record=True) as w:
+        warnings.simplefilter("always")
+        f = fit_model(data, DfeModel("gamma"), eps=0.0, stderr=False)
+    assert not f.success
+    assert any(issubclass(x.category, ConvergenceWarning) for x in w)
+    assert np.isfinite(f.loglik)
