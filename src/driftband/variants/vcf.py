@@ -258,6 +258,22 @@ def _scan_uint(buf: np.ndarray, s: np.ndarray, e: np.ndarray
     text widths, and ``good`` (False where the text is not an integer of <= 9 digits).
     """
     present = s < e
+    # values of up to 3 digits (DP, GQ ...) in one go; longer ones by the loop below
+    b0, b1, b2, b3 = (buf[k:].take(s) for k in range(4))
+    d0, d1, d2 = b0 - np.uint8(48), b1 - np.uint8(48), b2 - np.uint8(48)
+    D0, D1, D2 = d0 <= 9, d1 <= 9, d2 <= 9
+    if not np.any(D0 & D1 & D2 & (b3 - np.uint8(48) <= 9)):
+        w = (D0.view(np.uint8) * (1 + D1.view(np.uint8) * (1 + D2.view(np.uint8))))
+        v16 = np.where(w == 3, d0.astype(np.int16) * 100 + d1.astype(np.int16) * 10 + d2,
+                       np.where(w == 2, d0.astype(np.int16) * 10 + d1, d0))
+        dot = present & (w == 0) & (b0 == 46)
+        wd = w + dot.view(np.uint8)                 # '.' takes one character
+        end = np.where(wd == 0, _LUT_END.take(b0),
+                       np.where(wd == 1, _LUT_END.take(b1),
+                                np.where(wd == 2, _LUT_END.take(b2), _LUT_END.take(b3))))
+        good = end | ~present
+        val = np.where(present & (w > 0), v16, -1).astype(np.int32)
+        return val, wd.astype(np.int64), good
     val = np.zeros(s.shape, np.int32)
     w = np.zeros(s.shape, np.int64)
     active = present.copy()
@@ -576,9 +592,16 @@ class TextBatch(VariantBatch):
                 e = ext[:, cols]
             alleles, ok, hap = _decode_gt(self._buf, p, e)
             if fields:
-                colpos, cc_fn = self._colon_index()
-                first = np.searchsorted(colpos, tr[:, 8])
-                total = np.searchsorted(colpos, nlr) - first
+                lazy: dict[str, np.ndarray] = {}
+
+                def colon_info():   # colon positions: only for layouts read by position
+                    if not lazy:
+                        colpos, cc_fn = self._colon_index()
+                        first = np.searchsorted(colpos, tr[:, 8])
+                        lazy.update(colpos=colpos, cc_fn=cc_fn, first=first,
+                                    total=np.searchsorted(colpos, nlr) - first)
+                    return lazy
+
                 groups: dict[bytes, list[int]] = {}
                 if f0 is not None:
                     groups[f0] = list(range(r))
@@ -604,7 +627,9 @@ class TextBatch(VariantBatch):
                         ok[sel] &= good.all(axis=1)
                         continue
                     sel = np.array(idx) if len(idx) < r else slice(None)
-                    reg = total[sel] == self._n_samples * (nk - 1)
+                    ci = colon_info()
+                    colpos, cc_fn, first = ci["colpos"], ci["cc_fn"], ci["first"]
+                    reg = ci["total"][sel] == self._n_samples * (nk - 1)
                     for part, is_reg in ((reg, True), (~reg, False)):
                         if not part.any():
                             continue
