@@ -55,6 +55,7 @@ __all__ = [
     "map_reduce",
     "parallel_map",
     "resolve_workers",
+    "scheduler_address",
     "tree_reduce",
 ]
 
@@ -116,12 +117,21 @@ def _init_local_worker() -> None:
         os.environ.setdefault(key, "1")
 
 
+def _foreign_threads() -> list[threading.Thread]:
+    """Live threads other than the main one and driftband's own helpers (named
+    ``driftband-*``: file hashing, connecting; they hold no lock a forked child needs)."""
+    main = threading.main_thread()
+    return [t for t in threading.enumerate()
+            if t is not main and not t.name.startswith("driftband-")]
+
+
 def _mp_context():
-    """Start method of local workers: the platform's default, but never ``fork`` from a
-    process that runs other threads (forking then can deadlock)."""
+    """Start method of local workers: the platform's default (``fork`` on Linux: workers
+    start at once, with everything imported), but ``spawn`` when other threads run in
+    this process (forking them can deadlock a child)."""
     method = multiprocessing.get_start_method(allow_none=True) or \
         multiprocessing.get_context().get_start_method()
-    if method == "fork" and threading.active_count() > 1:
+    if method == "fork" and _foreign_threads():
         method = "spawn"
     return multiprocessing.get_context(method)
 
@@ -277,14 +287,47 @@ def _probe(address: str, timeout: float) -> None:
         raise OptionError(f"--scheduler {address!r}: not a scheduler address ({err}); "
                           "expected e.g. tcp://HOST:8786") from None
     try:
-        with socket.create_connection((host, port), timeout=timeout):
-            pass
+        sock = socket.create_connection((host, port), timeout=timeout)
     except OSError as err:
         why = "timed out" if isinstance(err, TimeoutError | socket.timeout) else (
             err.strerror or type(err).__name__)
         raise OptionError(f"--scheduler {address}: cannot reach a dask scheduler within "
                           f"{timeout:g} s ({why}); start one with 'dask scheduler' and check "
                           "the host, the port and the firewall") from None
+    with sock:
+        if scheme != "tcp":   # TLS: the server waits for the client's hello
+            return
+        # a dask scheduler starts its handshake as soon as a connection is accepted
+        try:
+            sock.settimeout(timeout)
+            first = sock.recv(1)
+        except OSError:
+            first = b""
+    if not first:
+        raise OptionError(f"--scheduler {address}: something listens there but does not "
+                          f"answer like a dask scheduler within {timeout:g} s; check the "
+                          "port (a scheduler listens on 8786 unless told otherwise)")
+
+
+def _within(make: Callable[[], Any], seconds: float) -> Any:
+    """``make()`` in a helper thread, given up (OptionError by the caller) after
+    ``seconds``: a peer that stalls mid-handshake must not hang driftband."""
+    box: dict[str, Any] = {}
+
+    def run() -> None:
+        try:
+            box["value"] = make()
+        except BaseException as err:  # handed to the calling thread
+            box["error"] = err
+
+    t = threading.Thread(target=run, name="driftband-connect", daemon=True)
+    t.start()
+    t.join(seconds)
+    if t.is_alive():
+        raise TimeoutError(f"no complete handshake after {seconds:g} s")
+    if "error" in box:
+        raise box["error"]
+    return box["value"]
 
 
 def connect(address: str, timeout: float | None = None):
@@ -316,9 +359,10 @@ def connect(address: str, timeout: float | None = None):
     _probe(address, t)
     with _quiet_dask():
         try:
-            client = Client(address, timeout=t, set_as_default=False)
-        except (OSError, TimeoutError, ValueError) as err:
+            client = _within(lambda: Client(address, timeout=t, set_as_default=False), t + 5)
+        except Exception as err:  # whatever a wrong peer makes the handshake raise
             msg = str(err).splitlines()[0] if str(err) else type(err).__name__
+            msg = msg if len(msg) < 120 else msg[:117] + "..."
             raise OptionError(f"--scheduler {address}: cannot connect to a dask scheduler "
                               f"within {t:g} s ({msg}); check that 'dask scheduler' runs "
                               "there and that the client and the cluster use compatible "
@@ -329,6 +373,13 @@ def connect(address: str, timeout: float | None = None):
         log.warning("the dask scheduler at %s has no workers yet; tasks wait until "
                     "workers connect (dask worker %s ...)", address, address)
     return client
+
+
+def scheduler_address(scheduler) -> str | None:
+    """The address of a scheduler given as an address or a Client (for provenance)."""
+    if scheduler is None or isinstance(scheduler, str):
+        return scheduler
+    return str(getattr(getattr(scheduler, "scheduler", None), "address", scheduler))
 
 
 def _backend(workers: int | None, scheduler, retries: int, name: str):

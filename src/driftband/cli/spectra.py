@@ -32,6 +32,10 @@ driftband spectra calls.vcf.gz --popmap pops.tsv --sites classes.bed --ancestral
     -o spectra.json
 bcftools view -s A1,A2,B1,B2 calls.vcf.gz | driftband spectra - --popmap pops.tsv \\
     --sites classes.bed -o spectra.json
+driftband spectra calls.vcf.gz --popmap pops.tsv --sites classes.bed --workers 8 \\
+    --region-size 2000000 -o spectra.json
+driftband spectra calls.vcf.gz --popmap pops.tsv --sites classes.bed \\
+    --scheduler tcp://node01:8786 -o spectra.json
 """
 
 
@@ -71,6 +75,17 @@ def add_parser(subparsers) -> argparse.ArgumentParser:
                    help="spectra file (JSON) to write")
     p.add_argument("--tsv", metavar="TSV",
                    help="also write the long table population, class, n, folded, count, sites")
+    x = p.add_argument_group("parallel counting (indexed VCF/BCF; results do not depend on "
+                             "these)")
+    x.add_argument("--workers", type=int, default=None, metavar="N",
+                   help="local worker processes (default: the cores available)")
+    x.add_argument("--scheduler", metavar="ADDRESS",
+                   help="count on the dask.distributed scheduler at ADDRESS, e.g. "
+                        "tcp://HOST:8786 (needs driftband[cluster]; every worker must see the "
+                        "VCF at the same path; see the README, 'Running on a cluster')")
+    x.add_argument("--region-size", type=int, default=5_000_000, metavar="BP",
+                   help="bases per counting task; a worker holds one task's records at a "
+                        "time (default 5000000)")
     add_common_arguments(p)
     p.set_defaults(runner=run)
     return p
@@ -144,7 +159,9 @@ def run(args: argparse.Namespace) -> int:
                            callable_mask=args.callable_mask, ancestral=args.ancestral,
                            project=project, block_size=args.block_size, blocks=args.blocks,
                            regions=args.regions, min_gq=args.min_gq, min_dp=args.min_dp,
-                           pass_only=args.pass_only, progress=bar)
+                           pass_only=args.pass_only, progress=bar,
+                           region_size=args.region_size, workers=args.workers,
+                           scheduler=args.scheduler)
     finally:
         bar.close()
     write_spectra_json(ss, args.output, force=args.force)

@@ -804,7 +804,8 @@ def build_spectra(vcf: str | os.PathLike, popmap: Popmap | str | os.PathLike,
                   min_dp: int | None = None, pass_only: bool = False,
                   region_size: int = 5_000_000, keep: float = DEFAULT_KEEP_FRACTION,
                   progress: Callable[[int, int, int], None] | None = None,
-                  checksums: bool = True) -> SpectraSet:
+                  checksums: bool = True, workers: int | None = 1,
+                  scheduler: Any = None) -> SpectraSet:
     """Per-population, per-class, per-block site frequency spectra from a VCF/BCF.
 
     Parameters
@@ -832,29 +833,52 @@ def build_spectra(vcf: str | os.PathLike, popmap: Popmap | str | os.PathLike,
     pass_only : bool
         Keep only records with FILTER PASS or ``.``.
     region_size : int
-        Length of a counting task (bp).
+        Length of a counting task (bp); a worker holds one task's records at a time.
     keep : float
         Fraction of sites kept by the default projection rule.
     progress : callable, optional
         Called as ``progress(done, total, records)`` (``total`` 0 when unknown).
     checksums : bool
         Record SHA-256 checksums of the inputs in the provenance.
+    workers : int, optional
+        Worker processes counting regions of an indexed file (default 1: in this process;
+        None: the cores available). The spectra do not depend on it.
+    scheduler : str or distributed.Client, optional
+        Count on this dask.distributed cluster instead (address ``tcp://HOST:8786``);
+        every worker must see the VCF at the same path.
 
     Returns
     -------
     SpectraSet
     """
-    src = VcfSource(vcf)
+    from .._parallel import connect, resolve_workers, scheduler_address
+    from .parallel import check_region_size
+
+    check_region_size(region_size)
+    resolve_workers(workers)
+    client = connect(scheduler) if isinstance(scheduler, str) else scheduler  # fail fast
+    src = None
     try:
-        return _build(src, vcf, popmap, sites, callable_mask, ancestral, project, block_size,
-                      blocks, regions, min_gq, min_dp, pass_only, region_size, keep, progress,
-                      checksums)
+        src = VcfSource(vcf)
+        ss = _build(src, vcf, popmap, sites, callable_mask, ancestral, project, block_size,
+                    blocks, regions, min_gq, min_dp, pass_only, region_size, keep, progress,
+                    checksums, workers, client)
     finally:
-        src.close()
+        if src is not None:
+            src.close()
+        if client is not None and client is not scheduler:
+            client.close()
+    # how the counting ran (the spectra do not depend on it)
+    ss.provenance["execution"] = {
+        "region_size": region_size,
+        "workers": resolve_workers(workers) if scheduler is None else None,
+        "scheduler": scheduler_address(scheduler)}
+    return ss
 
 
 def _build(src, vcf, popmap, sites, callable_mask, ancestral, project, block_size, blocks,
-           regions, min_gq, min_dp, pass_only, region_size, keep, progress, checksums):
+           regions, min_gq, min_dp, pass_only, region_size, keep, progress, checksums,
+           workers=1, scheduler=None):
     digest = _Checksum(vcf if checksums else None)   # hashed while counting runs
     pm = _as_popmap(popmap)
     kind, _, og = ancestral.partition(":")
@@ -900,17 +924,15 @@ def _build(src, vcf, popmap, sites, callable_mask, ancestral, project, block_siz
                              "mask, regions and blocks", bed_path)
     if src.indexed:
         plan = plan.restrict(vchroms)
-        tasks = plan.regions(region_size)
-        parts = []
-        nrec = 0
-        for i, (c, s, e) in enumerate(tasks):
-            r = count_region(src, c, s, e, design, plan.region_sites(c, s, e))
-            parts.append(r)
-            nrec += r.records
-            if progress is not None:
-                progress(i + 1, len(tasks), nrec)
-        total = RegionCounts.total(parts)
+        from .parallel import count_regions
+
+        total = count_regions(src, design, plan, region_size, workers=workers,
+                              scheduler=scheduler, progress=progress)
     else:
+        if scheduler is not None or workers != 1:
+            (log.warning if scheduler is not None else log.info)(
+                "%s is not indexed: counting it as one stream in this process (index it "
+                "with tabix -p vcf or bcftools index to count regions in parallel)", src.path)
         state = {"n": 0}
 
         def tick(_chrom, k):
