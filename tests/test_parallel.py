@@ -421,3 +421,32 @@ def test_bootstrap_same_for_1_and_2_workers_and_cluster(fitted, cluster):
                                   options, starts))
         assert rep["gamma"]["shares"] == boot["shares"][k]
     assert boot["shares"][0] != boot["shares"][5]
+
+
+# ---------------------------------------------------------------------------- docs
+
+def test_readme_cluster_commands_use_real_options():
+    from driftband.cli import get_parser
+
+    text = (Path(__file__).resolve().parents[1] / "README.md").read_text(encoding="utf-8")
+    section = text.split("## Running on a cluster", 1)[1].split("\n## ", 1)[0]
+    lines = []
+    for block in section.split("```bash")[1:]:
+        body = block.split("```", 1)[0].replace("\\\n", " ")
+        lines += [ln.split("#", 1)[0].strip() for ln in body.splitlines()]
+    lines = [ln for ln in lines if ln]
+    parser = get_parser()
+    ours = [ln.split()[1:] for ln in lines if ln.startswith("driftband ")]
+    assert {a[0] for a in ours} == {"spectra", "fit"}
+    for args in ours:
+        ns = parser.parse_args(args)   # exits (SystemExit) on an unknown option
+        assert ns.scheduler in (None, "tcp://HOST:8786")
+    assert any("--scheduler" in a for a in ours) and any("--workers" in a for a in ours)
+    # the dask commands and options exist in the installed dask
+    worker = next(ln for ln in lines if ln.startswith("dask worker"))
+    assert any(ln == "dask scheduler" for ln in lines)
+    r = subprocess.run([sys.executable, "-m", "dask", "worker", "--help"],
+                       capture_output=True, text=True, timeout=120)
+    assert r.returncode == 0
+    for opt in (w for w in worker.split() if w.startswith("--")):
+        assert opt in r.stdout, opt
