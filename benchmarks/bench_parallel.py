@@ -36,7 +36,7 @@ from pathlib import Path
 
 HERE = Path(__file__).resolve().parent
 sys.path.insert(0, str(HERE))
-from bench_spectra import DATA, make_study  # noqa: E402
+from bench_spectra import DATA, make_study, timed  # noqa: E402
 
 ENV = dict(os.environ, OMP_NUM_THREADS="1", OPENBLAS_NUM_THREADS="1", MKL_NUM_THREADS="1")
 COUNT_ONLY = """
@@ -71,12 +71,15 @@ def bench_spectra(paths: dict[str, Path], repeats: int) -> float:
     out = {w: DATA / f"bench_parallel.w{w}.json" for w in (1, 2)}
     whole: dict[int, list[float]] = {1: [], 2: []}
     count: dict[int, list[float]] = {1: [], 2: []}
+    peak = {1: 0.0, 2: 0.0}
     for _ in range(repeats):
         for w in (1, 2):
-            whole[w].append(_run([sys.executable, "-m", "driftband", "spectra",
-                                  str(paths["vcf"]), "--popmap", str(paths["popmap"]),
-                                  "--sites", str(paths["sites"]), "-o", str(out[w]),
-                                  "--force", "-q", "--workers", str(w)]))
+            wall, mem = timed([sys.executable, "-m", "driftband", "spectra",
+                               str(paths["vcf"]), "--popmap", str(paths["popmap"]),
+                               "--sites", str(paths["sites"]), "-o", str(out[w]), "--force",
+                               "-q", "--workers", str(w)], env=ENV)
+            whole[w].append(wall)
+            peak[w] = max(peak[w], mem)
             p = subprocess.run([sys.executable, "-c", COUNT_ONLY, str(paths["vcf"]),
                                 str(paths["popmap"]), str(paths["sites"]), str(w)],
                                env=ENV, capture_output=True, text=True, check=True)
@@ -91,6 +94,8 @@ def bench_spectra(paths: dict[str, Path], repeats: int) -> float:
         b1, b2 = min(t[1]), min(t[2])
         m1, m2 = statistics.median(t[1]), statistics.median(t[2])
         print(f"{name:<34} {b1:11.2f} {b2:12.2f} {b1 / b2:9.2f} {m1 / m2:9.2f}")
+    print(f"peak resident memory of one process (MB): 1 worker {peak[1]:.0f}, "
+          f"2 workers {peak[2]:.0f}")
     print(f"spectra files identical apart from provenance: {'yes' if same else 'NO'}")
     sys.stdout.flush()
     return min(whole[1]) / min(whole[2])
