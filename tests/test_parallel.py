@@ -130,6 +130,18 @@ def _fail_on_three(i):
     return i
 
 
+def _die(i):
+    if i == 2:
+        os._exit(9)   # the worker process dies, every time
+    return i
+
+
+def test_task_that_keeps_killing_its_worker_ends_in_one_line():
+    with pytest.raises(_parallel.WorkerLostError,
+                       match=r"^task 2 was lost 3 times because its worker process died"):
+        _parallel.parallel_map(_die, range(4), workers=2, retries=2)
+
+
 def test_worker_count_checks():
     assert _parallel.resolve_workers(None) == _parallel.available_cores() >= 1
     for bad in (0, -2, 1.5):

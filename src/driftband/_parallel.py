@@ -196,6 +196,10 @@ class _DaskBackend:
         self.owned = owned
         self.name = name
         self.broken_errors = (KilledWorker,)
+        import dask.config
+
+        self.allowed_failures = int(dask.config.get("distributed.scheduler.allowed-failures",
+                                                    3))
         self._slots = 0
         self._checked = 0.0
         self._token = os.urandom(4).hex()
@@ -221,9 +225,6 @@ class _DaskBackend:
 
         with self.client.as_current():
             return set(wait(list(futures), return_when="FIRST_COMPLETED").done)
-
-    def restart(self) -> None:  # the scheduler replaces lost workers' tasks itself
-        pass
 
     def abort(self) -> None:
         self.close()
@@ -460,13 +461,17 @@ def _run(fn: Callable[[Any], Any], tasks: Iterable[Any], backend,
                 finished.add(i)
                 on_result(i, value)
             if broken:
-                if isinstance(backend, _LocalBackend):
-                    # the whole pool is gone: every task not returned is submitted again
-                    broken += [(i, t, a, None) for i, t, a in pending.values()]
-                    pending.clear()
-                    log.warning("a worker process died; restarting the workers and "
-                                "resubmitting %d task(s)", len(broken))
-                    backend.restart()
+                if not isinstance(backend, _LocalBackend):
+                    # the scheduler already reran the task on other workers, up to
+                    # distributed.scheduler.allowed-failures times
+                    i, _task, _attempts, err = broken[0]
+                    raise _lost(i, backend.allowed_failures + 1, err)
+                # the whole pool is gone: every task not returned is submitted again
+                broken += [(i, t, a, None) for i, t, a in pending.values()]
+                pending.clear()
+                log.warning("a worker process died; restarting the workers and "
+                            "resubmitting %d task(s)", len(broken))
+                backend.restart()
                 for i, task, attempts, err in sorted(broken, key=lambda x: x[0]):
                     if attempts >= retries:
                         raise _lost(i, attempts + 1, err)
