@@ -138,7 +138,7 @@ def page(html_text):
 
 
 def test_fixture_follows_the_compare_columns():
-    from driftband.cli.compare import COLUMNS
+    from driftband.compare import COLUMNS
 
     header = (DATA / "compare.tsv").read_text(encoding="utf-8").splitlines()[0].split("\t")
     assert header == COLUMNS
