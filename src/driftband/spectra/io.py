@@ -84,6 +84,9 @@ def _clean(x: Any) -> Any:
     if isinstance(x, list | tuple):
         return [_clean(v) for v in x]
     if isinstance(x, np.ndarray):
+        # Whole arrays at once where nothing needs replacing (the common case: counts).
+        if x.dtype.kind in "iub" or (x.dtype.kind == "f" and np.isfinite(x).all()):
+            return x.tolist()
         return _clean(x.tolist())
     if isinstance(x, np.integer):
         return int(x)
@@ -103,10 +106,10 @@ def spectra_to_dict(ss: SpectraSet) -> dict[str, Any]:
             "polarisation": pop.polarisation,
             "classes": {
                 c: {
-                    "sfs": cs.sfs.tolist(),
+                    "sfs": cs.sfs,
                     "sites": cs.sites,
-                    "block_sfs": cs.block_sfs.tolist(),
-                    "block_sites": cs.block_sites.tolist(),
+                    "block_sfs": cs.block_sfs,
+                    "block_sites": cs.block_sites,
                 }
                 for c, cs in pop.classes.items()
             },
@@ -127,7 +130,8 @@ def write_spectra_json(ss: SpectraSet, path: str | os.PathLike, force: bool = Fa
     """Write a spectra file atomically (see the module docstring for the schema)."""
     doc = spectra_to_dict(ss)
     with atomic_output(path, force=force) as fh:
-        json.dump(doc, fh, separators=(",", ":"))
+        # json.dumps uses the C encoder (json.dump streams through the Python one).
+        fh.write(json.dumps(doc, separators=(",", ":")))
         fh.write("\n")
 
 
