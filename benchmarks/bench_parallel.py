@@ -109,9 +109,10 @@ def bench_spectra(paths: dict[str, Path], repeats: int) -> float:
         c2 = statistics.median(cpu[(key, 2)])
         print(f"{name:<34} {b1:9.2f} {b2:10.2f} {b1 / b2:9.2f} {m1 / m2:9.2f} "
               f"{c1:5.1f} /{c2:5.1f} {c2 / m2:16.2f}")
-    print("(CPU s: all processes of the run, the script's start-up included; 'cores used': "
-          "CPU s / wall s of the 2-worker run, out of 2 cores; below about 1.7 the machine "
-          "was busy with other work)")
+    print("(CPU s: all processes of a run, start-up included; 'cores used': CPU s / wall s "
+          "of the 2-worker runs, out of 2; the whole command has serial parts -- start-up, "
+          "planning, writing the JSON -- but counting well below 1.8 means the machine was "
+          "busy with other work)")
     print(f"peak resident memory of one process (MB): 1 worker {peak[1]:.0f}, "
           f"2 workers {peak[2]:.0f}")
     print(f"spectra files identical apart from provenance: {'yes' if same else 'NO'}")
