@@ -24,6 +24,7 @@ p-values are adjusted across pairs, test by test, with ``statsmodels.stats.multi
 
 from __future__ import annotations
 
+import itertools
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -36,7 +37,7 @@ from .fit.models import DfeModel
 from .prf.dfe import DfeExpectation, band_shares
 
 __all__ = ["COLUMNS", "TESTS", "ComparisonRow", "adjust_pvalues", "compare_pair",
-           "neutral_pi", "scale_shift", "write_compare_tsv"]
+           "neutral_pi", "resolve_pairs", "scale_shift", "write_compare_tsv"]
 
 TESTS = ("shared_dfe_lrt", "neutral_share_difference", "ne_only_lrt")
 
@@ -63,6 +64,38 @@ class ComparisonRow:
     ci_high: float = float("nan")
     extra: dict[str, Any] = field(default_factory=dict)
     note: str = ""
+
+
+def resolve_pairs(tokens: list[str] | None, names: list[str], label: str, holder: str,
+                  error: type[Exception] = OptionError) -> list[tuple[str, str]]:
+    """Pairs given as ``A:B`` checked against the population names; every pair if none.
+
+    Parameters
+    ----------
+    tokens : list of str or None
+        ``A:B`` items; empty or None means all pairs of ``names`` in their order.
+    names : list of str
+        The populations available.
+    label : str
+        The option or study key named in error messages (e.g. ``--pairs``).
+    holder : str
+        What holds the populations, for the message (e.g. ``the fit files hold``).
+    error : exception class
+        Raised on a malformed item or an unknown population.
+    """
+    if not tokens:
+        return list(itertools.combinations(names, 2))
+    pairs = []
+    for tok in tokens:
+        a, sep, b = tok.partition(":")
+        if not sep or not a or not b:
+            raise error(f"{label} {tok!r}: write pairs as A:B")
+        for nm in (a, b):
+            if nm not in names:
+                raise error(f"{label} {tok!r}: no population {nm!r} ({holder} "
+                            f"{', '.join(names)})")
+        pairs.append((a, b))
+    return pairs
 
 
 def scale_shift(model: DfeModel, log_rho: float) -> np.ndarray:

@@ -39,7 +39,6 @@ from __future__ import annotations
 import contextlib
 import dataclasses
 import datetime as _dt
-import itertools
 import json
 import logging
 import math
@@ -534,7 +533,7 @@ def stage_compare(fit_json: str | os.PathLike, settings: CompareSettings,
     -------
     list of driftband.compare.ComparisonRow
     """
-    from .compare import TESTS, adjust_pvalues, compare_pair, write_compare_tsv
+    from .compare import TESTS, adjust_pvalues, compare_pair, resolve_pairs, write_compare_tsv
     from .fit.io import read_fit_json
     from .fit.models import DfeModel
 
@@ -550,17 +549,8 @@ def stage_compare(fit_json: str | os.PathLike, settings: CompareSettings,
                              f"study has {', '.join(pops)})")
         if not v > 0:
             raise InputError(f"[compare] relative_mutation_rate {p} = {v}: must be > 0")
-    if settings.pairs:
-        pairs = []
-        for tok in settings.pairs:
-            a, _, b = tok.partition(":")
-            for nm in (a, b):
-                if nm not in pops:
-                    raise InputError(f"[compare] pairs {tok!r}: no population {nm!r} (the "
-                                     f"study has {', '.join(pops)})")
-            pairs.append((a, b))
-    else:
-        pairs = list(itertools.combinations(list(pops), 2))
+    pairs = resolve_pairs(settings.pairs, list(pops), "[compare] pairs", "the study has",
+                          InputError)
     tests = [t for t in TESTS if t in settings.tests]
     tasks = [(a, b, pops[a], pops[b], model, options, settings.relative_mutation_rate, (t,))
              for a, b in pairs for t in tests]

@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import argparse
-import itertools
 import logging
 
 from .._io import check_outputs
@@ -70,7 +69,7 @@ def load_populations(paths: list[str]) -> tuple[dict[str, dict], dict]:
 
 def run(args: argparse.Namespace) -> int:
     """Run ``driftband compare``."""
-    from ..compare import TESTS, adjust_pvalues, compare_pair, write_compare_tsv
+    from ..compare import TESTS, adjust_pvalues, compare_pair, resolve_pairs, write_compare_tsv
     from ..fit.models import DfeModel
 
     check_outputs([args.output], args.force)
@@ -89,19 +88,8 @@ def run(args: argparse.Namespace) -> int:
             raise OptionError(f"--relative-mutation-rate {name}=...: no population {name!r}")
         if not v > 0:
             raise OptionError(f"--relative-mutation-rate {name}={v}: must be > 0")
-    if args.pairs:
-        pairs = []
-        for tok in args.pairs.split(","):
-            a, sep, b = tok.partition(":")
-            if not sep or not a or not b:
-                raise OptionError(f"--pairs {tok!r}: write pairs as A:B")
-            for nm in (a, b):
-                if nm not in pops:
-                    raise OptionError(f"--pairs {tok}: no population {nm!r} in the fit files "
-                                      f"(they hold {', '.join(sorted(pops))})")
-            pairs.append((a, b))
-    else:
-        pairs = list(itertools.combinations(sorted(pops), 2))
+    pairs = resolve_pairs(args.pairs.split(",") if args.pairs else None, sorted(pops),
+                          "--pairs", "the fit files hold")
     if not pairs:
         raise InputError("compare needs at least two populations; the fit files hold "
                          f"{', '.join(pops) or 'none'}")
