@@ -36,7 +36,8 @@ from .adaptive import adaptive_summary
 from .api import PopulationFit
 from .likelihood import SpectrumPair
 
-__all__ = ["FIT_SCHEMA", "band_rows", "read_fit_json", "write_bands_tsv", "write_fit_json"]
+__all__ = ["FIT_SCHEMA", "band_rows", "check_fit_schema", "read_fit_json", "write_bands_tsv",
+           "write_fit_json"]
 
 FIT_SCHEMA = "driftband-fit"
 FIT_SCHEMA_VERSION = 1
@@ -90,13 +91,18 @@ def read_fit_json(path: str | os.PathLike) -> dict[str, Any]:
         raise InputError("file not found", path) from None
     except (json.JSONDecodeError, UnicodeDecodeError) as err:
         raise InputError(f"not a fit JSON file ({err})", path) from None
+    check_fit_schema(doc, path)
+    return doc
+
+
+def check_fit_schema(doc: Any, path: str | os.PathLike | None = None) -> None:
+    """Raise InputError unless ``doc`` is a fit document of the supported version."""
     if not isinstance(doc, dict) or doc.get("schema") != FIT_SCHEMA:
         raise InputError(f"not a fit file (expected \"schema\": \"{FIT_SCHEMA}\"; "
                          "make one with 'driftband fit')", path)
     if doc.get("schema_version") != FIT_SCHEMA_VERSION:
         raise InputError(f"fit schema version {doc.get('schema_version')!r} is not "
                          f"supported (this driftband reads {FIT_SCHEMA_VERSION})", path)
-    return doc
 
 
 def pair_from_dict(d: dict[str, Any]) -> SpectrumPair:

@@ -15,6 +15,7 @@ import os
 from typing import Any
 
 from ..exceptions import InputError
+from ..fit.io import FIT_SCHEMA, check_fit_schema
 
 __all__ = [
     "FIT_SCHEMA",
@@ -30,8 +31,6 @@ __all__ = [
 
 # The schema names of driftband.fit.io and driftband.spectra.io, repeated here so that the
 # report reads the files without importing the fitting code (tests check they agree).
-FIT_SCHEMA = "driftband-fit"
-FIT_SCHEMA_VERSION = 1
 SPECTRA_SCHEMA = "driftband-spectra"
 SPECTRA_SCHEMA_VERSION = 1
 
@@ -73,12 +72,7 @@ def check_fit_doc(doc: Any, path: str | os.PathLike | None = None) -> None:
         Not a fit file, an unsupported version, or a population record the report cannot
         render (the message names the population and the model).
     """
-    if not isinstance(doc, dict) or doc.get("schema") != FIT_SCHEMA:
-        raise InputError(f"not a fit file (expected \"schema\": \"{FIT_SCHEMA}\"; make one "
-                         "with 'driftband fit')", path)
-    if doc.get("schema_version") != FIT_SCHEMA_VERSION:
-        raise InputError(f"fit schema version {doc.get('schema_version')!r} is not supported "
-                         f"(this driftband reads version {FIT_SCHEMA_VERSION})", path)
+    check_fit_schema(doc, path)
     pops = doc.get("populations")
     if not isinstance(pops, dict) or not pops:
         raise InputError("the fit file holds no populations; rerun 'driftband fit'", path)
