@@ -200,7 +200,7 @@ def test_shapes_and_finiteness():
     assert np.all(np.isnan(k.g(np.nan)))
     # vectorised evaluation equals one-at-a-time evaluation
     Ss = np.linspace(-50, 50, 7)
-    assert_allclose(k.g(Ss), np.array([k.g(s) for s in Ss]), rtol=1e-15)
+    assert_allclose(k.g(Ss), np.array([k.g(s) for s in Ss]), rtol=1e-13)  # BLAS blocking differs by ulps
 
 
 def test_monotone_in_S_and_watterson_sum():
