@@ -148,16 +148,16 @@ def test_non_convergence_is_flagged_and_warned(monkeypatch):
     import warnings
 
     from driftband.exceptions import ConvergenceWarning
-    from driftband.fit import mle
+    from driftband.fit import optimize as fit_optimize
 
-    real = mle.optimize.minimize
+    real = fit_optimize.optimize.minimize
 
     def failing(*args, **kwargs):
         r = real(*args, **{**kwargs, "options": {"maxiter": 1}})
         r.success = False
         return r
 
-    monkeypatch.setattr(mle.optimize, "minimize", failing)
+    monkeypatch.setattr(fit_optimize.optimize, "minimize", failing)
     n = 10
     en, es = _model_spectra(n, GammaDfe(0.5, 50.0), 0.01, 1e5, 1e5)
     data = _pair(n, en, es, 1e5, 1e5)

@@ -10,8 +10,10 @@ The public API mirrors the command line, stage by stage:
   :class:`WithBeneficial`, :func:`expected_sfs`, :class:`DfeExpectation`,
   :func:`band_shares`
 - fit: :class:`SpectrumPair`, :class:`DfeModel`, :func:`fit_model`,
-  :class:`FitOptions`, :func:`fit_population`, :func:`bootstrap_fits`
-- compare: :func:`compare_pair`
+  :class:`FitOptions`, :func:`fit_population`, :func:`fit_spectra` (every population of
+  :class:`LabelledSpectra` sets), :func:`bootstrap_fits`, :func:`read_fits`
+- compare: :func:`compare_fits` (every pair), :func:`compare_pair`
+- run: :func:`run_study` (the whole job of a study)
 - simulate: :func:`simulate_study`
 """
 
@@ -29,10 +31,15 @@ from .exceptions import (
 # The stages are imported on first use (PEP 562), so that the command line and
 # ``import driftband`` stay fast; ``from driftband import *`` still gives all names.
 _LAZY = {
+    "compare_fits": "compare",
     "compare_pair": "compare",
-    "FitOptions": "fit.api",
-    "PopulationFit": "fit.api",
+    "FitOptions": "fit.options",
+    "LabelledSpectra": "fit.api",
+    "PopulationFit": "fit.results",
     "fit_population": "fit.api",
+    "fit_spectra": "fit.api",
+    "read_fits": "fit.io",
+    "run_study": "run",
     "bootstrap_fits": "fit.bootstrap",
     "SpectrumPair": "fit.likelihood",
     "FitResult": "fit.mle",
@@ -81,6 +88,7 @@ __all__ = [
     "FitResult",
     "GammaDfe",
     "InputError",
+    "LabelledSpectra",
     "LognormalDfe",
     "OptionError",
     "OutputExistsError",
@@ -94,12 +102,16 @@ __all__ = [
     "bootstrap_fits",
     "build_spectra",
     "classify_sites",
+    "compare_fits",
     "compare_pair",
     "expected_sfs",
     "fit_model",
     "fit_population",
+    "fit_spectra",
+    "read_fits",
     "read_site_classes",
     "read_spectra",
+    "run_study",
     "simulate_study",
     "write_spectra_json",
 ]

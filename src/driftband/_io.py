@@ -13,9 +13,12 @@ from collections.abc import Iterable, Iterator
 from pathlib import Path
 from typing import IO, Any
 
+import numpy as np
+
 from .exceptions import OutputExistsError
 
-__all__ = ["atomic_output", "check_outputs", "file_record", "provenance", "sha256sum"]
+__all__ = ["atomic_output", "check_outputs", "file_record", "json_ready", "provenance",
+           "sha256sum", "tsv_cell"]
 
 
 def check_outputs(paths: Iterable[str | os.PathLike | None], force: bool = False) -> None:
@@ -136,3 +139,56 @@ def provenance(options: dict[str, Any] | None = None,
             "scipy": scipy.__version__,
         },
     }
+
+
+def json_ready(x: Any) -> Any:
+    """A JSON-safe copy of ``x``: numpy arrays and scalars to Python, NaN and inf to None.
+
+    Parameters
+    ----------
+    x : object
+        Nested dicts, lists, tuples, numpy arrays and scalars.
+
+    Returns
+    -------
+    object
+        The same structure with plain Python values (dict keys as str).
+
+    Examples
+    --------
+    >>> json_ready({"a": np.array([1.0, np.nan]), 2: (np.int64(3),)})
+    {'a': [1.0, None], '2': [3]}
+    """
+    if isinstance(x, dict):
+        return {str(k): json_ready(v) for k, v in x.items()}
+    if isinstance(x, list | tuple):
+        return [json_ready(v) for v in x]
+    if isinstance(x, np.ndarray):
+        # Whole arrays at once where nothing needs replacing (the common case: counts).
+        if x.dtype.kind in "iub" or (x.dtype.kind == "f" and np.isfinite(x).all()):
+            return x.tolist()
+        return json_ready(x.tolist())
+    if isinstance(x, np.integer):
+        return int(x)
+    if isinstance(x, float | np.floating):
+        x = float(x)
+        return x if np.isfinite(x) else None
+    return x
+
+
+def tsv_cell(v: Any) -> str:
+    """One cell of a TSV table: empty for missing (None, NaN), ``inf``, 6 significant digits.
+
+    Examples
+    --------
+    >>> [tsv_cell(v) for v in (None, float("nan"), float("inf"), 0.123456789, 3, "gamma")]
+    ['', '', 'inf', '0.123457', '3', 'gamma']
+    """
+    if v is None:
+        return ""
+    if isinstance(v, float | np.floating):
+        v = float(v)
+        if v != v:
+            return ""
+        return "inf" if v == float("inf") else f"{v:.6g}"
+    return str(v)

@@ -3,9 +3,10 @@
 from __future__ import annotations
 
 import argparse
+import logging
 import textwrap
 
-__all__ = ["add_common_arguments", "add_subcommand", "parse_kv"]
+__all__ = ["add_common_arguments", "add_subcommand", "parse_kv", "progress_on_stderr"]
 
 
 def add_subcommand(subparsers, name: str, help: str, description: str,
@@ -46,3 +47,10 @@ def parse_kv(items: list[str] | None, option: str, convert=str) -> dict[str, obj
         except ValueError:
             raise OptionError(f"{option} {it!r}: {v!r} is not a valid value") from None
     return out
+
+
+def progress_on_stderr(args: argparse.Namespace) -> None:
+    """Stage progress (INFO) on stderr unless -q; the CLI default shows warnings only."""
+    lg = logging.getLogger("driftband")
+    if args.quiet == 0 and lg.level > logging.INFO:
+        lg.setLevel(logging.INFO)

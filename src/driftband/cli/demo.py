@@ -5,7 +5,7 @@ from __future__ import annotations
 import argparse
 import sys
 
-from ._common import add_common_arguments, add_subcommand
+from ._common import add_common_arguments, add_subcommand, progress_on_stderr
 
 __all__ = ["add_parser", "run"]
 
@@ -45,10 +45,9 @@ def add_parser(subparsers) -> argparse.ArgumentParser:
 def run(args: argparse.Namespace) -> int:
     """Run ``driftband demo``."""
     from ..run import demo_study, run_study
-    from .run import _progress_on_stderr
 
     study = demo_study()
-    _progress_on_stderr(args)
+    progress_on_stderr(args)
     res = run_study(study, args.out_dir, force=args.force, replicates=args.bootstrap,
                     workers=args.workers)
     print(f"The demo report is at {res.report}\n(summary for the terminal: "

@@ -5,10 +5,11 @@ from __future__ import annotations
 import argparse
 import logging
 import os
+from typing import Any
 
 from .._io import check_outputs, file_record, provenance
+from ..defaults import DEFAULT_MODELS, format_edges
 from ..exceptions import OptionError
-from ..fit.api import parse_misorientation
 from ._common import add_common_arguments, add_subcommand, parse_kv
 
 log = logging.getLogger("driftband")
@@ -23,7 +24,7 @@ driftband fit a.json b.json --label a.json=lakesnail --label b.json=pondsnail -o
 
 def parse_bands(text: str) -> tuple[float, ...]:
     """``0,1,10,100`` → edges on |Ne·s| (validated)."""
-    from ..fit.api import check_edges
+    from ..fit.options import check_edges
 
     try:
         edges = tuple(float(v) for v in text.split(","))
@@ -49,7 +50,7 @@ def add_parser(subparsers) -> None:
                    help="spectra file(s): JSON from 'driftband spectra', or a TSV table")
     p.add_argument("--neutral", default="4fold", help="neutral class name (default 4fold)")
     p.add_argument("--selected", default="0fold", help="selected class name (default 0fold)")
-    p.add_argument("--dfe", default="gamma,lognormal,discrete",
+    p.add_argument("--dfe", default=",".join(DEFAULT_MODELS),
                    help="comma-separated DFE families: gamma, lognormal, discrete; "
                         "NAME+beneficial adds a beneficial point mass (default: %(default)s)")
     p.add_argument("--beneficial", action="store_true",
@@ -59,7 +60,7 @@ def add_parser(subparsers) -> None:
                         "unfolded spectra only) or fixed, e.g. fixed:0")
     p.add_argument("--equilibrium", action="store_true",
                    help="no demographic nuisance parameters (all r_i = 1)")
-    p.add_argument("--bands", default="0,1,10,100", metavar="EDGES",
+    p.add_argument("--bands", default=format_edges(), metavar="EDGES",
                    help="band edges on |Ne*s| (default %(default)s; the last band is open)")
     p.add_argument("--populations", metavar="P,...",
                    help="fit only these populations (default: all)")
@@ -87,16 +88,17 @@ def add_parser(subparsers) -> None:
 def run(args: argparse.Namespace) -> int:
     """Run ``driftband fit``."""
     from .._parallel import connect, resolve_workers
+    from ..fit.bootstrap import check_bootstrap_settings
     from ..fit.models import parse_models
+    from ..fit.options import FitOptions, parse_misorientation
 
     check_outputs([args.output, args.bands_tsv], args.force)
     edges = parse_bands(args.bands)
     eps = parse_misorientation(args.misorientation)
-    models = tuple(parse_models(args.dfe, args.beneficial, edges))
-    if args.bootstrap < 0:
-        raise OptionError("--bootstrap must be >= 0")
-    if not 0.5 < args.level < 1.0:
-        raise OptionError("--level must lie between 0.5 and 1, e.g. 0.95")
+    options = FitOptions(args.neutral, args.selected,
+                         tuple(parse_models(args.dfe, args.beneficial, edges)), eps,
+                         args.equilibrium, edges)
+    check_bootstrap_settings(args.bootstrap, args.level)
     labels = parse_kv(args.label, "--label")
     unknown = [k for k in labels if k not in args.spectra]
     if unknown:
@@ -109,38 +111,28 @@ def run(args: argparse.Namespace) -> int:
     # connect before the point estimates: an unreachable scheduler fails at once
     client = connect(args.scheduler) if args.scheduler and args.bootstrap else None
     try:
-        return _run(args, edges, eps, models, labels, client)
+        return _run(args, options, labels, client)
     finally:
         if client is not None:
             client.close()
 
 
-def _run(args: argparse.Namespace, edges, eps, models, labels, client) -> int:
-    from ..fit.api import FitOptions, fit_population, pool_populations
+def _run(args: argparse.Namespace, options: Any, labels: dict[str, object],
+         client: Any) -> int:
+    from ..fit.api import LabelledSpectra, block_spectra, fit_spectra
     from ..fit.io import fit_document, write_bands_tsv, write_fit_json
-    from ..prf.dfe import DfeExpectation
     from ..spectra.io import read_spectra
 
-    options = FitOptions(args.neutral, args.selected, models, eps, args.equilibrium, edges)
-    sets = [(p, str(labels.get(p, "")), read_spectra(p)) for p in args.spectra]
+    sets = [LabelledSpectra(p, read_spectra(p), str(labels.get(p, ""))) for p in args.spectra]
     wanted = args.populations.split(",") if args.populations else None
-    pairs = pool_populations(sets, options, wanted)
-    tables: dict[int, DfeExpectation] = {}
-    fits = []
-    for name, label, data in pairs:
-        ex = tables.setdefault(data.n, DfeExpectation(data.n))
-        pf = fit_population(data, options, name, ex)
-        pf.dataset = label
-        fits.append(pf)
-        best = pf.best
-        log.warning("%s: best model %s, share with |Ne*s| < %g: %.3f", name, best.model,
-                    edges[1], best.shares[0])
+    fits = fit_spectra(sets, options, wanted)
+    for pf in fits:
+        log.warning("%s: best model %s, share with |Ne*s| < %g: %.3f", pf.population,
+                    pf.best.model, options.edges_nes[1], pf.best.shares[0])
     if args.bootstrap:
         from ..fit.bootstrap import bootstrap_fits
 
-        pops = {(f"{lab}/{n}" if lab else n): pop
-                for _p, lab, ss in sets for n, pop in ss.populations.items()}
-        bootstrap_fits(fits, pops, options, args.bootstrap, seed=args.seed,
+        bootstrap_fits(fits, block_spectra(sets), options, args.bootstrap, seed=args.seed,
                        level=args.level, workers=args.workers, scheduler=client)
     opts = options.to_dict() | {"bootstrap": args.bootstrap, "seed": args.seed,
                                 "level": args.level}
@@ -148,10 +140,9 @@ def _run(args: argparse.Namespace, edges, eps, models, labels, client) -> int:
     if args.bootstrap:   # how the refits ran (does not change the results)
         prov["execution"] = {"scheduler": args.scheduler or None,
                              "workers": None if args.scheduler else args.workers}
-    doc = fit_document(fits, opts, prov)
-    write_fit_json(doc, args.output, force=args.force)
+    write_fit_json(fit_document(fits, opts, prov), args.output, force=args.force)
     if args.bands_tsv:
-        write_bands_tsv(doc, args.bands_tsv, force=args.force)
+        write_bands_tsv(fits, args.bands_tsv, force=args.force)
     if not args.quiet:
         print(os.path.abspath(args.output))
     return 0

@@ -3,11 +3,10 @@
 from __future__ import annotations
 
 import argparse
-import logging
 import sys
 
 from ..exceptions import OptionError
-from ._common import add_common_arguments, add_subcommand
+from ._common import add_common_arguments, add_subcommand, progress_on_stderr
 
 __all__ = ["add_parser", "run", "study_from_args"]
 
@@ -140,19 +139,12 @@ def study_from_args(args: argparse.Namespace):
     return study_from_dict(doc, None, flags={**_DATASET_FLAGS, **_FIT_FLAGS})
 
 
-def _progress_on_stderr(args: argparse.Namespace) -> None:
-    """Stage progress (INFO) on stderr unless -q; the CLI default shows warnings only."""
-    lg = logging.getLogger("driftband")
-    if args.quiet == 0 and lg.level > logging.INFO:
-        lg.setLevel(logging.INFO)
-
-
 def run(args: argparse.Namespace) -> int:
     """Run ``driftband run``."""
     from ..run import run_study
 
     study = study_from_args(args)
-    _progress_on_stderr(args)
+    progress_on_stderr(args)
     res = run_study(study, args.out_dir, force=args.force, replicates=args.bootstrap,
                     workers=args.workers, seed=args.seed, level=args.level)
     print(res.report, file=sys.stdout)

@@ -1,107 +1,82 @@
-"""Fitting every population of one or more spectra sets: the API behind ``driftband fit``."""
+"""The fit stage: every DFE model fitted to every population of one or more spectra sets.
+
+:func:`fit_spectra` is the one orchestration of the point fits, used by ``driftband fit``
+and by ``driftband run``: it pools the populations of the spectra sets (labelled when
+there are several), fits one task per population and model on worker processes or a
+dask cluster (:mod:`driftband._parallel`), and returns typed :class:`PopulationFit`
+objects in a fixed order whatever ran the tasks.
+"""
 
 from __future__ import annotations
 
+import dataclasses
+import functools
 import logging
 import os
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from typing import Any
 
-import numpy as np
-
-from ..exceptions import InputError, OptionError
+from .._parallel import parallel_map
+from ..exceptions import InputError
 from ..prf.dfe import DfeExpectation
 from .likelihood import SpectrumPair
-from .mle import DEFAULT_EDGES, FitResult, fit_model
-from .models import DfeModel
+from .mle import FitResult, fit_model
+from .options import FitOptions
+from .results import PopulationFit
 
-__all__ = ["FitOptions", "PopulationFit", "check_edges", "fit_population",
-           "parse_misorientation", "pool_populations"]
+__all__ = ["LabelledSpectra", "block_spectra", "fit_population", "fit_spectra",
+           "pool_populations"]
 
 log = logging.getLogger("driftband")
 
 
-def check_edges(edges: tuple[float, ...]) -> tuple[float, ...]:
-    """Validate |Ne·s| band edges: start at 0, strictly increasing, finite."""
-    e = tuple(float(v) for v in edges)
-    if len(e) < 2 or e[0] != 0.0 or any(b <= a for a, b in zip(e, e[1:])) or not all(
-            np.isfinite(e)):
-        raise OptionError(f"--bands {','.join(f'{v:g}' for v in e)}: edges on |Ne*s| must "
-                          "start at 0 and increase strictly, e.g. 0,1,10,100")
-    return e
-
-
-def parse_misorientation(text: str) -> float | None:
-    """``free`` → None; ``fixed:E`` → E (checked to lie in [0, 0.5))."""
-    if text == "free":
-        return None
-    if text.startswith("fixed:"):
-        try:
-            e = float(text.split(":", 1)[1])
-        except ValueError:
-            e = float("nan")
-        if not 0.0 <= e < 0.5:
-            raise OptionError(f"--misorientation {text}: the rate must be a number in [0, 0.5)")
-        return e
-    raise OptionError(f"--misorientation {text!r}: use 'free' or 'fixed:RATE'")
-
-
 @dataclass(frozen=True)
-class FitOptions:
-    """Options of a fit (recorded in the fit file).
+class LabelledSpectra:
+    """A spectra set and how its populations are named and grouped.
 
     Attributes
     ----------
-    neutral, selected : str
-        Class names.
-    models : tuple of DfeModel
-    eps : float or None
-        Fixed misorientation rate or None (estimated).
-    equilibrium : bool
-        Fix nuisance factors r_i = 1.
-    edges_nes : tuple of float
+    path : str
+        The spectra file (for messages and provenance).
+    spectra : SpectraSet
+    label : str
+        Prefix of the population names (``label/pop``); empty for none.
+    dataset : str
+        The dataset the populations belong to (default: the label, else the path).
+        Populations of one dataset share genomic blocks and are resampled together.
     """
 
-    neutral: str = "4fold"
-    selected: str = "0fold"
-    models: tuple[DfeModel, ...] = (DfeModel("gamma"),)
-    eps: float | None = None
-    equilibrium: bool = False
-    edges_nes: tuple[float, ...] = DEFAULT_EDGES
-
-    def to_dict(self) -> dict[str, Any]:
-        """JSON-ready."""
-        return {"neutral": self.neutral, "selected": self.selected,
-                "models": [m.name for m in self.models],
-                "misorientation": "free" if self.eps is None else f"fixed:{self.eps:g}",
-                "equilibrium": self.equilibrium, "band_edges_nes": list(self.edges_nes)}
-
-
-@dataclass
-class PopulationFit:
-    """All model fits of one population and the AIC choice."""
-
-    population: str
-    data: SpectrumPair
-    fits: dict[str, FitResult]
+    path: str
+    spectra: Any
+    label: str = ""
     dataset: str = ""
-    bootstrap: dict[str, Any] = field(default_factory=dict)
 
     @property
-    def best(self) -> FitResult:
-        """The model with the lowest AIC among those that converged (else overall)."""
-        ok = [f for f in self.fits.values() if f.success] or list(self.fits.values())
-        return min(ok, key=lambda f: f.aic)
+    def dataset_name(self) -> str:
+        """The dataset, the label or the path, in that order."""
+        return self.dataset or self.label or os.fspath(self.path)
 
-    def aic_table(self) -> list[dict[str, Any]]:
-        """Models sorted by AIC with ΔAIC and Akaike weights."""
-        rows = sorted(self.fits.values(), key=lambda f: f.aic)
-        a0 = rows[0].aic
-        w = np.exp(-0.5 * (np.array([f.aic for f in rows]) - a0))
-        w /= w.sum()
-        return [{"model": f.model, "loglik": f.loglik, "n_params": f.n_params,
-                 "aic": f.aic, "delta_aic": f.aic - a0, "weight": float(wk),
-                 "converged": f.success} for f, wk in zip(rows, w)]
+    def population_name(self, pop: str) -> str:
+        """The name of population ``pop`` of this set after labelling."""
+        return f"{self.label}/{pop}" if self.label else pop
+
+
+def block_spectra(spectra_sets: list[LabelledSpectra]) -> dict[str, Any]:
+    """The per-block spectra of every population, by its name after labelling.
+
+    Returns
+    -------
+    dict of str to PopulationSpectra
+        What :func:`driftband.fit.bootstrap.bootstrap_fits` resamples.
+    """
+    return {ls.population_name(n): pop for ls in spectra_sets
+            for n, pop in ls.spectra.populations.items()}
+
+
+@functools.lru_cache(maxsize=8)
+def _expectation(n: int) -> DfeExpectation:
+    """The per-n table of expected spectra, built once per process."""
+    return DfeExpectation(n)
 
 
 def fit_population(data: SpectrumPair, options: FitOptions, population: str = "",
@@ -114,16 +89,13 @@ def fit_population(data: SpectrumPair, options: FitOptions, population: str = ""
     options : FitOptions
     population : str
     expectation : DfeExpectation, optional
-        Per-n table to reuse.
+        Per-n table to reuse (default: one per n and process).
 
     Returns
     -------
     PopulationFit
     """
-    if options.eps is not None and not 0.0 <= options.eps < 0.5:
-        raise OptionError(f"--misorientation fixed:{options.eps:g}: the rate must be in "
-                          "[0, 0.5)")
-    ex = expectation or DfeExpectation(data.n)
+    ex = expectation or _expectation(data.n)
     fits = {}
     for m in options.models:
         log.info("fitting %s to %s (n=%d)", m.name, population, data.n)
@@ -133,20 +105,21 @@ def fit_population(data: SpectrumPair, options: FitOptions, population: str = ""
     return PopulationFit(population, data, fits)
 
 
-def pool_populations(spectra_sets: list[tuple[str, str, Any]], options: FitOptions,
+def pool_populations(spectra_sets: list[LabelledSpectra], options: FitOptions,
                      populations: list[str] | None = None,
                      ) -> list[tuple[str, str, SpectrumPair]]:
     """Collect ``(name, dataset, SpectrumPair)`` from several spectra sets.
 
-    ``dataset`` is the file's label, or its path when it has none.
-
     Parameters
     ----------
-    spectra_sets : list of (path, label, SpectraSet)
-        ``label`` prefixes population names as ``label/pop`` when given.
+    spectra_sets : list of LabelledSpectra
     options : FitOptions
     populations : list of str, optional
         Keep only these (names after labelling).
+
+    Returns
+    -------
+    list of (str, str, SpectrumPair)
 
     Raises
     ------
@@ -155,17 +128,18 @@ def pool_populations(spectra_sets: list[tuple[str, str, Any]], options: FitOptio
     """
     out: list[tuple[str, str, SpectrumPair]] = []
     seen: dict[str, str] = {}
-    for path, label, ss in spectra_sets:
-        for name, pop in ss.populations.items():
-            full = f"{label}/{name}" if label else name
+    for ls in spectra_sets:
+        for name, pop in ls.spectra.populations.items():
+            full = ls.population_name(name)
             if full in seen:
-                raise InputError(f"population {full!r} is in both {seen[full]} and {path}; "
-                                 f"give the files labels, e.g. --label {path}=NAME", path)
-            seen[full] = path
+                raise InputError(f"population {full!r} is in both {seen[full]} and "
+                                 f"{ls.path}; give the files labels, e.g. --label "
+                                 f"{ls.path}=NAME", ls.path)
+            seen[full] = ls.path
             if populations is not None and full not in populations:
                 continue
-            out.append((full, label or os.fspath(path), SpectrumPair.from_population(
-                pop, options.neutral, options.selected, path=path)))
+            out.append((full, ls.dataset_name, SpectrumPair.from_population(
+                pop, options.neutral, options.selected, path=ls.path)))
     if populations is not None:
         missing = [p for p in populations if p not in seen]
         if missing:
@@ -174,3 +148,57 @@ def pool_populations(spectra_sets: list[tuple[str, str, Any]], options: FitOptio
     if not out:
         raise InputError("no population to fit")
     return out
+
+
+def _fit_task(task: tuple[SpectrumPair, FitOptions, str]) -> dict[str, FitResult]:
+    """Fit the models of ``options`` to one population (runs in a worker process)."""
+    data, options, name = task
+    return fit_population(data, options, name).fits
+
+
+def fit_spectra(spectra_sets: list[LabelledSpectra], options: FitOptions,
+                populations: list[str] | None = None, *, workers: int | None = 1,
+                scheduler: Any = None) -> list[PopulationFit]:
+    """Point fits of every model of ``options`` to every population of the spectra sets.
+
+    Parameters
+    ----------
+    spectra_sets : list of LabelledSpectra
+    options : FitOptions
+    populations : list of str, optional
+        Fit only these (names after labelling).
+    workers : int, optional
+        Local worker processes, one task per population and model (default 1: in this
+        process; None: the cores available). The results do not depend on it.
+    scheduler : str or distributed.Client, optional
+        Run the tasks on a dask cluster instead.
+
+    Returns
+    -------
+    list of PopulationFit
+        In the order of the spectra sets and their populations.
+    """
+    pooled = pool_populations(spectra_sets, options, populations)
+    tasks = [(data, dataclasses.replace(options, models=(m,)), name)
+             for name, _ds, data in pooled for m in options.models]
+    for name, _ds, data in pooled:
+        log.info("fit: %s (n = %d): %s", name, data.n,
+                 ", ".join(m.name for m in options.models))
+    if scheduler is None and len(tasks) <= 1:
+        workers = 1
+    done = iter(parallel_map(_fit_task, tasks, workers=workers, scheduler=scheduler,
+                             name="fit"))
+    fits = []
+    for name, dataset, data in pooled:
+        pf = PopulationFit(name, data, {}, dataset=dataset)
+        for _m in options.models:
+            pf.fits.update(next(done))
+        for f in pf.fits.values():
+            if not f.success:
+                log.warning("fit: %s, model %s did not converge (%s)", name, f.model,
+                            f.message)
+        best = pf.best
+        log.info("fit: %s: best model %s (AIC %.2f), share with |Ne*s| < %g: %.3f", name,
+                 best.model, best.aic, options.edges_nes[1], best.shares[0])
+        fits.append(pf)
+    return fits

@@ -8,25 +8,54 @@ per population, so results do not depend on how many workers run the refits.
 
 from __future__ import annotations
 
+import dataclasses
 import logging
+import math
 import warnings
 import zlib
 from typing import Any
 
 import numpy as np
 
+from .._options import COMMAND_LINE, OptionSource
+from .._parallel import parallel_map, resolve_workers
+from ..defaults import MIN_BLOCKS
 from ..exceptions import DriftbandWarning, InputError
 from ..prf.dfe import DfeExpectation
 from .adaptive import adaptive_summary
-from .api import FitOptions, PopulationFit
 from .likelihood import SpectrumPair
 from .mle import fit_model
+from .options import FitOptions
+from .results import BootstrapResult, ConfidenceInterval, ModelBootstrap, PopulationFit
 
-__all__ = ["MIN_BLOCKS", "bootstrap_fits", "percentile_interval", "resample_indices"]
+__all__ = ["bootstrap_fits", "check_bootstrap_settings", "default_batch",
+           "percentile_interval", "resample_indices"]
 
 log = logging.getLogger("driftband")
 
-MIN_BLOCKS = 20
+
+
+def check_bootstrap_settings(replicates: int, level: float,
+                             source: OptionSource = COMMAND_LINE) -> None:
+    """Check the replicate count and the confidence level of a bootstrap.
+
+    Parameters
+    ----------
+    replicates : int
+    level : float
+    source : OptionSource
+        Where the values came from (``--bootstrap`` or ``[bootstrap] replicates``).
+
+    Raises
+    ------
+    OptionError or InputError
+        ``replicates`` below 0 or ``level`` outside (0.5, 1).
+    """
+    key = "bootstrap" if source.section is None else "replicates"
+    if isinstance(replicates, bool) or not isinstance(replicates, int) or replicates < 0:
+        raise source.error(key, f"must be a whole number >= 0, got {replicates!r}")
+    if not 0.5 < level < 1.0:
+        raise source.error("level", "must lie between 0.5 and 1, e.g. 0.95")
 
 
 def resample_indices(n_blocks: int, replicates: int, seed: int, stream: int = 0) -> np.ndarray:
@@ -44,15 +73,26 @@ def resample_indices(n_blocks: int, replicates: int, seed: int, stream: int = 0)
     return rng.integers(0, n_blocks, size=(replicates, n_blocks))
 
 
-def percentile_interval(values: np.ndarray, level: float = 0.95) -> tuple[float, float]:
-    """Percentile interval of bootstrap values (NaNs from failed refits dropped)."""
+def percentile_interval(values: np.ndarray, level: float = 0.95) -> ConfidenceInterval:
+    """Percentile interval of bootstrap values (NaNs from failed refits dropped).
+
+    Parameters
+    ----------
+    values : ndarray, shape (replicates,)
+    level : float
+
+    Returns
+    -------
+    ConfidenceInterval
+        NaN ends when no value is finite.
+    """
     v = np.asarray(values, dtype=float)
     v = v[np.isfinite(v)]
     if v.size == 0:
-        return float("nan"), float("nan")
+        return ConfidenceInterval(float("nan"), float("nan"))
     a = (1.0 - level) / 2.0
     lo, hi = np.quantile(v, [a, 1.0 - a])
-    return float(lo), float(hi)
+    return ConfidenceInterval(float(lo), float(hi))
 
 
 def _block_arrays(pop, options: FitOptions) -> tuple[np.ndarray, np.ndarray, np.ndarray,
@@ -94,22 +134,17 @@ def _replicate_task(args) -> list[dict[str, Any]]:
     return out
 
 
-def _map(tasks: list, workers: int | None, scheduler) -> list:
-    """Refit the batches on local worker processes or a dask cluster (results in task
-    order; see :mod:`driftband._parallel`)."""
-    from .._parallel import parallel_map
-
-    if scheduler is None and len(tasks) <= 1:
-        workers = 1
-    return parallel_map(_replicate_task, tasks, workers=workers, scheduler=scheduler,
-                        name="bootstrap")
+def default_batch(replicates: int, workers: int) -> int:
+    """Replicates per task: about four tasks per worker, between 1 and 10 replicates."""
+    return max(1, min(10, math.ceil(replicates / (4 * max(1, workers)))))
 
 
 def bootstrap_fits(fits: list[PopulationFit], pops: dict[str, Any], options: FitOptions,
                    replicates: int, seed: int = 1, level: float = 0.95,
                    workers: int | None = None, scheduler: Any = None,
-                   batch: int = 10) -> None:
-    """Block-bootstrap every population fit in place (fills ``PopulationFit.bootstrap``).
+                   batch: int | None = None,
+                   models: dict[str, list[str]] | None = None) -> None:
+    """Block-bootstrap every population fit in place (sets ``PopulationFit.bootstrap``).
 
     Parameters
     ----------
@@ -126,17 +161,31 @@ def bootstrap_fits(fits: list[PopulationFit], pops: dict[str, Any], options: Fit
         Local worker processes (default: available cores; 1 runs in this process).
     scheduler : str or distributed.Client, optional
         A dask.distributed scheduler address (or Client) to run the refits on instead.
-    batch : int
-        Replicates per task.
+    batch : int, optional
+        Replicates per task (default :func:`default_batch`); the results do not depend
+        on it.
+    models : dict of str to list of str, optional
+        The models refitted for each population (default: every model of ``options``
+        that the population has).
 
     Raises
     ------
     InputError
         A population without per-block spectra (fewer than 2 blocks).
+    OptionError
+        Bad ``replicates`` or ``level``.
     """
+    check_bootstrap_settings(replicates, level)
+    if batch is None:
+        nw = 1 if scheduler is not None else resolve_workers(workers)
+        batch = default_batch(replicates, nw)
     tasks, owners = [], []
+    wanted: list[list[str]] = []
     for k, pf in enumerate(fits):
         pop = pops[pf.population]
+        names = [m.name for m in options.models if m.name in pf.fits and (
+            models is None or m.name in models.get(pf.population, ()))]
+        wanted.append(names)
         bn, bs, ln, ls = _block_arrays(pop, options)
         nb = bn.shape[0]
         if nb < 2:
@@ -151,38 +200,41 @@ def bootstrap_fits(fits: list[PopulationFit], pops: dict[str, Any], options: Fit
         # so that between-population comparisons keep the covariance of shared regions.
         stream = zlib.crc32(pf.dataset.encode())
         idx = resample_indices(nb, replicates, seed, stream)
-        starts = {name: f.x for name, f in pf.fits.items()}
+        opts = dataclasses.replace(options, models=tuple(options.model(n) for n in names))
+        starts = {name: pf.fits[name].x for name in names}
         for b0 in range(0, replicates, batch):
             tasks.append((pf.data.n, pf.data.folded, bn, bs, ln, ls, idx[b0:b0 + batch],
-                          options, starts))
+                          opts, starts))
             owners.append(k)
     log.info("bootstrap: %d replicates x %d populations", replicates, len(fits))
-    results = _map(tasks, workers, scheduler)
+    if scheduler is None and len(tasks) <= 1:
+        workers = 1
+    results = parallel_map(_replicate_task, tasks, workers=workers, scheduler=scheduler,
+                           name="bootstrap")
     per_pop: dict[int, list] = {}
     for k, res in zip(owners, results):
         per_pop.setdefault(k, []).extend(res)
     for k, pf in enumerate(fits):
         reps = per_pop.get(k, [])
-        models = {}
-        for name, f in pf.fits.items():
-            ok = [r[name] for r in reps if r and name in r]
-            shares = np.array([r["shares"] for r in ok]) if ok else np.empty((0, len(f.shares)))
-            params = {p: np.array([r["params"][p] for r in ok]) for p in f.params}
-            params["eps"] = np.array([r["eps"] for r in ok])
-            params["fixation_ratio"] = np.array([r["fixation_ratio"] for r in ok])
-            for key in ("alpha_dfe", "omega_a", "alpha_classic", "alpha_asymptotic"):
-                if ok and key in ok[0]:
-                    params[key] = np.array([r.get(key, np.nan) for r in ok], dtype=float)
-            models[name] = {
-                "replicates": len(ok),
-                "failed": int(replicates - len(ok) + sum(1 for r in ok if not r["success"])),
-                "params": {p: v.tolist() for p, v in params.items()},
-                "shares": shares.tolist(),
-                "params_ci": {p: list(percentile_interval(v, level)) for p, v in params.items()},
-                "shares_ci": [list(percentile_interval(shares[:, j], level))
-                              for j in range(shares.shape[1])],
-            }
-        pf.bootstrap = {"replicates": replicates, "blocks": int(pops[pf.population]
-                                                                .classes[options.neutral]
-                                                                .block_sfs.shape[0]),
-                        "seed": seed, "level": level, "models": models}
+        blocks = int(pops[pf.population].classes[options.neutral].block_sfs.shape[0])
+        pf.bootstrap = BootstrapResult(replicates, blocks, seed, level, {
+            name: _summarise(pf.fits[name], [r[name] for r in reps if r and name in r],
+                             replicates, level) for name in wanted[k]})
+
+
+def _summarise(f: Any, ok: list[dict[str, Any]], replicates: int,
+               level: float) -> ModelBootstrap:
+    """The replicates of one model: values per replicate and percentile intervals."""
+    shares = np.array([r["shares"] for r in ok]) if ok else np.empty((0, len(f.shares)))
+    params = {p: np.array([r["params"][p] for r in ok]) for p in f.params}
+    params["eps"] = np.array([r["eps"] for r in ok])
+    params["fixation_ratio"] = np.array([r["fixation_ratio"] for r in ok])
+    for key in ("alpha_dfe", "omega_a", "alpha_classic", "alpha_asymptotic"):
+        if ok and key in ok[0]:
+            params[key] = np.array([r.get(key, np.nan) for r in ok], dtype=float)
+    return ModelBootstrap(
+        replicates=len(ok),
+        failed=int(replicates - len(ok) + sum(1 for r in ok if not r["success"])),
+        params=params, shares=shares,
+        params_ci={p: percentile_interval(v, level) for p, v in params.items()},
+        shares_ci=[percentile_interval(shares[:, j], level) for j in range(shares.shape[1])])

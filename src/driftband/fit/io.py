@@ -25,48 +25,47 @@ from __future__ import annotations
 import csv
 import json
 import os
+from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
 
-from .._io import atomic_output
+from .._io import atomic_output, json_ready, tsv_cell
 from ..exceptions import InputError
-from ..spectra.io import _clean
-from .adaptive import adaptive_summary
-from .api import PopulationFit
-from .likelihood import SpectrumPair
+from .options import FitOptions
+from .results import PopulationFit
 
-__all__ = ["FIT_SCHEMA", "band_rows", "check_fit_schema", "read_fit_json", "write_bands_tsv",
-           "write_fit_json"]
+__all__ = ["BANDS_COLUMNS", "FIT_SCHEMA", "FitFile", "band_label", "band_rows",
+           "check_fit_schema", "fit_document", "read_fit_files", "read_fit_json", "read_fits",
+           "write_bands_tsv", "write_fit_json"]
 
 FIT_SCHEMA = "driftband-fit"
 FIT_SCHEMA_VERSION = 1
-
-
-def _data_dict(d: SpectrumPair) -> dict[str, Any]:
-    return {"n": d.n, "folded": d.folded, "neutral": d.neutral.tolist(),
-            "selected": d.selected.tolist(), "sites_neutral": d.sites_neutral,
-            "sites_selected": d.sites_selected, "fixed_neutral": d.fixed_neutral,
-            "fixed_selected": d.fixed_selected}
+#: Columns of ``bands.tsv``.
+BANDS_COLUMNS = ["population", "band", "nes_low", "nes_high", "S_low", "S_high", "share",
+                 "ci_low", "ci_high", "model"]
 
 
 def fit_document(fits: list[PopulationFit], options: dict[str, Any],
                  provenance: dict[str, Any]) -> dict[str, Any]:
-    """The JSON document of a list of population fits."""
-    pops = {}
-    for pf in fits:
-        pops[pf.population] = {
-            "dataset": pf.dataset,
-            "best_model": pf.best.model,
-            "data": _data_dict(pf.data),
-            "aic_table": pf.aic_table(),
-            "models": {k: f.to_dict() for k, f in pf.fits.items()},
-            "bootstrap": pf.bootstrap,
-            "adaptive": {k: adaptive_summary(pf.data, f.fixation_ratio)
-                         for k, f in pf.fits.items()},
-        }
-    return _clean({"schema": FIT_SCHEMA, "schema_version": FIT_SCHEMA_VERSION,
-                   "options": options, "populations": pops, "provenance": provenance})
+    """The JSON document of a list of population fits.
+
+    Parameters
+    ----------
+    fits : list of PopulationFit
+    options : dict
+        :meth:`FitOptions.to_dict` and the settings of the stages that made the fits
+        (bootstrap, model compared).
+    provenance : dict
+
+    Returns
+    -------
+    dict
+        JSON-ready (NaN and inf as null).
+    """
+    pops = {pf.population: pf.to_dict() for pf in fits}
+    return json_ready({"schema": FIT_SCHEMA, "schema_version": FIT_SCHEMA_VERSION,
+                       "options": options, "populations": pops, "provenance": provenance})
 
 
 def write_fit_json(doc: dict[str, Any], path: str | os.PathLike, force: bool = False) -> None:
@@ -105,12 +104,69 @@ def check_fit_schema(doc: Any, path: str | os.PathLike | None = None) -> None:
                          f"supported (this driftband reads {FIT_SCHEMA_VERSION})", path)
 
 
-def pair_from_dict(d: dict[str, Any]) -> SpectrumPair:
-    """Rebuild the :class:`SpectrumPair` stored in a fit file."""
-    return SpectrumPair(int(d["n"]), bool(d["folded"]), np.asarray(d["neutral"], float),
-                        np.asarray(d["selected"], float), float(d["sites_neutral"]),
-                        float(d["sites_selected"]), d.get("fixed_neutral"),
-                        d.get("fixed_selected"))
+@dataclass
+class FitFile:
+    """A fit file read back as typed objects.
+
+    Attributes
+    ----------
+    path : str
+    options : FitOptions
+    populations : list of PopulationFit
+        In the order of the file.
+    settings : dict
+        The whole ``options`` entry (besides the fit options: the bootstrap settings and,
+        from ``driftband run``, the model compared).
+    provenance : dict
+    """
+
+    path: str
+    options: FitOptions
+    populations: list[PopulationFit]
+    settings: dict[str, Any] = field(default_factory=dict)
+    provenance: dict[str, Any] = field(default_factory=dict)
+
+
+def read_fits(path: str | os.PathLike) -> FitFile:
+    """Read a fit file into typed population fits (the one reader of population fits).
+
+    Raises
+    ------
+    InputError
+        Not a fit file, or an entry that cannot be read back (named).
+    """
+    doc = read_fit_json(path)
+    try:
+        options = FitOptions.from_dict(doc.get("options") or {})
+        pops = [PopulationFit.from_dict(name, p) for name, p in doc["populations"].items()]
+    except (KeyError, TypeError, ValueError, AttributeError) as err:
+        what = f"missing entry {err}" if isinstance(err, KeyError) else str(err)
+        raise InputError(f"the fit file cannot be read back ({what}); remake it with "
+                         "'driftband fit'", path) from None
+    return FitFile(os.fspath(path), options, pops, dict(doc.get("options") or {}),
+                   dict(doc.get("provenance") or {}))
+
+
+def read_fit_files(paths: list[str]) -> tuple[FitOptions, list[PopulationFit]]:
+    """The populations of several fit files (names must be unique) and the first's options.
+
+    Raises
+    ------
+    InputError
+        A population in two files (refit with labels), or a file that is not a fit file.
+    """
+    files = [read_fits(p) for p in paths]
+    where: dict[str, str] = {}
+    fits: list[PopulationFit] = []
+    for ff in files:
+        for pf in ff.populations:
+            if pf.population in where:
+                raise InputError(f"population {pf.population!r} is in both "
+                                 f"{where[pf.population]} and {ff.path}; refit with --label "
+                                 "FILE=NAME to tell them apart", ff.path)
+            where[pf.population] = ff.path
+            fits.append(pf)
+    return files[0].options, fits
 
 
 def band_label(lo: float, hi: float) -> str:
@@ -120,40 +176,31 @@ def band_label(lo: float, hi: float) -> str:
     return f"{lo:g}-{hi:g}"
 
 
-def band_rows(doc: dict[str, Any]) -> list[dict[str, Any]]:
-    """Rows of ``bands.tsv`` (AIC-best model of each population)."""
+def band_rows(fits: list[PopulationFit]) -> list[dict[str, Any]]:
+    """Rows of ``bands.tsv`` (AIC-best model of each population; columns
+    :data:`BANDS_COLUMNS`)."""
     rows = []
-    for pop, p in doc["populations"].items():
-        best = p["best_model"]
-        f = p["models"][best]
-        edges = list(f["band_edges"]) + [float("inf")]
-        ci = (p.get("bootstrap") or {}).get("models", {}).get(best, {}).get("shares_ci")
-        for k, share in enumerate(f["shares"]):
+    for pf in fits:
+        f = pf.best
+        edges = list(f.band_edges) + [float("inf")]
+        mb = pf.model_bootstrap(f.model)
+        for k, share in enumerate(f.shares):
             lo, hi = edges[k], edges[k + 1]
             rows.append({
-                "population": pop, "band": band_label(lo, hi), "nes_low": lo, "nes_high": hi,
-                "S_low": 4 * lo, "S_high": 4 * hi, "share": share,
-                "ci_low": None if ci is None else ci[k][0],
-                "ci_high": None if ci is None else ci[k][1],
-                "model": best,
+                "population": pf.population, "band": band_label(lo, hi), "nes_low": lo,
+                "nes_high": hi, "S_low": 4 * lo, "S_high": 4 * hi, "share": float(share),
+                "ci_low": None if mb is None else mb.shares_ci[k].low,
+                "ci_high": None if mb is None else mb.shares_ci[k].high,
+                "model": f.model,
             })
     return rows
 
 
-def _fmt(v: Any) -> str:
-    if v is None:
-        return ""
-    if isinstance(v, float):
-        return "inf" if v == float("inf") else f"{v:.6g}"
-    return str(v)
-
-
-def write_bands_tsv(doc: dict[str, Any], path: str | os.PathLike, force: bool = False) -> None:
+def write_bands_tsv(fits: list[PopulationFit], path: str | os.PathLike,
+                    force: bool = False) -> None:
     """Write ``bands.tsv`` atomically."""
-    cols = ["population", "band", "nes_low", "nes_high", "S_low", "S_high", "share",
-            "ci_low", "ci_high", "model"]
     with atomic_output(path, force=force, newline="") as fh:
         w = csv.writer(fh, delimiter="\t", lineterminator="\n")
-        w.writerow(cols)
-        for r in band_rows(doc):
-            w.writerow([_fmt(r[c]) for c in cols])
+        w.writerow(BANDS_COLUMNS)
+        for r in band_rows(fits):
+            w.writerow([tsv_cell(r[c]) for c in BANDS_COLUMNS])

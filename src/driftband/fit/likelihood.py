@@ -24,6 +24,7 @@ of the polymorphisms in each class), by Newton steps over the independent pairs
 from __future__ import annotations
 
 from dataclasses import dataclass
+from typing import Any
 
 import numpy as np
 from scipy.special import gammaln, xlogy
@@ -104,6 +105,28 @@ class SpectrumPair:
     def m(self) -> int:
         """Number of polymorphic classes."""
         return self.neutral.size
+
+    def to_dict(self) -> dict[str, Any]:
+        """JSON-ready (the ``data`` of a population in a fit file)."""
+        return {"n": self.n, "folded": self.folded, "neutral": self.neutral.tolist(),
+                "selected": self.selected.tolist(), "sites_neutral": self.sites_neutral,
+                "sites_selected": self.sites_selected, "fixed_neutral": self.fixed_neutral,
+                "fixed_selected": self.fixed_selected}
+
+    @classmethod
+    def from_dict(cls, d: dict[str, Any]) -> SpectrumPair:
+        """The data back from :meth:`to_dict`.
+
+        Raises
+        ------
+        KeyError, TypeError, ValueError
+            A missing or malformed entry.
+        """
+        fn, fs = d.get("fixed_neutral"), d.get("fixed_selected")
+        return cls(int(d["n"]), bool(d["folded"]), np.asarray(d["neutral"], float),
+                   np.asarray(d["selected"], float), float(d["sites_neutral"]),
+                   float(d["sites_selected"]), None if fn is None else float(fn),
+                   None if fs is None else float(fs))
 
 
 def poisson_loglik(obs: np.ndarray, lam: np.ndarray) -> float:

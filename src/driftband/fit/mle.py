@@ -14,16 +14,15 @@ from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
-from scipy import optimize
 
+from ..defaults import DEFAULT_EDGES_NES
 from ..exceptions import ConvergenceWarning
 from ..prf.dfe import DfeExpectation, band_shares, mean_fixation_ratio
 from .likelihood import Objective, SpectrumPair
 from .models import DfeModel
+from .optimize import minimize_multistart
 
-__all__ = ["DEFAULT_EDGES", "FitResult", "fit_model"]
-
-DEFAULT_EDGES = (0.0, 1.0, 10.0, 100.0)
+__all__ = ["FitResult", "fit_model"]
 
 
 @dataclass
@@ -76,7 +75,7 @@ class FitResult:
     observed_selected: np.ndarray
     expected_neutral: np.ndarray
     expected_selected: np.ndarray
-    x: np.ndarray = field(repr=False, default=None)
+    x: np.ndarray | None = field(repr=False, default=None)
     n_starts: int = 0
     n_eval: int = 0
     equilibrium: bool = False
@@ -113,6 +112,50 @@ class FitResult:
             "x": None if self.x is None else np.asarray(self.x).tolist(),
             "optimizer": {"starts": self.n_starts, "evaluations": self.n_eval},
         }
+
+    @classmethod
+    def from_dict(cls, d: dict[str, Any]) -> FitResult:
+        """The result back from :meth:`to_dict` (``None`` read as NaN).
+
+        Parameters
+        ----------
+        d : dict
+            As written by :meth:`to_dict` (e.g. read from a fit file).
+
+        Returns
+        -------
+        FitResult
+
+        Raises
+        ------
+        KeyError, TypeError, ValueError
+            A required field is missing or of the wrong type.
+        """
+        def arr(v: Any) -> np.ndarray:
+            return np.array([_nan(x) for x in v], dtype=float)
+
+        obs, exp = d.get("observed") or {}, d.get("expected") or {}
+        opt = d.get("optimizer") or {}
+        return cls(
+            population=str(d["population"]), model=str(d["model"]),
+            params={str(k): _nan(v) for k, v in (d.get("params") or {}).items()},
+            stderr={str(k): _nan(v) for k, v in (d.get("stderr") or {}).items()},
+            eps=_nan(d["eps"]), eps_free=bool(d["eps_free"]), theta=_nan(d["theta"]),
+            nuisance=arr(d["nuisance"]), loglik=_nan(d["loglik"]),
+            n_params=int(d["n_params"]), aic=_nan(d["aic"]), success=bool(d["success"]),
+            message=str(d["message"]),
+            band_edges=tuple(float(v) for v in d["band_edges"]), shares=arr(d["shares"]),
+            fixation_ratio=_nan(d["fixation_ratio"]),
+            observed_neutral=arr(obs["neutral"]), observed_selected=arr(obs["selected"]),
+            expected_neutral=arr(exp["neutral"]), expected_selected=arr(exp["selected"]),
+            x=None if d.get("x") is None else arr(d["x"]),
+            n_starts=int(opt.get("starts", 0)), n_eval=int(opt.get("evaluations", 0)),
+            equilibrium=bool(d.get("equilibrium", False)))
+
+
+def _nan(v: Any) -> float:
+    """A number of a fit file: ``None`` (how JSON stores NaN and inf here) as NaN."""
+    return float("nan") if v is None else float(v)
 
 
 def _hessian(f, x, bounds, h=1e-4):
@@ -168,7 +211,7 @@ def _stderr(obj: Objective, x: np.ndarray) -> dict[str, float]:
 
 def fit_model(data: SpectrumPair, model: DfeModel, *, population: str = "",
               eps: float | None = 0.0, equilibrium: bool = False,
-              edges_nes: tuple[float, ...] = DEFAULT_EDGES,
+              edges_nes: tuple[float, ...] = DEFAULT_EDGES_NES,
               expectation: DfeExpectation | None = None,
               starts: list[np.ndarray] | None = None, stderr: bool = True,
               n_local: int = 3) -> FitResult:
@@ -203,37 +246,14 @@ def fit_model(data: SpectrumPair, model: DfeModel, *, population: str = "",
     FitResult
     """
     obj = Objective(data, model, eps=eps, equilibrium=equilibrium, expectation=expectation)
-    bounds = obj.bounds()
     if starts is None:
         starts = model.starts()
         if obj.free_eps:
             starts = [np.append(s, e) for s in starts for e in (np.log(0.01 / 0.99),)]
-    lo = np.array([b[0] for b in bounds])
-    hi = np.array([b[1] for b in bounds])
-    starts = [np.clip(np.asarray(s, dtype=float), lo, hi) for s in starts]
-    if len(starts) > n_local:
-        # Screen the grid of starting points by one evaluation each; refine the best few.
-        vals = np.array([obj(s) for s in starts])
-        starts = [starts[j] for j in np.argsort(vals, kind="stable")[:n_local]]
-    runs = []
-    for s in starts:
-        r = optimize.minimize(obj, s, method="L-BFGS-B", bounds=bounds,
-                              options={"maxiter": 500, "ftol": 1e-13, "gtol": 1e-8})
-        runs.append(r)
-    runs.sort(key=lambda r: r.fun)
-    best = runs[0]
-    xbest, fbest, converged = best.x, best.fun, bool(best.success)
-    if not converged:
-        # Polish with a derivative-free method (robust to flat or kinked directions).
-        pol = optimize.minimize(obj, best.x, method="Nelder-Mead",
-                                options={"xatol": 1e-7, "fatol": 1e-9, "maxiter": 4000})
-        if pol.fun <= fbest:
-            xbest, fbest = np.clip(pol.x, lo, hi), pol.fun
-        converged = bool(pol.success)
-    agree = sum(1 for r in runs if r.fun - fbest < 1e-3)
-    success = bool(np.isfinite(fbest) and fbest < 1e299 and converged)
-    msg = (f"{agree} of {len(runs)} refined starts reached the best log-likelihood; "
-           f"optimiser: {best.message!s}")
+    opt = minimize_multistart(obj, starts, obj.bounds(), screen=n_local)
+    xbest, fbest = opt.x, opt.fun
+    success = bool(np.isfinite(fbest) and fbest < 1e299 and opt.success)
+    msg = opt.message
     ll, c, ln, ls, _gbar = obj.evaluate(xbest)
     xd, e = obj.split(xbest)
     dfe = model.to_dfe(xd)
@@ -252,5 +272,5 @@ def fit_model(data: SpectrumPair, model: DfeModel, *, population: str = "",
         band_edges=tuple(edges_nes), shares=band_shares(dfe, edges_nes),
         fixation_ratio=float(mean_fixation_ratio(dfe)),
         observed_neutral=data.neutral.copy(), observed_selected=data.selected.copy(),
-        expected_neutral=ln, expected_selected=ls, x=xbest, n_starts=len(runs),
+        expected_neutral=ln, expected_selected=ls, x=xbest, n_starts=len(opt.runs),
         n_eval=obj.n_eval, equilibrium=equilibrium)

@@ -12,6 +12,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from ..defaults import DEFAULT_EDGES_NES
 from ..exceptions import OptionError
 from ..prf.dfe import DiscreteDfe, GammaDfe, LognormalDfe, WithBeneficial
 
@@ -48,7 +49,7 @@ class DfeModel:
 
     family: str
     beneficial: bool = False
-    edges_nes: tuple[float, ...] = (0.0, 1.0, 10.0, 100.0)
+    edges_nes: tuple[float, ...] = DEFAULT_EDGES_NES
 
     def __post_init__(self) -> None:
         if self.family not in FAMILIES:
@@ -143,7 +144,7 @@ class DfeModel:
 
 
 def parse_models(spec: str, beneficial: bool = False,
-                 edges_nes: tuple[float, ...] = (0.0, 1.0, 10.0, 100.0)) -> list[DfeModel]:
+                 edges_nes: tuple[float, ...] = DEFAULT_EDGES_NES) -> list[DfeModel]:
     """Parse ``--dfe gamma,lognormal,...`` (``NAME+beneficial`` adds one model each)."""
     out = []
     for tok in (t.strip() for t in spec.split(",")):

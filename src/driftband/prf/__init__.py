@@ -7,7 +7,6 @@ S = 4 Ne s, band shares, DFE-averaged spectra).
 """
 
 from .dfe import (
-    DEFAULT_EDGES_NES,
     DfeExpectation,
     DiscreteDfe,
     GammaDfe,
@@ -29,7 +28,6 @@ from .expected import (
 )
 
 __all__ = [
-    "DEFAULT_EDGES_NES",
     "DfeExpectation",
     "DiscreteDfe",
     "GammaDfe",

@@ -32,10 +32,10 @@ from numpy.typing import ArrayLike
 from scipy.optimize import brentq
 from scipy.special import digamma, gammainc, gammaincc, gammaln, ndtr, polygamma, zeta
 
+from ..defaults import DEFAULT_EDGES_NES
 from .expected import SfsKernel, _log_binom, fixation_ratio, kernel
 
 __all__ = [
-    "DEFAULT_EDGES_NES",
     "DfeExpectation",
     "DiscreteDfe",
     "GammaDfe",
@@ -47,8 +47,6 @@ __all__ = [
     "sample_S",
 ]
 
-#: Default band edges on |Ne s| (DESIGN section 2): 0, 1, 10, 100, infinity.
-DEFAULT_EDGES_NES = (0.0, 1.0, 10.0, 100.0)
 #: Width, in decades of t, of the open last band of :class:`DiscreteDfe`.
 OPEN_BAND_DECADES = 3.0
 

@@ -37,7 +37,7 @@ from typing import Any
 
 import numpy as np
 
-from .._io import atomic_output
+from .._io import atomic_output, json_ready
 from ..exceptions import InputError
 from ._types import (
     Block,
@@ -77,25 +77,6 @@ def add_diversity(pop: PopulationSpectra, neutral: str = "4fold",
     pop.stats = stats
 
 
-def _clean(x: Any) -> Any:
-    """JSON-safe copy: numpy scalars to Python, NaN/inf to None."""
-    if isinstance(x, dict):
-        return {str(k): _clean(v) for k, v in x.items()}
-    if isinstance(x, list | tuple):
-        return [_clean(v) for v in x]
-    if isinstance(x, np.ndarray):
-        # Whole arrays at once where nothing needs replacing (the common case: counts).
-        if x.dtype.kind in "iub" or (x.dtype.kind == "f" and np.isfinite(x).all()):
-            return x.tolist()
-        return _clean(x.tolist())
-    if isinstance(x, np.integer):
-        return int(x)
-    if isinstance(x, float | np.floating):
-        x = float(x)
-        return x if np.isfinite(x) else None
-    return x
-
-
 def spectra_to_dict(ss: SpectraSet) -> dict[str, Any]:
     """The JSON document of a :class:`SpectraSet`."""
     pops = {}
@@ -115,7 +96,7 @@ def spectra_to_dict(ss: SpectraSet) -> dict[str, Any]:
             },
             "stats": pop.stats,
         }
-    return _clean({
+    return json_ready({
         "schema": SCHEMA,
         "schema_version": SCHEMA_VERSION,
         "blocks": [{"chrom": b.chrom, "start": b.start, "end": b.end, "name": b.name}

@@ -21,11 +21,11 @@ from collections.abc import Callable, Iterator
 from pathlib import Path
 from typing import Any
 
-from ._io import atomic_output, sha256sum
-from ._version import __version__
-from .exceptions import DriftbandError, InputError
+from .._io import atomic_output, sha256sum
+from .._version import __version__
+from ..exceptions import DriftbandError, InputError
 
-__all__ = ["StageError", "stage_key"]
+__all__ = ["RunLog", "StageCache", "StageError", "StageRunner", "run_log", "stage_key"]
 
 log = logging.getLogger("driftband")
 
@@ -61,7 +61,7 @@ def stage_key(stage: str, inputs: dict[str, str | None], options: dict[str, Any]
     return hashlib.sha256(_canonical(blob).encode()).hexdigest()
 
 
-class _Cache:
+class StageCache:
     """``provenance/stages.json``: one record per stage (key, inputs, outputs, time)."""
 
     def __init__(self, path: Path, force: bool) -> None:
@@ -102,7 +102,7 @@ class _Cache:
             fh.write("\n")
 
 
-class _Collector(logging.Handler):
+class RunLog(logging.Handler):
     """Keeps the formatted log records of a run (written to run.log at the end)."""
 
     def __init__(self) -> None:
@@ -123,14 +123,14 @@ class _Collector(logging.Handler):
 
 
 @contextlib.contextmanager
-def _run_log(path: Path) -> Iterator[_Collector]:
+def run_log(path: Path) -> Iterator[RunLog]:
     """Collect the log of ``driftband`` (and warnings) at INFO for run.log.
 
     Console handlers keep their level; without any handler a stderr handler at WARNING
     stands in for Python's last-resort one. run.log gets the earlier runs' log followed
     by this run's, written atomically when the run ends (also on errors and interrupts).
     """
-    col = _Collector()
+    col = RunLog()
     extra: list[tuple[logging.Logger, logging.Handler]] = []
     saved: list[tuple[logging.Logger, int]] = []
     fixed: list[logging.Handler] = []
@@ -171,10 +171,10 @@ def _run_log(path: Path) -> Iterator[_Collector]:
                 fh.write(old + "\n".join(col.lines) + "\n")
 
 
-class _Runner:
+class StageRunner:
     """Runs stages through the cache; turns user errors into one StageError."""
 
-    def __init__(self, cache: _Cache, col: _Collector, stages: dict[str, str]) -> None:
+    def __init__(self, cache: StageCache, col: RunLog, stages: dict[str, str]) -> None:
         self.cache = cache
         self.col = col
         self.stages = stages

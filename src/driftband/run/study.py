@@ -17,7 +17,19 @@ from dataclasses import asdict, dataclass, field
 from pathlib import Path
 from typing import Any
 
-from .exceptions import DriftbandError, InputError, OptionError
+from .._options import COMMAND_LINE, OptionSource
+from ..compare.api import check_compare_settings
+from ..defaults import (
+    COMPARE_TESTS,
+    DEFAULT_BLOCK_SIZE,
+    DEFAULT_EDGES_NES,
+    DEFAULT_LEVEL,
+    DEFAULT_MODELS,
+    DEFAULT_SEED,
+    format_edges,
+)
+from ..exceptions import DriftbandError, InputError, OptionError
+from ..fit.bootstrap import check_bootstrap_settings
 
 __all__ = [
     "STUDY_KEYS",
@@ -54,7 +66,7 @@ STUDY_KEYS: dict[str, dict[str, tuple[str, str]]] = {
                              "'outgroup:POP'"),
         "project": ("project", "gene copies to project to: N for all populations or a "
                                "table {POP = N} (default: automatic)"),
-        "block_size": ("posint", "bootstrap block length in bp (default 100000)"),
+        "block_size": ("posint", f"bootstrap block length in bp (default {DEFAULT_BLOCK_SIZE})"),
         "blocks": ("file", "BED of bootstrap blocks (e.g. genes) instead of block_size"),
         "regions": ("strlist", "only these regions: CHROM, CHROM:START-END or BED files"),
         "min_gq": ("int", "genotypes with GQ below this become missing"),
@@ -62,12 +74,13 @@ STUDY_KEYS: dict[str, dict[str, tuple[str, str]]] = {
         "pass_only": ("bool", "keep only records whose FILTER is PASS or '.'"),
     },
     "fit": {
-        "dfe": ("strlist", "DFE families fitted (default gamma, lognormal, discrete; "
+        "dfe": ("strlist", f"DFE families fitted (default {', '.join(DEFAULT_MODELS)}; "
                            "NAME+beneficial adds a beneficial class)"),
         "beneficial": ("bool", "add a beneficial class to every family"),
         "misorientation": ("str", "'free' (default) or 'fixed:RATE'"),
         "equilibrium": ("bool", "no demographic nuisance parameters"),
-        "bands": ("numlist", "band edges on |Ne*s| (default [0, 1, 10, 100])"),
+        "bands": ("numlist", "band edges on |Ne*s| (default "
+                             f"[{format_edges().replace(',', ', ')}])"),
         "neutral": ("str", "neutral class (default 4fold)"),
         "selected": ("str", "selected class (default 0fold)"),
         "populations": ("strlist", "fit only these populations (default: all)"),
@@ -83,8 +96,8 @@ STUDY_KEYS: dict[str, dict[str, tuple[str, str]]] = {
     "compare": {
         "model": ("str", "DFE model of the comparisons: 'auto' (default: lowest AIC "
                          "summed over all populations) or a fitted model"),
-        "tests": ("strlist", "tests (default all: shared_dfe_lrt, "
-                             "neutral_share_difference, ne_only_lrt); [] for none"),
+        "tests": ("strlist", f"tests (default all: {', '.join(COMPARE_TESTS)}); [] for "
+                             "none"),
         "adjust": ("str", "multiple-testing adjustment (default holm)"),
         "pairs": ("strlist", "pairs as 'A:B' (default: every pair)"),
         "relative_mutation_rate": ("floattable", "{POP = R}: mutation rate relative to "
@@ -92,8 +105,6 @@ STUDY_KEYS: dict[str, dict[str, tuple[str, str]]] = {
     },
 }
 
-DEFAULT_DFE = ("gamma", "lognormal", "discrete")
-DEFAULT_TESTS = ("shared_dfe_lrt", "neutral_share_difference", "ne_only_lrt")
 _NAME_RE = re.compile(r"^[A-Za-z0-9][A-Za-z0-9_.-]*$")
 _FILE_KEYS = ("vcf", "popmap", "sites", "fasta", "gff", "callable", "blocks")
 
@@ -117,7 +128,7 @@ class Dataset:
     callable: str | None = None
     ancestral: str = "aa"
     project: int | dict[str, int] | None = None
-    block_size: int = 100_000
+    block_size: int = DEFAULT_BLOCK_SIZE
     blocks: str | None = None
     regions: list[str] | None = None
     min_gq: int | None = None
@@ -145,11 +156,11 @@ class Dataset:
 class FitSettings:
     """Options of the fit stage."""
 
-    dfe: tuple[str, ...] = DEFAULT_DFE
+    dfe: tuple[str, ...] = DEFAULT_MODELS
     beneficial: bool = False
     misorientation: str = "free"
     equilibrium: bool = False
-    bands: tuple[float, ...] = (0.0, 1.0, 10.0, 100.0)
+    bands: tuple[float, ...] = DEFAULT_EDGES_NES
     neutral: str = "4fold"
     selected: str = "0fold"
     populations: list[str] | None = None
@@ -160,8 +171,8 @@ class BootstrapSettings:
     """Options of the bootstrap stage (``workers`` does not change the results)."""
 
     replicates: int = 100
-    level: float = 0.95
-    seed: int = 1
+    level: float = DEFAULT_LEVEL
+    seed: int = DEFAULT_SEED
     workers: int | None = None
     models: str = "best"
 
@@ -171,7 +182,7 @@ class CompareSettings:
     """Options of the compare stage."""
 
     model: str = "auto"
-    tests: tuple[str, ...] = DEFAULT_TESTS
+    tests: tuple[str, ...] = COMPARE_TESTS
     adjust: str = "holm"
     pairs: list[str] | None = None
     relative_mutation_rate: dict[str, float] = field(default_factory=dict)
@@ -297,6 +308,12 @@ class _Where:
         if self.path is None:
             return OptionError(message)
         return InputError(message, self.path, self.line(section, key))
+
+    def source(self, section: str) -> OptionSource:
+        """The section as an :class:`OptionSource` (command-line flags when no file)."""
+        if self.path is None:
+            return COMMAND_LINE
+        return OptionSource(section, self.path, self.lines)
 
 
 def _value(where: _Where, section: str, key: str, v: Any, kind: str) -> Any:
@@ -490,16 +507,13 @@ def study_from_dict(doc: dict[str, Any], source: str | os.PathLike | None = None
             raise where.error("fit", "dfe", f"{where.name('fit', 'dfe')} names no model")
     if "tests" in comp:
         comp["tests"] = tuple(comp["tests"])
-        bad = [t for t in comp["tests"] if t not in DEFAULT_TESTS]
-        if bad:
-            raise where.error("compare", "tests", f"unknown test {bad[0]!r} (choose from "
-                                                  f"{', '.join(DEFAULT_TESTS)})")
+    check_compare_settings(comp.get("tests", ()), comp.get("adjust", "holm"),
+                           comp.get("pairs"), where.source("compare"))
     if "models" in boot and boot["models"] not in ("best", "all"):
         raise where.error("bootstrap", "models", f"{where.name('bootstrap', 'models')} must "
                                                  f"be 'best' or 'all', not {boot['models']!r}")
-    if "level" in boot and not 0.5 < boot["level"] < 1.0:
-        raise where.error("bootstrap", "level", f"{where.name('bootstrap', 'level')} must "
-                                                "lie between 0.5 and 1, e.g. 0.95")
+    check_bootstrap_settings(boot.get("replicates", 0), boot.get("level", DEFAULT_LEVEL),
+                             where.source("bootstrap"))
     default_name = Path(src).name.split(".")[0] if src else datasets[0].name
     out_dir = _resolve(base_dir, st["out_dir"]) if "out_dir" in st else None
     return Study(name=st.get("name", default_name), datasets=datasets,

@@ -1,0 +1,241 @@
+"""Tests between populations (no I/O): shared DFE, neutral-band share, "only Ne differs".
+
+For a pair of populations A, B and one DFE family:
+
+``shared_dfe_lrt``
+    Likelihood-ratio test of one DFE shared by both (each keeps its own θ, nuisance factors
+    and misorientation rate) against separate DFEs; χ² with as many degrees of freedom as
+    the family has DFE parameters.
+``neutral_share_difference``
+    share_B − share_A of new selected-class mutations in the effectively neutral band, with
+    the percentile interval of the bootstrap differences and a two-sided bootstrap p-value
+    (2·min of the tail fractions, (k+1)/(B+1) rule). Needs fits made with ``--bootstrap``.
+``ne_only_lrt``
+    Both populations share one distribution of s and differ only in Ne, so the DFE on
+    S = 4·Ne·s of B is that of A scaled by ρ = Ne_B/Ne_A. ρ is taken from the ratio of
+    neutral diversity π_S (equal mutation rates unless relative rates are given:
+    ρ = (π_B/μ_B)/(π_A/μ_A)) and held fixed. The constrained joint fit is tested against
+    separate DFEs (χ², df = DFE parameters); the predicted neutral share of B is reported
+    beside the observed one.
+
+This module runs the tests of one pair and does no I/O; :mod:`driftband.compare.api`
+runs every pair and adjusts the p-values across pairs.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+from scipy import stats
+
+from ..defaults import COMPARE_TESTS
+from ..exceptions import InputError, OptionError
+from ..fit.likelihood import Objective, SpectrumPair
+from ..fit.mle import FitResult
+from ..fit.models import DfeModel
+from ..fit.optimize import minimize_multistart
+from ..fit.options import FitOptions
+from ..fit.results import PopulationFit
+from ..prf.dfe import DfeExpectation, band_shares
+from ..spectra.stats import pi_theta_counts
+
+__all__ = ["ComparisonRow", "compare_pair", "neutral_pi", "scale_shift"]
+
+
+
+@dataclass
+class ComparisonRow:
+    """One row of ``compare.tsv``."""
+
+    population_a: str
+    population_b: str
+    test: str
+    model: str
+    statistic: float = float("nan")
+    df: float = float("nan")
+    p_value: float = float("nan")
+    p_adjusted: float = float("nan")
+    estimate: float = float("nan")
+    ci_low: float = float("nan")
+    ci_high: float = float("nan")
+    extra: dict[str, Any] = field(default_factory=dict)
+    note: str = ""
+
+
+def scale_shift(model: DfeModel, log_rho: float) -> np.ndarray:
+    """Shift of the unconstrained DFE vector that multiplies every S by ρ = e^log_rho.
+
+    Only families with a scale parameter can be scaled: gamma (mean S̄), lognormal (μ);
+    a beneficial S_b is scaled too, p_b is kept.
+    """
+    if model.family == "gamma":
+        d = [0.0, log_rho]
+    elif model.family == "lognormal":
+        d = [log_rho, 0.0]
+    else:
+        raise OptionError("the 'only Ne differs' test needs a DFE family with a scale "
+                          "parameter (gamma or lognormal), not 'discrete'")
+    if model.beneficial:
+        d += [0.0, log_rho]
+    return np.array(d)
+
+
+def neutral_pi(data: SpectrumPair) -> float:
+    """π per site of the neutral class (Tajima 1983) from the polymorphic entries."""
+    sfs = np.concatenate([[0.0], data.neutral])
+    return pi_theta_counts(sfs, data.n, data.folded)[0] / data.sites_neutral
+
+
+def _joint_fit(objs: list[Objective], model: DfeModel, shifts: list[np.ndarray],
+               starts: list[np.ndarray]) -> tuple[float, np.ndarray, bool]:
+    """Maximise Σ log L_k(x + shift_k, ε_k) over a shared DFE vector x and per-pop ε.
+
+    Returns the maximum, the maximiser and the optimiser's convergence flag.
+    """
+    k = model.n_free
+    n_eps = [1 if o.free_eps else 0 for o in objs]
+    bounds = list(model.bounds()) + [(-13.8, -0.01)] * sum(n_eps)
+
+    def f(z: np.ndarray) -> float:
+        x = z[:k]
+        tot, j = 0.0, k
+        for o, sh, ne in zip(objs, shifts, n_eps):
+            v = np.concatenate([x + sh, z[j:j + ne]])
+            j += ne
+            tot += o(v)
+            if tot >= 1e299:
+                return 1e300
+        return tot
+
+    opt = minimize_multistart(f, starts, bounds, polish="always")
+    return -opt.fun, opt.x, opt.success
+
+
+def _starts(model: DfeModel, fa: FitResult, fb: FitResult, objs: list[Objective],
+            shifts: list[np.ndarray]) -> list[np.ndarray]:
+    """Joint starts: each population's own estimate (shifted back) and the model grid."""
+    k = model.n_free
+    xa, xb = (np.asarray(f.x, dtype=float) for f in (fa, fb))
+    eps_part = [x[k:] for x, o in zip((xa, xb), objs) if o.free_eps]
+    eps_vec = np.concatenate(eps_part) if eps_part else np.empty(0)
+    base = [xa[:k] - shifts[0], xb[:k] - shifts[1]]
+    base += [s for s in model.starts()[::3]]
+    return [np.concatenate([b, eps_vec]) for b in base]
+
+
+def _not_converged(rows: list[ComparisonRow], converged: bool) -> None:
+    if not converged:
+        rows[-1].note += "; the joint fit did not converge (treat the test with caution)"
+
+
+def compare_pair(pop_a: PopulationFit, pop_b: PopulationFit, model: DfeModel,
+                 options: FitOptions, relative_mu: dict[str, float] | None = None,
+                 tests: tuple[str, ...] = COMPARE_TESTS,
+                 expectations: dict[int, DfeExpectation] | None = None,
+                 ) -> list[ComparisonRow]:
+    """Run the requested tests for one pair of populations.
+
+    Parameters
+    ----------
+    pop_a, pop_b : PopulationFit
+        The two populations' fits (with their bootstrap for the share difference).
+    model : DfeModel
+        The family compared (it must have been fitted to both).
+    options : FitOptions
+        The fit options (misorientation, equilibrium, band edges).
+    relative_mu : dict, optional
+        Relative mutation rates per population (default 1).
+    tests : tuple of str
+    expectations : dict, optional
+        Cache n → DfeExpectation.
+
+    Returns
+    -------
+    list of ComparisonRow
+    """
+    expectations = {} if expectations is None else expectations
+    name_a, name_b = pop_a.population, pop_b.population
+    for pf in (pop_a, pop_b):
+        if model.name not in pf.fits:
+            raise InputError(f"population {pf.population!r} has no fit of model "
+                             f"{model.name!r} (it has {', '.join(pf.fits)}); choose one "
+                             "with --model")
+    fa, fb = pop_a.fits[model.name], pop_b.fits[model.name]
+    edges = options.edges_nes
+    da, db = pop_a.data, pop_b.data
+
+    def objective(d: SpectrumPair) -> Objective:
+        ex = expectations.setdefault(d.n, DfeExpectation(d.n))
+        return Objective(d, model, eps=options.eps, equilibrium=options.equilibrium,
+                         expectation=ex)
+
+    ll_sep = float(fa.loglik) + float(fb.loglik)
+    rows: list[ComparisonRow] = []
+    df = model.n_free
+    if "shared_dfe_lrt" in tests:
+        objs = [objective(da), objective(db)]
+        zero = [np.zeros(df), np.zeros(df)]
+        ll_joint, z, ok = _joint_fit(objs, model, zero, _starts(model, fa, fb, objs, zero))
+        stat = max(0.0, 2.0 * (ll_sep - ll_joint))
+        shared = model.to_dfe(z[:df])
+        rows.append(ComparisonRow(
+            name_a, name_b, "shared_dfe_lrt", model.name, stat, df,
+            float(stats.chi2.sf(stat, df)),
+            estimate=float(band_shares(shared, edges)[0]),
+            extra={"loglik_separate": ll_sep, "loglik_shared": ll_joint},
+            note="estimate: neutral-band share under the shared DFE"))
+        _not_converged(rows, ok)
+    if "neutral_share_difference" in tests:
+        rows.append(_share_difference(pop_a, pop_b, model.name))
+    if "ne_only_lrt" in tests:
+        mu = relative_mu or {}
+        rho = (neutral_pi(db) / mu.get(name_b, 1.0)) / (neutral_pi(da) / mu.get(name_a, 1.0))
+        shift_b = scale_shift(model, float(np.log(rho)))
+        objs = [objective(da), objective(db)]
+        shifts = [np.zeros(df), shift_b]
+        ll_c, z, ok = _joint_fit(objs, model, shifts, _starts(model, fa, fb, objs, shifts))
+        stat = max(0.0, 2.0 * (ll_sep - ll_c))
+        pred_b = float(band_shares(model.to_dfe(z[:df] + shift_b), edges)[0])
+        pred_a = float(band_shares(model.to_dfe(z[:df]), edges)[0])
+        assumption = ("equal mutation rates" if not mu else
+                      "relative mutation rates " + ", ".join(f"{k}={v:g}" for k, v in mu.items()))
+        rows.append(ComparisonRow(
+            name_a, name_b, "ne_only_lrt", model.name, stat, df,
+            float(stats.chi2.sf(stat, df)), estimate=float(rho),
+            extra={"ne_ratio": float(rho), "predicted_share_a": pred_a,
+                   "predicted_share_b": pred_b, "observed_share_a": float(fa.shares[0]),
+                   "observed_share_b": float(fb.shares[0]), "loglik_constrained": ll_c,
+                   "loglik_separate": ll_sep},
+            note=f"estimate: Ne_B/Ne_A from neutral pi ratio, assuming {assumption}"))
+        _not_converged(rows, ok)
+    return rows
+
+
+def _share_difference(pop_a: PopulationFit, pop_b: PopulationFit,
+                      model: str) -> ComparisonRow:
+    """share_B − share_A with its paired-bootstrap interval and p-value."""
+    sa = float(pop_a.fits[model].shares[0])
+    sb = float(pop_b.fits[model].shares[0])
+    row = ComparisonRow(pop_a.population, pop_b.population, "neutral_share_difference",
+                        model, estimate=sb - sa, extra={"share_a": sa, "share_b": sb})
+    ba, bb = pop_a.model_bootstrap(model), pop_b.model_bootstrap(model)
+    if ba is None or bb is None or not ba.shares.size or not bb.shares.size:
+        row.note = "no bootstrap in the fit files: rerun 'driftband fit' with --bootstrap B"
+        return row
+    xa, xb = ba.shares[:, 0], bb.shares[:, 0]
+    m = min(xa.size, xb.size)
+    d = xb[:m] - xa[:m]
+    d = d[np.isfinite(d)]
+    level = pop_a.bootstrap.level if pop_a.bootstrap is not None else 0.95
+    a = (1 - level) / 2
+    row.ci_low, row.ci_high = (float(v) for v in np.quantile(d, [a, 1 - a]))
+    tail = min(np.sum(d <= 0), np.sum(d >= 0))
+    row.p_value = float(min(1.0, 2.0 * (tail + 1) / (d.size + 1)))
+    row.statistic = float((sb - sa) / np.std(d, ddof=1)) if d.size > 1 else np.nan
+    row.note = f"bootstrap: {d.size} replicates, level {level:g}"
+    if tail == 0:
+        row.note += (f"; no replicate crossed zero, so p is at the floor "
+                     f"2/(B+1) = {row.p_value:.2g} of this B")
+    return row
