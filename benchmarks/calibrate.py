@@ -33,11 +33,11 @@ import numpy as np
 from scipy.special import gammainc
 
 from driftband.compare import compare_pair
-from driftband.fit.api import FitOptions, fit_population
+from driftband.fit.api import fit_population
 from driftband.fit.bootstrap import bootstrap_fits
-from driftband.fit.io import fit_document
 from driftband.fit.likelihood import SpectrumPair
 from driftband.fit.models import DfeModel
+from driftband.fit.options import FitOptions
 from driftband.simulate import build_populations, parse_dfe, simulate_study
 
 SHAPE, MEAN_S = 0.3, 200.0  # on S at the first population's size
@@ -68,13 +68,11 @@ def one_replicate(args) -> dict[str, float]:
         pf.dataset = "sim"
         fits.append(pf)
     bootstrap_fits(fits, ss.populations, opts, B, seed=rep, workers=1)
-    doc = fit_document(fits, opts.to_dict(), {})
-    rows = compare_pair("A", "B", doc["populations"]["A"], doc["populations"]["B"],
-                        DfeModel("gamma"), doc["options"])
+    rows = compare_pair(fits[0], fits[1], DfeModel("gamma"), opts)
     out = {}
     tv = truth(scenario)
     for pf in fits:
-        lo, hi = pf.bootstrap["models"]["gamma"]["shares_ci"][0]
+        lo, hi = pf.model_bootstrap("gamma").shares_ci[0]
         out[f"cover_{pf.population}"] = float(lo <= tv[pf.population] <= hi)
         out[f"share_{pf.population}"] = float(pf.best.shares[0])
     for r in rows:

@@ -385,7 +385,8 @@ def test_user_error_in_a_worker_is_one_line(tmp_path, capsys):
 @pytest.fixture(scope="module")
 def fitted(tmp_path_factory):
     """Point estimates of a gamma DFE on a simulated study with 24 blocks."""
-    from driftband.fit.api import FitOptions, fit_population, pool_populations
+    from driftband.fit.api import LabelledSpectra, fit_spectra
+    from driftband.fit.options import FitOptions
     from driftband.spectra.io import read_spectra
 
     d = tmp_path_factory.mktemp("pboot")
@@ -395,18 +396,14 @@ def fitted(tmp_path_factory):
                  "-q"]) == 0
     options = FitOptions(eps=0.0)   # gamma DFE, no misorientation: quick refits
     ss = read_spectra(out)
-    pairs = pool_populations([(str(out), "", ss)], options)
-    fits = []
-    for name, label, data in pairs:
-        pf = fit_population(data, options, name)
-        pf.dataset = label
-        fits.append(pf)
+    fits = fit_spectra([LabelledSpectra(str(out), ss)], options)
     return fits, dict(ss.populations), options
 
 
 def test_bootstrap_same_for_1_and_2_workers_and_cluster(fitted, cluster):
     import copy
 
+    from driftband._io import json_ready
     from driftband.fit.bootstrap import bootstrap_fits, resample_indices
 
     fits, pops, options = fitted
@@ -415,7 +412,7 @@ def test_bootstrap_same_for_1_and_2_workers_and_cluster(fitted, cluster):
                     ("dask", {"scheduler": cluster.scheduler_address})):
         f = copy.deepcopy(fits)
         bootstrap_fits(f, pops, options, replicates=8, seed=5, batch=2, **kw)
-        runs[key] = json.dumps(f[0].bootstrap)
+        runs[key] = json.dumps(json_ready(f[0].bootstrap.to_dict()))
     assert runs["w1"] == runs["w2"] == runs["dask"]
     boot = json.loads(runs["w1"])["models"]["gamma"]
     assert boot["replicates"] == 8 and len(boot["shares"]) == 8

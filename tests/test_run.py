@@ -22,6 +22,7 @@ from scipy import stats
 from driftband import run as runmod
 from driftband._io import atomic_output
 from driftband.cli import main
+from driftband.run import driver as run_driver
 
 ROOT = Path(__file__).resolve().parents[1]
 EX = ROOT / "example_vcfs"
@@ -274,7 +275,7 @@ def test_several_datasets_force_and_interrupted_resume(demo_run, tmp_path, monke
             fh.write("<html><body>half")
             raise KeyboardInterrupt
 
-    monkeypatch.setattr(runmod, "stage_report", interrupted)
+    monkeypatch.setattr(run_driver, "stage_report", interrupted)
     with pytest.raises(KeyboardInterrupt):
         runmod.run_study(runmod.read_study(study), out, force=True, workers=2)
     assert _sha(out / "report.html") == old_report  # the old file, not a half-written one
