@@ -169,7 +169,7 @@ class SitePlan:
 
     def regions(self, size: int, chroms: Iterable[str] | None = None) -> list[tuple[str, int, int]]:
         """Windows ``[k·size, (k+1)·size)`` that hold callable sites, in plan order."""
-        out = []
+        out: list[tuple[str, int, int]] = []
         for c in (self.chroms if chroms is None else chroms):
             cs = self.chroms.get(c)
             if cs is None or not cs.starts.size:
@@ -262,10 +262,10 @@ def parse_regions(items: Sequence[str]) -> IntervalSet:
     for it in items:
         if os.path.isfile(it):
             for name_map in read_bed(it).values():
-                for c, (s, e) in name_map.items():
+                for c, (bed_s, bed_e) in name_map.items():
                     d = chroms.setdefault(c, ([], []))
-                    d[0].extend(s)
-                    d[1].extend(e)
+                    d[0].extend(bed_s)
+                    d[1].extend(bed_e)
             continue
         m = _REGION.match(it)
         if not m:
