@@ -145,8 +145,9 @@ class _Progress:
 
 def run(args: argparse.Namespace) -> int:
     """Run ``driftband spectra``."""
-    from ..spectra.build import build_spectra, summary_lines
+    from ..spectra.build import build_spectra
     from ..spectra.io import write_spectra_json, write_spectra_tsv
+    from ..spectra.summary import summary_lines
 
     outs = [args.output, args.tsv]
     if args.tsv is not None and args.tsv == args.output:
