@@ -22,7 +22,9 @@ from __future__ import annotations
 
 import logging
 import os
+import threading
 from collections.abc import Callable, Mapping, Sequence
+from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
@@ -33,7 +35,7 @@ from ..sites.bed import IntervalSet, SiteClasses, read_mask, read_site_classes
 from ..variants.popmap import Popmap, assign_samples, read_popmap
 from ..variants.vcf import VcfSource
 from ._types import Block, SpectraSet
-from .counting import RegionCounts, count_stream, make_design
+from .counting import CountDesign, RegionCounts, count_stream, make_design
 from .plan import (
     SitePlan,
     chrom_mismatch_hint,
@@ -43,17 +45,45 @@ from .plan import (
 )
 from .projection import DEFAULT_KEEP_FRACTION, spectra_from_counts
 
-__all__ = ["build_spectra"]
+__all__ = ["SpectraOptions", "build_spectra"]
 
 log = logging.getLogger("driftband")
 
 
-def _as_popmap(x) -> Popmap:
-    return x if isinstance(x, Popmap) else read_popmap(x)
+@dataclass(frozen=True)
+class SpectraOptions:
+    """How :func:`build_spectra` counts and assembles: its options besides the inputs and
+    the run-time hooks (``progress``, ``scheduler``).
 
+    The attributes are the keyword arguments of :func:`build_spectra` of the same names,
+    ``regions`` as a tuple.
+    """
 
-def _as_classes(x) -> SiteClasses:
-    return x if isinstance(x, SiteClasses) else read_site_classes(x)
+    ancestral: str
+    project: int | Mapping[str, int] | None
+    block_size: int
+    blocks: str | os.PathLike | None
+    regions: tuple[str, ...] | None
+    min_gq: int | None
+    min_dp: int | None
+    pass_only: bool
+    region_size: int
+    keep: float
+    checksums: bool
+    workers: int | None
+
+    def provenance_options(self) -> dict[str, Any]:
+        """The options as recorded in the provenance of the spectra file."""
+        project = self.project
+        return {"ancestral": self.ancestral,
+                "project": project if not isinstance(project, Mapping) else dict(project),
+                "block_size": None if self.blocks else self.block_size,
+                "blocks": None if self.blocks is None else os.fspath(self.blocks),
+                "regions": list(self.regions) if self.regions else None,
+                "min_gq": self.min_gq, "min_dp": self.min_dp, "pass_only": self.pass_only,
+                "keep_fraction": self.keep,
+                "projection_rule": (f"largest n such that >= {self.keep:.0%} of usable "
+                                    "records have n or more called gene copies")}
 
 
 def build_spectra(vcf: str | os.PathLike, popmap: Popmap | str | os.PathLike,
@@ -112,18 +142,22 @@ def build_spectra(vcf: str | os.PathLike, popmap: Popmap | str | os.PathLike,
     -------
     SpectraSet
     """
+    # imported here: the parallel layer loads only when spectra are counted
     from .._parallel import connect, resolve_workers, scheduler_address
     from .parallel import check_region_size
 
     check_region_size(region_size)
     resolve_workers(workers)
+    opts = SpectraOptions(ancestral=ancestral, project=project, block_size=block_size,
+                          blocks=blocks, regions=None if regions is None else tuple(regions),
+                          min_gq=min_gq, min_dp=min_dp, pass_only=pass_only,
+                          region_size=region_size, keep=keep, checksums=checksums,
+                          workers=workers)
     client = connect(scheduler) if isinstance(scheduler, str) else scheduler  # fail fast
     src = None
     try:
         src = VcfSource(vcf)
-        ss = _build(src, vcf, popmap, sites, callable_mask, ancestral, project, block_size,
-                    blocks, regions, min_gq, min_dp, pass_only, region_size, keep, progress,
-                    checksums, workers, client)
+        ss = _build(src, vcf, popmap, sites, callable_mask, opts, progress, client)
     finally:
         if src is not None:
             src.close()
@@ -137,24 +171,23 @@ def build_spectra(vcf: str | os.PathLike, popmap: Popmap | str | os.PathLike,
     return ss
 
 
-def _build(src, vcf, popmap, sites, callable_mask, ancestral, project, block_size, blocks,
-           regions, min_gq, min_dp, pass_only, region_size, keep, progress, checksums,
-           workers=1, scheduler=None):
-    digest = _Checksum(vcf if checksums else None)   # hashed while counting runs
+def _as_popmap(x: Popmap | str | os.PathLike) -> Popmap:
+    return x if isinstance(x, Popmap) else read_popmap(x)
+
+
+def _as_classes(x: SiteClasses | str | os.PathLike) -> SiteClasses:
+    return x if isinstance(x, SiteClasses) else read_site_classes(x)
+
+
+def _build(src: VcfSource, vcf: str | os.PathLike, popmap: Popmap | str | os.PathLike,
+           sites: SiteClasses | str | os.PathLike,
+           callable_mask: IntervalSet | str | os.PathLike | None,
+           opts: SpectraOptions, progress: Callable[[int, int, int], None] | None,
+           scheduler: Any) -> SpectraSet:
+    """:func:`build_spectra` on an open VCF; ``provenance`` without ``execution``."""
+    digest = _Checksum(vcf if opts.checksums else None)   # hashed while counting runs
     pm = _as_popmap(popmap)
-    kind, _, og = ancestral.partition(":")
-    if kind == "outgroup" and not og:
-        raise OptionError("--ancestral outgroup:POP needs the outgroup population's name")
-    if kind == "aa" and "AA" not in src.header.info:
-        raise InputError("--ancestral aa needs INFO/AA, but the header declares no "
-                         "##INFO=<ID=AA> field; use --ancestral fold or outgroup:POP", src.path)
-    if "GT" not in src.header.formats:
-        raise InputError("the VCF has no GT field (no ##FORMAT=<ID=GT> header line); spectra "
-                         "need genotypes", src.path)
-    for name, v, key in (("--min-dp", min_dp, "DP"), ("--min-gq", min_gq, "GQ")):
-        if v is not None and key not in src.header.formats:
-            raise InputError(f"{name} given but the header declares no FORMAT/{key}",
-                             src.path)
+    og = _check_header(src, opts)
     assign = assign_samples(pm, src.header.samples, src.path, og or None)
     if assign.ignored:
         shown = ", ".join(assign.ignored[:10]) + (" ..." if len(assign.ignored) > 10 else "")
@@ -165,11 +198,12 @@ def _build(src, vcf, popmap, sites, callable_mask, ancestral, project, block_siz
     if callable_mask is not None:
         mask = callable_mask if isinstance(callable_mask, IntervalSet) else read_mask(
             callable_mask)
-    reg = parse_regions(regions) if regions else None
-    blk = read_blocks(blocks) if blocks is not None else None
-    design = make_design(assign, sorted(sc.classes), ancestral, min_dp, min_gq, pass_only)
+    reg = parse_regions(opts.regions) if opts.regions else None
+    blk = read_blocks(opts.blocks) if opts.blocks is not None else None
+    design = make_design(assign, sorted(sc.classes), opts.ancestral, opts.min_dp, opts.min_gq,
+                         opts.pass_only)
     vchroms = src.chroms
-    plan = make_plan(sc, vchroms, mask, reg, block_size, blk, src.header.contig_lengths)
+    plan = make_plan(sc, vchroms, mask, reg, opts.block_size, blk, src.header.contig_lengths)
     bed_path = sc.path or "site classes"
     if reg is not None:
         unknown = [c for c in reg.chroms if vchroms and c not in vchroms]
@@ -184,72 +218,110 @@ def _build(src, vcf, popmap, sites, callable_mask, ancestral, project, block_siz
             raise InputError(f"class {c!r} has no callable sites after intersecting with the "
                              "mask, regions and blocks", bed_path)
     if src.indexed:
-        plan = plan.restrict(vchroms)
         from .parallel import count_regions
 
-        total = count_regions(src, design, plan, region_size, workers=workers,
+        plan = plan.restrict(vchroms)
+        total = count_regions(src, design, plan, opts.region_size, workers=opts.workers,
                               scheduler=scheduler, progress=progress)
     else:
-        if scheduler is not None or workers != 1:
-            (log.warning if scheduler is not None else log.info)(
-                "%s is not indexed: counting it as one stream in this process (index it "
-                "with tabix -p vcf or bcftools index to count regions in parallel)", src.path)
-        state = {"n": 0}
-
-        def tick(_chrom, k):
-            state["n"] += k
-            if progress is not None:
-                progress(0, 0, state["n"])
-
-        total = count_stream(src, design, plan, region_size, tick)
-        present = list(dict.fromkeys([*src.header.contigs, *sorted(total.chroms)]))
-        if not known_now:
-            _check_chroms(plan, sc, present, bed_path, src.path)
-        keep_chroms = [c for c in plan.chroms if c in set(present)]
-        if len(keep_chroms) < len(plan.chroms):
-            old_blocks = plan.blocks
-            plan = plan.restrict(keep_chroms)
-            total = _renumber(total, old_blocks, plan.blocks)
+        total, plan = _count_unindexed(src, design, plan, opts, progress, scheduler,
+                                       None if known_now else (sc, bed_path))
     if total.records == 0:
         raise InputError("the VCF holds no records in the regions with class sites",
                          src.path)
-    ss = spectra_from_counts(total, design, plan.blocks, project, keep)
-    opts = {"ancestral": ancestral, "project": project if not isinstance(project, Mapping)
-            else dict(project), "block_size": None if blocks else block_size,
-            "blocks": None if blocks is None else os.fspath(blocks),
-            "regions": list(regions) if regions else None, "min_gq": min_gq,
-            "min_dp": min_dp, "pass_only": pass_only, "keep_fraction": keep,
-            "projection_rule": (f"largest n such that >= {keep:.0%} of usable records have "
-                                "n or more called gene copies")}
-    rec = file_record if checksums else (lambda p: None if p is None else
-                                         {"path": os.path.abspath(os.fspath(p))
-                                          if os.fspath(p) != "-" else "-"})
+    ss = spectra_from_counts(total, design, plan.blocks, opts.project, opts.keep)
+    ss.provenance = _provenance(opts, digest, vcf, pm, sc, callable_mask, total, design,
+                                assign.ignored)
+    return ss
+
+
+def _check_header(src: VcfSource, opts: SpectraOptions) -> str:
+    """Check that the VCF header has what the options need; the outgroup's name or ''."""
+    kind, _, og = opts.ancestral.partition(":")
+    if kind == "outgroup" and not og:
+        raise OptionError("--ancestral outgroup:POP needs the outgroup population's name")
+    if kind == "aa" and "AA" not in src.header.info:
+        raise InputError("--ancestral aa needs INFO/AA, but the header declares no "
+                         "##INFO=<ID=AA> field; use --ancestral fold or outgroup:POP", src.path)
+    if "GT" not in src.header.formats:
+        raise InputError("the VCF has no GT field (no ##FORMAT=<ID=GT> header line); spectra "
+                         "need genotypes", src.path)
+    for name, v, key in (("--min-dp", opts.min_dp, "DP"), ("--min-gq", opts.min_gq, "GQ")):
+        if v is not None and key not in src.header.formats:
+            raise InputError(f"{name} given but the header declares no FORMAT/{key}",
+                             src.path)
+    return og
+
+
+def _count_unindexed(src: VcfSource, design: CountDesign, plan: SitePlan,
+                     opts: SpectraOptions, progress: Callable[[int, int, int], None] | None,
+                     scheduler: Any, check: tuple[SiteClasses, str] | None
+                     ) -> tuple[RegionCounts, SitePlan]:
+    """Count a file without an index as one stream, in this process.
+
+    ``check`` (site classes, BED name) when the VCF's chromosomes are known only after the
+    stream: they are checked against the BED then. Returns the counts and the plan,
+    restricted to the chromosomes of the VCF (the block indices of the counts renumbered).
+    """
+    if scheduler is not None or opts.workers != 1:
+        (log.warning if scheduler is not None else log.info)(
+            "%s is not indexed: counting it as one stream in this process (index it "
+            "with tabix -p vcf or bcftools index to count regions in parallel)", src.path)
+    state = {"n": 0}
+
+    def tick(_chrom: str, k: int) -> None:
+        state["n"] += k
+        if progress is not None:
+            progress(0, 0, state["n"])
+
+    total = count_stream(src, design, plan, opts.region_size, tick)
+    present = list(dict.fromkeys([*src.header.contigs, *sorted(total.chroms)]))
+    if check is not None:
+        _check_chroms(plan, check[0], present, check[1], src.path)
+    keep_chroms = [c for c in plan.chroms if c in set(present)]
+    if len(keep_chroms) < len(plan.chroms):
+        old_blocks = plan.blocks
+        plan = plan.restrict(keep_chroms)
+        total = _renumber(total, old_blocks, plan.blocks)
+    return total, plan
+
+
+def _provenance(opts: SpectraOptions, digest: _Checksum, vcf: str | os.PathLike, pm: Popmap,
+                sc: SiteClasses, callable_mask: IntervalSet | str | os.PathLike | None,
+                total: RegionCounts, design: CountDesign, ignored: Sequence[str]
+                ) -> dict[str, Any]:
+    """The provenance of the spectra file: options, inputs and what was counted."""
+    def rec(p: str | os.PathLike | None) -> dict[str, Any] | None:
+        if opts.checksums:
+            return file_record(p)
+        if p is None:
+            return None
+        return {"path": os.path.abspath(os.fspath(p)) if os.fspath(p) != "-" else "-"}
+
     inputs = {"vcf": digest.result() or rec(vcf), "popmap": rec(pm.path),
               "sites": rec(sc.path),
               "callable": rec(callable_mask) if isinstance(callable_mask, str | os.PathLike)
-              else None, "blocks": rec(blocks)}
-    prov = provenance(opts, {k: v for k, v in inputs.items() if v is not None})
+              else None, "blocks": rec(opts.blocks)}
+    prov = provenance(opts.provenance_options(),
+                      {k: v for k, v in inputs.items() if v is not None})
     prov["counts"] = {"records_read": total.records,
                       "records_used": {p: int(r[:, 4].sum()) for p, r in total.rows.items()},
-                      "ignored_samples": list(assign.ignored),
+                      "ignored_samples": list(ignored),
                       "samples": {p: int(c.size) for p, c in zip(design.populations,
                                                                   design.columns)},
                       "outgroup": design.outgroup}
-    ss.provenance = prov
-    return ss
+    return prov
 
 
 class _Checksum:
     """SHA-256 of the VCF for the provenance, computed in a helper thread while counting
     runs (it is I/O bound, and file reads and hashlib release the GIL)."""
 
-    def __init__(self, path) -> None:
-        import threading
-
+    def __init__(self, path: str | os.PathLike | None) -> None:
         self.path = None if path is None or os.fspath(path) == "-" else os.fspath(path)
         self.record: dict[str, Any] | None = None
         self.error: BaseException | None = None
-        self._t = None
+        self._t: threading.Thread | None = None
         if self.path is not None:
             self._t = threading.Thread(target=self._run, name="driftband-sha256", daemon=True)
             self._t.start()
@@ -289,7 +361,7 @@ def _renumber(total: RegionCounts, old: Sequence[Block], new: Sequence[Block]) -
     pos = {(b.chrom, b.start, b.end, b.name): i for i, b in enumerate(new)}
     remap = np.array([pos.get((b.chrom, b.start, b.end, b.name), -1) for b in old], np.int64)
 
-    def fix(a, col=1):
+    def fix(a: np.ndarray, col: int = 1) -> np.ndarray:
         if not a.size:
             return a
         a = a.copy()
