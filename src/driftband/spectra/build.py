@@ -37,6 +37,7 @@ from ..variants.vcf import VcfSource
 from ._types import Block, SpectraSet
 from .counting import CountDesign, RegionCounts, count_stream, make_design
 from .plan import (
+    DEFAULT_REGION_SIZE,
     SitePlan,
     chrom_mismatch_hint,
     make_plan,
@@ -93,7 +94,7 @@ def build_spectra(vcf: str | os.PathLike, popmap: Popmap | str | os.PathLike,
                   block_size: int = 100_000, blocks: str | os.PathLike | None = None,
                   regions: Sequence[str] | None = None, min_gq: int | None = None,
                   min_dp: int | None = None, pass_only: bool = False,
-                  region_size: int = 5_000_000, keep: float = DEFAULT_KEEP_FRACTION,
+                  region_size: int = DEFAULT_REGION_SIZE, keep: float = DEFAULT_KEEP_FRACTION,
                   progress: Callable[[int, int, int], None] | None = None,
                   checksums: bool = True, workers: int | None = 1,
                   scheduler: Any = None) -> SpectraSet:

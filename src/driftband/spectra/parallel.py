@@ -26,14 +26,11 @@ from .. import _parallel
 from ..exceptions import InputError, OptionError
 from ..variants.vcf import VcfSource
 from .counting import CountDesign, RegionCounts, count_region
-from .plan import SitePlan
+from .plan import DEFAULT_REGION_SIZE, SitePlan
 
-__all__ = ["DEFAULT_REGION_SIZE", "check_region_size", "count_regions"]
+__all__ = ["check_region_size", "count_regions"]
 
 log = logging.getLogger("driftband")
-
-#: Bases per counting task (``--region-size``).
-DEFAULT_REGION_SIZE = 5_000_000
 
 
 def _count_task(task: tuple) -> RegionCounts:

@@ -21,6 +21,7 @@ from ..sites.bed import IntervalSet, SiteClasses, intersect, merge_intervals, re
 from ._types import Block
 
 __all__ = [
+    "DEFAULT_REGION_SIZE",
     "RegionSites",
     "SitePlan",
     "chrom_mismatch_hint",
@@ -28,6 +29,10 @@ __all__ = [
     "parse_regions",
     "read_blocks",
 ]
+
+#: Bases per region window of :meth:`SitePlan.regions`: one counting task each
+#: (``--region-size``).
+DEFAULT_REGION_SIZE = 5_000_000
 
 
 @dataclass
