@@ -33,7 +33,8 @@ def run_checks() -> list[Check]:
     import scipy
     from scipy.stats import hypergeom
 
-    from driftband.spectra.build import build_spectra, projection_matrix
+    from driftband.spectra.build import build_spectra
+    from driftband.spectra.projection import projection_matrix
 
     src = f"scipy {scipy.__version__} scipy.stats.hypergeom"
     checks = []

@@ -29,10 +29,12 @@ from driftband import _parallel
 from driftband.cli import main
 from driftband.exceptions import InputError, OptionError
 from driftband.sites.bed import read_site_classes
-from driftband.spectra.build import build_spectra, make_design, spectra_from_counts
+from driftband.spectra.build import build_spectra
+from driftband.spectra.counting import RegionCounts, make_design
 from driftband.spectra.io import spectra_to_dict, write_spectra_json
 from driftband.spectra.parallel import _count_task
 from driftband.spectra.plan import make_plan
+from driftband.spectra.projection import spectra_from_counts
 from driftband.variants.popmap import assign_samples, read_popmap
 from driftband.variants.vcf import VcfSource
 from vcf_fixtures import header, random_study, rec, write_text, write_vcf
@@ -307,8 +309,6 @@ def test_killed_worker_loses_nothing_and_counts_nothing_twice(study, tmp_path, w
 
 
 def _empty():
-    from driftband.spectra.build import RegionCounts
-
     return RegionCounts()
 
 

@@ -16,16 +16,14 @@ from scipy.stats import hypergeom
 
 from driftband.exceptions import OptionError
 from driftband.spectra import read_spectra_json
-from driftband.spectra.build import (
-    RegionCounts,
-    build_spectra,
+from driftband.spectra.build import build_spectra
+from driftband.spectra.counting import RegionCounts, count_region, make_design
+from driftband.spectra.plan import make_plan
+from driftband.spectra.projection import (
     choose_sample_size,
-    count_region,
-    make_design,
     projection_matrix,
     spectra_from_counts,
 )
-from driftband.spectra.plan import make_plan
 from driftband.variants.popmap import assign_samples, read_popmap
 from driftband.variants.vcf import VcfSource
 from vcf_fixtures import header, random_study, rec, write_text, write_vcf

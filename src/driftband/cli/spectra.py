@@ -83,7 +83,7 @@ def add_parser(subparsers) -> argparse.ArgumentParser:
                    help="count on the dask.distributed scheduler at ADDRESS, e.g. "
                         "tcp://HOST:8786 (needs driftband[cluster]; every worker must see the "
                         "VCF at the same path; see the README, 'Running on a cluster')")
-    x.add_argument("--region-size", type=int, default=5_000_000, metavar="BP",
+    x.add_argument("--region-size", type=int, metavar="BP",
                    help="bases per counting task; a worker holds one task's records at a "
                         "time (default 5000000)")
     add_common_arguments(p)
@@ -145,8 +145,10 @@ class _Progress:
 
 def run(args: argparse.Namespace) -> int:
     """Run ``driftband spectra``."""
-    from ..spectra.build import build_spectra, summary_lines
+    from ..spectra.build import build_spectra
     from ..spectra.io import write_spectra_json, write_spectra_tsv
+    from ..spectra.plan import DEFAULT_REGION_SIZE
+    from ..spectra.summary import summary_lines
 
     outs = [args.output, args.tsv]
     if args.tsv is not None and args.tsv == args.output:
@@ -160,7 +162,8 @@ def run(args: argparse.Namespace) -> int:
                            project=project, block_size=args.block_size, blocks=args.blocks,
                            regions=args.regions, min_gq=args.min_gq, min_dp=args.min_dp,
                            pass_only=args.pass_only, progress=bar,
-                           region_size=args.region_size, workers=args.workers,
+                           region_size=(DEFAULT_REGION_SIZE if args.region_size is None
+                                        else args.region_size), workers=args.workers,
                            scheduler=args.scheduler)
     finally:
         bar.close()

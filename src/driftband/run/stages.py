@@ -113,7 +113,7 @@ def stage_spectra(dataset: Dataset, sites: str | os.PathLike[str],
     -------
     SpectraSet
     """
-    from ..spectra.build import build_spectra, summary_lines
+    from ..spectra import build_spectra, summary_lines
     from ..spectra.io import write_spectra_json
 
     ss = build_spectra(dataset.vcf, dataset.popmap, sites, callable_mask=dataset.callable,

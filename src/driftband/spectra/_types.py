@@ -1,6 +1,6 @@
 """Plain data objects of the spectra stage: the hand-off point between counting and fitting.
 
-Conventions (DESIGN §2): a spectrum of ``n`` sampled gene copies has ``n + 1`` entries;
+Conventions: a spectrum of ``n`` sampled gene copies has ``n + 1`` entries;
 entry ``i`` counts callable sites of the class with ``i`` derived copies, entry 0 includes
 callable sites absent from the VCF, entry ``n`` counts sites fixed for the derived allele
 in the sample (divergence). A folded spectrum has ``n // 2 + 1`` entries (minor-allele
@@ -13,6 +13,7 @@ from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
+from numpy.typing import ArrayLike
 
 __all__ = ["Block", "ClassSpectrum", "PopulationSpectra", "SpectraSet", "spectrum_length"]
 
@@ -22,7 +23,7 @@ def spectrum_length(n: int, folded: bool) -> int:
     return n // 2 + 1 if folded else n + 1
 
 
-def _counts_array(x) -> np.ndarray:
+def _counts_array(x: ArrayLike) -> np.ndarray:
     """Counts as int64, or float64 when some are not whole numbers (projected spectra)."""
     a = np.asarray(x)
     if a.dtype.kind == "f" and not np.all(a == np.round(a)):

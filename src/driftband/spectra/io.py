@@ -127,7 +127,7 @@ def write_spectra_tsv(ss: SpectraSet, path: str | os.PathLike, force: bool = Fal
                     w.writerow([name, c, pop.n, str(pop.folded).lower(), i, v])
 
 
-def _fail(path, msg: str) -> InputError:
+def _fail(path: str | os.PathLike, msg: str) -> InputError:
     return InputError(msg, path)
 
 
@@ -218,7 +218,7 @@ def read_spectra_tsv(path: str | os.PathLike, folded: bool | None = None) -> Spe
     long = ("count" in header or "count_index" in header) and "sites" in header
     if header[:2] != ["population", "class"]:
         raise InputError("the first two columns must be 'population' and 'class'", path, 1)
-    data: dict[str, dict[str, dict[int, int]]] = {}
+    data: dict[str, dict[str, dict[int, float]]] = {}
     sites: dict[tuple[str, str], int] = {}
     fold_of: dict[str, bool] = {}
     n_of: dict[str, int] = {}
@@ -230,8 +230,8 @@ def read_spectra_tsv(path: str | os.PathLike, folded: bool | None = None) -> Spe
         try:
             if long:
                 rec = dict(zip(header, r))
-                k = int(rec.get("count", rec.get("count_index")))
-                v = float(rec["sites"])
+                k = int(rec["count"] if "count" in rec else rec["count_index"])
+                v: float = float(rec["sites"])
                 v = int(v) if v == int(v) else v
                 if k < 0 or v < 0:
                     raise ValueError("negative value")
@@ -245,7 +245,8 @@ def read_spectra_tsv(path: str | os.PathLike, folded: bool | None = None) -> Spe
             else:
                 total = int(float(r[2]))
                 vals = r[3:]
-                counts = {k: int(float(x)) for k, x in enumerate(vals) if x != ""}
+                counts: dict[int, float] = {k: int(float(x)) for k, x in enumerate(vals)
+                                            if x != ""}
                 if 0 not in counts:
                     counts[0] = total - sum(counts.values())
                 if any(v < 0 for v in counts.values()):
@@ -257,13 +258,12 @@ def read_spectra_tsv(path: str | os.PathLike, folded: bool | None = None) -> Spe
     pops = {}
     for pop, classes in data.items():
         is_folded = fold_of.get(pop, bool(folded))
-        m = max(max(c) for c in classes.values()) + 1 if not long or pop not in n_of else None
         if long and pop in n_of:
             n = n_of[pop]
         elif is_folded:
             raise _fail(path, f"population {pop!r}: folded spectra need an 'n' column")
         else:
-            n = m - 1
+            n = max(max(c) for c in classes.values())
         length = spectrum_length(n, is_folded)
         out = {}
         for cls, counts in classes.items():

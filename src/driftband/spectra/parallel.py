@@ -3,7 +3,7 @@
 The genome is cut into windows of ``region_size`` bases (:meth:`SitePlan.regions`); each
 window that holds callable class sites is one task, ``count_region(vcf, chrom, start,
 end, design, sites)``, that opens the indexed VCF itself and returns summable
-:class:`~driftband.spectra.build.RegionCounts`. A worker holds one region's records and
+:class:`~driftband.spectra.counting.RegionCounts`. A worker holds one region's records and
 counts at a time, so its memory is bounded by the region, not the genome. The counts are
 integers combined in task order in a fixed-shape tree (:func:`driftband._parallel.
 map_reduce`), and projection and assembly come after the sum, so the spectra are the same
@@ -25,15 +25,12 @@ from typing import Any
 from .. import _parallel
 from ..exceptions import InputError, OptionError
 from ..variants.vcf import VcfSource
-from .build import CountDesign, RegionCounts, count_region
-from .plan import SitePlan
+from .counting import CountDesign, RegionCounts, count_region
+from .plan import DEFAULT_REGION_SIZE, SitePlan
 
-__all__ = ["DEFAULT_REGION_SIZE", "check_region_size", "count_regions"]
+__all__ = ["check_region_size", "count_regions"]
 
 log = logging.getLogger("driftband")
-
-#: Bases per counting task (``--region-size``).
-DEFAULT_REGION_SIZE = 5_000_000
 
 
 def _count_task(task: tuple) -> RegionCounts:

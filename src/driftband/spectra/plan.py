@@ -21,6 +21,7 @@ from ..sites.bed import IntervalSet, SiteClasses, intersect, merge_intervals, re
 from ._types import Block
 
 __all__ = [
+    "DEFAULT_REGION_SIZE",
     "RegionSites",
     "SitePlan",
     "chrom_mismatch_hint",
@@ -28,6 +29,10 @@ __all__ = [
     "parse_regions",
     "read_blocks",
 ]
+
+#: Bases per region window of :meth:`SitePlan.regions`: one counting task each
+#: (``--region-size``).
+DEFAULT_REGION_SIZE = 5_000_000
 
 
 @dataclass
@@ -169,7 +174,7 @@ class SitePlan:
 
     def regions(self, size: int, chroms: Iterable[str] | None = None) -> list[tuple[str, int, int]]:
         """Windows ``[k·size, (k+1)·size)`` that hold callable sites, in plan order."""
-        out = []
+        out: list[tuple[str, int, int]] = []
         for c in (self.chroms if chroms is None else chroms):
             cs = self.chroms.get(c)
             if cs is None or not cs.starts.size:
@@ -262,10 +267,10 @@ def parse_regions(items: Sequence[str]) -> IntervalSet:
     for it in items:
         if os.path.isfile(it):
             for name_map in read_bed(it).values():
-                for c, (s, e) in name_map.items():
+                for c, (bed_s, bed_e) in name_map.items():
                     d = chroms.setdefault(c, ([], []))
-                    d[0].extend(s)
-                    d[1].extend(e)
+                    d[0].extend(bed_s)
+                    d[1].extend(bed_e)
             continue
         m = _REGION.match(it)
         if not m:
