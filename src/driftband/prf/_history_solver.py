@@ -24,7 +24,7 @@ Discretisation: fourth-order central differences on a uniform ``y`` grid (second
 the two rows next to the ends, where ``d`` is below 1e-12 of its scale), giving one
 pentadiagonal matrix per selection coefficient; all coefficients of a table are solved at
 once as a block-banded system by LAPACK ``gbtrf``/``gbtrs``. Time: implicit Euler
-extrapolated over the harmonic sequence 1, 2, 3, 4, 5 of sub-steps (Aitken--Neville;
+extrapolated over the harmonic sequence 1, 2, ..., 6 of sub-steps (the default) (Aitken--Neville;
 Deuflhard 1985, Hairer & Wanner 1996 sec. IV.9), which is stiffly accurate for the huge
 diffusion coefficients near the ends, on a mesh graded geometrically from the start of the
 epoch (the new mutation level enters from :math:`y = -\infty` as a front at
@@ -34,6 +34,7 @@ epoch (the new mutation level enters from :math:`y = -\infty` as a front at
 from __future__ import annotations
 
 import math
+from collections.abc import Callable
 
 import numpy as np
 from scipy.linalg import lapack
@@ -136,7 +137,6 @@ def _solve_steps(grid: Grid, v: np.ndarray, dt: np.ndarray, a: float, b: np.ndar
     u = v
     for _ in range(n_sub):
         rhs = u if src is None else u - (h[:, None] * src).reshape(-1)  # d' = A d - G_eq'
-
         u, info = lapack.dgbtrs(lu, _KL, _KU, rhs[:, None], piv)
         u = u[:, 0]
     return u
@@ -163,14 +163,16 @@ def step_mesh(T: float, a_max: float, b_max: float, grid: Grid, rho: float,
     return np.diff(ts)
 
 
-def evolve(grid: Grid, d: np.ndarray, T: float, a_of_t, b: np.ndarray,
-           src_of_t=None, levels: int = 5, rho: float = 0.3, cap_adv: float = 0.5,
+def evolve(grid: Grid, d: np.ndarray, T: float, a_of_t: Callable[[float], float],
+           b: np.ndarray, src_of_t: Callable[[float], np.ndarray] | None = None,
+           levels: int = 5, rho: float = 0.3, cap_adv: float = 0.5,
            cap_nu: float = math.inf, a_max: float | None = None) -> tuple[np.ndarray, int]:
     """Advance departures ``d`` (shape (B, mi)) over an epoch of length ``T``.
 
     ``a_of_t(t)`` is ``1/nu(t)`` (a float; ``t`` from the start of the epoch) and
     ``src_of_t(t)`` the rate of change of the equilibrium profile, ``dG_eq/dt`` (shape
-    (B, mi)), or ``None`` for a constant size. Returns the departures at ``T`` and the number of macro steps.
+    (B, mi)), or ``None`` for a constant size. Returns the departures at ``T`` and the
+    number of macro steps.
     """
     if T <= 0:
         return d, 0

@@ -38,7 +38,7 @@ Method and why
 The forward Wright--Fisher diffusion with selection (Kimura 1964) is solved in the logit
 of the frequency, :math:`y = \ln(x/(1-x))`, by the method of lines
 (:mod:`driftband.prf._history_solver`): fourth-order finite differences in ``y`` and
-implicit Euler extrapolated to fifth order in time (Deuflhard 1985) on a graded mesh,
+implicit Euler extrapolated to sixth order in time (Deuflhard 1985) on a graded mesh,
 with each epoch's equilibrium profile (Sawyer & Hartl 1992) subtracted exactly. This is
 the finite-difference family of Gutenkunst et al. (2009), with three changes that address
 strong selection, the hard part:
@@ -70,7 +70,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
-from typing import Literal, Union
+from typing import Literal
 
 import numpy as np
 from numpy.typing import ArrayLike
@@ -266,7 +266,7 @@ class ExponentialChange:
         return _sim_epochs(changes + [(gens / (2.0 * n_anc), 1.0)], n_anc)
 
 
-History = Union[ConstantSize, OneChange, TwoChanges, ExponentialChange]
+History = ConstantSize | OneChange | TwoChanges | ExponentialChange
 
 _HISTORY_TYPES = (ConstantSize, OneChange, TwoChanges, ExponentialChange)
 
@@ -384,16 +384,19 @@ class HistorySfs:
         for T, nu0, nu1 in epochs:
             d = d + g_eq(nu_prev) - g_eq(nu0)
             if nu0 == nu1:
-                d, _ = _hs.evolve(grid, d, T, lambda t, a=1.0 / nu0: a, b, levels=r.levels,
-                                  rho=r.rho, cap_adv=r.cap_adv)
+                def const_a(t: float, a: float = 1.0 / nu0) -> float:
+                    return a
+
+                d, _ = _hs.evolve(grid, d, T, const_a, b, levels=r.levels, rho=r.rho,
+                                  cap_adv=r.cap_adv)
             else:
                 rate = math.log(nu1 / nu0) / T
-                eps = 1e-4
-
                 def a_of_t(t: float, nu0: float = nu0, rate: float = rate) -> float:
                     return 1.0 / (nu0 * math.exp(rate * t))
 
-                def src(t: float, nu0: float = nu0, rate: float = rate) -> np.ndarray:
+                def src(t: float, nu0: float = nu0, rate: float = rate,
+                        eps: float = 1e-4) -> np.ndarray:
+                    # d/dt of nu w_{nu S}: central difference in ln nu (error ~ eps^2)
                     nu_t = nu0 * math.exp(rate * t)
                     return rate * (g_eq(nu_t * math.exp(eps)) - g_eq(nu_t * math.exp(-eps))
                                    ) / (2 * eps)
