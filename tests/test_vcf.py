@@ -1,20 +1,26 @@
 """The VCF/BCF reader: the vectorised decoder against pysam's own decoding, on every kind
 of input.
 
-Independent reference: pysam (htslib) record decoding, read in the test itself.
+Independent reference: pysam (htslib) record decoding, read in the test itself. Whole
+files are read with ``read_genotype_table`` (reference_checks/genotype_table.py, built on
+the reader's public ``VcfSource.stream`` and ``VariantBatch.genotypes``).
 """
 
 from __future__ import annotations
 
 import io
 import sys
+from pathlib import Path
 
 import numpy as np
 import pysam
 import pytest
 
-from driftband.variants.vcf import VcfSource, read_genotype_table
+from driftband.variants.vcf import VcfSource
 from vcf_fixtures import header, random_study, rec, write_vcf
+
+sys.path.insert(0, str(Path(__file__).resolve().parents[1] / "reference_checks"))
+from genotype_table import read_genotype_table
 
 S4 = ["a", "b", "c", "d"]
 

@@ -4,17 +4,14 @@ vectorised genotype decoder)."""
 from .popmap import Popmap, SampleAssignment, assign_samples, read_popmap
 from .vcf import (
     GenotypeData,
-    GenotypeTable,
     VariantBatch,
     VcfHeader,
     VcfSource,
     open_vcf,
-    read_genotype_table,
 )
 
 __all__ = [
     "GenotypeData",
-    "GenotypeTable",
     "Popmap",
     "SampleAssignment",
     "VariantBatch",
@@ -22,6 +19,5 @@ __all__ = [
     "VcfSource",
     "assign_samples",
     "open_vcf",
-    "read_genotype_table",
     "read_popmap",
 ]
