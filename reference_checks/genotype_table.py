@@ -14,7 +14,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from driftband.variants.vcf import BATCH_BYTES, VcfSource
+from driftband.variants.source import BATCH_BYTES, VcfSource
 
 
 @dataclass

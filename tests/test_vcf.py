@@ -16,7 +16,8 @@ import numpy as np
 import pysam
 import pytest
 
-from driftband.variants.vcf import VcfSource
+from driftband.variants import bgzf
+from driftband.variants.source import VcfSource
 from vcf_fixtures import header, random_study, rec, write_vcf
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1] / "reference_checks"))
@@ -192,8 +193,6 @@ def test_long_header_and_tiny_batches(tmp_path):
 def test_libdeflate_and_htslib_inflate_agree(tmp_path, monkeypatch):
     # BGZF inflated by the system's libdeflate (when installed) or by htslib (pysam) must
     # give the same records, also after index seeks into the middle of the file.
-    from driftband.variants import vcf as vcfmod
-
     rng = np.random.default_rng(12)
     text, samples, _ = random_study(rng, 40, 3000, chroms=("1", "2"), length=200_000)
     path = write_vcf(tmp_path / "many_blocks.vcf", text, "bgzf")
@@ -202,9 +201,9 @@ def test_libdeflate_and_htslib_inflate_agree(tmp_path, monkeypatch):
     out = {}
     for mode in ("htslib", "auto"):
         monkeypatch.setenv("DRIFTBAND_INFLATE", mode)
-        reader = vcfmod._open_bgzf(str(path))
-        if mode == "auto" and vcfmod._Libdeflate.get() is not None:
-            assert isinstance(reader, vcfmod._DeflateBGZF)
+        reader = bgzf.open_bgzf(str(path))
+        if mode == "auto" and bgzf.Libdeflate.get() is not None:
+            assert isinstance(reader, bgzf.DeflateBGZF)
         reader.close()
         got = []
         with VcfSource(path) as src:

@@ -55,8 +55,9 @@ import numpy as np
 from .._io import file_record, provenance
 from ..exceptions import InputError, OptionError
 from ..sites.bed import IntervalSet, SiteClasses, read_mask, read_site_classes
+from ..variants.batches import VariantBatch
 from ..variants.popmap import Popmap, SampleAssignment, assign_samples, read_popmap
-from ..variants.vcf import BATCH_BYTES, VariantBatch, VcfSource
+from ..variants.source import BATCH_BYTES, VcfSource
 from ._types import Block, ClassSpectrum, PopulationSpectra, SpectraSet
 from .io import add_diversity
 from .plan import (
