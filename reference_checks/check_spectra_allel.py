@@ -42,7 +42,7 @@ def run_checks() -> list[Check]:
     import allel
 
     from driftband.spectra.build import build_spectra
-    from driftband.variants.vcf import read_genotype_table
+    from genotype_table import read_genotype_table
 
     v = allel.__version__
     rng = np.random.default_rng(20240601)

@@ -36,7 +36,7 @@ from driftband.spectra.parallel import _count_task
 from driftband.spectra.plan import make_plan
 from driftband.spectra.projection import spectra_from_counts
 from driftband.variants.popmap import assign_samples, read_popmap
-from driftband.variants.vcf import VcfSource
+from driftband.variants.source import VcfSource
 from vcf_fixtures import header, random_study, rec, write_text, write_vcf
 
 distributed = pytest.importorskip("distributed")

@@ -25,7 +25,7 @@ from driftband.spectra.projection import (
     spectra_from_counts,
 )
 from driftband.variants.popmap import assign_samples, read_popmap
-from driftband.variants.vcf import VcfSource
+from driftband.variants.source import VcfSource
 from vcf_fixtures import header, random_study, rec, write_text, write_vcf
 
 ROOT = Path(__file__).resolve().parents[1]

@@ -1,20 +1,27 @@
 """The VCF/BCF reader: the vectorised decoder against pysam's own decoding, on every kind
 of input.
 
-Independent reference: pysam (htslib) record decoding, read in the test itself.
+Independent reference: pysam (htslib) record decoding, read in the test itself. Whole
+files are read with ``read_genotype_table`` (reference_checks/genotype_table.py, built on
+the reader's public ``VcfSource.stream`` and ``VariantBatch.genotypes``).
 """
 
 from __future__ import annotations
 
 import io
 import sys
+from pathlib import Path
 
 import numpy as np
 import pysam
 import pytest
 
-from driftband.variants.vcf import VcfSource, read_genotype_table
+from driftband.variants import bgzf
+from driftband.variants.source import VcfSource
 from vcf_fixtures import header, random_study, rec, write_vcf
+
+sys.path.insert(0, str(Path(__file__).resolve().parents[1] / "reference_checks"))
+from genotype_table import read_genotype_table
 
 S4 = ["a", "b", "c", "d"]
 
@@ -186,8 +193,6 @@ def test_long_header_and_tiny_batches(tmp_path):
 def test_libdeflate_and_htslib_inflate_agree(tmp_path, monkeypatch):
     # BGZF inflated by the system's libdeflate (when installed) or by htslib (pysam) must
     # give the same records, also after index seeks into the middle of the file.
-    from driftband.variants import vcf as vcfmod
-
     rng = np.random.default_rng(12)
     text, samples, _ = random_study(rng, 40, 3000, chroms=("1", "2"), length=200_000)
     path = write_vcf(tmp_path / "many_blocks.vcf", text, "bgzf")
@@ -196,9 +201,9 @@ def test_libdeflate_and_htslib_inflate_agree(tmp_path, monkeypatch):
     out = {}
     for mode in ("htslib", "auto"):
         monkeypatch.setenv("DRIFTBAND_INFLATE", mode)
-        reader = vcfmod._open_bgzf(str(path))
-        if mode == "auto" and vcfmod._Libdeflate.get() is not None:
-            assert isinstance(reader, vcfmod._DeflateBGZF)
+        reader = bgzf.open_bgzf(str(path))
+        if mode == "auto" and bgzf.Libdeflate.get() is not None:
+            assert isinstance(reader, bgzf.DeflateBGZF)
         reader.close()
         got = []
         with VcfSource(path) as src:

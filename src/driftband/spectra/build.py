@@ -33,7 +33,7 @@ from .._io import file_record, provenance
 from ..exceptions import InputError, OptionError
 from ..sites.bed import IntervalSet, SiteClasses, read_mask, read_site_classes
 from ..variants.popmap import Popmap, assign_samples, read_popmap
-from ..variants.vcf import VcfSource
+from ..variants.source import VcfSource
 from ._types import Block, SpectraSet
 from .counting import CountDesign, RegionCounts, count_stream, make_design
 from .plan import (

@@ -38,8 +38,9 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from ..exceptions import InputError, OptionError
+from ..variants.batches import VariantBatch
 from ..variants.popmap import SampleAssignment
-from ..variants.vcf import BATCH_BYTES, VariantBatch, VcfSource
+from ..variants.source import BATCH_BYTES, VcfSource
 from .plan import RegionSites, SitePlan, aggregate
 
 __all__ = [

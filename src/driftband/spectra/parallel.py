@@ -24,7 +24,7 @@ from typing import Any
 
 from .. import _parallel
 from ..exceptions import InputError, OptionError
-from ..variants.vcf import VcfSource
+from ..variants.source import VcfSource
 from .counting import CountDesign, RegionCounts, count_region
 from .plan import DEFAULT_REGION_SIZE, SitePlan
 
