@@ -3,8 +3,8 @@
 Checks, each against mpmath (reference_checks/mpmath_prf.py, 30 digits, independent of
 driftband's numerics):
 
-- expected spectra g_i(S) = E[xi_i]/(theta L) (Sawyer & Hartl 1992) over the issue's range,
-  n <= 2000 and S from -1e5 to +1e3: <= 1e-10 relative where g >= 1e-280, and
+- expected spectra g_i(S) = E[xi_i]/(theta L) (Sawyer & Hartl 1992) over the range
+  driftband supports, n <= 2000 and S from -1e5 to +1e3: <= 1e-10 relative where g >= 1e-280, and
   <= 1e-10 absolute in ln g where it underflows (direct mpmath.quad of the integral);
 - the neutral spectrum 1/i (Fu 1995, from memory) for S = 0 and |S| < 1e-8;
 - gamma-DFE averages, beta in [0.05, 5], S-bar in [0.1, 1e5]: <= 1e-8 relative (mpmath

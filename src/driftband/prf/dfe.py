@@ -47,7 +47,8 @@ __all__ = [
     "sample_S",
 ]
 
-#: Default band edges on |Ne s| (DESIGN section 2): 0, 1, 10, 100, infinity.
+#: Default band edges on |Ne s| (the README's conventions): 0, 1, 10, 100, infinity; the
+#: first band, |Ne s| < 1, is the effectively neutral one.
 DEFAULT_EDGES_NES = (0.0, 1.0, 10.0, 100.0)
 #: Width, in decades of t, of the open last band of :class:`DiscreteDfe`.
 OPEN_BAND_DECADES = 3.0
