@@ -189,8 +189,14 @@ def gamma_mean_sfs(n: int, shape: float, mean: float, degrees=(5, 6)) -> np.ndar
     C(n,i) int_0^1 x^(i-1)(1-x)^(n-i-1) wbar(x) dx with
     wbar(x) = lam^beta [zeta(beta, lam + x) - zeta(beta, lam + 1)], lam = beta / mean
     (digamma form lam [psi(lam + 1) - psi(lam + x)] at beta = 1), by mpmath Gauss-Legendre
-    rules on fixed subintervals, checked by comparing two orders (to 1e-13).
+    rules on fixed subintervals, checked by comparing two orders (to 1e-13). Results are
+    cached per process (the tests and the quick check share them); a new array each call.
     """
+    return np.array(_gamma_mean_sfs(int(n), float(shape), float(mean), tuple(degrees)))
+
+
+@functools.cache
+def _gamma_mean_sfs(n: int, shape: float, mean: float, degrees: tuple) -> tuple:
     with mp.workdps(DPS):
         beta = mp.mpf(shape)
         lam = beta / mp.mpf(mean)
@@ -220,7 +226,7 @@ def gamma_mean_sfs(n: int, shape: float, mean: float, degrees=(5, 6)) -> np.ndar
             return [mp.exp(logc[i - 1] + (i - 1) * lx + (n - i - 1) * l1) * w
                     for i in range(1, n)]
 
-        return np.array([float(v) for v in _gl_vector(F, intervals, degrees)])
+        return tuple(float(v) for v in _gl_vector(F, intervals, degrees))
 
 
 def gamma_band_shares(shape: float, mean: float, edges_nes=(0, 1, 10, 100)) -> np.ndarray:
