@@ -131,13 +131,13 @@ def write_study_vcf(study: SimulatedStudy, prefix: str | os.PathLike, missing: f
     # keeps its classes with it.
     flip = np.zeros(m, dtype=bool)
     for i in np.flatnonzero(rng.random(m) < ref_derived).tolist():
-        c, p = int(chrom[i]), int(pos0[i])
-        k = int(genome_ref.phase[c][p])
-        b = genome_ref.pick_ref_derived(c, p - k, k, int(anc[i]), rng) if k >= 0 else -1
+        ch, ps = int(chrom[i]), int(pos0[i])
+        k = int(genome_ref.phase[ch][ps])
+        b = genome_ref.pick_ref_derived(ch, ps - k, k, int(anc[i]), rng) if k >= 0 else -1
         if b >= 0:
             der[i] = b
             flip[i] = True
-            genome_ref.seqs[c][p] = b
+            genome_ref.seqs[ch][ps] = b
     ref = np.where(flip, der, anc)
     alt = np.where(flip, anc, der)
     # Gene copies: populations in order, then the outgroup; 1 = carries the derived base.
@@ -286,7 +286,7 @@ def _write_vcf(path: str, tbi: str, header: str, chrom: np.ndarray, pos0: np.nda
     import pysam
 
     with _atomic_with_index(path, tbi, suffix=".tmp.gz") as (tmp, tmp_tbi):
-        with pysam.BGZFile(tmp, "wb") as fh:
+        with pysam.BGZFile(tmp, "wb", index=None) as fh:
             fh.write(header.encode())
             names = np.array(lay.chrom_names)[chrom] if chrom.size else np.empty(0, str)
             chunk = 5000
