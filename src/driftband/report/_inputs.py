@@ -118,7 +118,7 @@ def read_fit_doc(path: str | os.PathLike) -> dict[str, Any]:
     return doc
 
 
-def _number(text: str, path, line: int, column: str) -> float | None:
+def _number(text: str, path: str | os.PathLike, line: int, column: str) -> float | None:
     t = text.strip()
     if t == "" or t.lower() in ("nan", "na", "none"):
         return None
