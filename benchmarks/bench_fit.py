@@ -1,7 +1,7 @@
 """Benchmark: one gamma DFE fit with demographic nuisance factors, n = 40 and n = 200.
 
-Targets (issue "The core"): <= 0.2 s (n = 40) and <= 1 s (n = 200) on one core. The
-reference in the same run is the same likelihood evaluated with the DFE average done by
+Targets (kept here, see DEVELOPERS.md): <= 0.2 s (n = 40) and <= 1 s (n = 200) on one
+core. The reference in the same run is the same likelihood evaluated with the DFE average done by
 adaptive quadrature (scipy.integrate.quad_vec over ln t), timed per evaluation, so the
 ratio shows what the per-n quadrature table buys.
 

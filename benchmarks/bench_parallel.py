@@ -12,9 +12,9 @@
    ``driftband fit --bootstrap 1000`` minus that of the same fit without bootstrap; and,
    for the ratio, 200 refits on 1 worker (scaled to 1,000).
 
-Targets (issue "Scale"): speed-up >= 1.7 on 2 cores for the 200-sample file; <= 120 s for
-the 1,000 refits on 2 workers. Timings are only meaningful on an otherwise idle machine;
-the load average is printed beside them.
+Targets (kept here, see DEVELOPERS.md): speed-up >= 1.7 on 2 cores for the 200-sample
+file; <= 120 s for the 1,000 refits on 2 workers. Timings are only meaningful on an
+otherwise idle machine; the load average is printed beside them.
 
 Usage::
 

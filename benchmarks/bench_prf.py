@@ -3,8 +3,8 @@
 Prints:
 
 - the time to tabulate g_i(S), i = 1..199, for n = 200 on 2,000 S values spread over the
-  issue's range (-1e5 .. -1e-6 and 1e-6 .. 1e3), including the per-n setup; target
-  <= 0.5 s (issue "The core", item 8);
+  range the fits use (-1e5 .. -1e-6 and 1e-6 .. 1e3), including the per-n setup; target
+  <= 0.5 s (driftband's speed targets live in these scripts, see DEVELOPERS.md);
 - the same table with scipy's hyp1f1 in Kummer's form (argument -|S|) and the ratio;
 - mpmath quadrature on a small subset, extrapolated to the full table, and the ratio;
 - the accuracy of both fast methods against mpmath on that subset;

@@ -14,7 +14,8 @@ Usage::
     python benchmarks/bench_spectra.py --only 200 --repeats 5
     python benchmarks/bench_spectra.py --snps-1000 200000
 
-The target (issue 2) is a ratio <= 1.0 on one worker.
+Target (driftband's speed targets live in these scripts, see DEVELOPERS.md): a ratio
+<= 1.0 on one worker.
 """
 
 from __future__ import annotations

@@ -2,7 +2,7 @@
 
 The simulator uses no diffusion mathematics (selection p' = p(1+s+sp)/(1+2sp) and binomial
 drift each generation), so agreement with the Poisson-random-field fit is a check of the
-whole chain against the population-genetic model itself. Target of the design: the
+whole chain against the population-genetic model itself. Accuracy asked here: the
 effectively neutral share (|Ne·s| < 1) within ±0.03 of the truth with ~1e5 selected
 sites. The truth is the gamma DFE's band share computed with scipy.special.gammainc.
 """
@@ -37,7 +37,8 @@ def _share(pop, equilibrium):
 
 
 def test_truth_value():
-    # Independent of NUMERICS §7's table (beta = 0.3 not listed): a Monte Carlo check.
+    # Monte Carlo check of the scipy.special.gammainc value (beta = 0.3): 4e5 gamma draws
+    # from numpy, within 4.4 binomial standard errors (sd 6.8e-4).
     t = np.random.default_rng(0).gamma(SHAPE, MEAN_S / SHAPE, size=400_000)
     assert np.mean(t < 4) == pytest.approx(TRUE_NEUTRAL_SHARE, abs=3e-3)
 

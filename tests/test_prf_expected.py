@@ -2,9 +2,12 @@
 
 References: mpmath high-precision quadrature of the Sawyer & Hartl (1992) integral
 (reference_checks/mpmath_prf.py, 30 digits, no driftband code); scipy's hyp1f1 through
-Kummer's closed form; the neutral spectrum theta/i (Fu 1995, from memory); the small-S
-expansion and the large-|S| terminating expansions written out in the project's
-NUMERICS notes (sections 1-3; re-derived where noted).
+Kummer's closed form (Euler's integral, DLMF 13.4.1, and Kummer's transformation, from
+memory); the neutral spectrum theta/i (Fu 1995, from memory); the small-S expansion and
+the S -> +inf limit, derived by hand from the Sawyer-Hartl weight (derivations beside the
+tests); and the large-|S| expansions of Kummer's function, which terminate for integer
+parameters (DLMF section 13.7(i), from memory; checked here against mpmath.hyp1f1 at 60
+digits for n = 10, |S| = 100 and 1000: equal in double precision).
 """
 
 import sys
@@ -43,7 +46,8 @@ MP_CASES = [(n, S, cl) for n, Ss, cl in MP_GRID for S in Ss]
 @pytest.mark.parametrize("n,S,classes", MP_CASES)
 def test_matches_mpmath_quadrature(n, S, classes):
     # Source: mpmath.quad of the Sawyer-Hartl integral at 30 digits (reference_checks).
-    # Requirement (issue 4): <= 1e-10 relative over n <= 2000, S in [-1e5, 1e3].
+    # Checked to 1e-10 relative over n <= 2000, S in [-1e5, 1e3] (driftband.prf.expected
+    # documents about 1e-13).
     v, logv = ref.sfs(n, S, classes)
     idx = np.array(classes) - 1
     g = kernel(n).g(S)[idx]
@@ -83,8 +87,10 @@ def test_matches_mpmath_wide_grid(n):
 @pytest.mark.parametrize("n", [10, 50, 200])
 @pytest.mark.parametrize("S", [-1e3, -100.0, -7.5, -1.0, 1.0, 7.5, 100.0, 1e3])
 def test_matches_scipy_hyp1f1_kummer_form(n, S):
-    # Source: scipy.special.hyp1f1 (second oracle; NUMERICS section 2 measured <= 1.4e-12
-    # for |S| >= 1 with scipy 1.17.1 -- this also regression-tests scipy).
+    # Source: scipy.special.hyp1f1 in Kummer's form, argument -|S| (a second,
+    # double-precision oracle; accurate for |S| >= 1 but not below 1e-2, where 1 - M
+    # cancels). Implementations of hyp1f1 change between versions, so this also
+    # regression-tests scipy.
     want = ref.kummer_scipy(n, S)
     ok = want > 1e-280
     assert_allclose(kernel(n).g(S)[ok], want[ok], rtol=1e-10)
@@ -104,20 +110,22 @@ def test_neutral_limit_one_over_i(n):
 @pytest.mark.parametrize("n", [10, 30, 200])
 @pytest.mark.parametrize("S", [1e-3, -1e-3, 1e-4, -1e-4])
 def test_small_S_expansion(n, S):
-    # Source: NUMERICS section 1, g_i = 1/i + S/(2(n+1)) + O(S^2); derivation: the
-    # weight is (1-x)(1 + S x/2 + O(S^2)) and C(n,i) B(i+1, n-i+1) = 1/(n+1).
+    # Source: derived by hand, g_i = 1/i + S/(2(n+1)) + O(S^2): the Sawyer-Hartl weight
+    # (1 - e^{-S(1-x)})/(1 - e^{-S}) is (1-x)(1 + S x/2 + O(S^2)), C(n,i) B(i, n-i+1) = 1/i
+    # and C(n,i) B(i+1, n-i+1) = 1/(n+1).
     i = np.arange(1, n)
     lin = 1.0 / i + S / (2 * (n + 1))
     err = np.abs(expected_sfs(n, S) / lin - 1)
-    # second-order remainder: relative error <= S^2 (6.8e-10 at |S| = 1e-4, n = 30 in
-    # NUMERICS), and well above rounding, so the linear term itself is checked
+    # second-order remainder: relative error O(S^2) (a bound of 2 S^2 here; about
+    # 0.07 S^2 at n = 30), and the linear term is well above rounding, so it is checked
     assert np.all(err < 2 * S * S)
     assert np.all(np.abs(expected_sfs(n, S) - 1.0 / i) > 0.4 * abs(S) / (2 * (n + 1)))
 
 
 @pytest.mark.parametrize("n", [4, 10, 50, 200])
 def test_strongly_beneficial_limit(n):
-    # Source: NUMERICS section 1, S -> +inf: g_i -> n/(i(n-i)) = 1/i + 1/(n-i).
+    # Source: derived by hand: as S -> +inf the weight tends to 1 on [0, 1), so
+    # g_i -> C(n,i) B(i, n-i) = n/(i(n-i)) = 1/i + 1/(n-i).
     i = np.arange(1, n)
     assert_allclose(expected_sfs(n, np.inf), n / (i * (n - i)), rtol=1e-13)
 
@@ -137,7 +145,11 @@ def _series(ratio, nterms):
 
 
 def _asym_pos(n, S):
-    """NUMERICS section 1 terminating expansion for S > 0 (exact up to O(e^-S)), mpmath."""
+    """Terminating large-S expansion for S > 0 (exact up to O(e^-S)), in mpmath.
+
+    g_i(S) = n/(i(n-i)) [1 - (n-1)!/(i-1)! S^-(n-i) sum_{k<i} (n-i)_k (1-i)_k / k! S^-k],
+    from the large-|z| expansion of M(n-i, n, -S) (DLMF section 13.7(i), from memory).
+    """
     import mpmath as mp
 
     out = []
@@ -151,7 +163,11 @@ def _asym_pos(n, S):
 
 
 def _asym_neg(n, t):
-    """NUMERICS section 1 terminating expansion for S = -t < 0 (exact up to O(e^-t))."""
+    """Terminating expansion of ln g_i(-t) for t > 0 (exact up to O(e^-t)), in mpmath.
+
+    g_i(-t) = C(n,i) (i-1)! t^-i sum_{k<n-i} (i)_k (i+1-n)_k / k! t^-k, from the
+    large-|z| expansion of M(i, n, -t) (DLMF section 13.7(i), from memory).
+    """
     import mpmath as mp
 
     out = []
@@ -166,7 +182,7 @@ def _asym_neg(n, t):
 @pytest.mark.parametrize("n,S", [(10, 100.0), (10, 1e5), (50, 1e3), (50, 1e5), (200, 1e5)])
 def test_large_positive_S_expansion(n, S):
     # Source: terminating large-|z| expansion of Kummer's M for integer parameters
-    # (NUMERICS section 1), evaluated with mpmath.
+    # (DLMF section 13.7(i), from memory), evaluated with mpmath.
     assert_allclose(expected_sfs(n, S), _asym_pos(n, S), rtol=1e-12)
 
 
@@ -174,13 +190,13 @@ def test_large_positive_S_expansion(n, S):
                                  (1000, 1e8)])
 def test_large_negative_S_expansion(n, t):
     # Source: g_i(-t) = C(n,i)(i-1)! t^-i sum_k (i)_k (i+1-n)_k / k! t^-k + O(e^-t)
-    # (NUMERICS section 1), evaluated with mpmath; covers |S| up to 1e8 (node range).
+    # (DLMF section 13.7(i), from memory), evaluated with mpmath; covers |S| up to 1e8.
     assert_allclose(kernel(n).log_g(-t), _asym_neg(n, t), rtol=0, atol=1e-11)
 
 
 def test_g1_for_strong_purifying_selection():
-    # Source: NUMERICS section 1, g_1 ~ n/t for S = -t -> -inf; with the next term of the
-    # expansion, n/t (1 - (n-2)/t + O(n^2/t^2)).
+    # Source: the terminating expansion above at i = 1: g_1(-t) = n/t (1 - (n-2)/t
+    # + O(n^2/t^2)), so g_1 ~ n/t for S = -t -> -inf.
     for n in (10, 200):
         t = 1e7
         assert_allclose(expected_sfs(n, -t)[0], n / t, rtol=2 * n / t)
@@ -222,7 +238,8 @@ def test_kernel_cache_and_bad_n():
 
 # ---------------------------------------------------------- folding and misorienting
 def test_fold_by_definition():
-    # Source: DESIGN section 2 / NUMERICS section 3: eta_j = E_j + E_{n-j}, eta_{n/2} = E_{n/2}.
+    # Source: definition of the folded (minor-allele) spectrum, common practice:
+    # eta_j = E_j + E_{n-j}, and eta_{n/2} = E_{n/2} for even n.
     rng = np.random.default_rng(5)
     for n in (2, 3, 4, 9, 10):
         E = rng.random((3, n - 1))
@@ -237,7 +254,9 @@ def test_fold_by_definition():
 
 
 def test_misorientation():
-    # Source: NUMERICS section 3: xi_i = (1-eps) E_i + eps E_{n-i}; folding removes eps.
+    # Source: definition (common practice): a share eps of sites has its ancestral allele
+    # misidentified, so i derived copies are read as n - i: xi_i = (1-eps) E_i
+    # + eps E_{n-i}; folding merges i and n - i, so it removes eps.
     n = 20
     E = expected_sfs(n, -5.0)
     for eps in (0.0, 0.03, 0.5, 1.0):
@@ -270,8 +289,9 @@ def test_fixation_ratio_against_mpmath(S):
 
 
 def test_fixation_ratio_table_values():
-    # Source: NUMERICS section 5: 1.58 / 0.58 at S = +-1, 2.31 / 0.31 at S = +-2,
-    # 4.07 / 0.075 at S = +-4.
+    # Source: Kimura (1962) u/u0 = S/(1 - e^-S) (from memory), worked by hand with
+    # e = 2.71828: 1/(1 - e^-1) = 1.582, and r(-S) = r(S) e^-S gives 0.582 at S = -1;
+    # 2.313 / 0.313 at S = +-2; 4.075 / 0.0746 at S = +-4.
     assert_allclose(fixation_ratio([1, -1, 2, -2, 4, -4]),
                     [1.582, 0.582, 2.313, 0.313, 4.075, 0.0746], rtol=2e-3)
     assert fixation_ratio(np.inf) == np.inf and fixation_ratio(-np.inf) == 0.0

@@ -1,5 +1,7 @@
-"""Repository-level checks: the README's test command is the one CI runs."""
+"""Repository-level checks: the README's test command is the one CI runs; the pre-commit
+hooks use the ruff pinned in pyproject.toml."""
 
+import re
 from pathlib import Path
 
 ROOT = Path(__file__).resolve().parents[1]
@@ -24,3 +26,13 @@ def test_readme_first_paragraph_states_the_job():
     text = (ROOT / "README.md").read_text(encoding="utf-8")
     first = text.split("\n\n")[1]
     assert "distribution of" in first and "effectively neutral" in first
+
+
+def test_pre_commit_uses_the_ruff_pinned_in_pyproject():
+    # Both hooks (ruff check, ruff format) install the ruff of the test extra.
+    text = (ROOT / "pyproject.toml").read_text(encoding="utf-8")
+    (pin,) = re.findall(r'"(ruff==[0-9.]+)"', text)
+    hooks = (ROOT / ".pre-commit-config.yaml").read_text(encoding="utf-8")
+    assert "entry: ruff check" in hooks and "entry: ruff format" in hooks
+    deps = re.findall(r"additional_dependencies: \[(.*)\]", hooks)
+    assert deps == [f'"{pin}"'] * 2

@@ -28,6 +28,9 @@ ROOT = Path(__file__).resolve().parents[1]
 EX = ROOT / "example_vcfs"
 DEMO = EX / "snail.study.toml"
 STAGES = ["classify[snail]", "spectra[snail]", "fit", "bootstrap", "compare", "report"]
+#: Bootstrap replicates of the demo runs here: enough for percentile intervals to exist;
+#: their coverage is the business of benchmarks/calibrate.py.
+BOOT = "5"
 
 
 def _tsv(path):
@@ -54,9 +57,9 @@ def _sha(path: Path) -> str:
 
 @pytest.fixture(scope="module")
 def demo_run(tmp_path_factory):
-    """The demo study run with a reduced bootstrap (10 replicates, 2 workers)."""
+    """The demo study run with a reduced bootstrap (BOOT replicates, 2 workers)."""
     out = tmp_path_factory.mktemp("demo") / "out"
-    rc = main(["run", str(DEMO), "--out-dir", str(out), "--bootstrap", "10",
+    rc = main(["run", str(DEMO), "--out-dir", str(out), "--bootstrap", BOOT,
                "--workers", "2", "-q"])
     assert rc == 0
     return out
@@ -64,7 +67,7 @@ def demo_run(tmp_path_factory):
 
 def _truth_share(mean_nes: float, shape: float = 0.3) -> float:
     # Gamma DFE on |Ne*s| (scipy.stats.gamma); the effectively neutral band is |Ne*s| < 1
-    # (DESIGN §2 band edges; common practice).
+    # (the README's band edges on |Ne*s|; common practice).
     return float(stats.gamma(shape, scale=mean_nes / shape).cdf(1.0))
 
 
@@ -91,7 +94,7 @@ def test_output_folder_layout(demo_run):
 
 def test_band_table(demo_run):
     rows = _tsv(demo_run / "bands.tsv")
-    # The columns DESIGN §3 asks for, at least.
+    # The columns the README documents for bands.tsv, at least.
     need = ["population", "band", "nes_low", "nes_high", "share", "ci_low", "ci_high",
             "model"]
     assert all(c in rows[0] for c in need)
@@ -100,7 +103,8 @@ def test_band_table(demo_run):
         sub = [r for r in rows if r["population"] == pop]
         assert [float(r["nes_low"]) for r in sub] == [0, 1, 10, 100]
         assert [float(r["nes_high"]) for r in sub] == [1, 10, 100, float("inf")]
-        # S = 4*Ne*s (DESIGN §2): the S columns are four times the |Ne*s| columns.
+        # S = 4*Ne*s (the README's conventions): the S columns are four times the |Ne*s|
+        # columns.
         assert [float(r["S_low"]) for r in sub] == [0, 4, 40, 400]
         shares = [float(r["share"]) for r in sub]
         assert all(0.0 <= s <= 1.0 for s in shares)
@@ -157,7 +161,7 @@ def test_comparison_of_the_pair(demo_run):
     for name, p in pops.items():
         booted = set(p["bootstrap"]["models"])
         assert booted == {p["best_model"], fit["options"]["compare_model"]}, name
-        assert p["bootstrap"]["replicates"] == 10
+        assert p["bootstrap"]["replicates"] == int(BOOT)
 
 
 def test_report_and_summary(demo_run):
@@ -173,7 +177,7 @@ def test_report_and_summary(demo_run):
 def test_rerun_skips_every_stage(demo_run, capsys):
     before = {p.name: _sha(p) for p in demo_run.iterdir() if p.is_file() and
               p.name != "run.log"}
-    rc = main(["run", str(DEMO), "--out-dir", str(demo_run), "--bootstrap", "10",
+    rc = main(["run", str(DEMO), "--out-dir", str(demo_run), "--bootstrap", BOOT,
                "--workers", "2", "-q"])
     assert rc == 0
     assert capsys.readouterr().out.strip() == str(demo_run / "report.html")
@@ -189,7 +193,7 @@ def test_demo_command_finds_the_shipped_data(demo_run, capsys):
     assert path.is_file()
     runmod.check_files(runmod.read_study(path))  # every file of the study is shipped
     # The same study as example_vcfs/: the demo reuses the folder and every stage.
-    rc = main(["demo", "--out-dir", str(demo_run), "--bootstrap", "10", "--workers", "2",
+    rc = main(["demo", "--out-dir", str(demo_run), "--bootstrap", BOOT, "--workers", "2",
                "-q"])
     assert rc == 0
     out = capsys.readouterr().out
@@ -210,7 +214,7 @@ def test_demo_data_size():
 
 def _two_dataset_study(tmp: Path, demo_out: Path) -> Path:
     """Two datasets from the demo files: 'north' (FASTA + GFF3, chr1) and 'south' (sites
-    BED, chr2); one model, no bootstrap, one cheap test."""
+    BED, chr2); projected to 10 gene copies, one model, no bootstrap, one cheap test."""
     bed = tmp / "classes.bed"
     shutil.copy(demo_out / "sites.bed", bed)
     text = f"""
@@ -225,6 +229,7 @@ fasta = "{EX / 'snail.fa.gz'}"
 gff = "{EX / 'snail.gff3'}"
 ancestral = "outgroup:sister"
 regions = ["chr1"]
+project = 10
 
 [[dataset]]
 name = "south"
@@ -233,6 +238,7 @@ popmap = "{EX / 'snail.popmap.tsv'}"
 sites = "classes.bed"
 ancestral = "outgroup:sister"
 regions = ["chr2"]
+project = 10
 block_size = 50000
 
 [fit]

@@ -1,6 +1,7 @@
 r"""Poisson-random-field likelihood of a neutral and a selected spectrum (no I/O).
 
-Model (DESIGN §2). For polymorphic class :math:`i` of a sample of :math:`n` copies,
+Model (conventions as in the README: S = 4 Ne s, fitnesses 1 : 1+s : 1+2s). For
+polymorphic class :math:`i` of a sample of :math:`n` copies,
 
 .. math::
 

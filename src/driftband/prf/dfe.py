@@ -25,7 +25,9 @@ from __future__ import annotations
 import dataclasses
 import functools
 import math
+from collections.abc import Callable, Iterable
 from dataclasses import dataclass
+from typing import TYPE_CHECKING, Any, TypeVar, cast
 
 import numpy as np
 from numpy.typing import ArrayLike
@@ -73,7 +75,7 @@ def _check_pos(name: str, value: float) -> float:
     return v
 
 
-def _check_edges(edges_nes) -> tuple[float, ...]:
+def _check_edges(edges_nes: Iterable[float]) -> tuple[float, ...]:
     e = tuple(float(v) for v in edges_nes)
     if len(e) < 2 or e[0] != 0.0:
         raise ValueError(f"band edges on |Ne s| must start at 0 and have at least two "
@@ -85,27 +87,41 @@ def _check_edges(edges_nes) -> tuple[float, ...]:
 
 
 # ----------------------------------------------------------------------- DFE families
+_D = TypeVar("_D", bound="_Deleterious")
+
+
 class _Deleterious:
-    """Shared behaviour of the deleterious families (distribution of t = -S > 0)."""
+    """Shared behaviour of the deleterious families (distribution of t = -S > 0).
+
+    The families are frozen dataclasses deriving from this class.
+    """
 
     family = ""
+
+    if TYPE_CHECKING:  # defined by every family
+        def cdf_t(self, t: ArrayLike) -> np.ndarray: ...
+
+        def partial_mean_t(self, c: float) -> float: ...
 
     @property
     def param_names(self) -> tuple[str, ...]:
         """Names of the natural parameters, in order (tuple of str)."""
-        return tuple(f.name for f in dataclasses.fields(self))
+        return tuple(f.name for f in dataclasses.fields(cast(Any, self)))
 
     @property
     def params(self) -> dict[str, float]:
         """Natural parameters by name (dict of str to float)."""
         return {k: getattr(self, k) for k in self.param_names}
 
-    def with_params(self, **kw: float):
+    def with_params(self: _D, **kw: float) -> _D:
         """Copy with some natural parameters replaced (validated)."""
-        return dataclasses.replace(self, **kw)
+        return cast(_D, dataclasses.replace(cast(Any, self), **kw))
 
     # Defaults overridden by the families.
-    breakpoints_t: tuple[float, ...] = ()
+    @property
+    def breakpoints_t(self) -> tuple[float, ...]:
+        """Values of t where the density has a kink or an edge (none by default)."""
+        return ()
 
     def bulk_log_t(self) -> tuple[float, float] | None:
         """(mean, sd) of ln t, used to refine quadrature for narrow DFEs, or None."""
@@ -180,7 +196,7 @@ class GammaDfe(_Deleterious):
         return (float(digamma(self.shape) - math.log(self.rate)),
                 float(math.sqrt(polygamma(1, self.shape))))
 
-    def sample_t(self, size, rng: np.random.Generator) -> np.ndarray:
+    def sample_t(self, size: int | tuple[int, ...], rng: np.random.Generator) -> np.ndarray:
         """Random draws of t (ndarray of shape ``size``)."""
         return rng.gamma(self.shape, self.mean / self.shape, size)
 
@@ -207,7 +223,7 @@ class LognormalDfe(_Deleterious):
         object.__setattr__(self, "mu", float(self.mu))
         object.__setattr__(self, "sigma", _check_pos("sigma", self.sigma))
 
-    def _z(self, t):
+    def _z(self, t: ArrayLike) -> np.ndarray:
         with np.errstate(divide="ignore"):
             return (np.log(np.asarray(t, dtype=float)) - self.mu) / self.sigma
 
@@ -237,7 +253,7 @@ class LognormalDfe(_Deleterious):
     def bulk_log_t(self) -> tuple[float, float]:
         return (self.mu, self.sigma)
 
-    def sample_t(self, size, rng: np.random.Generator) -> np.ndarray:
+    def sample_t(self, size: int | tuple[int, ...], rng: np.random.Generator) -> np.ndarray:
         """Random draws of t (ndarray of shape ``size``)."""
         return np.exp(rng.normal(self.mu, self.sigma, size))
 
@@ -305,7 +321,7 @@ class DiscreteDfe(_Deleterious):
         return tuple(v for a, b, _ in self.bands_t for v in (a, b) if v > 0)
 
     @staticmethod
-    def _frac(t, a, b, log):
+    def _frac(t: ArrayLike, a: float, b: float, log: bool) -> np.ndarray:
         """Within-band cdf at t (exactly 0 below and 1 at/above the band)."""
         t = np.asarray(t, dtype=float)
         if log:
@@ -317,13 +333,13 @@ class DiscreteDfe(_Deleterious):
 
     def cdf_t(self, t: ArrayLike) -> np.ndarray:
         """P(T <= t), array like ``t``."""
-        return sum(m * self._frac(t, a, b, lg) for m, (a, b, lg) in zip(self.masses,
-                                                                        self.bands_t))
+        return cast(np.ndarray, sum(m * self._frac(t, a, b, lg)
+                                    for m, (a, b, lg) in zip(self.masses, self.bands_t)))
 
     def sf_t(self, t: ArrayLike) -> np.ndarray:
         """P(T > t), array like ``t``."""
-        return sum(m * (1.0 - self._frac(t, a, b, lg))
-                   for m, (a, b, lg) in zip(self.masses, self.bands_t))
+        return cast(np.ndarray, sum(m * (1.0 - self._frac(t, a, b, lg))
+                                    for m, (a, b, lg) in zip(self.masses, self.bands_t)))
 
     def logpdf_t(self, t: ArrayLike, log_t: np.ndarray | None = None) -> np.ndarray:
         """Log density of t (``-inf`` outside the support), array like ``t``."""
@@ -344,7 +360,7 @@ class DiscreteDfe(_Deleterious):
             tot += m * ((u - a) / math.log(b / a) if lg else (u * u - a * a) / (2 * (b - a)))
         return tot
 
-    def sample_t(self, size, rng: np.random.Generator) -> np.ndarray:
+    def sample_t(self, size: int | tuple[int, ...], rng: np.random.Generator) -> np.ndarray:
         """Random draws of t (ndarray of shape ``size``)."""
         bands = self.bands_t
         k = rng.choice(len(bands), size=size, p=np.asarray(self.masses) / sum(self.masses))
@@ -425,7 +441,8 @@ def _split(dfe: Dfe) -> tuple[BaseDfe, float, float]:
 
 
 # ------------------------------------------------------------------------ band shares
-def deleterious_band_shares(dfe: Dfe, edges_nes=DEFAULT_EDGES_NES) -> np.ndarray:
+def deleterious_band_shares(dfe: Dfe,
+                            edges_nes: Iterable[float] = DEFAULT_EDGES_NES) -> np.ndarray:
     r"""Shares of the deleterious part of a DFE in |Ne s| bands (sum to 1).
 
     Share ``k`` is :math:`\Pr(e_k \le t/4 < e_{k+1})`, the last band open. Computed from
@@ -463,7 +480,7 @@ def deleterious_band_shares(dfe: Dfe, edges_nes=DEFAULT_EDGES_NES) -> np.ndarray
     return np.where(use_q, Q[:-1] - Q[1:], F[1:] - F[:-1])
 
 
-def band_shares(dfe: Dfe, edges_nes=DEFAULT_EDGES_NES) -> np.ndarray:
+def band_shares(dfe: Dfe, edges_nes: Iterable[float] = DEFAULT_EDGES_NES) -> np.ndarray:
     r"""Shares of all new selected-class mutations in |Ne s| bands (sum to 1).
 
     The deleterious part contributes ``(1 - p_b)`` times :func:`deleterious_band_shares`;
@@ -499,7 +516,8 @@ def band_shares(dfe: Dfe, edges_nes=DEFAULT_EDGES_NES) -> np.ndarray:
 
 # -------------------------------------------------------------------- quadrature in t
 @functools.lru_cache(maxsize=64)
-def _panels(breaks: tuple[float, ...], per_panel: int = NODES_PER_DECADE):
+def _panels(breaks: tuple[float, ...], per_panel: int = NODES_PER_DECADE
+            ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Gauss--Legendre nodes and weights in ln t on [T_LO, T_HI], one panel per decade,
     also split at ``breaks``. Returns (t, log_t, weights in ln t)."""
     pts = {10.0 ** k for k in range(round(math.log10(T_LO)), round(math.log10(T_HI)) + 1)}
@@ -517,7 +535,7 @@ _K_LO, _K_HI = round(math.log10(T_LO)), round(math.log10(T_HI)) - 1  # decades o
 
 
 @functools.lru_cache(maxsize=256)
-def _decade_nodes(k: int, p: int):
+def _decade_nodes(k: int, p: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """GL nodes in ln t on decade [10^k, 10^(k+1)] split into p equal panels."""
     edges = _LN10 * (k + np.arange(p + 1) / p)
     xg, wg = np.polynomial.legendre.leggauss(NODES_PER_DECADE)
@@ -529,9 +547,10 @@ def _decade_nodes(k: int, p: int):
 
 def _fine_plan(base: BaseDfe) -> tuple[int, int, int] | None:
     """(level, first decade, last decade) for a narrow DFE, or None."""
-    if not base.is_narrow():
+    bulk = base.bulk_log_t() if base.is_narrow() else None
+    if bulk is None:
         return None
-    c, sd = base.bulk_log_t()
+    c, sd = bulk
     for p in FINE_LEVELS:
         if _LN10 / p <= 4.6 * sd:
             break
@@ -544,9 +563,10 @@ def _fine_plan(base: BaseDfe) -> tuple[int, int, int] | None:
 
 def _narrow_breaks(base: BaseDfe) -> tuple[float, ...]:
     """Extra panel edges over the bulk of a DFE too narrow for the fine levels."""
-    if not base.is_narrow():
+    bulk = base.bulk_log_t() if base.is_narrow() else None
+    if bulk is None:
         return ()
-    c, sd = base.bulk_log_t()
+    c, sd = bulk
     if _LN10 / FINE_LEVELS[-1] <= 4.6 * sd:
         return ()
     step = min(sd, 0.25)
@@ -568,11 +588,13 @@ def _nodes_for(base: BaseDfe) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     keep = np.ones(t.size, dtype=bool)
     keep[NODES_PER_DECADE * (k_lo - _K_LO):NODES_PER_DECADE * (k_hi + 1 - _K_LO)] = False
     fine = [_decade_nodes(d, p) for d in range(k_lo, k_hi + 1)]
-    return tuple(np.concatenate([v[keep]] + [f[j] for f in fine]) for j, v in
-                 enumerate((t, lt, w)))
+    t2, lt2, w2 = (np.concatenate([v[keep]] + [f[j] for f in fine]) for j, v in
+                   enumerate((t, lt, w)))
+    return t2, lt2, w2
 
 
-def _expect_t(base: BaseDfe, fn, small_t: tuple[float, float]) -> float:
+def _expect_t(base: BaseDfe, fn: Callable[[np.ndarray], np.ndarray],
+              small_t: tuple[float, float]) -> float:
     """E[fn(T)] on the same ln t nodes as the DFE-averaged spectra (standard decades,
     refined where a narrow DFE has its bulk); ``small_t = (fn(0), fn'(0))`` for the mass
     below T_LO."""
@@ -618,7 +640,7 @@ def mean_fixation_ratio(dfe: Dfe) -> float:
         if not (math.isfinite(r) and r > 0):  # extreme parameters: fall back to quadrature
             r = math.nan
     if math.isnan(r):
-        def fn(t):
+        def fn(t: np.ndarray) -> np.ndarray:
             with np.errstate(over="ignore"):  # t/expm1(t) -> 0 for large t, as wanted
                 return t / np.expm1(t)
         r = _expect_t(base, fn, (1.0, -0.5))
@@ -627,7 +649,8 @@ def mean_fixation_ratio(dfe: Dfe) -> float:
     return r
 
 
-def sample_S(dfe: Dfe, size, rng: np.random.Generator | None = None) -> np.ndarray:
+def sample_S(dfe: Dfe, size: int | tuple[int, ...],
+             rng: np.random.Generator | None = None) -> np.ndarray:
     """Random draws of S = 4 Ne s from a DFE (deleterious negative), e.g. for simulation.
 
     Parameters
@@ -804,7 +827,7 @@ class DfeExpectation:
             self._fine[plan] = blk
         return blk
 
-    def _narrow(self, base: BaseDfe):
+    def _narrow(self, base: BaseDfe) -> tuple[np.ndarray, _Fine] | None:
         """(standard node weights with the refined decades zeroed, fine block) or None."""
         plan = _fine_plan(base)
         if plan is None:
@@ -892,7 +915,7 @@ class DfeExpectation:
         base, p_b, _ = _split(dfe)
         rows = []
         for name in dfe.param_names:
-            if name.startswith("mass_"):
+            if name.startswith("mass_") and isinstance(base, DiscreteDfe):
                 k = int(name.split("_")[1])
                 rows.append((1.0 - p_b) * self.band_means(base.edges_nes)[k])
                 continue
@@ -907,7 +930,7 @@ class DfeExpectation:
             rows.append(d / (hi - lo))
         return np.array(rows)
 
-    def band_means(self, edges_nes=DEFAULT_EDGES_NES) -> np.ndarray:
+    def band_means(self, edges_nes: Iterable[float] = DEFAULT_EDGES_NES) -> np.ndarray:
         """Mean spectrum within each band of a :class:`DiscreteDfe`, shape (K, n - 1)."""
         e = _check_edges(edges_nes)
         out = self._band_means.get(e)

@@ -77,7 +77,11 @@ def _cell(v: Any, tag: str = "td") -> str:
     return f"<{tag}{f' class={chr(34)}{cls}{chr(34)}' if cls else ''}>{esc(v)}</{tag}>"
 
 
-def _table(tid: str, caption: str, header: list[str], rows: Iterable[tuple[list, str]],
+#: A table cell: a value (escaped when rendered), or (value, css class).
+Cell = Any
+
+
+def _table(tid: str, caption: str, header: list[str], rows: Iterable[tuple[list[Cell], str]],
            css: str = "") -> str:
     """A table; each row is (cells, row css class); a cell is a value or (value, class)."""
     out = ['<div class="wrap">',
@@ -185,7 +189,7 @@ def _comparisons(view: ReportView) -> str:
             if any(r.get(c) not in (None, "") for r in view.compare_rows)]
     rows = []
     for r in view.compare_rows:
-        cells = []
+        cells: list[Cell] = []
         for c in cols:
             v = r.get(c)
             if c in ("p_value", "p_adjusted"):
@@ -251,7 +255,7 @@ def _shares_table(v: PopulationView) -> str:
     for m in _models_in_order(v):
         f = v.record["models"][m]
         ci = v.model_ci(m).get("shares_ci") or []
-        cells = [m]
+        cells: list[Cell] = [m]
         for k, s in enumerate(f["shares"]):
             c = ci[k] if k < len(ci) and isinstance(ci[k], list) and len(ci[k]) == 2 else [None] * 2
             cells.append(_num(f"{fnum(s)} ({frange(c[0], c[1])})"))
@@ -274,7 +278,8 @@ def _params_table(v: PopulationView) -> str:
         items.append(("theta", f.get("theta")))
         items.append(("fixation_ratio", f.get("fixation_ratio")))
         for name, val in items:
-            c = ci.get(name) if isinstance(ci.get(name), list) else [None, None]
+            got = ci.get(name)
+            c = got if isinstance(got, list) else [None, None]
             se_text = fsig(se.get(name)) if name in se else "\u2014"
             rows.append(([m, name, param_label(name, edges), _num(fsig(val)),
                           _num(se_text), _num(frange_sig(c[0], c[1]))],
@@ -408,8 +413,9 @@ def _files(prov: dict[str, Any], source: str) -> list[tuple[list, str]]:
     return rows
 
 
-def _kv(prov: dict[str, Any], options: dict[str, Any] | None = None) -> list[tuple[list, str]]:
-    rows = []
+def _kv(prov: dict[str, Any],
+        options: dict[str, Any] | None = None) -> list[tuple[list[Cell], str]]:
+    rows: list[tuple[list[Cell], str]] = []
     if prov.get("software") or prov.get("version"):
         rows.append((["software", f"{prov.get('software', 'driftband')} "
                                   f"{prov.get('version', NA)}"], ""))

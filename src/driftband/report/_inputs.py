@@ -2,7 +2,8 @@
 
 The report only reads plain dictionaries; the layouts are those of ``driftband fit``
 (:mod:`driftband.fit.io`), ``driftband compare`` (:mod:`driftband.cli.compare`) and
-``driftband spectra`` (:mod:`driftband.spectra.io`). Problems are raised as
+``driftband spectra`` (:mod:`driftband.spectra.io`); schemas and their versions are
+checked by those modules' own checks. Problems are raised as
 :class:`~driftband.exceptions.InputError` naming the file and the record.
 """
 
@@ -15,12 +16,11 @@ import os
 from typing import Any
 
 from ..exceptions import InputError
-from ..fit.io import FIT_SCHEMA, check_fit_schema
+from ..fit.io import check_fit_schema
+from ..spectra.io import check_spectra_schema
 
 __all__ = [
-    "FIT_SCHEMA",
     "NUMERIC_COMPARE_COLUMNS",
-    "SPECTRA_SCHEMA",
     "check_compare_rows",
     "check_fit_doc",
     "check_spectra_doc",
@@ -28,11 +28,6 @@ __all__ = [
     "read_fit_doc",
     "read_spectra_doc",
 ]
-
-# The schema names of driftband.fit.io and driftband.spectra.io, repeated here so that the
-# report reads the files without importing the fitting code (tests check they agree).
-SPECTRA_SCHEMA = "driftband-spectra"
-SPECTRA_SCHEMA_VERSION = 1
 
 #: Columns of compare.tsv read as numbers (empty or ``nan`` → None).
 NUMERIC_COMPARE_COLUMNS = ("statistic", "df", "p_value", "p_adjusted", "estimate", "ci_low",
@@ -123,7 +118,7 @@ def read_fit_doc(path: str | os.PathLike) -> dict[str, Any]:
     return doc
 
 
-def _number(text: str, path, line: int, column: str) -> float | None:
+def _number(text: str, path: str | os.PathLike, line: int, column: str) -> float | None:
     t = text.strip()
     if t == "" or t.lower() in ("nan", "na", "none"):
         return None
@@ -213,17 +208,20 @@ def check_compare_rows(rows: list[dict[str, Any]], fit_doc: dict[str, Any],
 def check_spectra_doc(doc: Any, path: str | os.PathLike | None = None) -> None:
     """Check that ``doc`` has the layout of a spectra file, as far as the report reads it.
 
+    Parameters
+    ----------
+    doc : dict
+        A parsed spectra file.
+    path : path-like, optional
+        Its file, named in the error message.
+
     Raises
     ------
     InputError
-        Not a spectra file, an unsupported version, no populations.
+        Not a spectra file, an unsupported version (the check of
+        :func:`driftband.spectra.io.check_spectra_schema`), no populations.
     """
-    if not isinstance(doc, dict) or doc.get("schema") != SPECTRA_SCHEMA:
-        raise InputError(f"not a spectra file (expected \"schema\": \"{SPECTRA_SCHEMA}\"; "
-                         "make one with 'driftband spectra')", path)
-    if doc.get("schema_version") != SPECTRA_SCHEMA_VERSION:
-        raise InputError(f"spectra schema version {doc.get('schema_version')!r} is not "
-                         f"supported (this driftband reads {SPECTRA_SCHEMA_VERSION})", path)
+    check_spectra_schema(doc, path)
     pops = doc.get("populations")
     if not isinstance(pops, dict) or not pops:
         raise InputError("the spectra file holds no populations", path)

@@ -11,7 +11,7 @@ from __future__ import annotations
 import base64
 import io
 import math
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import matplotlib
 from matplotlib.figure import Figure
@@ -20,9 +20,12 @@ from matplotlib.ticker import FuncFormatter, LogLocator, NullFormatter
 
 from ._text import HATCHES, OKABE_ITO, is_num
 
+if TYPE_CHECKING:
+    from matplotlib.typing import RcKeyType
+
 __all__ = ["bands_figure", "spectra_figure"]
 
-_RC = {
+_RC: dict[RcKeyType, Any] = {
     "svg.fonttype": "path",  # text as paths: the same look in every browser
     "font.family": "DejaVu Sans",
     "font.size": 9.0,

@@ -7,7 +7,7 @@ escapes it its own way, so both outputs carry the same words and numbers.
 from __future__ import annotations
 
 import math
-from typing import Any
+from typing import Any, TypeGuard
 
 MINUS = "\u2212"
 NA = "n/a"
@@ -22,8 +22,8 @@ HATCHES = ("", "//", "..", "xx", "\\\\", "oo", "--", "++")
 ALPHA_LEVEL = 0.05  # the usual 5 % level for the plain-words verdicts (common practice)
 
 
-def is_num(v: Any) -> bool:
-    """True for a finite int or float (not bool)."""
+def is_num(v: Any) -> TypeGuard[float]:
+    """True for a finite int or float (not bool); narrows ``v`` to a number for mypy."""
     return isinstance(v, int | float) and not isinstance(v, bool) and math.isfinite(v)
 
 

@@ -54,7 +54,7 @@ class PopulationView:
     bands: list[Band]
     level: float
     replicates: int | None
-    blocks: int | None
+    blocks: float | None  # genomic blocks of the bootstrap (a whole number in our files)
     flags: list[str] = field(default_factory=list)
     spectra: dict[str, Any] | None = None
     spectra_source: str | None = None
@@ -145,7 +145,7 @@ def _bands(p: dict[str, Any]) -> list[Band]:
     return out
 
 
-def _flags(name: str, p: dict[str, Any], blocks: int | None) -> list[str]:
+def _flags(name: str, p: dict[str, Any], blocks: float | None) -> list[str]:
     """Convergence and data warnings of one population, as sentences."""
     out = []
     best = p["best_model"]
@@ -247,7 +247,8 @@ def _p_for_verdict(r: dict[str, Any]) -> float | None:
     return p if is_num(p) else None
 
 
-def _sentence_difference(r, pops, method, level) -> str:
+def _sentence_difference(r: dict[str, Any], pops: dict[str, PopulationView], method: str,
+                         level: float) -> str:
     a, b, model = r["population_a"], r["population_b"], r["model"]
     d = r.get("estimate")
     sa, sb = _share(pops, a, model), _share(pops, b, model)
@@ -286,7 +287,7 @@ def _sentence_difference(r, pops, method, level) -> str:
     return head + verdict
 
 
-def _sentence_shared(r, method) -> str:
+def _sentence_shared(r: dict[str, Any], method: str) -> str:
     a, b, model = r["population_a"], r["population_b"], r["model"]
     stat, df = r.get("statistic"), r.get("df")
     p = _p_for_verdict(r)
@@ -306,7 +307,8 @@ def _sentence_shared(r, method) -> str:
     return core
 
 
-def _sentence_ne_only(r, pops, method) -> str:
+def _sentence_ne_only(r: dict[str, Any], pops: dict[str, PopulationView],
+                      method: str) -> str:
     a, b, model = r["population_a"], r["population_b"], r["model"]
     rho = r.get("ne_ratio") if is_num(r.get("ne_ratio")) else r.get("estimate")
     note = str(r.get("note") or "")
@@ -334,13 +336,14 @@ def _sentence_ne_only(r, pops, method) -> str:
                    "with the data.")
 
 
-def _pairs(rows, pops, method, level) -> list[PairView]:
+def _pairs(rows: list[dict[str, Any]], pops: dict[str, PopulationView], method: str,
+           level: float) -> list[PairView]:
     order: dict[tuple[str, str], list] = {}
     for r in rows:
         order.setdefault((r["population_a"], r["population_b"]), []).append(r)
     out = []
     for (a, b), rs in order.items():
-        sent = []
+        sent: list[tuple[str, str]] = []
         for test in ("neutral_share_difference", "shared_dfe_lrt", "ne_only_lrt"):
             for r in (x for x in rs if x["test"] == test):
                 if test == "neutral_share_difference":

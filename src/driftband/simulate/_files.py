@@ -26,7 +26,7 @@ import contextlib
 import logging
 import os
 import tempfile
-from collections.abc import Sequence
+from collections.abc import Iterator, Sequence
 from pathlib import Path
 from typing import Any
 
@@ -131,13 +131,13 @@ def write_study_vcf(study: SimulatedStudy, prefix: str | os.PathLike, missing: f
     # keeps its classes with it.
     flip = np.zeros(m, dtype=bool)
     for i in np.flatnonzero(rng.random(m) < ref_derived).tolist():
-        c, p = int(chrom[i]), int(pos0[i])
-        k = int(genome_ref.phase[c][p])
-        b = genome_ref.pick_ref_derived(c, p - k, k, int(anc[i]), rng) if k >= 0 else -1
+        ch, ps = int(chrom[i]), int(pos0[i])
+        k = int(genome_ref.phase[ch][ps])
+        b = genome_ref.pick_ref_derived(ch, ps - k, k, int(anc[i]), rng) if k >= 0 else -1
         if b >= 0:
             der[i] = b
             flip[i] = True
-            genome_ref.seqs[c][p] = b
+            genome_ref.seqs[ch][ps] = b
     ref = np.where(flip, der, anc)
     alt = np.where(flip, anc, der)
     # Gene copies: populations in order, then the outgroup; 1 = carries the derived base.
@@ -170,9 +170,10 @@ def write_study_vcf(study: SimulatedStudy, prefix: str | os.PathLike, missing: f
     _write_vcf(paths["vcf"], paths["tbi"], header, chrom, pos0, ref, alt, anc, fmt, lay)
     write_bed4(paths["bed"], lay.bed_rows(), force=force)
     if genome:
-        _write_with_index(paths["fasta"], paths["fai"],
-                          lambda fh: write_fasta(fh, lay.chrom_names, genome_ref.seqs),
-                          fasta_index)
+        with _atomic_with_index(paths["fasta"], paths["fai"]) as (tmp, _tmp_fai):
+            with open(tmp, "w", encoding="ascii", newline="") as fh:
+                write_fasta(fh, lay.chrom_names, genome_ref.seqs)
+            fasta_index(tmp)
         with atomic_output(paths["gff"], force=force, newline="") as fh:
             write_gff3(fh, lay.chrom_names, lay.chrom_lengths.tolist(), genome_ref)
     with atomic_output(paths["popmap"], force=force, newline="") as fh:
@@ -243,18 +244,23 @@ def check_genome_option(class_sites: np.ndarray) -> None:
                           "codon's second position is 0-fold); raise --sites-0fold")
 
 
-def _write_with_index(path: str, index_path: str, write, make_index) -> None:
-    """Write a text file and its index through temporary files renamed into place."""
+@contextlib.contextmanager
+def _atomic_with_index(path: str, index_path: str,
+                       suffix: str = ".tmp") -> Iterator[tuple[str, str]]:
+    """Temporary paths for a file and its index, renamed into place together on success.
+
+    The block writes the file at the first path and its index at the second (the
+    temporary name plus the index's extension, e.g. ``.tbi``, where indexers put it). On
+    success both get the umask's permissions and replace ``path`` and ``index_path``; if
+    the block raises, both temporary files are removed and the outputs are untouched.
+    """
     directory = Path(path).parent
     directory.mkdir(parents=True, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(prefix=f".{Path(path).name}.", suffix=".tmp",
-                               dir=directory)
+    fd, tmp = tempfile.mkstemp(prefix=f".{Path(path).name}.", suffix=suffix, dir=directory)
     os.close(fd)
     tmp_index = tmp + Path(index_path).name[len(Path(path).name):]
     try:
-        with open(tmp, "w", encoding="ascii", newline="") as fh:
-            write(fh)
-        make_index(tmp)
+        yield tmp, tmp_index
         mode = 0o666 & ~_umask()
         os.chmod(tmp, mode)
         os.chmod(tmp_index, mode)
@@ -279,14 +285,8 @@ def _write_vcf(path: str, tbi: str, header: str, chrom: np.ndarray, pos0: np.nda
     """bgzip-compressed VCF and its tabix index, written atomically (temp then rename)."""
     import pysam
 
-    directory = Path(path).parent
-    directory.mkdir(parents=True, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(prefix=f".{Path(path).name}.", suffix=".tmp.gz",
-                               dir=directory)
-    os.close(fd)
-    tmp_tbi = tmp + ".tbi"
-    try:
-        with pysam.BGZFile(tmp, "wb") as fh:
+    with _atomic_with_index(path, tbi, suffix=".tmp.gz") as (tmp, tmp_tbi):
+        with pysam.BGZFile(tmp, "wb", index=None) as fh:
             fh.write(header.encode())
             names = np.array(lay.chrom_names)[chrom] if chrom.size else np.empty(0, str)
             chunk = 5000
@@ -299,16 +299,6 @@ def _write_vcf(path: str, tbi: str, header: str, chrom: np.ndarray, pos0: np.nda
                 ]
                 fh.write(("\n".join(rows) + "\n").encode())
         pysam.tabix_index(tmp, preset="vcf", index=tmp_tbi, force=True)
-        mode = 0o666 & ~_umask()
-        os.chmod(tmp, mode)
-        os.chmod(tmp_tbi, mode)
-        os.replace(tmp, path)
-        os.replace(tmp_tbi, tbi)
-    except BaseException:
-        for f in (tmp, tmp_tbi):
-            with contextlib.suppress(FileNotFoundError):
-                os.unlink(f)
-        raise
 
 
 def write_study(study: SimulatedStudy, output: str | os.PathLike | None = None,

@@ -18,6 +18,7 @@ from __future__ import annotations
 
 import os
 from dataclasses import dataclass
+from typing import IO
 
 import numpy as np
 
@@ -173,7 +174,7 @@ def build_reference(layout: GenomeLayout, rng: np.random.Generator) -> Reference
     return ReferenceGenome(seqs, phase, genes, real)
 
 
-def write_fasta(fh, names: list[str], seqs: list[np.ndarray], width: int = 60) -> None:
+def write_fasta(fh: IO[str], names: list[str], seqs: list[np.ndarray], width: int = 60) -> None:
     """Write sequences (base codes) as FASTA to an open text file."""
     letters = np.frombuffer(BASES.encode(), dtype=np.uint8)
     for name, seq in zip(names, seqs):
@@ -183,7 +184,7 @@ def write_fasta(fh, names: list[str], seqs: list[np.ndarray], width: int = 60) -
         fh.write("\n")
 
 
-def write_gff3(fh, names: list[str], lengths: list[int], ref: ReferenceGenome,
+def write_gff3(fh: IO[str], names: list[str], lengths: list[int], ref: ReferenceGenome,
                source: str = "driftband_simulate") -> None:
     """Write the genes as GFF3 (gene → mRNA → exon + CDS, plus strand, phase 0)."""
     fh.write("##gff-version 3\n")

@@ -33,7 +33,7 @@ import math
 import warnings
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field
-from typing import Any
+from typing import Any, cast
 
 import numpy as np
 
@@ -349,7 +349,7 @@ def simulate_study(populations: Sequence[PopulationModel], dfe: SimDFE,
     if divergence_generations < 0:
         raise OptionError("--divergence-generations must be >= 0")
     if seed is None:
-        seed = int(np.random.SeedSequence().entropy % (2**63))
+        seed = int(cast(int, np.random.SeedSequence().entropy) % (2**63))
     seed = int(seed)
     if seed < 0:
         raise OptionError(f"--seed {seed}: must be >= 0")

@@ -1,7 +1,7 @@
 """The Wright–Fisher generation: selection on a semidominant diploid, then binomial drift.
 
-Genotype fitnesses 1 : 1+s : 1+2s (DESIGN §2). Under random mating the derived-allele
-frequency after selection is exactly
+Genotype fitnesses 1 : 1+s : 1+2s (semidominance; the README's conventions). Under random
+mating the derived-allele frequency after selection is exactly
 
     p' = p (1 + s + s p) / (1 + 2 s p),
 

@@ -10,6 +10,7 @@ import gzip
 import os
 from collections.abc import Iterable
 from dataclasses import dataclass, field
+from typing import TextIO
 
 import numpy as np
 
@@ -118,7 +119,7 @@ class SiteClasses:
         return {c for s in self.classes.values() for c in s.chroms}
 
 
-def _open_text(path: str | os.PathLike):
+def _open_text(path: str | os.PathLike) -> TextIO:
     p = os.fspath(path)
     with open(p, "rb") as fh:
         magic = fh.read(2)

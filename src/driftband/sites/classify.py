@@ -30,6 +30,7 @@ import logging
 import os
 from collections.abc import Iterable, Iterator, Sequence
 from dataclasses import dataclass, field
+from typing import TYPE_CHECKING
 
 import numpy as np
 
@@ -38,6 +39,9 @@ from ..exceptions import InputError, OptionError
 from .bed import IntervalSet, SiteClasses
 from .codes import DEGENERACY_NAMES, GeneticCode, genetic_code
 from .gff import Annotation, Transcript, read_gff3
+
+if TYPE_CHECKING:
+    import pysam
 
 __all__ = [
     "EXCLUSION_REASONS",
@@ -396,7 +400,7 @@ def _is_bgzf(head: bytes) -> bool:
         and head[12:14] == b"BC"
 
 
-def open_fasta(path: str | os.PathLike):
+def open_fasta(path: str | os.PathLike) -> pysam.FastaFile:
     """Open a reference FASTA with pysam, creating its ``.fai`` (and ``.gzi``) if absent.
 
     Parameters
@@ -476,14 +480,16 @@ def _check_bounds(transcripts: Iterable[Transcript], chrom: str, length: int,
                              "match this FASTA", path, int(t.lines[k]))
 
 
-def _prepare(fasta, gff, chroms):
+def _prepare(fasta: str | os.PathLike, gff: str | os.PathLike | Annotation,
+             chroms: Iterable[str] | None
+             ) -> tuple[Annotation, pysam.FastaFile, dict[str, list[Transcript]], list[str]]:
     ann = gff if isinstance(gff, Annotation) else read_gff3(gff)
     fa = open_fasta(fasta)
     refs = list(fa.references)
     missing = [s for s in ann.seqids() if s not in set(refs)]
     if missing:
         fa.close()
-        raise _missing_seqid_error(ann, missing, refs, fa.filename.decode())
+        raise _missing_seqid_error(ann, missing, refs, os.fsdecode(fa.filename))
     by_chrom: dict[str, list[Transcript]] = {}
     for t in ann.transcripts:
         by_chrom.setdefault(t.seqid, []).append(t)
@@ -498,7 +504,7 @@ def _prepare(fasta, gff, chroms):
     return ann, fa, by_chrom, order
 
 
-def _chrom_array(fa, chrom: str) -> np.ndarray:
+def _chrom_array(fa: pysam.FastaFile, chrom: str) -> np.ndarray:
     return np.frombuffer(fa.fetch(chrom).encode("ascii"), dtype=np.uint8)
 
 

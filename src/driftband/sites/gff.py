@@ -18,6 +18,7 @@ from __future__ import annotations
 import gzip
 import os
 from dataclasses import dataclass, field
+from typing import TextIO
 from urllib.parse import unquote
 
 import numpy as np
@@ -103,7 +104,7 @@ _LEAF_TYPES = frozenset({"exon", "intron", "five_prime_UTR", "three_prime_UTR",
                          "start_codon", "stop_codon", "region", "repeat_region"})
 
 
-def _open_text(path: str):
+def _open_text(path: str) -> TextIO:
     with open(path, "rb") as fh:
         magic = fh.read(2)
     if magic == b"\x1f\x8b":

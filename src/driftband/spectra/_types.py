@@ -1,10 +1,11 @@
 """Plain data objects of the spectra stage: the hand-off point between counting and fitting.
 
-Conventions: a spectrum of ``n`` sampled gene copies has ``n + 1`` entries;
-entry ``i`` counts callable sites of the class with ``i`` derived copies, entry 0 includes
-callable sites absent from the VCF, entry ``n`` counts sites fixed for the derived allele
-in the sample (divergence). A folded spectrum has ``n // 2 + 1`` entries (minor-allele
-counts). In every spectrum the entries add up to the callable-site count.
+Conventions (the README's "Conventions" section): a spectrum of ``n`` sampled gene copies
+has ``n + 1`` entries; entry ``i`` counts callable sites of the class with ``i`` derived
+copies, entry 0 includes callable sites absent from the VCF, entry ``n`` counts sites fixed
+for the derived allele in the sample (divergence). A folded spectrum has ``n // 2 + 1``
+entries (minor-allele counts). In every spectrum the entries add up to the callable-site
+count.
 """
 
 from __future__ import annotations

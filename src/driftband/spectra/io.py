@@ -53,6 +53,7 @@ __all__ = [
     "SCHEMA",
     "SCHEMA_VERSION",
     "add_diversity",
+    "check_spectra_schema",
     "read_spectra",
     "read_spectra_json",
     "read_spectra_tsv",
@@ -146,12 +147,7 @@ def read_spectra_json(path: str | os.PathLike) -> SpectraSet:
         raise _fail(path, "file not found") from None
     except (json.JSONDecodeError, UnicodeDecodeError) as err:
         raise _fail(path, f"not a spectra JSON file ({err})") from None
-    if not isinstance(doc, dict) or doc.get("schema") != SCHEMA:
-        raise _fail(path, f"not a spectra file (expected \"schema\": \"{SCHEMA}\")")
-    ver = doc.get("schema_version")
-    if ver != SCHEMA_VERSION:
-        raise _fail(path, f"spectra schema version {ver!r} is not supported "
-                          f"(this driftband reads version {SCHEMA_VERSION})")
+    check_spectra_schema(doc, path)
     try:
         blocks = [Block(str(b["chrom"]), int(b["start"]), int(b["end"]), str(b.get("name", "")))
                   for b in doc.get("blocks", [])]
@@ -184,6 +180,30 @@ def read_spectra_json(path: str | os.PathLike) -> SpectraSet:
     except (KeyError, TypeError, ValueError) as err:
         raise _fail(path, f"malformed spectra file ({type(err).__name__}: {err})") from None
     return SpectraSet(pops, blocks, dict(doc.get("skipped", {})), dict(doc.get("provenance", {})))
+
+
+def check_spectra_schema(doc: Any, path: str | os.PathLike | None = None) -> None:
+    """Raise InputError unless ``doc`` is a spectra document of the supported version.
+
+    Parameters
+    ----------
+    doc : object
+        A parsed JSON document.
+    path : path-like, optional
+        Its file, named in the error message.
+
+    Raises
+    ------
+    InputError
+        Not a dict with ``"schema": "driftband-spectra"``, or another ``schema_version``.
+    """
+    if not isinstance(doc, dict) or doc.get("schema") != SCHEMA:
+        raise _fail(path, f"not a spectra file (expected \"schema\": \"{SCHEMA}\"; make one "
+                          "with 'driftband spectra')")
+    ver = doc.get("schema_version")
+    if ver != SCHEMA_VERSION:
+        raise _fail(path, f"spectra schema version {ver!r} is not supported "
+                          f"(this driftband reads version {SCHEMA_VERSION})")
 
 
 def read_spectra_tsv(path: str | os.PathLike, folded: bool | None = None) -> SpectraSet:
