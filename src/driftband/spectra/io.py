@@ -128,7 +128,7 @@ def write_spectra_tsv(ss: SpectraSet, path: str | os.PathLike, force: bool = Fal
                     w.writerow([name, c, pop.n, str(pop.folded).lower(), i, v])
 
 
-def _fail(path: str | os.PathLike, msg: str) -> InputError:
+def _fail(path: str | os.PathLike | None, msg: str) -> InputError:
     return InputError(msg, path)
 
 
