@@ -23,7 +23,7 @@ from scipy import integrate, stats
 from driftband.fit.likelihood import SpectrumPair
 from driftband.fit.mle import fit_model
 from driftband.fit.models import DfeModel
-from driftband.prf.dfe import DfeExpectation, GammaDfe
+from driftband.prf import DfeExpectation, GammaDfe
 from driftband.prf.expected import kernel
 
 TARGETS = {40: 0.2, 200: 1.0}

@@ -14,7 +14,7 @@ from scipy import optimize
 from driftband.fit.likelihood import SpectrumPair, poisson_loglik, profile_counts
 from driftband.fit.mle import fit_model
 from driftband.fit.models import DfeModel
-from driftband.prf.dfe import DfeExpectation, GammaDfe, band_shares
+from driftband.prf import DfeExpectation, GammaDfe, band_shares
 
 
 def _model_spectra(n, dfe, theta, Ln, Ls, r=None, eps=0.0):

@@ -38,7 +38,8 @@ from ..fit.models import DfeModel
 from ..fit.optimize import minimize_multistart
 from ..fit.options import FitOptions
 from ..fit.results import PopulationFit
-from ..prf.dfe import DfeExpectation, band_shares
+from ..prf.dfe import DfeExpectation
+from ..prf.families import band_shares
 from ..spectra.stats import pi_theta_counts
 
 __all__ = ["ComparisonRow", "compare_pair", "neutral_pi", "scale_shift"]

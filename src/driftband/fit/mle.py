@@ -17,7 +17,8 @@ import numpy as np
 
 from ..defaults import DEFAULT_EDGES_NES
 from ..exceptions import ConvergenceWarning
-from ..prf.dfe import DfeExpectation, band_shares, mean_fixation_ratio
+from ..prf.dfe import DfeExpectation, mean_fixation_ratio
+from ..prf.families import band_shares
 from .likelihood import Objective, SpectrumPair
 from .models import DfeModel
 from .optimize import minimize_multistart

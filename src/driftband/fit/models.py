@@ -1,7 +1,7 @@
 """DFE model specifications for the fit: parameters, transforms and starting points.
 
 A :class:`DfeModel` maps an unconstrained vector (what the optimiser sees) to a DFE
-object of :mod:`driftband.prf.dfe` and back. Transforms: log for positive parameters,
+object of :mod:`driftband.prf.families` and back. Transforms: log for positive parameters,
 softmax for band masses, logit for probabilities.
 """
 
@@ -14,7 +14,7 @@ import numpy as np
 
 from ..defaults import DEFAULT_EDGES_NES
 from ..exceptions import OptionError
-from ..prf.dfe import DiscreteDfe, GammaDfe, LognormalDfe, WithBeneficial
+from ..prf.families import DiscreteDfe, GammaDfe, LognormalDfe, WithBeneficial
 
 __all__ = ["FAMILIES", "DfeModel", "parse_models"]
 

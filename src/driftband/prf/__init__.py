@@ -2,21 +2,12 @@
 
 No I/O happens in this subpackage. See :mod:`driftband.prf.expected` (expected spectra
 under the equilibrium Poisson random field of Sawyer & Hartl 1992, folding,
-misorientation, Kimura's fixation ratio) and :mod:`driftband.prf.dfe` (DFE families on
-S = 4 Ne s, band shares, DFE-averaged spectra).
+misorientation, Kimura's fixation ratio), :mod:`driftband.prf.families` (DFE families on
+S = 4 Ne s, band shares) and :mod:`driftband.prf.dfe` (DFE-averaged spectra, the mean
+fixation ratio).
 """
 
-from .dfe import (
-    DfeExpectation,
-    DiscreteDfe,
-    GammaDfe,
-    LognormalDfe,
-    WithBeneficial,
-    band_shares,
-    deleterious_band_shares,
-    mean_fixation_ratio,
-    sample_S,
-)
+from .dfe import DfeExpectation, mean_fixation_ratio
 from .expected import (
     SfsKernel,
     expected_sfs,
@@ -25,6 +16,15 @@ from .expected import (
     kernel,
     log_fixation_ratio,
     misorient,
+)
+from .families import (
+    DiscreteDfe,
+    GammaDfe,
+    LognormalDfe,
+    WithBeneficial,
+    band_shares,
+    deleterious_band_shares,
+    sample_S,
 )
 
 __all__ = [
