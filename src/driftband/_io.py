@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import contextlib
 import datetime as _dt
+import gzip
 import hashlib
 import os
 import platform
@@ -17,8 +18,8 @@ import numpy as np
 
 from .exceptions import OutputExistsError
 
-__all__ = ["atomic_output", "check_outputs", "file_record", "json_ready", "provenance",
-           "sha256sum", "tsv_cell"]
+__all__ = ["atomic_output", "check_outputs", "file_record", "json_ready", "open_text",
+           "provenance", "sha256sum", "tsv_cell"]
 
 
 def check_outputs(paths: Iterable[str | os.PathLike | None], force: bool = False) -> None:
@@ -192,3 +193,25 @@ def tsv_cell(v: Any) -> str:
             return ""
         return "inf" if v == float("inf") else f"{v:.6g}"
     return str(v)
+
+
+def open_text(path: str | os.PathLike, errors: str = "strict") -> IO[str]:
+    """Open a UTF-8 text file that may be gzip-compressed (told by its magic bytes).
+
+    Parameters
+    ----------
+    path : path-like
+    errors : str
+        How undecodable bytes are handled (see :func:`open`).
+
+    Returns
+    -------
+    file object
+        In text mode, with universal newlines off (``newline=""``).
+    """
+    p = os.fspath(path)
+    with open(p, "rb") as fh:
+        magic = fh.read(2)
+    if magic == b"\x1f\x8b":
+        return gzip.open(p, "rt", encoding="utf-8", errors=errors, newline="")
+    return open(p, encoding="utf-8", errors=errors, newline="")

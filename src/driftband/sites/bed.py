@@ -6,15 +6,13 @@ disjoint, merged intervals. No model code here.
 
 from __future__ import annotations
 
-import gzip
 import os
 from collections.abc import Iterable
 from dataclasses import dataclass, field
-from typing import TextIO
 
 import numpy as np
 
-from .._io import atomic_output
+from .._io import atomic_output, open_text
 from ..exceptions import InputError
 
 __all__ = [
@@ -119,15 +117,6 @@ class SiteClasses:
         return {c for s in self.classes.values() for c in s.chroms}
 
 
-def _open_text(path: str | os.PathLike) -> TextIO:
-    p = os.fspath(path)
-    with open(p, "rb") as fh:
-        magic = fh.read(2)
-    if magic == b"\x1f\x8b":
-        return gzip.open(p, "rt", encoding="utf-8", newline="")
-    return open(p, encoding="utf-8", newline="")
-
-
 def read_bed(path: str | os.PathLike, need_name: bool = False,
              ) -> dict[str, dict[str, tuple[list[int], list[int]]]]:
     """Read a BED file (plain or gzip) into ``name -> chrom -> (starts, ends)``.
@@ -143,7 +132,7 @@ def read_bed(path: str | os.PathLike, need_name: bool = False,
     """
     out: dict[str, dict[str, tuple[list[int], list[int]]]] = {}
     try:
-        fh = _open_text(path)
+        fh = open_text(path)
     except FileNotFoundError:
         raise InputError("file not found", path) from None
     with fh:

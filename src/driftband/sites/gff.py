@@ -18,11 +18,11 @@ from __future__ import annotations
 import gzip
 import os
 from dataclasses import dataclass, field
-from typing import TextIO
 from urllib.parse import unquote
 
 import numpy as np
 
+from .._io import open_text
 from ..exceptions import InputError
 
 __all__ = ["Annotation", "Transcript", "read_gff3"]
@@ -104,14 +104,6 @@ _LEAF_TYPES = frozenset({"exon", "intron", "five_prime_UTR", "three_prime_UTR",
                          "start_codon", "stop_codon", "region", "repeat_region"})
 
 
-def _open_text(path: str) -> TextIO:
-    with open(path, "rb") as fh:
-        magic = fh.read(2)
-    if magic == b"\x1f\x8b":
-        return gzip.open(path, "rt", encoding="utf-8", errors="replace", newline="")
-    return open(path, encoding="utf-8", errors="replace", newline="")
-
-
 def _attributes(text: str) -> dict[str, str]:
     """Parse column 9 into raw (still percent-encoded) values; tags are case-sensitive."""
     out: dict[str, str] = {}
@@ -157,7 +149,7 @@ def read_gff3(path: str | os.PathLike) -> Annotation:
     """
     p = os.fspath(path)
     try:
-        fh = _open_text(p)
+        fh = open_text(p, errors="replace")
     except FileNotFoundError:
         raise InputError("file not found", p) from None
     parent_of: dict[str, str] = {}     # feature ID -> its first Parent

@@ -227,10 +227,10 @@ def read_blocks(path: str | os.PathLike) -> dict[str, list[Block]]:
         (both named).
     """
     read_bed(path)  # validates every line, with its number
-    from ..sites.bed import _open_text
+    from .._io import open_text
 
     out: dict[str, list[tuple[int, int, str, int]]] = {}
-    with _open_text(path) as fh:
+    with open_text(path) as fh:
         for ln, line in enumerate(fh, start=1):
             if not line.strip() or line.startswith(("#", "track", "browser")):
                 continue
