@@ -139,11 +139,11 @@ def run_log(path: Path) -> Iterator[RunLog]:
     for lg in (logging.getLogger("driftband"), logging.getLogger("py.warnings")):
         eff = lg.getEffectiveLevel()
         if not lg.hasHandlers():
-            h = logging.StreamHandler(sys.stderr)
-            h.setLevel(logging.WARNING)
-            h.setFormatter(logging.Formatter("driftband: %(message)s"))
-            lg.addHandler(h)
-            extra.append((lg, h))
+            sh = logging.StreamHandler(sys.stderr)
+            sh.setLevel(logging.WARNING)
+            sh.setFormatter(logging.Formatter("driftband: %(message)s"))
+            lg.addHandler(sh)
+            extra.append((lg, sh))
         for h in lg.handlers:
             if h.level == logging.NOTSET:
                 h.setLevel(eff)
