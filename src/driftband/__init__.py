@@ -17,6 +17,8 @@ The public API mirrors the command line, stage by stage:
 - simulate: :func:`simulate_study`
 """
 
+import typing as _typing
+
 from ._version import __version__
 from .exceptions import (
     ConvergenceWarning,
@@ -62,7 +64,7 @@ _LAZY = {
 }
 
 
-def __getattr__(name: str):
+def __getattr__(name: str) -> _typing.Any:
     mod = _LAZY.get(name)
     if mod is None:
         raise AttributeError(f"module 'driftband' has no attribute {name!r}")

@@ -12,7 +12,7 @@ import sys
 import tempfile
 from collections.abc import Iterable, Iterator
 from pathlib import Path
-from typing import IO, Any
+from typing import IO, Any, overload
 
 import numpy as np
 
@@ -100,6 +100,12 @@ def sha256sum(path: str | os.PathLike, chunk: int = 1 << 20) -> str:
     return h.hexdigest()
 
 
+@overload
+def file_record(path: str | os.PathLike) -> dict[str, Any]: ...
+@overload
+def file_record(path: None) -> None: ...
+@overload
+def file_record(path: str | os.PathLike | None) -> dict[str, Any] | None: ...
 def file_record(path: str | os.PathLike | None) -> dict[str, Any] | None:
     """Path, size and SHA-256 of an input file (``-`` for standard input)."""
     if path is None:

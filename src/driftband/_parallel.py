@@ -39,8 +39,9 @@ import socket
 import sys
 import threading
 import time
-from collections.abc import Callable, Iterable
+from collections.abc import Callable, Iterable, Iterator
 from concurrent.futures.process import BrokenProcessPool
+from multiprocessing.context import BaseContext
 from typing import Any
 
 from .exceptions import DriftbandError, OptionError
@@ -125,7 +126,7 @@ def _foreign_threads() -> list[threading.Thread]:
             if t is not main and not t.name.startswith("driftband-")]
 
 
-def _mp_context():
+def _mp_context() -> BaseContext:
     """Start method of local workers: the platform's default (``fork`` on Linux: workers
     start at once, with everything imported), but ``spawn`` when other threads run in
     this process (forking them can deadlock a child)."""
@@ -158,10 +159,14 @@ class _LocalBackend:
         self.abort()
         self.start()
 
-    def submit(self, fn, task, index: int, attempt: int):
+    def submit(self, fn: Callable[[Any], Any], task: Any, index: int,
+               attempt: int) -> cf.Future[tuple[bool, Any]]:
+        if self.pool is None:   # only after abort() or close(), which end the run
+            raise RuntimeError("the worker pool is shut down")
         return self.pool.submit(_call, fn, task)
 
-    def wait(self, futures) -> set:
+    def wait(self, futures: Iterable[cf.Future[tuple[bool, Any]]]
+             ) -> set[cf.Future[tuple[bool, Any]]]:
         done, _ = cf.wait(futures, return_when=cf.FIRST_COMPLETED)
         return done
 
@@ -188,10 +193,10 @@ class _LocalBackend:
 class _DaskBackend:
     """Tasks on a dask.distributed cluster through a Client."""
 
-    def __init__(self, client, retries: int, owned: bool, name: str) -> None:
+    def __init__(self, client: Any, retries: int, owned: bool, name: str) -> None:
         from distributed import KilledWorker
 
-        self.client = client
+        self.client: Any = client   # a distributed.Client (no type stubs); None when closed
         self.retries = retries
         self.owned = owned
         self.name = name
@@ -215,12 +220,12 @@ class _DaskBackend:
                 pass
         return max(self._slots, 2)
 
-    def submit(self, fn, task, index: int, attempt: int):
+    def submit(self, fn: Callable[[Any], Any], task: Any, index: int, attempt: int) -> Any:
         return self.client.submit(_call, fn, task, retries=self.retries, pure=False,
                                   key=f"driftband-{self.name}-{self._token}-{index}-{attempt}",
                                   priority=-index)
 
-    def wait(self, futures) -> set:
+    def wait(self, futures: Iterable[Any]) -> set[Any]:
         from distributed import wait
 
         with self.client.as_current():
@@ -239,7 +244,7 @@ class _DaskBackend:
 # ---------------------------------------------------------------------------- dask
 
 @contextlib.contextmanager
-def _quiet_dask():
+def _quiet_dask() -> Iterator[None]:
     """Keep distributed's connection chatter off stderr (driftband says it in one line)."""
     names = ("distributed", "tornado", "asyncio")
     old = {n: logging.getLogger(n).level for n in names}
@@ -331,7 +336,7 @@ def _within(make: Callable[[], Any], seconds: float) -> Any:
     return box["value"]
 
 
-def connect(address: str, timeout: float | None = None):
+def connect(address: str, timeout: float | None = None) -> Any:
     """A :class:`distributed.Client` of the scheduler at ``address``.
 
     Parameters
@@ -376,14 +381,15 @@ def connect(address: str, timeout: float | None = None):
     return client
 
 
-def scheduler_address(scheduler) -> str | None:
+def scheduler_address(scheduler: Any) -> str | None:
     """The address of a scheduler given as an address or a Client (for provenance)."""
     if scheduler is None or isinstance(scheduler, str):
         return scheduler
     return str(getattr(getattr(scheduler, "scheduler", None), "address", scheduler))
 
 
-def _backend(workers: int | None, scheduler, retries: int, name: str):
+def _backend(workers: int | None, scheduler: Any, retries: int,
+             name: str) -> _LocalBackend | _DaskBackend | None:
     """``None`` (run in this process), a local pool or a dask backend."""
     if scheduler is not None and not (isinstance(scheduler, str) and not scheduler.strip()):
         if isinstance(scheduler, str):
@@ -403,7 +409,8 @@ def _lost(index: int, attempts: int, err: BaseException | None) -> WorkerLostErr
                            "--region-size)")
 
 
-def _run(fn: Callable[[Any], Any], tasks: Iterable[Any], backend,
+def _run(fn: Callable[[Any], Any], tasks: Iterable[Any],
+         backend: _LocalBackend | _DaskBackend | None,
          on_result: Callable[[int, Any], None], window: int | None = None,
          retries: int = DEFAULT_RETRIES) -> int:
     """Run every task, calling ``on_result(index, result)`` once per task index.
@@ -442,7 +449,7 @@ def _run(fn: Callable[[Any], Any], tasks: Iterable[Any], backend,
         fill()
         while pending:
             done = backend.wait(list(pending))
-            broken: list[tuple[int, Any, int, BaseException]] = []
+            broken: list[tuple[int, Any, int, BaseException | None]] = []
             for fut in sorted(done, key=lambda f: pending[f][0]):
                 i, task, attempts = pending.pop(fut)
                 try:
@@ -464,17 +471,17 @@ def _run(fn: Callable[[Any], Any], tasks: Iterable[Any], backend,
                 if not isinstance(backend, _LocalBackend):
                     # the scheduler already reran the task on other workers, up to
                     # distributed.scheduler.allowed-failures times
-                    i, _task, _attempts, err = broken[0]
-                    raise _lost(i, backend.allowed_failures + 1, err)
+                    i, _task, _attempts, why = broken[0]
+                    raise _lost(i, backend.allowed_failures + 1, why)
                 # the whole pool is gone: every task not returned is submitted again
                 broken += [(i, t, a, None) for i, t, a in pending.values()]
                 pending.clear()
                 log.warning("a worker process died; restarting the workers and "
                             "resubmitting %d task(s)", len(broken))
                 backend.restart()
-                for i, task, attempts, err in sorted(broken, key=lambda x: x[0]):
+                for i, task, attempts, why in sorted(broken, key=lambda x: x[0]):
                     if attempts >= retries:
-                        raise _lost(i, attempts + 1, err)
+                        raise _lost(i, attempts + 1, why)
                     pending[backend.submit(fn, task, i, attempts + 1)] = (i, task,
                                                                           attempts + 1)
             while lowest_open[0] in finished:
@@ -489,9 +496,9 @@ def _run(fn: Callable[[Any], Any], tasks: Iterable[Any], backend,
 
 
 def parallel_map(fn: Callable[[Any], Any], tasks: Iterable[Any], *,
-                 workers: int | None = None, scheduler=None,
+                 workers: int | None = None, scheduler: Any = None,
                  retries: int = DEFAULT_RETRIES, name: str = "task",
-                 on_result: Callable[[int, Any], None] | None = None) -> list:
+                 on_result: Callable[[int, Any], None] | None = None) -> list[Any]:
     """``[fn(t) for t in tasks]``, run on worker processes or a dask cluster.
 
     Parameters
@@ -530,8 +537,8 @@ def parallel_map(fn: Callable[[Any], Any], tasks: Iterable[Any], *,
     return [out[i] for i in range(n)]
 
 
-def dask_map(fn: Callable[[Any], Any], tasks: Iterable[Any], scheduler,
-             retries: int = DEFAULT_RETRIES) -> list:
+def dask_map(fn: Callable[[Any], Any], tasks: Iterable[Any], scheduler: Any,
+             retries: int = DEFAULT_RETRIES) -> list[Any]:
     """:func:`parallel_map` on a dask cluster (address or Client)."""
     return parallel_map(fn, tasks, scheduler=scheduler, retries=retries)
 
@@ -579,7 +586,8 @@ def tree_reduce(values: Iterable[Any], combine: Callable[[Any, Any], Any],
 
 def map_reduce(fn: Callable[[Any], Any], tasks: Iterable[Any],
                combine: Callable[[Any, Any], Any], *, empty: Callable[[], Any] | None = None,
-               workers: int | None = None, scheduler=None, retries: int = DEFAULT_RETRIES,
+               workers: int | None = None, scheduler: Any = None,
+               retries: int = DEFAULT_RETRIES,
                name: str = "task", on_result: Callable[[int, Any], None] | None = None
                ) -> Any:
     """Run ``fn`` over ``tasks`` in parallel and combine the results in a fixed tree.

@@ -5,11 +5,20 @@ from __future__ import annotations
 import argparse
 import logging
 import textwrap
+from collections.abc import Callable
+from typing import Any, TypeVar, overload
 
-__all__ = ["add_common_arguments", "add_subcommand", "parse_kv", "progress_on_stderr"]
+__all__ = ["Subparsers", "add_common_arguments", "add_subcommand", "parse_kv",
+           "progress_on_stderr"]
+
+#: What ``ArgumentParser.add_subparsers()`` returns (an action class that argparse keeps
+#: private), handed to each subcommand's ``add_parser``.
+Subparsers = Any
+
+_T = TypeVar("_T")
 
 
-def add_subcommand(subparsers, name: str, help: str, description: str,
+def add_subcommand(subparsers: Subparsers, name: str, help: str, description: str,
                    examples: str) -> argparse.ArgumentParser:
     """Register a subcommand with a description and an Examples epilog."""
     p = subparsers.add_parser(
@@ -33,11 +42,17 @@ def add_common_arguments(p: argparse.ArgumentParser, output: bool = True) -> Non
         g.add_argument("--force", action="store_true", help="overwrite existing outputs")
 
 
-def parse_kv(items: list[str] | None, option: str, convert=str) -> dict[str, object]:
+@overload
+def parse_kv(items: list[str] | None, option: str) -> dict[str, str]: ...
+@overload
+def parse_kv(items: list[str] | None, option: str,
+             convert: Callable[[str], _T]) -> dict[str, _T]: ...
+def parse_kv(items: list[str] | None, option: str,
+             convert: Callable[[str], Any] = str) -> dict[str, Any]:
     """Parse ``KEY=VALUE`` items of a repeated option into a dict (errors name the option)."""
     from ..exceptions import OptionError
 
-    out: dict[str, object] = {}
+    out: dict[str, Any] = {}
     for it in items or []:
         if "=" not in it:
             raise OptionError(f"{option} expects KEY=VALUE, got {it!r}")

@@ -11,7 +11,7 @@ from ..exceptions import OptionError
 from ..sites.bed import write_bed4
 from ..sites.classify import classify_sites, write_summary
 from ..sites.codes import NCBI_TABLES
-from ._common import add_common_arguments, add_subcommand
+from ._common import Subparsers, add_common_arguments, add_subcommand
 
 log = logging.getLogger("driftband")
 
@@ -23,7 +23,7 @@ driftband classify --fasta mito.fa --gff mito.gff3 --code 2 -o mito.sites.bed
 """
 
 
-def add_parser(subparsers) -> argparse.ArgumentParser:
+def add_parser(subparsers: Subparsers) -> argparse.ArgumentParser:
     """Register ``classify``."""
     p = add_subcommand(
         subparsers, "classify",

@@ -7,7 +7,7 @@ import logging
 
 from .._io import check_outputs
 from ..defaults import COMPARE_TESTS
-from ._common import add_common_arguments, add_subcommand, parse_kv
+from ._common import Subparsers, add_common_arguments, add_subcommand, parse_kv
 
 log = logging.getLogger("driftband")
 
@@ -19,7 +19,7 @@ driftband compare snails.json slugs.json --relative-mutation-rate slugs/north=1.
 
 
 
-def add_parser(subparsers) -> None:
+def add_parser(subparsers: Subparsers) -> None:
     """Register ``driftband compare``."""
     p = add_subcommand(
         subparsers, "compare", help="test whether populations differ",

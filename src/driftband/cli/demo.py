@@ -5,7 +5,7 @@ from __future__ import annotations
 import argparse
 import sys
 
-from ._common import add_common_arguments, add_subcommand, progress_on_stderr
+from ._common import Subparsers, add_common_arguments, add_subcommand, progress_on_stderr
 
 __all__ = ["add_parser", "run"]
 
@@ -26,7 +26,7 @@ driftband demo --out-dir demo-full --bootstrap 200 --workers 4
 """
 
 
-def add_parser(subparsers) -> argparse.ArgumentParser:
+def add_parser(subparsers: Subparsers) -> argparse.ArgumentParser:
     """Register the ``demo`` subcommand."""
     p = add_subcommand(subparsers, "demo", help="run the whole job on the shipped demo "
                        "study and print where the report is", description=DESCRIPTION,

@@ -10,7 +10,7 @@ from typing import Any
 from .._io import check_outputs, file_record, provenance
 from ..defaults import DEFAULT_MODELS, format_edges
 from ..exceptions import OptionError
-from ._common import add_common_arguments, add_subcommand, parse_kv
+from ._common import Subparsers, add_common_arguments, add_subcommand, parse_kv
 
 log = logging.getLogger("driftband")
 
@@ -34,7 +34,7 @@ def parse_bands(text: str) -> tuple[float, ...]:
     return check_edges(edges)
 
 
-def add_parser(subparsers) -> None:
+def add_parser(subparsers: Subparsers) -> None:
     """Register ``driftband fit``."""
     p = add_subcommand(
         subparsers, "fit", help="fit DFE models to spectra",
@@ -117,7 +117,7 @@ def run(args: argparse.Namespace) -> int:
             client.close()
 
 
-def _run(args: argparse.Namespace, options: Any, labels: dict[str, object],
+def _run(args: argparse.Namespace, options: Any, labels: dict[str, str],
          client: Any) -> int:
     from ..fit.api import LabelledSpectra, block_spectra, fit_spectra
     from ..fit.io import fit_document, write_bands_tsv, write_fit_json

@@ -6,10 +6,11 @@ import argparse
 import logging
 import os
 import sys
+from typing import Any
 
 from .._io import atomic_output, check_outputs, file_record, provenance
 from ..exceptions import OptionError
-from ._common import add_common_arguments, add_subcommand
+from ._common import Subparsers, add_common_arguments, add_subcommand
 
 log = logging.getLogger("driftband")
 
@@ -21,7 +22,7 @@ driftband report fit.json --spectra snails=snails.json --spectra slugs=slugs.jso
 """
 
 
-def add_parser(subparsers) -> None:
+def add_parser(subparsers: Subparsers) -> None:
     """Register ``driftband report``."""
     p = add_subcommand(
         subparsers, "report", help="write the HTML report of a study",
@@ -82,14 +83,14 @@ def run(args: argparse.Namespace) -> int:
     spectra_args = _spectra_args(args.spectra)
     fit_doc = read_fit_doc(args.fit)
     rows = read_compare_tsv(args.compare) if args.compare else None
-    spectra = {}
+    spectra: dict[str, Any] = {}
     for key, path in spectra_args:
         doc = read_spectra_doc(path)
         if key == path:
             spectra[path] = doc
         else:
             spectra[key] = doc
-    inputs = {"fit": file_record(args.fit)}
+    inputs: dict[str, Any] = {"fit": file_record(args.fit)}
     if args.compare:
         inputs["compare"] = file_record(args.compare)
     if spectra_args:

@@ -4,9 +4,13 @@ from __future__ import annotations
 
 import argparse
 import sys
+from typing import TYPE_CHECKING
 
 from ..exceptions import OptionError
-from ._common import add_common_arguments, add_subcommand, progress_on_stderr
+from ._common import Subparsers, add_common_arguments, add_subcommand, progress_on_stderr
+
+if TYPE_CHECKING:
+    from ..run import Study
 
 __all__ = ["add_parser", "run", "study_from_args"]
 
@@ -50,7 +54,7 @@ _FIT_FLAGS = {"dfe": "--dfe", "bands": "--bands", "misorientation": "--misorient
               "equilibrium": "--equilibrium", "beneficial": "--beneficial"}
 
 
-def add_parser(subparsers) -> argparse.ArgumentParser:
+def add_parser(subparsers: Subparsers) -> argparse.ArgumentParser:
     """Register the ``run`` subcommand."""
     p = add_subcommand(subparsers, "run", help="the whole job of a study into one output "
                        "folder (report, tables, provenance)", description=DESCRIPTION,
@@ -105,7 +109,7 @@ def add_parser(subparsers) -> argparse.ArgumentParser:
     return p
 
 
-def study_from_args(args: argparse.Namespace):
+def study_from_args(args: argparse.Namespace) -> Study:
     """The :class:`~driftband.run.Study` of the parsed arguments (file or flags)."""
     from ..run import read_study, study_from_dict
 

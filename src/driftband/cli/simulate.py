@@ -8,9 +8,10 @@ import os
 import shlex
 import sys
 import warnings
+from collections.abc import Callable
 
 from ..exceptions import DriftbandWarning, OptionError
-from ._common import add_common_arguments, add_subcommand
+from ._common import Subparsers, add_common_arguments, add_subcommand
 
 log = logging.getLogger("driftband")
 
@@ -59,7 +60,7 @@ driftband simulate --population pop:N=4000,n=30 --history 0:4000,500:1000 \\
     --dfe gamma:shape=0.2,mean=1000 --beneficial p=0.01,S=50 --seed 3 -o exp.json"""
 
 
-def add_parser(subparsers) -> None:
+def add_parser(subparsers: Subparsers) -> None:
     """Register ``driftband simulate``."""
     p = add_subcommand(subparsers, "simulate",
                        help="forward Wright-Fisher simulation of a study (spectra, VCF)",
@@ -141,7 +142,7 @@ def _parse_outgroup(text: str | None) -> tuple[str, int] | None:
         raise OptionError(f"--outgroup {text!r}: n={val!r} is not a whole number") from None
 
 
-def _progress_printer():
+def _progress_printer() -> Callable[[str, int, int], None] | None:
     if not sys.stderr.isatty():
         return None
 
@@ -178,7 +179,9 @@ def run(args: argparse.Namespace) -> int:
         outputs += list(sim.study_paths(args.vcf, args.genome).values())
         sim.check_vcf_options(pops, args.missing, outgroup, args.ref_derived, args.depth)
         if args.genome:
-            sim.check_genome_option([sites["0fold"], sites["4fold"]])
+            import numpy as np
+
+            sim.check_genome_option(np.asarray([sites["0fold"], sites["4fold"]]))
     from .._io import check_outputs
     check_outputs(outputs, args.force)
     options = {k: v for k, v in vars(args).items() if k not in ("runner", "subcommand")}

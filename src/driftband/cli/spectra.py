@@ -8,7 +8,7 @@ import time
 
 from .._io import check_outputs
 from ..exceptions import OptionError
-from ._common import add_common_arguments, add_subcommand
+from ._common import Subparsers, add_common_arguments, add_subcommand
 
 __all__ = ["add_parser", "parse_project", "run"]
 
@@ -39,7 +39,7 @@ driftband spectra calls.vcf.gz --popmap pops.tsv --sites classes.bed \\
 """
 
 
-def add_parser(subparsers) -> argparse.ArgumentParser:
+def add_parser(subparsers: Subparsers) -> argparse.ArgumentParser:
     """Register the ``spectra`` subcommand."""
     p = add_subcommand(subparsers, "spectra", help="VCF -> per-population site frequency "
                        "spectra (JSON + TSV)", description=DESCRIPTION, examples=EXAMPLES)

@@ -56,7 +56,7 @@ def alpha_classic(pn: float, ps: float, dn: float, ds: float) -> float:
     return float(1.0 - (ds * pn) / (dn * ps))
 
 
-def alpha_asymptotic(data: SpectrumPair, x_min: float = 0.1) -> dict[str, float]:
+def alpha_asymptotic(data: SpectrumPair, x_min: float = 0.1) -> dict[str, float | str]:
     """Asymptotic α of Messer & Petrov (2013) over derived-frequency classes.
 
     Parameters
@@ -86,8 +86,8 @@ def alpha_asymptotic(data: SpectrumPair, x_min: float = 0.1) -> dict[str, float]
     w = np.sqrt(data.neutral[ok])
     lin = np.polyfit(xs, ys, 1, w=w)
     lin_rss = float(np.sum((w * (np.polyval(lin, xs) - ys)) ** 2))
-    out = {"alpha": float(np.polyval(lin, 1.0)), "fit": "linear",
-           "slope": float(lin[0]), "intercept": float(lin[1])}
+    out: dict[str, float | str] = {"alpha": float(np.polyval(lin, 1.0)), "fit": "linear",
+                                   "slope": float(lin[0]), "intercept": float(lin[1])}
     try:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")

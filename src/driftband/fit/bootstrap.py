@@ -13,7 +13,7 @@ import logging
 import math
 import warnings
 import zlib
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
@@ -28,11 +28,20 @@ from .mle import fit_model
 from .options import FitOptions
 from .results import BootstrapResult, ConfidenceInterval, ModelBootstrap, PopulationFit
 
+if TYPE_CHECKING:
+    from ..spectra import PopulationSpectra
+
 __all__ = ["bootstrap_fits", "check_bootstrap_settings", "default_batch",
            "percentile_interval", "resample_indices"]
 
 log = logging.getLogger("driftband")
 
+#: One task of the refits: n, folded, the per-block neutral and selected spectra and
+#: callable sites, the block draws of a batch of replicates, the options of the models
+#: refitted and their warm starts (by model name; ``FitResult.x``, None for a fit read
+#: from a file without it).
+_ReplicateBatch = tuple[int, bool, np.ndarray, np.ndarray, np.ndarray, np.ndarray,
+                        np.ndarray, FitOptions, dict[str, np.ndarray | None]]
 
 
 def check_bootstrap_settings(replicates: int, level: float,
@@ -95,17 +104,17 @@ def percentile_interval(values: np.ndarray, level: float = 0.95) -> ConfidenceIn
     return ConfidenceInterval(float(lo), float(hi))
 
 
-def _block_arrays(pop, options: FitOptions) -> tuple[np.ndarray, np.ndarray, np.ndarray,
-                                                     np.ndarray]:
+def _block_arrays(pop: PopulationSpectra, options: FitOptions
+                  ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
     cn, cs = pop.classes[options.neutral], pop.classes[options.selected]
     return cn.block_sfs, cs.block_sfs, cn.block_sites, cs.block_sites
 
 
-def _replicate_task(args) -> list[dict[str, Any]]:
+def _replicate_task(args: _ReplicateBatch) -> list[dict[str, Any]]:
     """Refit one batch of replicates of one population (runs in a worker)."""
     (n, folded, bn, bs, ln, ls, idx_batch, options, starts) = args
     ex = DfeExpectation(n)
-    out = []
+    out: list[dict[str, Any]] = []
     for idx in idx_batch:
         counts = np.bincount(idx, minlength=bn.shape[0])
         try:
@@ -114,13 +123,16 @@ def _replicate_task(args) -> list[dict[str, Any]]:
         except InputError:
             out.append({})
             continue
-        rep = {}
+        rep: dict[str, dict[str, Any]] = {}
         for m in options.models:
             with warnings.catch_warnings():
                 warnings.simplefilter("ignore")
                 f = fit_model(data, m, eps=options.eps, equilibrium=options.equilibrium,
                               edges_nes=options.edges_nes, expectation=ex,
-                              starts=[starts[m.name]], stderr=False)
+                              # a None start becomes NaNs here, as it would in the
+                              # optimiser: every such refit fails and is counted failed
+                              starts=[np.asarray(starts[m.name], dtype=float)],
+                              stderr=False)
             rep[m.name] = {"params": f.params, "eps": f.eps, "shares": f.shares.tolist(),
                            "fixation_ratio": f.fixation_ratio, "theta": f.theta,
                            "loglik": f.loglik, "success": f.success}
@@ -139,7 +151,8 @@ def default_batch(replicates: int, workers: int) -> int:
     return max(1, min(10, math.ceil(replicates / (4 * max(1, workers)))))
 
 
-def bootstrap_fits(fits: list[PopulationFit], pops: dict[str, Any], options: FitOptions,
+def bootstrap_fits(fits: list[PopulationFit], pops: dict[str, PopulationSpectra],
+                   options: FitOptions,
                    replicates: int, seed: int = 1, level: float = 0.95,
                    workers: int | None = None, scheduler: Any = None,
                    batch: int | None = None,
@@ -179,7 +192,8 @@ def bootstrap_fits(fits: list[PopulationFit], pops: dict[str, Any], options: Fit
     if batch is None:
         nw = 1 if scheduler is not None else resolve_workers(workers)
         batch = default_batch(replicates, nw)
-    tasks, owners = [], []
+    tasks: list[_ReplicateBatch] = []
+    owners: list[int] = []
     wanted: list[list[str]] = []
     for k, pf in enumerate(fits):
         pop = pops[pf.population]
@@ -211,7 +225,7 @@ def bootstrap_fits(fits: list[PopulationFit], pops: dict[str, Any], options: Fit
         workers = 1
     results = parallel_map(_replicate_task, tasks, workers=workers, scheduler=scheduler,
                            name="bootstrap")
-    per_pop: dict[int, list] = {}
+    per_pop: dict[int, list[dict[str, Any]]] = {}
     for k, res in zip(owners, results):
         per_pop.setdefault(k, []).extend(res)
     for k, pf in enumerate(fits):

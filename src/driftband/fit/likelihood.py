@@ -25,13 +25,18 @@ of the polymorphisms in each class), by Newton steps over the independent pairs
 from __future__ import annotations
 
 from dataclasses import dataclass
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
+from numpy.typing import ArrayLike
 from scipy.special import gammaln, xlogy
 
 from ..exceptions import InputError
 from ..prf.dfe import DfeExpectation
+
+if TYPE_CHECKING:
+    from ..spectra import PopulationSpectra
+    from .models import DfeModel
 
 __all__ = ["SpectrumPair", "profile_counts", "poisson_loglik"]
 
@@ -63,9 +68,18 @@ class SpectrumPair:
     fixed_selected: float | None = None
 
     @classmethod
-    def from_population(cls, pop, neutral: str = "4fold", selected: str = "0fold",
-                        path: str | None = None) -> SpectrumPair:
+    def from_population(cls, pop: PopulationSpectra, neutral: str = "4fold",
+                        selected: str = "0fold", path: str | None = None) -> SpectrumPair:
         """Take the two classes of a :class:`~driftband.spectra.PopulationSpectra`.
+
+        Parameters
+        ----------
+        pop : PopulationSpectra
+            One population's spectra, by site class.
+        neutral, selected : str
+            The site classes used as the neutral and the selected class.
+        path : str, optional
+            The file the spectra came from (for messages).
 
         Raises
         ------
@@ -85,9 +99,31 @@ class SpectrumPair:
                                name=pop.name, path=path)
 
     @classmethod
-    def from_arrays(cls, n: int, folded: bool, neutral_sfs, selected_sfs, sites_neutral,
-                    sites_selected, name: str = "", path: str | None = None) -> SpectrumPair:
-        """Build from full spectra (length n+1, or n//2+1 when folded)."""
+    def from_arrays(cls, n: int, folded: bool, neutral_sfs: ArrayLike,
+                    selected_sfs: ArrayLike, sites_neutral: float, sites_selected: float,
+                    name: str = "", path: str | None = None) -> SpectrumPair:
+        """Build from full spectra (length n+1, or n//2+1 when folded).
+
+        Parameters
+        ----------
+        n : int
+            Gene copies.
+        folded : bool
+            The spectra are folded.
+        neutral_sfs, selected_sfs : array_like of float, shape (n+1,) or (n//2+1,)
+            Full spectra of the two classes (entry 0 and, unfolded, entry n included).
+        sites_neutral, sites_selected : float
+            Callable sites of the two classes.
+        name : str
+            Population name (for messages).
+        path : str, optional
+            The file the spectra came from (for messages).
+
+        Raises
+        ------
+        InputError
+            A class without callable sites or without polymorphic sites.
+        """
         nsfs = np.asarray(neutral_sfs, dtype=float)
         ssfs = np.asarray(selected_sfs, dtype=float)
         hi = n // 2 + 1 if folded else n
@@ -264,8 +300,9 @@ class Objective:
     equilibrium : bool
     """
 
-    def __init__(self, data: SpectrumPair, model, eps: float | None = 0.0,
-                 equilibrium: bool = False, expectation: DfeExpectation | None = None):
+    def __init__(self, data: SpectrumPair, model: DfeModel, eps: float | None = 0.0,
+                 equilibrium: bool = False,
+                 expectation: DfeExpectation | None = None) -> None:
         self.data = data
         self.model = model
         self.free_eps = eps is None and not data.folded
@@ -293,7 +330,8 @@ class Objective:
             return x[:-1], float(1.0 / (1.0 + np.exp(-x[-1])))
         return x, self.eps
 
-    def evaluate(self, x: np.ndarray):
+    def evaluate(self, x: np.ndarray
+                 ) -> tuple[float, np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
         """``(loglik, c, lam_neutral, lam_selected, gbar)`` at ``x``."""
         xd, eps = self.split(x)
         dfe = self.model.to_dfe(xd)

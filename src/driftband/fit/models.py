@@ -9,12 +9,16 @@ from __future__ import annotations
 
 import itertools
 from dataclasses import dataclass
+from typing import TYPE_CHECKING
 
 import numpy as np
 
 from ..defaults import DEFAULT_EDGES_NES
 from ..exceptions import OptionError
 from ..prf.families import DiscreteDfe, GammaDfe, LognormalDfe, WithBeneficial
+
+if TYPE_CHECKING:
+    from ..prf.dfe import BaseDfe, Dfe
 
 __all__ = ["FAMILIES", "DfeModel", "parse_models"]
 
@@ -65,7 +69,7 @@ class DfeModel:
     def param_names(self) -> tuple[str, ...]:
         """Names of the DFE parameters, in the order of the vector."""
         if self.family == "gamma":
-            base = ("shape", "mean_S")
+            base: tuple[str, ...] = ("shape", "mean_S")
         elif self.family == "lognormal":
             base = ("log_mean", "log_sd")
         else:
@@ -90,13 +94,14 @@ class DfeModel:
             b += [(_logit(1e-6), _logit(0.5)), (_LOG(0.01), _LOG(1e4))]
         return b
 
-    def to_dfe(self, x: np.ndarray):
+    def to_dfe(self, x: np.ndarray) -> Dfe:
         """DFE object for an unconstrained vector ``x``."""
         x = np.asarray(x, dtype=float)
         k = self.n_free - (2 if self.beneficial else 0)
         base_x, ben_x = x[:k], x[k:]
         if self.family == "gamma":
-            base = GammaDfe(shape=float(np.exp(base_x[0])), mean=float(np.exp(base_x[1])))
+            base: BaseDfe = GammaDfe(shape=float(np.exp(base_x[0])),
+                                     mean=float(np.exp(base_x[1])))
         elif self.family == "lognormal":
             base = LognormalDfe(mu=float(base_x[0]), sigma=float(np.exp(base_x[1])))
         else:
@@ -111,14 +116,15 @@ class DfeModel:
     def natural(self, x: np.ndarray) -> dict[str, float]:
         """Natural-scale parameters (named) for an unconstrained vector."""
         d = self.to_dfe(x)
-        base = d.base if self.beneficial else d
-        if self.family == "gamma":
+        # to_dfe makes the class of self.family, wrapped when self.beneficial
+        base = d.base if isinstance(d, WithBeneficial) else d
+        if isinstance(base, GammaDfe):
             vals = [base.shape, base.mean]
-        elif self.family == "lognormal":
+        elif isinstance(base, LognormalDfe):
             vals = [base.mu, base.sigma]
         else:
             vals = list(base.masses)
-        if self.beneficial:
+        if isinstance(d, WithBeneficial):
             vals += [d.p_b, d.s_b]
         return dict(zip(self.param_names, (float(v) for v in vals)))
 

@@ -76,6 +76,22 @@ class StageCache:
             self.records = {}
 
     def fresh(self, sid: str, key: str, outputs: list[Path]) -> bool:
+        """Whether stage ``sid`` can be reused: same key, same outputs, all intact.
+
+        Parameters
+        ----------
+        sid : str
+            Stage id, e.g. ``spectra[lake]``.
+        key : str
+            The stage key of this run (:func:`stage_key`).
+        outputs : list of Path
+            The stage's output files; each must exist with its recorded SHA-256.
+
+        Returns
+        -------
+        bool
+            False with ``force``, without a record, or when anything differs.
+        """
         rec = self.records.get(sid)
         if self.force or not rec or rec.get("key") != key:
             return False
@@ -88,10 +104,12 @@ class StageCache:
         return True
 
     def record(self, sid: str, rec: dict[str, Any]) -> None:
+        """Keep the record of stage ``sid`` and write the file at once."""
         self.records[sid] = rec
         self._write()
 
     def drop(self, sid: str) -> None:
+        """Forget stage ``sid`` (the file is rewritten only when it had a record)."""
         if self.records.pop(sid, None) is not None:
             self._write()
 
@@ -112,6 +130,7 @@ class RunLog(logging.Handler):
                                             "%Y-%m-%d %H:%M:%S"))
 
     def emit(self, record: logging.LogRecord) -> None:
+        """Keep ``record`` as one formatted line."""
         try:
             self.lines.append(self.format(record))
         except Exception:  # pragma: no cover - never let logging break a run
@@ -139,11 +158,11 @@ def run_log(path: Path) -> Iterator[RunLog]:
     for lg in (logging.getLogger("driftband"), logging.getLogger("py.warnings")):
         eff = lg.getEffectiveLevel()
         if not lg.hasHandlers():
-            h = logging.StreamHandler(sys.stderr)
-            h.setLevel(logging.WARNING)
-            h.setFormatter(logging.Formatter("driftband: %(message)s"))
-            lg.addHandler(h)
-            extra.append((lg, h))
+            sh = logging.StreamHandler(sys.stderr)
+            sh.setLevel(logging.WARNING)
+            sh.setFormatter(logging.Formatter("driftband: %(message)s"))
+            lg.addHandler(sh)
+            extra.append((lg, sh))
         for h in lg.handlers:
             if h.level == logging.NOTSET:
                 h.setLevel(eff)

@@ -39,6 +39,7 @@ from __future__ import annotations
 import contextlib
 import dataclasses
 import datetime as _dt
+import functools
 import json
 import logging
 import os
@@ -122,7 +123,7 @@ def output_paths(study: Study, out: str | os.PathLike) -> dict[str, Any]:
     for d in study.datasets:
         pre = f"{d.name}." if study.several else ""
         paths["datasets"][d.name] = {
-            "sites": out / f"{pre}sites.bed" if d.classify else Path(d.sites),
+            "sites": out / f"{pre}sites.bed" if d.sites is None else Path(d.sites),
             "classified": d.classify,
             "classify_summary": prov / f"{d.name}.classify.tsv",
             "spectra": out / f"{pre}spectra.json"}
@@ -176,7 +177,7 @@ def _apply(study: Study, replicates: int | None, workers: int | None,
     b = study.bootstrap
     if workers is not None:
         resolve_workers(workers)
-    changes = {k: v for k, v in (("replicates", replicates), ("workers", workers),
+    changes: dict[str, Any] = {k: v for k, v in (("replicates", replicates), ("workers", workers),
                                  ("seed", seed), ("level", level)) if v is not None}
     if not changes:
         return study
@@ -256,15 +257,15 @@ def _run_stages(study: Study, options: Any, paths: dict[str, Any], runner: Stage
         if d.classify:
             runner.run(f"classify[{d.name}]", {"fasta": d.fasta, "gff": d.gff},
                        d.classify_options(), [dp["sites"], dp["classify_summary"]],
-                       lambda d=d, dp=dp: stage_classify(d, dp["sites"],
-                                                         dp["classify_summary"]))
+                       functools.partial(stage_classify, d, dp["sites"],
+                                         dp["classify_summary"]))
         inputs = {"vcf": d.vcf, "popmap": d.popmap, "sites": dp["sites"],
                   "callable": d.callable, "blocks": d.blocks}
         for k, r in enumerate(d.regions or []):
             if os.path.isfile(r):
                 inputs[f"regions{k}"] = r
         runner.run(f"spectra[{d.name}]", inputs, d.spectra_options(), [dp["spectra"]],
-                   lambda d=d, dp=dp: stage_spectra(d, dp["sites"], dp["spectra"]))
+                   functools.partial(stage_spectra, d, dp["sites"], dp["spectra"]))
         spectra.append((d.name, d.name if study.several else "", dp["spectra"]))
     nworkers = workers or study.bootstrap.workers or available_cores()
     sp_inputs = {f"spectra {n}": p for n, _l, p in spectra}
@@ -323,8 +324,10 @@ def demo_study_path() -> Path:
     """
     from importlib import resources
 
-    p = Path(os.fspath(resources.files("driftband") / "data" / "demo" / DEMO_STUDY))
-    if not p.is_file():
+    res = resources.files("driftband") / "data" / "demo" / DEMO_STUDY
+    # a package on disk gives a pathlib.Path; one inside a zip file has no file to read
+    p = Path(os.fspath(res)) if isinstance(res, os.PathLike) else None
+    if p is None or not p.is_file():
         raise InputError("the demo data is not installed with this driftband (expected "
                          "driftband/data/demo/); reinstall with 'pip install .' from a "
                          "clone of the repository", p)

@@ -87,6 +87,8 @@ def stage_classify(dataset: Dataset, out_bed: str | os.PathLike[str],
     from ..sites.bed import write_bed4
     from ..sites.classify import classify_sites, write_summary
 
+    if dataset.fasta is None or dataset.gff is None:   # the study checks rule it out
+        raise ValueError(f"dataset {dataset.name!r}: classifying needs fasta and gff")
     res = classify_sites(dataset.fasta, dataset.gff, code=dataset.code,
                          transcripts=dataset.transcripts,
                          exclude_softmasked=dataset.exclude_softmasked)

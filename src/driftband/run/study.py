@@ -265,7 +265,8 @@ def _load_toml(path: Path) -> tuple[dict[str, Any], str]:
 def _key_lines(text: str) -> dict[tuple[str, str | None], int]:
     """Line of each ``key =`` per section (``dataset[0]`` for the first ``[[dataset]]``)."""
     out: dict[tuple[str, str | None], int] = {}
-    section, counts = "", {}
+    section = ""
+    counts: dict[str, int] = {}
     for k, raw in enumerate(text.splitlines(), start=1):
         s = raw.strip()
         if s.startswith("[["):
@@ -432,7 +433,8 @@ def _dataset(where: _Where, section: str, vals: dict[str, Any], base: Path) -> D
                                                 f"'outgroup:POP', not {anc!r}")
     if "blocks" in vals and "block_size" in vals:
         raise where.error(section, "blocks", f"{who}: give blocks or block_size, not both")
-    d = {k: (_resolve(base, v) if k in _FILE_KEYS else v) for k, v in vals.items()}
+    d: dict[str, Any] = {k: (_resolve(base, v) if k in _FILE_KEYS else v)
+                         for k, v in vals.items()}
     regions = d.get("regions")
     if regions:  # BED files among the regions are paths too
         d["regions"] = [_resolve(base, r) if r.endswith((".bed", ".bed.gz")) else r
