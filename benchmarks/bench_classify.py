@@ -64,7 +64,7 @@ def make_study(folder: str, mb: int, n_genes: int, seed: int) -> tuple[str, str,
                 ex_len = rng.integers(50, 251, n_ex)
                 introns = rng.integers(60, 201, n_ex - 1)
                 total = int(ex_len.sum())
-                ex_len[-1] += (-total) % 3           # whole codons
+                ex_len[-1] += (-total) % 3  # whole codons
                 total = int(ex_len.sum())
                 n_codons = total // 3
                 codons = sense[rng.integers(0, 61, n_codons)]
@@ -72,7 +72,7 @@ def make_study(folder: str, mb: int, n_genes: int, seed: int) -> tuple[str, str,
                 codons[-1] = list(STOPS[int(rng.integers(0, 3))].encode())
                 cds = codons.ravel()
                 strand = "+" if rng.random() < 0.5 else "-"
-                gstart = gi * slot + int(rng.integers(0, 200))   # 0-based
+                gstart = gi * slot + int(rng.integers(0, 200))  # 0-based
                 starts = gstart + np.concatenate([[0], np.cumsum(ex_len[:-1] + introns)])
                 ends = starts + ex_len
                 # place the CDS: exon k of the transcript is genome exon k on '+', and
@@ -84,7 +84,8 @@ def make_study(folder: str, mb: int, n_genes: int, seed: int) -> tuple[str, str,
                 else:
                     lens_rev = ex_len[::-1]
                     g_starts = gstart + np.concatenate(
-                        [[0], np.cumsum(lens_rev[:-1] + introns[::-1])])
+                        [[0], np.cumsum(lens_rev[:-1] + introns[::-1])]
+                    )
                     g_ends = g_starts + lens_rev
                     pos = np.concatenate([np.arange(s, e) for s, e in zip(g_starts, g_ends)])
                     seq[pos] = COMPLEMENT[cds[::-1]]
@@ -97,26 +98,29 @@ def make_study(folder: str, mb: int, n_genes: int, seed: int) -> tuple[str, str,
                     isoforms.append([k for k in range(n_ex) if k != skip])
                 for ti, keep in enumerate(isoforms):
                     tid = f"{gid}.t{ti + 1}"
-                    gff.write(f"{name}\tbench\tmRNA\t{lo}\t{hi}\t.\t{strand}\t.\t"
-                              f"ID={tid};Parent={gid}\n")
+                    gff.write(
+                        f"{name}\tbench\tmRNA\t{lo}\t{hi}\t.\t{strand}\t.\tID={tid};Parent={gid}\n"
+                    )
                     # transcript order (k); phase from the cumulative length before it
                     done = 0
                     lines = []
                     for k in keep:
                         gk = k if strand == "+" else n_ex - 1 - k
                         s, e = int(g_starts[gk]), int(g_ends[gk])
-                        lines.append(f"{name}\tbench\tCDS\t{s + 1}\t{e}\t.\t{strand}\t"
-                                     f"{(3 - done % 3) % 3}\tID=cds-{tid};Parent={tid}\n")
+                        lines.append(
+                            f"{name}\tbench\tCDS\t{s + 1}\t{e}\t.\t{strand}\t"
+                            f"{(3 - done % 3) % 3}\tID=cds-{tid};Parent={tid}\n"
+                        )
                         done += e - s
                     gff.writelines(lines)
             fa.write(f">{name} synthetic benchmark chromosome\n")
             text = seq.tobytes()
-            fa.write("\n".join(text[i:i + 60].decode() for i in range(0, len(text), 60)))
+            fa.write("\n".join(text[i : i + 60].decode() for i in range(0, len(text), 60)))
             fa.write("\n")
     return fa_path, gff_path, coding
 
 
-def _one_core() -> None:   # pragma: no cover - runs in the child
+def _one_core() -> None:  # pragma: no cover - runs in the child
     if hasattr(os, "sched_setaffinity"):
         os.sched_setaffinity(0, {sorted(os.sched_getaffinity(0))[0]})
 
@@ -132,21 +136,35 @@ def main(argv: list[str] | None = None) -> int:
     os.makedirs(folder, exist_ok=True)
     t0 = time.perf_counter()
     fa, gff, coding = make_study(folder, args.mb, args.genes, args.seed)
-    print(f"synthetic study: {args.mb} Mb, {args.genes} genes, {coding:,} CDS bases "
-          f"(made in {time.perf_counter() - t0:.1f} s) in {folder}")
+    print(
+        f"synthetic study: {args.mb} Mb, {args.genes} genes, {coding:,} CDS bases "
+        f"(made in {time.perf_counter() - t0:.1f} s) in {folder}"
+    )
     out = os.path.join(folder, "sites.bed")
     summary = os.path.join(folder, "summary.tsv")
-    env = dict(os.environ, OMP_NUM_THREADS="1", OPENBLAS_NUM_THREADS="1",
-               MKL_NUM_THREADS="1")
-    cmd = [sys.executable, "-m", "driftband", "classify", "--fasta", fa, "--gff", gff,
-           "-o", out, "--summary", summary, "--force"]
+    env = dict(os.environ, OMP_NUM_THREADS="1", OPENBLAS_NUM_THREADS="1", MKL_NUM_THREADS="1")
+    cmd = [
+        sys.executable,
+        "-m",
+        "driftband",
+        "classify",
+        "--fasta",
+        fa,
+        "--gff",
+        gff,
+        "-o",
+        out,
+        "--summary",
+        summary,
+        "--force",
+    ]
     t0 = time.perf_counter()
     proc = subprocess.run(cmd, env=env, preexec_fn=_one_core, capture_output=True, text=True)
     seconds = time.perf_counter() - t0
     if proc.returncode != 0:
         print(proc.stderr, file=sys.stderr)
         return 1
-    peak = resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss * 1024   # KiB on Linux
+    peak = resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss * 1024  # KiB on Linux
     with open(out) as fh:
         rows = sum(1 for _ in fh)
     totals = {}
@@ -155,15 +173,21 @@ def main(argv: list[str] | None = None) -> int:
             f = line.rstrip("\n").split("\t")
             if f[0] == "all":
                 totals[f[2]] = int(f[3])
-    print(f"classify: {rows:,} BED intervals; 0fold {totals['0fold']:,} sites, "
-          f"4fold {totals['4fold']:,} sites; internal_stop {totals['internal_stop']} "
-          f"transcripts; class_conflict {totals['class_conflict']:,} sites")
-    ok_t = 'OK' if seconds < TARGET_SECONDS else 'MISSED'
-    ok_m = 'OK' if peak < TARGET_BYTES else 'MISSED'
-    print(f"time        {seconds:8.1f} s    target < {TARGET_SECONDS:.0f} s on one core  "
-          f"(ratio {seconds / TARGET_SECONDS:.2f})  {ok_t}")
-    print(f"peak memory {peak / 1024**2:8.0f} MiB  target < 2 GiB  "
-          f"(ratio {peak / TARGET_BYTES:.2f})  {ok_m}")
+    print(
+        f"classify: {rows:,} BED intervals; 0fold {totals['0fold']:,} sites, "
+        f"4fold {totals['4fold']:,} sites; internal_stop {totals['internal_stop']} "
+        f"transcripts; class_conflict {totals['class_conflict']:,} sites"
+    )
+    ok_t = "OK" if seconds < TARGET_SECONDS else "MISSED"
+    ok_m = "OK" if peak < TARGET_BYTES else "MISSED"
+    print(
+        f"time        {seconds:8.1f} s    target < {TARGET_SECONDS:.0f} s on one core  "
+        f"(ratio {seconds / TARGET_SECONDS:.2f})  {ok_t}"
+    )
+    print(
+        f"peak memory {peak / 1024**2:8.0f} MiB  target < 2 GiB  "
+        f"(ratio {peak / TARGET_BYTES:.2f})  {ok_m}"
+    )
     return 0
 
 

@@ -53,8 +53,10 @@ def _quad_mean_g(n, shape, mean):
 
 def main() -> None:
     rng = np.random.default_rng(7)
-    print(f"{'n':>5} {'fit time (s)':>13} {'target (s)':>11} {'ratio':>7} {'evals':>6} "
-          f"{'table eval (us)':>16} {'quad_vec eval (us)':>19} {'speed-up':>9}")
+    print(
+        f"{'n':>5} {'fit time (s)':>13} {'target (s)':>11} {'ratio':>7} {'evals':>6} "
+        f"{'table eval (us)':>16} {'quad_vec eval (us)':>19} {'speed-up':>9}"
+    )
     for n, target in TARGETS.items():
         data = _data(n, rng)
         ex = DfeExpectation(n)  # per-n table, built once (as `driftband fit` does)
@@ -75,8 +77,10 @@ def main() -> None:
         for _ in range(3):
             _quad_mean_g(n, 0.3, 500.0)
         tq = (time.perf_counter() - t0) / 3
-        print(f"{n:>5} {dt:>13.3f} {target:>11.1f} {dt / target:>7.2f} {f.n_eval:>6} "
-              f"{te * 1e6:>16.1f} {tq * 1e6:>19.0f} {tq / te:>9.0f}x")
+        print(
+            f"{n:>5} {dt:>13.3f} {target:>11.1f} {dt / target:>7.2f} {f.n_eval:>6} "
+            f"{te * 1e6:>16.1f} {tq * 1e6:>19.0f} {tq / te:>9.0f}x"
+        )
 
 
 if __name__ == "__main__":

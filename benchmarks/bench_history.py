@@ -31,8 +31,9 @@ def main() -> None:
     args = ap.parse_args()
     S = np.array([0.0, -1.0, -10.0, -100.0, -1e3, -1e4, 10.0, 100.0])
     if args.full:
-        hists = [OneChange(nu, tau) for nu in (0.01, 0.1, 10.0, 100.0)
-                 for tau in (0.001, 0.05, 1.0, 5.0)]
+        hists = [
+            OneChange(nu, tau) for nu in (0.01, 0.1, 10.0, 100.0) for tau in (0.001, 0.05, 1.0, 5.0)
+        ]
         hists.append(TwoChanges(0.05, 0.02, 2.0, 0.01))
         ns = (10, 40, 200)
     else:
@@ -56,8 +57,10 @@ def main() -> None:
     HistorySfs(n, hist, resolution=REFERENCE_RESOLUTION).table(grid)
     t_ref = time.perf_counter() - t0
     print(f"table of {grid.size} S nodes (1e-3 <= |S| <= 1e4), n = {n}, {hist!r}:")
-    print(f"  default {t_def:.2f} s ({1e3 * t_def / grid.size:.0f} ms per node), "
-          f"reference {t_ref:.2f} s; ratio default/reference {t_def / t_ref:.3f}")
+    print(
+        f"  default {t_def:.2f} s ({1e3 * t_def / grid.size:.0f} ms per node), "
+        f"reference {t_ref:.2f} s; ratio default/reference {t_def / t_ref:.3f}"
+    )
     print(f"  256 nodes would take about {256 * t_def / grid.size:.1f} s")
 
 

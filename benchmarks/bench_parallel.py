@@ -83,38 +83,75 @@ def bench_spectra(paths: dict[str, Path], repeats: int) -> float:
     for _ in range(repeats):
         for w in (1, 2):
             c0 = _cpu()
-            wall, mem = timed([sys.executable, "-m", "driftband", "spectra",
-                               str(paths["vcf"]), "--popmap", str(paths["popmap"]),
-                               "--sites", str(paths["sites"]), "-o", str(out[w]), "--force",
-                               "-q", "--workers", str(w)], env=ENV)
+            wall, mem = timed(
+                [
+                    sys.executable,
+                    "-m",
+                    "driftband",
+                    "spectra",
+                    str(paths["vcf"]),
+                    "--popmap",
+                    str(paths["popmap"]),
+                    "--sites",
+                    str(paths["sites"]),
+                    "-o",
+                    str(out[w]),
+                    "--force",
+                    "-q",
+                    "--workers",
+                    str(w),
+                ],
+                env=ENV,
+            )
             whole[w].append(wall)
             peak[w] = max(peak[w], mem)
             c1 = _cpu()
             cpu.setdefault(("whole", w), []).append(c1 - c0)
-            p = subprocess.run([sys.executable, "-c", COUNT_ONLY, str(paths["vcf"]),
-                                str(paths["popmap"]), str(paths["sites"]), str(w)],
-                               env=ENV, capture_output=True, text=True, check=True)
+            p = subprocess.run(
+                [
+                    sys.executable,
+                    "-c",
+                    COUNT_ONLY,
+                    str(paths["vcf"]),
+                    str(paths["popmap"]),
+                    str(paths["sites"]),
+                    str(w),
+                ],
+                env=ENV,
+                capture_output=True,
+                text=True,
+                check=True,
+            )
             count[w].append(float(p.stdout.strip().splitlines()[-1]))
             cpu.setdefault(("count", w), []).append(_cpu() - c1)
     same = _body(out[1]) == _body(out[2])
     size = paths["vcf"].stat().st_size / 1e6
     print(f"\n{paths['vcf'].name}: {size:.0f} MB bgzipped, {repeats} repeats, {_load()}")
-    print(f"{'stage (best wall s)':<34} {'1 worker':>9} {'2 workers':>10} {'speed-up':>9} "
-          f"{'(median)':>9} {'CPU s 1/2':>12} {'cores used by 2':>16}")
-    for key, name, t in (("whole", "whole command (driftband spectra)", whole),
-                         ("count", "counting (build_spectra)", count)):
+    print(
+        f"{'stage (best wall s)':<34} {'1 worker':>9} {'2 workers':>10} {'speed-up':>9} "
+        f"{'(median)':>9} {'CPU s 1/2':>12} {'cores used by 2':>16}"
+    )
+    for key, name, t in (
+        ("whole", "whole command (driftband spectra)", whole),
+        ("count", "counting (build_spectra)", count),
+    ):
         b1, b2 = min(t[1]), min(t[2])
         m1, m2 = statistics.median(t[1]), statistics.median(t[2])
         c1 = statistics.median(cpu[(key, 1)])
         c2 = statistics.median(cpu[(key, 2)])
-        print(f"{name:<34} {b1:9.2f} {b2:10.2f} {b1 / b2:9.2f} {m1 / m2:9.2f} "
-              f"{c1:5.1f} /{c2:5.1f} {c2 / m2:16.2f}")
-    print("(CPU s: all processes of a run, start-up included; 'cores used': CPU s / wall s "
-          "of the 2-worker runs, out of 2; the whole command has serial parts -- start-up, "
-          "planning, writing the JSON -- but counting well below 1.8 means the machine was "
-          "busy with other work)")
-    print(f"peak resident memory of one process (MB): 1 worker {peak[1]:.0f}, "
-          f"2 workers {peak[2]:.0f}")
+        print(
+            f"{name:<34} {b1:9.2f} {b2:10.2f} {b1 / b2:9.2f} {m1 / m2:9.2f} "
+            f"{c1:5.1f} /{c2:5.1f} {c2 / m2:16.2f}"
+        )
+    print(
+        "(CPU s: all processes of a run, start-up included; 'cores used': CPU s / wall s "
+        "of the 2-worker runs, out of 2; the whole command has serial parts -- start-up, "
+        "planning, writing the JSON -- but counting well below 1.8 means the machine was "
+        "busy with other work)"
+    )
+    print(
+        f"peak resident memory of one process (MB): 1 worker {peak[1]:.0f}, 2 workers {peak[2]:.0f}"
+    )
     print(f"spectra files identical apart from provenance: {'yes' if same else 'NO'}")
     sys.stdout.flush()
     return min(whole[1]) / min(whole[2])
@@ -125,17 +162,53 @@ def bench_bootstrap(replicates: int = 1000, serial: int = 200) -> float:
     spectra = DATA / "bench_boot_n40.spectra.json"
     if not spectra.exists():
         DATA.mkdir(parents=True, exist_ok=True)
-        _run([sys.executable, "-m", "driftband", "simulate", "--population",
-              "lake:N=500,n=40", "--sites", "200000", "--theta", "0.01", "--dfe",
-              "gamma:shape=0.3,mean=200", "--blocks", "100", "--seed", "3", "-o",
-              str(spectra), "-q", "--force"])
+        _run(
+            [
+                sys.executable,
+                "-m",
+                "driftband",
+                "simulate",
+                "--population",
+                "lake:N=500,n=40",
+                "--sites",
+                "200000",
+                "--theta",
+                "0.01",
+                "--dfe",
+                "gamma:shape=0.3,mean=200",
+                "--blocks",
+                "100",
+                "--seed",
+                "3",
+                "-o",
+                str(spectra),
+                "-q",
+                "--force",
+            ]
+        )
     out = DATA / "bench_boot_n40.fit.json"
 
     def fit(boot: int, workers: int) -> tuple[float, float]:
         c0 = _cpu()
-        wall = _run([sys.executable, "-m", "driftband", "fit", str(spectra), "--dfe",
-                     "gamma", "--bootstrap", str(boot), "--workers", str(workers), "-o",
-                     str(out), "--force", "-q"])
+        wall = _run(
+            [
+                sys.executable,
+                "-m",
+                "driftband",
+                "fit",
+                str(spectra),
+                "--dfe",
+                "gamma",
+                "--bootstrap",
+                str(boot),
+                "--workers",
+                str(workers),
+                "-o",
+                str(out),
+                "--force",
+                "-q",
+            ]
+        )
         return wall, _cpu() - c0
 
     base, base_cpu = fit(0, 1)
@@ -147,12 +220,16 @@ def bench_bootstrap(replicates: int = 1000, serial: int = 200) -> float:
     t1 = (w1 - base) * replicates / serial
     print(f"\nbootstrap, gamma DFE, n = 40, 100 blocks, {_load()}")
     print(f"point fit alone (start-up included): {base:.1f} s")
-    print(f"{replicates} refits on 2 workers: {t2:.1f} s (target <= 120 s; "
-          f"{boot['replicates']} refits kept, {boot['failed']} failed); CPU "
-          f"{c2 - base_cpu:.1f} s, cores used {(c2 - base_cpu) / t2:.2f} of 2")
-    print(f"{replicates} refits on 1 worker (from {serial}, scaled): {t1:.1f} s; "
-          f"speed-up {t1 / t2:.2f}; CPU per refit {(c1 - base_cpu) / serial:.3f} s on 1 "
-          f"worker, {(c2 - base_cpu) / replicates:.3f} s on 2")
+    print(
+        f"{replicates} refits on 2 workers: {t2:.1f} s (target <= 120 s; "
+        f"{boot['replicates']} refits kept, {boot['failed']} failed); CPU "
+        f"{c2 - base_cpu:.1f} s, cores used {(c2 - base_cpu) / t2:.2f} of 2"
+    )
+    print(
+        f"{replicates} refits on 1 worker (from {serial}, scaled): {t1:.1f} s; "
+        f"speed-up {t1 / t2:.2f}; CPU per refit {(c1 - base_cpu) / serial:.3f} s on 1 "
+        f"worker, {(c2 - base_cpu) / replicates:.3f} s on 2"
+    )
     sys.stdout.flush()
     return t2
 

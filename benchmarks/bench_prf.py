@@ -64,13 +64,16 @@ def bench_table(n: int = 200, m: int = 2000) -> None:
     t_k = best_of(lambda: ref.kummer_scipy(n, S), repeat=2)
     status = "OK" if setup + first <= TARGET_TABLE else "ABOVE TARGET"
     print(f"expected spectra, n={n}, {m} S values in [-1e5, 1e3]:")
-    print(f"  logit trapezoid: setup {setup:.3f} s + first table {first:.3f} s = "
-          f"{setup + first:.3f} s wall, {cpu:.3f} s CPU (target <= {TARGET_TABLE} s: "
-          f"{status}); warm table {warm:.3f} s")
-    print(f"  (machine load average now {os.getloadavg()[0]:.1f} on {os.cpu_count()} cores; "
-          "wall times are upper bounds on a shared machine)")
-    print(f"  scipy hyp1f1 (Kummer form): {t_k:.3f} s  (ratio to warm trapezoid "
-          f"{t_k / warm:.1f}x)")
+    print(
+        f"  logit trapezoid: setup {setup:.3f} s + first table {first:.3f} s = "
+        f"{setup + first:.3f} s wall, {cpu:.3f} s CPU (target <= {TARGET_TABLE} s: "
+        f"{status}); warm table {warm:.3f} s"
+    )
+    print(
+        f"  (machine load average now {os.getloadavg()[0]:.1f} on {os.cpu_count()} cores; "
+        "wall times are upper bounds on a shared machine)"
+    )
+    print(f"  scipy hyp1f1 (Kummer form): {t_k:.3f} s  (ratio to warm trapezoid {t_k / warm:.1f}x)")
 
     # mpmath on a subset: 4 S values x 6 classes
     subS = [-1e5, -10.0, 1e-4, 1e3]
@@ -79,8 +82,10 @@ def bench_table(n: int = 200, m: int = 2000) -> None:
     refs = {s: ref.sfs(n, s, cl)[0] for s in subS}
     t_mp = (time.perf_counter() - t0) / (len(subS) * len(cl))
     full_mp = t_mp * m * (n - 1)
-    print(f"  mpmath quadrature: {t_mp * 1e3:.0f} ms per entry -> about {full_mp:.0f} s "
-          f"for the table (ratio to warm trapezoid {full_mp / warm:.0f}x)")
+    print(
+        f"  mpmath quadrature: {t_mp * 1e3:.0f} ms per entry -> about {full_mp:.0f} s "
+        f"for the table (ratio to warm trapezoid {full_mp / warm:.0f}x)"
+    )
     err_k, err_t = 0.0, 0.0
     idx = np.array(cl) - 1
     for s, v in refs.items():
@@ -89,8 +94,10 @@ def bench_table(n: int = 200, m: int = 2000) -> None:
         gt = k.g(s)[idx]
         err_t = max(err_t, float(np.max(np.abs(gt[ok] / v[ok] - 1))))
         err_k = max(err_k, float(np.max(np.abs(gk[ok] / v[ok] - 1))))
-    print(f"  max rel err vs mpmath on that subset: trapezoid {err_t:.1e}, "
-          f"scipy hyp1f1 {err_k:.1e} (the latter loses accuracy at |S| < 1e-2)")
+    print(
+        f"  max rel err vs mpmath on that subset: trapezoid {err_t:.1e}, "
+        f"scipy hyp1f1 {err_k:.1e} (the latter loses accuracy at |S| < 1e-2)"
+    )
     assert np.all(np.isfinite(G))
 
 
@@ -98,8 +105,10 @@ def bench_dfe(n: int) -> None:
     t0 = time.perf_counter()
     ex = DfeExpectation(n)
     setup = time.perf_counter() - t0
-    print(f"DfeExpectation, n={n}: table setup {setup * 1e3:.0f} ms "
-          f"({ex.G.shape[0]} rows); time per mean_g evaluation:")
+    print(
+        f"DfeExpectation, n={n}: table setup {setup * 1e3:.0f} ms "
+        f"({ex.G.shape[0]} rows); time per mean_g evaluation:"
+    )
     dfes = {
         "gamma(0.3, 500)": GammaDfe(0.3, 500.0),
         "lognormal(3, 2)": LognormalDfe(3.0, 2.0),

@@ -32,27 +32,41 @@ def main() -> None:
     args = ap.parse_args()
     N = 200 if args.quick else 1000
     sites = 100_000
-    print(f"driftband simulate benchmark: N = {N}, {sites} sites per class, burn-in 10N "
-          f"= {10 * N} generations, gamma DFE (shape 0.3, mean 200), n = 20")
+    print(
+        f"driftband simulate benchmark: N = {N}, {sites} sites per class, burn-in 10N "
+        f"= {10 * N} generations, gamma DFE (shape 0.3, mean 200), n = 20"
+    )
     for theta in (0.005, 0.01):
         secs, st = run(N, theta, sites)
         truth = st.spectra.provenance["simulation"]["populations"]["pop"]
         seg = sum(truth["segregating_at_end"].values())
         gens = truth["generations"]
-        print(f"  theta = {theta:<6} simulation {secs:7.2f} s   target {TARGET_S:.0f} s   "
-              f"ratio {secs / TARGET_S:5.2f}   ({seg} segregating mutations at the end, "
-              f"~{seg * gens / secs / 1e6:.1f} M mutation-generations/s)")
+        print(
+            f"  theta = {theta:<6} simulation {secs:7.2f} s   target {TARGET_S:.0f} s   "
+            f"ratio {secs / TARGET_S:5.2f}   ({seg} segregating mutations at the end, "
+            f"~{seg * gens / secs / 1e6:.1f} M mutation-generations/s)"
+        )
     with tempfile.TemporaryDirectory() as d:
         pops = build_populations([f"a:N={N},n=20", f"b:N={N // 10},n=16"])
-        st = simulate_study(pops, parse_dfe("gamma:shape=0.3,mean=200"), theta=0.01,
-                            sites=sites, blocks=100, seed=2, divergence_generations=N)
+        st = simulate_study(
+            pops,
+            parse_dfe("gamma:shape=0.3,mean=200"),
+            theta=0.01,
+            sites=sites,
+            blocks=100,
+            seed=2,
+            divergence_generations=N,
+        )
         t0 = time.perf_counter()
-        write_study(st, Path(d) / "s.json", vcf_prefix=Path(d) / "s",
-                    outgroup=("out", 4), missing=0.01)
+        write_study(
+            st, Path(d) / "s.json", vcf_prefix=Path(d) / "s", outgroup=("out", 4), missing=0.01
+        )
         secs = time.perf_counter() - t0
         size = sum(f.stat().st_size for f in Path(d).iterdir())
-        print(f"  writing spectra + VCF + BED + popmap (2 populations, 20 samples): "
-              f"{secs:.2f} s, {size / 1e6:.1f} MB")
+        print(
+            f"  writing spectra + VCF + BED + popmap (2 populations, 20 samples): "
+            f"{secs:.2f} s, {size / 1e6:.1f} MB"
+        )
 
 
 if __name__ == "__main__":

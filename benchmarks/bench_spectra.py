@@ -40,8 +40,11 @@ def make_study(n_samples: int, n_snps: int, seed: int = 1) -> dict[str, Path]:
     """Write the synthetic VCF (+ .tbi), popmap and site BED; return their paths."""
     DATA.mkdir(parents=True, exist_ok=True)
     stem = DATA / f"bench_{n_samples}x{n_snps}"
-    paths = {"vcf": Path(f"{stem}.vcf.gz"), "popmap": Path(f"{stem}.popmap.tsv"),
-             "sites": Path(f"{stem}.sites.bed")}
+    paths = {
+        "vcf": Path(f"{stem}.vcf.gz"),
+        "popmap": Path(f"{stem}.popmap.tsv"),
+        "sites": Path(f"{stem}.sites.bed"),
+    }
     if all(p.exists() for p in paths.values()) and Path(f"{stem}.vcf.gz.tbi").exists():
         return paths
     t0 = time.time()
@@ -53,19 +56,24 @@ def make_study(n_samples: int, n_snps: int, seed: int = 1) -> dict[str, Path]:
     freq = np.minimum(np.exp(np.log(1 / (2 * n_samples)) * (1 - u)), 0.999)
     # sample fields: "A/B:DP:GQ" with variable-width DP and GQ, or "./.:.:." when missing
     gts = ("0/0", "0/1", "1/1")
-    table = np.array([f"{g}:{dp}:{gq}" for g in gts for dp in range(100) for gq in range(100)]
-                     + ["./.:.:."], dtype=object)
+    table = np.array(
+        [f"{g}:{dp}:{gq}" for g in gts for dp in range(100) for gq in range(100)] + ["./.:.:."],
+        dtype=object,
+    )
     plain = Path(f"{stem}.vcf")
     with open(plain, "w", encoding="ascii") as out:
         out.write("##fileformat=VCFv4.2\n")
         for c in chroms:
             out.write(f"##contig=<ID={c},length={CHROM_LEN}>\n")
-        out.write('##INFO=<ID=AA,Number=1,Type=String,Description="Ancestral allele">\n'
-                  '##FORMAT=<ID=GT,Number=1,Type=String,Description="Genotype">\n'
-                  '##FORMAT=<ID=DP,Number=1,Type=Integer,Description="Read depth">\n'
-                  '##FORMAT=<ID=GQ,Number=1,Type=Integer,Description="Genotype quality">\n')
-        out.write("#CHROM\tPOS\tID\tREF\tALT\tQUAL\tFILTER\tINFO\tFORMAT\t"
-                  + "\t".join(samples) + "\n")
+        out.write(
+            '##INFO=<ID=AA,Number=1,Type=String,Description="Ancestral allele">\n'
+            '##FORMAT=<ID=GT,Number=1,Type=String,Description="Genotype">\n'
+            '##FORMAT=<ID=DP,Number=1,Type=Integer,Description="Read depth">\n'
+            '##FORMAT=<ID=GQ,Number=1,Type=Integer,Description="Genotype quality">\n'
+        )
+        out.write(
+            "#CHROM\tPOS\tID\tREF\tALT\tQUAL\tFILTER\tINFO\tFORMAT\t" + "\t".join(samples) + "\n"
+        )
         bases = "ACGT"
         k = 0
         per = n_snps // len(chroms)
@@ -80,16 +88,21 @@ def make_study(n_samples: int, n_snps: int, seed: int = 1) -> dict[str, Path]:
                 r = int(rng.integers(4))
                 ref, alt = bases[r], bases[(r + 1 + int(rng.integers(3))) % 4]
                 aa = ref if rng.random() < 0.85 else alt
-                out.write(f"{c}\t{pos[j]}\t.\t{ref}\t{alt}\t50\tPASS\tAA={aa}\tGT:DP:GQ\t"
-                          + "\t".join(table[idx]) + "\n")
+                out.write(
+                    f"{c}\t{pos[j]}\t.\t{ref}\t{alt}\t50\tPASS\tAA={aa}\tGT:DP:GQ\t"
+                    + "\t".join(table[idx])
+                    + "\n"
+                )
                 k += 1
     if shutil.which("bgzip"):
         subprocess.run(["bgzip", "-f", str(plain)], check=True)
     else:
         import pysam
+
         pysam.tabix_compress(str(plain), str(paths["vcf"]), force=True)
         plain.unlink()
     import pysam
+
     pysam.tabix_index(str(paths["vcf"]), preset="vcf", force=True)
     with open(paths["popmap"], "w") as fh:
         for i, s in enumerate(samples):
@@ -98,8 +111,11 @@ def make_study(n_samples: int, n_snps: int, seed: int = 1) -> dict[str, Path]:
         for c in chroms:
             for s in range(0, CHROM_LEN, 2000):
                 fh.write(f"{c}\t{s}\t{s + 1000}\t0fold\n{c}\t{s + 1000}\t{s + 2000}\t4fold\n")
-    print(f"built {paths['vcf'].name} ({paths['vcf'].stat().st_size / 1e6:.0f} MB) "
-          f"in {time.time() - t0:.0f} s", flush=True)
+    print(
+        f"built {paths['vcf'].name} ({paths['vcf'].stat().st_size / 1e6:.0f} MB) "
+        f"in {time.time() - t0:.0f} s",
+        flush=True,
+    )
     return paths
 
 
@@ -109,8 +125,9 @@ def timed(cmd: list[str], stdout=subprocess.DEVNULL, env=None) -> tuple[float, f
     Memory comes from GNU time (``/usr/bin/time -f %M``) when installed: the rusage of a
     child forked straight from this (large) Python process would count its pages too.
     """
-    gnu_time = shutil.which("time") or ("/usr/bin/time" if os.path.exists("/usr/bin/time")
-                                       else None)
+    gnu_time = shutil.which("time") or (
+        "/usr/bin/time" if os.path.exists("/usr/bin/time") else None
+    )
     full = [gnu_time, "-f", "@@%M", *cmd] if gnu_time else cmd
     t0 = time.perf_counter()
     p = subprocess.run(full, stdout=stdout, stderr=subprocess.PIPE, env=env)
@@ -126,20 +143,30 @@ def timed(cmd: list[str], stdout=subprocess.DEVNULL, env=None) -> tuple[float, f
 
 
 def bench(paths: dict[str, Path], repeats: int) -> None:
-    env = dict(os.environ, OMP_NUM_THREADS="1", OPENBLAS_NUM_THREADS="1",
-               MKL_NUM_THREADS="1")
+    env = dict(os.environ, OMP_NUM_THREADS="1", OPENBLAS_NUM_THREADS="1", MKL_NUM_THREADS="1")
     out = DATA / "bench.spectra.json"
-    base = [sys.executable, "-m", "driftband", "spectra", str(paths["vcf"]), "--popmap",
-            str(paths["popmap"]), "--sites", str(paths["sites"]), "-o", str(out),
-            "--force", "-q"]
+    base = [
+        sys.executable,
+        "-m",
+        "driftband",
+        "spectra",
+        str(paths["vcf"]),
+        "--popmap",
+        str(paths["popmap"]),
+        "--sites",
+        str(paths["sites"]),
+        "-o",
+        str(out),
+        "--force",
+        "-q",
+    ]
     helptext = subprocess.run(base[:4] + ["--help"], capture_output=True, text=True).stdout
-    if "--workers" in helptext:   # one worker: the comparison is with one bcftools thread
+    if "--workers" in helptext:  # one worker: the comparison is with one bcftools thread
         base += ["--workers", "1"]
     runs = {
         "bcftools view -Ou": ["bcftools", "view", "-Ou", str(paths["vcf"])],
         "driftband spectra": base,
-        "driftband spectra --min-dp 10 --min-gq 20": base + ["--min-dp", "10", "--min-gq",
-                                                              "20"],
+        "driftband spectra --min-dp 10 --min-gq 20": base + ["--min-dp", "10", "--min-gq", "20"],
     }
     times: dict[str, list[float]] = {k: [] for k in runs}
     mem: dict[str, float] = {}
@@ -152,12 +179,16 @@ def bench(paths: dict[str, Path], repeats: int) -> None:
     floor_med = statistics.median(times["bcftools view -Ou"])
     size = paths["vcf"].stat().st_size / 1e6
     print(f"\n{paths['vcf'].name}: {size:.0f} MB bgzipped, {repeats} repeats")
-    print(f"{'command':<44} {'best s':>7} {'median s':>9} {'ratio best':>10} "
-          f"{'ratio med':>9} {'peak MB':>8}")
+    print(
+        f"{'command':<44} {'best s':>7} {'median s':>9} {'ratio best':>10} "
+        f"{'ratio med':>9} {'peak MB':>8}"
+    )
     for name in runs:
         b, md = min(times[name]), statistics.median(times[name])
-        print(f"{name:<44} {b:7.2f} {md:9.2f} {b / floor_best:10.2f} {md / floor_med:9.2f} "
-              f"{mem[name]:8.0f}")
+        print(
+            f"{name:<44} {b:7.2f} {md:9.2f} {b / floor_best:10.2f} {md / floor_med:9.2f} "
+            f"{mem[name]:8.0f}"
+        )
     sys.stdout.flush()
 
 
@@ -170,8 +201,11 @@ def main() -> None:
     a = ap.parse_args()
     if not shutil.which("bcftools"):
         raise SystemExit("bcftools is needed (apt-get install bcftools)")
-    print(subprocess.run(["bcftools", "--version"], capture_output=True,
-                         text=True).stdout.splitlines()[0])
+    print(
+        subprocess.run(
+            ["bcftools", "--version"], capture_output=True, text=True
+        ).stdout.splitlines()[0]
+    )
     if a.only in (None, "200"):
         bench(make_study(200, a.snps_200), a.repeats)
     if a.only in (None, "1000"):

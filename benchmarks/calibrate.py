@@ -41,15 +41,16 @@ from driftband.fit.options import FitOptions
 from driftband.simulate import build_populations, parse_dfe, simulate_study
 
 SHAPE, MEAN_S = 0.3, 200.0  # on S at the first population's size
-SCENARIOS = {"same": ("A:N=300,n=20", "B:N=300,n=20"),
-             "ne_only": ("A:N=600,n=20", "B:N=150,n=20")}
+SCENARIOS = {"same": ("A:N=300,n=20", "B:N=300,n=20"), "ne_only": ("A:N=600,n=20", "B:N=150,n=20")}
 
 
 def truth(scenario: str) -> dict[str, float]:
     """True neutral-band shares P(t < 4) under Gamma(shape, mean) scaled by N_B/N_A."""
     scale = 1.0 if scenario == "same" else 150 / 600
-    return {"A": float(gammainc(SHAPE, 4 * SHAPE / MEAN_S)),
-            "B": float(gammainc(SHAPE, 4 * SHAPE / (MEAN_S * scale)))}
+    return {
+        "A": float(gammainc(SHAPE, 4 * SHAPE / MEAN_S)),
+        "B": float(gammainc(SHAPE, 4 * SHAPE / (MEAN_S * scale))),
+    }
 
 
 def one_replicate(args) -> dict[str, float]:
@@ -57,9 +58,14 @@ def one_replicate(args) -> dict[str, float]:
     scenario, rep, B = args
     warnings.simplefilter("ignore")
     pops = build_populations(list(SCENARIOS[scenario]), [])
-    study = simulate_study(pops, parse_dfe(f"gamma:shape={SHAPE},mean={MEAN_S}"),
-                           theta=0.02, sites=100_000, blocks=50,
-                           seed=1000 * (scenario == "ne_only") + rep)
+    study = simulate_study(
+        pops,
+        parse_dfe(f"gamma:shape={SHAPE},mean={MEAN_S}"),
+        theta=0.02,
+        sites=100_000,
+        blocks=50,
+        seed=1000 * (scenario == "ne_only") + rep,
+    )
     ss = study.spectra
     opts = FitOptions(models=(DfeModel("gamma"),), eps=0.0)
     fits = []
@@ -105,21 +111,26 @@ def main() -> None:
         head = json.loads(fh.readline())
         lines = [json.loads(x) for x in fh if x.strip()]
     res = {sc: [x for x in lines if x["scenario"] == sc] for sc in SCENARIOS}
-    print(f"calibration: {', '.join(f'{sc}: R = {len(v)}' for sc, v in res.items())} "
-          f"replicate studies, B = {head['B']} bootstrap replicates")
+    print(
+        f"calibration: {', '.join(f'{sc}: R = {len(v)}' for sc, v in res.items())} "
+        f"replicate studies, B = {head['B']} bootstrap replicates"
+    )
     print(f"{'quantity':<58} {'value':>7} {'target':>10}")
 
     def rate(sc, key, f=lambda v: v):
-        v = np.array([f(r[key]) for r in res[sc] if r.get(key) is not None
-                      and np.isfinite(r[key])], dtype=float)
+        v = np.array(
+            [f(r[key]) for r in res[sc] if r.get(key) is not None and np.isfinite(r[key])],
+            dtype=float,
+        )
         return float(v.mean()), v.size
 
     cov = np.mean([r[k] for r in res["same"] for k in ("cover_A", "cover_B")])
     print(f"{'(a) coverage of 95% CI of neutral share (same)':<58} {cov:>7.3f} {'0.93-0.97':>10}")
     for test in ("shared_dfe_lrt", "neutral_share_difference"):
         v, _ = rate("same", f"p_{test}", lambda p: p < 0.05)
-        print(f"{'(b) size at 5% of ' + test + ' (same DFE, same Ne)':<58} {v:>7.3f} "
-              f"{'<= 0.06':>10}")
+        print(
+            f"{'(b) size at 5% of ' + test + ' (same DFE, same Ne)':<58} {v:>7.3f} {'<= 0.06':>10}"
+        )
     v, _ = rate("ne_only", "p_ne_only_lrt", lambda p: p < 0.05)
     print(f"{'(c) size at 5% of ne_only_lrt (only Ne differs)':<58} {v:>7.3f} {'~0.05':>10}")
     tv = truth("ne_only")
@@ -131,8 +142,10 @@ def main() -> None:
         t = truth(sc)
         for p in "AB":
             est = np.array([r[f"share_{p}"] for r in res[sc]])
-            print(f"    {sc} {p}: truth {t[p]:.3f}, mean estimate {est.mean():.3f}, "
-                  f"sd {est.std(ddof=1) if est.size > 1 else float('nan'):.3f}")
+            print(
+                f"    {sc} {p}: truth {t[p]:.3f}, mean estimate {est.mean():.3f}, "
+                f"sd {est.std(ddof=1) if est.size > 1 else float('nan'):.3f}"
+            )
 
 
 if __name__ == "__main__":

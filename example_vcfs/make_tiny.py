@@ -127,20 +127,26 @@ def main() -> None:
             gq = int(min(99, rng.gamma(3.0, 15.0)))
             gts.append(f"{min(a, b)}/{max(a, b)}:{dp}:{gq}")
         info = f"AA={aa}{info_extra};DP={int(rng.integers(80, 220))}"
-        lines.append("\t".join([c, str(pos), ".", ref, alt_field, "50", filt, info,
-                                "GT:DP:GQ", *gts]))
+        lines.append(
+            "\t".join([c, str(pos), ".", ref, alt_field, "50", filt, info, "GT:DP:GQ", *gts])
+        )
 
-    header = ["##fileformat=VCFv4.2",
-              "##source=driftband example_vcfs/make_tiny.py (invented data)"]
+    header = [
+        "##fileformat=VCFv4.2",
+        "##source=driftband example_vcfs/make_tiny.py (invented data)",
+    ]
     header += [f"##contig=<ID={c},length={n}>" for c, n in CONTIGS.items()]
-    header += ['##FILTER=<ID=LowQual,Description="Low quality">',
-               '##INFO=<ID=AA,Number=1,Type=String,Description="Ancestral allele">',
-               '##INFO=<ID=DP,Number=1,Type=Integer,Description="Total depth">',
-               '##FORMAT=<ID=GT,Number=1,Type=String,Description="Genotype">',
-               '##FORMAT=<ID=DP,Number=1,Type=Integer,Description="Read depth">',
-               '##FORMAT=<ID=GQ,Number=1,Type=Integer,Description="Genotype quality">',
-               "\t".join(["#CHROM", "POS", "ID", "REF", "ALT", "QUAL", "FILTER", "INFO",
-                          "FORMAT", *samples])]
+    header += [
+        '##FILTER=<ID=LowQual,Description="Low quality">',
+        '##INFO=<ID=AA,Number=1,Type=String,Description="Ancestral allele">',
+        '##INFO=<ID=DP,Number=1,Type=Integer,Description="Total depth">',
+        '##FORMAT=<ID=GT,Number=1,Type=String,Description="Genotype">',
+        '##FORMAT=<ID=DP,Number=1,Type=Integer,Description="Read depth">',
+        '##FORMAT=<ID=GQ,Number=1,Type=Integer,Description="Genotype quality">',
+        "\t".join(
+            ["#CHROM", "POS", "ID", "REF", "ALT", "QUAL", "FILTER", "INFO", "FORMAT", *samples]
+        ),
+    ]
     plain = HERE / "tiny.vcf"
     plain.write_text("\n".join(header + lines) + "\n", encoding="utf-8")
     gz = HERE / "tiny.vcf.gz"

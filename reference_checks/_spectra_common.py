@@ -30,8 +30,14 @@ def report(checks: list[Check]) -> int:
     return 0 if failed == 0 else 1
 
 
-def write_vcf(path: str, chroms: list[str], lengths: dict[str, int], records, samples,
-              ancestral_ref: bool = True) -> None:
+def write_vcf(
+    path: str,
+    chroms: list[str],
+    lengths: dict[str, int],
+    records,
+    samples,
+    ancestral_ref: bool = True,
+) -> None:
     """Write a VCF: ``records`` are (chrom, pos 1-based, alleles (samples, 2) int with -1
     missing); REF A, ALT T, INFO/AA = A."""
     with open(path, "w", encoding="ascii") as fh:
@@ -40,13 +46,16 @@ def write_vcf(path: str, chroms: list[str], lengths: dict[str, int], records, sa
             fh.write(f"##contig=<ID={c},length={lengths[c]}>\n")
         fh.write('##INFO=<ID=AA,Number=1,Type=String,Description="Ancestral allele">\n')
         fh.write('##FORMAT=<ID=GT,Number=1,Type=String,Description="Genotype">\n')
-        fh.write("#CHROM\tPOS\tID\tREF\tALT\tQUAL\tFILTER\tINFO\tFORMAT\t"
-                 + "\t".join(samples) + "\n")
+        fh.write(
+            "#CHROM\tPOS\tID\tREF\tALT\tQUAL\tFILTER\tINFO\tFORMAT\t" + "\t".join(samples) + "\n"
+        )
         for c, pos, al in records:
-            gts = "\t".join(f"{'.' if a < 0 else a}/{'.' if b < 0 else b}"
-                            for a, b in np.asarray(al).tolist())
-            fh.write(f"{c}\t{pos}\t.\tA\tT\t50\tPASS\tAA={'A' if ancestral_ref else 'T'}"
-                     f"\tGT\t{gts}\n")
+            gts = "\t".join(
+                f"{'.' if a < 0 else a}/{'.' if b < 0 else b}" for a, b in np.asarray(al).tolist()
+            )
+            fh.write(
+                f"{c}\t{pos}\t.\tA\tT\t50\tPASS\tAA={'A' if ancestral_ref else 'T'}\tGT\t{gts}\n"
+            )
 
 
 def write_text(path: str, text: str) -> str:

@@ -45,9 +45,12 @@ def biopython_classes(table_id: int) -> dict[tuple[str, int], str | None]:
                         continue
                     syn = 0
                     for x in BASES:
-                        other = codon[:p] + x + codon[p + 1:]
-                        if x != codon[p] and other not in t.stop_codons \
-                                and t.forward_table[other] == t.forward_table[codon]:
+                        other = codon[:p] + x + codon[p + 1 :]
+                        if (
+                            x != codon[p]
+                            and other not in t.stop_codons
+                            and t.forward_table[other] == t.forward_table[codon]
+                        ):
                             syn += 1
                     out[codon, p] = CLASS_NAMES[syn]
     return out
@@ -62,16 +65,30 @@ def run_checks() -> list[Check]:
     for n in sorted(NCBI_TABLES):
         code = genetic_code(n)
         ref = biopython_classes(n)
-        bad = [f"{codon}:{p + 1} ours={code.position_class(codon, p)} ref={want}"
-               for (codon, p), want in ref.items() if code.position_class(codon, p) != want]
-        checks.append(Check(f"table {n} ({code.name}): class of 192 codon positions",
-                            not bad, "; ".join(bad[:5]), f"{src}[{n}]"))
+        bad = [
+            f"{codon}:{p + 1} ours={code.position_class(codon, p)} ref={want}"
+            for (codon, p), want in ref.items()
+            if code.position_class(codon, p) != want
+        ]
+        checks.append(
+            Check(
+                f"table {n} ({code.name}): class of 192 codon positions",
+                not bad,
+                "; ".join(bad[:5]),
+                f"{src}[{n}]",
+            )
+        )
     boxes = sorted(genetic_code(1).fourfold_boxes())
     want = sorted(["AC", "CC", "CG", "CT", "GC", "GG", "GT", "TC"])
-    checks.append(Check("standard code has eight fourfold-degenerate boxes "
-                        "(Thr, Pro, Arg, Leu, Ala, Gly, Val, Ser)", boxes == want,
-                        "" if boxes == want else f"found {boxes}",
-                        "common practice (textbook genetic code)"))
+    checks.append(
+        Check(
+            "standard code has eight fourfold-degenerate boxes "
+            "(Thr, Pro, Arg, Leu, Ala, Gly, Val, Ser)",
+            boxes == want,
+            "" if boxes == want else f"found {boxes}",
+            "common practice (textbook genetic code)",
+        )
+    )
     return checks
 
 

@@ -65,13 +65,16 @@ def check_spectra(ns, Ss, classes=None) -> list[Check]:
                 worst_rel = max(worst_rel, float(np.max(np.abs(g[ok] / v[ok] - 1))))
             worst_log = max(worst_log, float(np.max(np.abs(lg - logv))))
         passed = worst_rel <= 1e-10 and worst_log <= 1e-10
-        out.append(Check(
-            f"expected spectrum n={n}: {len(Ss)} S in [{min(Ss):g}, {max(Ss):g}] x "
-            f"{len(cl)} classes",
-            passed,
-            f"max rel err {worst_rel:.1e} (g >= 1e-280); max |d ln g| {worst_log:.1e} "
-            f"(incl. {n_under} underflowing entries); limit 1e-10",
-            SRC_SFS))
+        out.append(
+            Check(
+                f"expected spectrum n={n}: {len(Ss)} S in [{min(Ss):g}, {max(Ss):g}] x "
+                f"{len(cl)} classes",
+                passed,
+                f"max rel err {worst_rel:.1e} (g >= 1e-280); max |d ln g| {worst_log:.1e} "
+                f"(incl. {n_under} underflowing entries); limit 1e-10",
+                SRC_SFS,
+            )
+        )
     return out
 
 
@@ -84,9 +87,14 @@ def check_neutral(ns) -> list[Check]:
         i = np.arange(1, n)
         e0 = float(np.max(np.abs(kernel(n).g(0.0) * i - 1)))
         e1 = max(float(np.max(np.abs(kernel(n).g(S) * i - 1))) for S in (1e-12, -1e-12))
-        out.append(Check(f"neutral spectrum 1/i, n={n}", e0 <= 1e-12 and e1 <= 1e-10,
-                         f"max rel err {e0:.1e} at S=0, {e1:.1e} at |S|=1e-12",
-                         "Fu (1995), E[xi_i] = theta/i (from memory)"))
+        out.append(
+            Check(
+                f"neutral spectrum 1/i, n={n}",
+                e0 <= 1e-12 and e1 <= 1e-10,
+                f"max rel err {e0:.1e} at S=0, {e1:.1e} at |S|=1e-12",
+                "Fu (1995), E[xi_i] = theta/i (from memory)",
+            )
+        )
     return out
 
 
@@ -102,9 +110,15 @@ def check_gamma(n, shapes, means, degrees=(5, 6)) -> list[Check]:
             want = ref.gamma_mean_sfs(n, b, m, degrees)
             got = ex.mean_g(GammaDfe(b, m))
             worst = max(worst, float(np.max(np.abs(got / want - 1))))
-        out.append(Check(f"gamma-DFE mean spectrum n={n}, shape={b:g}, "
-                         f"mean in [{min(means):g}, {max(means):g}] ({len(means)} values)",
-                         worst <= 1e-8, f"max rel err {worst:.1e}; limit 1e-8", SRC_GAMMA))
+        out.append(
+            Check(
+                f"gamma-DFE mean spectrum n={n}, shape={b:g}, "
+                f"mean in [{min(means):g}, {max(means):g}] ({len(means)} values)",
+                worst <= 1e-8,
+                f"max rel err {worst:.1e}; limit 1e-8",
+                SRC_GAMMA,
+            )
+        )
     return out
 
 
@@ -121,12 +135,18 @@ def check_gamma_bands_and_rbar(pairs) -> list[Check]:
         wb = max(wb, float(np.max(np.abs(got[pos] / want[pos] - 1))))
         wr = max(wr, abs(mean_fixation_ratio(d) / ref.gamma_fixation_ratio(b, m) - 1))
     return [
-        Check(f"gamma band shares |Ne s| 0-1-10-100-inf, {len(pairs)} DFEs", wb <= 1e-12,
-              f"max rel err {wb:.1e}; limit 1e-12",
-              "mpmath.gammainc(regularized=True), 30 digits"),
-        Check(f"mean fixation ratio E[S/(1-e^-S)], {len(pairs)} gamma DFEs", wr <= 1e-12,
-              f"max rel err {wr:.1e}; limit 1e-12",
-              "mpmath.quad of E[t/(e^t-1)] (Kimura 1962 per mutation)"),
+        Check(
+            f"gamma band shares |Ne s| 0-1-10-100-inf, {len(pairs)} DFEs",
+            wb <= 1e-12,
+            f"max rel err {wb:.1e}; limit 1e-12",
+            "mpmath.gammainc(regularized=True), 30 digits",
+        ),
+        Check(
+            f"mean fixation ratio E[S/(1-e^-S)], {len(pairs)} gamma DFEs",
+            wr <= 1e-12,
+            f"max rel err {wr:.1e}; limit 1e-12",
+            "mpmath.quad of E[t/(e^t-1)] (Kimura 1962 per mutation)",
+        ),
     ]
 
 
@@ -140,18 +160,25 @@ def run_checks(quick: bool = False) -> list[Check]:
         checks = check_spectra([10], [-1e5, -1.0, 1e-8, 1e3], classes=[1, 5, 9])
         checks += check_spectra([2000], [-1e5, 1e3], classes=[1, 1000, 1999])
         checks += check_neutral([10, 200])
-        checks += (check_gamma(20, [0.05], [1e5], degrees=(4, 5))
-                   + check_gamma(10, [3.0], [0.1], degrees=(4, 5)))
+        checks += check_gamma(20, [0.05], [1e5], degrees=(4, 5)) + check_gamma(
+            10, [3.0], [0.1], degrees=(4, 5)
+        )
         checks += check_gamma_bands_and_rbar([(0.1, 10.0), (3.0, 1.0)])
         return checks
-    Ss = ([-(10.0 ** e) for e in range(5, -9, -1)] + [0.0]
-          + [10.0 ** e for e in range(-8, 4)] + [-3e4, -300.0, -3.0, 3.0, 300.0])
+    Ss = (
+        [-(10.0**e) for e in range(5, -9, -1)]
+        + [0.0]
+        + [10.0**e for e in range(-8, 4)]
+        + [-3e4, -300.0, -3.0, 3.0, 300.0]
+    )
     checks = check_spectra([4, 10, 50, 200, 1000, 2000], Ss)
     checks += check_neutral([2, 4, 10, 50, 200, 1000, 2000])
-    checks += check_gamma(50, [0.05, 0.1, 0.3, 1.0, 3.0, 5.0],
-                          [0.1, 1.0, 10.0, 100.0, 1e3, 1e4, 1e5])
-    checks += check_gamma_bands_and_rbar([(b, m) for b in (0.05, 0.2, 1.0, 3.0, 5.0)
-                                          for m in (0.1, 1.0, 100.0, 1e4, 1e5)])
+    checks += check_gamma(
+        50, [0.05, 0.1, 0.3, 1.0, 3.0, 5.0], [0.1, 1.0, 10.0, 100.0, 1e3, 1e4, 1e5]
+    )
+    checks += check_gamma_bands_and_rbar(
+        [(b, m) for b in (0.05, 0.2, 1.0, 3.0, 5.0) for m in (0.1, 1.0, 100.0, 1e4, 1e5)]
+    )
     return checks
 
 

@@ -53,8 +53,10 @@ def run_checks() -> list[Check]:
     with tempfile.TemporaryDirectory() as d:
         vcf = os.path.join(d, "sim.vcf")
         write_vcf(vcf, ["1", "2"], {"1": L, "2": L}, records, samples)
-        pm = write_text(os.path.join(d, "pm.tsv"), "".join(
-            f"s{i}\t{'east' if i < 13 else 'west'}\n" for i in range(24)))
+        pm = write_text(
+            os.path.join(d, "pm.tsv"),
+            "".join(f"s{i}\t{'east' if i < 13 else 'west'}\n" for i in range(24)),
+        )
         bed = write_text(os.path.join(d, "s.bed"), f"1\t0\t{L}\t4fold\n2\t0\t{L}\t0fold\n")
         cs = allel.read_vcf(vcf, fields=["calldata/GT", "variants/POS", "variants/CHROM"])
         gt = allel.GenotypeArray(cs["calldata/GT"])
@@ -65,10 +67,17 @@ def run_checks() -> list[Check]:
         ours_called = (tab.alleles >= 0).sum(axis=2)
         for p, idx in pops.items():
             ac = gt.count_alleles(subpop=idx, max_allele=1)
-            ok = (np.array_equal(ac[:, 1], ours_alt[:, idx].sum(axis=1))
-                  and np.array_equal(ac.sum(axis=1), ours_called[:, idx].sum(axis=1)))
-            checks.append(Check(f"{p}: per-record ALT and called allele counts",
-                                ok, "", SRC.format(v=v, what="GenotypeArray.count_alleles")))
+            ok = np.array_equal(ac[:, 1], ours_alt[:, idx].sum(axis=1)) and np.array_equal(
+                ac.sum(axis=1), ours_called[:, idx].sum(axis=1)
+            )
+            checks.append(
+                Check(
+                    f"{p}: per-record ALT and called allele counts",
+                    ok,
+                    "",
+                    SRC.format(v=v, what="GenotypeArray.count_alleles"),
+                )
+            )
         unf = build_spectra(vcf, pm, bed, ancestral="aa", checksums=False)
         fol = build_spectra(vcf, pm, bed, ancestral="fold", checksums=False)
         for p, idx in pops.items():
@@ -78,25 +87,41 @@ def run_checks() -> list[Check]:
                 ac = gt[sel].count_alleles(subpop=idx, max_allele=1)
                 want = allel.sfs(ac[:, 1], n=n)
                 got = unf.populations[p].classes[cls].sfs
-                checks.append(Check(
-                    f"{p} {cls}: unfolded spectrum entries 1..n", np.array_equal(
-                        got[1:], want[1:]), f"ours {got[1:6]} ref {want[1:6]}",
-                    SRC.format(v=v, what="allel.sfs of derived (ALT) counts")))
+                checks.append(
+                    Check(
+                        f"{p} {cls}: unfolded spectrum entries 1..n",
+                        np.array_equal(got[1:], want[1:]),
+                        f"ours {got[1:6]} ref {want[1:6]}",
+                        SRC.format(v=v, what="allel.sfs of derived (ALT) counts"),
+                    )
+                )
                 wantf = allel.sfs_folded(ac, n=n)
                 gotf = fol.populations[p].classes[cls].sfs
-                checks.append(Check(
-                    f"{p} {cls}: folded spectrum entries 1..n/2", np.array_equal(
-                        gotf[1:], wantf[1:]), f"ours {gotf[1:6]} ref {wantf[1:6]}",
-                    SRC.format(v=v, what="allel.sfs_folded")))
+                checks.append(
+                    Check(
+                        f"{p} {cls}: folded spectrum entries 1..n/2",
+                        np.array_equal(gotf[1:], wantf[1:]),
+                        f"ours {gotf[1:6]} ref {wantf[1:6]}",
+                        SRC.format(v=v, what="allel.sfs_folded"),
+                    )
+                )
                 st = unf.populations[p].stats[cls]
                 ps = pos[sel]
-                ref = {"pi": allel.sequence_diversity(ps, ac, start=1, stop=L),
-                       "theta_w": allel.watterson_theta(ps, ac, start=1, stop=L),
-                       "tajimas_d": allel.tajima_d(ac)}
+                ref = {
+                    "pi": allel.sequence_diversity(ps, ac, start=1, stop=L),
+                    "theta_w": allel.watterson_theta(ps, ac, start=1, stop=L),
+                    "tajimas_d": allel.tajima_d(ac),
+                }
                 for k, r in ref.items():
                     ok = abs(st[k] - r) <= 1e-9 * max(1.0, abs(r))
-                    checks.append(Check(f"{p} {cls}: {k}", ok, f"ours {st[k]!r} ref {r!r}",
-                                        SRC.format(v=v, what=f"allel.{FUNCS[k]}")))
+                    checks.append(
+                        Check(
+                            f"{p} {cls}: {k}",
+                            ok,
+                            f"ours {st[k]!r} ref {r!r}",
+                            SRC.format(v=v, what=f"allel.{FUNCS[k]}"),
+                        )
+                    )
     return checks
 
 

@@ -24,10 +24,10 @@ import numpy as np
 sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
 from _spectra_common import Check, report, write_text, write_vcf
 
-R = 300          # replicates
-L = 10_000       # bp per replicate
+R = 300  # replicates
+L = 10_000  # bp per replicate
 NE = 10_000
-THETA = 5e-4     # 4 Ne mu per bp
+THETA = 5e-4  # 4 Ne mu per bp
 N_IND = 10
 
 
@@ -38,13 +38,20 @@ def run_checks() -> list[Check]:
     from driftband.spectra.build import build_spectra
 
     mu = THETA / (4 * NE)
-    reps = msprime.sim_ancestry(samples=N_IND, ploidy=2, population_size=NE,
-                                sequence_length=L, recombination_rate=1e-8,
-                                random_seed=20240607, num_replicates=R)
+    reps = msprime.sim_ancestry(
+        samples=N_IND,
+        ploidy=2,
+        population_size=NE,
+        sequence_length=L,
+        recombination_rate=1e-8,
+        random_seed=20240607,
+        num_replicates=R,
+    )
     records, chroms = [], []
     for k, ts in enumerate(reps):
-        ts = msprime.sim_mutations(ts, rate=mu, random_seed=1000 + k,
-                                   model=msprime.BinaryMutationModel())
+        ts = msprime.sim_mutations(
+            ts, rate=mu, random_seed=1000 + k, model=msprime.BinaryMutationModel()
+        )
         c = f"rep{k:03d}"
         chroms.append(c)
         G = ts.genotype_matrix()
@@ -55,35 +62,57 @@ def run_checks() -> list[Check]:
         vcf = os.path.join(d, "neutral.vcf")
         write_vcf(vcf, chroms, dict.fromkeys(chroms, L), records, samples)
         pm = write_text(os.path.join(d, "pm.tsv"), "".join(f"{s}\tP\n" for s in samples))
-        bed = write_text(os.path.join(d, "s.bed"), "".join(f"{c}\t0\t{L}\t4fold\n"
-                                                           for c in chroms))
+        bed = write_text(os.path.join(d, "s.bed"), "".join(f"{c}\t0\t{L}\t4fold\n" for c in chroms))
         ss = build_spectra(vcf, pm, bed, block_size=L, checksums=False)
     pop = ss.populations["P"]
     n = pop.n
     cs = pop.classes["4fold"]
     B = np.asarray(cs.block_sfs, dtype=float)
     src = f"Fu (1995) E[xi_i] = theta L / i vs msprime {msprime.__version__} (seeds fixed)"
-    checks = [Check(f"{len(ss.blocks)} blocks of {L} sites, n = {n}",
-                    len(ss.blocks) == R and n == 2 * N_IND and np.all(cs.block_sites == L),
-                    f"blocks {len(ss.blocks)} n {n}", "simulation design")]
+    checks = [
+        Check(
+            f"{len(ss.blocks)} blocks of {L} sites, n = {n}",
+            len(ss.blocks) == R and n == 2 * N_IND and np.all(cs.block_sites == L),
+            f"blocks {len(ss.blocks)} n {n}",
+            "simulation design",
+        )
+    ]
     mean = B.mean(axis=0)
     se = B.std(axis=0, ddof=1) / np.sqrt(R)
     i = np.arange(1, n)
     want = THETA * L / i
     z = (mean[1:n] - want) / se[1:n]
     worst = int(np.argmax(np.abs(z)))
-    checks.append(Check(f"mean entries i = 1..{n - 1} within 4 SE of theta L / i "
-                        f"(max |z| = {np.abs(z).max():.2f} at i = {worst + 1})",
-                        bool(np.all(np.abs(z) < 4)), f"z = {np.round(z, 2).tolist()}", src))
-    chi2 = float(np.sum(z ** 2))
-    checks.append(Check(f"sum of z^2 over {n - 1} entries = {chi2:.1f} < 2 x {n - 1}",
-                        chi2 < 2 * (n - 1), "", src + "; chi-square-like bound"))
+    checks.append(
+        Check(
+            f"mean entries i = 1..{n - 1} within 4 SE of theta L / i "
+            f"(max |z| = {np.abs(z).max():.2f} at i = {worst + 1})",
+            bool(np.all(np.abs(z) < 4)),
+            f"z = {np.round(z, 2).tolist()}",
+            src,
+        )
+    )
+    chi2 = float(np.sum(z**2))
+    checks.append(
+        Check(
+            f"sum of z^2 over {n - 1} entries = {chi2:.1f} < 2 x {n - 1}",
+            chi2 < 2 * (n - 1),
+            "",
+            src + "; chi-square-like bound",
+        )
+    )
     S = B[:, 1:n].sum(axis=1)
     a_n = np.sum(1.0 / i)
     zS = (S.mean() - THETA * L * a_n) / (S.std(ddof=1) / np.sqrt(R))
-    checks.append(Check(f"mean segregating sites {S.mean():.2f} vs theta L a_n = "
-                        f"{THETA * L * a_n:.2f} (z = {zS:.2f})", abs(zS) < 4, "",
-                        "Watterson (1975) E[S] = theta L a_n (from memory) vs msprime"))
+    checks.append(
+        Check(
+            f"mean segregating sites {S.mean():.2f} vs theta L a_n = "
+            f"{THETA * L * a_n:.2f} (z = {zS:.2f})",
+            abs(zS) < 4,
+            "",
+            "Watterson (1975) E[S] = theta L a_n (from memory) vs msprime",
+        )
+    )
     return checks
 
 

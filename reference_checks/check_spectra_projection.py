@@ -45,8 +45,14 @@ def run_checks() -> list[Check]:
         big = ref > 1e-250
         worst = max(worst, float(np.max(np.abs(P[big] - ref[big]) / ref[big])))
         worst = max(worst, float(np.max(P[~big], initial=0.0)))
-    checks.append(Check(f"projection matrices for m <= 400, max relative error {worst:.1e}",
-                        worst < 1e-9, "", src))
+    checks.append(
+        Check(
+            f"projection matrices for m <= 400, max relative error {worst:.1e}",
+            worst < 1e-9,
+            "",
+            src,
+        )
+    )
     bad = []
     for m, n in [(10, 4), (40, 17), (300, 120)]:
         xi = np.zeros(m + 1)
@@ -55,9 +61,14 @@ def run_checks() -> list[Check]:
         err = np.max(np.abs(out[1:n] * np.arange(1, n) - 1.0))
         if err > 1e-10:
             bad.append((m, n, err))
-    checks.append(Check("projecting the neutral spectrum 1/i from m to n gives 1/j",
-                        not bad, str(bad), "common practice (subsample of a neutral sample);"
-                                           " Fu (1995) 1/i form, from memory"))
+    checks.append(
+        Check(
+            "projecting the neutral spectrum 1/i from m to n gives 1/j",
+            not bad,
+            str(bad),
+            "common practice (subsample of a neutral sample); Fu (1995) 1/i form, from memory",
+        )
+    )
 
     rng = np.random.default_rng(77)
     n_ind, n_rec = 12, 600
@@ -90,9 +101,15 @@ def run_checks() -> list[Check]:
     want[0] += sites
     cs = ss.populations["P"].classes["4fold"]
     err = float(np.max(np.abs(cs.sfs - want)))
-    checks.append(Check(f"spectrum of {n_rec} sites with 15 % missing projected to n = "
-                        f"{n_proj}, max abs difference {err:.1e}", err < 1e-8 and
-                        cs.sites == sites, f"sites {cs.sites} vs {sites}", src))
+    checks.append(
+        Check(
+            f"spectrum of {n_rec} sites with 15 % missing projected to n = "
+            f"{n_proj}, max abs difference {err:.1e}",
+            err < 1e-8 and cs.sites == sites,
+            f"sites {cs.sites} vs {sites}",
+            src,
+        )
+    )
     return checks
 
 

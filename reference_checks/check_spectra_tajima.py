@@ -49,8 +49,11 @@ def tajima_exact(pi: Fraction, S: int, n: int):
     e2 = c2 / (a1 * a1 + a2)
     num = pi - Fraction(S) / a1
     var = e1 * S + e2 * S * (S - 1)
-    return mpmath.mpf(num.numerator) / num.denominator / mpmath.sqrt(
-        mpmath.mpf(var.numerator) / var.denominator)
+    return (
+        mpmath.mpf(num.numerator)
+        / num.denominator
+        / mpmath.sqrt(mpmath.mpf(var.numerator) / var.denominator)
+    )
 
 
 def run_checks() -> list[Check]:
@@ -61,32 +64,62 @@ def run_checks() -> list[Check]:
     from driftband.spectra.build import build_spectra
 
     checks = []
-    bad = [n for n in (2, 3, 4, 5, 10, 20, 50, 200, 1000)
-           if abs(watterson_a(n) - float(a_exact(n))) > 1e-13 * float(a_exact(n))]
-    checks.append(Check("Watterson a_n for n = 2..1000 (a_10 = 7129/2520)",
-                        not bad and a_exact(10) == Fraction(7129, 2520), f"n={bad}", W1975))
-    cases = [(Fraction(5), 20, 10), (Fraction(1234, 100), 40, 24), (Fraction(3, 2), 3, 4),
-             (Fraction(80), 50, 100), (Fraction(7), 7, 7)]
+    bad = [
+        n
+        for n in (2, 3, 4, 5, 10, 20, 50, 200, 1000)
+        if abs(watterson_a(n) - float(a_exact(n))) > 1e-13 * float(a_exact(n))
+    ]
+    checks.append(
+        Check(
+            "Watterson a_n for n = 2..1000 (a_10 = 7129/2520)",
+            not bad and a_exact(10) == Fraction(7129, 2520),
+            f"n={bad}",
+            W1975,
+        )
+    )
+    cases = [
+        (Fraction(5), 20, 10),
+        (Fraction(1234, 100), 40, 24),
+        (Fraction(3, 2), 3, 4),
+        (Fraction(80), 50, 100),
+        (Fraction(7), 7, 7),
+    ]
     worst = 0.0
     for pi, S, n in cases:
         want = float(tajima_exact(pi, S, n))
         got = tajimas_d(float(pi), S, n)
         worst = max(worst, abs(got - want) / max(1.0, abs(want)))
-    checks.append(Check(f"Tajima's D on {len(cases)} (pi, S, n) cases, relative error "
-                        f"{worst:.1e} <= 1e-12", worst <= 1e-12, "", T1989))
+    checks.append(
+        Check(
+            f"Tajima's D on {len(cases)} (pi, S, n) cases, relative error {worst:.1e} <= 1e-12",
+            worst <= 1e-12,
+            "",
+            T1989,
+        )
+    )
     wv = float(tajima_exact(Fraction(5), 20, 10))
-    checks.append(Check(f"worked value n=10, S=20, pi=5: D = {wv:.5f}",
-                        abs(tajimas_d(5.0, 20, 10) - wv) < 1e-12 and round(wv, 4) == -1.3762,
-                        f"ours {tajimas_d(5.0, 20, 10)}", T1989))
+    checks.append(
+        Check(
+            f"worked value n=10, S=20, pi=5: D = {wv:.5f}",
+            abs(tajimas_d(5.0, 20, 10) - wv) < 1e-12 and round(wv, 4) == -1.3762,
+            f"ours {tajimas_d(5.0, 20, 10)}",
+            T1989,
+        )
+    )
 
     # end to end against tskit on coalescent data
     import tskit
 
     L = 200_000
-    ts = msprime.sim_ancestry(samples=15, ploidy=2, population_size=10_000,
-                              sequence_length=L, recombination_rate=1e-8, random_seed=11)
-    ts = msprime.sim_mutations(ts, rate=2e-8, random_seed=12,
-                               model=msprime.BinaryMutationModel())
+    ts = msprime.sim_ancestry(
+        samples=15,
+        ploidy=2,
+        population_size=10_000,
+        sequence_length=L,
+        recombination_rate=1e-8,
+        random_seed=11,
+    )
+    ts = msprime.sim_mutations(ts, rate=2e-8, random_seed=12, model=msprime.BinaryMutationModel())
     keep = np.array([len(s.mutations) == 1 for s in ts.sites()])  # one mutation per site
     pos = np.array([int(s.position) + 1 for s in ts.sites()])
     keep &= np.r_[True, np.diff(pos) > 0]
@@ -103,14 +136,22 @@ def run_checks() -> list[Check]:
         ss = build_spectra(vcf, pm, bed, checksums=False)
     st = ss.populations["P"].stats["4fold"]
     n = 30
-    ref = {"pi": float(ts2.diversity(mode="site")),
-           "theta_w": float(ts2.segregating_sites(mode="site")) / watterson_a(n),
-           "tajimas_d": float(ts2.Tajimas_D(mode="site"))}
+    ref = {
+        "pi": float(ts2.diversity(mode="site")),
+        "theta_w": float(ts2.segregating_sites(mode="site")) / watterson_a(n),
+        "tajimas_d": float(ts2.Tajimas_D(mode="site")),
+    }
     src = f"tskit {tskit.__version__} on msprime {msprime.__version__} coalescent data"
     for k, r in ref.items():
         ok = abs(st[k] - r) <= 1e-9 * max(1.0, abs(r))
-        checks.append(Check(f"{k} of a {ts2.num_sites}-site neutral sample (n = 30)", ok,
-                            f"ours {st[k]!r} ref {r!r}", src))
+        checks.append(
+            Check(
+                f"{k} of a {ts2.num_sites}-site neutral sample (n = 30)",
+                ok,
+                f"ours {st[k]!r} ref {r!r}",
+                src,
+            )
+        )
     return checks
 
 

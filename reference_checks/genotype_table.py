@@ -42,8 +42,12 @@ class GenotypeTable:
     samples: list[str] = field(default_factory=list)
 
 
-def read_genotype_table(path: str | os.PathLike, fields: Sequence[str] = (),
-                        fast: bool = True, batch_bytes: int = BATCH_BYTES) -> GenotypeTable:
+def read_genotype_table(
+    path: str | os.PathLike,
+    fields: Sequence[str] = (),
+    fast: bool = True,
+    batch_bytes: int = BATCH_BYTES,
+) -> GenotypeTable:
     """Read every record and decode all genotypes (memory grows with the file).
 
     Parameters
@@ -62,16 +66,22 @@ def read_genotype_table(path: str | os.PathLike, fields: Sequence[str] = (),
             parts.append((b, g))
         samples = src.header.samples
     if not parts:
-        return GenotypeTable([], np.zeros(0, np.int64), [], [], np.zeros((0, len(samples), 2),
-                             np.int8), {f: np.zeros((0, len(samples)), np.int32)
-                                        for f in fields}, np.zeros(0, bool), samples)
+        return GenotypeTable(
+            [],
+            np.zeros(0, np.int64),
+            [],
+            [],
+            np.zeros((0, len(samples), 2), np.int8),
+            {f: np.zeros((0, len(samples)), np.int32) for f in fields},
+            np.zeros(0, bool),
+            samples,
+        )
     P = max(g.alleles.shape[2] for _, g in parts)
     al = []
     for _, g in parts:
         a = g.alleles
         if a.shape[2] < P:
-            a = np.concatenate([a, np.full(a.shape[:2] + (P - a.shape[2],), -2, np.int8)],
-                               axis=2)
+            a = np.concatenate([a, np.full(a.shape[:2] + (P - a.shape[2],), -2, np.int8)], axis=2)
         al.append(a)
     return GenotypeTable(
         [b.chrom for b, _ in parts for _ in range(len(b))],

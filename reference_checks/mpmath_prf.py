@@ -47,8 +47,7 @@ def _log_w_double(S: float, x: np.ndarray, one_minus_x: np.ndarray) -> np.ndarra
             return np.log(-np.expm1(-S * one_minus_x)) - math.log(-math.expm1(-S))
         t = -S
         # (e^{t(1-x)} - 1)/(e^t - 1) = e^{-tx} (1 - e^{-t(1-x)}) / (1 - e^{-t})
-        return (-t * x + np.log(-np.expm1(-t * one_minus_x))
-                - math.log(-math.expm1(-t)))
+        return -t * x + np.log(-np.expm1(-t * one_minus_x)) - math.log(-math.expm1(-t))
 
 
 def _breakpoints(logf: np.ndarray, y: np.ndarray, drops=(2, 10, 40, 90)) -> tuple:
@@ -106,8 +105,7 @@ def sfs_entry(n: int, i: int, S: float) -> tuple[float, float]:
             w = (1 - xx) if den is None else mp.expm1(-Smp * omxx) / den
             if w <= 0:
                 return mp.mpf(0)
-            return mp.exp((i - 1) * mp.log(xx) + (n - i - 1) * mp.log(omxx)
-                          + mp.log(w) - top)
+            return mp.exp((i - 1) * mp.log(xx) + (n - i - 1) * mp.log(omxx) + mp.log(w) - top)
 
         pts = [mp.mpf(0)] + [_mp_expit(v)[0] for v in ys] + [mp.mpf(1)]
         val = mp.quad(f, pts)
@@ -207,7 +205,7 @@ def _gamma_mean_sfs(n: int, shape: float, mean: float, degrees: tuple) -> tuple:
                 return lam * (psi1 - mp.digamma(lam + xx))
         else:
             z1 = mp.zeta(beta, lam + 1)
-            lb = lam ** beta
+            lb = lam**beta
 
             def wbar(xx):
                 return lb * (mp.zeta(beta, lam + xx) - z1)
@@ -215,7 +213,7 @@ def _gamma_mean_sfs(n: int, shape: float, mean: float, degrees: tuple) -> tuple:
         # wbar changes on the scale lam near x = 0 (singularity at x = -lam): graded
         # intervals there, a few wide ones elsewhere.
         lamf = float(lam)
-        pts = [0.0] + [lamf * 10.0 ** k for k in range(-1, 12) if lamf * 10.0 ** k < 0.05]
+        pts = [0.0] + [lamf * 10.0**k for k in range(-1, 12) if lamf * 10.0**k < 0.05]
         pts += [0.05, 0.2, 0.4, 0.6, 0.8, 1.0]
         intervals = list(zip(pts[:-1], pts[1:]))
         logc = [mp.log(mp.binomial(n, i)) for i in range(1, n)]
@@ -223,8 +221,7 @@ def _gamma_mean_sfs(n: int, shape: float, mean: float, degrees: tuple) -> tuple:
         def F(xx):
             w = wbar(xx)
             lx, l1 = mp.log(xx), mp.log(1 - xx)
-            return [mp.exp(logc[i - 1] + (i - 1) * lx + (n - i - 1) * l1) * w
-                    for i in range(1, n)]
+            return [mp.exp(logc[i - 1] + (i - 1) * lx + (n - i - 1) * l1) * w for i in range(1, n)]
 
         return tuple(float(v) for v in _gl_vector(F, intervals, degrees))
 
@@ -235,8 +232,12 @@ def gamma_band_shares(shape: float, mean: float, edges_nes=(0, 1, 10, 100)) -> n
         beta = mp.mpf(shape)
         lam = beta / mp.mpf(mean)
         edges = [mp.mpf(e) * 4 for e in edges_nes] + [mp.inf]
-        return np.array([float(mp.gammainc(beta, lam * a, lam * b, regularized=True))
-                         for a, b in zip(edges[:-1], edges[1:])])
+        return np.array(
+            [
+                float(mp.gammainc(beta, lam * a, lam * b, regularized=True))
+                for a, b in zip(edges[:-1], edges[1:])
+            ]
+        )
 
 
 def gamma_fixation_ratio(shape: float, mean: float) -> float:
@@ -247,7 +248,7 @@ def gamma_fixation_ratio(shape: float, mean: float) -> float:
     with mp.workdps(DPS):
         beta = mp.mpf(shape)
         lam = beta / mp.mpf(mean)
-        c = lam ** beta / mp.gamma(beta + 1)
+        c = lam**beta / mp.gamma(beta + 1)
 
         def f(u):
             if u == 0:
@@ -257,9 +258,8 @@ def gamma_fixation_ratio(shape: float, mean: float) -> float:
 
         # bulk of u: t around 1/lam and around 1
         tmax = 80 / min(lam, 1)
-        tpts = sorted({mp.mpf(v) for v in (1e-6, 1e-3, 0.1, 1, 10, 1 / lam, 10 / lam)
-                       if v < tmax})
-        pts = [mp.mpf(0)] + [t ** beta for t in tpts] + [tmax ** beta, mp.inf]
+        tpts = sorted({mp.mpf(v) for v in (1e-6, 1e-3, 0.1, 1, 10, 1 / lam, 10 / lam) if v < tmax})
+        pts = [mp.mpf(0)] + [t**beta for t in tpts] + [tmax**beta, mp.inf]
         return float(mp.quad(f, pts))
 
 
@@ -282,7 +282,9 @@ def lognormal_mean_sfs(n: int, mu: float, sigma: float, degrees=(5, 6)) -> np.nd
             dens = norm * mp.exp(-z * z / 2)
             e = mp.exp(-t)
             den = -mp.expm1(-t)
-            return [dens * mp.mpf(n) / (i * (n - i)) * (mp.hyp1f1(i, n, -t) - e) / den
-                    for i in range(1, n)]
+            return [
+                dens * mp.mpf(n) / (i * (n - i)) * (mp.hyp1f1(i, n, -t) - e) / den
+                for i in range(1, n)
+            ]
 
         return np.array([float(v) for v in _gl_vector(F, intervals, degrees, rtol=1e-12)])

@@ -17,7 +17,8 @@ from scipy import stats
 pytestmark = pytest.mark.slow
 
 _spec = importlib.util.spec_from_file_location(
-    "calibrate", Path(__file__).resolve().parents[1] / "benchmarks" / "calibrate.py")
+    "calibrate", Path(__file__).resolve().parents[1] / "benchmarks" / "calibrate.py"
+)
 calibrate = importlib.util.module_from_spec(_spec)
 _spec.loader.exec_module(calibrate)
 
@@ -26,8 +27,9 @@ R = 6
 
 @pytest.fixture(scope="module")
 def results():
-    return {sc: [calibrate.one_replicate((sc, r, 50)) for r in range(R)]
-            for sc in calibrate.SCENARIOS}
+    return {
+        sc: [calibrate.one_replicate((sc, r, 50)) for r in range(R)] for sc in calibrate.SCENARIOS
+    }
 
 
 def test_binomial_bounds_hold():

@@ -43,7 +43,7 @@ def write_fasta(path, records: dict[str, str], width: int = 60) -> str:
         for name, seq in records.items():
             fh.write(f">{name} test sequence\n")
             for i in range(0, len(seq), width):
-                fh.write(seq[i:i + width] + "\n")
+                fh.write(seq[i : i + width] + "\n")
     return str(path)
 
 
@@ -57,9 +57,17 @@ def gene_lines(seqid, gene, txs, strand):
     ends = [e for parts in txs.values() for _, e, _ in parts]
     out = [gff_line(seqid, "gene", min(starts), max(ends), strand, ".", f"ID={gene}")]
     for tx, parts in txs.items():
-        out.append(gff_line(seqid, "mRNA", min(s for s, _, _ in parts),
-                            max(e for _, e, _ in parts), strand, ".",
-                            f"ID={tx};Parent={gene}"))
+        out.append(
+            gff_line(
+                seqid,
+                "mRNA",
+                min(s for s, _, _ in parts),
+                max(e for _, e, _ in parts),
+                strand,
+                ".",
+                f"ID={tx};Parent={gene}",
+            )
+        )
         for s, e, ph in parts:
             out.append(gff_line(seqid, "CDS", s, e, strand, ph, f"ID=cds-{tx};Parent={tx}"))
     return out
@@ -97,8 +105,11 @@ def plus_genome(tmp_path):
 def test_plus_strand_single_exon(plus_genome):
     res = classify_sites(*plus_genome)
     # 0-based: ATG 2-4, GCT 5-7 (7 = 4fold), TGG 8-10, AAA 11-13 (13 = 2fold), TAA 14-16.
-    assert bed_rows(res) == [("chr1", 2, 7, "0fold"), ("chr1", 7, 8, "4fold"),
-                             ("chr1", 8, 13, "0fold")]
+    assert bed_rows(res) == [
+        ("chr1", 2, 7, "0fold"),
+        ("chr1", 7, 8, "4fold"),
+        ("chr1", 8, 13, "0fold"),
+    ]
     c = res.chroms[0]
     assert c.class_sites == {"0fold": 10, "2fold": 1, "3fold": 0, "4fold": 1}
     assert c.excluded["stop_codon"] == 1 and c.excluded["internal_stop"] == 0
@@ -112,20 +123,30 @@ def test_minus_strand_single_exon(tmp_path):
     res = classify_sites(fa, gff)
     # ATG -> 16,15,14; GCT -> 13,12 (0fold), 11 (4fold); TGG -> 10,9,8; AAA -> 7,6
     # (0fold), 5 (2fold); stop -> 4,3,2.
-    assert bed_rows(res) == [("chr2", 6, 11, "0fold"), ("chr2", 11, 12, "4fold"),
-                             ("chr2", 12, 17, "0fold")]
+    assert bed_rows(res) == [
+        ("chr2", 6, 11, "0fold"),
+        ("chr2", 11, 12, "4fold"),
+        ("chr2", 12, 17, "0fold"),
+    ]
     assert res.chroms[0].class_sites["2fold"] == 1
 
 
 # Codons split over three exons: ATG GC|T GGA C|CG TAA (Met Ala Gly Pro stop).
 #   exon 1 "ATGGC" phase 0; exon 2 "TGGAC" phase 1 (its first base ends GCT);
 #   exon 3 "CGTAA" phase 2 (its first two bases end CCG).
-SPLIT = ("AA" + "ATGGC" + "GTAAGTTTAG" + "TGGAC" + "GTCCCAG" + "CGTAA" + "TT")
+SPLIT = "AA" + "ATGGC" + "GTAAGTTTAG" + "TGGAC" + "GTCCCAG" + "CGTAA" + "TT"
 SPLIT_PARTS = [(3, 7, 0), (18, 22, 1), (30, 34, 2)]
 # GCT: G5 C6 0fold, T17 4fold. GGA: G18 G19 0fold (AGA/CGA Arg, TGA stop; GAA/GCA/GTA),
 # A20 4fold (GGN). CCG: C21 0fold (ACG/GCG/TCG), C29 0fold (CAG/CGG/CTG), G30 4fold (CCN).
-SPLIT_BED = [(2, 7, "0fold"), (17, 18, "4fold"), (18, 20, "0fold"), (20, 21, "4fold"),
-             (21, 22, "0fold"), (29, 30, "0fold"), (30, 31, "4fold")]
+SPLIT_BED = [
+    (2, 7, "0fold"),
+    (17, 18, "4fold"),
+    (18, 20, "0fold"),
+    (20, 21, "4fold"),
+    (21, 22, "0fold"),
+    (29, 30, "0fold"),
+    (30, 31, "4fold"),
+]
 
 
 def test_codon_split_across_exons_with_phase_1_and_2(tmp_path):
@@ -158,8 +179,11 @@ def test_phase_of_first_part_skips_bases(tmp_path):
     fa = write_fasta(tmp_path / "ref.fa", {"chr1": "CC" + CDS + "GG"})
     gff = write_gff(tmp_path / "a.gff3", gene_lines("chr1", "g1", {"t1": [(2, 17, 1)]}, "+"))
     res = classify_sites(fa, gff)
-    assert bed_rows(res) == [("chr1", 2, 7, "0fold"), ("chr1", 7, 8, "4fold"),
-                             ("chr1", 8, 13, "0fold")]
+    assert bed_rows(res) == [
+        ("chr1", 2, 7, "0fold"),
+        ("chr1", 7, 8, "4fold"),
+        ("chr1", 8, 13, "0fold"),
+    ]
     assert res.chroms[0].excluded["incomplete_codon"] == 1
 
 
@@ -170,13 +194,18 @@ def test_wrong_phase_changes_the_frame(tmp_path):
     fa = write_fasta(tmp_path / "ref.fa", {"chr1": "CC" + CDS + "GG"})
     gff = write_gff(tmp_path / "a.gff3", gene_lines("chr1", "g1", {"t1": [(3, 17, 1)]}, "+"))
     res = classify_sites(fa, gff)
-    assert bed_rows(res) == [("chr1", 3, 8, "0fold"), ("chr1", 8, 9, "4fold"),
-                             ("chr1", 9, 11, "0fold"), ("chr1", 11, 12, "4fold"),
-                             ("chr1", 12, 14, "0fold")]
-    assert res.chroms[0].excluded["incomplete_codon"] == 2     # the leading A, trailing AA
+    assert bed_rows(res) == [
+        ("chr1", 3, 8, "0fold"),
+        ("chr1", 8, 9, "4fold"),
+        ("chr1", 9, 11, "0fold"),
+        ("chr1", 11, 12, "4fold"),
+        ("chr1", 12, 14, "0fold"),
+    ]
+    assert res.chroms[0].excluded["incomplete_codon"] == 2  # the leading A, trailing AA
 
 
 # ---------------------------------------------------------------- overlaps and exclusions
+
 
 # Two transcripts of one gene on CC ATGGCTTGGAAATAA GG: t1 = the whole CDS (15 bases);
 # t2 = ATG (3-5) + 7-17, read as ATG CTT GGA AAT AA (14 bases, last two incomplete).
@@ -187,35 +216,45 @@ def test_wrong_phase_changes_the_frame(tmp_path):
 # 14 T (t1 stop, t2 AAT pos3 2fold: conflict); 15, 16 (t1 stop, t2 incomplete: neither).
 def _overlap_genome(tmp_path):
     fa = write_fasta(tmp_path / "ref.fa", {"chr4": "CC" + CDS + "GG"})
-    gff = write_gff(tmp_path / "a.gff3", gene_lines(
-        "chr4", "g1", {"t1": [(3, 17, 0)], "t2": [(3, 5, 0), (7, 17, 0)]}, "+"))
+    gff = write_gff(
+        tmp_path / "a.gff3",
+        gene_lines("chr4", "g1", {"t1": [(3, 17, 0)], "t2": [(3, 5, 0), (7, 17, 0)]}, "+"),
+    )
     return fa, gff
 
 
 def test_overlapping_transcripts_that_disagree(tmp_path):
     res = classify_sites(*_overlap_genome(tmp_path), transcripts="agree")
-    assert bed_rows(res) == [("chr4", 2, 7, "0fold"), ("chr4", 9, 11, "0fold"),
-                             ("chr4", 12, 13, "0fold")]
+    assert bed_rows(res) == [
+        ("chr4", 2, 7, "0fold"),
+        ("chr4", 9, 11, "0fold"),
+        ("chr4", 12, 13, "0fold"),
+    ]
     c = res.chroms[0]
-    assert c.excluded["class_conflict"] == 5          # sites 7, 8, 11, 13, 14
+    assert c.excluded["class_conflict"] == 5  # sites 7, 8, 11, 13, 14
     assert c.class_sites == {"0fold": 8, "2fold": 0, "3fold": 0, "4fold": 0}
     assert c.transcripts_used == 2
 
 
 def test_longest_transcript_of_each_gene(tmp_path):
     res = classify_sites(*_overlap_genome(tmp_path), transcripts="longest")
-    assert bed_rows(res) == [("chr4", 2, 7, "0fold"), ("chr4", 7, 8, "4fold"),
-                             ("chr4", 8, 13, "0fold")]
+    assert bed_rows(res) == [
+        ("chr4", 2, 7, "0fold"),
+        ("chr4", 7, 8, "4fold"),
+        ("chr4", 8, 13, "0fold"),
+    ]
     c = res.chroms[0]
     assert c.excluded["not_longest"] == 1 and c.excluded["class_conflict"] == 0
 
 
 def test_internal_stop_excludes_the_transcript(tmp_path):
     # chr5 carries ATG TAG AAA TAA: TAG is an internal stop; chr1 is the usual CDS.
-    fa = write_fasta(tmp_path / "ref.fa", {"chr1": "CC" + CDS + "GG",
-                                           "chr5": "CC" + "ATGTAGAAATAA" + "GG"})
-    lines = (gene_lines("chr1", "g1", {"t1": [(3, 17, 0)]}, "+")
-             + gene_lines("chr5", "g5", {"t5": [(3, 14, 0)]}, "+"))
+    fa = write_fasta(
+        tmp_path / "ref.fa", {"chr1": "CC" + CDS + "GG", "chr5": "CC" + "ATGTAGAAATAA" + "GG"}
+    )
+    lines = gene_lines("chr1", "g1", {"t1": [(3, 17, 0)]}, "+") + gene_lines(
+        "chr5", "g5", {"t5": [(3, 14, 0)]}, "+"
+    )
     res = classify_sites(fa, write_gff(tmp_path / "a.gff3", lines))
     assert [r[0] for r in bed_rows(res)] == ["chr1"] * 3
     c5 = res.chroms[1]
@@ -246,12 +285,15 @@ def test_incomplete_terminal_codon(tmp_path):
 
 
 def test_softmasked_bases(tmp_path):
-    seq = "CC" + CDS[:3] + CDS[3:9].lower() + CDS[9:] + "GG"   # GCT TGG soft-masked
+    seq = "CC" + CDS[:3] + CDS[3:9].lower() + CDS[9:] + "GG"  # GCT TGG soft-masked
     fa = write_fasta(tmp_path / "ref.fa", {"chr1": seq})
     gff = write_gff(tmp_path / "a.gff3", gene_lines("chr1", "g1", {"t1": [(3, 17, 0)]}, "+"))
     used = classify_sites(fa, gff)
-    assert bed_rows(used) == [("chr1", 2, 7, "0fold"), ("chr1", 7, 8, "4fold"),
-                              ("chr1", 8, 13, "0fold")]
+    assert bed_rows(used) == [
+        ("chr1", 2, 7, "0fold"),
+        ("chr1", 7, 8, "4fold"),
+        ("chr1", 8, 13, "0fold"),
+    ]
     dropped = classify_sites(fa, gff, exclude_softmasked=True)
     assert bed_rows(dropped) == [("chr1", 2, 5, "0fold"), ("chr1", 11, 13, "0fold")]
     assert dropped.chroms[0].excluded["softmasked"] == 6
@@ -262,8 +304,11 @@ def test_pseudogene_cds_is_excluded(tmp_path):
     lines = gene_lines("chr1", "g1", {"t1": [(3, 17, 0)]}, "+")
     lines.append(gff_line("chr1", "CDS", 22, 36, "+", 0, "ID=cds-p;Parent=p1;pseudo=true"))
     res = classify_sites(fa, write_gff(tmp_path / "a.gff3", lines))
-    assert bed_rows(res) == [("chr1", 2, 7, "0fold"), ("chr1", 7, 8, "4fold"),
-                             ("chr1", 8, 13, "0fold")]
+    assert bed_rows(res) == [
+        ("chr1", 2, 7, "0fold"),
+        ("chr1", 7, 8, "4fold"),
+        ("chr1", 8, 13, "0fold"),
+    ]
     assert res.chroms[0].excluded["pseudo"] == 1
 
 
@@ -276,9 +321,13 @@ def test_other_genetic_code(tmp_path):
     fa = write_fasta(tmp_path / "ref.fa", {"chr1": "CC" + CDS + "GG"})
     gff = write_gff(tmp_path / "a.gff3", gene_lines("chr1", "g1", {"t1": [(3, 17, 0)]}, "+"))
     res = classify_sites(fa, gff, code=2)
-    assert bed_rows(res) == [("chr1", 2, 4, "0fold"), ("chr1", 5, 7, "0fold"),
-                             ("chr1", 7, 8, "4fold"), ("chr1", 8, 10, "0fold"),
-                             ("chr1", 11, 13, "0fold")]
+    assert bed_rows(res) == [
+        ("chr1", 2, 4, "0fold"),
+        ("chr1", 5, 7, "0fold"),
+        ("chr1", 7, 8, "4fold"),
+        ("chr1", 8, 10, "0fold"),
+        ("chr1", 11, 13, "0fold"),
+    ]
     assert res.chroms[0].class_sites == {"0fold": 8, "2fold": 3, "3fold": 0, "4fold": 1}
 
 
@@ -289,19 +338,24 @@ def test_multiple_parents_percent_encoding_and_gzip(tmp_path):
     # One CDS line shared by two transcripts (Parent=a,b); IDs with an encoded comma and
     # a seqid with an encoded semicolon (GFF3 spec: reserved characters are %-escaped).
     fa = write_fasta(tmp_path / "ref.fa", {"ctg;1": "CC" + CDS + "GG"})
-    lines = [gff_line("ctg%3B1", "gene", 3, 17, "+", ".", "ID=g%2C1"),
-             gff_line("ctg%3B1", "mRNA", 3, 17, "+", ".", "ID=t%2Ca;Parent=g%2C1"),
-             gff_line("ctg%3B1", "mRNA", 3, 17, "+", ".", "ID=t%2Cb;Parent=g%2C1"),
-             gff_line("ctg%3B1", "CDS", 3, 17, "+", 0, "ID=c1;Parent=t%2Ca,t%2Cb")]
+    lines = [
+        gff_line("ctg%3B1", "gene", 3, 17, "+", ".", "ID=g%2C1"),
+        gff_line("ctg%3B1", "mRNA", 3, 17, "+", ".", "ID=t%2Ca;Parent=g%2C1"),
+        gff_line("ctg%3B1", "mRNA", 3, 17, "+", ".", "ID=t%2Cb;Parent=g%2C1"),
+        gff_line("ctg%3B1", "CDS", 3, 17, "+", 0, "ID=c1;Parent=t%2Ca,t%2Cb"),
+    ]
     gff = write_gff(tmp_path / "a.gff3.gz", lines, gz=True)
     ann = read_gff3(gff)
     assert sorted(t.id for t in ann.transcripts) == ["t,a", "t,b"]
     assert {t.gene for t in ann.transcripts} == {"g,1"}
     assert {t.seqid for t in ann.transcripts} == {"ctg;1"}
     res = classify_sites(fa, gff, transcripts="longest")
-    assert bed_rows(res) == [("ctg;1", 2, 7, "0fold"), ("ctg;1", 7, 8, "4fold"),
-                             ("ctg;1", 8, 13, "0fold")]
-    assert res.chroms[0].excluded["not_longest"] == 1     # two transcripts, one gene
+    assert bed_rows(res) == [
+        ("ctg;1", 2, 7, "0fold"),
+        ("ctg;1", 7, 8, "4fold"),
+        ("ctg;1", 8, 13, "0fold"),
+    ]
+    assert res.chroms[0].excluded["not_longest"] == 1  # two transcripts, one gene
 
 
 def test_bgzipped_fasta_gets_fai_and_gzi(tmp_path):
@@ -325,18 +379,22 @@ def _reference_classes(genome: dict[str, str], txs, table_id: int) -> dict:
     def cls(codon, p):
         if codon in t.stop_codons:
             return "stop"
-        syn = sum(1 for b in "ACGT" if b != codon[p] and
-                  (codon[:p] + b + codon[p + 1:]) in t.forward_table and
-                  t.forward_table[codon[:p] + b + codon[p + 1:]] == t.forward_table[codon])
+        syn = sum(
+            1
+            for b in "ACGT"
+            if b != codon[p]
+            and (codon[:p] + b + codon[p + 1 :]) in t.forward_table
+            and t.forward_table[codon[:p] + b + codon[p + 1 :]] == t.forward_table[codon]
+        )
         return ["0fold", "2fold", "3fold", "4fold"][syn]
 
     seen: dict[tuple[str, int], set] = {}
     for chrom, strand, parts in txs:
         parts = sorted(parts, reverse=(strand == "-"))
         positions, bases = [], []
-        for s, e in parts:                      # 1-based closed
+        for s, e in parts:  # 1-based closed
             rng = list(range(s - 1, e))
-            seg = genome[chrom][s - 1:e]
+            seg = genome[chrom][s - 1 : e]
             if strand == "-":
                 rng, seg = rng[::-1], rc(seg)
             positions += rng
@@ -347,7 +405,7 @@ def _reference_classes(genome: dict[str, str], txs, table_id: int) -> dict:
         assert "*" not in aa[:-1] and aa[-1] == "*"
         for i in range(0, len(cds), 3):
             for p in range(3):
-                seen.setdefault((chrom, positions[i + p]), set()).add(cls(cds[i:i + 3], p))
+                seen.setdefault((chrom, positions[i + p]), set()).add(cls(cds[i : i + 3], p))
     out = {}
     for site, classes in seen.items():
         if len(classes) == 1 and (c := next(iter(classes))) in ("0fold", "4fold"):
@@ -376,7 +434,7 @@ def _random_study(tmp_path, rng: random.Random, table_id: int):
             parts.append((pos, pos + len(ex) - 1))
             pos += len(ex) + rng.randint(20, 60)
         for (s, e), ex in zip(parts, genome_exons):
-            chroms[chrom][s - 1:e] = list(ex)
+            chroms[chrom][s - 1 : e] = list(ex)
         # phases from the transcript-order cumulative length (GFF3 spec)
         ordered = sorted(parts, reverse=(strand == "-"))
         done, gparts = 0, []
@@ -390,8 +448,10 @@ def _random_study(tmp_path, rng: random.Random, table_id: int):
     intact, keep_lines = [], []
     for (chrom, strand, parts), glines in zip(txs, lines):
         parts_sorted = sorted(parts, reverse=(strand == "-"))
-        seg = "".join(genome[chrom][s - 1:e] if strand == "+" else rc(genome[chrom][s - 1:e])
-                      for s, e in parts_sorted)
+        seg = "".join(
+            genome[chrom][s - 1 : e] if strand == "+" else rc(genome[chrom][s - 1 : e])
+            for s, e in parts_sorted
+        )
         aa = str(Seq(seg).translate(table=table_id))
         if "*" not in aa[:-1] and aa[-1] == "*":
             intact.append((chrom, strand, parts))
@@ -419,8 +479,22 @@ def test_random_genomes_match_slow_reference(tmp_path, seed, table_id):
 
 def test_cli_writes_bed_readable_by_read_site_classes(tmp_path, plus_genome):
     out, summ = tmp_path / "sites.bed", tmp_path / "summary.tsv"
-    assert main(["classify", "--fasta", plus_genome[0], "--gff", plus_genome[1],
-                 "-o", str(out), "--summary", str(summ)]) == 0
+    assert (
+        main(
+            [
+                "classify",
+                "--fasta",
+                plus_genome[0],
+                "--gff",
+                plus_genome[1],
+                "-o",
+                str(out),
+                "--summary",
+                str(summ),
+            ]
+        )
+        == 0
+    )
     sc = read_site_classes(out)
     assert sorted(sc.classes) == ["0fold", "4fold"]
     s, e = sc.classes["0fold"].chroms["chr1"]
@@ -434,8 +508,11 @@ def test_cli_writes_bed_readable_by_read_site_classes(tmp_path, plus_genome):
     assert table[("chr1", "2fold")] == 1 and table[("all", "stop_codon")] == 1
     # BED lines: sorted, merged, four columns
     lines = [ln.split("\t") for ln in out.read_text().splitlines()]
-    assert lines == [["chr1", "2", "7", "0fold"], ["chr1", "7", "8", "4fold"],
-                     ["chr1", "8", "13", "0fold"]]
+    assert lines == [
+        ["chr1", "2", "7", "0fold"],
+        ["chr1", "7", "8", "4fold"],
+        ["chr1", "8", "13", "0fold"],
+    ]
 
 
 def test_to_site_classes_matches_the_bed(tmp_path):
@@ -455,8 +532,12 @@ def test_cli_refuses_existing_output_and_accepts_force(tmp_path, plus_genome, ca
 
 
 def test_cli_help_has_examples():
-    proc = subprocess.run([sys.executable, "-m", "driftband", "classify", "--help"],
-                          capture_output=True, text=True, check=True)
+    proc = subprocess.run(
+        [sys.executable, "-m", "driftband", "classify", "--help"],
+        capture_output=True,
+        text=True,
+        check=True,
+    )
     assert "examples:" in proc.stdout and "--transcripts" in proc.stdout
 
 
@@ -465,8 +546,20 @@ def test_cli_help_has_examples():
 
 def _bad(tmp_path, capsys, fasta, gff, *extra):
     out = tmp_path / "out.bed"
-    code = main(["classify", "--fasta", str(fasta), "--gff", str(gff), "-o", str(out),
-                 "--summary", str(tmp_path / "s.tsv"), *extra])
+    code = main(
+        [
+            "classify",
+            "--fasta",
+            str(fasta),
+            "--gff",
+            str(gff),
+            "-o",
+            str(out),
+            "--summary",
+            str(tmp_path / "s.tsv"),
+            *extra,
+        ]
+    )
     err = capsys.readouterr().err.strip()
     assert code == 2
     assert len(err.splitlines()) == 1 and "Traceback" not in err
@@ -499,14 +592,15 @@ def test_cds_without_parent(tmp_path, capsys):
 @pytest.mark.parametrize("phase,word", [(".", "missing"), ("3", "invalid")])
 def test_invalid_or_missing_phase(tmp_path, capsys, phase, word):
     fa = write_fasta(tmp_path / "ref.fa", {"chr1": "CC" + CDS + "GG"})
-    gff = write_gff(tmp_path / "a.gff3",
-                    [gff_line("chr1", "CDS", 3, 17, "+", phase, "ID=c1;Parent=t1")])
+    gff = write_gff(
+        tmp_path / "a.gff3", [gff_line("chr1", "CDS", 3, 17, "+", phase, "ID=c1;Parent=t1")]
+    )
     err = _bad(tmp_path, capsys, fa, gff)
     assert "a.gff3:2" in err and word in err and "0, 1 or 2" in err
 
 
 def test_cds_running_off_the_contig_end(tmp_path, capsys):
-    fa = write_fasta(tmp_path / "ref.fa", {"chr1": "CC" + CDS})       # length 17
+    fa = write_fasta(tmp_path / "ref.fa", {"chr1": "CC" + CDS})  # length 17
     gff = write_gff(tmp_path / "a.gff3", gene_lines("chr1", "g1", {"t1": [(3, 20, 0)]}, "+"))
     err = _bad(tmp_path, capsys, fa, gff)
     assert "a.gff3:4" in err and "beyond the end of chr1 (length 17)" in err
@@ -525,7 +619,7 @@ def test_plain_gzip_fasta_cannot_be_indexed(tmp_path, capsys):
 
 def test_malformed_fasta_cannot_be_indexed(tmp_path, capsys):
     fa = tmp_path / "ref.fa"
-    fa.write_text(">chr1\nACGTACGT\nACG\nACGTACGT\n")       # unequal inner line lengths
+    fa.write_text(">chr1\nACGTACGT\nACG\nACGTACGT\n")  # unequal inner line lengths
     gff = write_gff(tmp_path / "a.gff3", gene_lines("chr1", "g1", {"t1": [(1, 9, 0)]}, "+"))
     err = _bad(tmp_path, capsys, fa, gff)
     assert "ref.fa" in err and "indexed as FASTA" in err
@@ -549,8 +643,7 @@ def test_short_gff_line_and_bad_strand(tmp_path, capsys):
     fa = write_fasta(tmp_path / "ref.fa", {"chr1": "CC" + CDS + "GG"})
     gff = write_gff(tmp_path / "a.gff3", ["chr1\tx\tCDS\t3\t17\n"])
     assert "9 tab-separated columns" in _bad(tmp_path, capsys, fa, gff)
-    gff = write_gff(tmp_path / "b.gff3",
-                    [gff_line("chr1", "CDS", 3, 17, ".", 0, "ID=c;Parent=t")])
+    gff = write_gff(tmp_path / "b.gff3", [gff_line("chr1", "CDS", 3, 17, ".", 0, "ID=c;Parent=t")])
     assert "must be '+' or '-'" in _bad(tmp_path, capsys, fa, gff)
 
 
@@ -575,9 +668,9 @@ def test_layout_is_vectorised_over_many_transcripts(tmp_path):
     lines = []
     for k in range(200):
         off = 19 * k
-        lines += gene_lines("chr1", f"g{k}", {f"t{k}": [(off + 3, off + 17, 0)]},
-                            "+" if k % 2 == 0 else "-")
+        lines += gene_lines(
+            "chr1", f"g{k}", {f"t{k}": [(off + 3, off + 17, 0)]}, "+" if k % 2 == 0 else "-"
+        )
     res = classify_sites(fa, write_gff(tmp_path / "a.gff3", lines))
-    assert res.chroms[0].class_sites == {"0fold": 2000, "2fold": 200, "3fold": 0,
-                                         "4fold": 200}
+    assert res.chroms[0].class_sites == {"0fold": 2000, "2fold": 200, "3fold": 0, "4fold": 200}
     assert np.all(np.diff(res.chroms[0].starts) > 0)

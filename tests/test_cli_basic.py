@@ -30,6 +30,7 @@ def test_every_subcommand_has_help_with_examples():
 
 
 def test_python_m_entry_point():
-    out = subprocess.run([sys.executable, "-m", "driftband", "--version"],
-                         capture_output=True, text=True, check=True)
+    out = subprocess.run(
+        [sys.executable, "-m", "driftband", "--version"], capture_output=True, text=True, check=True
+    )
     assert out.stdout.startswith("driftband")

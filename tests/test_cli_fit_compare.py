@@ -14,10 +14,28 @@ def study(tmp_path_factory):
     """Two populations simulated forward with one distribution of s (N 400 vs 100)."""
     d = tmp_path_factory.mktemp("study")
     out = d / "spectra.json"
-    rc = main(["simulate", "--population", "big:N=400,n=16", "--population",
-               "small:N=100,n=16", "--sites", "60000", "--theta", "0.02",
-               "--dfe", "gamma:shape=0.3,mean=200", "--blocks", "30", "--seed", "11",
-               "-o", str(out), "-q"])
+    rc = main(
+        [
+            "simulate",
+            "--population",
+            "big:N=400,n=16",
+            "--population",
+            "small:N=100,n=16",
+            "--sites",
+            "60000",
+            "--theta",
+            "0.02",
+            "--dfe",
+            "gamma:shape=0.3,mean=200",
+            "--blocks",
+            "30",
+            "--seed",
+            "11",
+            "-o",
+            str(out),
+            "-q",
+        ]
+    )
     assert rc == 0
     return d, out
 
@@ -31,9 +49,27 @@ def test_fit_bootstrap_compare(study, tmp_path):
     _d, spectra = study
     fit = tmp_path / "fit.json"
     bands = tmp_path / "bands.tsv"
-    rc = main(["fit", str(spectra), "--dfe", "gamma", "--misorientation", "fixed:0",
-               "--bootstrap", "12", "--workers", "1", "--seed", "3", "-o", str(fit),
-               "--bands-tsv", str(bands), "-q"])
+    rc = main(
+        [
+            "fit",
+            str(spectra),
+            "--dfe",
+            "gamma",
+            "--misorientation",
+            "fixed:0",
+            "--bootstrap",
+            "12",
+            "--workers",
+            "1",
+            "--seed",
+            "3",
+            "-o",
+            str(fit),
+            "--bands-tsv",
+            str(bands),
+            "-q",
+        ]
+    )
     assert rc == 0
     rows = _read_tsv(bands)
     assert {r["population"] for r in rows} == {"big", "small"}
@@ -57,8 +93,11 @@ def test_fit_bootstrap_compare(study, tmp_path):
     cmp_path = tmp_path / "compare.tsv"
     assert main(["compare", str(fit), "-o", str(cmp_path), "-q"]) == 0
     crow = _read_tsv(cmp_path)
-    assert {r["test"] for r in crow} == {"shared_dfe_lrt", "neutral_share_difference",
-                                         "ne_only_lrt"}
+    assert {r["test"] for r in crow} == {
+        "shared_dfe_lrt",
+        "neutral_share_difference",
+        "ne_only_lrt",
+    }
     lrt = next(r for r in crow if r["test"] == "shared_dfe_lrt")
     assert lrt["df"] == "2"
     diff = next(r for r in crow if r["test"] == "neutral_share_difference")
@@ -69,23 +108,47 @@ def test_fit_bootstrap_compare(study, tmp_path):
 
     # Same seed, different worker count: identical bootstrap.
     fit2 = tmp_path / "fit2.json"
-    assert main(["fit", str(spectra), "--dfe", "gamma", "--misorientation", "fixed:0",
-                 "--bootstrap", "12", "--workers", "2", "--seed", "3", "-o", str(fit2),
-                 "-q"]) == 0
+    assert (
+        main(
+            [
+                "fit",
+                str(spectra),
+                "--dfe",
+                "gamma",
+                "--misorientation",
+                "fixed:0",
+                "--bootstrap",
+                "12",
+                "--workers",
+                "2",
+                "--seed",
+                "3",
+                "-o",
+                str(fit2),
+                "-q",
+            ]
+        )
+        == 0
+    )
     doc2 = json.loads(fit2.read_text())
     for pop in ("big", "small"):
-        assert (doc2["populations"][pop]["bootstrap"]["models"]["gamma"]["shares"]
-                == doc["populations"][pop]["bootstrap"]["models"]["gamma"]["shares"])
+        assert (
+            doc2["populations"][pop]["bootstrap"]["models"]["gamma"]["shares"]
+            == doc["populations"][pop]["bootstrap"]["models"]["gamma"]["shares"]
+        )
 
 
-@pytest.mark.parametrize("argv, message", [
-    (["--misorientation", "fixed:-0.1"], "--misorientation"),
-    (["--bands", "0,10,1"], "--bands"),
-    (["--bands", "1,10"], "--bands"),
-    (["--populations", "nowhere"], "'nowhere'"),
-    (["--neutral", "synonymous"], "no class 'synonymous'"),
-    (["--dfe", "weibull"], "unknown DFE family"),
-])
+@pytest.mark.parametrize(
+    "argv, message",
+    [
+        (["--misorientation", "fixed:-0.1"], "--misorientation"),
+        (["--bands", "0,10,1"], "--bands"),
+        (["--bands", "1,10"], "--bands"),
+        (["--populations", "nowhere"], "'nowhere'"),
+        (["--neutral", "synonymous"], "no class 'synonymous'"),
+        (["--dfe", "weibull"], "unknown DFE family"),
+    ],
+)
 def test_fit_bad_options(study, tmp_path, capsys, argv, message):
     _d, spectra = study
     out = tmp_path / "fit.json"
@@ -113,13 +176,18 @@ def test_fit_bad_spectra_files(tmp_path, capsys):
     assert "schema version 7" in capsys.readouterr().err
     # An all-zero selected spectrum, and n < 4, in reviewer-mode tables.
     t = tmp_path / "t.tsv"
-    t.write_text("population\tclass\tsites\tc0\tc1\tc2\tc3\tc4\tc5\tc6\n"
-                 "p\t4fold\t1000\t\t30\t12\t9\t6\t4\t0\n"
-                 "p\t0fold\t1000\t\t0\t0\t0\t0\t0\t0\n")
+    t.write_text(
+        "population\tclass\tsites\tc0\tc1\tc2\tc3\tc4\tc5\tc6\n"
+        "p\t4fold\t1000\t\t30\t12\t9\t6\t4\t0\n"
+        "p\t0fold\t1000\t\t0\t0\t0\t0\t0\t0\n"
+    )
     assert main(["fit", str(t), "-o", str(tmp_path / "f.json")]) == 2
     assert "no polymorphic sites" in capsys.readouterr().err
-    t.write_text("population\tclass\tsites\tc0\tc1\tc2\tc3\n"
-                 "p\t4fold\t1000\t\t30\t12\t0\n" "p\t0fold\t1000\t\t10\t2\t0\n")
+    t.write_text(
+        "population\tclass\tsites\tc0\tc1\tc2\tc3\n"
+        "p\t4fold\t1000\t\t30\t12\t0\n"
+        "p\t0fold\t1000\t\t10\t2\t0\n"
+    )
     assert main(["fit", str(t), "-o", str(tmp_path / "f.json")]) == 2
     assert "n >= 4" in capsys.readouterr().err
 
@@ -129,15 +197,29 @@ def test_reviewer_table_fit(tmp_path):
     n = 10
     i = np.arange(1, n)
     neutral = np.round(2000 / i).astype(int)
-    selected = np.round(600 / i ** 1.3).astype(int)
+    selected = np.round(600 / i**1.3).astype(int)
     t = tmp_path / "table.tsv"
     with open(t, "w") as fh:
         fh.write("population\tclass\tsites\t" + "\t".join(f"c{k}" for k in range(n + 1)) + "\n")
         for cls, v in (("4fold", neutral), ("0fold", selected)):
             fh.write(f"pond\t{cls}\t200000\t\t" + "\t".join(map(str, v)) + "\t0\n")
     bands = tmp_path / "bands.tsv"
-    assert main(["fit", str(t), "--dfe", "gamma", "-o", str(tmp_path / "f.json"),
-                 "--bands-tsv", str(bands), "-q"]) == 0
+    assert (
+        main(
+            [
+                "fit",
+                str(t),
+                "--dfe",
+                "gamma",
+                "-o",
+                str(tmp_path / "f.json"),
+                "--bands-tsv",
+                str(bands),
+                "-q",
+            ]
+        )
+        == 0
+    )
     rows = _read_tsv(bands)
     assert len(rows) == 4 and rows[0]["ci_low"] == ""
 
@@ -145,18 +227,33 @@ def test_reviewer_table_fit(tmp_path):
 def test_compare_errors(study, tmp_path, capsys):
     _d, spectra = study
     fit = tmp_path / "fit.json"
-    assert main(["fit", str(spectra), "--dfe", "gamma", "--misorientation", "fixed:0",
-                 "-o", str(fit), "-q"]) == 0
+    assert (
+        main(
+            [
+                "fit",
+                str(spectra),
+                "--dfe",
+                "gamma",
+                "--misorientation",
+                "fixed:0",
+                "-o",
+                str(fit),
+                "-q",
+            ]
+        )
+        == 0
+    )
     out = tmp_path / "c.tsv"
     assert main(["compare", str(fit), "--pairs", "big:nowhere", "-o", str(out)]) == 2
     assert "'nowhere'" in capsys.readouterr().err
     # Asking explicitly for the bootstrap test on fits without bootstrap.
-    assert main(["compare", str(fit), "--tests", "neutral_share_difference",
-                 "-o", str(out)]) == 2
+    assert main(["compare", str(fit), "--tests", "neutral_share_difference", "-o", str(out)]) == 2
     assert "--bootstrap" in capsys.readouterr().err
     # The LRTs do not need the bootstrap.
-    assert main(["compare", str(fit), "--tests", "shared_dfe_lrt,ne_only_lrt",
-                 "-o", str(out), "-q"]) == 0
+    assert (
+        main(["compare", str(fit), "--tests", "shared_dfe_lrt,ne_only_lrt", "-o", str(out), "-q"])
+        == 0
+    )
     assert not (tmp_path / "x").exists()
 
 
@@ -171,8 +268,22 @@ def test_readme_reviewer_example(tmp_path):
     t = tmp_path / "pond.tsv"
     t.write_text(table + "\n")
     bands = tmp_path / "pond.bands.tsv"
-    assert main(["fit", str(t), "--dfe", "gamma,discrete", "-o", str(tmp_path / "f.json"),
-                 "--bands-tsv", str(bands), "-q"]) == 0
+    assert (
+        main(
+            [
+                "fit",
+                str(t),
+                "--dfe",
+                "gamma,discrete",
+                "-o",
+                str(tmp_path / "f.json"),
+                "--bands-tsv",
+                str(bands),
+                "-q",
+            ]
+        )
+        == 0
+    )
     rows = _read_tsv(bands)
     assert [r["population"] for r in rows] == ["pond"] * 4
     assert sum(float(r["share"]) for r in rows) == pytest.approx(1.0, abs=1e-5)

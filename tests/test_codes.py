@@ -35,7 +35,7 @@ def biopython_class(table_id: int, codon: str, position: int) -> str | None:
     for b in BASES:
         if b == codon[position]:
             continue
-        other = codon[:position] + b + codon[position + 1:]
+        other = codon[:position] + b + codon[position + 1 :]
         if other not in t.stop_codons and t.forward_table[other] == aa:
             syn += 1
     return {0: "0fold", 1: "2fold", 2: "3fold", 3: "4fold"}[syn]
@@ -47,8 +47,11 @@ def test_every_position_of_all_64_codons_matches_biopython(table_id):
     code = genetic_code(table_id)
     for codon in ALL_CODONS:
         for p in range(3):
-            assert code.position_class(codon, p) == biopython_class(table_id, codon, p), \
-                (table_id, codon, p)
+            assert code.position_class(codon, p) == biopython_class(table_id, codon, p), (
+                table_id,
+                codon,
+                p,
+            )
 
 
 @pytest.mark.parametrize("table_id", sorted(NCBI_TABLES))
@@ -64,8 +67,11 @@ def test_every_supported_table_matches_biopython(table_id):
     for codon in ALL_CODONS:
         for p in range(3):
             want = biopython_class(table_id, codon, p)
-            got = None if deg[codon_index(codon), p] < 0 else DEGENERACY_NAMES[
-                deg[codon_index(codon), p]]
+            got = (
+                None
+                if deg[codon_index(codon), p] < 0
+                else DEGENERACY_NAMES[deg[codon_index(codon), p]]
+            )
             assert got == want, (table_id, codon, p)
 
 
@@ -84,8 +90,8 @@ def test_standard_code_has_eight_fourfold_boxes():
     boxes = genetic_code(1).fourfold_boxes()
     assert sorted(boxes) == sorted(["CT", "GT", "TC", "CC", "AC", "GC", "CG", "GG"])
     deg = genetic_code(1).degeneracy
-    assert int((deg[:, 2] == 3).sum()) == 32          # 8 boxes x 4 codons, third position
-    assert int((deg[:, :2] == 3).sum()) == 0          # never at first or second position
+    assert int((deg[:, 2] == 3).sum()) == 32  # 8 boxes x 4 codons, third position
+    assert int((deg[:, :2] == 3).sum()) == 0  # never at first or second position
 
 
 def test_standard_code_facts():
@@ -95,8 +101,7 @@ def test_standard_code_facts():
     code = genetic_code(1)
     for codon in ("ATG", "TGG"):
         assert [code.position_class(codon, p) for p in range(3)] == ["0fold"] * 3
-    three = [(c, p) for c in ALL_CODONS for p in range(3)
-             if code.position_class(c, p) == "3fold"]
+    three = [(c, p) for c in ALL_CODONS for p in range(3) if code.position_class(c, p) == "3fold"]
     assert three == [("ATA", 2), ("ATC", 2), ("ATT", 2)]
     for codon in ("TTA", "TTG", "CTA", "CTG", "AGA", "AGG", "CGA", "CGG"):
         assert code.position_class(codon, 0) == "2fold", codon
@@ -126,7 +131,7 @@ def test_codon_index_order_and_errors():
 
 def test_unknown_table_is_an_option_error():
     with pytest.raises(OptionError, match="--code 7"):
-        genetic_code(7)          # table 7 was withdrawn by NCBI (merged into 4)
+        genetic_code(7)  # table 7 was withdrawn by NCBI (merged into 4)
     with pytest.raises(OptionError):
         genetic_code("x")
 

@@ -46,8 +46,9 @@ def _direct_profile(data, gbar, eps):
         return -(poisson_loglik(data.neutral, ln) + poisson_loglik(data.selected, ls))
 
     x0 = np.log((data.neutral + data.selected + 0.5) / (a + b))
-    r = optimize.minimize(nll, x0, method="L-BFGS-B", options={"ftol": 1e-15, "gtol": 1e-10,
-                                                               "maxiter": 20000})
+    r = optimize.minimize(
+        nll, x0, method="L-BFGS-B", options={"ftol": 1e-15, "gtol": 1e-10, "maxiter": 20000}
+    )
     return -r.fun
 
 
@@ -107,8 +108,13 @@ def test_parameter_recovery_within_three_standard_errors():
     z = {"shape": [], "mean_S": []}
     for _ in range(50):
         data = _pair(n, rng.poisson(en).astype(float), rng.poisson(es).astype(float), 5e5, 5e5)
-        f = fit_model(data, DfeModel("gamma"), eps=0.0, expectation=ex,
-                      starts=[np.log([0.5, 200.0]), np.log([0.2, 2000.0])])
+        f = fit_model(
+            data,
+            DfeModel("gamma"),
+            eps=0.0,
+            expectation=ex,
+            starts=[np.log([0.5, 200.0]), np.log([0.2, 2000.0])],
+        )
         for k, tv in (("shape", 0.35), ("mean_S", 400.0)):
             z[k].append((f.params[k] - tv) / f.stderr[k])
     for k, v in z.items():
@@ -134,7 +140,7 @@ def test_folded_fit_recovers_shape():
     true = GammaDfe(0.25, 2000.0)
     en, es = _model_spectra(n, true, 0.01, 1e6, 1e6)
     h = n // 2
-    fold = lambda e: np.concatenate([e[:h - 1] + e[::-1][:h - 1], [e[h - 1]]])  # noqa: E731
+    fold = lambda e: np.concatenate([e[: h - 1] + e[::-1][: h - 1], [e[h - 1]]])  # noqa: E731
     xn, xs = fold(en), fold(es)
     full = lambda x, L: np.concatenate([[L - x.sum()], x])  # noqa: E731
     data = SpectrumPair.from_arrays(n, True, full(xn, 1e6), full(xs, 1e6), 1e6, 1e6)

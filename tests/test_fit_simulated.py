@@ -23,9 +23,14 @@ TRUE_NEUTRAL_SHARE = float(gammainc(SHAPE, 4.0 * SHAPE / MEAN_S))
 
 def _simulate(history, seed, n_present):
     pops = build_populations([f"p:N={n_present},n=20"], history)
-    study = simulate_study(pops, parse_dfe(f"gamma:shape={SHAPE},mean={MEAN_S}"),
-                           theta=0.02, sites={"0fold": 100_000, "4fold": 100_000},
-                           blocks=10, seed=seed)
+    study = simulate_study(
+        pops,
+        parse_dfe(f"gamma:shape={SHAPE},mean={MEAN_S}"),
+        theta=0.02,
+        sites={"0fold": 100_000, "4fold": 100_000},
+        blocks=10,
+        seed=seed,
+    )
     return study.spectra.populations["p"]
 
 

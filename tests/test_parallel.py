@@ -41,23 +41,48 @@ from vcf_fixtures import header, random_study, rec, write_text, write_vcf
 
 distributed = pytest.importorskip("distributed")
 
-REGION = 10_000   # bases per task: about 13 tasks on the simulated study
+REGION = 10_000  # bases per task: about 13 tasks on the simulated study
 
 
 # ---------------------------------------------------------------------------- fixtures
+
 
 @pytest.fixture(scope="module")
 def study(tmp_path_factory):
     """A study written by ``driftband simulate --vcf``: 3 chromosomes of 41.1 kb, two
     populations, bgzipped + indexed VCF, sites BED and popmap."""
     d = tmp_path_factory.mktemp("pstudy")
-    rc = main(["simulate", "--population", "lake:N=200,n=12", "--population",
-               "pond:N=100,n=8", "--sites", "30000", "--theta", "0.02", "--blocks", "12",
-               "--chromosomes", "3", "--seed", "5", "--vcf", str(d / "study"),
-               "-o", str(d / "truth.json"), "-q"])
+    rc = main(
+        [
+            "simulate",
+            "--population",
+            "lake:N=200,n=12",
+            "--population",
+            "pond:N=100,n=8",
+            "--sites",
+            "30000",
+            "--theta",
+            "0.02",
+            "--blocks",
+            "12",
+            "--chromosomes",
+            "3",
+            "--seed",
+            "5",
+            "--vcf",
+            str(d / "study"),
+            "-o",
+            str(d / "truth.json"),
+            "-q",
+        ]
+    )
     assert rc == 0
-    return {"vcf": d / "study.vcf.gz", "popmap": d / "study.popmap.tsv",
-            "sites": d / "study.sites.bed", "dir": d}
+    return {
+        "vcf": d / "study.vcf.gz",
+        "popmap": d / "study.popmap.tsv",
+        "sites": d / "study.sites.bed",
+        "dir": d,
+    }
 
 
 @pytest.fixture(scope="module")
@@ -65,21 +90,21 @@ def missing_study(tmp_path_factory):
     """Random genotypes with 4 % missing calls (spectra are projected: float64)."""
     d = tmp_path_factory.mktemp("pmiss")
     rng = np.random.default_rng(71)
-    text, samples, _ = random_study(rng, 12, 900, chroms=("1", "2"), length=60_000,
-                                    missing=0.04)
+    text, samples, _ = random_study(rng, 12, 900, chroms=("1", "2"), length=60_000, missing=0.04)
     vcf = write_vcf(d / "m.vcf", text, "bgzf")
-    pm = write_text(d / "pm.tsv", "".join(f"{s}\t{'AB'[i % 2]}\n"
-                                          for i, s in enumerate(samples)))
-    bed = write_text(d / "s.bed", "1\t0\t60000\t4fold\n2\t0\t25000\t0fold\n"
-                                  "2\t25000\t60000\t4fold\n")
+    pm = write_text(d / "pm.tsv", "".join(f"{s}\t{'AB'[i % 2]}\n" for i, s in enumerate(samples)))
+    bed = write_text(
+        d / "s.bed", "1\t0\t60000\t4fold\n2\t0\t25000\t0fold\n2\t25000\t60000\t4fold\n"
+    )
     return {"vcf": vcf, "popmap": pm, "sites": bed, "dir": d, "text": text}
 
 
 @pytest.fixture(scope="module")
 def cluster():
     """A local Dask cluster of 2 worker processes with 1 thread each."""
-    with distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=True,
-                                  dashboard_address=":0") as cl:
+    with distributed.LocalCluster(
+        n_workers=2, threads_per_worker=1, processes=True, dashboard_address=":0"
+    ) as cl:
         yield cl
 
 
@@ -105,6 +130,7 @@ def _free_port() -> int:
 
 # ---------------------------------------------------------------------------- the layer
 
+
 def test_tree_shape_depends_only_on_the_number_of_tasks():
     def paren(a, b):
         return f"({a}{b})"
@@ -120,8 +146,7 @@ def test_tree_shape_depends_only_on_the_number_of_tasks():
 
 
 def test_parallel_map_keeps_task_order_and_passes_user_errors():
-    assert _parallel.parallel_map(abs, range(-7, 5), workers=2) == [abs(i)
-                                                                     for i in range(-7, 5)]
+    assert _parallel.parallel_map(abs, range(-7, 5), workers=2) == [abs(i) for i in range(-7, 5)]
     with pytest.raises(InputError, match=r"^x\.vcf:3: broken record$"):
         _parallel.parallel_map(_fail_on_three, range(8), workers=2)
 
@@ -134,13 +159,14 @@ def _fail_on_three(i):
 
 def _die(i):
     if i == 2:
-        os._exit(9)   # the worker process dies, every time
+        os._exit(9)  # the worker process dies, every time
     return i
 
 
 def test_task_that_keeps_killing_its_worker_ends_in_one_line():
-    with pytest.raises(_parallel.WorkerLostError,
-                       match=r"^task 2 was lost 3 times because its worker process died"):
+    with pytest.raises(
+        _parallel.WorkerLostError, match=r"^task 2 was lost 3 times because its worker process died"
+    ):
         _parallel.parallel_map(_die, range(4), workers=2, retries=2)
 
 
@@ -153,13 +179,13 @@ def test_worker_count_checks():
 
 # ---------------------------------------------------------------------------- spectra
 
+
 def test_spectra_same_for_1_and_2_workers_and_match_scikit_allel(study, tmp_path):
     args = (study["vcf"], study["popmap"], study["sites"])
     one = build_spectra(*args, region_size=REGION, workers=1)
     two = build_spectra(*args, region_size=REGION, workers=2)
-    big = build_spectra(*args, workers=2)   # default region size: one task per chromosome
-    assert two.provenance["execution"] == {"region_size": REGION, "workers": 2,
-                                           "scheduler": None}
+    big = build_spectra(*args, workers=2)  # default region size: one task per chromosome
+    assert two.provenance["execution"] == {"region_size": REGION, "workers": 2, "scheduler": None}
     assert _doc(one) == _doc(two) == _doc(big)
     for name, ss in (("one", one), ("two", two)):
         write_spectra_json(ss, tmp_path / f"{name}.json")
@@ -168,20 +194,30 @@ def test_spectra_same_for_1_and_2_workers_and_match_scikit_allel(study, tmp_path
     # scikit-allel (its own VCF parser, count_alleles and sfs) on the same file
     import allel
 
-    cs = allel.read_vcf(str(study["vcf"]), fields=["samples", "calldata/GT",
-                                                    "variants/CHROM", "variants/POS",
-                                                    "variants/REF", "variants/AA"])
+    cs = allel.read_vcf(
+        str(study["vcf"]),
+        fields=[
+            "samples",
+            "calldata/GT",
+            "variants/CHROM",
+            "variants/POS",
+            "variants/REF",
+            "variants/AA",
+        ],
+    )
     gt = allel.GenotypeArray(cs["calldata/GT"])
     pos0 = {}
     for line in Path(study["sites"]).read_text().splitlines():
         c, s, e, k = line.split("\t")[:4]
         for p in range(int(s), int(e)):
             pos0[(c, p)] = k
-    cls = np.array([pos0.get((c, int(p) - 1), "") for c, p in
-                    zip(cs["variants/CHROM"], cs["variants/POS"])])
+    cls = np.array(
+        [pos0.get((c, int(p) - 1), "") for c, p in zip(cs["variants/CHROM"], cs["variants/POS"])]
+    )
     ref_is_anc = cs["variants/AA"] == cs["variants/REF"]
-    sample_pop = dict(line.split("\t") for line in
-                      Path(study["popmap"]).read_text().splitlines() if line)
+    sample_pop = dict(
+        line.split("\t") for line in Path(study["popmap"]).read_text().splitlines() if line
+    )
     for p, pop in two.populations.items():
         idx = [i for i, s in enumerate(cs["samples"]) if sample_pop[s] == p]
         ac = gt.count_alleles(subpop=idx, max_allele=1)
@@ -200,12 +236,14 @@ def test_projected_spectra_byte_identical_for_1_2_and_3_workers(missing_study, t
     assert runs[1].populations["A"].classes["4fold"].block_sfs.dtype == np.float64
     for w, ss in runs.items():
         write_spectra_json(ss, tmp_path / f"w{w}.json")
-    assert (_file_body(tmp_path / "w1.json") == _file_body(tmp_path / "w2.json")
-            == _file_body(tmp_path / "w3.json"))
+    assert (
+        _file_body(tmp_path / "w1.json")
+        == _file_body(tmp_path / "w2.json")
+        == _file_body(tmp_path / "w3.json")
+    )
     # streaming the same text without an index (one process) gives the same spectra
     plain = write_vcf(tmp_path / "plain.vcf", missing_study["text"], "plain")
-    assert _doc(build_spectra(plain, *args[1:], region_size=7_000, workers=2)) == \
-        _doc(runs[1])
+    assert _doc(build_spectra(plain, *args[1:], region_size=7_000, workers=2)) == _doc(runs[1])
 
 
 def test_cluster_matches_local(study, missing_study, cluster, tmp_path):
@@ -217,8 +255,17 @@ def test_cluster_matches_local(study, missing_study, cluster, tmp_path):
         assert remote.provenance["execution"]["scheduler"] == addr
         assert _doc(remote) == _doc(local)
     # the command line, local vs cluster: the files agree byte for byte up to provenance
-    base = ["spectra", str(study["vcf"]), "--popmap", str(study["popmap"]), "--sites",
-            str(study["sites"]), "--region-size", str(REGION), "-q"]
+    base = [
+        "spectra",
+        str(study["vcf"]),
+        "--popmap",
+        str(study["popmap"]),
+        "--sites",
+        str(study["sites"]),
+        "--region-size",
+        str(REGION),
+        "-q",
+    ]
     assert main([*base, "--workers", "1", "-o", str(tmp_path / "l.json")]) == 0
     assert main([*base, "--scheduler", addr, "-o", str(tmp_path / "c.json")]) == 0
     assert _file_body(tmp_path / "l.json") == _file_body(tmp_path / "c.json")
@@ -226,19 +273,21 @@ def test_cluster_matches_local(study, missing_study, cluster, tmp_path):
 
 # ---------------------------------------------------------------------------- faults
 
+
 def _region_tasks(s, region_size=REGION):
     pm = read_popmap(s["popmap"])
     sc = read_site_classes(s["sites"])
     with VcfSource(s["vcf"]) as src:
         design = make_design(assign_samples(pm, src.header.samples), sorted(sc.classes))
-        plan = make_plan(sc, src.chroms, block_size=3_425,
-                         contig_lengths=src.header.contig_lengths)
-    tasks = [(os.path.abspath(s["vcf"]), c, st, e, design, plan.region_sites(c, st, e))
-             for c, st, e in plan.regions(region_size)]
+        plan = make_plan(sc, src.chroms, block_size=3_425, contig_lengths=src.header.contig_lengths)
+    tasks = [
+        (os.path.abspath(s["vcf"]), c, st, e, design, plan.region_sites(c, st, e))
+        for c, st, e in plan.regions(region_size)
+    ]
     return tasks, design, plan
 
 
-SLOW_REGION = 1   # the task that sleeps on its first attempt
+SLOW_REGION = 1  # the task that sleeps on its first attempt
 
 
 def _slow_first_attempt(task):
@@ -257,6 +306,7 @@ def _slow_first_attempt(task):
 def _kill_slow_worker(marker_dir: Path, killed: list):
     """on_result callback: at the first result, kill the worker process that is still
     inside the slow task's first attempt."""
+
     def callback(_i, _r):
         if killed:
             return
@@ -270,6 +320,7 @@ def _kill_slow_worker(marker_dir: Path, killed: list):
                 return
             time.sleep(0.02)
         raise AssertionError("the slow task never started")
+
     return callback
 
 
@@ -284,15 +335,27 @@ def test_killed_worker_loses_nothing_and_counts_nothing_twice(study, tmp_path, w
     killed: list[int] = []
     t0 = time.monotonic()
     if where == "local":
-        total = _parallel.map_reduce(_slow_first_attempt, wrapped, operator.add, workers=2,
-                                     on_result=_kill_slow_worker(marker, killed))
+        total = _parallel.map_reduce(
+            _slow_first_attempt,
+            wrapped,
+            operator.add,
+            workers=2,
+            on_result=_kill_slow_worker(marker, killed),
+        )
     else:
-        with distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=True,
-                                      dashboard_address=":0") as cl, \
-                distributed.Client(cl.scheduler_address, set_as_default=False) as client:
-            total = _parallel.map_reduce(_slow_first_attempt, wrapped, operator.add,
-                                         scheduler=client,
-                                         on_result=_kill_slow_worker(marker, killed))
+        with (
+            distributed.LocalCluster(
+                n_workers=2, threads_per_worker=1, processes=True, dashboard_address=":0"
+            ) as cl,
+            distributed.Client(cl.scheduler_address, set_as_default=False) as client,
+        ):
+            total = _parallel.map_reduce(
+                _slow_first_attempt,
+                wrapped,
+                operator.add,
+                scheduler=client,
+                on_result=_kill_slow_worker(marker, killed),
+            )
     assert time.monotonic() - t0 < 25, "the slow first attempt was not cut short"
     # the kill hit the slow task mid-run: its first attempt started and never finished,
     # and it was run again, to the end, in another process
@@ -304,8 +367,9 @@ def test_killed_worker_loses_nothing_and_counts_nothing_twice(study, tmp_path, w
     with VcfSource(study["vcf"]) as src:
         n_records = sum(len(b) for b in src.stream())
     assert total.records == serial.records == n_records
-    assert _doc(spectra_from_counts(total, design, plan.blocks)) == \
-        _doc(spectra_from_counts(serial, design, plan.blocks))
+    assert _doc(spectra_from_counts(total, design, plan.blocks)) == _doc(
+        spectra_from_counts(serial, design, plan.blocks)
+    )
 
 
 def _empty():
@@ -316,14 +380,39 @@ def test_unreachable_scheduler_is_one_line_and_exit_2(study, tmp_path):
     addr = f"tcp://127.0.0.1:{_free_port()}"
     env = dict(os.environ, DRIFTBAND_CONNECT_TIMEOUT="3")
     cmds = [
-        ["spectra", str(study["vcf"]), "--popmap", str(study["popmap"]), "--sites",
-         str(study["sites"]), "-o", str(tmp_path / "s.json"), "--scheduler", addr],
-        ["fit", str(study["dir"] / "truth.json"), "--dfe", "gamma", "--bootstrap", "4",
-         "-o", str(tmp_path / "f.json"), "--scheduler", addr],
+        [
+            "spectra",
+            str(study["vcf"]),
+            "--popmap",
+            str(study["popmap"]),
+            "--sites",
+            str(study["sites"]),
+            "-o",
+            str(tmp_path / "s.json"),
+            "--scheduler",
+            addr,
+        ],
+        [
+            "fit",
+            str(study["dir"] / "truth.json"),
+            "--dfe",
+            "gamma",
+            "--bootstrap",
+            "4",
+            "-o",
+            str(tmp_path / "f.json"),
+            "--scheduler",
+            addr,
+        ],
     ]
     for cmd in cmds:
-        r = subprocess.run([sys.executable, "-m", "driftband", *cmd], capture_output=True,
-                           text=True, env=env, timeout=120)
+        r = subprocess.run(
+            [sys.executable, "-m", "driftband", *cmd],
+            capture_output=True,
+            text=True,
+            env=env,
+            timeout=120,
+        )
         assert r.returncode == 2, r.stderr
         lines = r.stderr.strip().splitlines()
         assert len(lines) == 1, r.stderr
@@ -332,13 +421,13 @@ def test_unreachable_scheduler_is_one_line_and_exit_2(study, tmp_path):
 
 
 def test_silent_listener_and_bad_address_are_one_line(study, tmp_path, capsys):
-    with socket.socket() as srv:    # accepts connections but never speaks dask
+    with socket.socket() as srv:  # accepts connections but never speaks dask
         srv.bind(("127.0.0.1", 0))
         srv.listen()
         addr = f"tcp://127.0.0.1:{srv.getsockname()[1]}"
         with pytest.raises(OptionError, match="does not answer like a dask scheduler"):
             _parallel.connect(addr, timeout=2)
-    with socket.socket() as srv:    # answers, but in another protocol (an SSH banner)
+    with socket.socket() as srv:  # answers, but in another protocol (an SSH banner)
         srv.bind(("127.0.0.1", 0))
         srv.listen()
         held = []
@@ -353,11 +442,21 @@ def test_silent_listener_and_bad_address_are_one_line(study, tmp_path, capsys):
             _parallel.connect(f"127.0.0.1:{srv.getsockname()[1]}", timeout=2)
         for c in held:
             c.close()
-    base = ["spectra", str(study["vcf"]), "--popmap", str(study["popmap"]), "--sites",
-            str(study["sites"]), "-o", str(tmp_path / "s.json")]
-    for extra, what in ((["--scheduler", "tcp://[::1"], "--scheduler"),
-                        (["--workers", "0"], "--workers"),
-                        (["--region-size", "0"], "--region-size")):
+    base = [
+        "spectra",
+        str(study["vcf"]),
+        "--popmap",
+        str(study["popmap"]),
+        "--sites",
+        str(study["sites"]),
+        "-o",
+        str(tmp_path / "s.json"),
+    ]
+    for extra, what in (
+        (["--scheduler", "tcp://[::1"], "--scheduler"),
+        (["--workers", "0"], "--workers"),
+        (["--region-size", "0"], "--region-size"),
+    ):
         assert main([*base, *extra]) == 2
         err = capsys.readouterr().err.strip().splitlines()
         assert len(err) == 1 and what in err[0], err
@@ -366,14 +465,32 @@ def test_silent_listener_and_bad_address_are_one_line(study, tmp_path, capsys):
 def test_user_error_in_a_worker_is_one_line(tmp_path, capsys):
     samples = ["a1", "a2"]
     recs = [rec(1, p, "A", "G", ["0/1", "0/0"]) for p in range(10, 90_000, 997)]
-    recs[-3] = rec(1, 87_000, "A", "G", ["0/2", "0/0"])   # allele 2 of a biallelic record
-    vcf = write_vcf(tmp_path / "e.vcf", header(samples, [("1", 100_000)])
-                    + "\n".join(sorted(recs, key=lambda r: int(r.split("\t")[1]))) + "\n",
-                    "bgzf")
+    recs[-3] = rec(1, 87_000, "A", "G", ["0/2", "0/0"])  # allele 2 of a biallelic record
+    vcf = write_vcf(
+        tmp_path / "e.vcf",
+        header(samples, [("1", 100_000)])
+        + "\n".join(sorted(recs, key=lambda r: int(r.split("\t")[1])))
+        + "\n",
+        "bgzf",
+    )
     pm = write_text(tmp_path / "pm.tsv", "a1\tA\na2\tA\n")
     bed = write_text(tmp_path / "s.bed", "1\t0\t100000\t4fold\n")
-    rc = main(["spectra", str(vcf), "--popmap", str(pm), "--sites", str(bed), "--workers",
-               "2", "--region-size", "10000", "-o", str(tmp_path / "e.json")])
+    rc = main(
+        [
+            "spectra",
+            str(vcf),
+            "--popmap",
+            str(pm),
+            "--sites",
+            str(bed),
+            "--workers",
+            "2",
+            "--region-size",
+            "10000",
+            "-o",
+            str(tmp_path / "e.json"),
+        ]
+    )
     assert rc == 2
     err = capsys.readouterr().err.strip().splitlines()
     assert len(err) == 1 and "allele index exceeds" in err[0], err
@@ -381,6 +498,7 @@ def test_user_error_in_a_worker_is_one_line(tmp_path, capsys):
 
 
 # ---------------------------------------------------------------------------- bootstrap
+
 
 @pytest.fixture(scope="module")
 def fitted(tmp_path_factory):
@@ -391,10 +509,28 @@ def fitted(tmp_path_factory):
 
     d = tmp_path_factory.mktemp("pboot")
     out = d / "sp.json"
-    assert main(["simulate", "--population", "big:N=300,n=12", "--sites", "30000",
-                 "--theta", "0.02", "--blocks", "24", "--seed", "17", "-o", str(out),
-                 "-q"]) == 0
-    options = FitOptions(eps=0.0)   # gamma DFE, no misorientation: quick refits
+    assert (
+        main(
+            [
+                "simulate",
+                "--population",
+                "big:N=300,n=12",
+                "--sites",
+                "30000",
+                "--theta",
+                "0.02",
+                "--blocks",
+                "24",
+                "--seed",
+                "17",
+                "-o",
+                str(out),
+                "-q",
+            ]
+        )
+        == 0
+    )
+    options = FitOptions(eps=0.0)  # gamma DFE, no misorientation: quick refits
     ss = read_spectra(out)
     fits = fit_spectra([LabelledSpectra(str(out), ss)], options)
     return fits, dict(ss.populations), options
@@ -408,8 +544,11 @@ def test_bootstrap_same_for_1_and_2_workers_and_cluster(fitted, cluster):
 
     fits, pops, options = fitted
     runs = {}
-    for key, kw in (("w1", {"workers": 1}), ("w2", {"workers": 2}),
-                    ("dask", {"scheduler": cluster.scheduler_address})):
+    for key, kw in (
+        ("w1", {"workers": 1}),
+        ("w2", {"workers": 2}),
+        ("dask", {"scheduler": cluster.scheduler_address}),
+    ):
         f = copy.deepcopy(fits)
         bootstrap_fits(f, pops, options, replicates=8, seed=5, batch=2, **kw)
         runs[key] = json.dumps(json_ready(f[0].bootstrap.to_dict()))
@@ -426,13 +565,15 @@ def test_bootstrap_same_for_1_and_2_workers_and_cluster(fitted, cluster):
     bn, bs, ln, ls = _block_arrays(pops[pf.population], options)
     starts = {name: f.x for name, f in pf.fits.items()}
     for k in (0, 5):
-        (rep,) = _replicate_task((pf.data.n, pf.data.folded, bn, bs, ln, ls, idx[k:k + 1],
-                                  options, starts))
+        (rep,) = _replicate_task(
+            (pf.data.n, pf.data.folded, bn, bs, ln, ls, idx[k : k + 1], options, starts)
+        )
         assert rep["gamma"]["shares"] == boot["shares"][k]
     assert boot["shares"][0] != boot["shares"][5]
 
 
 # ---------------------------------------------------------------------------- docs
+
 
 def test_readme_cluster_commands_use_real_options():
     from driftband.cli import get_parser
@@ -448,14 +589,18 @@ def test_readme_cluster_commands_use_real_options():
     ours = [ln.split()[1:] for ln in lines if ln.startswith("driftband ")]
     assert {a[0] for a in ours} == {"spectra", "fit"}
     for args in ours:
-        ns = parser.parse_args(args)   # exits (SystemExit) on an unknown option
+        ns = parser.parse_args(args)  # exits (SystemExit) on an unknown option
         assert ns.scheduler in (None, "tcp://HOST:8786")
     assert any("--scheduler" in a for a in ours) and any("--workers" in a for a in ours)
     # the dask commands and options exist in the installed dask
     worker = next(ln for ln in lines if ln.startswith("dask worker"))
     assert any(ln == "dask scheduler" for ln in lines)
-    r = subprocess.run([sys.executable, "-m", "dask", "worker", "--help"],
-                       capture_output=True, text=True, timeout=120)
+    r = subprocess.run(
+        [sys.executable, "-m", "dask", "worker", "--help"],
+        capture_output=True,
+        text=True,
+        timeout=120,
+    )
     assert r.returncode == 0
     for opt in (w for w in worker.split() if w.startswith("--")):
         assert opt in r.stdout, opt

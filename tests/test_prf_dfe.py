@@ -62,10 +62,13 @@ def test_gamma_mean_spectrum_vs_mpmath(shape, mean):
     assert_allclose(got, want, rtol=1e-10)
 
 
-@pytest.mark.parametrize("n,shape,mean", [
-    (10, 50.0, 100.0),
-    pytest.param(10, 2000.0, 30.0, marks=pytest.mark.slow),
-])
+@pytest.mark.parametrize(
+    "n,shape,mean",
+    [
+        (10, 50.0, 100.0),
+        pytest.param(10, 2000.0, 30.0, marks=pytest.mark.slow),
+    ],
+)
 def test_narrow_gamma_vs_mpmath(n, shape, mean):
     # Source: mpmath Hurwitz-zeta kernel (as above). Shapes above 4.48 have sd(ln t) < 0.5
     # and use refined panels over their bulk (16 and 64 panels per decade here).
@@ -126,8 +129,9 @@ def test_discrete_mean_spectrum_vs_scipy_quad():
     want = np.zeros(n - 1)
     for m, (a, b, lg) in zip(masses, d.bands_t):
         if lg:
-            v, _ = quad_vec(lambda u: k.g(-math.exp(u)), math.log(a), math.log(b),
-                            epsrel=1e-13, epsabs=0)
+            v, _ = quad_vec(
+                lambda u: k.g(-math.exp(u)), math.log(a), math.log(b), epsrel=1e-13, epsabs=0
+            )
             want += m * v / math.log(b / a)
         else:
             v, _ = quad_vec(lambda t: k.g(-t), a, b, epsrel=1e-13, epsabs=0)
@@ -165,8 +169,9 @@ def test_discrete_samples_follow_the_bands():
 
 
 # ------------------------------------------------------------------ band shares
-@pytest.mark.parametrize("shape,mean", [(0.1, 10), (0.1, 1000), (0.2, 1000), (0.5, 1000),
-                                        (1, 10), (3, 1000)])
+@pytest.mark.parametrize(
+    "shape,mean", [(0.1, 10), (0.1, 1000), (0.2, 1000), (0.5, 1000), (1, 10), (3, 1000)]
+)
 def test_gamma_band_shares(shape, mean):
     # Source: mpmath.gammainc (regularized) at 30 digits.
     got = band_shares(GammaDfe(shape, mean))
@@ -193,8 +198,10 @@ def test_gamma_band_share_far_tail_keeps_relative_accuracy():
     assert_allclose(got, want, rtol=1e-12, atol=0)
 
 
-@pytest.mark.parametrize("dfe", [GammaDfe(0.2, 300.0), LognormalDfe(2.0, 2.5),
-                                 WithBeneficial(GammaDfe(0.5, 50.0), 0.1, 20.0)])
+@pytest.mark.parametrize(
+    "dfe",
+    [GammaDfe(0.2, 300.0), LognormalDfe(2.0, 2.5), WithBeneficial(GammaDfe(0.5, 50.0), 0.1, 20.0)],
+)
 def test_band_shares_monte_carlo(dfe):
     # Monte Carlo: 2e5 draws from sample_S; every band within 4.5 binomial s.e.
     rng = np.random.default_rng(3)
@@ -249,8 +256,9 @@ def test_bad_edges_and_parameters():
 
 
 # ----------------------------------------------------------- mean fixation ratio
-@pytest.mark.parametrize("shape,mean", [(0.1, 1), (0.1, 1e4), (0.2, 10), (0.5, 100),
-                                        (1, 1e3), (3, 10), (3, 1e4)])
+@pytest.mark.parametrize(
+    "shape,mean", [(0.1, 1), (0.1, 1e4), (0.2, 10), (0.5, 100), (1, 1e3), (3, 10), (3, 1e4)]
+)
 def test_gamma_mean_fixation_ratio(shape, mean):
     # Source: mpmath.quad of E[t/(e^t - 1)] over the gamma density, 30 digits.
     got = mean_fixation_ratio(GammaDfe(shape, mean))
@@ -261,7 +269,7 @@ def test_exponential_mean_fixation_ratio_closed_form():
     # Source: worked by hand: t/(e^t - 1) = sum_{k>=1} t e^{-kt}, and for t ~ Exp(1)
     # (shape 1, S-bar 1) E[t e^{-kt}] = 1/(k+1)^2, so the mean is pi^2/6 - 1 (Euler's
     # sum of 1/k^2, common knowledge).
-    assert_allclose(mean_fixation_ratio(GammaDfe(1.0, 1.0)), math.pi ** 2 / 6 - 1, rtol=1e-13)
+    assert_allclose(mean_fixation_ratio(GammaDfe(1.0, 1.0)), math.pi**2 / 6 - 1, rtol=1e-13)
 
 
 def _wf_mean_ratio(N, shape, mean):
@@ -275,8 +283,8 @@ def _wf_mean_ratio(N, shape, mean):
         t = v ** (1 / shape)
         return math.exp(-lam * t) * 2 * N * wf_fixation(N, -t / (4 * N))[1]
 
-    val, _ = quad(f, 0, 60.0 ** shape, epsabs=1e-12, epsrel=1e-10, limit=200)
-    return lam ** shape / gamma_fn(shape + 1) * val
+    val, _ = quad(f, 0, 60.0**shape, epsabs=1e-12, epsrel=1e-10, limit=200)
+    return lam**shape / gamma_fn(shape + 1) * val
 
 
 def test_gamma_fixation_ratio_wright_fisher_average():
@@ -296,6 +304,7 @@ def test_fixation_ratio_other_families():
 
     for mu, sigma in ((1.0, 1.2), (1.0, 0.1)):  # 0.1: a narrow DFE (refined panels)
         with mp.workdps(30):
+
             def f(z, mu=mu, sigma=sigma):
                 return mp.npdf(z) * mp.exp(mu + sigma * z) / mp.expm1(mp.exp(mu + sigma * z))
 
@@ -323,8 +332,13 @@ def test_beneficial_mixture_and_linear_form():
     want = 0.97 * ex.mean_g(base) + 0.03 * kernel(n).g(12.0)
     assert_allclose(ex.mean_g(d), want, rtol=1e-14)
     # weights @ table + beneficial part reproduces mean_g for every family
-    for dfe in (base, d, LognormalDfe(2.0, 1.0), LognormalDfe(2.0, 0.1),
-                DiscreteDfe((0.1, 0.2, 0.3, 0.4))):
+    for dfe in (
+        base,
+        d,
+        LognormalDfe(2.0, 1.0),
+        LognormalDfe(2.0, 0.1),
+        DiscreteDfe((0.1, 0.2, 0.3, 0.4)),
+    ):
         lin = ex.weights(dfe) @ ex.table(dfe) + ex.beneficial_part(dfe)
         assert_allclose(lin, ex.mean_g(dfe), rtol=1e-13)
     assert ex.table(base) is ex.G
@@ -342,8 +356,9 @@ def test_mean_g_grad():
     for k, name in enumerate(d.param_names):
         v = d.params[name]
         h = 1e-4 * v
-        fd = (ex.mean_g(d.with_params(**{name: v + h}))
-              - ex.mean_g(d.with_params(**{name: v - h}))) / (2 * h)
+        fd = (
+            ex.mean_g(d.with_params(**{name: v + h})) - ex.mean_g(d.with_params(**{name: v - h}))
+        ) / (2 * h)
         assert_allclose(J[k], fd, rtol=1e-5, atol=1e-12)
     dd = DiscreteDfe((0.1, 0.2, 0.3, 0.4))
     assert_allclose(ex.mean_g_grad(dd), ex.band_means(), rtol=1e-15)
@@ -367,7 +382,7 @@ def test_sample_S_gamma_moments():
     S = sample_S(GammaDfe(2.0, 50.0), 400_000, rng)
     assert np.all(S < 0)
     assert abs(-S.mean() / 50.0 - 1) < 4.5 * math.sqrt(1 / 2.0 / S.size)
-    assert abs(S.var() / (50.0 ** 2 / 2.0) - 1) < 0.02
+    assert abs(S.var() / (50.0**2 / 2.0) - 1) < 0.02
     S2 = sample_S(WithBeneficial(GammaDfe(2.0, 50.0), 0.3, 7.0), 100_000, rng)
     frac = np.mean(S2 == 7.0)
     assert abs(frac - 0.3) < 4.5 * math.sqrt(0.3 * 0.7 / S2.size)

@@ -72,7 +72,7 @@ def test_log_g_far_below_double_range():
 def test_matches_mpmath_wide_grid(n):
     # Source: mpmath quadrature (reference_checks/mpmath_prf.py); S = -1e5..1e5, with
     # ten classes per n.
-    Ss = [-(10.0 ** e) for e in range(-8, 6)] + [10.0 ** e for e in range(-8, 6)] + [0.0]
+    Ss = [-(10.0**e) for e in range(-8, 6)] + [10.0**e for e in range(-8, 6)] + [0.0]
     cl = sorted({1, 2, 3, n // 10, n // 4, n // 2, 3 * n // 4, n - 3, n - 2, n - 1} - {0})
     cl = [c for c in cl if 1 <= c <= n - 1]
     for S in Ss:
@@ -186,8 +186,9 @@ def test_large_positive_S_expansion(n, S):
     assert_allclose(expected_sfs(n, S), _asym_pos(n, S), rtol=1e-12)
 
 
-@pytest.mark.parametrize("n,t", [(10, 1e3), (10, 1e8), (50, 1e4), (200, 1e5), (200, 1e8),
-                                 (1000, 1e8)])
+@pytest.mark.parametrize(
+    "n,t", [(10, 1e3), (10, 1e8), (50, 1e4), (200, 1e5), (200, 1e8), (1000, 1e8)]
+)
 def test_large_negative_S_expansion(n, t):
     # Source: g_i(-t) = C(n,i)(i-1)! t^-i sum_k (i)_k (i+1-n)_k / k! t^-k + O(e^-t)
     # (DLMF section 13.7(i), from memory), evaluated with mpmath; covers |S| up to 1e8.
@@ -273,8 +274,9 @@ def test_misorientation():
 
 
 # ------------------------------------------------------------------ fixation ratio
-@pytest.mark.parametrize("S", [-1e5, -745.0, -700.0, -40.0, -1.0, -1e-9, 0.0, 1e-9, 1.0,
-                               4.0, 40.0, 1e3])
+@pytest.mark.parametrize(
+    "S", [-1e5, -745.0, -700.0, -40.0, -1.0, -1e-9, 0.0, 1e-9, 1.0, 4.0, 40.0, 1e3]
+)
 def test_fixation_ratio_against_mpmath(S):
     # Source: Kimura (1962) u/u0 = S/(1 - e^-S), evaluated with mpmath at 30 digits.
     import mpmath as mp
@@ -292,7 +294,10 @@ def test_fixation_ratio_table_values():
     # Source: Kimura (1962) u/u0 = S/(1 - e^-S) (from memory), worked by hand with
     # e = 2.71828: 1/(1 - e^-1) = 1.582, and r(-S) = r(S) e^-S gives 0.582 at S = -1;
     # 2.313 / 0.313 at S = +-2; 4.075 / 0.0746 at S = +-4.
-    assert_allclose(fixation_ratio([1, -1, 2, -2, 4, -4]),
-                    [1.582, 0.582, 2.313, 0.313, 4.075, 0.0746], rtol=2e-3)
+    assert_allclose(
+        fixation_ratio([1, -1, 2, -2, 4, -4]),
+        [1.582, 0.582, 2.313, 0.313, 4.075, 0.0746],
+        rtol=2e-3,
+    )
     assert fixation_ratio(np.inf) == np.inf and fixation_ratio(-np.inf) == 0.0
     assert log_fixation_ratio(-np.inf) == -np.inf and log_fixation_ratio(np.inf) == np.inf

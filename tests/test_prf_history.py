@@ -42,6 +42,7 @@ def _first_coal_integrals(n: int, lam) -> dict[int, mp.mpf]:
 
 def _piecewise_lam(epochs):
     """``epochs``: (duration or None, nu) from the present backwards (None = forever)."""
+
     def lam(j: int) -> mp.mpf:
         c = mp.mpf(j) * (j - 1) / 2
         tot, big_l = mp.mpf(0), mp.mpf(0)
@@ -53,6 +54,7 @@ def _piecewise_lam(epochs):
                 tot += mp.e ** (-c * big_l) * (1 - mp.e ** (-r * mp.mpf(dur))) / r
                 big_l += mp.mpf(dur) / mp.mpf(nu)
         return tot
+
     return lam
 
 
@@ -64,8 +66,13 @@ def _tavare_ETk(n: int, lam) -> dict[int, mp.mpf]:
     for k in range(2, n + 1):
         s = mp.mpf(0)
         for j in range(k, n + 1):
-            s += ((-1) ** (j - k) * (2 * j - 1) * mp.rf(k, j - 1) * mp.ff(n, j)
-                  / (mp.factorial(k) * mp.factorial(j - k) * mp.rf(n, j))) * integ[j]
+            s += (
+                (-1) ** (j - k)
+                * (2 * j - 1)
+                * mp.rf(k, j - 1)
+                * mp.ff(n, j)
+                / (mp.factorial(k) * mp.factorial(j - k) * mp.rf(n, j))
+            ) * integ[j]
         out[k] = s
     return out
 
@@ -76,8 +83,10 @@ def neutral_sfs(n: int, lam, dps: int = 50) -> np.ndarray:
         ET = _tavare_ETk(n, lam)
         res = []
         for i in range(1, n):
-            s = sum(k * ET[k] * mp.binomial(n - i - 1, k - 2) / mp.binomial(n - 1, k - 1)
-                    for k in range(2, n - i + 2))
+            s = sum(
+                k * ET[k] * mp.binomial(n - i - 1, k - 2) / mp.binomial(n - 1, k - 1)
+                for k in range(2, n - i + 2)
+            )
             res.append(float(s / 2))
     return np.array(res)
 
@@ -118,8 +127,9 @@ def test_constant_size_is_the_equilibrium_prf():
     # Sawyer & Hartl (1992) spectra, as computed by SfsKernel
     S = np.array([-1e4, -30.0, -1.0, 0.0, 1e-9, 2.0, 100.0])
     for n in (2, 3, 25):
-        assert np.allclose(HistorySfs(n, ConstantSize()).g(S), SfsKernel(n).g(S),
-                           rtol=1e-13, atol=0)
+        assert np.allclose(
+            HistorySfs(n, ConstantSize()).g(S), SfsKernel(n).g(S), rtol=1e-13, atol=0
+        )
 
 
 def test_change_to_the_same_size_is_the_equilibrium():
@@ -142,12 +152,15 @@ def test_tavare_sums_agree_with_a_death_chain():
         assert float(ET[k]) == pytest.approx(chain[k - 1], rel=1e-12)
 
 
-@pytest.mark.parametrize("hist, epochs", [
-    (OneChange(0.1, 0.3), [(0.3, 0.1), (None, 1.0)]),
-    (OneChange(50.0, 0.01), [(0.01, 50.0), (None, 1.0)]),
-    (OneChange(0.01, 0.002), [(0.002, 0.01), (None, 1.0)]),
-    (TwoChanges(0.05, 0.02, 3.0, 0.1), [(0.1, 3.0), (0.02, 0.05), (None, 1.0)]),
-])
+@pytest.mark.parametrize(
+    "hist, epochs",
+    [
+        (OneChange(0.1, 0.3), [(0.3, 0.1), (None, 1.0)]),
+        (OneChange(50.0, 0.01), [(0.01, 50.0), (None, 1.0)]),
+        (OneChange(0.01, 0.002), [(0.002, 0.01), (None, 1.0)]),
+        (TwoChanges(0.05, 0.02, 3.0, 0.1), [(0.1, 3.0), (0.02, 0.05), (None, 1.0)]),
+    ],
+)
 def test_neutral_piecewise_constant_against_closed_form(hist, epochs):
     # Tavaré (1984) / Polanski & Kimmel (2003) closed form with mpmath (see module doc)
     n = 10
@@ -162,7 +175,7 @@ def test_neutral_piecewise_constant_against_closed_form(hist, epochs):
 def test_neutral_exponential_growth_against_closed_form():
     # Tavaré (1984) sums with Lambda(t) of an exponential size change (mpmath quadrature)
     n, nu, tau = 8, 20.0, 0.1
-    r = math.log(nu) / tau       # N(t ago) = nu * exp(-r t) until tau
+    r = math.log(nu) / tau  # N(t ago) = nu * exp(-r t) until tau
 
     def big_lam(t):
         if t <= tau:
@@ -189,12 +202,16 @@ def test_neutral_one_change_against_msprime():
     dem = msprime.Demography()
     dem.add_population(name="p", initial_size=N_now)
     dem.add_population_parameters_change(time=tau * 2 * N_anc, initial_size=N_anc)
-    reps = msprime.sim_ancestry(samples={"p": n // 2}, ploidy=2, demography=dem,
-                                num_replicates=6000, random_seed=14)
-    afs = np.array([ts.allele_frequency_spectrum(mode="branch", polarised=True,
-                                                 span_normalise=True)[1:n]
-                    for ts in reps])
-    afs /= 4 * N_now                 # branch length (generations) / (4 N mu) per unit mu
+    reps = msprime.sim_ancestry(
+        samples={"p": n // 2}, ploidy=2, demography=dem, num_replicates=6000, random_seed=14
+    )
+    afs = np.array(
+        [
+            ts.allele_frequency_spectrum(mode="branch", polarised=True, span_normalise=True)[1:n]
+            for ts in reps
+        ]
+    )
+    afs /= 4 * N_now  # branch length (generations) / (4 N mu) per unit mu
     mean, se = afs.mean(axis=0), afs.std(axis=0, ddof=1) / math.sqrt(afs.shape[0])
     got = history_sfs(n, 0.0, OneChange(nu, tau))
     assert np.all(np.abs(got - mean) <= 4.5 * se), (got, mean, se)
@@ -229,11 +246,14 @@ def wf_sfs(n: int, N_anc: int, N_now: int, gens: int, s: float) -> np.ndarray:
     return samp @ c / (4 * (N_now if gens else N_anc))
 
 
-@pytest.mark.parametrize("nu, tau, S, sizes", [
-    (0.5, 0.1, -8.0, (120, 240)),    # decline, purifying selection
-    (3.0, 0.2, -20.0, (60, 120)),    # expansion, stronger purifying selection
-    (0.5, 0.1, 5.0, (120, 240)),     # decline, positive selection
-])
+@pytest.mark.parametrize(
+    "nu, tau, S, sizes",
+    [
+        (0.5, 0.1, -8.0, (120, 240)),  # decline, purifying selection
+        (3.0, 0.2, -20.0, (60, 120)),  # expansion, stronger purifying selection
+        (0.5, 0.1, 5.0, (120, 240)),  # decline, positive selection
+    ],
+)
 def test_selection_and_size_change_against_wright_fisher_chain(nu, tau, S, sizes):
     # exact discrete Wright-Fisher chain (built above). It differs from the diffusion by
     # O(1/N) (common practice; measured up to ~8 % on the rarest high class at N = 120),
@@ -307,26 +327,44 @@ def test_large_sample_neutral():
     n, nu, tau = 200, 4.0, 0.05
     ET = _ETk_death_chain(n, [(tau, nu), (None, 1.0)])
     k = np.arange(2, n + 1)
-    ref = np.array([np.sum(k[: n - i] * ET[1: n - i + 1]
-                           * np.exp([math.lgamma(n - i) - math.lgamma(kk - 1)
-                                     - math.lgamma(n - i - kk + 2) - math.lgamma(n)
-                                     + math.lgamma(kk) + math.lgamma(n - kk + 1)
-                                     for kk in k[: n - i]])) / 2
-                    for i in range(1, n)])
+    ref = np.array(
+        [
+            np.sum(
+                k[: n - i]
+                * ET[1 : n - i + 1]
+                * np.exp(
+                    [
+                        math.lgamma(n - i)
+                        - math.lgamma(kk - 1)
+                        - math.lgamma(n - i - kk + 2)
+                        - math.lgamma(n)
+                        + math.lgamma(kk)
+                        + math.lgamma(n - kk + 1)
+                        for kk in k[: n - i]
+                    ]
+                )
+            )
+            / 2
+            for i in range(1, n)
+        ]
+    )
     got = HistorySfs(n, OneChange(nu, tau), reference="ancestral").g(0.0)
     assert _rel(got, ref) <= 1e-5
 
 
 # -- validation and mapping --------------------------------------------------------------
-@pytest.mark.parametrize("make, words", [
-    (lambda: OneChange(0.0, 0.1), ["`nu`", "positive", "got 0.0"]),
-    (lambda: OneChange(200.0, 0.1), ["`nu`", "[0.01, 100]", "got 200"]),
-    (lambda: OneChange(2.0, 10.0), ["`tau`", "[0.001, 5]", "got 10"]),
-    (lambda: TwoChanges(0.5, 0.1, 2.0, -1.0), ["`tau2`", "positive", "got -1.0"]),
-    (lambda: ExponentialChange(0.005, 0.1), ["`nu`", "[0.01, 100]", "got 0.005"]),
-    (lambda: OneChange("big", 0.1), ["`nu`", "number", "'big'"]),
-    (lambda: HistorySfs(5, ConstantSize(), reference="mean"), ["`reference`", "'mean'"]),
-])
+@pytest.mark.parametrize(
+    "make, words",
+    [
+        (lambda: OneChange(0.0, 0.1), ["`nu`", "positive", "got 0.0"]),
+        (lambda: OneChange(200.0, 0.1), ["`nu`", "[0.01, 100]", "got 200"]),
+        (lambda: OneChange(2.0, 10.0), ["`tau`", "[0.001, 5]", "got 10"]),
+        (lambda: TwoChanges(0.5, 0.1, 2.0, -1.0), ["`tau2`", "positive", "got -1.0"]),
+        (lambda: ExponentialChange(0.005, 0.1), ["`nu`", "[0.01, 100]", "got 0.005"]),
+        (lambda: OneChange("big", 0.1), ["`nu`", "number", "'big'"]),
+        (lambda: HistorySfs(5, ConstantSize(), reference="mean"), ["`reference`", "'mean'"]),
+    ],
+)
 def test_validation_messages(make, words):
     with pytest.raises(OptionError) as err:
         make()
@@ -337,9 +375,13 @@ def test_validation_messages(make, words):
 def test_simulator_epochs():
     # driftband.simulate histories: (generations_ago, diploid_size), oldest = ancestral
     from driftband.simulate._model import PopulationModel
+
     ep = OneChange(0.5, 0.1).simulator_epochs(1000)
     assert ep == ((0, 500), (200, 1000))
     assert TwoChanges(0.1, 0.05, 2.0, 0.01).simulator_epochs(1000) == (
-        (0, 2000), (20, 100), (120, 1000))
+        (0, 2000),
+        (20, 100),
+        (120, 1000),
+    )
     pm = PopulationModel(name="a", n=10, epochs=ep)
     assert pm.ancestral_size == 1000 and pm.present_size == 500

@@ -17,7 +17,7 @@ def _load():
 
 def test_codon_degeneracy_reference_checks_pass():
     checks = _load().run_checks()
-    assert len(checks) >= 11          # at least tables 1-6, 9-12 and the boxes fact
+    assert len(checks) >= 11  # at least tables 1-6, 9-12 and the boxes fact
     failed = [c for c in checks if not c.passed]
     assert not failed, failed
     assert all(c.source for c in checks)

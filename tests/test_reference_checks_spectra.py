@@ -9,8 +9,12 @@ from pathlib import Path
 import pytest
 
 DIR = Path(__file__).resolve().parents[1] / "reference_checks"
-SCRIPTS = ["check_spectra_allel", "check_spectra_tajima", "check_spectra_neutral_msprime",
-           "check_spectra_projection"]
+SCRIPTS = [
+    "check_spectra_allel",
+    "check_spectra_tajima",
+    "check_spectra_neutral_msprime",
+    "check_spectra_projection",
+]
 
 
 def _load(name):
@@ -30,8 +34,9 @@ def test_spectra_reference_checks_pass(name):
 
 
 def test_script_prints_pass_lines_and_exits_zero():
-    proc = subprocess.run([sys.executable, str(DIR / "check_spectra_projection.py")],
-                          capture_output=True, text=True)
+    proc = subprocess.run(
+        [sys.executable, str(DIR / "check_spectra_projection.py")], capture_output=True, text=True
+    )
     assert proc.returncode == 0, proc.stdout + proc.stderr
     lines = proc.stdout.splitlines()
     assert all(ln.startswith("PASS") and "[source: " in ln for ln in lines[:-1])

@@ -36,11 +36,15 @@ DATA = Path(__file__).parent / "data" / "report"
 GOLDEN = DATA / "summary.golden.md"
 REGENERATE = bool(os.environ.get("DRIFTBAND_REGENERATE_GOLDEN"))  # the regenerate switch
 
-PROV = {"software": "driftband", "version": "0.0.test", "date": "2025-03-15T10:00:00+00:00",
-        "command": ["driftband", "report", "fit.json"], "options": {"output": "report.html"},
-        "inputs": {"fit": {"path": "/study/fit.json", "size": 1234, "sha256": "c0ffee" * 10
-                           + "abcd"}},
-        "environment": {"python": "3.11", "matplotlib": "3.x"}}
+PROV = {
+    "software": "driftband",
+    "version": "0.0.test",
+    "date": "2025-03-15T10:00:00+00:00",
+    "command": ["driftband", "report", "fit.json"],
+    "options": {"output": "report.html"},
+    "inputs": {"fit": {"path": "/study/fit.json", "size": 1234, "sha256": "c0ffee" * 10 + "abcd"}},
+    "environment": {"python": "3.11", "matplotlib": "3.x"},
+}
 
 
 # ----------------------------------------------------------------------------- helpers
@@ -175,15 +179,21 @@ def test_public_surface_star_import():
 def test_every_expected_table_is_present(page):
     expected = {"headline", "bands", "compare-table", "prov-report", "prov-fit", "files"}
     for anchor in ("pop1-lake", "pop2-spring"):
-        expected |= {f"aic-{anchor}", f"shares-{anchor}", f"params-{anchor}",
-                     f"diversity-{anchor}"}
+        expected |= {f"aic-{anchor}", f"shares-{anchor}", f"params-{anchor}", f"diversity-{anchor}"}
     expected |= {"mk-pop1-lake", "alpha-pop1-lake"}  # lake has divergence counts
     assert expected <= set(page.tables), expected - set(page.tables)
     assert "mk-pop2-spring" not in page.tables  # folded spectra: no MK table
     for tid in expected:
         assert len(page.tables[tid]) >= 2, f"table {tid} has no body rows"
-    for sec in ("answer", "comparisons", "pop1-lake", "pop2-spring", "provenance",
-                "conventions", "cautions"):
+    for sec in (
+        "answer",
+        "comparisons",
+        "pop1-lake",
+        "pop2-spring",
+        "provenance",
+        "conventions",
+        "cautions",
+    ):
         assert sec in page.ids
     assert len(page.ids) == len(set(page.ids)), "duplicate ids"
 
@@ -250,14 +260,15 @@ def test_comparison_in_plain_words(page, docs):
     ss = fit["populations"]["spring"]["models"]["gamma"]["shares"][0]
     diff = next(r for r in rows if r["test"] == "neutral_share_difference")
     assert diff["estimate"] == pytest.approx(ss - sl, abs=1e-5)
-    want = (f"spring carries a larger effectively neutral share than lake: {ss:.2f} vs "
-            f"{sl:.2f}, difference {ss - sl:.2f} (95 % CI {diff['ci_low']:.2f}\u2013"
-            f"{diff['ci_high']:.2f}), p = 0.049, Holm-adjusted p = 0.049")
+    want = (
+        f"spring carries a larger effectively neutral share than lake: {ss:.2f} vs "
+        f"{sl:.2f}, difference {ss - sl:.2f} (95 % CI {diff['ci_low']:.2f}\u2013"
+        f"{diff['ci_high']:.2f}), p = 0.049, Holm-adjusted p = 0.049"
+    )
     assert want in text
     ne = next(r for r in rows if r["test"] == "ne_only_lrt")
     assert f"Ne(spring)/Ne(lake) = {ne['ne_ratio']:.2f}" in text
-    assert f"would be {ne['predicted_share_b']:.2f}; observed {ne['observed_share_b']:.2f}" \
-        in text
+    assert f"would be {ne['predicted_share_b']:.2f}; observed {ne['observed_share_b']:.2f}" in text
     assert "assuming equal mutation rates" in text
     assert "likelihood-ratio statistic 14.62, df 2" in text
     assert "The shared DFE is rejected at the 5 % level" in text
@@ -266,21 +277,25 @@ def test_comparison_in_plain_words(page, docs):
 def test_per_population_details(page, docs):
     fit, _, spectra = docs
     aic = page.tables["aic-pop2-spring"]
-    assert [r[0] for r in aic[1:]] == [r["model"] for r in
-                                       fit["populations"]["spring"]["aic_table"]]
+    assert [r[0] for r in aic[1:]] == [
+        r["model"] for r in fit["populations"]["spring"]["aic_table"]
+    ]
     assert aic[-1][-1] == "\u26a0 not converged"  # the discrete fit of spring
     w = [num(r[5]) for r in aic[1:]]
-    assert w == pytest.approx([r["weight"] for r in fit["populations"]["spring"]["aic_table"]],
-                              abs=5e-4)
+    assert w == pytest.approx(
+        [r["weight"] for r in fit["populations"]["spring"]["aic_table"]], abs=5e-4
+    )
     div = {r[0]: r for r in page.tables["diversity-pop1-lake"][1:]}
     st = spectra["spectra.json"]["populations"]["lake"]["stats"]
     assert num(div["4fold"][4]) == pytest.approx(st["4fold"]["pi"], rel=1e-3)
     assert num(div["0fold"][6]) == pytest.approx(st["0fold"]["tajimas_d"], abs=5e-4)
-    assert num(next(r for k, r in div.items() if k.startswith("\u03c0_N/\u03c0_S"))[4]) == \
-        pytest.approx(st["piN_piS"], abs=5e-4)
+    assert num(
+        next(r for k, r in div.items() if k.startswith("\u03c0_N/\u03c0_S"))[4]
+    ) == pytest.approx(st["piN_piS"], abs=5e-4)
     mk = page.tables["mk-pop1-lake"]
-    assert num(mk[1][1].replace("\u2009", "")) == fit["populations"]["lake"]["data"][
-        "fixed_selected"]
+    assert (
+        num(mk[1][1].replace("\u2009", "")) == fit["populations"]["lake"]["data"]["fixed_selected"]
+    )
     params = page.tables["params-pop1-lake"]
     shape = next(r for r in params if r[0] == "gamma" and r[1] == "shape")
     ci = fit["populations"]["lake"]["bootstrap"]["models"]["gamma"]["params_ci"]["shape"]
@@ -332,8 +347,9 @@ def test_minimal_fit_and_labelled_spectra(docs):
     """A fit without bootstrap, divergence or AIC table; populations labelled by dataset."""
     fit, _rows, spectra = docs
     f2 = copy.deepcopy(fit)
-    f2["populations"] = {f"snails/{k}": dict(v, dataset="snails")
-                         for k, v in fit["populations"].items()}
+    f2["populations"] = {
+        f"snails/{k}": dict(v, dataset="snails") for k, v in fit["populations"].items()
+    }
     for p in f2["populations"].values():
         p["bootstrap"] = {}
         p.pop("adaptive")
@@ -355,8 +371,12 @@ def test_documents_that_do_not_fit_together(docs):
     with pytest.raises(InputError, match="'pond' is not in the fit file"):
         build_report(fit, [dict(rows[0], population_b="pond")], None, PROV)
     with pytest.raises(InputError, match="none of its populations"):
-        build_report(fit, None, {"x.json": {**spectra["spectra.json"], "populations": {
-            "pond": {"n": 10}}}}, PROV)
+        build_report(
+            fit,
+            None,
+            {"x.json": {**spectra["spectra.json"], "populations": {"pond": {"n": 10}}}},
+            PROV,
+        )
     with pytest.raises(InputError, match="not a fit file"):
         build_report(spectra["spectra.json"], None, None, PROV)
 
@@ -377,15 +397,19 @@ def test_summary_md_golden(docs):
         if not REGENERATE:
             pytest.fail(f"{GOLDEN} did not exist and was written; check it and rerun")
     assert got == GOLDEN.read_text(encoding="utf-8"), (
-        "summary.md changed; if intended, rerun with DRIFTBAND_REGENERATE_GOLDEN=1")
+        "summary.md changed; if intended, rerun with DRIFTBAND_REGENERATE_GOLDEN=1"
+    )
 
 
 def test_summary_has_the_same_headline_numbers(docs, page):
     fit, rows, spectra = docs
     md_text = build_summary_md(fit, rows, spectra, PROV)
     html_rows = {r[0]: r for r in page.tables["headline"][1:]}
-    md_rows = [ln for ln in md_text.splitlines() if ln.startswith("| lake |")
-               or ln.startswith("| spring |")][:2]
+    md_rows = [
+        ln
+        for ln in md_text.splitlines()
+        if ln.startswith("| lake |") or ln.startswith("| spring |")
+    ][:2]
     assert len(md_rows) == 2
     for ln in md_rows:
         cells = [c.strip() for c in ln.strip("|").split("|")]
@@ -406,9 +430,21 @@ def _run(argv, capsys):
 
 def test_cli_writes_report_and_summary(tmp_path, capsys):
     out, summ = tmp_path / "report.html", tmp_path / "summary.md"
-    code, _stdout, err = _run(["report", str(DATA / "fit.json"), "--compare",
-                               str(DATA / "compare.tsv"), "--spectra", str(DATA / "spectra.json"),
-                               "-o", str(out), "--summary", str(summ)], capsys)
+    code, _stdout, err = _run(
+        [
+            "report",
+            str(DATA / "fit.json"),
+            "--compare",
+            str(DATA / "compare.tsv"),
+            "--spectra",
+            str(DATA / "spectra.json"),
+            "-o",
+            str(out),
+            "--summary",
+            str(summ),
+        ],
+        capsys,
+    )
     assert code == 0, err
     page = parse(out.read_text(encoding="utf-8"))
     assert "diversity-pop1-lake" in page.tables
@@ -440,8 +476,9 @@ def test_cli_bad_input_one_line_no_output(tmp_path, capsys, case):
     else:
         summ.write_text("keep me\n", encoding="utf-8")
         want = "output exists; use --force"
-    code, _out, err = _run(["report", str(fit), *extra, "-o", str(out), "--summary",
-                            str(summ)], capsys)
+    code, _out, err = _run(
+        ["report", str(fit), *extra, "-o", str(out), "--summary", str(summ)], capsys
+    )
     assert code == 2
     assert err.count("\n") == 1 and want in err, err
     assert not out.exists()
@@ -485,21 +522,40 @@ window.addEventListener('load', function () {
 
 
 def _chromium(url: str, tmp: Path, *extra: str) -> subprocess.CompletedProcess:
-    cmd = [CHROMIUM, "--headless", "--no-sandbox", "--disable-gpu", "--disable-quic",
-           "--no-first-run", "--disable-background-networking", "--disable-component-update",
-           "--disable-sync", f"--user-data-dir={tmp / 'profile'}", "--window-size=1200,2000",
-           "--enable-logging=stderr", "--v=0", *extra, url]
+    cmd = [
+        CHROMIUM,
+        "--headless",
+        "--no-sandbox",
+        "--disable-gpu",
+        "--disable-quic",
+        "--no-first-run",
+        "--disable-background-networking",
+        "--disable-component-update",
+        "--disable-sync",
+        f"--user-data-dir={tmp / 'profile'}",
+        "--window-size=1200,2000",
+        "--enable-logging=stderr",
+        "--v=0",
+        *extra,
+        url,
+    ]
     return subprocess.run(cmd, capture_output=True, text=True, timeout=120)
 
 
 def _console_errors(stderr: str) -> list[str]:
     """Console messages and failed loads in Chromium's log (the report logs none at all)."""
-    return [ln for ln in stderr.splitlines()
-            if ":CONSOLE" in ln or "Failed to load resource" in ln or "net::ERR_" in ln]
+    return [
+        ln
+        for ln in stderr.splitlines()
+        if ":CONSOLE" in ln or "Failed to load resource" in ln or "net::ERR_" in ln
+    ]
 
 
-@pytest.mark.skipif(CHROMIUM is None, reason="chromium is not installed (Debian package "
-                    "'chromium'; .ci/run installs it): browser test skipped")
+@pytest.mark.skipif(
+    CHROMIUM is None,
+    reason="chromium is not installed (Debian package "
+    "'chromium'; .ci/run installs it): browser test skipped",
+)
 def test_report_renders_in_headless_chromium(tmp_path, html_text):
     report = tmp_path / "report.html"
     report.write_text(html_text, encoding="utf-8")
@@ -530,6 +586,5 @@ def test_report_renders_in_headless_chromium(tmp_path, html_text):
 
     # The console check can fail: a page with a script error is caught.
     bad = tmp_path / "bad.html"
-    bad.write_text("<!DOCTYPE html><p>x</p><script>undefined_function()</script>",
-                   encoding="utf-8")
+    bad.write_text("<!DOCTYPE html><p>x</p><script>undefined_function()</script>", encoding="utf-8")
     assert _console_errors(_chromium(bad.as_uri(), tmp_path, "--dump-dom").stderr)

@@ -59,8 +59,9 @@ def _sha(path: Path) -> str:
 def demo_run(tmp_path_factory):
     """The demo study run with a reduced bootstrap (BOOT replicates, 2 workers)."""
     out = tmp_path_factory.mktemp("demo") / "out"
-    rc = main(["run", str(DEMO), "--out-dir", str(out), "--bootstrap", BOOT,
-               "--workers", "2", "-q"])
+    rc = main(
+        ["run", str(DEMO), "--out-dir", str(out), "--bootstrap", BOOT, "--workers", "2", "-q"]
+    )
     assert rc == 0
     return out
 
@@ -73,12 +74,24 @@ def _truth_share(mean_nes: float, shape: float = 0.3) -> float:
 
 # ------------------------------------------------------------------ the whole job
 
+
 def test_output_folder_layout(demo_run):
     out = demo_run
-    for name in ("report.html", "summary.md", "bands.tsv", "fit.json", "compare.tsv",
-                 "run.log", "sites.bed", "spectra.json", "provenance/stages.json",
-                 "provenance/study.json", "provenance/study.toml",
-                 "provenance/fit.point.json", "provenance/snail.classify.tsv"):
+    for name in (
+        "report.html",
+        "summary.md",
+        "bands.tsv",
+        "fit.json",
+        "compare.tsv",
+        "run.log",
+        "sites.bed",
+        "spectra.json",
+        "provenance/stages.json",
+        "provenance/study.json",
+        "provenance/study.toml",
+        "provenance/fit.point.json",
+        "provenance/snail.classify.tsv",
+    ):
         assert (out / name).is_file(), name
         assert (out / name).stat().st_size > 0, name
     assert not [p for p in out.rglob("*.tmp")], "temporary files left behind"
@@ -95,8 +108,7 @@ def test_output_folder_layout(demo_run):
 def test_band_table(demo_run):
     rows = _tsv(demo_run / "bands.tsv")
     # The columns the README documents for bands.tsv, at least.
-    need = ["population", "band", "nes_low", "nes_high", "share", "ci_low", "ci_high",
-            "model"]
+    need = ["population", "band", "nes_low", "nes_high", "share", "ci_low", "ci_high", "model"]
     assert all(c in rows[0] for c in need)
     assert {r["population"] for r in rows} == {"lake", "spring"}  # not the outgroup
     for pop in ("lake", "spring"):
@@ -123,7 +135,7 @@ def test_small_population_has_larger_neutral_share_near_truth(demo_run):
     # Truth: one distribution of s, S = 4Ns scales with N: mean |Ne*s| = 400/4 = 100 in
     # the lake and 100 * 300/2000 = 15 in the spring (the simulation's parameters).
     t_lake, t_spring = _truth_share(100.0), _truth_share(15.0)
-    assert t_lake == pytest.approx(0.195, abs=0.002)     # scipy gamma CDF (computed)
+    assert t_lake == pytest.approx(0.195, abs=0.002)  # scipy gamma CDF (computed)
     assert t_spring == pytest.approx(0.343, abs=0.002)
     assert lake == pytest.approx(t_lake, abs=0.04)
     assert spring == pytest.approx(t_spring, abs=0.05)
@@ -131,8 +143,7 @@ def test_small_population_has_larger_neutral_share_near_truth(demo_run):
     truth = json.loads((EX / "snail.truth.spectra.json").read_text())
     sim = truth["provenance"]["simulation"]["populations"]
     assert sim["lake"]["nes_band_shares"]["present_size"][0] == pytest.approx(t_lake, 1e-6)
-    assert sim["spring"]["nes_band_shares"]["present_size"][0] == pytest.approx(t_spring,
-                                                                                1e-6)
+    assert sim["spring"]["nes_band_shares"]["present_size"][0] == pytest.approx(t_spring, 1e-6)
 
 
 def test_comparison_of_the_pair(demo_run):
@@ -144,8 +155,7 @@ def test_comparison_of_the_pair(demo_run):
     pops = fit["populations"]
     # The model compared is the one with the lowest AIC summed over the populations
     # (the AIC of the joint model of separate fits).
-    total = {m: sum(p["models"][m]["aic"] for p in pops.values())
-             for m in pops["lake"]["models"]}
+    total = {m: sum(p["models"][m]["aic"] for p in pops.values()) for m in pops["lake"]["models"]}
     assert fit["options"]["compare_model"] == min(total, key=total.get)
     assert {r["model"] for r in rows} == {min(total, key=total.get)}
     d = by["neutral_share_difference"]
@@ -175,16 +185,15 @@ def test_report_and_summary(demo_run):
 
 
 def test_rerun_skips_every_stage(demo_run, capsys):
-    before = {p.name: _sha(p) for p in demo_run.iterdir() if p.is_file() and
-              p.name != "run.log"}
-    rc = main(["run", str(DEMO), "--out-dir", str(demo_run), "--bootstrap", BOOT,
-               "--workers", "2", "-q"])
+    before = {p.name: _sha(p) for p in demo_run.iterdir() if p.is_file() and p.name != "run.log"}
+    rc = main(
+        ["run", str(DEMO), "--out-dir", str(demo_run), "--bootstrap", BOOT, "--workers", "2", "-q"]
+    )
     assert rc == 0
     assert capsys.readouterr().out.strip() == str(demo_run / "report.html")
     last = _last_run((demo_run / "run.log").read_text())
     assert _stage_lines(last) == {s: "skipped" for s in STAGES}
-    after = {p.name: _sha(p) for p in demo_run.iterdir() if p.is_file() and
-             p.name != "run.log"}
+    after = {p.name: _sha(p) for p in demo_run.iterdir() if p.is_file() and p.name != "run.log"}
     assert after == before
 
 
@@ -193,13 +202,13 @@ def test_demo_command_finds_the_shipped_data(demo_run, capsys):
     assert path.is_file()
     runmod.check_files(runmod.read_study(path))  # every file of the study is shipped
     # The same study as example_vcfs/: the demo reuses the folder and every stage.
-    rc = main(["demo", "--out-dir", str(demo_run), "--bootstrap", BOOT, "--workers", "2",
-               "-q"])
+    rc = main(["demo", "--out-dir", str(demo_run), "--bootstrap", BOOT, "--workers", "2", "-q"])
     assert rc == 0
     out = capsys.readouterr().out
     assert str(demo_run / "report.html") in out
     assert _stage_lines(_last_run((demo_run / "run.log").read_text())) == {
-        s: "skipped" for s in STAGES}
+        s: "skipped" for s in STAGES
+    }
 
 
 def test_demo_data_size():
@@ -212,6 +221,7 @@ def test_demo_data_size():
 
 # ------------------------------------------------- several datasets, --force, resume
 
+
 def _two_dataset_study(tmp: Path, demo_out: Path) -> Path:
     """Two datasets from the demo files: 'north' (FASTA + GFF3, chr1) and 'south' (sites
     BED, chr2); projected to 10 gene copies, one model, no bootstrap, one cheap test."""
@@ -223,18 +233,18 @@ name = "two datasets"
 
 [[dataset]]
 name = "north"
-vcf = "{EX / 'snail.vcf.gz'}"
-popmap = "{EX / 'snail.popmap.tsv'}"
-fasta = "{EX / 'snail.fa.gz'}"
-gff = "{EX / 'snail.gff3'}"
+vcf = "{EX / "snail.vcf.gz"}"
+popmap = "{EX / "snail.popmap.tsv"}"
+fasta = "{EX / "snail.fa.gz"}"
+gff = "{EX / "snail.gff3"}"
 ancestral = "outgroup:sister"
 regions = ["chr1"]
 project = 10
 
 [[dataset]]
 name = "south"
-vcf = "{EX / 'snail.vcf.gz'}"
-popmap = "{EX / 'snail.popmap.tsv'}"
+vcf = "{EX / "snail.vcf.gz"}"
+popmap = "{EX / "snail.popmap.tsv"}"
 sites = "classes.bed"
 ancestral = "outgroup:sister"
 regions = ["chr2"]
@@ -260,8 +270,12 @@ def test_several_datasets_force_and_interrupted_resume(demo_run, tmp_path, monke
     study = _two_dataset_study(tmp_path, demo_run)
     out = tmp_path / "out"
     assert main(["run", str(study), "--out-dir", str(out), "--workers", "2", "-q"]) == 0
-    for name in ("north.sites.bed", "north.spectra.json", "south.spectra.json",
-                 "provenance/north.classify.tsv"):
+    for name in (
+        "north.sites.bed",
+        "north.spectra.json",
+        "south.spectra.json",
+        "provenance/north.classify.tsv",
+    ):
         assert (out / name).is_file(), name
     assert not (out / "south.sites.bed").exists()  # given as a BED: used in place
     fit = json.loads((out / "fit.json").read_text())
@@ -288,9 +302,18 @@ def test_several_datasets_force_and_interrupted_resume(demo_run, tmp_path, monke
     assert not [p for p in out.rglob("*.tmp")]
     log = (out / "run.log").read_text()
     last = _last_run(log)
-    assert _stage_lines(last) == {s: "running" for s in (
-        "classify[north]", "spectra[north]", "spectra[south]", "fit", "bootstrap",
-        "compare", "report")}
+    assert _stage_lines(last) == {
+        s: "running"
+        for s in (
+            "classify[north]",
+            "spectra[north]",
+            "spectra[south]",
+            "fit",
+            "bootstrap",
+            "compare",
+            "report",
+        )
+    }
     assert "stage report: interrupted" in last
     monkeypatch.undo()
 
@@ -300,10 +323,15 @@ def test_several_datasets_force_and_interrupted_resume(demo_run, tmp_path, monke
     stale.write_text("<html>")
     assert main(["run", str(study), "--out-dir", str(out), "--workers", "2", "-q"]) == 0
     last = _last_run((out / "run.log").read_text())
-    assert _stage_lines(last) == {"classify[north]": "skipped", "spectra[north]": "skipped",
-                                  "spectra[south]": "skipped", "fit": "skipped",
-                                  "bootstrap": "skipped", "compare": "skipped",
-                                  "report": "running"}
+    assert _stage_lines(last) == {
+        "classify[north]": "skipped",
+        "spectra[north]": "skipped",
+        "spectra[south]": "skipped",
+        "fit": "skipped",
+        "bootstrap": "skipped",
+        "compare": "skipped",
+        "report": "running",
+    }
     assert _sha(out / "report.html") != old_report  # rewritten by this run
     assert not stale.exists() and "left by an interrupted run" in last
 
@@ -326,6 +354,7 @@ def test_several_datasets_force_and_interrupted_resume(demo_run, tmp_path, monke
 
 # ------------------------------------------------------------------ bad input
 
+
 def _write(tmp: Path, body: str) -> Path:
     p = tmp / "study.toml"
     p.write_text(body, encoding="utf-8")
@@ -336,10 +365,10 @@ GOOD = f"""[study]
 name = "x"
 
 [[dataset]]
-vcf = "{EX / 'snail.vcf.gz'}"
-popmap = "{EX / 'snail.popmap.tsv'}"
-fasta = "{EX / 'snail.fa.gz'}"
-gff = "{EX / 'snail.gff3'}"
+vcf = "{EX / "snail.vcf.gz"}"
+popmap = "{EX / "snail.popmap.tsv"}"
+fasta = "{EX / "snail.fa.gz"}"
+gff = "{EX / "snail.gff3"}"
 """
 
 
@@ -413,14 +442,40 @@ def test_stage_error_named_once(tmp_path, capsys):
 def test_flags_mode_errors(tmp_path, capsys):
     assert main(["run", str(DEMO), "--vcf", "x.vcf.gz"]) == 2
     assert "--vcf: with a study file" in _err(capsys)
-    assert main(["run", "--vcf", str(EX / "snail.vcf.gz"), "--popmap",
-                 str(EX / "snail.popmap.tsv"), "--sites", str(tmp_path / "no.bed"),
-                 "--out-dir", str(tmp_path / "o")]) == 2
+    assert (
+        main(
+            [
+                "run",
+                "--vcf",
+                str(EX / "snail.vcf.gz"),
+                "--popmap",
+                str(EX / "snail.popmap.tsv"),
+                "--sites",
+                str(tmp_path / "no.bed"),
+                "--out-dir",
+                str(tmp_path / "o"),
+            ]
+        )
+        == 2
+    )
     err = _err(capsys)
     assert str(tmp_path / "no.bed") in err and "--sites" in err
-    assert main(["run", "--vcf", str(EX / "snail.vcf.gz"), "--popmap",
-                 str(EX / "snail.popmap.tsv"), "--fasta", str(EX / "snail.fa.gz"),
-                 "--out-dir", str(tmp_path / "o")]) == 2
+    assert (
+        main(
+            [
+                "run",
+                "--vcf",
+                str(EX / "snail.vcf.gz"),
+                "--popmap",
+                str(EX / "snail.popmap.tsv"),
+                "--fasta",
+                str(EX / "snail.fa.gz"),
+                "--out-dir",
+                str(tmp_path / "o"),
+            ]
+        )
+        == 2
+    )
     assert "--gff is missing" in _err(capsys)
     assert main(["run", str(DEMO)]) == 2
     assert "no output folder" in _err(capsys)
@@ -450,12 +505,35 @@ def test_flags_make_the_same_kind_of_study(tmp_path):
     from driftband.cli import get_parser
     from driftband.cli.run import study_from_args
 
-    args = get_parser().parse_args([
-        "run", "--vcf", str(EX / "snail.vcf.gz"), "--popmap", str(EX / "snail.popmap.tsv"),
-        "--fasta", str(EX / "snail.fa.gz"), "--gff", str(EX / "snail.gff3"),
-        "--ancestral", "outgroup:sister", "--project", "lake=20", "--project", "spring=18",
-        "--block-size", "50000", "--regions", "chr1", "--dfe", "gamma,lognormal",
-        "--bands", "0,1,10", "--out-dir", str(tmp_path)])
+    args = get_parser().parse_args(
+        [
+            "run",
+            "--vcf",
+            str(EX / "snail.vcf.gz"),
+            "--popmap",
+            str(EX / "snail.popmap.tsv"),
+            "--fasta",
+            str(EX / "snail.fa.gz"),
+            "--gff",
+            str(EX / "snail.gff3"),
+            "--ancestral",
+            "outgroup:sister",
+            "--project",
+            "lake=20",
+            "--project",
+            "spring=18",
+            "--block-size",
+            "50000",
+            "--regions",
+            "chr1",
+            "--dfe",
+            "gamma,lognormal",
+            "--bands",
+            "0,1,10",
+            "--out-dir",
+            str(tmp_path),
+        ]
+    )
     st = study_from_args(args)
     (d,) = st.datasets
     assert st.name == d.name == "snail" and st.source is None

@@ -113,13 +113,14 @@ def test_exact_chain_reference_is_right_where_theory_is_exact():
     assert exact_wf_fixation(50, 0.0) == pytest.approx(1 / 100, rel=1e-10)
     # And it approaches Kimura's diffusion result as N grows at fixed S = 4Ns (the
     # diffusion error shrinks like 1/N).
-    d = [abs(exact_wf_fixation(N, 10 / (4 * N)) / kimura_u(N, 10 / (4 * N)) - 1)
-         for N in (25, 50, 100)]
+    d = [
+        abs(exact_wf_fixation(N, 10 / (4 * N)) / kimura_u(N, 10 / (4 * N)) - 1)
+        for N in (25, 50, 100)
+    ]
     assert d[0] > d[1] > d[2] and d[2] < 0.012
 
 
-@pytest.mark.parametrize("S, reps", [(-4.0, 200_000), (0.0, 60_000), (4.0, 40_000),
-                                     (10.0, 20_000)])
+@pytest.mark.parametrize("S, reps", [(-4.0, 200_000), (0.0, 60_000), (4.0, 40_000), (10.0, 20_000)])
 def test_fixation_probability_vs_exact_chain_and_kimura(S, reps):
     N = 50
     s = S / (4 * N)
@@ -197,8 +198,7 @@ def test_neutral_spectrum_mean_is_theta_over_i():
     assert sp.stats["4fold"]["theta_w"] == pytest.approx(theta, rel=0.08)
 
 
-def exact_wf_sample_spectrum(N: int, s: float, new_per_generation: float, n: int
-                             ) -> np.ndarray:
+def exact_wf_sample_spectrum(N: int, s: float, new_per_generation: float, n: int) -> np.ndarray:
     """Expected sample spectrum (entries 0..n, entry 0 without the monomorphic sites) of the
     exact Wright–Fisher chain at mutation–selection–drift equilibrium.
 
@@ -223,13 +223,14 @@ def test_selected_spectrum_matches_exact_wright_fisher_chain(S):
     # exact chain's equilibrium spectrum for a fixed S; the neutral class rides along.
     N, n, theta, L = 50, 10, 0.02, 50_000
     pops = build_populations([f"p:N={N},n={n}"])
-    st = simulate_study(pops, parse_dfe(f"fixed:S={S}"), theta=theta, sites=L, blocks=5,
-                        seed=31 + int(S))
-    lam = theta * L / 2                  # 2 N mu L new mutations per generation
+    st = simulate_study(
+        pops, parse_dfe(f"fixed:S={S}"), theta=theta, sites=L, blocks=5, seed=31 + int(S)
+    )
+    lam = theta * L / 2  # 2 N mu L new mutations per generation
     for c, s in (("0fold", S / (4 * N)), ("4fold", 0.0)):
         exp = exact_wf_sample_spectrum(N, s, lam, n)[1:]
         obs = st.spectra.populations["p"].classes[c].sfs[1:].astype(float)
-        big = exp >= 5                   # lump the sparse tail into one cell
+        big = exp >= 5  # lump the sparse tail into one cell
         o, e = obs[big], exp[big]
         if not big.all():
             o, e = np.append(o, obs[~big].sum()), np.append(e, exp[~big].sum())
@@ -255,15 +256,18 @@ def test_size_history_matches_coalescent_expectation_from_msprime():
     dem.add_population_parameters_change(time=50, initial_size=100, population="p")
     R = 2500
     B = np.zeros((R, n + 1))
-    for k, ts in enumerate(msprime.sim_ancestry(samples={"p": n // 2}, demography=dem,
-                                                ploidy=2, num_replicates=R, random_seed=3)):
+    for k, ts in enumerate(
+        msprime.sim_ancestry(
+            samples={"p": n // 2}, demography=dem, ploidy=2, num_replicates=R, random_seed=3
+        )
+    ):
         B[k] = ts.allele_frequency_spectrum(mode="branch", polarised=True)
     exp = 2 * mu * L * B.mean(axis=0)[1:n]
     var = exp + (2 * mu * L) ** 2 * B.var(axis=0)[1:n] / R
     assert z_ok(obs, exp, var)
     eq = 2 * theta * L / np.arange(1, n)
     assert not z_ok(obs, eq, eq, zmax=6.0)
-    assert obs[0] > 1.4 * eq[0]          # the excess of singletons after an expansion
+    assert obs[0] > 1.4 * eq[0]  # the excess of singletons after an expansion
 
 
 def test_substitution_rate_in_the_study_simulator_matches_exact_chain():
@@ -271,8 +275,15 @@ def test_substitution_rate_in_the_study_simulator_matches_exact_chain():
     # (fixation probability); the per-mutation probability comes from the exact chain.
     N, theta, L, T = 50, 0.02, 20_000, 400
     pops = build_populations([f"p:N={N},n=10"])
-    st = simulate_study(pops, parse_dfe("fixed:S=10"), theta=theta, sites=L, blocks=4,
-                        divergence_generations=T, seed=21)
+    st = simulate_study(
+        pops,
+        parse_dfe("fixed:S=10"),
+        theta=theta,
+        sites=L,
+        blocks=4,
+        divergence_generations=T,
+        seed=21,
+    )
     truth = st.spectra.provenance["simulation"]["populations"]["p"]
     new_per_gen = 2 * N * (theta / (4 * N)) * L
     for c, s in (("0fold", 10 / (4 * N)), ("4fold", 0.0)):
@@ -347,8 +358,7 @@ def test_band_shares_match_mpmath_incomplete_gamma():
     for beta, mean in ((0.1, 1000.0), (0.5, 1000.0), (1.0, 10.0)):
         got = band_shares(parse_dfe(f"gamma:shape={beta},mean={mean}"), 1e6, 1e6)
         lam = beta / mean
-        P = [float(mpmath.gammainc(beta, 0, 4 * e * lam, regularized=True))
-             for e in (1, 10, 100)]
+        P = [float(mpmath.gammainc(beta, 0, 4 * e * lam, regularized=True)) for e in (1, 10, 100)]
         ref = [P[0], P[1] - P[0], P[2] - P[1], 1 - P[2]]
         np.testing.assert_allclose(got, ref, rtol=1e-9, atol=1e-15)
     # Scaling with N: a 10x smaller population carries more effectively neutral mass.
@@ -359,17 +369,28 @@ def test_band_shares_match_mpmath_incomplete_gamma():
 
 
 def test_bad_dfe_and_population_texts_raise_one_line_option_errors():
-    for text in ("gamma:shape=0.3", "gamma:shape=-1,mean=3", "weird:x=1",
-                 "lognormal:mu=1,sigma=-2", "gamma:shape=a,mean=1"):
+    for text in (
+        "gamma:shape=0.3",
+        "gamma:shape=-1,mean=3",
+        "weird:x=1",
+        "lognormal:mu=1,sigma=-2",
+        "gamma:shape=a,mean=1",
+    ):
         with pytest.raises(OptionError) as err:
             parse_dfe(text)
         assert "\n" not in str(err.value)
     with pytest.raises(OptionError):
         parse_dfe("fixed:S=-1", "p=2,S=10")
-    for pops, hist in ((["x:N=10"], []), (["x:n=4"], []), (["x:N=10,n=40"], []),
-                       (["x:N=10,n=4", "x:N=5,n=4"], []), (["x:N=10,n=4"], ["y=0:5"]),
-                       (["x:N=10,n=4"], ["0:20,10:5"]), (["x:N=10,n=4,foo=1"], []),
-                       (["bad name:N=10,n=4"], [])):
+    for pops, hist in (
+        (["x:N=10"], []),
+        (["x:n=4"], []),
+        (["x:N=10,n=40"], []),
+        (["x:N=10,n=4", "x:N=5,n=4"], []),
+        (["x:N=10,n=4"], ["y=0:5"]),
+        (["x:N=10,n=4"], ["0:20,10:5"]),
+        (["x:N=10,n=4,foo=1"], []),
+        (["bad name:N=10,n=4"], []),
+    ):
         with pytest.raises(OptionError):
             build_populations(pops, hist)
 
@@ -378,8 +399,14 @@ def test_history_semantics_generations_before_sample():
     (p,) = build_populations(["lake:n=10"], ["lake=0:4000,200:1000,500:2000"])
     assert p.present_size == 4000 and p.ancestral_size == 2000
     assert p.history_generations == 500
-    assert [p.size_at(a) for a in (0, 199, 200, 499, 500, 10_000)] == \
-        [4000, 4000, 1000, 1000, 2000, 2000]
+    assert [p.size_at(a) for a in (0, 199, 200, 499, 500, 10_000)] == [
+        4000,
+        4000,
+        1000,
+        1000,
+        2000,
+        2000,
+    ]
     (q,) = build_populations(["lake:N=300,n=10"], ["250:30"])
     assert (q.present_size, q.ancestral_size) == (300, 30)
 
@@ -389,11 +416,19 @@ def test_infinite_sites_guard_and_short_burn_in_warning():
     with pytest.raises(OptionError, match="infinite sites"):
         simulate_study(pops, parse_dfe("neutral"), theta=0.5, sites=1000, blocks=2, seed=1)
     with pytest.warns(DriftbandWarning, match="burn-in"):
-        simulate_study(pops, parse_dfe("neutral"), theta=0.001, sites=100, blocks=1,
-                       burn_in=10, seed=1)
+        simulate_study(
+            pops, parse_dfe("neutral"), theta=0.001, sites=100, blocks=1, burn_in=10, seed=1
+        )
     with pytest.raises(OptionError, match="divergence"):
-        simulate_study(pops, parse_dfe("neutral"), theta=0.001, sites=100, blocks=1,
-                       divergence_generations=10**6, seed=1)
+        simulate_study(
+            pops,
+            parse_dfe("neutral"),
+            theta=0.001,
+            sites=100,
+            blocks=1,
+            divergence_generations=10**6,
+            seed=1,
+        )
 
 
 # --------------------------------------------------------------------------------------
@@ -420,11 +455,26 @@ def test_codon_patterns_reproduce_class_counts():
 def vcf_study(tmp_path_factory):
     d = tmp_path_factory.mktemp("simvcf")
     pops = build_populations(["lake:N=300,n=12", "spring:N=60,n=8"])
-    st = simulate_study(pops, parse_dfe("gamma:shape=0.3,mean=100"), theta=0.01,
-                        sites={"0fold": 12_000, "4fold": 6000}, blocks=12,
-                        divergence_generations=300, seed=8, chromosomes=3)
-    paths = write_study(st, d / "s.json", d / "s.tsv", d / "s", outgroup=("sister", 4),
-                        ref_derived=0.3, missing=0.0, genome=True)
+    st = simulate_study(
+        pops,
+        parse_dfe("gamma:shape=0.3,mean=100"),
+        theta=0.01,
+        sites={"0fold": 12_000, "4fold": 6000},
+        blocks=12,
+        divergence_generations=300,
+        seed=8,
+        chromosomes=3,
+    )
+    paths = write_study(
+        st,
+        d / "s.json",
+        d / "s.tsv",
+        d / "s",
+        outgroup=("sister", 4),
+        ref_derived=0.3,
+        missing=0.0,
+        genome=True,
+    )
     return st, paths, d
 
 
@@ -440,8 +490,11 @@ def _spectra_from_vcf(paths):
             aa = rec.info["AA"]
             assert aa in (rec.ref, rec.alts[0])
             der = 1 if aa == rec.ref else 0
-            cls = [c for c, s in classes.classes.items()
-                   if s.contains(rec.chrom, np.array([rec.pos - 1]))[0]]
+            cls = [
+                c
+                for c, s in classes.classes.items()
+                if s.contains(rec.chrom, np.array([rec.pos - 1]))[0]
+            ]
             assert len(cls) == 1
             per_pop = Counter()
             for name, smp in rec.samples.items():
@@ -459,7 +512,7 @@ def _spectra_from_vcf(paths):
 def test_vcf_spectra_equal_the_spectra_written(vcf_study):
     st, paths, _ = vcf_study
     counts, outgroup_ok = _spectra_from_vcf(paths)
-    assert outgroup_ok                  # outgroup homozygous for the ancestral base
+    assert outgroup_ok  # outgroup homozygous for the ancestral base
     ss = read_spectra_json(paths["spectra"])
     for name, pop in ss.populations.items():
         assert pop.polarisation == "aa" and not pop.folded
@@ -477,21 +530,25 @@ def test_vcf_is_valid_for_bcftools_and_indexed(vcf_study):
     bcftools = shutil.which("bcftools")
     if bcftools is None:
         pytest.skip("bcftools is not installed")
-    out = subprocess.run([bcftools, "view", "-H", paths["vcf"]], capture_output=True,
-                         text=True)
+    out = subprocess.run([bcftools, "view", "-H", paths["vcf"]], capture_output=True, text=True)
     assert out.returncode == 0, out.stderr
     n_rec = len(out.stdout.splitlines())
     n_var = sum(s.classes[c].derived.size for s in st.samples for c in s.classes)
     assert n_rec == n_var
-    q = subprocess.run([bcftools, "query", "-r", "chr2", "-f", "%CHROM\t%REF\t%ALT\t%AA\n",
-                        paths["vcf"]], capture_output=True, text=True, check=True)
+    q = subprocess.run(
+        [bcftools, "query", "-r", "chr2", "-f", "%CHROM\t%REF\t%ALT\t%AA\n", paths["vcf"]],
+        capture_output=True,
+        text=True,
+        check=True,
+    )
     rows = [r.split("\t") for r in q.stdout.splitlines()]
     assert rows and all(r[0] == "chr2" for r in rows)
     flipped = sum(r[3] == r[2] for r in rows) / len(rows)
-    assert 0.15 < flipped < 0.45            # --ref-derived 0.3
+    assert 0.15 < flipped < 0.45  # --ref-derived 0.3
     # Every sample is in the popmap, diploid, with GT:DP:GQ.
-    samples = subprocess.run([bcftools, "query", "-l", paths["vcf"]], capture_output=True,
-                             text=True, check=True).stdout.split()
+    samples = subprocess.run(
+        [bcftools, "query", "-l", paths["vcf"]], capture_output=True, text=True, check=True
+    ).stdout.split()
     popmap = [ln.split("\t")[0] for ln in open(paths["popmap"]).read().splitlines()]
     assert samples == popmap and len(samples) == 6 + 4 + 2
     bed = read_site_classes(paths["bed"])
@@ -512,9 +569,10 @@ def test_vcf_missing_genotypes_leave_the_true_spectra_unchanged(tmp_path):
                 n_miss += smp["GT"] == (None, None)
     assert abs(n_miss / n_gt - 0.2) < 4 * math.sqrt(0.2 * 0.8 / n_gt)
     st2 = simulate_study(pops, dfe, theta=0.01, sites=4000, blocks=4, seed=12)
-    assert np.array_equal(read_spectra_json(paths["spectra"]).populations["a"]
-                          .classes["0fold"].block_sfs,
-                          st2.spectra.populations["a"].classes["0fold"].block_sfs)
+    assert np.array_equal(
+        read_spectra_json(paths["spectra"]).populations["a"].classes["0fold"].block_sfs,
+        st2.spectra.populations["a"].classes["0fold"].block_sfs,
+    )
 
 
 # --------------------------------------------------------------------------------------
@@ -524,13 +582,41 @@ def test_vcf_missing_genotypes_leave_the_true_spectra_unchanged(tmp_path):
 
 def test_cli_writes_spectra_and_vcf(tmp_path, capsys):
     out = tmp_path / "cli.json"
-    rc = main(["simulate", "--population", "lake:N=100,n=8", "--population",
-               "spring:N=30,n=6", "--sites-0fold", "3000", "--sites-4fold", "1500",
-               "--blocks", "5", "--gene-codons", "50", "--intergenic", "2000",
-               "--seed", "4", "--divergence-generations", "100",
-               "--dfe", "lognormal:mu=3,sigma=1", "--beneficial", "p=0.01,S=20",
-               "--vcf", str(tmp_path / "cli"), "--outgroup", "sis:n=2", "--tsv",
-               str(tmp_path / "cli.tsv"), "-o", str(out)])
+    rc = main(
+        [
+            "simulate",
+            "--population",
+            "lake:N=100,n=8",
+            "--population",
+            "spring:N=30,n=6",
+            "--sites-0fold",
+            "3000",
+            "--sites-4fold",
+            "1500",
+            "--blocks",
+            "5",
+            "--gene-codons",
+            "50",
+            "--intergenic",
+            "2000",
+            "--seed",
+            "4",
+            "--divergence-generations",
+            "100",
+            "--dfe",
+            "lognormal:mu=3,sigma=1",
+            "--beneficial",
+            "p=0.01,S=20",
+            "--vcf",
+            str(tmp_path / "cli"),
+            "--outgroup",
+            "sis:n=2",
+            "--tsv",
+            str(tmp_path / "cli.tsv"),
+            "-o",
+            str(out),
+        ]
+    )
     assert rc == 0, capsys.readouterr().err
     ss = read_spectra_json(out)
     assert set(ss.populations) == {"lake", "spring"}
@@ -546,21 +632,26 @@ def test_cli_writes_spectra_and_vcf(tmp_path, capsys):
     assert rc == 2 and "use --force" in capsys.readouterr().err
 
 
-@pytest.mark.parametrize("argv, msg", [
-    (["--population", "lake:N=100,n=9", "--vcf", "V"], "odd"),
-    (["--population", "lake:N=100,n=8", "--dfe", "gamma:shape=0.3"], "mean"),
-    (["--population", "lake:N=100,n=8", "--history", "other=0:10"], "other"),
-    (["--population", "lake:N=100,n=8", "--vcf", "V", "--missing", "1.5"], "--missing"),
-    (["--population", "lake:N=100,n=8", "--vcf", "V", "--outgroup", "sis"], "--outgroup"),
-    (["--population", "lake:N=100,n=8", "--blocks", "0"], "--blocks"),
-    (["--population", "lake:N=100,n=8", "--sites", "10", "--blocks", "20"], "blocks"),
-    ([], "--population"),
-])
-def test_cli_bad_options_exit_2_with_one_line_and_write_nothing(tmp_path, capsys, argv,
-                                                                 msg):
+@pytest.mark.parametrize(
+    "argv, msg",
+    [
+        (["--population", "lake:N=100,n=9", "--vcf", "V"], "odd"),
+        (["--population", "lake:N=100,n=8", "--dfe", "gamma:shape=0.3"], "mean"),
+        (["--population", "lake:N=100,n=8", "--history", "other=0:10"], "other"),
+        (["--population", "lake:N=100,n=8", "--vcf", "V", "--missing", "1.5"], "--missing"),
+        (["--population", "lake:N=100,n=8", "--vcf", "V", "--outgroup", "sis"], "--outgroup"),
+        (["--population", "lake:N=100,n=8", "--blocks", "0"], "--blocks"),
+        (["--population", "lake:N=100,n=8", "--sites", "10", "--blocks", "20"], "blocks"),
+        ([], "--population"),
+    ],
+)
+def test_cli_bad_options_exit_2_with_one_line_and_write_nothing(tmp_path, capsys, argv, msg):
     argv = [a.replace("V", str(tmp_path / "v")) if a == "V" else a for a in argv]
-    rc = main(["simulate", *argv, "--sites", "200", "-o", str(tmp_path / "x.json")]
-              if "--sites" not in argv else ["simulate", *argv, "-o", str(tmp_path / "x.json")])
+    rc = main(
+        ["simulate", *argv, "--sites", "200", "-o", str(tmp_path / "x.json")]
+        if "--sites" not in argv
+        else ["simulate", *argv, "-o", str(tmp_path / "x.json")]
+    )
     err = capsys.readouterr().err
     assert rc == 2
     assert err.count("\n") == 1 and msg in err
@@ -588,8 +679,9 @@ def test_codon_position_classes_match_biopython_standard_table():
             assert (CODON_POSITION_CLASSES[idx] == -2).all()
             continue
         for k in range(3):
-            syn = sum(aa[codon[:k] + b + codon[k + 1:]] == aa[codon]
-                      for b in "ACGT" if b != codon[k])
+            syn = sum(
+                aa[codon[:k] + b + codon[k + 1 :]] == aa[codon] for b in "ACGT" if b != codon[k]
+            )
             want = 0 if syn == 0 else (1 if syn == 3 else -1)
             assert CODON_POSITION_CLASSES[idx, k] == want, (codon, k)
 
@@ -610,22 +702,53 @@ def test_genome_fasta_and_gff3_give_back_the_sites_bed(vcf_study):
     bcftools = shutil.which("bcftools")
     if bcftools is None:
         pytest.skip("bcftools is not installed")
-    out = subprocess.run([bcftools, "norm", "-c", "e", "-f", paths["fasta"], "-o",
-                          "/dev/null", paths["vcf"]], capture_output=True, text=True)
+    out = subprocess.run(
+        [bcftools, "norm", "-c", "e", "-f", paths["fasta"], "-o", "/dev/null", paths["vcf"]],
+        capture_output=True,
+        text=True,
+    )
     assert out.returncode == 0, out.stderr
 
 
 def test_genome_needs_more_0fold_than_4fold_sites(tmp_path, capsys):
-    rc = main(["simulate", "--population", "a:N=50,n=4", "--sites-0fold", "100",
-               "--sites-4fold", "200", "--blocks", "2", "--vcf", str(tmp_path / "g"),
-               "--genome", "-o", str(tmp_path / "g.json")])
+    rc = main(
+        [
+            "simulate",
+            "--population",
+            "a:N=50,n=4",
+            "--sites-0fold",
+            "100",
+            "--sites-4fold",
+            "200",
+            "--blocks",
+            "2",
+            "--vcf",
+            str(tmp_path / "g"),
+            "--genome",
+            "-o",
+            str(tmp_path / "g.json"),
+        ]
+    )
     assert rc == 2 and "--genome" in capsys.readouterr().err
     assert list(tmp_path.iterdir()) == []
 
 
 def test_cli_short_burn_in_warns_in_one_line(tmp_path, capsys):
-    rc = main(["simulate", "--population", "a:N=50,n=4", "--sites", "100", "--blocks", "2",
-               "--burn-in", "10", "-o", str(tmp_path / "w.json")])
+    rc = main(
+        [
+            "simulate",
+            "--population",
+            "a:N=50,n=4",
+            "--sites",
+            "100",
+            "--blocks",
+            "2",
+            "--burn-in",
+            "10",
+            "-o",
+            str(tmp_path / "w.json"),
+        ]
+    )
     err = capsys.readouterr().err
     assert rc == 0
     assert err.count("\n") == 1 and "burn-in of 10 generations" in err

@@ -40,13 +40,13 @@ def _case_a() -> str:
         rec(1, 21, "A", "G", ["0/0", "0/0", "0/1", "1/1"], info="AA=g"),  # REF derived
         rec(1, 31, "A", ".", ["0/0", "0/0", "0/0", "0/0"], info="AA=A"),  # monomorphic
         rec(1, 41, "A", "G", ["0/1", "0/1", "0/1", "0/1"], info="AA=T"),  # unpolarisable
-        rec(1, 111, "A", "G,T", ["0/1", "0/2", "0/0", "0/0"]),            # multi-allelic
-        rec(1, 121, "A", "AT", ["0/1", "0/1", "0/0", "0/0"]),             # indel
+        rec(1, 111, "A", "G,T", ["0/1", "0/2", "0/0", "0/0"]),  # multi-allelic
+        rec(1, 121, "A", "AT", ["0/1", "0/1", "0/0", "0/0"]),  # indel
         rec(1, 131, "A", "G", ["0/1", "0/1", "0/0", "0/0"], filt="LowQual"),
-        rec(1, 151, "A", "G", ["0/1", "0/0", "0/0", "0/0"]),              # duplicate ...
-        rec(1, 151, "A", "C", ["0/0", "0/0", "0/1", "0/0"]),              # ... position
-        rec(1, 161, "A", "G", ["./.", "0/1", "0/1", "0/0"]),              # missing in one
-        rec(1, 301, "A", "G", ["0/1", "0/1", "0/1", "0/1"]),              # no class
+        rec(1, 151, "A", "G", ["0/1", "0/0", "0/0", "0/0"]),  # duplicate ...
+        rec(1, 151, "A", "C", ["0/0", "0/0", "0/1", "0/0"]),  # ... position
+        rec(1, 161, "A", "G", ["./.", "0/1", "0/1", "0/0"]),  # missing in one
+        rec(1, 301, "A", "G", ["0/1", "0/1", "0/1", "0/1"]),  # no class
     ]
     return header(SAMPLES, [("1", 1000)]) + "\n".join(r) + "\n"
 
@@ -54,8 +54,7 @@ def _case_a() -> str:
 @pytest.fixture
 def case_a(tmp_path):
     vcf = write_vcf(tmp_path / "a.vcf", _case_a(), "bgzf")
-    return (vcf, write_text(tmp_path / "pm.tsv", POPMAP),
-            write_text(tmp_path / "s.bed", SITES))
+    return (vcf, write_text(tmp_path / "pm.tsv", POPMAP), write_text(tmp_path / "s.bed", SITES))
 
 
 def _sfs(ss, pop, cls):
@@ -66,16 +65,23 @@ def test_hand_derived_case(case_a):
     vcf, pm, bed = case_a
     ss = build_spectra(vcf, pm, bed, project=4)
     # 4fold: 100 sites, one removed (AA neither REF nor ALT)
-    assert _sfs(ss, "one", "4fold") == [97, 1, 0, 0, 1]   # pos 21: REF derived, fixed
+    assert _sfs(ss, "one", "4fold") == [97, 1, 0, 0, 1]  # pos 21: REF derived, fixed
     assert _sfs(ss, "two", "4fold") == [97, 1, 0, 1, 0]
     # 0fold: 100 sites, multi-allelic and the duplicated position removed; the indel is not
-    assert _sfs(ss, "one", "0fold") == [96, 0, 1, 0, 0]   # pos 161 dropped (2 copies < 4)
+    assert _sfs(ss, "one", "0fold") == [96, 0, 1, 0, 0]  # pos 161 dropped (2 copies < 4)
     assert ss.populations["one"].classes["0fold"].sites == 97
     assert _sfs(ss, "two", "0fold") == [97, 1, 0, 0, 0]
     assert ss.populations["two"].classes["0fold"].sites == 98
-    assert ss.skipped == {"no_site_class": 1, "indel_or_symbolic": 1, "multiallelic": 1,
-                          "filter": 0, "unpolarisable": 1, "duplicate_position": 2,
-                          "missing_data:one": 1, "missing_data:two": 0}
+    assert ss.skipped == {
+        "no_site_class": 1,
+        "indel_or_symbolic": 1,
+        "multiallelic": 1,
+        "filter": 0,
+        "unpolarisable": 1,
+        "duplicate_position": 2,
+        "missing_data:one": 1,
+        "missing_data:two": 0,
+    }
     assert ss.populations["one"].n == 4 and not ss.populations["one"].folded
     assert ss.populations["one"].classes["4fold"].block_sfs.dtype == np.int64
 
@@ -92,8 +98,8 @@ def test_fold(case_a):
     vcf, pm, bed = case_a
     ss = build_spectra(vcf, pm, bed, project=4, ancestral="fold")
     # folding needs no ancestral allele: pos 41 is kept (2 of 4 ALT copies in each)
-    assert _sfs(ss, "one", "4fold") == [98, 1, 1]   # pos 21: 0 ALT copies -> entry 0
-    assert _sfs(ss, "two", "4fold") == [97, 2, 1]   # pos 11 and 21: 3 ALT -> minor 1
+    assert _sfs(ss, "one", "4fold") == [98, 1, 1]  # pos 21: 0 ALT copies -> entry 0
+    assert _sfs(ss, "two", "4fold") == [97, 2, 1]  # pos 11 and 21: 3 ALT -> minor 1
     assert ss.populations["one"].folded and ss.populations["one"].polarisation == "fold"
     assert ss.skipped["unpolarisable"] == 0
 
@@ -104,7 +110,7 @@ def test_default_rule_projects_when_data_missing(case_a):
     # population one: usable records 11, 21, 31, 131, 161; only 4 of 5 (80 % < 90 %) have
     # all 4 copies called, so n = 2 (= copies called at 161) and the others are projected
     assert ss.populations["one"].n == 2
-    assert ss.populations["two"].n == 4   # nothing missing: no projection
+    assert ss.populations["two"].n == 4  # nothing missing: no projection
     sfs = ss.populations["one"].classes["4fold"].sfs
     # pos 11: d=1 of 4 -> P(j=1) = 1/2; pos 21: d=4 of 4 -> j=2
     np.testing.assert_allclose(sfs, [97 + 0.5, 0.5, 1.0], atol=1e-12)
@@ -115,8 +121,9 @@ def test_projection_matrix_against_scipy():
     for m, n in [(6, 4), (20, 7), (301, 250)]:
         P = projection_matrix(m, n)
         for d in range(0, m + 1, max(1, m // 13)):
-            np.testing.assert_allclose(P[d], hypergeom(m, d, n).pmf(np.arange(n + 1)),
-                                       rtol=1e-9, atol=1e-300)
+            np.testing.assert_allclose(
+                P[d], hypergeom(m, d, n).pmf(np.arange(n + 1)), rtol=1e-9, atol=1e-300
+            )
         np.testing.assert_allclose(P.sum(axis=1), 1.0, rtol=1e-12)
 
 
@@ -153,13 +160,15 @@ def test_outgroup_polarisation_and_divergence(tmp_path):
 
 def test_haploid_and_mixed_ploidy(tmp_path):
     samples = ["m1", "m2", "f1", "f2"]
-    r = [rec(1, 2, "A", "G", ["1", "0", "0/1", "1/1"]),
-         rec(1, 3, "A", "G", ["0", "0", "0/0", "0/1"])]
+    r = [
+        rec(1, 2, "A", "G", ["1", "0", "0/1", "1/1"]),
+        rec(1, 3, "A", "G", ["0", "0", "0/0", "0/1"]),
+    ]
     vcf = write_vcf(tmp_path / "h.vcf", header(samples) + "\n".join(r) + "\n")
     pm = write_text(tmp_path / "pm.tsv", "m1\tP\nm2\tP\nf1\tP\nf2\tP\n")
     bed = write_text(tmp_path / "s.bed", "1\t0\t10\t4fold\n")
     ss = build_spectra(vcf, pm, bed)
-    assert ss.populations["P"].n == 6   # 2 haploid + 2 diploid samples
+    assert ss.populations["P"].n == 6  # 2 haploid + 2 diploid samples
     assert _sfs(ss, "P", "4fold") == [8, 1, 0, 0, 1, 0, 0]
 
 
@@ -179,8 +188,10 @@ def test_monomorphic_records_not_counted_twice(tmp_path):
 
 def test_genotype_filters(tmp_path):
     samples = ["a", "b", "c"]
-    r = [rec(1, 2, "A", "G", ["0/1:10:50", "1/1:3:50", "0/0:10:50"], fmt="GT:DP:GQ"),
-         rec(1, 3, "A", "G", ["0/1:10:5", "1/1:20:50", "0/0:.:50"], fmt="GT:DP:GQ")]
+    r = [
+        rec(1, 2, "A", "G", ["0/1:10:50", "1/1:3:50", "0/0:10:50"], fmt="GT:DP:GQ"),
+        rec(1, 3, "A", "G", ["0/1:10:5", "1/1:20:50", "0/0:.:50"], fmt="GT:DP:GQ"),
+    ]
     vcf = write_vcf(tmp_path / "g.vcf", header(samples) + "\n".join(r) + "\n", "bgzf")
     pm = write_text(tmp_path / "pm.tsv", "a\tP\nb\tP\nc\tP\n")
     bed = write_text(tmp_path / "s.bed", "1\t0\t10\t4fold\n")
@@ -197,8 +208,11 @@ def test_blocks_windows_and_bed(tmp_path):
     pm = write_text(tmp_path / "pm.tsv", "".join(f"{s}\tP\n" for s in samples))
     bed = write_text(tmp_path / "s.bed", "1\t0\t15000\t4fold\n1\t15000\t30000\t0fold\n")
     ss = build_spectra(vcf, pm, bed, block_size=10_000)
-    assert [(b.start, b.end) for b in ss.blocks] == [(0, 10_000), (10_000, 20_000),
-                                                     (20_000, 30_000)]
+    assert [(b.start, b.end) for b in ss.blocks] == [
+        (0, 10_000),
+        (10_000, 20_000),
+        (20_000, 30_000),
+    ]
     c4 = ss.populations["P"].classes["4fold"]
     assert c4.block_sites.tolist() == [10_000, 5_000, 0]
     genes = write_text(tmp_path / "g.bed", "1\t1000\t2000\tgeneA\n1\t14000\t16000\tgeneB\n")
@@ -207,11 +221,11 @@ def test_blocks_windows_and_bed(tmp_path):
     assert sg.populations["P"].classes["4fold"].block_sites.tolist() == [1000, 1000]
     assert sg.populations["P"].classes["0fold"].block_sites.tolist() == [0, 1000]
     # the blocks' spectra are those of the same sites selected with --regions
-    sr = build_spectra(vcf, pm, bed, regions=["1:1001-2000", "1:14001-16000"],
-                       block_size=10**9)
+    sr = build_spectra(vcf, pm, bed, regions=["1:1001-2000", "1:14001-16000"], block_size=10**9)
     for c in ("0fold", "4fold"):
-        np.testing.assert_array_equal(sr.populations["P"].classes[c].sfs,
-                                      sg.populations["P"].classes[c].sfs)
+        np.testing.assert_array_equal(
+            sr.populations["P"].classes[c].sfs, sg.populations["P"].classes[c].sfs
+        )
 
 
 def test_callable_mask(tmp_path):
@@ -228,6 +242,7 @@ def test_callable_mask(tmp_path):
 
 
 # ---------------------------------------------------------------------------- independent
+
 
 def _independent(truth, pops, classes, n_of, blocks, block_size):
     """Straightforward count: loops over records, scipy.stats.hypergeom for projection."""
@@ -257,27 +272,30 @@ def _independent(truth, pops, classes, n_of, blocks, block_size):
                 sfs[b][0] -= 1
             for b in L:
                 sfs[b][0] += L[b]
-            out[(p, c)] = np.array([sfs[b] for b in sorted(L)]), np.array(
-                [L[b] for b in sorted(L)])
+            out[(p, c)] = np.array([sfs[b] for b in sorted(L)]), np.array([L[b] for b in sorted(L)])
     return out
 
 
 @pytest.mark.parametrize("missing", [0.0, 0.04])
 def test_matches_independent_count_on_simulated_data(tmp_path, missing):
     rng = np.random.default_rng(2024 + int(missing * 100))
-    text, samples, truth = random_study(rng, 16, 900, chroms=("1",), length=40_000,
-                                        missing=missing, haploid_samples=(15,))
+    text, samples, truth = random_study(
+        rng, 16, 900, chroms=("1",), length=40_000, missing=missing, haploid_samples=(15,)
+    )
     vcf = write_vcf(tmp_path / "sim.vcf", text, "bgzf")
-    pm = write_text(tmp_path / "pm.tsv", "".join(
-        f"{s}\t{'north' if i < 9 else 'south'}\n" for i, s in enumerate(samples)))
-    classes = {"4fold": [(0, 9000), (20_000, 31_000)], "0fold": [(9000, 20_000),
-                                                                  (31_000, 40_000)]}
-    bed = write_text(tmp_path / "s.bed", "".join(
-        f"1\t{s}\t{e}\t{c}\n" for c, ivs in classes.items() for s, e in ivs))
+    pm = write_text(
+        tmp_path / "pm.tsv",
+        "".join(f"{s}\t{'north' if i < 9 else 'south'}\n" for i, s in enumerate(samples)),
+    )
+    classes = {"4fold": [(0, 9000), (20_000, 31_000)], "0fold": [(9000, 20_000), (31_000, 40_000)]}
+    bed = write_text(
+        tmp_path / "s.bed",
+        "".join(f"1\t{s}\t{e}\t{c}\n" for c, ivs in classes.items() for s, e in ivs),
+    )
     project = {"north": 18, "south": 13} if missing else None
     ss = build_spectra(vcf, pm, bed, project=project, block_size=10_000)
     pops = {"north": list(range(9)), "south": list(range(9, 16))}
-    n_of = project or {"north": 18, "south": 13}   # without missing data: all copies
+    n_of = project or {"north": 18, "south": 13}  # without missing data: all copies
     want = _independent(truth, pops, classes, n_of, 4, 10_000)
     for (p, c), (bsfs, bsites) in want.items():
         cs = ss.populations[p].classes[c]
@@ -293,20 +311,22 @@ def test_matches_independent_count_on_simulated_data(tmp_path, missing):
 @pytest.mark.parametrize("kind", ["plain", "gzip", "bgzf_noindex", "csi", "bcf"])
 def test_every_input_kind_gives_the_same_spectra(tmp_path, kind):
     rng = np.random.default_rng(99)
-    text, samples, _ = random_study(rng, 8, 400, chroms=("1", "2"), length=30_000,
-                                    missing=0.03)
-    pm = write_text(tmp_path / "pm.tsv", "".join(f"{s}\t{'AB'[i % 2]}\n"
-                                                 for i, s in enumerate(samples)))
-    bed = write_text(tmp_path / "s.bed", "1\t0\t30000\t4fold\n2\t0\t12000\t0fold\n"
-                                         "2\t12000\t30000\t4fold\n1\t40000\t50000\t0fold\n")
-    ref = build_spectra(write_vcf(tmp_path / "r.vcf", text, "bgzf"), pm, bed,
-                        region_size=7_000)
+    text, samples, _ = random_study(rng, 8, 400, chroms=("1", "2"), length=30_000, missing=0.03)
+    pm = write_text(
+        tmp_path / "pm.tsv", "".join(f"{s}\t{'AB'[i % 2]}\n" for i, s in enumerate(samples))
+    )
+    bed = write_text(
+        tmp_path / "s.bed",
+        "1\t0\t30000\t4fold\n2\t0\t12000\t0fold\n2\t12000\t30000\t4fold\n1\t40000\t50000\t0fold\n",
+    )
+    ref = build_spectra(write_vcf(tmp_path / "r.vcf", text, "bgzf"), pm, bed, region_size=7_000)
     got = build_spectra(write_vcf(tmp_path / "k.vcf", text, kind), pm, bed)
     for p in ref.populations:
         assert got.populations[p].n == ref.populations[p].n
         for c, cs in ref.populations[p].classes.items():
-            np.testing.assert_allclose(got.populations[p].classes[c].block_sfs, cs.block_sfs,
-                                       rtol=1e-12, atol=1e-9)
+            np.testing.assert_allclose(
+                got.populations[p].classes[c].block_sfs, cs.block_sfs, rtol=1e-12, atol=1e-9
+            )
     assert got.blocks == ref.blocks
     for k in ("multiallelic", "unpolarisable", "missing_data:A"):
         assert got.skipped[k] == ref.skipped[k]
@@ -314,20 +334,23 @@ def test_every_input_kind_gives_the_same_spectra(tmp_path, kind):
 
 def test_region_tasks_sum_in_any_order(tmp_path):
     rng = np.random.default_rng(8)
-    text, samples, _ = random_study(rng, 10, 500, chroms=("1", "2"), length=40_000,
-                                    missing=0.02)
+    text, samples, _ = random_study(rng, 10, 500, chroms=("1", "2"), length=40_000, missing=0.02)
     vcf = write_vcf(tmp_path / "t.vcf", text, "bgzf")
-    pm = read_popmap(write_text(tmp_path / "pm.tsv", "".join(
-        f"{s}\t{'AB'[i % 2]}\n" for i, s in enumerate(samples))))
+    pm = read_popmap(
+        write_text(
+            tmp_path / "pm.tsv", "".join(f"{s}\t{'AB'[i % 2]}\n" for i, s in enumerate(samples))
+        )
+    )
     from driftband.sites.bed import read_site_classes
-    sc = read_site_classes(write_text(tmp_path / "s.bed", "1\t0\t40000\t4fold\n"
-                                                          "2\t0\t40000\t0fold\n"))
+
+    sc = read_site_classes(
+        write_text(tmp_path / "s.bed", "1\t0\t40000\t4fold\n2\t0\t40000\t0fold\n")
+    )
     with VcfSource(vcf) as src:
         design = make_design(assign_samples(pm, src.header.samples), sorted(sc.classes))
         plan = make_plan(sc, src.chroms, block_size=10_000)
     tasks = plan.regions(6_000)
-    parts = [count_region(vcf, c, s, e, design, plan.region_sites(c, s, e))
-             for c, s, e in tasks]
+    parts = [count_region(vcf, c, s, e, design, plan.region_sites(c, s, e)) for c, s, e in tasks]
     random.Random(1).shuffle(parts)
     a = spectra_from_counts(sum(parts, RegionCounts()), design, plan.blocks)
     b = spectra_from_counts(RegionCounts.total(parts[::-1]), design, plan.blocks)
@@ -346,6 +369,7 @@ def test_results_are_deterministic(tmp_path):
     pm = write_text(tmp_path / "pm.tsv", "".join(f"{s}\tP\n" for s in samples))
     bed = write_text(tmp_path / "s.bed", "1\t0\t50000\t4fold\n2\t0\t50000\t0fold\n")
     from driftband.spectra.io import spectra_to_dict
+
     docs = []
     for _ in range(2):
         d = spectra_to_dict(build_spectra(vcf, pm, bed))
@@ -356,18 +380,20 @@ def test_results_are_deterministic(tmp_path):
 
 # ---------------------------------------------------------------------------- command line
 
+
 def test_readme_quick_start_runs(tmp_path):
     # the README's example of the spectra step on example_vcfs/tiny.* (any code block)
     text = (ROOT / "README.md").read_text(encoding="utf-8")
     blocks = [b.replace("\\\n", " ") for b in text.split("```")[1::2]]  # join continued lines
     cmd = next(b for b in blocks if "driftband spectra example_vcfs/tiny.vcf.gz" in b)
-    cmd = cmd[cmd.index("driftband spectra"):].split("&&")[0].split("\n")[0]
+    cmd = cmd[cmd.index("driftband spectra") :].split("&&")[0].split("\n")[0]
     args = shlex.split(cmd)
     assert args[:2] == ["driftband", "spectra"]
     out = tmp_path / "tiny.spectra.json"
-    args[args.index("-o") + 1] = str(out)   # the README writes /tmp/tiny.spectra.json
-    r = subprocess.run([sys.executable, "-m", "driftband", *args[1:]], cwd=ROOT,
-                       capture_output=True, text=True)
+    args[args.index("-o") + 1] = str(out)  # the README writes /tmp/tiny.spectra.json
+    r = subprocess.run(
+        [sys.executable, "-m", "driftband", *args[1:]], cwd=ROOT, capture_output=True, text=True
+    )
     assert r.returncode == 0, r.stderr
     ss = read_spectra_json(out)
     assert set(ss.populations) >= {"lowvale", "highvale"}
@@ -379,17 +405,35 @@ def test_readme_quick_start_runs(tmp_path):
     doc = json.loads(out.read_text())
     assert doc["provenance"]["inputs"]["vcf"]["sha256"]
     assert doc["provenance"]["options"]["ancestral"] == "aa"
-    assert "\r" not in r.stderr   # no progress bar when stderr is not a terminal
+    assert "\r" not in r.stderr  # no progress bar when stderr is not a terminal
 
 
 def test_cli_writes_tsv_and_outgroup(tmp_path):
     from driftband.cli import main
+
     ex = ROOT / "example_vcfs"
     out, tsv = tmp_path / "s.json", tmp_path / "s.tsv"
-    rc = main(["spectra", str(ex / "tiny.vcf.gz"), "--popmap", str(ex / "tiny.popmap.tsv"),
-               "--sites", str(ex / "tiny.sites.bed"), "--ancestral", "outgroup:islet",
-               "--project", "12", "--project", "highvale=10", "-o", str(out), "--tsv",
-               str(tsv), "-q"])
+    rc = main(
+        [
+            "spectra",
+            str(ex / "tiny.vcf.gz"),
+            "--popmap",
+            str(ex / "tiny.popmap.tsv"),
+            "--sites",
+            str(ex / "tiny.sites.bed"),
+            "--ancestral",
+            "outgroup:islet",
+            "--project",
+            "12",
+            "--project",
+            "highvale=10",
+            "-o",
+            str(out),
+            "--tsv",
+            str(tsv),
+            "-q",
+        ]
+    )
     assert rc == 0
     ss = read_spectra_json(out)
     assert {p: v.n for p, v in ss.populations.items()} == {"lowvale": 12, "highvale": 10}

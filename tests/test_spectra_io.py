@@ -73,9 +73,11 @@ def test_tsv_long_round_trip(tmp_path):
 
 def test_tsv_wide_fills_entry_zero(tmp_path):
     p = tmp_path / "w.tsv"
-    p.write_text("population\tclass\tsites\tc0\tc1\tc2\tc3\tc4\n"
-                 "spring\t0fold\t1000\t\t10\t5\t3\t1\n"
-                 "spring\t4fold\t500\t\t20\t9\t6\t2\n")
+    p.write_text(
+        "population\tclass\tsites\tc0\tc1\tc2\tc3\tc4\n"
+        "spring\t0fold\t1000\t\t10\t5\t3\t1\n"
+        "spring\t4fold\t500\t\t20\t9\t6\t2\n"
+    )
     ss = read_spectra(p)
     pop = ss.populations["spring"]
     assert pop.n == 4
@@ -85,7 +87,7 @@ def test_tsv_wide_fills_entry_zero(tmp_path):
 
 def test_tsv_bad_number_names_line(tmp_path):
     p = tmp_path / "w.tsv"
-    p.write_text("population\tclass\tsites\tc0\tc1\n" "a\t0fold\tx\t1\t2\n")
+    p.write_text("population\tclass\tsites\tc0\tc1\na\t0fold\tx\t1\t2\n")
     with pytest.raises(InputError, match=r"w.tsv:2"):
         read_spectra(p)
 

@@ -42,8 +42,7 @@ def _public_functions():
                 for mname, meth in vars(obj).items():
                     if mname.startswith("_") and mname != "__init__":
                         continue
-                    fn = meth.__func__ if isinstance(meth, (staticmethod, classmethod)) \
-                        else meth
+                    fn = meth.__func__ if isinstance(meth, (staticmethod, classmethod)) else meth
                     if isinstance(fn, property):
                         fn = fn.fget
                     if inspect.isfunction(fn) and fn.__qualname__.startswith(obj.__name__):
@@ -52,8 +51,11 @@ def _public_functions():
 
 def _missing(fn) -> list[str]:
     sig = inspect.signature(fn)
-    out = [p.name for p in sig.parameters.values()
-           if p.name not in ("self", "cls") and p.annotation is inspect.Parameter.empty]
+    out = [
+        p.name
+        for p in sig.parameters.values()
+        if p.name not in ("self", "cls") and p.annotation is inspect.Parameter.empty
+    ]
     if sig.return_annotation is inspect.Signature.empty and fn.__name__ != "__init__":
         out.append("return")
     return out
@@ -68,6 +70,5 @@ def test_mypy_passes_over_the_package():
     mypy = shutil.which("mypy")
     if mypy is None:  # pragma: no cover - mypy is in the test extra
         pytest.skip("mypy is not installed (pip install '.[test]')")
-    res = subprocess.run([sys.executable, "-m", "mypy"], cwd=ROOT, capture_output=True,
-                         text=True)
+    res = subprocess.run([sys.executable, "-m", "mypy"], cwd=ROOT, capture_output=True, text=True)
     assert res.returncode == 0, res.stdout[-4000:] + res.stderr[-2000:]

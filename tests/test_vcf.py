@@ -26,33 +26,48 @@ from genotype_table import read_genotype_table
 S4 = ["a", "b", "c", "d"]
 
 FIXTURES = {
-    "diploid_missing_phased": header(S4) + "\n".join([
-        rec(1, 10, "A", "G", ["0/1", "1|1", "./.", "0|0"]),
-        rec(1, 20, "C", "T", ["0/0", "./1", "1/.", "."]),
-        rec(1, 30, "G", "A", ["1/1", "1/1", "1/1", "0/1"], info="AA=G"),
-    ]) + "\n",
-    "haploid_and_mixed": header(S4) + "\n".join([
-        rec(1, 10, "A", "G", ["0", "1", ".", "1"]),
-        rec(1, 11, "A", "G", ["0", "1/1", "0/1", "."]),
-        rec(1, 12, "A", "G", ["1", "0|1", "1", "./."]),
-    ]) + "\n",
-    "polyploid_and_multidigit": header(S4) + "\n".join([
-        rec(1, 10, "A", "G", ["0/0/1", "1/1/1/1", "0/1", "."]),
-        rec(1, 11, "A", "C,G,T,AA,AC,AG,AT,CA,CC,CG,CT",
-            ["10/1", "0/11", "2/3", "./."]),
-        rec(1, 12, "A", "G", ["0/1", "0/0", "1/1", "0/1"]),
-    ]) + "\n",
-    "format_fields": header(S4) + "\n".join([
-        rec(1, 10, "A", "G", ["0/1:12:99", "1/1:3:.", "./.:.:.", "0/0:120:7"],
-            fmt="GT:DP:GQ"),
-        rec(1, 11, "A", "G", ["0/1:12:99", "./.", "1/1:5", "0/0:0:0"], fmt="GT:DP:GQ"),
-        rec(1, 12, "A", "G", ["0/1:40", "./.:.", "1/1:1", "0/0:999999"], fmt="GT:GQ"),
-        rec(1, 13, "A", "G", ["0/1", "0/0", "1/1", "0/1"], fmt="GT"),
-        rec(1, 14, "A", "G", ["0/1:7:3", "0/0:12345678:2", "1/1:8:1", "0/1:9:0"],
-            fmt="GT:DP:GQ"),
-        rec(1, 15, "A", "G", ["0:7:3", ".:.:.", "1", "0/1:9:0"], fmt="GT:DP:GQ"),
-        rec(1, 17, "A", "G", ["0/1:3:7", "0/0:2:1", "1/1:1:8", "0/1:0:9"], fmt="GT:GQ:DP"),
-    ]) + "\n",
+    "diploid_missing_phased": header(S4)
+    + "\n".join(
+        [
+            rec(1, 10, "A", "G", ["0/1", "1|1", "./.", "0|0"]),
+            rec(1, 20, "C", "T", ["0/0", "./1", "1/.", "."]),
+            rec(1, 30, "G", "A", ["1/1", "1/1", "1/1", "0/1"], info="AA=G"),
+        ]
+    )
+    + "\n",
+    "haploid_and_mixed": header(S4)
+    + "\n".join(
+        [
+            rec(1, 10, "A", "G", ["0", "1", ".", "1"]),
+            rec(1, 11, "A", "G", ["0", "1/1", "0/1", "."]),
+            rec(1, 12, "A", "G", ["1", "0|1", "1", "./."]),
+        ]
+    )
+    + "\n",
+    "polyploid_and_multidigit": header(S4)
+    + "\n".join(
+        [
+            rec(1, 10, "A", "G", ["0/0/1", "1/1/1/1", "0/1", "."]),
+            rec(1, 11, "A", "C,G,T,AA,AC,AG,AT,CA,CC,CG,CT", ["10/1", "0/11", "2/3", "./."]),
+            rec(1, 12, "A", "G", ["0/1", "0/0", "1/1", "0/1"]),
+        ]
+    )
+    + "\n",
+    "format_fields": header(S4)
+    + "\n".join(
+        [
+            rec(1, 10, "A", "G", ["0/1:12:99", "1/1:3:.", "./.:.:.", "0/0:120:7"], fmt="GT:DP:GQ"),
+            rec(1, 11, "A", "G", ["0/1:12:99", "./.", "1/1:5", "0/0:0:0"], fmt="GT:DP:GQ"),
+            rec(1, 12, "A", "G", ["0/1:40", "./.:.", "1/1:1", "0/0:999999"], fmt="GT:GQ"),
+            rec(1, 13, "A", "G", ["0/1", "0/0", "1/1", "0/1"], fmt="GT"),
+            rec(
+                1, 14, "A", "G", ["0/1:7:3", "0/0:12345678:2", "1/1:8:1", "0/1:9:0"], fmt="GT:DP:GQ"
+            ),
+            rec(1, 15, "A", "G", ["0:7:3", ".:.:.", "1", "0/1:9:0"], fmt="GT:DP:GQ"),
+            rec(1, 17, "A", "G", ["0/1:3:7", "0/0:2:1", "1/1:1:8", "0/1:0:9"], fmt="GT:GQ:DP"),
+        ]
+    )
+    + "\n",
 }
 
 
@@ -64,13 +79,17 @@ def _pysam_table(path, fields=("DP", "GQ")):
             row = [tuple(-1 if a is None else a for a in s["GT"]) for s in r.samples.values()]
             al.append(row)
             for f in fields:
-                vals[f].append([(s[f] if f in r.format and s[f] is not None else -1)
-                                for s in r.samples.values()])
+                vals[f].append(
+                    [
+                        (s[f] if f in r.format and s[f] is not None else -1)
+                        for s in r.samples.values()
+                    ]
+                )
     P = max(2, max(len(g) for row in al for g in row))
     out = np.full((len(al), len(al[0]), P), -2, np.int8)
     for i, row in enumerate(al):
         for j, g in enumerate(row):
-            out[i, j, :len(g)] = g
+            out[i, j, : len(g)] = g
     return out, {f: np.array(v) for f, v in vals.items()}
 
 
@@ -83,8 +102,9 @@ def test_fast_path_matches_pysam(tmp_path, name, kind):
     P = want.shape[2]
     got_al = got.alleles
     if got_al.shape[2] < P:
-        got_al = np.concatenate([got_al, np.full(got_al.shape[:2] + (P - got_al.shape[2],),
-                                                 -2, np.int8)], axis=2)
+        got_al = np.concatenate(
+            [got_al, np.full(got_al.shape[:2] + (P - got_al.shape[2],), -2, np.int8)], axis=2
+        )
     np.testing.assert_array_equal(got_al, want)
     for f in ("DP", "GQ"):
         np.testing.assert_array_equal(got.fields[f], want_f[f])
@@ -214,8 +234,10 @@ def test_libdeflate_and_htslib_inflate_agree(tmp_path, monkeypatch):
         whole = read_genotype_table(path)
         out[mode + "_stream"] = whole.alleles
     for k in (0, 1):  # batches may be cut differently; their records must agree
-        np.testing.assert_array_equal(np.concatenate([x[k] for x in out["htslib"]]),
-                                      np.concatenate([x[k] for x in out["auto"]]))
+        np.testing.assert_array_equal(
+            np.concatenate([x[k] for x in out["htslib"]]),
+            np.concatenate([x[k] for x in out["auto"]]),
+        )
     np.testing.assert_array_equal(out["htslib_stream"], out["auto_stream"])
 
 
@@ -229,7 +251,7 @@ def test_allele_counts_fast_path_matches_pysam(tmp_path, name):
         got = []
         for b in src.stream():
             r = b.allele_counts(np.arange(len(b)), np.arange(4))
-            if r is None:   # mixed FORMATs: the generic decoder is used instead
+            if r is None:  # mixed FORMATs: the generic decoder is used instead
                 continue
             got.append(r)
     if not got:
@@ -240,6 +262,7 @@ def test_allele_counts_fast_path_matches_pysam(tmp_path, name):
     assert ok.any()
     np.testing.assert_array_equal(alt[ok], (want[ok] == 1).sum(axis=2))
     np.testing.assert_array_equal(called[ok], ((want[ok] == 0) | (want[ok] == 1)).sum(axis=2))
-    assert not ok[np.any(want > 1, axis=(1, 2)) | (want.shape[2] > 2 and
-                                                   np.any(want[:, :, 2:] != -2, axis=(1, 2)))
-                  ].any()
+    assert not ok[
+        np.any(want > 1, axis=(1, 2))
+        | (want.shape[2] > 2 and np.any(want[:, :, 2:] != -2, axis=(1, 2)))
+    ].any()

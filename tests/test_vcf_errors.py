@@ -12,9 +12,11 @@ from vcf_fixtures import header, rec, write_text, write_vcf
 
 SAMPLES = ["a1", "a2", "b1", "b2"]
 POPMAP = "a1\tA\na2\tA\nb1\tB\nb2\tB\n"
-GOOD = [rec(1, 5, "A", "G", ["0/1", "0/0", "1/1", "0/1"]),
-        rec(1, 9, "C", "T", ["0/0", "0/1", "0/0", "0/0"], info="AA=C"),
-        rec(2, 3, "G", "A", ["0/1", "0/0", "0/0", "0/0"], info="AA=G")]
+GOOD = [
+    rec(1, 5, "A", "G", ["0/1", "0/0", "1/1", "0/1"]),
+    rec(1, 9, "C", "T", ["0/0", "0/1", "0/0", "0/0"], info="AA=C"),
+    rec(2, 3, "G", "A", ["0/1", "0/0", "0/0", "0/0"], info="AA=G"),
+]
 
 
 HEADER_LINES = len(header(SAMPLES, [("1", 1000), ("2", 1000)]).splitlines())
@@ -35,15 +37,25 @@ def study(tmp_path):
         "dir": tmp_path,
         "vcf": write_vcf(tmp_path / "in.vcf", _vcf_text(), "bgzf"),
         "popmap": write_text(tmp_path / "pm.tsv", POPMAP),
-        "sites": write_text(tmp_path / "s.bed", "1\t0\t500\t4fold\n1\t500\t1000\t0fold\n"
-                                                "2\t0\t1000\t4fold\n"),
+        "sites": write_text(
+            tmp_path / "s.bed", "1\t0\t500\t4fold\n1\t500\t1000\t0fold\n2\t0\t1000\t4fold\n"
+        ),
         "out": tmp_path / "out" / "spectra.json",
     }
 
 
 def run(capfd, st, *extra, vcf=None, popmap=None, sites=None):
-    args = ["spectra", str(vcf or st["vcf"]), "--popmap", str(popmap or st["popmap"]),
-            "--sites", str(sites or st["sites"]), "-o", str(st["out"]), *extra]
+    args = [
+        "spectra",
+        str(vcf or st["vcf"]),
+        "--popmap",
+        str(popmap or st["popmap"]),
+        "--sites",
+        str(sites or st["sites"]),
+        "-o",
+        str(st["out"]),
+        *extra,
+    ]
     rc = main(args)
     err = capfd.readouterr().err.strip()
     return rc, err
@@ -71,8 +83,7 @@ def test_good_input_works(capfd, study):
 
 
 def test_missing_vcf(capfd, study):
-    expect_error(capfd, study, vcf=study["dir"] / "nope.vcf.gz",
-                 names=["nope.vcf.gz", "not found"])
+    expect_error(capfd, study, vcf=study["dir"] / "nope.vcf.gz", names=["nope.vcf.gz", "not found"])
 
 
 def test_truncated_bgzf(capfd, study):
@@ -86,29 +97,32 @@ def test_truncated_plain_vcf(capfd, study):
     text = _vcf_text()
     p = write_text(study["dir"] / "cut.vcf", text[:-12])
     msg = expect_error(capfd, study, vcf=p, names=["cut.vcf:", "truncated"])
-    assert f"cut.vcf:{text.count(chr(10))}" in msg   # the line of the cut record
+    assert f"cut.vcf:{text.count(chr(10))}" in msg  # the line of the cut record
 
 
 def test_corrupt_gzip(capfd, study):
     p = study["dir"] / "bad.vcf.gz"
     import gzip
+
     data = gzip.compress(_vcf_text().encode())
-    p.write_bytes(data[:len(data) // 2])
+    p.write_bytes(data[: len(data) // 2])
     expect_error(capfd, study, vcf=p, names=["bad.vcf.gz"])
 
 
-@pytest.mark.parametrize("records,where", [
-    ([GOOD[1], GOOD[0], GOOD[2]], line(2)),        # position decreases
-    ([GOOD[0], GOOD[2], GOOD[1]], line(3)),        # chromosome 1 again after 2
-])
+@pytest.mark.parametrize(
+    "records,where",
+    [
+        ([GOOD[1], GOOD[0], GOOD[2]], line(2)),  # position decreases
+        ([GOOD[0], GOOD[2], GOOD[1]], line(3)),  # chromosome 1 again after 2
+    ],
+)
 def test_unsorted_vcf(capfd, study, records, where):
     p = write_vcf(study["dir"] / "uns.vcf", _vcf_text(records))
     expect_error(capfd, study, vcf=p, names=["uns.vcf" + where, "not sorted"])
 
 
 def test_vcf_without_gt(capfd, study):
-    text = _vcf_text().replace('##FORMAT=<ID=GT,Number=1,Type=String,Description="Genotype">\n',
-                               "")
+    text = _vcf_text().replace('##FORMAT=<ID=GT,Number=1,Type=String,Description="Genotype">\n', "")
     p = write_text(study["dir"] / "nogt.vcf", text)
     expect_error(capfd, study, vcf=p, names=["nogt.vcf", "GT"])
 
@@ -143,8 +157,10 @@ def test_bad_pos(capfd, study):
     expect_error(capfd, study, vcf=p, names=["pos.vcf" + line(1), "POS"])
 
 
-@pytest.mark.parametrize("content,what", [(b"", "empty"), (b"hello\tworld\n", "not a VCF"),
-                                          (b"\x00\x01binary", "not a VCF")])
+@pytest.mark.parametrize(
+    "content,what",
+    [(b"", "empty"), (b"hello\tworld\n", "not a VCF"), (b"\x00\x01binary", "not a VCF")],
+)
 def test_not_a_vcf(capfd, study, content, what):
     p = study["dir"] / "x.vcf"
     p.write_bytes(content)
@@ -185,8 +201,9 @@ def test_site_in_two_classes(capfd, study):
 
 def test_class_without_callable_sites_after_mask(capfd, study):
     mask = write_text(study["dir"] / "mask.bed", "1\t0\t400\n")
-    expect_error(capfd, study, "--callable", str(mask),
-                 names=["s.bed", "'0fold'", "no callable sites"])
+    expect_error(
+        capfd, study, "--callable", str(mask), names=["s.bed", "'0fold'", "no callable sites"]
+    )
 
 
 def test_class_without_callable_sites_after_missing_data(capfd, study):
@@ -195,8 +212,15 @@ def test_class_without_callable_sites_after_missing_data(capfd, study):
     records.sort(key=lambda r: int(r.split("\t")[1]))
     p = write_vcf(study["dir"] / "miss.vcf", _vcf_text(records), "bgzf")
     bed = write_text(study["dir"] / "m.bed", "1\t0\t500\t4fold\n1\t500\t1000\t0fold\n")
-    expect_error(capfd, study, "--project", "4", vcf=p, sites=bed,
-                 names=["'0fold'", "'A'", "no callable sites left"])
+    expect_error(
+        capfd,
+        study,
+        "--project",
+        "4",
+        vcf=p,
+        sites=bed,
+        names=["'0fold'", "'A'", "no callable sites left"],
+    )
 
 
 def test_existing_output_needs_force(capfd, study):
@@ -237,9 +261,19 @@ def test_bad_option_values(capfd, study):
     expect_error(capfd, study, "--block-size", "0", names=["--block-size"])
     expect_error(capfd, study, "--regions", "1:50-10", names=["--regions", "1:50-10"])
     expect_error(capfd, study, "--regions", "chrX", names=["--regions", "'chrX'"])
-    expect_error(capfd, study, "--min-dp", "5", names=["FORMAT/DP"],
-                 vcf=write_vcf(study["dir"] / "nodp.vcf", _vcf_text().replace(
-                     '##FORMAT=<ID=DP,Number=1,Type=Integer,Description="Read depth">\n', "")))
+    expect_error(
+        capfd,
+        study,
+        "--min-dp",
+        "5",
+        names=["FORMAT/DP"],
+        vcf=write_vcf(
+            study["dir"] / "nodp.vcf",
+            _vcf_text().replace(
+                '##FORMAT=<ID=DP,Number=1,Type=Integer,Description="Read depth">\n', ""
+            ),
+        ),
+    )
 
 
 def test_overlapping_blocks(capfd, study):
@@ -248,8 +282,9 @@ def test_overlapping_blocks(capfd, study):
 
 
 def test_non_integer_depth(capfd, study):
-    records = [GOOD[0], rec(1, 9, "C", "T", ["0/1:7", "0/0:1.5", "0/0:3", "0/0:4"],
-                            info="AA=C", fmt="GT:DP")]
+    records = [
+        GOOD[0],
+        rec(1, 9, "C", "T", ["0/1:7", "0/0:1.5", "0/0:3", "0/0:4"], info="AA=C", fmt="GT:DP"),
+    ]
     p = write_text(study["dir"] / "dp.vcf", _vcf_text(records))
-    expect_error(capfd, study, "--min-dp", "2", vcf=p, names=["dp.vcf" + line(2),
-                                                             "record 1:9"])
+    expect_error(capfd, study, "--min-dp", "2", vcf=p, names=["dp.vcf" + line(2), "record 1:9"])

@@ -25,8 +25,11 @@ def header(samples, contigs=(("1", 100_000),), aa=True, extra=()) -> str:
         lines += ['##INFO=<ID=AA,Number=1,Type=String,Description="Ancestral allele">']
     lines += FORMAT_LINES
     lines += list(extra)
-    lines += ["\t".join(["#CHROM", "POS", "ID", "REF", "ALT", "QUAL", "FILTER", "INFO",
-                         "FORMAT", *samples])]
+    lines += [
+        "\t".join(
+            ["#CHROM", "POS", "ID", "REF", "ALT", "QUAL", "FILTER", "INFO", "FORMAT", *samples]
+        )
+    ]
     return "\n".join(lines) + "\n"
 
 
@@ -57,8 +60,10 @@ def write_vcf(path: Path, text: str, kind: str = "plain") -> Path:
         return out
     if kind == "bcf":
         out = Path(str(plain)[:-4] + ".bcf")
-        with pysam.VariantFile(str(plain)) as vin, \
-                pysam.VariantFile(str(out), "wb", header=vin.header) as vout:
+        with (
+            pysam.VariantFile(str(plain)) as vin,
+            pysam.VariantFile(str(out), "wb", header=vin.header) as vout,
+        ):
             for r in vin:
                 vout.write(r)
         subprocess.run(["bcftools", "index", "-f", str(out)], check=True)
@@ -72,9 +77,17 @@ def write_text(path: Path, text: str) -> Path:
     return path
 
 
-def random_study(rng: np.random.Generator, n_samples: int, n_records: int,
-                 chroms=("1", "2"), length=50_000, missing=0.0, haploid_samples=(),
-                 aa_swap=0.3, mono=0.05):
+def random_study(
+    rng: np.random.Generator,
+    n_samples: int,
+    n_records: int,
+    chroms=("1", "2"),
+    length=50_000,
+    missing=0.0,
+    haploid_samples=(),
+    aa_swap=0.3,
+    mono=0.05,
+):
     """A random biallelic study: returns (vcf_text, truth) with truth holding the per
     record position, REF/ALT, AA, and the allele index array (records, samples, 2)."""
     samples = [f"s{i}" for i in range(n_samples)]

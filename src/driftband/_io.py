@@ -18,8 +18,16 @@ import numpy as np
 
 from .exceptions import OutputExistsError
 
-__all__ = ["atomic_output", "check_outputs", "file_record", "json_ready", "open_text",
-           "provenance", "sha256sum", "tsv_cell"]
+__all__ = [
+    "atomic_output",
+    "check_outputs",
+    "file_record",
+    "json_ready",
+    "open_text",
+    "provenance",
+    "sha256sum",
+    "tsv_cell",
+]
 
 
 def check_outputs(paths: Iterable[str | os.PathLike | None], force: bool = False) -> None:
@@ -45,8 +53,9 @@ def check_outputs(paths: Iterable[str | os.PathLike | None], force: bool = False
 
 
 @contextlib.contextmanager
-def atomic_output(path: str | os.PathLike, mode: str = "w", force: bool = False,
-                  **open_kwargs: Any) -> Iterator[IO]:
+def atomic_output(
+    path: str | os.PathLike, mode: str = "w", force: bool = False, **open_kwargs: Any
+) -> Iterator[IO]:
     """Open ``path`` for writing through a temporary file renamed into place on success.
 
     If the block raises, the temporary file is removed and ``path`` is untouched, so an
@@ -116,8 +125,9 @@ def file_record(path: str | os.PathLike | None) -> dict[str, Any] | None:
     return {"path": os.path.abspath(p), "size": os.path.getsize(p), "sha256": sha256sum(p)}
 
 
-def provenance(options: dict[str, Any] | None = None,
-               inputs: dict[str, Any] | None = None) -> dict[str, Any]:
+def provenance(
+    options: dict[str, Any] | None = None, inputs: dict[str, Any] | None = None
+) -> dict[str, Any]:
     """Provenance dictionary embedded in every output: version, command, options, inputs.
 
     Parameters

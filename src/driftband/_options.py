@@ -32,8 +32,9 @@ class OptionSource:
 
     section: str | None = None
     path: str | os.PathLike | None = None
-    lines: Mapping[tuple[str, str | None], int] = field(default_factory=dict, repr=False,
-                                                        compare=False)
+    lines: Mapping[tuple[str, str | None], int] = field(
+        default_factory=dict, repr=False, compare=False
+    )
 
     def name(self, key: str) -> str:
         """How the user wrote option ``key``: ``--relative-mutation-rate`` or

@@ -77,6 +77,7 @@ class WorkerLostError(DriftbandError):
 
 # ---------------------------------------------------------------------------- workers
 
+
 def available_cores() -> int:
     """Cores this process may run on (its CPU affinity where known), at least 1."""
     try:
@@ -122,16 +123,19 @@ def _foreign_threads() -> list[threading.Thread]:
     """Live threads other than the main one and driftband's own helpers (named
     ``driftband-*``: file hashing, connecting; they hold no lock a forked child needs)."""
     main = threading.main_thread()
-    return [t for t in threading.enumerate()
-            if t is not main and not t.name.startswith("driftband-")]
+    return [
+        t for t in threading.enumerate() if t is not main and not t.name.startswith("driftband-")
+    ]
 
 
 def _mp_context() -> BaseContext:
     """Start method of local workers: the platform's default (``fork`` on Linux: workers
     start at once, with everything imported), but ``spawn`` when other threads run in
     this process (forking them can deadlock a child)."""
-    method = multiprocessing.get_start_method(allow_none=True) or \
-        multiprocessing.get_context().get_start_method()
+    method = (
+        multiprocessing.get_start_method(allow_none=True)
+        or multiprocessing.get_context().get_start_method()
+    )
     if method == "fork" and _foreign_threads():
         method = "spawn"
     return multiprocessing.get_context(method)
@@ -152,21 +156,24 @@ class _LocalBackend:
         return self.workers
 
     def start(self) -> None:
-        self.pool = cf.ProcessPoolExecutor(max_workers=self.workers, mp_context=_mp_context(),
-                                           initializer=_init_local_worker)
+        self.pool = cf.ProcessPoolExecutor(
+            max_workers=self.workers, mp_context=_mp_context(), initializer=_init_local_worker
+        )
 
     def restart(self) -> None:
         self.abort()
         self.start()
 
-    def submit(self, fn: Callable[[Any], Any], task: Any, index: int,
-               attempt: int) -> cf.Future[tuple[bool, Any]]:
-        if self.pool is None:   # only after abort() or close(), which end the run
+    def submit(
+        self, fn: Callable[[Any], Any], task: Any, index: int, attempt: int
+    ) -> cf.Future[tuple[bool, Any]]:
+        if self.pool is None:  # only after abort() or close(), which end the run
             raise RuntimeError("the worker pool is shut down")
         return self.pool.submit(_call, fn, task)
 
-    def wait(self, futures: Iterable[cf.Future[tuple[bool, Any]]]
-             ) -> set[cf.Future[tuple[bool, Any]]]:
+    def wait(
+        self, futures: Iterable[cf.Future[tuple[bool, Any]]]
+    ) -> set[cf.Future[tuple[bool, Any]]]:
         done, _ = cf.wait(futures, return_when=cf.FIRST_COMPLETED)
         return done
 
@@ -196,15 +203,14 @@ class _DaskBackend:
     def __init__(self, client: Any, retries: int, owned: bool, name: str) -> None:
         from distributed import KilledWorker
 
-        self.client: Any = client   # a distributed.Client (no type stubs); None when closed
+        self.client: Any = client  # a distributed.Client (no type stubs); None when closed
         self.retries = retries
         self.owned = owned
         self.name = name
         self.broken_errors = (KilledWorker,)
         import dask.config
 
-        self.allowed_failures = int(dask.config.get("distributed.scheduler.allowed-failures",
-                                                    3))
+        self.allowed_failures = int(dask.config.get("distributed.scheduler.allowed-failures", 3))
         self._slots = 0
         self._checked = 0.0
         self._token = os.urandom(4).hex()
@@ -212,7 +218,7 @@ class _DaskBackend:
     @property
     def slots(self) -> int:
         now = time.monotonic()
-        if now - self._checked > 2.0:   # clusters grow and shrink (adaptive, batch jobs)
+        if now - self._checked > 2.0:  # clusters grow and shrink (adaptive, batch jobs)
             self._checked = now
             try:
                 self._slots = int(sum(self.client.nthreads().values()))
@@ -221,9 +227,15 @@ class _DaskBackend:
         return max(self._slots, 2)
 
     def submit(self, fn: Callable[[Any], Any], task: Any, index: int, attempt: int) -> Any:
-        return self.client.submit(_call, fn, task, retries=self.retries, pure=False,
-                                  key=f"driftband-{self.name}-{self._token}-{index}-{attempt}",
-                                  priority=-index)
+        return self.client.submit(
+            _call,
+            fn,
+            task,
+            retries=self.retries,
+            pure=False,
+            key=f"driftband-{self.name}-{self._token}-{index}-{attempt}",
+            priority=-index,
+        )
 
     def wait(self, futures: Iterable[Any]) -> set[Any]:
         from distributed import wait
@@ -243,6 +255,7 @@ class _DaskBackend:
 
 # ---------------------------------------------------------------------------- dask
 
+
 @contextlib.contextmanager
 def _quiet_dask() -> Iterator[None]:
     """Keep distributed's connection chatter off stderr (driftband says it in one line)."""
@@ -255,7 +268,7 @@ def _quiet_dask() -> Iterator[None]:
     try:
         yield
     finally:
-        gc.collect()   # a half-made Client is closed here, silently
+        gc.collect()  # a half-made Client is closed here, silently
         sys.unraisablehook = hook
         for n, lv in old.items():
             logging.getLogger(n).setLevel(lv)
@@ -283,25 +296,34 @@ def _probe(address: str, timeout: float) -> None:
     try:
         scheme, loc = parse_address(address)
     except ValueError as err:
-        raise OptionError(f"--scheduler {address!r}: not a scheduler address ({err}); "
-                          "expected e.g. tcp://HOST:8786") from None
+        raise OptionError(
+            f"--scheduler {address!r}: not a scheduler address ({err}); "
+            "expected e.g. tcp://HOST:8786"
+        ) from None
     if scheme not in ("tcp", "tls"):
         return
     try:
         host, port = parse_host_port(loc, 8786)
     except ValueError as err:
-        raise OptionError(f"--scheduler {address!r}: not a scheduler address ({err}); "
-                          "expected e.g. tcp://HOST:8786") from None
+        raise OptionError(
+            f"--scheduler {address!r}: not a scheduler address ({err}); "
+            "expected e.g. tcp://HOST:8786"
+        ) from None
     try:
         sock = socket.create_connection((host, port), timeout=timeout)
     except OSError as err:
-        why = "timed out" if isinstance(err, TimeoutError | socket.timeout) else (
-            err.strerror or type(err).__name__)
-        raise OptionError(f"--scheduler {address}: cannot reach a dask scheduler within "
-                          f"{timeout:g} s ({why}); start one with 'dask scheduler' and check "
-                          "the host, the port and the firewall") from None
+        why = (
+            "timed out"
+            if isinstance(err, TimeoutError | socket.timeout)
+            else (err.strerror or type(err).__name__)
+        )
+        raise OptionError(
+            f"--scheduler {address}: cannot reach a dask scheduler within "
+            f"{timeout:g} s ({why}); start one with 'dask scheduler' and check "
+            "the host, the port and the firewall"
+        ) from None
     with sock:
-        if scheme != "tcp":   # TLS: the server waits for the client's hello
+        if scheme != "tcp":  # TLS: the server waits for the client's hello
             return
         # a dask scheduler starts its handshake as soon as a connection is accepted
         try:
@@ -310,9 +332,11 @@ def _probe(address: str, timeout: float) -> None:
         except OSError:
             first = b""
     if not first:
-        raise OptionError(f"--scheduler {address}: something listens there but does not "
-                          f"answer like a dask scheduler within {timeout:g} s; check the "
-                          "port (a scheduler listens on 8786 unless told otherwise)")
+        raise OptionError(
+            f"--scheduler {address}: something listens there but does not "
+            f"answer like a dask scheduler within {timeout:g} s; check the "
+            "port (a scheduler listens on 8786 unless told otherwise)"
+        )
 
 
 def _within(make: Callable[[], Any], seconds: float) -> Any:
@@ -356,8 +380,10 @@ def connect(address: str, timeout: float | None = None) -> Any:
     try:
         from distributed import Client
     except ImportError:
-        raise OptionError("--scheduler needs dask.distributed, which is not installed; "
-                          f"install it with: {_CLUSTER_HINT}") from None
+        raise OptionError(
+            "--scheduler needs dask.distributed, which is not installed; "
+            f"install it with: {_CLUSTER_HINT}"
+        ) from None
     t = _connect_timeout(timeout)
     address = address.strip()
     if "://" not in address:
@@ -369,15 +395,21 @@ def connect(address: str, timeout: float | None = None) -> Any:
         except Exception as err:  # whatever a wrong peer makes the handshake raise
             msg = str(err).splitlines()[0] if str(err) else type(err).__name__
             msg = msg if len(msg) < 120 else msg[:117] + "..."
-            raise OptionError(f"--scheduler {address}: cannot connect to a dask scheduler "
-                              f"within {t:g} s ({msg}); check that 'dask scheduler' runs "
-                              "there and that the client and the cluster use compatible "
-                              "dask versions") from None
+            raise OptionError(
+                f"--scheduler {address}: cannot connect to a dask scheduler "
+                f"within {t:g} s ({msg}); check that 'dask scheduler' runs "
+                "there and that the client and the cluster use compatible "
+                "dask versions"
+            ) from None
     n = len(client.scheduler_info().get("workers", {}))
     log.info("connected to the dask scheduler at %s (%d worker(s))", address, n)
     if n == 0:
-        log.warning("the dask scheduler at %s has no workers yet; tasks wait until "
-                    "workers connect (dask worker %s ...)", address, address)
+        log.warning(
+            "the dask scheduler at %s has no workers yet; tasks wait until "
+            "workers connect (dask worker %s ...)",
+            address,
+            address,
+        )
     return client
 
 
@@ -388,8 +420,9 @@ def scheduler_address(scheduler: Any) -> str | None:
     return str(getattr(getattr(scheduler, "scheduler", None), "address", scheduler))
 
 
-def _backend(workers: int | None, scheduler: Any, retries: int,
-             name: str) -> _LocalBackend | _DaskBackend | None:
+def _backend(
+    workers: int | None, scheduler: Any, retries: int, name: str
+) -> _LocalBackend | _DaskBackend | None:
     """``None`` (run in this process), a local pool or a dask backend."""
     if scheduler is not None and not (isinstance(scheduler, str) and not scheduler.strip()):
         if isinstance(scheduler, str):
@@ -401,18 +434,25 @@ def _backend(workers: int | None, scheduler: Any, retries: int,
 
 # ---------------------------------------------------------------------------- running
 
+
 def _lost(index: int, attempts: int, err: BaseException | None) -> WorkerLostError:
     what = f" ({type(err).__name__}: {err})" if err is not None and str(err) else ""
-    return WorkerLostError(f"task {index} was lost {attempts} times because its worker "
-                           f"process died{what}; it may need more memory than a worker has: "
-                           "use fewer workers per machine or smaller tasks (e.g. "
-                           "--region-size)")
+    return WorkerLostError(
+        f"task {index} was lost {attempts} times because its worker "
+        f"process died{what}; it may need more memory than a worker has: "
+        "use fewer workers per machine or smaller tasks (e.g. "
+        "--region-size)"
+    )
 
 
-def _run(fn: Callable[[Any], Any], tasks: Iterable[Any],
-         backend: _LocalBackend | _DaskBackend | None,
-         on_result: Callable[[int, Any], None], window: int | None = None,
-         retries: int = DEFAULT_RETRIES) -> int:
+def _run(
+    fn: Callable[[Any], Any],
+    tasks: Iterable[Any],
+    backend: _LocalBackend | _DaskBackend | None,
+    on_result: Callable[[int, Any], None],
+    window: int | None = None,
+    retries: int = DEFAULT_RETRIES,
+) -> int:
     """Run every task, calling ``on_result(index, result)`` once per task index.
 
     ``window`` bounds how far submission may run ahead of the lowest unfinished index
@@ -430,7 +470,7 @@ def _run(fn: Callable[[Any], Any], tasks: Iterable[Any],
         return n
     pending: dict[Any, tuple[int, Any, int]] = {}
     finished: set[int] = set()
-    lowest_open = [0]   # smallest index not finished yet (for the window)
+    lowest_open = [0]  # smallest index not finished yet (for the window)
     state = {"next": 0, "exhausted": False}
 
     def fill() -> None:
@@ -476,14 +516,15 @@ def _run(fn: Callable[[Any], Any], tasks: Iterable[Any],
                 # the whole pool is gone: every task not returned is submitted again
                 broken += [(i, t, a, None) for i, t, a in pending.values()]
                 pending.clear()
-                log.warning("a worker process died; restarting the workers and "
-                            "resubmitting %d task(s)", len(broken))
+                log.warning(
+                    "a worker process died; restarting the workers and resubmitting %d task(s)",
+                    len(broken),
+                )
                 backend.restart()
                 for i, task, attempts, why in sorted(broken, key=lambda x: x[0]):
                     if attempts >= retries:
                         raise _lost(i, attempts + 1, why)
-                    pending[backend.submit(fn, task, i, attempts + 1)] = (i, task,
-                                                                          attempts + 1)
+                    pending[backend.submit(fn, task, i, attempts + 1)] = (i, task, attempts + 1)
             while lowest_open[0] in finished:
                 finished.discard(lowest_open[0])
                 lowest_open[0] += 1
@@ -495,10 +536,16 @@ def _run(fn: Callable[[Any], Any], tasks: Iterable[Any],
     return state["next"]
 
 
-def parallel_map(fn: Callable[[Any], Any], tasks: Iterable[Any], *,
-                 workers: int | None = None, scheduler: Any = None,
-                 retries: int = DEFAULT_RETRIES, name: str = "task",
-                 on_result: Callable[[int, Any], None] | None = None) -> list[Any]:
+def parallel_map(
+    fn: Callable[[Any], Any],
+    tasks: Iterable[Any],
+    *,
+    workers: int | None = None,
+    scheduler: Any = None,
+    retries: int = DEFAULT_RETRIES,
+    name: str = "task",
+    on_result: Callable[[int, Any], None] | None = None,
+) -> list[Any]:
     """``[fn(t) for t in tasks]``, run on worker processes or a dask cluster.
 
     Parameters
@@ -537,8 +584,9 @@ def parallel_map(fn: Callable[[Any], Any], tasks: Iterable[Any], *,
     return [out[i] for i in range(n)]
 
 
-def dask_map(fn: Callable[[Any], Any], tasks: Iterable[Any], scheduler: Any,
-             retries: int = DEFAULT_RETRIES) -> list[Any]:
+def dask_map(
+    fn: Callable[[Any], Any], tasks: Iterable[Any], scheduler: Any, retries: int = DEFAULT_RETRIES
+) -> list[Any]:
     """:func:`parallel_map` on a dask cluster (address or Client)."""
     return parallel_map(fn, tasks, scheduler=scheduler, retries=retries)
 
@@ -575,8 +623,11 @@ class _OrderedTree:
         return value
 
 
-def tree_reduce(values: Iterable[Any], combine: Callable[[Any, Any], Any],
-                empty: Callable[[], Any] | None = None) -> Any:
+def tree_reduce(
+    values: Iterable[Any],
+    combine: Callable[[Any, Any], Any],
+    empty: Callable[[], Any] | None = None,
+) -> Any:
     """Combine ``values`` in order in a fixed-shape binary tree (see :func:`map_reduce`)."""
     tree = _OrderedTree(combine)
     for v in values:
@@ -584,12 +635,18 @@ def tree_reduce(values: Iterable[Any], combine: Callable[[Any, Any], Any],
     return tree.result(empty)
 
 
-def map_reduce(fn: Callable[[Any], Any], tasks: Iterable[Any],
-               combine: Callable[[Any, Any], Any], *, empty: Callable[[], Any] | None = None,
-               workers: int | None = None, scheduler: Any = None,
-               retries: int = DEFAULT_RETRIES,
-               name: str = "task", on_result: Callable[[int, Any], None] | None = None
-               ) -> Any:
+def map_reduce(
+    fn: Callable[[Any], Any],
+    tasks: Iterable[Any],
+    combine: Callable[[Any, Any], Any],
+    *,
+    empty: Callable[[], Any] | None = None,
+    workers: int | None = None,
+    scheduler: Any = None,
+    retries: int = DEFAULT_RETRIES,
+    name: str = "task",
+    on_result: Callable[[int, Any], None] | None = None,
+) -> Any:
     """Run ``fn`` over ``tasks`` in parallel and combine the results in a fixed tree.
 
     Results are folded in task order as soon as the earlier ones are in, into a binary tree
@@ -628,4 +685,3 @@ def map_reduce(fn: Callable[[Any], Any], tasks: Iterable[Any],
     if buffer or nxt[0] != n:  # a guard: every index is pushed exactly once
         raise RuntimeError(f"{n - nxt[0]} task result(s) were not combined")
     return tree.result(empty)
-

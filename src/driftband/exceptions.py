@@ -37,8 +37,9 @@ class InputError(DriftbandError):
         1-based line number (or record number) in that file.
     """
 
-    def __init__(self, message: str, path: str | os.PathLike | None = None,
-                 line: int | None = None) -> None:
+    def __init__(
+        self, message: str, path: str | os.PathLike | None = None, line: int | None = None
+    ) -> None:
         self.path = None if path is None else os.fspath(path)
         self.line = line
         self.reason = message

@@ -103,8 +103,11 @@ def main(argv: Sequence[str] | None = None) -> int:
     except Exception as err:  # a bug: say so in one line, traceback only on request
         if os.environ.get("DRIFTBAND_DEBUG") or getattr(args, "verbose", 0) >= 2:
             raise
-        print(f"{prog}: internal error: {type(err).__name__}: {err} "
-              "(rerun with -vv for the traceback, and please report it)", file=sys.stderr)
+        print(
+            f"{prog}: internal error: {type(err).__name__}: {err} "
+            "(rerun with -vv for the traceback, and please report it)",
+            file=sys.stderr,
+        )
         return 1
 
 

@@ -8,8 +8,7 @@ import textwrap
 from collections.abc import Callable
 from typing import Any, TypeVar, overload
 
-__all__ = ["Subparsers", "add_common_arguments", "add_subcommand", "parse_kv",
-           "progress_on_stderr"]
+__all__ = ["Subparsers", "add_common_arguments", "add_subcommand", "parse_kv", "progress_on_stderr"]
 
 #: What ``ArgumentParser.add_subparsers()`` returns (an action class that argparse keeps
 #: private), handed to each subcommand's ``add_parser``.
@@ -18,8 +17,9 @@ Subparsers = Any
 _T = TypeVar("_T")
 
 
-def add_subcommand(subparsers: Subparsers, name: str, help: str, description: str,
-                   examples: str) -> argparse.ArgumentParser:
+def add_subcommand(
+    subparsers: Subparsers, name: str, help: str, description: str, examples: str
+) -> argparse.ArgumentParser:
     """Register a subcommand with a description and an Examples epilog."""
     p = subparsers.add_parser(
         name,
@@ -35,8 +35,13 @@ def add_subcommand(subparsers: Subparsers, name: str, help: str, description: st
 def add_common_arguments(p: argparse.ArgumentParser, output: bool = True) -> None:
     """``-v/--verbose``, ``-q/--quiet`` and, for writers, ``--force``."""
     g = p.add_argument_group("general")
-    g.add_argument("-v", "--verbose", action="count", default=0,
-                   help="more messages on stderr (-vv: debugging, with tracebacks)")
+    g.add_argument(
+        "-v",
+        "--verbose",
+        action="count",
+        default=0,
+        help="more messages on stderr (-vv: debugging, with tracebacks)",
+    )
     g.add_argument("-q", "--quiet", action="count", default=0, help="only errors on stderr")
     if output:
         g.add_argument("--force", action="store_true", help="overwrite existing outputs")
@@ -45,10 +50,12 @@ def add_common_arguments(p: argparse.ArgumentParser, output: bool = True) -> Non
 @overload
 def parse_kv(items: list[str] | None, option: str) -> dict[str, str]: ...
 @overload
-def parse_kv(items: list[str] | None, option: str,
-             convert: Callable[[str], _T]) -> dict[str, _T]: ...
-def parse_kv(items: list[str] | None, option: str,
-             convert: Callable[[str], Any] = str) -> dict[str, Any]:
+def parse_kv(
+    items: list[str] | None, option: str, convert: Callable[[str], _T]
+) -> dict[str, _T]: ...
+def parse_kv(
+    items: list[str] | None, option: str, convert: Callable[[str], Any] = str
+) -> dict[str, Any]:
     """Parse ``KEY=VALUE`` items of a repeated option into a dict (errors name the option)."""
     from ..exceptions import OptionError
 

@@ -18,29 +18,43 @@ driftband compare snails.json slugs.json --relative-mutation-rate slugs/north=1.
 """
 
 
-
 def add_parser(subparsers: Subparsers) -> None:
     """Register ``driftband compare``."""
     p = add_subcommand(
-        subparsers, "compare", help="test whether populations differ",
+        subparsers,
+        "compare",
+        help="test whether populations differ",
         description=(
             "For every pair of populations (or those named): a likelihood-ratio test of one "
             "shared DFE, the difference in the share of new mutations with |Ne*s| < 1 with "
             "its bootstrap interval and p-value (needs fits made with --bootstrap), and the "
             "test that only Ne differs (one distribution of s, S scaled by the Ne ratio "
-            "taken from neutral diversity). p-values are adjusted across pairs (Holm)."),
-        examples=EXAMPLES)
+            "taken from neutral diversity). p-values are adjusted across pairs (Holm)."
+        ),
+        examples=EXAMPLES,
+    )
     p.add_argument("fits", nargs="+", metavar="FIT", help="fit file(s) from 'driftband fit'")
     p.add_argument("--pairs", metavar="A:B,...", help="pairs to compare (default: all)")
-    p.add_argument("--model", default="gamma",
-                   help="DFE model compared (must be fitted to both; default gamma)")
-    p.add_argument("--relative-mutation-rate", action="append", metavar="POP=R",
-                   help="mutation rate of POP relative to the others (default 1; repeatable)")
-    p.add_argument("--tests", default=",".join(COMPARE_TESTS),
-                   help="tests to run (default: all three)")
-    p.add_argument("--adjust", default="holm",
-                   help="multiple-testing method of statsmodels.stats.multitest "
-                        "(default holm; e.g. fdr_bh, bonferroni)")
+    p.add_argument(
+        "--model",
+        default="gamma",
+        help="DFE model compared (must be fitted to both; default gamma)",
+    )
+    p.add_argument(
+        "--relative-mutation-rate",
+        action="append",
+        metavar="POP=R",
+        help="mutation rate of POP relative to the others (default 1; repeatable)",
+    )
+    p.add_argument(
+        "--tests", default=",".join(COMPARE_TESTS), help="tests to run (default: all three)"
+    )
+    p.add_argument(
+        "--adjust",
+        default="holm",
+        help="multiple-testing method of statsmodels.stats.multitest "
+        "(default holm; e.g. fdr_bh, bonferroni)",
+    )
     p.add_argument("-o", "--output", required=True, help="comparison table (TSV)")
     add_common_arguments(p)
     p.set_defaults(runner=run)
@@ -55,9 +69,15 @@ def run(args: argparse.Namespace) -> int:
     tests = tuple(t.strip() for t in args.tests.split(",") if t.strip())
     mu = parse_kv(args.relative_mutation_rate, "--relative-mutation-rate", float)
     options, fits = read_fit_files(args.fits)
-    rows = compare_fits(sorted(fits, key=lambda pf: pf.population), options, args.model,
-                        pairs=args.pairs.split(",") if args.pairs else None, tests=tests,
-                        relative_mu=mu, adjust=args.adjust,
-                        require_bootstrap=args.tests != ",".join(COMPARE_TESTS))
+    rows = compare_fits(
+        sorted(fits, key=lambda pf: pf.population),
+        options,
+        args.model,
+        pairs=args.pairs.split(",") if args.pairs else None,
+        tests=tests,
+        relative_mu=mu,
+        adjust=args.adjust,
+        require_bootstrap=args.tests != ",".join(COMPARE_TESTS),
+    )
     write_compare_tsv(rows, args.output, force=args.force)
     return 0

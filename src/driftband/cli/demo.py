@@ -28,15 +28,29 @@ driftband demo --out-dir demo-full --bootstrap 200 --workers 4
 
 def add_parser(subparsers: Subparsers) -> argparse.ArgumentParser:
     """Register the ``demo`` subcommand."""
-    p = add_subcommand(subparsers, "demo", help="run the whole job on the shipped demo "
-                       "study and print where the report is", description=DESCRIPTION,
-                       examples=EXAMPLES)
-    p.add_argument("--out-dir", default="driftband-demo", metavar="DIR",
-                   help="output folder (default: ./driftband-demo)")
-    p.add_argument("--bootstrap", type=int, default=50, metavar="B",
-                   help="bootstrap replicates (default 50; the study file says 200)")
-    p.add_argument("--workers", type=int, default=2, metavar="N",
-                   help="worker processes (default 2)")
+    p = add_subcommand(
+        subparsers,
+        "demo",
+        help="run the whole job on the shipped demo study and print where the report is",
+        description=DESCRIPTION,
+        examples=EXAMPLES,
+    )
+    p.add_argument(
+        "--out-dir",
+        default="driftband-demo",
+        metavar="DIR",
+        help="output folder (default: ./driftband-demo)",
+    )
+    p.add_argument(
+        "--bootstrap",
+        type=int,
+        default=50,
+        metavar="B",
+        help="bootstrap replicates (default 50; the study file says 200)",
+    )
+    p.add_argument(
+        "--workers", type=int, default=2, metavar="N", help="worker processes (default 2)"
+    )
     add_common_arguments(p)
     p.set_defaults(runner=run)
     return p
@@ -48,8 +62,12 @@ def run(args: argparse.Namespace) -> int:
 
     study = demo_study()
     progress_on_stderr(args)
-    res = run_study(study, args.out_dir, force=args.force, replicates=args.bootstrap,
-                    workers=args.workers)
-    print(f"The demo report is at {res.report}\n(summary for the terminal: "
-          f"{res.paths['summary']}; all results in {res.out_dir})", file=sys.stdout)
+    res = run_study(
+        study, args.out_dir, force=args.force, replicates=args.bootstrap, workers=args.workers
+    )
+    print(
+        f"The demo report is at {res.report}\n(summary for the terminal: "
+        f"{res.paths['summary']}; all results in {res.out_dir})",
+        file=sys.stdout,
+    )
     return 0

@@ -29,58 +29,106 @@ def parse_bands(text: str) -> tuple[float, ...]:
     try:
         edges = tuple(float(v) for v in text.split(","))
     except ValueError:
-        raise OptionError(f"--bands {text!r}: give comma-separated numbers, e.g. 0,1,10,100"
-                          ) from None
+        raise OptionError(
+            f"--bands {text!r}: give comma-separated numbers, e.g. 0,1,10,100"
+        ) from None
     return check_edges(edges)
 
 
 def add_parser(subparsers: Subparsers) -> None:
     """Register ``driftband fit``."""
     p = add_subcommand(
-        subparsers, "fit", help="fit DFE models to spectra",
+        subparsers,
+        "fit",
+        help="fit DFE models to spectra",
         description=(
             "Fit Poisson-random-field models of the distribution of fitness effects (DFE) "
             "of new selected-class mutations, with demographic nuisance parameters, to each "
             "population's neutral and selected spectra; report the share of new mutations "
             "in bands of |Ne*s| (S = 4*Ne*s). Input: spectra JSON from 'driftband spectra' "
             "or a plain TSV table of spectra (see the README, 'Refitting published "
-            "spectra')."),
-        examples=EXAMPLES)
-    p.add_argument("spectra", nargs="+", metavar="SPECTRA",
-                   help="spectra file(s): JSON from 'driftband spectra', or a TSV table")
+            "spectra')."
+        ),
+        examples=EXAMPLES,
+    )
+    p.add_argument(
+        "spectra",
+        nargs="+",
+        metavar="SPECTRA",
+        help="spectra file(s): JSON from 'driftband spectra', or a TSV table",
+    )
     p.add_argument("--neutral", default="4fold", help="neutral class name (default 4fold)")
     p.add_argument("--selected", default="0fold", help="selected class name (default 0fold)")
-    p.add_argument("--dfe", default=",".join(DEFAULT_MODELS),
-                   help="comma-separated DFE families: gamma, lognormal, discrete; "
-                        "NAME+beneficial adds a beneficial point mass (default: %(default)s)")
-    p.add_argument("--beneficial", action="store_true",
-                   help="add a beneficial point mass (p_b, S_b > 0) to every family")
-    p.add_argument("--misorientation", default="free", metavar="free|fixed:E",
-                   help="ancestral misidentification rate: estimated ('free', default; "
-                        "unfolded spectra only) or fixed, e.g. fixed:0")
-    p.add_argument("--equilibrium", action="store_true",
-                   help="no demographic nuisance parameters (all r_i = 1)")
-    p.add_argument("--bands", default=format_edges(), metavar="EDGES",
-                   help="band edges on |Ne*s| (default %(default)s; the last band is open)")
-    p.add_argument("--populations", metavar="P,...",
-                   help="fit only these populations (default: all)")
-    p.add_argument("--label", action="append", metavar="FILE=NAME",
-                   help="prefix the populations of FILE with NAME/ (repeatable)")
+    p.add_argument(
+        "--dfe",
+        default=",".join(DEFAULT_MODELS),
+        help="comma-separated DFE families: gamma, lognormal, discrete; "
+        "NAME+beneficial adds a beneficial point mass (default: %(default)s)",
+    )
+    p.add_argument(
+        "--beneficial",
+        action="store_true",
+        help="add a beneficial point mass (p_b, S_b > 0) to every family",
+    )
+    p.add_argument(
+        "--misorientation",
+        default="free",
+        metavar="free|fixed:E",
+        help="ancestral misidentification rate: estimated ('free', default; "
+        "unfolded spectra only) or fixed, e.g. fixed:0",
+    )
+    p.add_argument(
+        "--equilibrium",
+        action="store_true",
+        help="no demographic nuisance parameters (all r_i = 1)",
+    )
+    p.add_argument(
+        "--bands",
+        default=format_edges(),
+        metavar="EDGES",
+        help="band edges on |Ne*s| (default %(default)s; the last band is open)",
+    )
+    p.add_argument(
+        "--populations", metavar="P,...", help="fit only these populations (default: all)"
+    )
+    p.add_argument(
+        "--label",
+        action="append",
+        metavar="FILE=NAME",
+        help="prefix the populations of FILE with NAME/ (repeatable)",
+    )
     p.add_argument("-o", "--output", required=True, help="fit file (JSON)")
     p.add_argument("--bands-tsv", help="band table (TSV) of the AIC-best models")
     b = p.add_argument_group("bootstrap")
-    b.add_argument("--bootstrap", type=int, default=0, metavar="B",
-                   help="block-bootstrap replicates (default 0: none)")
-    b.add_argument("--level", type=float, default=0.95,
-                   help="confidence level of percentile intervals (default 0.95)")
+    b.add_argument(
+        "--bootstrap",
+        type=int,
+        default=0,
+        metavar="B",
+        help="block-bootstrap replicates (default 0: none)",
+    )
+    b.add_argument(
+        "--level",
+        type=float,
+        default=0.95,
+        help="confidence level of percentile intervals (default 0.95)",
+    )
     b.add_argument("--seed", type=int, default=1, help="random seed (default 1)")
-    b.add_argument("--workers", type=int, default=None, metavar="N",
-                   help="local worker processes for the refits (default: the cores "
-                        "available; 1 runs them in this process)")
-    b.add_argument("--scheduler", metavar="ADDRESS",
-                   help="run the refits on the dask.distributed scheduler at ADDRESS, e.g. "
-                        "tcp://HOST:8786 (needs driftband[cluster]; see the README, "
-                        "'Running on a cluster')")
+    b.add_argument(
+        "--workers",
+        type=int,
+        default=None,
+        metavar="N",
+        help="local worker processes for the refits (default: the cores "
+        "available; 1 runs them in this process)",
+    )
+    b.add_argument(
+        "--scheduler",
+        metavar="ADDRESS",
+        help="run the refits on the dask.distributed scheduler at ADDRESS, e.g. "
+        "tcp://HOST:8786 (needs driftband[cluster]; see the README, "
+        "'Running on a cluster')",
+    )
     add_common_arguments(p)
     p.set_defaults(runner=run)
 
@@ -95,19 +143,24 @@ def run(args: argparse.Namespace) -> int:
     check_outputs([args.output, args.bands_tsv], args.force)
     edges = parse_bands(args.bands)
     eps = parse_misorientation(args.misorientation)
-    options = FitOptions(args.neutral, args.selected,
-                         tuple(parse_models(args.dfe, args.beneficial, edges)), eps,
-                         args.equilibrium, edges)
+    options = FitOptions(
+        args.neutral,
+        args.selected,
+        tuple(parse_models(args.dfe, args.beneficial, edges)),
+        eps,
+        args.equilibrium,
+        edges,
+    )
     check_bootstrap_settings(args.bootstrap, args.level)
     labels = parse_kv(args.label, "--label")
     unknown = [k for k in labels if k not in args.spectra]
     if unknown:
-        raise OptionError(f"--label {unknown[0]}=...: {unknown[0]} is not one of the spectra "
-                          "files given")
+        raise OptionError(
+            f"--label {unknown[0]}=...: {unknown[0]} is not one of the spectra files given"
+        )
     resolve_workers(args.workers)
     if args.scheduler and not args.bootstrap:
-        log.warning("--scheduler is used by the bootstrap only; without --bootstrap it is "
-                    "ignored")
+        log.warning("--scheduler is used by the bootstrap only; without --bootstrap it is ignored")
     # connect before the point estimates: an unreachable scheduler fails at once
     client = connect(args.scheduler) if args.scheduler and args.bootstrap else None
     try:
@@ -117,8 +170,7 @@ def run(args: argparse.Namespace) -> int:
             client.close()
 
 
-def _run(args: argparse.Namespace, options: Any, labels: dict[str, str],
-         client: Any) -> int:
+def _run(args: argparse.Namespace, options: Any, labels: dict[str, str], client: Any) -> int:
     from ..fit.api import LabelledSpectra, block_spectra, fit_spectra
     from ..fit.io import fit_document, write_bands_tsv, write_fit_json
     from ..spectra.io import read_spectra
@@ -127,19 +179,33 @@ def _run(args: argparse.Namespace, options: Any, labels: dict[str, str],
     wanted = args.populations.split(",") if args.populations else None
     fits = fit_spectra(sets, options, wanted)
     for pf in fits:
-        log.warning("%s: best model %s, share with |Ne*s| < %g: %.3f", pf.population,
-                    pf.best.model, options.edges_nes[1], pf.best.shares[0])
+        log.warning(
+            "%s: best model %s, share with |Ne*s| < %g: %.3f",
+            pf.population,
+            pf.best.model,
+            options.edges_nes[1],
+            pf.best.shares[0],
+        )
     if args.bootstrap:
         from ..fit.bootstrap import bootstrap_fits
 
-        bootstrap_fits(fits, block_spectra(sets), options, args.bootstrap, seed=args.seed,
-                       level=args.level, workers=args.workers, scheduler=client)
-    opts = options.to_dict() | {"bootstrap": args.bootstrap, "seed": args.seed,
-                                "level": args.level}
+        bootstrap_fits(
+            fits,
+            block_spectra(sets),
+            options,
+            args.bootstrap,
+            seed=args.seed,
+            level=args.level,
+            workers=args.workers,
+            scheduler=client,
+        )
+    opts = options.to_dict() | {"bootstrap": args.bootstrap, "seed": args.seed, "level": args.level}
     prov = provenance(opts, {"spectra": [file_record(p) for p in args.spectra]})
-    if args.bootstrap:   # how the refits ran (does not change the results)
-        prov["execution"] = {"scheduler": args.scheduler or None,
-                             "workers": None if args.scheduler else args.workers}
+    if args.bootstrap:  # how the refits ran (does not change the results)
+        prov["execution"] = {
+            "scheduler": args.scheduler or None,
+            "workers": None if args.scheduler else args.workers,
+        }
     write_fit_json(fit_document(fits, opts, prov), args.output, force=args.force)
     if args.bands_tsv:
         write_bands_tsv(fits, args.bands_tsv, force=args.force)

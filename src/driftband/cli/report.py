@@ -25,7 +25,9 @@ driftband report fit.json --spectra snails=snails.json --spectra slugs=slugs.jso
 def add_parser(subparsers: Subparsers) -> None:
     """Register ``driftband report``."""
     p = add_subcommand(
-        subparsers, "report", help="write the HTML report of a study",
+        subparsers,
+        "report",
+        help="write the HTML report of a study",
         description=(
             "One self-contained HTML file for people deciding from the results: the share "
             "of new selected-class mutations with |Ne*s| < 1 per population with its "
@@ -33,15 +35,21 @@ def add_parser(subparsers: Subparsers) -> None:
             "the fit to the spectra, model comparison, DFE parameters, diversity and "
             "McDonald-Kreitman/alpha, then provenance, conventions and cautions. Plots are "
             "embedded; the file opens from disk without network access. The report "
-            "renders the numbers of its input files and computes no statistics itself."),
-        examples=EXAMPLES)
+            "renders the numbers of its input files and computes no statistics itself."
+        ),
+        examples=EXAMPLES,
+    )
     p.add_argument("fit", metavar="FIT", help="fit file (JSON) from 'driftband fit'")
-    p.add_argument("--compare", metavar="TSV",
-                   help="comparison table from 'driftband compare'")
-    p.add_argument("--spectra", action="extend", nargs="+", metavar="[LABEL=]FILE",
-                   help="spectra file(s) from 'driftband spectra', for diversity statistics; "
-                        "LABEL= as given to 'driftband fit --label' when the fit pooled "
-                        "several files")
+    p.add_argument("--compare", metavar="TSV", help="comparison table from 'driftband compare'")
+    p.add_argument(
+        "--spectra",
+        action="extend",
+        nargs="+",
+        metavar="[LABEL=]FILE",
+        help="spectra file(s) from 'driftband spectra', for diversity statistics; "
+        "LABEL= as given to 'driftband fit --label' when the fit pooled "
+        "several files",
+    )
     p.add_argument("-o", "--output", required=True, help="the HTML report")
     p.add_argument("--summary", metavar="MD", help="also write a Markdown summary")
     add_common_arguments(p)
@@ -94,8 +102,9 @@ def run(args: argparse.Namespace) -> int:
     if args.compare:
         inputs["compare"] = file_record(args.compare)
     if spectra_args:
-        inputs["spectra"] = [file_record(p) | ({"label": k} if k != p else {})
-                             for k, p in spectra_args]
+        inputs["spectra"] = [
+            file_record(p) | ({"label": k} if k != p else {}) for k, p in spectra_args
+        ]
     prov = provenance({"output": args.output, "summary": args.summary}, inputs)
     prov["environment"]["matplotlib"] = matplotlib.__version__
     html_text = build_report(fit_doc, rows, spectra, prov)

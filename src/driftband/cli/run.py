@@ -44,25 +44,51 @@ driftband run study.toml --out-dir results --bootstrap 500 --seed 7   # same stu
 """
 
 #: Flags of the dataset and the fit (only without a study file), by study-file key.
-_DATASET_FLAGS = {"vcf": "--vcf", "popmap": "--popmap", "sites": "--sites",
-                  "fasta": "--fasta", "gff": "--gff", "callable": "--callable",
-                  "ancestral": "--ancestral", "project": "--project",
-                  "block_size": "--block-size", "blocks": "--blocks",
-                  "regions": "--regions", "min_gq": "--min-gq", "min_dp": "--min-dp",
-                  "pass_only": "--pass-only", "code": "--code", "name": "--name"}
-_FIT_FLAGS = {"dfe": "--dfe", "bands": "--bands", "misorientation": "--misorientation",
-              "equilibrium": "--equilibrium", "beneficial": "--beneficial"}
+_DATASET_FLAGS = {
+    "vcf": "--vcf",
+    "popmap": "--popmap",
+    "sites": "--sites",
+    "fasta": "--fasta",
+    "gff": "--gff",
+    "callable": "--callable",
+    "ancestral": "--ancestral",
+    "project": "--project",
+    "block_size": "--block-size",
+    "blocks": "--blocks",
+    "regions": "--regions",
+    "min_gq": "--min-gq",
+    "min_dp": "--min-dp",
+    "pass_only": "--pass-only",
+    "code": "--code",
+    "name": "--name",
+}
+_FIT_FLAGS = {
+    "dfe": "--dfe",
+    "bands": "--bands",
+    "misorientation": "--misorientation",
+    "equilibrium": "--equilibrium",
+    "beneficial": "--beneficial",
+}
 
 
 def add_parser(subparsers: Subparsers) -> argparse.ArgumentParser:
     """Register the ``run`` subcommand."""
-    p = add_subcommand(subparsers, "run", help="the whole job of a study into one output "
-                       "folder (report, tables, provenance)", description=DESCRIPTION,
-                       examples=EXAMPLES)
-    p.add_argument("study", nargs="?", metavar="STUDY.toml",
-                   help="study file (TOML); or give one dataset with the flags below")
-    p.add_argument("--out-dir", metavar="DIR",
-                   help="output folder (default: out_dir of the study file)")
+    p = add_subcommand(
+        subparsers,
+        "run",
+        help="the whole job of a study into one output folder (report, tables, provenance)",
+        description=DESCRIPTION,
+        examples=EXAMPLES,
+    )
+    p.add_argument(
+        "study",
+        nargs="?",
+        metavar="STUDY.toml",
+        help="study file (TOML); or give one dataset with the flags below",
+    )
+    p.add_argument(
+        "--out-dir", metavar="DIR", help="output folder (default: out_dir of the study file)"
+    )
     d = p.add_argument_group("one dataset from flags (instead of a study file)")
     d.add_argument("--vcf", metavar="VCF", help="VCF/BCF of all samples")
     d.add_argument("--popmap", metavar="FILE", help="TSV sample<TAB>population")
@@ -71,39 +97,67 @@ def add_parser(subparsers: Subparsers) -> argparse.ArgumentParser:
     d.add_argument("--gff", metavar="GENES.gff3", help="GFF3 annotation of that reference")
     d.add_argument("--code", type=int, metavar="N", help="NCBI translation table (default 1)")
     d.add_argument("--callable", metavar="BED", help="BED of callable sites")
-    d.add_argument("--ancestral", metavar="aa|fold|outgroup:POP",
-                   help="polarisation (default aa: INFO/AA)")
-    d.add_argument("--project", action="append", metavar="N|POP=N",
-                   help="project to N gene copies (all populations, or POP=N; repeatable)")
+    d.add_argument(
+        "--ancestral", metavar="aa|fold|outgroup:POP", help="polarisation (default aa: INFO/AA)"
+    )
+    d.add_argument(
+        "--project",
+        action="append",
+        metavar="N|POP=N",
+        help="project to N gene copies (all populations, or POP=N; repeatable)",
+    )
     g = d.add_mutually_exclusive_group()
-    g.add_argument("--block-size", type=int, metavar="BP",
-                   help="bootstrap block length (default 100000)")
+    g.add_argument(
+        "--block-size", type=int, metavar="BP", help="bootstrap block length (default 100000)"
+    )
     g.add_argument("--blocks", metavar="BED", help="BED of bootstrap blocks instead")
-    d.add_argument("--regions", nargs="+", metavar="REGION",
-                   help="only these regions: CHROM, CHROM:START-END or BED files")
+    d.add_argument(
+        "--regions",
+        nargs="+",
+        metavar="REGION",
+        help="only these regions: CHROM, CHROM:START-END or BED files",
+    )
     d.add_argument("--min-gq", type=int, metavar="Q", help="genotypes with GQ < Q missing")
     d.add_argument("--min-dp", type=int, metavar="D", help="genotypes with DP < D missing")
-    d.add_argument("--pass-only", action="store_true", default=None,
-                   help="keep only FILTER PASS or '.' records")
+    d.add_argument(
+        "--pass-only",
+        action="store_true",
+        default=None,
+        help="keep only FILTER PASS or '.' records",
+    )
     d.add_argument("--name", help="name of the study and dataset (default: the VCF's name)")
     f = p.add_argument_group("fit (without a study file)")
-    f.add_argument("--dfe", metavar="NAMES",
-                   help="DFE families (default gamma,lognormal,discrete)")
-    f.add_argument("--bands", metavar="EDGES", help="band edges on |Ne*s| (default "
-                   "0,1,10,100)")
-    f.add_argument("--misorientation", metavar="free|fixed:E",
-                   help="ancestral misidentification rate (default free)")
-    f.add_argument("--equilibrium", action="store_true", default=None,
-                   help="no demographic nuisance parameters")
-    f.add_argument("--beneficial", action="store_true", default=None,
-                   help="add a beneficial class to every family")
+    f.add_argument("--dfe", metavar="NAMES", help="DFE families (default gamma,lognormal,discrete)")
+    f.add_argument("--bands", metavar="EDGES", help="band edges on |Ne*s| (default 0,1,10,100)")
+    f.add_argument(
+        "--misorientation",
+        metavar="free|fixed:E",
+        help="ancestral misidentification rate (default free)",
+    )
+    f.add_argument(
+        "--equilibrium",
+        action="store_true",
+        default=None,
+        help="no demographic nuisance parameters",
+    )
+    f.add_argument(
+        "--beneficial",
+        action="store_true",
+        default=None,
+        help="add a beneficial class to every family",
+    )
     b = p.add_argument_group("bootstrap (these also override a study file)")
-    b.add_argument("--bootstrap", type=int, metavar="B",
-                   help="block-bootstrap replicates (default 100; 0: none)")
+    b.add_argument(
+        "--bootstrap",
+        type=int,
+        metavar="B",
+        help="block-bootstrap replicates (default 100; 0: none)",
+    )
     b.add_argument("--seed", type=int, help="random seed of the bootstrap (default 1)")
     b.add_argument("--level", type=float, help="confidence level (default 0.95)")
-    b.add_argument("--workers", type=int, metavar="N",
-                   help="worker processes (default: the cores available)")
+    b.add_argument(
+        "--workers", type=int, metavar="N", help="worker processes (default: the cores available)"
+    )
     add_common_arguments(p)
     p.set_defaults(runner=run)
     return p
@@ -113,18 +167,25 @@ def study_from_args(args: argparse.Namespace) -> Study:
     """The :class:`~driftband.run.Study` of the parsed arguments (file or flags)."""
     from ..run import read_study, study_from_dict
 
-    given = {k: getattr(args, k) for k in (*_DATASET_FLAGS, *_FIT_FLAGS)
-             if getattr(args, k, None) is not None}
+    given = {
+        k: getattr(args, k)
+        for k in (*_DATASET_FLAGS, *_FIT_FLAGS)
+        if getattr(args, k, None) is not None
+    }
     if args.study is not None:
         if given:
             key = next(iter(given))
             flag = _DATASET_FLAGS.get(key) or _FIT_FLAGS[key]
-            raise OptionError(f"{flag}: with a study file, give the datasets and fit "
-                              f"options in the file ({args.study})")
+            raise OptionError(
+                f"{flag}: with a study file, give the datasets and fit "
+                f"options in the file ({args.study})"
+            )
         return read_study(args.study)
     if args.vcf is None or args.popmap is None:
-        raise OptionError("give a study file, or --vcf and --popmap with --sites or "
-                          "--fasta and --gff (see 'driftband run --help')")
+        raise OptionError(
+            "give a study file, or --vcf and --popmap with --sites or "
+            "--fasta and --gff (see 'driftband run --help')"
+        )
     from .fit import parse_bands
     from .spectra import parse_project
 
@@ -149,7 +210,14 @@ def run(args: argparse.Namespace) -> int:
 
     study = study_from_args(args)
     progress_on_stderr(args)
-    res = run_study(study, args.out_dir, force=args.force, replicates=args.bootstrap,
-                    workers=args.workers, seed=args.seed, level=args.level)
+    res = run_study(
+        study,
+        args.out_dir,
+        force=args.force,
+        replicates=args.bootstrap,
+        workers=args.workers,
+        seed=args.seed,
+        level=args.level,
+    )
     print(res.report, file=sys.stdout)
     return 0

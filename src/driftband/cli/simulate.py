@@ -62,69 +62,152 @@ driftband simulate --population pop:N=4000,n=30 --history 0:4000,500:1000 \\
 
 def add_parser(subparsers: Subparsers) -> None:
     """Register ``driftband simulate``."""
-    p = add_subcommand(subparsers, "simulate",
-                       help="forward Wright-Fisher simulation of a study (spectra, VCF)",
-                       description=DESCRIPTION, examples=EXAMPLES)
+    p = add_subcommand(
+        subparsers,
+        "simulate",
+        help="forward Wright-Fisher simulation of a study (spectra, VCF)",
+        description=DESCRIPTION,
+        examples=EXAMPLES,
+    )
     g = p.add_argument_group("populations and model")
-    g.add_argument("--population", action="append", default=[], metavar="NAME:N=SIZE,n=COPIES",
-                   help="a population (repeat for several); see the conventions above")
-    g.add_argument("--history", action="append", default=[], metavar="[NAME=]AGO:SIZE,...",
-                   help="piecewise-constant size history in generations before the sample")
-    g.add_argument("--theta", type=float, default=0.01,
-                   help="per-site theta = 4*Nref*mu (default: 0.01)")
-    g.add_argument("--sites", type=int, default=100_000,
-                   help="sites per class (default: 100000)")
-    g.add_argument("--sites-0fold", type=int, default=None, metavar="L",
-                   help="0fold sites (default: --sites)")
-    g.add_argument("--sites-4fold", type=int, default=None, metavar="L",
-                   help="4fold sites (default: --sites)")
-    g.add_argument("--dfe", default="gamma:shape=0.3,mean=200",
-                   help="DFE of 0fold mutations on S = 4*Nref*s: gamma:shape=B,mean=M (M = "
-                        "mean of -S), lognormal:mu=M,sigma=SD (of ln(-S)), fixed:S=X, or "
-                        "neutral (default: gamma:shape=0.3,mean=200)")
-    g.add_argument("--beneficial", default=None, metavar="p=P,S=S",
-                   help="a share P of 0fold mutations is beneficial with S > 0")
-    g.add_argument("--reference-size", type=float, default=None, metavar="NREF",
-                   help="Nref of the DFE's S axis and of --theta (default: the first "
-                        "population's ancestral size)")
-    g.add_argument("--burn-in", type=int, default=None, metavar="GENERATIONS",
-                   help="generations at the ancestral size before the history (default: "
-                        "10 x each population's ancestral size)")
-    g.add_argument("--divergence-generations", type=int, default=0, metavar="T",
-                   help="substitutions fixed in the last T generations count in entry n "
-                        "(time since the split from the outgroup; default: 0)")
-    g.add_argument("--blocks", type=int, default=100,
-                   help="equal blocks per class, the bootstrap units (default: 100)")
-    g.add_argument("--chromosomes", type=int, default=4,
-                   help="synthetic chromosomes of the layout (default: 4)")
-    g.add_argument("--gene-codons", type=int, default=300, metavar="CODONS",
-                   help="codons per gene at most, in the layout (default: 300)")
-    g.add_argument("--intergenic", type=int, default=300, metavar="BASES",
-                   help="non-coding bases before each gene (default: 300; raise it for a "
-                        "genome of realistic gene density)")
-    g.add_argument("--seed", type=int, default=None,
-                   help="random seed (default: drawn at random and recorded)")
+    g.add_argument(
+        "--population",
+        action="append",
+        default=[],
+        metavar="NAME:N=SIZE,n=COPIES",
+        help="a population (repeat for several); see the conventions above",
+    )
+    g.add_argument(
+        "--history",
+        action="append",
+        default=[],
+        metavar="[NAME=]AGO:SIZE,...",
+        help="piecewise-constant size history in generations before the sample",
+    )
+    g.add_argument(
+        "--theta", type=float, default=0.01, help="per-site theta = 4*Nref*mu (default: 0.01)"
+    )
+    g.add_argument("--sites", type=int, default=100_000, help="sites per class (default: 100000)")
+    g.add_argument(
+        "--sites-0fold", type=int, default=None, metavar="L", help="0fold sites (default: --sites)"
+    )
+    g.add_argument(
+        "--sites-4fold", type=int, default=None, metavar="L", help="4fold sites (default: --sites)"
+    )
+    g.add_argument(
+        "--dfe",
+        default="gamma:shape=0.3,mean=200",
+        help="DFE of 0fold mutations on S = 4*Nref*s: gamma:shape=B,mean=M (M = "
+        "mean of -S), lognormal:mu=M,sigma=SD (of ln(-S)), fixed:S=X, or "
+        "neutral (default: gamma:shape=0.3,mean=200)",
+    )
+    g.add_argument(
+        "--beneficial",
+        default=None,
+        metavar="p=P,S=S",
+        help="a share P of 0fold mutations is beneficial with S > 0",
+    )
+    g.add_argument(
+        "--reference-size",
+        type=float,
+        default=None,
+        metavar="NREF",
+        help="Nref of the DFE's S axis and of --theta (default: the first "
+        "population's ancestral size)",
+    )
+    g.add_argument(
+        "--burn-in",
+        type=int,
+        default=None,
+        metavar="GENERATIONS",
+        help="generations at the ancestral size before the history (default: "
+        "10 x each population's ancestral size)",
+    )
+    g.add_argument(
+        "--divergence-generations",
+        type=int,
+        default=0,
+        metavar="T",
+        help="substitutions fixed in the last T generations count in entry n "
+        "(time since the split from the outgroup; default: 0)",
+    )
+    g.add_argument(
+        "--blocks",
+        type=int,
+        default=100,
+        help="equal blocks per class, the bootstrap units (default: 100)",
+    )
+    g.add_argument(
+        "--chromosomes",
+        type=int,
+        default=4,
+        help="synthetic chromosomes of the layout (default: 4)",
+    )
+    g.add_argument(
+        "--gene-codons",
+        type=int,
+        default=300,
+        metavar="CODONS",
+        help="codons per gene at most, in the layout (default: 300)",
+    )
+    g.add_argument(
+        "--intergenic",
+        type=int,
+        default=300,
+        metavar="BASES",
+        help="non-coding bases before each gene (default: 300; raise it for a "
+        "genome of realistic gene density)",
+    )
+    g.add_argument(
+        "--seed", type=int, default=None, help="random seed (default: drawn at random and recorded)"
+    )
     o = p.add_argument_group("outputs")
-    o.add_argument("-o", "--output", default=None, metavar="SPECTRA.json",
-                   help="spectra file (JSON)")
-    o.add_argument("--tsv", default=None, metavar="SPECTRA.tsv",
-                   help="also write the long spectra table")
-    o.add_argument("--vcf", default=None, metavar="PREFIX",
-                   help="also write PREFIX.vcf.gz (+ .tbi), PREFIX.sites.bed, "
-                        "PREFIX.popmap.tsv")
-    o.add_argument("--genome", action="store_true",
-                   help="with --vcf, also write the reference PREFIX.fa (+ .fai) and its "
-                        "genes PREFIX.gff3 (real codons: classifying them gives back "
-                        "PREFIX.sites.bed); needs at least as many 0fold as 4fold sites")
-    o.add_argument("--missing", type=float, default=0.0, metavar="RATE",
-                   help="share of missing genotypes in the VCF (default: 0)")
-    o.add_argument("--outgroup", default=None, metavar="NAME:n=COPIES",
-                   help="add outgroup samples fixed for the ancestral allele")
-    o.add_argument("--ref-derived", type=float, default=0.0, metavar="FRACTION",
-                   help="share of VCF records whose REF is the derived base (INFO/AA stays "
-                        "correct; default: 0)")
-    o.add_argument("--depth", type=float, default=20.0,
-                   help="mean read depth of the VCF genotypes (default: 20)")
+    o.add_argument(
+        "-o", "--output", default=None, metavar="SPECTRA.json", help="spectra file (JSON)"
+    )
+    o.add_argument(
+        "--tsv", default=None, metavar="SPECTRA.tsv", help="also write the long spectra table"
+    )
+    o.add_argument(
+        "--vcf",
+        default=None,
+        metavar="PREFIX",
+        help="also write PREFIX.vcf.gz (+ .tbi), PREFIX.sites.bed, PREFIX.popmap.tsv",
+    )
+    o.add_argument(
+        "--genome",
+        action="store_true",
+        help="with --vcf, also write the reference PREFIX.fa (+ .fai) and its "
+        "genes PREFIX.gff3 (real codons: classifying them gives back "
+        "PREFIX.sites.bed); needs at least as many 0fold as 4fold sites",
+    )
+    o.add_argument(
+        "--missing",
+        type=float,
+        default=0.0,
+        metavar="RATE",
+        help="share of missing genotypes in the VCF (default: 0)",
+    )
+    o.add_argument(
+        "--outgroup",
+        default=None,
+        metavar="NAME:n=COPIES",
+        help="add outgroup samples fixed for the ancestral allele",
+    )
+    o.add_argument(
+        "--ref-derived",
+        type=float,
+        default=0.0,
+        metavar="FRACTION",
+        help="share of VCF records whose REF is the derived base (INFO/AA stays "
+        "correct; default: 0)",
+    )
+    o.add_argument(
+        "--depth",
+        type=float,
+        default=20.0,
+        help="mean read depth of the VCF genotypes (default: 20)",
+    )
     add_common_arguments(p)
     p.set_defaults(runner=run)
 
@@ -162,17 +245,24 @@ def run(args: argparse.Namespace) -> int:
         raise OptionError("nothing to write: give -o SPECTRA.json and/or --vcf PREFIX")
     pops = sim.build_populations(args.population, args.history)
     dfe = sim.parse_dfe(args.dfe, args.beneficial)
-    sites = {"0fold": args.sites_0fold if args.sites_0fold is not None else args.sites,
-             "4fold": args.sites_4fold if args.sites_4fold is not None else args.sites}
+    sites = {
+        "0fold": args.sites_0fold if args.sites_0fold is not None else args.sites,
+        "4fold": args.sites_4fold if args.sites_4fold is not None else args.sites,
+    }
     for c, L in sites.items():
         if L < 1:
             raise OptionError(f"--sites for {c}: {L} must be >= 1")
     outgroup = _parse_outgroup(args.outgroup)
     if args.genome and args.vcf is None:
         raise OptionError("--genome needs --vcf PREFIX (the genome is written beside it)")
-    vcf_opts = {"missing": args.missing, "outgroup": outgroup,
-                "ref_derived": args.ref_derived, "depth": args.depth, "genome": args.genome,
-                "command": shlex.join([os.path.basename(sys.argv[0]), *sys.argv[1:]])}
+    vcf_opts = {
+        "missing": args.missing,
+        "outgroup": outgroup,
+        "ref_derived": args.ref_derived,
+        "depth": args.depth,
+        "genome": args.genome,
+        "command": shlex.join([os.path.basename(sys.argv[0]), *sys.argv[1:]]),
+    }
     # Check every output (and the VCF options) before the simulation runs.
     outputs = [args.output, args.tsv]
     if args.vcf is not None:
@@ -183,20 +273,36 @@ def run(args: argparse.Namespace) -> int:
 
             sim.check_genome_option(np.asarray([sites["0fold"], sites["4fold"]]))
     from .._io import check_outputs
+
     check_outputs(outputs, args.force)
     options = {k: v for k, v in vars(args).items() if k not in ("runner", "subcommand")}
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always", DriftbandWarning)
         study = sim.simulate_study(
-            pops, dfe, theta=args.theta, sites=sites, blocks=args.blocks,
-            reference_size=args.reference_size, burn_in=args.burn_in,
-            divergence_generations=args.divergence_generations, seed=args.seed,
-            chromosomes=args.chromosomes, gene_codons=args.gene_codons,
-            intergenic=args.intergenic, options=options,
-            progress=None if args.quiet else _progress_printer())
-    for w in caught:                      # one line each on stderr
+            pops,
+            dfe,
+            theta=args.theta,
+            sites=sites,
+            blocks=args.blocks,
+            reference_size=args.reference_size,
+            burn_in=args.burn_in,
+            divergence_generations=args.divergence_generations,
+            seed=args.seed,
+            chromosomes=args.chromosomes,
+            gene_codons=args.gene_codons,
+            intergenic=args.intergenic,
+            options=options,
+            progress=None if args.quiet else _progress_printer(),
+        )
+    for w in caught:  # one line each on stderr
         log.warning("warning: %s", w.message)
-    written = sim.write_study(study, args.output, args.tsv, args.vcf, force=args.force,
-                              **(vcf_opts if args.vcf is not None else {}))
+    written = sim.write_study(
+        study,
+        args.output,
+        args.tsv,
+        args.vcf,
+        force=args.force,
+        **(vcf_opts if args.vcf is not None else {}),
+    )
     log.info("seed %d; wrote %s", study.seed, ", ".join(written.values()))
     return 0

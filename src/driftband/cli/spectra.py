@@ -41,51 +41,104 @@ driftband spectra calls.vcf.gz --popmap pops.tsv --sites classes.bed \\
 
 def add_parser(subparsers: Subparsers) -> argparse.ArgumentParser:
     """Register the ``spectra`` subcommand."""
-    p = add_subcommand(subparsers, "spectra", help="VCF -> per-population site frequency "
-                       "spectra (JSON + TSV)", description=DESCRIPTION, examples=EXAMPLES)
-    p.add_argument("vcf", metavar="VCF",
-                   help="VCF (bgzipped + indexed, bgzipped, gzipped or plain), BCF, or - "
-                        "for standard input")
-    p.add_argument("--popmap", required=True, metavar="FILE",
-                   help="TSV sample<TAB>population (header optional)")
-    p.add_argument("--sites", required=True, metavar="BED",
-                   help="BED4 of site classes (class in column 4, e.g. 0fold, 4fold)")
-    p.add_argument("--callable", dest="callable_mask", metavar="BED",
-                   help="BED of callable sites; classes are intersected with it")
-    p.add_argument("--ancestral", default="aa", metavar="aa|fold|outgroup:POP",
-                   help="polarisation: INFO/AA (default), fold (minor-allele spectra), or "
-                        "the alleles of outgroup population POP of the popmap")
-    p.add_argument("--project", action="append", metavar="N|POP=N",
-                   help="project every population (N) or one (POP=N, repeatable) to N gene "
-                        "copies (default: the largest N called at >= 90%% of usable records)")
+    p = add_subcommand(
+        subparsers,
+        "spectra",
+        help="VCF -> per-population site frequency spectra (JSON + TSV)",
+        description=DESCRIPTION,
+        examples=EXAMPLES,
+    )
+    p.add_argument(
+        "vcf",
+        metavar="VCF",
+        help="VCF (bgzipped + indexed, bgzipped, gzipped or plain), BCF, or - for standard input",
+    )
+    p.add_argument(
+        "--popmap",
+        required=True,
+        metavar="FILE",
+        help="TSV sample<TAB>population (header optional)",
+    )
+    p.add_argument(
+        "--sites",
+        required=True,
+        metavar="BED",
+        help="BED4 of site classes (class in column 4, e.g. 0fold, 4fold)",
+    )
+    p.add_argument(
+        "--callable",
+        dest="callable_mask",
+        metavar="BED",
+        help="BED of callable sites; classes are intersected with it",
+    )
+    p.add_argument(
+        "--ancestral",
+        default="aa",
+        metavar="aa|fold|outgroup:POP",
+        help="polarisation: INFO/AA (default), fold (minor-allele spectra), or "
+        "the alleles of outgroup population POP of the popmap",
+    )
+    p.add_argument(
+        "--project",
+        action="append",
+        metavar="N|POP=N",
+        help="project every population (N) or one (POP=N, repeatable) to N gene "
+        "copies (default: the largest N called at >= 90%% of usable records)",
+    )
     g = p.add_mutually_exclusive_group()
-    g.add_argument("--block-size", type=int, default=100_000, metavar="BP",
-                   help="length of the bootstrap blocks (default 100000)")
+    g.add_argument(
+        "--block-size",
+        type=int,
+        default=100_000,
+        metavar="BP",
+        help="length of the bootstrap blocks (default 100000)",
+    )
     g.add_argument("--blocks", metavar="BED", help="BED of blocks (e.g. genes) instead")
-    p.add_argument("--regions", nargs="+", metavar="REGION",
-                   help="only these regions: CHROM, CHROM:START-END (1-based, inclusive) or "
-                        "BED files")
-    p.add_argument("--min-gq", type=int, metavar="Q",
-                   help="set genotypes with GQ < Q (or no GQ) to missing")
-    p.add_argument("--min-dp", type=int, metavar="D",
-                   help="set genotypes with DP < D (or no DP) to missing")
-    p.add_argument("--pass-only", action="store_true",
-                   help="keep only records whose FILTER is PASS or .")
-    p.add_argument("-o", "--output", required=True, metavar="JSON",
-                   help="spectra file (JSON) to write")
-    p.add_argument("--tsv", metavar="TSV",
-                   help="also write the long table population, class, n, folded, count, sites")
-    x = p.add_argument_group("parallel counting (indexed VCF/BCF; results do not depend on "
-                             "these)")
-    x.add_argument("--workers", type=int, default=None, metavar="N",
-                   help="local worker processes (default: the cores available)")
-    x.add_argument("--scheduler", metavar="ADDRESS",
-                   help="count on the dask.distributed scheduler at ADDRESS, e.g. "
-                        "tcp://HOST:8786 (needs driftband[cluster]; every worker must see the "
-                        "VCF at the same path; see the README, 'Running on a cluster')")
-    x.add_argument("--region-size", type=int, metavar="BP",
-                   help="bases per counting task; a worker holds one task's records at a "
-                        "time (default 5000000)")
+    p.add_argument(
+        "--regions",
+        nargs="+",
+        metavar="REGION",
+        help="only these regions: CHROM, CHROM:START-END (1-based, inclusive) or BED files",
+    )
+    p.add_argument(
+        "--min-gq", type=int, metavar="Q", help="set genotypes with GQ < Q (or no GQ) to missing"
+    )
+    p.add_argument(
+        "--min-dp", type=int, metavar="D", help="set genotypes with DP < D (or no DP) to missing"
+    )
+    p.add_argument(
+        "--pass-only", action="store_true", help="keep only records whose FILTER is PASS or ."
+    )
+    p.add_argument(
+        "-o", "--output", required=True, metavar="JSON", help="spectra file (JSON) to write"
+    )
+    p.add_argument(
+        "--tsv",
+        metavar="TSV",
+        help="also write the long table population, class, n, folded, count, sites",
+    )
+    x = p.add_argument_group("parallel counting (indexed VCF/BCF; results do not depend on these)")
+    x.add_argument(
+        "--workers",
+        type=int,
+        default=None,
+        metavar="N",
+        help="local worker processes (default: the cores available)",
+    )
+    x.add_argument(
+        "--scheduler",
+        metavar="ADDRESS",
+        help="count on the dask.distributed scheduler at ADDRESS, e.g. "
+        "tcp://HOST:8786 (needs driftband[cluster]; every worker must see the "
+        "VCF at the same path; see the README, 'Running on a cluster')",
+    )
+    x.add_argument(
+        "--region-size",
+        type=int,
+        metavar="BP",
+        help="bases per counting task; a worker holds one task's records at a "
+        "time (default 5000000)",
+    )
     add_common_arguments(p)
     p.set_defaults(runner=run)
     return p
@@ -102,8 +155,7 @@ def parse_project(items: list[str] | None) -> int | dict[str, int] | None:
         try:
             n = int(val)
         except ValueError:
-            raise OptionError(f"--project {it!r}: expected N or POP=N with an integer N") \
-                from None
+            raise OptionError(f"--project {it!r}: expected N or POP=N with an integer N") from None
         if key in out:
             what = "all populations" if key == "*" else key
             raise OptionError(f"--project given twice for {what}")
@@ -134,8 +186,7 @@ class _Progress:
             bar = f"[{'#' * k}{'.' * (w - k)}] {done}/{total} regions"
         else:
             bar = "[streaming]"
-        sys.stderr.write(f"\rdriftband spectra: {bar} {records:,} records "
-                         f"{now - self.t0:.0f}s ")
+        sys.stderr.write(f"\rdriftband spectra: {bar} {records:,} records {now - self.t0:.0f}s ")
         sys.stderr.flush()
 
     def close(self) -> None:
@@ -157,14 +208,24 @@ def run(args: argparse.Namespace) -> int:
     project = parse_project(args.project)
     bar = _Progress(not args.quiet)
     try:
-        ss = build_spectra(args.vcf, args.popmap, args.sites,
-                           callable_mask=args.callable_mask, ancestral=args.ancestral,
-                           project=project, block_size=args.block_size, blocks=args.blocks,
-                           regions=args.regions, min_gq=args.min_gq, min_dp=args.min_dp,
-                           pass_only=args.pass_only, progress=bar,
-                           region_size=(DEFAULT_REGION_SIZE if args.region_size is None
-                                        else args.region_size), workers=args.workers,
-                           scheduler=args.scheduler)
+        ss = build_spectra(
+            args.vcf,
+            args.popmap,
+            args.sites,
+            callable_mask=args.callable_mask,
+            ancestral=args.ancestral,
+            project=project,
+            block_size=args.block_size,
+            blocks=args.blocks,
+            regions=args.regions,
+            min_gq=args.min_gq,
+            min_dp=args.min_dp,
+            pass_only=args.pass_only,
+            progress=bar,
+            region_size=(DEFAULT_REGION_SIZE if args.region_size is None else args.region_size),
+            workers=args.workers,
+            scheduler=args.scheduler,
+        )
     finally:
         bar.close()
     write_spectra_json(ss, args.output, force=args.force)
@@ -173,6 +234,5 @@ def run(args: argparse.Namespace) -> int:
     if not args.quiet:
         for line in summary_lines(ss):
             print(line, file=sys.stderr)
-        print(f"wrote {args.output}" + (f" and {args.tsv}" if args.tsv else ""),
-              file=sys.stderr)
+        print(f"wrote {args.output}" + (f" and {args.tsv}" if args.tsv else ""), file=sys.stderr)
     return 0

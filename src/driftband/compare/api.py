@@ -29,9 +29,12 @@ __all__ = ["adjust_pvalues", "check_compare_settings", "compare_fits", "resolve_
 log = logging.getLogger("driftband")
 
 
-def resolve_pairs(tokens: Sequence[str] | None, names: Sequence[str],
-                  source: OptionSource = COMMAND_LINE,
-                  holder: str = "the fit files hold") -> list[tuple[str, str]]:
+def resolve_pairs(
+    tokens: Sequence[str] | None,
+    names: Sequence[str],
+    source: OptionSource = COMMAND_LINE,
+    holder: str = "the fit files hold",
+) -> list[tuple[str, str]]:
     """Pairs given as ``A:B`` checked against the population names; every pair if none.
 
     Parameters
@@ -63,15 +66,19 @@ def resolve_pairs(tokens: Sequence[str] | None, names: Sequence[str],
             raise source.error("pairs", f"{tok!r}: write pairs as A:B")
         for nm in (a, b):
             if nm not in names:
-                raise source.error("pairs", f"{tok!r}: no population {nm!r} ({holder} "
-                                            f"{', '.join(names)})")
+                raise source.error(
+                    "pairs", f"{tok!r}: no population {nm!r} ({holder} {', '.join(names)})"
+                )
         pairs.append((a, b))
     return pairs
 
 
-def check_compare_settings(tests: Sequence[str], adjust: str,
-                           pairs: Sequence[str] | None = None,
-                           source: OptionSource = COMMAND_LINE) -> None:
+def check_compare_settings(
+    tests: Sequence[str],
+    adjust: str,
+    pairs: Sequence[str] | None = None,
+    source: OptionSource = COMMAND_LINE,
+) -> None:
     """Check the tests, the adjustment method and the form of the pairs before any work.
 
     Raises
@@ -83,14 +90,18 @@ def check_compare_settings(tests: Sequence[str], adjust: str,
 
     bad = [t for t in tests if t not in COMPARE_TESTS]
     if bad:
-        raise source.error("tests", f"unknown test {bad[0]!r}; choose from "
-                                    f"{', '.join(COMPARE_TESTS)}")
+        raise source.error(
+            "tests", f"unknown test {bad[0]!r}; choose from {', '.join(COMPARE_TESTS)}"
+        )
     try:
         multipletests([0.5, 0.5], method=adjust)
     except ValueError:
-        raise source.error("adjust", f"{adjust!r} is not a method of "
-                                     "statsmodels.stats.multitest (e.g. holm, fdr_bh, "
-                                     "bonferroni)") from None
+        raise source.error(
+            "adjust",
+            f"{adjust!r} is not a method of "
+            "statsmodels.stats.multitest (e.g. holm, fdr_bh, "
+            "bonferroni)",
+        ) from None
     for tok in pairs or []:
         a, sep, b = tok.partition(":")
         if not sep or not a or not b:
@@ -123,12 +134,20 @@ def _compare_task(task: tuple[Any, ...]) -> list[ComparisonRow]:
     return compare_pair(*task)
 
 
-def compare_fits(fits: Sequence[PopulationFit], options: FitOptions, model: str, *,
-                 pairs: Sequence[str] | None = None, tests: Sequence[str] = COMPARE_TESTS,
-                 relative_mu: dict[str, float] | None = None, adjust: str = "holm",
-                 source: OptionSource = COMMAND_LINE, holder: str = "the fit files hold",
-                 require_bootstrap: bool = False,
-                 workers: int | None = 1) -> list[ComparisonRow]:
+def compare_fits(
+    fits: Sequence[PopulationFit],
+    options: FitOptions,
+    model: str,
+    *,
+    pairs: Sequence[str] | None = None,
+    tests: Sequence[str] = COMPARE_TESTS,
+    relative_mu: dict[str, float] | None = None,
+    adjust: str = "holm",
+    source: OptionSource = COMMAND_LINE,
+    holder: str = "the fit files hold",
+    require_bootstrap: bool = False,
+    workers: int | None = 1,
+) -> list[ComparisonRow]:
     """Every requested test for every pair of populations, p-values adjusted across pairs.
 
     Parameters
@@ -172,26 +191,30 @@ def compare_fits(fits: Sequence[PopulationFit], options: FitOptions, model: str,
     mu = dict(relative_mu or {})
     for p, v in mu.items():
         if p not in by_name:
-            raise source.error("relative_mutation_rate",
-                               f"{p}=...: no population {p!r} ({holder} {', '.join(names)})")
+            raise source.error(
+                "relative_mutation_rate",
+                f"{p}=...: no population {p!r} ({holder} {', '.join(names)})",
+            )
         if not v > 0:
             raise source.error("relative_mutation_rate", f"{p}={v}: must be > 0")
     chosen = resolve_pairs(pairs, names, source, holder)
     if not chosen:
-        raise InputError(f"compare needs at least two populations; {holder} "
-                         f"{', '.join(names) or 'none'}")
+        raise InputError(
+            f"compare needs at least two populations; {holder} {', '.join(names) or 'none'}"
+        )
     dfe = options.model(model)
     wanted = [t for t in COMPARE_TESTS if t in tests]
     if require_bootstrap and "neutral_share_difference" in wanted:
         for nm in dict.fromkeys(n for pair in chosen for n in pair):
             if by_name[nm].bootstrap is None:
-                raise InputError(f"population {nm!r}: the neutral-share difference needs "
-                                 "bootstrap replicates; rerun 'driftband fit' with "
-                                 "--bootstrap B")
+                raise InputError(
+                    f"population {nm!r}: the neutral-share difference needs "
+                    "bootstrap replicates; rerun 'driftband fit' with "
+                    "--bootstrap B"
+                )
     for a, b in chosen:
         log.info("compare: %s and %s (%s model; %s)", a, b, dfe.name, ", ".join(wanted))
-    tasks = [(by_name[a], by_name[b], dfe, options, mu, (t,)) for a, b in chosen
-             for t in wanted]
+    tasks = [(by_name[a], by_name[b], dfe, options, mu, (t,)) for a, b in chosen for t in wanted]
     if workers is None or workers > 1 and len(tasks) > 1:
         parts = parallel_map(_compare_task, tasks, workers=workers, name="compare")
     else:
@@ -200,6 +223,8 @@ def compare_fits(fits: Sequence[PopulationFit], options: FitOptions, model: str,
     rows = [r for part in parts for r in part]
     adjust_pvalues(rows, adjust)
     if any("no bootstrap" in r.note for r in rows):
-        log.warning("neutral_share_difference has no interval or p-value: the fits have no "
-                    "bootstrap (rerun 'driftband fit' with --bootstrap B)")
+        log.warning(
+            "neutral_share_difference has no interval or p-value: the fits have no "
+            "bootstrap (rerun 'driftband fit' with --bootstrap B)"
+        )
     return rows

@@ -45,7 +45,6 @@ from ..spectra.stats import pi_theta_counts
 __all__ = ["ComparisonRow", "compare_pair", "neutral_pi", "scale_shift"]
 
 
-
 @dataclass
 class ComparisonRow:
     """One row of ``compare.tsv``."""
@@ -76,8 +75,10 @@ def scale_shift(model: DfeModel, log_rho: float) -> np.ndarray:
     elif model.family == "lognormal":
         d = [log_rho, 0.0]
     else:
-        raise OptionError("the 'only Ne differs' test needs a DFE family with a scale "
-                          "parameter (gamma or lognormal), not 'discrete'")
+        raise OptionError(
+            "the 'only Ne differs' test needs a DFE family with a scale "
+            "parameter (gamma or lognormal), not 'discrete'"
+        )
     if model.beneficial:
         d += [0.0, log_rho]
     return np.array(d)
@@ -89,8 +90,9 @@ def neutral_pi(data: SpectrumPair) -> float:
     return pi_theta_counts(sfs, data.n, data.folded)[0] / data.sites_neutral
 
 
-def _joint_fit(objs: list[Objective], model: DfeModel, shifts: list[np.ndarray],
-               starts: list[np.ndarray]) -> tuple[float, np.ndarray, bool]:
+def _joint_fit(
+    objs: list[Objective], model: DfeModel, shifts: list[np.ndarray], starts: list[np.ndarray]
+) -> tuple[float, np.ndarray, bool]:
     """Maximise Σ log L_k(x + shift_k, ε_k) over a shared DFE vector x and per-pop ε.
 
     Returns the maximum, the maximiser and the optimiser's convergence flag.
@@ -103,7 +105,7 @@ def _joint_fit(objs: list[Objective], model: DfeModel, shifts: list[np.ndarray],
         x = z[:k]
         tot, j = 0.0, k
         for o, sh, ne in zip(objs, shifts, n_eps):
-            v = np.concatenate([x + sh, z[j:j + ne]])
+            v = np.concatenate([x + sh, z[j : j + ne]])
             j += ne
             tot += o(v)
             if tot >= 1e299:
@@ -114,8 +116,9 @@ def _joint_fit(objs: list[Objective], model: DfeModel, shifts: list[np.ndarray],
     return -opt.fun, opt.x, opt.success
 
 
-def _starts(model: DfeModel, fa: FitResult, fb: FitResult, objs: list[Objective],
-            shifts: list[np.ndarray]) -> list[np.ndarray]:
+def _starts(
+    model: DfeModel, fa: FitResult, fb: FitResult, objs: list[Objective], shifts: list[np.ndarray]
+) -> list[np.ndarray]:
     """Joint starts: each population's own estimate (shifted back) and the model grid."""
     k = model.n_free
     xa, xb = (np.asarray(f.x, dtype=float) for f in (fa, fb))
@@ -131,11 +134,15 @@ def _not_converged(rows: list[ComparisonRow], converged: bool) -> None:
         rows[-1].note += "; the joint fit did not converge (treat the test with caution)"
 
 
-def compare_pair(pop_a: PopulationFit, pop_b: PopulationFit, model: DfeModel,
-                 options: FitOptions, relative_mu: dict[str, float] | None = None,
-                 tests: tuple[str, ...] = COMPARE_TESTS,
-                 expectations: dict[int, DfeExpectation] | None = None,
-                 ) -> list[ComparisonRow]:
+def compare_pair(
+    pop_a: PopulationFit,
+    pop_b: PopulationFit,
+    model: DfeModel,
+    options: FitOptions,
+    relative_mu: dict[str, float] | None = None,
+    tests: tuple[str, ...] = COMPARE_TESTS,
+    expectations: dict[int, DfeExpectation] | None = None,
+) -> list[ComparisonRow]:
     """Run the requested tests for one pair of populations.
 
     Parameters
@@ -160,17 +167,18 @@ def compare_pair(pop_a: PopulationFit, pop_b: PopulationFit, model: DfeModel,
     name_a, name_b = pop_a.population, pop_b.population
     for pf in (pop_a, pop_b):
         if model.name not in pf.fits:
-            raise InputError(f"population {pf.population!r} has no fit of model "
-                             f"{model.name!r} (it has {', '.join(pf.fits)}); choose one "
-                             "with --model")
+            raise InputError(
+                f"population {pf.population!r} has no fit of model "
+                f"{model.name!r} (it has {', '.join(pf.fits)}); choose one "
+                "with --model"
+            )
     fa, fb = pop_a.fits[model.name], pop_b.fits[model.name]
     edges = options.edges_nes
     da, db = pop_a.data, pop_b.data
 
     def objective(d: SpectrumPair) -> Objective:
         ex = expectations.setdefault(d.n, DfeExpectation(d.n))
-        return Objective(d, model, eps=options.eps, equilibrium=options.equilibrium,
-                         expectation=ex)
+        return Objective(d, model, eps=options.eps, equilibrium=options.equilibrium, expectation=ex)
 
     ll_sep = float(fa.loglik) + float(fb.loglik)
     rows: list[ComparisonRow] = []
@@ -181,12 +189,20 @@ def compare_pair(pop_a: PopulationFit, pop_b: PopulationFit, model: DfeModel,
         ll_joint, z, ok = _joint_fit(objs, model, zero, _starts(model, fa, fb, objs, zero))
         stat = max(0.0, 2.0 * (ll_sep - ll_joint))
         shared = model.to_dfe(z[:df])
-        rows.append(ComparisonRow(
-            name_a, name_b, "shared_dfe_lrt", model.name, stat, df,
-            float(stats.chi2.sf(stat, df)),
-            estimate=float(band_shares(shared, edges)[0]),
-            extra={"loglik_separate": ll_sep, "loglik_shared": ll_joint},
-            note="estimate: neutral-band share under the shared DFE"))
+        rows.append(
+            ComparisonRow(
+                name_a,
+                name_b,
+                "shared_dfe_lrt",
+                model.name,
+                stat,
+                df,
+                float(stats.chi2.sf(stat, df)),
+                estimate=float(band_shares(shared, edges)[0]),
+                extra={"loglik_separate": ll_sep, "loglik_shared": ll_joint},
+                note="estimate: neutral-band share under the shared DFE",
+            )
+        )
         _not_converged(rows, ok)
     if "neutral_share_difference" in tests:
         rows.append(_share_difference(pop_a, pop_b, model.name))
@@ -200,27 +216,49 @@ def compare_pair(pop_a: PopulationFit, pop_b: PopulationFit, model: DfeModel,
         stat = max(0.0, 2.0 * (ll_sep - ll_c))
         pred_b = float(band_shares(model.to_dfe(z[:df] + shift_b), edges)[0])
         pred_a = float(band_shares(model.to_dfe(z[:df]), edges)[0])
-        assumption = ("equal mutation rates" if not mu else
-                      "relative mutation rates " + ", ".join(f"{k}={v:g}" for k, v in mu.items()))
-        rows.append(ComparisonRow(
-            name_a, name_b, "ne_only_lrt", model.name, stat, df,
-            float(stats.chi2.sf(stat, df)), estimate=float(rho),
-            extra={"ne_ratio": float(rho), "predicted_share_a": pred_a,
-                   "predicted_share_b": pred_b, "observed_share_a": float(fa.shares[0]),
-                   "observed_share_b": float(fb.shares[0]), "loglik_constrained": ll_c,
-                   "loglik_separate": ll_sep},
-            note=f"estimate: Ne_B/Ne_A from neutral pi ratio, assuming {assumption}"))
+        assumption = (
+            "equal mutation rates"
+            if not mu
+            else "relative mutation rates " + ", ".join(f"{k}={v:g}" for k, v in mu.items())
+        )
+        rows.append(
+            ComparisonRow(
+                name_a,
+                name_b,
+                "ne_only_lrt",
+                model.name,
+                stat,
+                df,
+                float(stats.chi2.sf(stat, df)),
+                estimate=float(rho),
+                extra={
+                    "ne_ratio": float(rho),
+                    "predicted_share_a": pred_a,
+                    "predicted_share_b": pred_b,
+                    "observed_share_a": float(fa.shares[0]),
+                    "observed_share_b": float(fb.shares[0]),
+                    "loglik_constrained": ll_c,
+                    "loglik_separate": ll_sep,
+                },
+                note=f"estimate: Ne_B/Ne_A from neutral pi ratio, assuming {assumption}",
+            )
+        )
         _not_converged(rows, ok)
     return rows
 
 
-def _share_difference(pop_a: PopulationFit, pop_b: PopulationFit,
-                      model: str) -> ComparisonRow:
+def _share_difference(pop_a: PopulationFit, pop_b: PopulationFit, model: str) -> ComparisonRow:
     """share_B − share_A with its paired-bootstrap interval and p-value."""
     sa = float(pop_a.fits[model].shares[0])
     sb = float(pop_b.fits[model].shares[0])
-    row = ComparisonRow(pop_a.population, pop_b.population, "neutral_share_difference",
-                        model, estimate=sb - sa, extra={"share_a": sa, "share_b": sb})
+    row = ComparisonRow(
+        pop_a.population,
+        pop_b.population,
+        "neutral_share_difference",
+        model,
+        estimate=sb - sa,
+        extra={"share_a": sa, "share_b": sb},
+    )
     ba, bb = pop_a.model_bootstrap(model), pop_b.model_bootstrap(model)
     if ba is None or bb is None or not ba.shares.size or not bb.shares.size:
         row.note = "no bootstrap in the fit files: rerun 'driftband fit' with --bootstrap B"
@@ -237,6 +275,8 @@ def _share_difference(pop_a: PopulationFit, pop_b: PopulationFit,
     row.statistic = float((sb - sa) / np.std(d, ddof=1)) if d.size > 1 else np.nan
     row.note = f"bootstrap: {d.size} replicates, level {level:g}"
     if tail == 0:
-        row.note += (f"; no replicate crossed zero, so p is at the floor "
-                     f"2/(B+1) = {row.p_value:.2g} of this B")
+        row.note += (
+            f"; no replicate crossed zero, so p is at the floor "
+            f"2/(B+1) = {row.p_value:.2g} of this B"
+        )
     return row

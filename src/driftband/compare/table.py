@@ -11,13 +11,28 @@ from .pair import ComparisonRow
 __all__ = ["COLUMNS", "write_compare_tsv"]
 
 #: Columns of ``compare.tsv``.
-COLUMNS = ["population_a", "population_b", "test", "model", "statistic", "df", "p_value",
-           "p_adjusted", "estimate", "ci_low", "ci_high", "ne_ratio", "predicted_share_b",
-           "observed_share_b", "note"]
+COLUMNS = [
+    "population_a",
+    "population_b",
+    "test",
+    "model",
+    "statistic",
+    "df",
+    "p_value",
+    "p_adjusted",
+    "estimate",
+    "ci_low",
+    "ci_high",
+    "ne_ratio",
+    "predicted_share_b",
+    "observed_share_b",
+    "note",
+]
 
 
-def write_compare_tsv(rows: list[ComparisonRow], path: str | os.PathLike,
-                      force: bool = False) -> None:
+def write_compare_tsv(
+    rows: list[ComparisonRow], path: str | os.PathLike, force: bool = False
+) -> None:
     """Write ``compare.tsv`` (columns :data:`COLUMNS`) atomically.
 
     Parameters

@@ -39,8 +39,14 @@ def mk_table(data: SpectrumPair) -> dict[str, float]:
     dn, ds = float(data.fixed_selected or 0.0), float(data.fixed_neutral or 0.0)
     table = np.rint([[dn, ds], [pn, ps]]).astype(int)
     odds, p = stats.fisher_exact(table)
-    return {"P_N": pn, "P_S": ps, "D_N": dn, "D_S": ds,
-            "fisher_odds_ratio": float(odds), "fisher_p": float(p)}
+    return {
+        "P_N": pn,
+        "P_S": ps,
+        "D_N": dn,
+        "D_S": ds,
+        "fisher_odds_ratio": float(odds),
+        "fisher_p": float(p),
+    }
 
 
 def alpha_classic(pn: float, ps: float, dn: float, ds: float) -> float:
@@ -86,18 +92,32 @@ def alpha_asymptotic(data: SpectrumPair, x_min: float = 0.1) -> dict[str, float 
     w = np.sqrt(data.neutral[ok])
     lin = np.polyfit(xs, ys, 1, w=w)
     lin_rss = float(np.sum((w * (np.polyval(lin, xs) - ys)) ** 2))
-    out: dict[str, float | str] = {"alpha": float(np.polyval(lin, 1.0)), "fit": "linear",
-                                   "slope": float(lin[0]), "intercept": float(lin[1])}
+    out: dict[str, float | str] = {
+        "alpha": float(np.polyval(lin, 1.0)),
+        "fit": "linear",
+        "slope": float(lin[0]),
+        "intercept": float(lin[1]),
+    }
     try:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")
-            p, _ = optimize.curve_fit(lambda t, a, b, c: a + b * np.exp(-c * t), xs, ys,
-                                      p0=(ys[-1], ys[0] - ys[-1], 5.0), sigma=1 / w,
-                                      maxfev=5000)
+            p, _ = optimize.curve_fit(
+                lambda t, a, b, c: a + b * np.exp(-c * t),
+                xs,
+                ys,
+                p0=(ys[-1], ys[0] - ys[-1], 5.0),
+                sigma=1 / w,
+                maxfev=5000,
+            )
         rss = float(np.sum((w * (p[0] + p[1] * np.exp(-p[2] * xs) - ys)) ** 2))
         if np.all(np.isfinite(p)) and p[2] > 0 and rss < lin_rss:
-            out = {"alpha": float(p[0] + p[1] * np.exp(-p[2])), "fit": "exponential",
-                   "a": float(p[0]), "b": float(p[1]), "c": float(p[2])}
+            out = {
+                "alpha": float(p[0] + p[1] * np.exp(-p[2])),
+                "fit": "exponential",
+                "a": float(p[0]),
+                "b": float(p[1]),
+                "c": float(p[2]),
+            }
     except (RuntimeError, ValueError):
         pass
     return out
@@ -116,8 +136,11 @@ def alpha_dfe(data: SpectrumPair, fixation_ratio: float) -> dict[str, float]:
     if dn <= 0 or ds <= 0:
         return {"alpha": float("nan"), "omega_a": float("nan"), "omega": float("nan")}
     d_n, d_s = dn / data.sites_selected, ds / data.sites_neutral
-    return {"alpha": float(1.0 - fixation_ratio * d_s / d_n),
-            "omega_a": float(d_n / d_s - fixation_ratio), "omega": float(d_n / d_s)}
+    return {
+        "alpha": float(1.0 - fixation_ratio * d_s / d_n),
+        "omega_a": float(d_n / d_s - fixation_ratio),
+        "omega": float(d_n / d_s),
+    }
 
 
 def adaptive_summary(data: SpectrumPair, fixation_ratio: float) -> dict[str, Any] | None:
@@ -125,7 +148,9 @@ def adaptive_summary(data: SpectrumPair, fixation_ratio: float) -> dict[str, Any
     if data.folded or not (data.fixed_neutral or data.fixed_selected):
         return None
     mk = mk_table(data)
-    return {"mk": mk,
-            "alpha_classic": alpha_classic(mk["P_N"], mk["P_S"], mk["D_N"], mk["D_S"]),
-            "alpha_asymptotic": alpha_asymptotic(data),
-            "alpha_dfe": alpha_dfe(data, fixation_ratio)}
+    return {
+        "mk": mk,
+        "alpha_classic": alpha_classic(mk["P_N"], mk["P_S"], mk["D_N"], mk["D_S"]),
+        "alpha_asymptotic": alpha_asymptotic(data),
+        "alpha_dfe": alpha_dfe(data, fixation_ratio),
+    }

@@ -24,8 +24,7 @@ from .mle import FitResult, fit_model
 from .options import FitOptions
 from .results import PopulationFit
 
-__all__ = ["LabelledSpectra", "block_spectra", "fit_population", "fit_spectra",
-           "pool_populations"]
+__all__ = ["LabelledSpectra", "block_spectra", "fit_population", "fit_spectra", "pool_populations"]
 
 log = logging.getLogger("driftband")
 
@@ -69,8 +68,11 @@ def block_spectra(spectra_sets: list[LabelledSpectra]) -> dict[str, Any]:
     dict of str to PopulationSpectra
         What :func:`driftband.fit.bootstrap.bootstrap_fits` resamples.
     """
-    return {ls.population_name(n): pop for ls in spectra_sets
-            for n, pop in ls.spectra.populations.items()}
+    return {
+        ls.population_name(n): pop
+        for ls in spectra_sets
+        for n, pop in ls.spectra.populations.items()
+    }
 
 
 @functools.lru_cache(maxsize=8)
@@ -79,8 +81,12 @@ def _expectation(n: int) -> DfeExpectation:
     return DfeExpectation(n)
 
 
-def fit_population(data: SpectrumPair, options: FitOptions, population: str = "",
-                   expectation: DfeExpectation | None = None) -> PopulationFit:
+def fit_population(
+    data: SpectrumPair,
+    options: FitOptions,
+    population: str = "",
+    expectation: DfeExpectation | None = None,
+) -> PopulationFit:
     """Fit every model of ``options`` to one population.
 
     Parameters
@@ -99,15 +105,23 @@ def fit_population(data: SpectrumPair, options: FitOptions, population: str = ""
     fits = {}
     for m in options.models:
         log.info("fitting %s to %s (n=%d)", m.name, population, data.n)
-        fits[m.name] = fit_model(data, m, population=population, eps=options.eps,
-                                 equilibrium=options.equilibrium,
-                                 edges_nes=options.edges_nes, expectation=ex)
+        fits[m.name] = fit_model(
+            data,
+            m,
+            population=population,
+            eps=options.eps,
+            equilibrium=options.equilibrium,
+            edges_nes=options.edges_nes,
+            expectation=ex,
+        )
     return PopulationFit(population, data, fits)
 
 
-def pool_populations(spectra_sets: list[LabelledSpectra], options: FitOptions,
-                     populations: list[str] | None = None,
-                     ) -> list[tuple[str, str, SpectrumPair]]:
+def pool_populations(
+    spectra_sets: list[LabelledSpectra],
+    options: FitOptions,
+    populations: list[str] | None = None,
+) -> list[tuple[str, str, SpectrumPair]]:
     """Collect ``(name, dataset, SpectrumPair)`` from several spectra sets.
 
     Parameters
@@ -132,19 +146,31 @@ def pool_populations(spectra_sets: list[LabelledSpectra], options: FitOptions,
         for name, pop in ls.spectra.populations.items():
             full = ls.population_name(name)
             if full in seen:
-                raise InputError(f"population {full!r} is in both {seen[full]} and "
-                                 f"{ls.path}; give the files labels, e.g. --label "
-                                 f"{ls.path}=NAME", ls.path)
+                raise InputError(
+                    f"population {full!r} is in both {seen[full]} and "
+                    f"{ls.path}; give the files labels, e.g. --label "
+                    f"{ls.path}=NAME",
+                    ls.path,
+                )
             seen[full] = ls.path
             if populations is not None and full not in populations:
                 continue
-            out.append((full, ls.dataset_name, SpectrumPair.from_population(
-                pop, options.neutral, options.selected, path=ls.path)))
+            out.append(
+                (
+                    full,
+                    ls.dataset_name,
+                    SpectrumPair.from_population(
+                        pop, options.neutral, options.selected, path=ls.path
+                    ),
+                )
+            )
     if populations is not None:
         missing = [p for p in populations if p not in seen]
         if missing:
-            raise InputError(f"population {missing[0]!r} is not in the spectra (they hold "
-                             f"{', '.join(sorted(seen))})")
+            raise InputError(
+                f"population {missing[0]!r} is not in the spectra (they hold "
+                f"{', '.join(sorted(seen))})"
+            )
     if not out:
         raise InputError("no population to fit")
     return out
@@ -156,9 +182,14 @@ def _fit_task(task: tuple[SpectrumPair, FitOptions, str]) -> dict[str, FitResult
     return fit_population(data, options, name).fits
 
 
-def fit_spectra(spectra_sets: list[LabelledSpectra], options: FitOptions,
-                populations: list[str] | None = None, *, workers: int | None = 1,
-                scheduler: Any = None) -> list[PopulationFit]:
+def fit_spectra(
+    spectra_sets: list[LabelledSpectra],
+    options: FitOptions,
+    populations: list[str] | None = None,
+    *,
+    workers: int | None = 1,
+    scheduler: Any = None,
+) -> list[PopulationFit]:
     """Point fits of every model of ``options`` to every population of the spectra sets.
 
     Parameters
@@ -179,15 +210,16 @@ def fit_spectra(spectra_sets: list[LabelledSpectra], options: FitOptions,
         In the order of the spectra sets and their populations.
     """
     pooled = pool_populations(spectra_sets, options, populations)
-    tasks = [(data, dataclasses.replace(options, models=(m,)), name)
-             for name, _ds, data in pooled for m in options.models]
+    tasks = [
+        (data, dataclasses.replace(options, models=(m,)), name)
+        for name, _ds, data in pooled
+        for m in options.models
+    ]
     for name, _ds, data in pooled:
-        log.info("fit: %s (n = %d): %s", name, data.n,
-                 ", ".join(m.name for m in options.models))
+        log.info("fit: %s (n = %d): %s", name, data.n, ", ".join(m.name for m in options.models))
     if scheduler is None and len(tasks) <= 1:
         workers = 1
-    done = iter(parallel_map(_fit_task, tasks, workers=workers, scheduler=scheduler,
-                             name="fit"))
+    done = iter(parallel_map(_fit_task, tasks, workers=workers, scheduler=scheduler, name="fit"))
     fits = []
     for name, dataset, data in pooled:
         pf = PopulationFit(name, data, {}, dataset=dataset)
@@ -195,10 +227,15 @@ def fit_spectra(spectra_sets: list[LabelledSpectra], options: FitOptions,
             pf.fits.update(next(done))
         for f in pf.fits.values():
             if not f.success:
-                log.warning("fit: %s, model %s did not converge (%s)", name, f.model,
-                            f.message)
+                log.warning("fit: %s, model %s did not converge (%s)", name, f.model, f.message)
         best = pf.best
-        log.info("fit: %s: best model %s (AIC %.2f), share with |Ne*s| < %g: %.3f", name,
-                 best.model, best.aic, options.edges_nes[1], best.shares[0])
+        log.info(
+            "fit: %s: best model %s (AIC %.2f), share with |Ne*s| < %g: %.3f",
+            name,
+            best.model,
+            best.aic,
+            options.edges_nes[1],
+            best.shares[0],
+        )
         fits.append(pf)
     return fits

@@ -31,8 +31,13 @@ from .results import BootstrapResult, ConfidenceInterval, ModelBootstrap, Popula
 if TYPE_CHECKING:
     from ..spectra import PopulationSpectra
 
-__all__ = ["bootstrap_fits", "check_bootstrap_settings", "default_batch",
-           "percentile_interval", "resample_indices"]
+__all__ = [
+    "bootstrap_fits",
+    "check_bootstrap_settings",
+    "default_batch",
+    "percentile_interval",
+    "resample_indices",
+]
 
 log = logging.getLogger("driftband")
 
@@ -40,12 +45,22 @@ log = logging.getLogger("driftband")
 #: callable sites, the block draws of a batch of replicates, the options of the models
 #: refitted and their warm starts (by model name; ``FitResult.x``, None for a fit read
 #: from a file without it).
-_ReplicateBatch = tuple[int, bool, np.ndarray, np.ndarray, np.ndarray, np.ndarray,
-                        np.ndarray, FitOptions, dict[str, np.ndarray | None]]
+_ReplicateBatch = tuple[
+    int,
+    bool,
+    np.ndarray,
+    np.ndarray,
+    np.ndarray,
+    np.ndarray,
+    np.ndarray,
+    FitOptions,
+    dict[str, np.ndarray | None],
+]
 
 
-def check_bootstrap_settings(replicates: int, level: float,
-                             source: OptionSource = COMMAND_LINE) -> None:
+def check_bootstrap_settings(
+    replicates: int, level: float, source: OptionSource = COMMAND_LINE
+) -> None:
     """Check the replicate count and the confidence level of a bootstrap.
 
     Parameters
@@ -104,8 +119,9 @@ def percentile_interval(values: np.ndarray, level: float = 0.95) -> ConfidenceIn
     return ConfidenceInterval(float(lo), float(hi))
 
 
-def _block_arrays(pop: PopulationSpectra, options: FitOptions
-                  ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+def _block_arrays(
+    pop: PopulationSpectra, options: FitOptions
+) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
     cn, cs = pop.classes[options.neutral], pop.classes[options.selected]
     return cn.block_sfs, cs.block_sfs, cn.block_sites, cs.block_sites
 
@@ -118,8 +134,9 @@ def _replicate_task(args: _ReplicateBatch) -> list[dict[str, Any]]:
     for idx in idx_batch:
         counts = np.bincount(idx, minlength=bn.shape[0])
         try:
-            data = SpectrumPair.from_arrays(n, folded, counts @ bn, counts @ bs,
-                                            float(counts @ ln), float(counts @ ls))
+            data = SpectrumPair.from_arrays(
+                n, folded, counts @ bn, counts @ bs, float(counts @ ln), float(counts @ ls)
+            )
         except InputError:
             out.append({})
             continue
@@ -127,15 +144,27 @@ def _replicate_task(args: _ReplicateBatch) -> list[dict[str, Any]]:
         for m in options.models:
             with warnings.catch_warnings():
                 warnings.simplefilter("ignore")
-                f = fit_model(data, m, eps=options.eps, equilibrium=options.equilibrium,
-                              edges_nes=options.edges_nes, expectation=ex,
-                              # a None start becomes NaNs here, as it would in the
-                              # optimiser: every such refit fails and is counted failed
-                              starts=[np.asarray(starts[m.name], dtype=float)],
-                              stderr=False)
-            rep[m.name] = {"params": f.params, "eps": f.eps, "shares": f.shares.tolist(),
-                           "fixation_ratio": f.fixation_ratio, "theta": f.theta,
-                           "loglik": f.loglik, "success": f.success}
+                f = fit_model(
+                    data,
+                    m,
+                    eps=options.eps,
+                    equilibrium=options.equilibrium,
+                    edges_nes=options.edges_nes,
+                    expectation=ex,
+                    # a None start becomes NaNs here, as it would in the
+                    # optimiser: every such refit fails and is counted failed
+                    starts=[np.asarray(starts[m.name], dtype=float)],
+                    stderr=False,
+                )
+            rep[m.name] = {
+                "params": f.params,
+                "eps": f.eps,
+                "shares": f.shares.tolist(),
+                "fixation_ratio": f.fixation_ratio,
+                "theta": f.theta,
+                "loglik": f.loglik,
+                "success": f.success,
+            }
             ad = adaptive_summary(data, f.fixation_ratio)
             if ad is not None:
                 rep[m.name]["alpha_dfe"] = ad["alpha_dfe"]["alpha"]
@@ -151,12 +180,18 @@ def default_batch(replicates: int, workers: int) -> int:
     return max(1, min(10, math.ceil(replicates / (4 * max(1, workers)))))
 
 
-def bootstrap_fits(fits: list[PopulationFit], pops: dict[str, PopulationSpectra],
-                   options: FitOptions,
-                   replicates: int, seed: int = 1, level: float = 0.95,
-                   workers: int | None = None, scheduler: Any = None,
-                   batch: int | None = None,
-                   models: dict[str, list[str]] | None = None) -> None:
+def bootstrap_fits(
+    fits: list[PopulationFit],
+    pops: dict[str, PopulationSpectra],
+    options: FitOptions,
+    replicates: int,
+    seed: int = 1,
+    level: float = 0.95,
+    workers: int | None = None,
+    scheduler: Any = None,
+    batch: int | None = None,
+    models: dict[str, list[str]] | None = None,
+) -> None:
     """Block-bootstrap every population fit in place (sets ``PopulationFit.bootstrap``).
 
     Parameters
@@ -197,19 +232,27 @@ def bootstrap_fits(fits: list[PopulationFit], pops: dict[str, PopulationSpectra]
     wanted: list[list[str]] = []
     for k, pf in enumerate(fits):
         pop = pops[pf.population]
-        names = [m.name for m in options.models if m.name in pf.fits and (
-            models is None or m.name in models.get(pf.population, ()))]
+        names = [
+            m.name
+            for m in options.models
+            if m.name in pf.fits and (models is None or m.name in models.get(pf.population, ()))
+        ]
         wanted.append(names)
         bn, bs, ln, ls = _block_arrays(pop, options)
         nb = bn.shape[0]
         if nb < 2:
-            raise InputError(f"population {pf.population!r}: the spectra have {nb} block; "
-                             "a block bootstrap needs per-block spectra (from 'driftband "
-                             "spectra' or 'driftband simulate')")
+            raise InputError(
+                f"population {pf.population!r}: the spectra have {nb} block; "
+                "a block bootstrap needs per-block spectra (from 'driftband "
+                "spectra' or 'driftband simulate')"
+            )
         if nb < MIN_BLOCKS:
-            warnings.warn(f"population {pf.population!r}: only {nb} blocks; bootstrap "
-                          f"intervals from fewer than {MIN_BLOCKS} blocks are unreliable",
-                          DriftbandWarning, stacklevel=2)
+            warnings.warn(
+                f"population {pf.population!r}: only {nb} blocks; bootstrap "
+                f"intervals from fewer than {MIN_BLOCKS} blocks are unreliable",
+                DriftbandWarning,
+                stacklevel=2,
+            )
         # Populations of one dataset share genomic blocks: resample them jointly (paired),
         # so that between-population comparisons keep the covariance of shared regions.
         stream = zlib.crc32(pf.dataset.encode())
@@ -217,27 +260,37 @@ def bootstrap_fits(fits: list[PopulationFit], pops: dict[str, PopulationSpectra]
         opts = dataclasses.replace(options, models=tuple(options.model(n) for n in names))
         starts = {name: pf.fits[name].x for name in names}
         for b0 in range(0, replicates, batch):
-            tasks.append((pf.data.n, pf.data.folded, bn, bs, ln, ls, idx[b0:b0 + batch],
-                          opts, starts))
+            tasks.append(
+                (pf.data.n, pf.data.folded, bn, bs, ln, ls, idx[b0 : b0 + batch], opts, starts)
+            )
             owners.append(k)
     log.info("bootstrap: %d replicates x %d populations", replicates, len(fits))
     if scheduler is None and len(tasks) <= 1:
         workers = 1
-    results = parallel_map(_replicate_task, tasks, workers=workers, scheduler=scheduler,
-                           name="bootstrap")
+    results = parallel_map(
+        _replicate_task, tasks, workers=workers, scheduler=scheduler, name="bootstrap"
+    )
     per_pop: dict[int, list[dict[str, Any]]] = {}
     for k, res in zip(owners, results):
         per_pop.setdefault(k, []).extend(res)
     for k, pf in enumerate(fits):
         reps = per_pop.get(k, [])
         blocks = int(pops[pf.population].classes[options.neutral].block_sfs.shape[0])
-        pf.bootstrap = BootstrapResult(replicates, blocks, seed, level, {
-            name: _summarise(pf.fits[name], [r[name] for r in reps if r and name in r],
-                             replicates, level) for name in wanted[k]})
+        pf.bootstrap = BootstrapResult(
+            replicates,
+            blocks,
+            seed,
+            level,
+            {
+                name: _summarise(
+                    pf.fits[name], [r[name] for r in reps if r and name in r], replicates, level
+                )
+                for name in wanted[k]
+            },
+        )
 
 
-def _summarise(f: Any, ok: list[dict[str, Any]], replicates: int,
-               level: float) -> ModelBootstrap:
+def _summarise(f: Any, ok: list[dict[str, Any]], replicates: int, level: float) -> ModelBootstrap:
     """The replicates of one model: values per replicate and percentile intervals."""
     shares = np.array([r["shares"] for r in ok]) if ok else np.empty((0, len(f.shares)))
     params = {p: np.array([r["params"][p] for r in ok]) for p in f.params}
@@ -249,6 +302,8 @@ def _summarise(f: Any, ok: list[dict[str, Any]], replicates: int,
     return ModelBootstrap(
         replicates=len(ok),
         failed=int(replicates - len(ok) + sum(1 for r in ok if not r["success"])),
-        params=params, shares=shares,
+        params=params,
+        shares=shares,
         params_ci={p: percentile_interval(v, level) for p, v in params.items()},
-        shares_ci=[percentile_interval(shares[:, j], level) for j in range(shares.shape[1])])
+        shares_ci=[percentile_interval(shares[:, j], level) for j in range(shares.shape[1])],
+    )

@@ -35,19 +35,41 @@ from ..exceptions import InputError
 from .options import FitOptions
 from .results import PopulationFit
 
-__all__ = ["BANDS_COLUMNS", "FIT_SCHEMA", "FitFile", "band_label", "band_rows",
-           "check_fit_schema", "fit_document", "read_fit_files", "read_fit_json", "read_fits",
-           "write_bands_tsv", "write_fit_json"]
+__all__ = [
+    "BANDS_COLUMNS",
+    "FIT_SCHEMA",
+    "FitFile",
+    "band_label",
+    "band_rows",
+    "check_fit_schema",
+    "fit_document",
+    "read_fit_files",
+    "read_fit_json",
+    "read_fits",
+    "write_bands_tsv",
+    "write_fit_json",
+]
 
 FIT_SCHEMA = "driftband-fit"
 FIT_SCHEMA_VERSION = 1
 #: Columns of ``bands.tsv``.
-BANDS_COLUMNS = ["population", "band", "nes_low", "nes_high", "S_low", "S_high", "share",
-                 "ci_low", "ci_high", "model"]
+BANDS_COLUMNS = [
+    "population",
+    "band",
+    "nes_low",
+    "nes_high",
+    "S_low",
+    "S_high",
+    "share",
+    "ci_low",
+    "ci_high",
+    "model",
+]
 
 
-def fit_document(fits: list[PopulationFit], options: dict[str, Any],
-                 provenance: dict[str, Any]) -> dict[str, Any]:
+def fit_document(
+    fits: list[PopulationFit], options: dict[str, Any], provenance: dict[str, Any]
+) -> dict[str, Any]:
     """The JSON document of a list of population fits.
 
     Parameters
@@ -64,8 +86,15 @@ def fit_document(fits: list[PopulationFit], options: dict[str, Any],
         JSON-ready (NaN and inf as null).
     """
     pops = {pf.population: pf.to_dict() for pf in fits}
-    return json_ready({"schema": FIT_SCHEMA, "schema_version": FIT_SCHEMA_VERSION,
-                       "options": options, "populations": pops, "provenance": provenance})
+    return json_ready(
+        {
+            "schema": FIT_SCHEMA,
+            "schema_version": FIT_SCHEMA_VERSION,
+            "options": options,
+            "populations": pops,
+            "provenance": provenance,
+        }
+    )
 
 
 def write_fit_json(doc: dict[str, Any], path: str | os.PathLike, force: bool = False) -> None:
@@ -97,11 +126,16 @@ def read_fit_json(path: str | os.PathLike) -> dict[str, Any]:
 def check_fit_schema(doc: Any, path: str | os.PathLike | None = None) -> None:
     """Raise InputError unless ``doc`` is a fit document of the supported version."""
     if not isinstance(doc, dict) or doc.get("schema") != FIT_SCHEMA:
-        raise InputError(f"not a fit file (expected \"schema\": \"{FIT_SCHEMA}\"; "
-                         "make one with 'driftband fit')", path)
+        raise InputError(
+            f'not a fit file (expected "schema": "{FIT_SCHEMA}"; make one with \'driftband fit\')',
+            path,
+        )
     if doc.get("schema_version") != FIT_SCHEMA_VERSION:
-        raise InputError(f"fit schema version {doc.get('schema_version')!r} is not "
-                         f"supported (this driftband reads {FIT_SCHEMA_VERSION})", path)
+        raise InputError(
+            f"fit schema version {doc.get('schema_version')!r} is not "
+            f"supported (this driftband reads {FIT_SCHEMA_VERSION})",
+            path,
+        )
 
 
 @dataclass
@@ -141,10 +175,16 @@ def read_fits(path: str | os.PathLike) -> FitFile:
         pops = [PopulationFit.from_dict(name, p) for name, p in doc["populations"].items()]
     except (KeyError, TypeError, ValueError, AttributeError) as err:
         what = f"missing entry {err}" if isinstance(err, KeyError) else str(err)
-        raise InputError(f"the fit file cannot be read back ({what}); remake it with "
-                         "'driftband fit'", path) from None
-    return FitFile(os.fspath(path), options, pops, dict(doc.get("options") or {}),
-                   dict(doc.get("provenance") or {}))
+        raise InputError(
+            f"the fit file cannot be read back ({what}); remake it with 'driftband fit'", path
+        ) from None
+    return FitFile(
+        os.fspath(path),
+        options,
+        pops,
+        dict(doc.get("options") or {}),
+        dict(doc.get("provenance") or {}),
+    )
 
 
 def read_fit_files(paths: list[str]) -> tuple[FitOptions, list[PopulationFit]]:
@@ -161,9 +201,12 @@ def read_fit_files(paths: list[str]) -> tuple[FitOptions, list[PopulationFit]]:
     for ff in files:
         for pf in ff.populations:
             if pf.population in where:
-                raise InputError(f"population {pf.population!r} is in both "
-                                 f"{where[pf.population]} and {ff.path}; refit with --label "
-                                 "FILE=NAME to tell them apart", ff.path)
+                raise InputError(
+                    f"population {pf.population!r} is in both "
+                    f"{where[pf.population]} and {ff.path}; refit with --label "
+                    "FILE=NAME to tell them apart",
+                    ff.path,
+                )
             where[pf.population] = ff.path
             fits.append(pf)
     return files[0].options, fits
@@ -186,18 +229,26 @@ def band_rows(fits: list[PopulationFit]) -> list[dict[str, Any]]:
         mb = pf.model_bootstrap(f.model)
         for k, share in enumerate(f.shares):
             lo, hi = edges[k], edges[k + 1]
-            rows.append({
-                "population": pf.population, "band": band_label(lo, hi), "nes_low": lo,
-                "nes_high": hi, "S_low": 4 * lo, "S_high": 4 * hi, "share": float(share),
-                "ci_low": None if mb is None else mb.shares_ci[k].low,
-                "ci_high": None if mb is None else mb.shares_ci[k].high,
-                "model": f.model,
-            })
+            rows.append(
+                {
+                    "population": pf.population,
+                    "band": band_label(lo, hi),
+                    "nes_low": lo,
+                    "nes_high": hi,
+                    "S_low": 4 * lo,
+                    "S_high": 4 * hi,
+                    "share": float(share),
+                    "ci_low": None if mb is None else mb.shares_ci[k].low,
+                    "ci_high": None if mb is None else mb.shares_ci[k].high,
+                    "model": f.model,
+                }
+            )
     return rows
 
 
-def write_bands_tsv(fits: list[PopulationFit], path: str | os.PathLike,
-                    force: bool = False) -> None:
+def write_bands_tsv(
+    fits: list[PopulationFit], path: str | os.PathLike, force: bool = False
+) -> None:
     """Write ``bands.tsv`` atomically."""
     with atomic_output(path, force=force, newline="") as fh:
         w = csv.writer(fh, delimiter="\t", lineterminator="\n")

@@ -68,8 +68,13 @@ class SpectrumPair:
     fixed_selected: float | None = None
 
     @classmethod
-    def from_population(cls, pop: PopulationSpectra, neutral: str = "4fold",
-                        selected: str = "0fold", path: str | None = None) -> SpectrumPair:
+    def from_population(
+        cls,
+        pop: PopulationSpectra,
+        neutral: str = "4fold",
+        selected: str = "0fold",
+        path: str | None = None,
+    ) -> SpectrumPair:
         """Take the two classes of a :class:`~driftband.spectra.PopulationSpectra`.
 
         Parameters
@@ -88,20 +93,33 @@ class SpectrumPair:
         """
         for c in (neutral, selected):
             if c not in pop.classes:
-                raise InputError(f"population {pop.name!r} has no class {c!r} (it has "
-                                 f"{', '.join(sorted(pop.classes)) or 'none'}); choose with "
-                                 "--neutral/--selected", path)
+                raise InputError(
+                    f"population {pop.name!r} has no class {c!r} (it has "
+                    f"{', '.join(sorted(pop.classes)) or 'none'}); choose with "
+                    "--neutral/--selected",
+                    path,
+                )
         if pop.n < 4:
-            raise InputError(f"population {pop.name!r}: n = {pop.n} gene copies; a fit "
-                             "needs n >= 4", path)
+            raise InputError(
+                f"population {pop.name!r}: n = {pop.n} gene copies; a fit needs n >= 4", path
+            )
         cn, cs = pop.classes[neutral], pop.classes[selected]
-        return cls.from_arrays(pop.n, pop.folded, cn.sfs, cs.sfs, cn.sites, cs.sites,
-                               name=pop.name, path=path)
+        return cls.from_arrays(
+            pop.n, pop.folded, cn.sfs, cs.sfs, cn.sites, cs.sites, name=pop.name, path=path
+        )
 
     @classmethod
-    def from_arrays(cls, n: int, folded: bool, neutral_sfs: ArrayLike,
-                    selected_sfs: ArrayLike, sites_neutral: float, sites_selected: float,
-                    name: str = "", path: str | None = None) -> SpectrumPair:
+    def from_arrays(
+        cls,
+        n: int,
+        folded: bool,
+        neutral_sfs: ArrayLike,
+        selected_sfs: ArrayLike,
+        sites_neutral: float,
+        sites_selected: float,
+        name: str = "",
+        path: str | None = None,
+    ) -> SpectrumPair:
         """Build from full spectra (length n+1, or n//2+1 when folded).
 
         Parameters
@@ -133,8 +151,9 @@ class SpectrumPair:
             if L <= 0:
                 raise InputError(f"{who}: the {label} class has no callable sites", path)
             if x.sum() <= 0:
-                raise InputError(f"{who}: the {label} spectrum has no polymorphic sites; "
-                                 "nothing to fit", path)
+                raise InputError(
+                    f"{who}: the {label} spectrum has no polymorphic sites; nothing to fit", path
+                )
         fixed = (None, None) if folded else (float(nsfs[n]), float(ssfs[n]))
         return cls(n, folded, xn, xs, float(sites_neutral), float(sites_selected), *fixed)
 
@@ -145,10 +164,16 @@ class SpectrumPair:
 
     def to_dict(self) -> dict[str, Any]:
         """JSON-ready (the ``data`` of a population in a fit file)."""
-        return {"n": self.n, "folded": self.folded, "neutral": self.neutral.tolist(),
-                "selected": self.selected.tolist(), "sites_neutral": self.sites_neutral,
-                "sites_selected": self.sites_selected, "fixed_neutral": self.fixed_neutral,
-                "fixed_selected": self.fixed_selected}
+        return {
+            "n": self.n,
+            "folded": self.folded,
+            "neutral": self.neutral.tolist(),
+            "selected": self.selected.tolist(),
+            "sites_neutral": self.sites_neutral,
+            "sites_selected": self.sites_selected,
+            "fixed_neutral": self.fixed_neutral,
+            "fixed_selected": self.fixed_selected,
+        }
 
     @classmethod
     def from_dict(cls, d: dict[str, Any]) -> SpectrumPair:
@@ -160,10 +185,16 @@ class SpectrumPair:
             A missing or malformed entry.
         """
         fn, fs = d.get("fixed_neutral"), d.get("fixed_selected")
-        return cls(int(d["n"]), bool(d["folded"]), np.asarray(d["neutral"], float),
-                   np.asarray(d["selected"], float), float(d["sites_neutral"]),
-                   float(d["sites_selected"]), None if fn is None else float(fn),
-                   None if fs is None else float(fs))
+        return cls(
+            int(d["n"]),
+            bool(d["folded"]),
+            np.asarray(d["neutral"], float),
+            np.asarray(d["selected"], float),
+            float(d["sites_neutral"]),
+            float(d["sites_selected"]),
+            None if fn is None else float(fn),
+            None if fs is None else float(fs),
+        )
 
 
 def poisson_loglik(obs: np.ndarray, lam: np.ndarray) -> float:
@@ -223,7 +254,8 @@ def _newton_pairs(xn, xs, a, b, eps, c0, tol=1e-11, max_iter=100):
         # Converged when the steps are negligible relative to the scale of c (an
         # absolute floor keeps pairs whose optimum is at u = 0 or v = 0 from iterating on).
         done = np.all(np.abs(nu - u) <= tol * np.maximum(nu, scale)) and np.all(
-            np.abs(nv - v) <= tol * np.maximum(nv, scale))
+            np.abs(nv - v) <= tol * np.maximum(nv, scale)
+        )
         u, v = np.maximum(nu, 0.0), np.maximum(nv, 0.0)
         if done:
             break
@@ -231,9 +263,13 @@ def _newton_pairs(xn, xs, a, b, eps, c0, tol=1e-11, max_iter=100):
     return c
 
 
-def profile_counts(data: SpectrumPair, gbar: np.ndarray, eps: float = 0.0,
-                   equilibrium: bool = False, c0: np.ndarray | None = None,
-                   ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+def profile_counts(
+    data: SpectrumPair,
+    gbar: np.ndarray,
+    eps: float = 0.0,
+    equilibrium: bool = False,
+    c0: np.ndarray | None = None,
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Profile out θ·r_i; return ``(c, lam_neutral, lam_selected)``.
 
     Parameters
@@ -300,9 +336,14 @@ class Objective:
     equilibrium : bool
     """
 
-    def __init__(self, data: SpectrumPair, model: DfeModel, eps: float | None = 0.0,
-                 equilibrium: bool = False,
-                 expectation: DfeExpectation | None = None) -> None:
+    def __init__(
+        self,
+        data: SpectrumPair,
+        model: DfeModel,
+        eps: float | None = 0.0,
+        equilibrium: bool = False,
+        expectation: DfeExpectation | None = None,
+    ) -> None:
         self.data = data
         self.model = model
         self.free_eps = eps is None and not data.folded
@@ -330,8 +371,9 @@ class Objective:
             return x[:-1], float(1.0 / (1.0 + np.exp(-x[-1])))
         return x, self.eps
 
-    def evaluate(self, x: np.ndarray
-                 ) -> tuple[float, np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    def evaluate(
+        self, x: np.ndarray
+    ) -> tuple[float, np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
         """``(loglik, c, lam_neutral, lam_selected, gbar)`` at ``x``."""
         xd, eps = self.split(x)
         dfe = self.model.to_dfe(xd)

@@ -83,11 +83,15 @@ class FitResult:
 
     def residuals(self) -> dict[str, np.ndarray]:
         """Pearson residuals (obs − exp)/√exp of both classes."""
+
         def r(o, e):
             with np.errstate(divide="ignore", invalid="ignore"):
                 return np.where(e > 0, (o - e) / np.sqrt(e), 0.0)
-        return {"neutral": r(self.observed_neutral, self.expected_neutral),
-                "selected": r(self.observed_selected, self.expected_selected)}
+
+        return {
+            "neutral": r(self.observed_neutral, self.expected_neutral),
+            "selected": r(self.observed_selected, self.expected_selected),
+        }
 
     def neutral_share(self) -> float:
         """Share of new selected-class mutations with |Ne·s| below the first inner edge."""
@@ -97,18 +101,31 @@ class FitResult:
         """JSON-ready dictionary."""
         res = self.residuals()
         return {
-            "population": self.population, "model": self.model,
-            "params": self.params, "stderr": self.stderr,
-            "eps": self.eps, "eps_free": self.eps_free, "theta": self.theta,
-            "nuisance": self.nuisance.tolist(), "equilibrium": self.equilibrium,
-            "loglik": self.loglik, "n_params": self.n_params, "aic": self.aic,
-            "success": self.success, "message": self.message,
-            "band_edges": list(self.band_edges), "shares": self.shares.tolist(),
+            "population": self.population,
+            "model": self.model,
+            "params": self.params,
+            "stderr": self.stderr,
+            "eps": self.eps,
+            "eps_free": self.eps_free,
+            "theta": self.theta,
+            "nuisance": self.nuisance.tolist(),
+            "equilibrium": self.equilibrium,
+            "loglik": self.loglik,
+            "n_params": self.n_params,
+            "aic": self.aic,
+            "success": self.success,
+            "message": self.message,
+            "band_edges": list(self.band_edges),
+            "shares": self.shares.tolist(),
             "fixation_ratio": self.fixation_ratio,
-            "observed": {"neutral": self.observed_neutral.tolist(),
-                         "selected": self.observed_selected.tolist()},
-            "expected": {"neutral": self.expected_neutral.tolist(),
-                         "selected": self.expected_selected.tolist()},
+            "observed": {
+                "neutral": self.observed_neutral.tolist(),
+                "selected": self.observed_selected.tolist(),
+            },
+            "expected": {
+                "neutral": self.expected_neutral.tolist(),
+                "selected": self.expected_selected.tolist(),
+            },
             "pearson_residuals": {k: v.tolist() for k, v in res.items()},
             "x": None if self.x is None else np.asarray(self.x).tolist(),
             "optimizer": {"starts": self.n_starts, "evaluations": self.n_eval},
@@ -132,26 +149,38 @@ class FitResult:
         KeyError, TypeError, ValueError
             A required field is missing or of the wrong type.
         """
+
         def arr(v: Any) -> np.ndarray:
             return np.array([_nan(x) for x in v], dtype=float)
 
         obs, exp = d.get("observed") or {}, d.get("expected") or {}
         opt = d.get("optimizer") or {}
         return cls(
-            population=str(d["population"]), model=str(d["model"]),
+            population=str(d["population"]),
+            model=str(d["model"]),
             params={str(k): _nan(v) for k, v in (d.get("params") or {}).items()},
             stderr={str(k): _nan(v) for k, v in (d.get("stderr") or {}).items()},
-            eps=_nan(d["eps"]), eps_free=bool(d["eps_free"]), theta=_nan(d["theta"]),
-            nuisance=arr(d["nuisance"]), loglik=_nan(d["loglik"]),
-            n_params=int(d["n_params"]), aic=_nan(d["aic"]), success=bool(d["success"]),
+            eps=_nan(d["eps"]),
+            eps_free=bool(d["eps_free"]),
+            theta=_nan(d["theta"]),
+            nuisance=arr(d["nuisance"]),
+            loglik=_nan(d["loglik"]),
+            n_params=int(d["n_params"]),
+            aic=_nan(d["aic"]),
+            success=bool(d["success"]),
             message=str(d["message"]),
-            band_edges=tuple(float(v) for v in d["band_edges"]), shares=arr(d["shares"]),
+            band_edges=tuple(float(v) for v in d["band_edges"]),
+            shares=arr(d["shares"]),
             fixation_ratio=_nan(d["fixation_ratio"]),
-            observed_neutral=arr(obs["neutral"]), observed_selected=arr(obs["selected"]),
-            expected_neutral=arr(exp["neutral"]), expected_selected=arr(exp["selected"]),
+            observed_neutral=arr(obs["neutral"]),
+            observed_selected=arr(obs["selected"]),
+            expected_neutral=arr(exp["neutral"]),
+            expected_selected=arr(exp["selected"]),
             x=None if d.get("x") is None else arr(d["x"]),
-            n_starts=int(opt.get("starts", 0)), n_eval=int(opt.get("evaluations", 0)),
-            equilibrium=bool(d.get("equilibrium", False)))
+            n_starts=int(opt.get("starts", 0)),
+            n_eval=int(opt.get("evaluations", 0)),
+            equilibrium=bool(d.get("equilibrium", False)),
+        )
 
 
 def _nan(v: Any) -> float:
@@ -175,7 +204,8 @@ def _hessian(f, x, bounds, h=1e-4):
                 v = (f(x + ea) - 2 * f0 + f(x - ea)) / steps[a] ** 2
             else:
                 v = (f(x + ea + eb) - f(x + ea - eb) - f(x - ea + eb) + f(x - ea - eb)) / (
-                    4 * steps[a] * steps[b])
+                    4 * steps[a] * steps[b]
+                )
             H[a, b] = H[b, a] = v
     return H
 
@@ -210,12 +240,19 @@ def _stderr(obj: Objective, x: np.ndarray) -> dict[str, float]:
         return nan
 
 
-def fit_model(data: SpectrumPair, model: DfeModel, *, population: str = "",
-              eps: float | None = 0.0, equilibrium: bool = False,
-              edges_nes: tuple[float, ...] = DEFAULT_EDGES_NES,
-              expectation: DfeExpectation | None = None,
-              starts: list[np.ndarray] | None = None, stderr: bool = True,
-              n_local: int = 3) -> FitResult:
+def fit_model(
+    data: SpectrumPair,
+    model: DfeModel,
+    *,
+    population: str = "",
+    eps: float | None = 0.0,
+    equilibrium: bool = False,
+    edges_nes: tuple[float, ...] = DEFAULT_EDGES_NES,
+    expectation: DfeExpectation | None = None,
+    starts: list[np.ndarray] | None = None,
+    stderr: bool = True,
+    n_local: int = 3,
+) -> FitResult:
     """Fit one DFE model to one population by maximum likelihood.
 
     Parameters
@@ -263,15 +300,34 @@ def fit_model(data: SpectrumPair, model: DfeModel, *, population: str = "",
     n_params = model.n_free + k_nuis + (1 if obj.free_eps else 0)
     se = _stderr(obj, xbest) if stderr else {}
     if not success:
-        warnings.warn(f"{population or 'population'} / {model.name}: the fit did not "
-                      f"converge ({msg})", ConvergenceWarning, stacklevel=2)
+        warnings.warn(
+            f"{population or 'population'} / {model.name}: the fit did not converge ({msg})",
+            ConvergenceWarning,
+            stacklevel=2,
+        )
     return FitResult(
-        population=population, model=model.name, params=model.natural(xd),
-        stderr=se, eps=float(e), eps_free=obj.free_eps,
-        theta=float(c[0]), nuisance=nuis, loglik=float(ll), n_params=n_params,
-        aic=float(2 * n_params - 2 * ll), success=success, message=msg,
-        band_edges=tuple(edges_nes), shares=band_shares(dfe, edges_nes),
+        population=population,
+        model=model.name,
+        params=model.natural(xd),
+        stderr=se,
+        eps=float(e),
+        eps_free=obj.free_eps,
+        theta=float(c[0]),
+        nuisance=nuis,
+        loglik=float(ll),
+        n_params=n_params,
+        aic=float(2 * n_params - 2 * ll),
+        success=success,
+        message=msg,
+        band_edges=tuple(edges_nes),
+        shares=band_shares(dfe, edges_nes),
         fixation_ratio=float(mean_fixation_ratio(dfe)),
-        observed_neutral=data.neutral.copy(), observed_selected=data.selected.copy(),
-        expected_neutral=ln, expected_selected=ls, x=xbest, n_starts=len(opt.runs),
-        n_eval=obj.n_eval, equilibrium=equilibrium)
+        observed_neutral=data.neutral.copy(),
+        observed_selected=data.selected.copy(),
+        expected_neutral=ln,
+        expected_selected=ls,
+        x=xbest,
+        n_starts=len(opt.runs),
+        n_eval=obj.n_eval,
+        equilibrium=equilibrium,
+    )

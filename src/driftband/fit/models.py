@@ -57,8 +57,9 @@ class DfeModel:
 
     def __post_init__(self) -> None:
         if self.family not in FAMILIES:
-            raise OptionError(f"unknown DFE family {self.family!r}; choose from "
-                              f"{', '.join(FAMILIES)}")
+            raise OptionError(
+                f"unknown DFE family {self.family!r}; choose from {', '.join(FAMILIES)}"
+            )
 
     @property
     def name(self) -> str:
@@ -100,15 +101,15 @@ class DfeModel:
         k = self.n_free - (2 if self.beneficial else 0)
         base_x, ben_x = x[:k], x[k:]
         if self.family == "gamma":
-            base: BaseDfe = GammaDfe(shape=float(np.exp(base_x[0])),
-                                     mean=float(np.exp(base_x[1])))
+            base: BaseDfe = GammaDfe(shape=float(np.exp(base_x[0])), mean=float(np.exp(base_x[1])))
         elif self.family == "lognormal":
             base = LognormalDfe(mu=float(base_x[0]), sigma=float(np.exp(base_x[1])))
         else:
             z = np.concatenate([[0.0], base_x])
             w = np.exp(z - z.max())
-            base = DiscreteDfe(masses=tuple(float(v) for v in w / w.sum()),
-                               edges_nes=tuple(self.edges_nes))
+            base = DiscreteDfe(
+                masses=tuple(float(v) for v in w / w.sum()), edges_nes=tuple(self.edges_nes)
+            )
         if not self.beneficial:
             return base
         return WithBeneficial(base, p_b=_expit(ben_x[0]), s_b=float(np.exp(ben_x[1])))
@@ -131,11 +132,17 @@ class DfeModel:
     def starts(self) -> list[np.ndarray]:
         """Starting points of the multi-start search (unconstrained scale)."""
         if self.family == "gamma":
-            base = [np.log([b, m]) for b, m in itertools.product(
-                (0.15, 0.3, 0.6, 1.5), (2.0, 20.0, 200.0, 2000.0, 2e4))]
+            base = [
+                np.log([b, m])
+                for b, m in itertools.product(
+                    (0.15, 0.3, 0.6, 1.5), (2.0, 20.0, 200.0, 2000.0, 2e4)
+                )
+            ]
         elif self.family == "lognormal":
-            base = [np.array([mu, np.log(sd)]) for mu, sd in itertools.product(
-                (0.0, 2.0, 4.0, 6.0, 8.0), (0.5, 1.5, 3.0))]
+            base = [
+                np.array([mu, np.log(sd)])
+                for mu, sd in itertools.product((0.0, 2.0, 4.0, 6.0, 8.0), (0.5, 1.5, 3.0))
+            ]
         else:
             k = len(self.edges_nes) - 1
             base = [np.zeros(k)]
@@ -149,8 +156,9 @@ class DfeModel:
         return [np.concatenate([b, e]) for b in base for e in ben]
 
 
-def parse_models(spec: str, beneficial: bool = False,
-                 edges_nes: tuple[float, ...] = DEFAULT_EDGES_NES) -> list[DfeModel]:
+def parse_models(
+    spec: str, beneficial: bool = False, edges_nes: tuple[float, ...] = DEFAULT_EDGES_NES
+) -> list[DfeModel]:
     """Parse ``--dfe gamma,lognormal,...`` (``NAME+beneficial`` adds one model each)."""
     out = []
     for tok in (t.strip() for t in spec.split(",")):

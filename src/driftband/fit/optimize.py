@@ -55,9 +55,14 @@ class Optimum:
     agree: int = 0
 
 
-def minimize_multistart(f: Callable[[np.ndarray], float], starts: Sequence[np.ndarray],
-                        bounds: Sequence[tuple[float, float]], *, screen: int | None = None,
-                        polish: Literal["if_failed", "always"] = "if_failed") -> Optimum:
+def minimize_multistart(
+    f: Callable[[np.ndarray], float],
+    starts: Sequence[np.ndarray],
+    bounds: Sequence[tuple[float, float]],
+    *,
+    screen: int | None = None,
+    polish: Literal["if_failed", "always"] = "if_failed",
+) -> Optimum:
     """Minimise ``f`` from several starting points within ``bounds``.
 
     Parameters
@@ -85,8 +90,10 @@ def minimize_multistart(f: Callable[[np.ndarray], float], starts: Sequence[np.nd
     if screen is not None and len(pts) > screen:
         vals = np.array([f(s) for s in pts])
         pts = [pts[j] for j in np.argsort(vals, kind="stable")[:screen]]
-    runs = [optimize.minimize(f, s, method="L-BFGS-B", bounds=bounds, options=LBFGSB_OPTIONS)
-            for s in pts]
+    runs = [
+        optimize.minimize(f, s, method="L-BFGS-B", bounds=bounds, options=LBFGSB_OPTIONS)
+        for s in pts
+    ]
     runs.sort(key=lambda r: r.fun)
     best = runs[0]
     xbest, fbest, converged = best.x, float(best.fun), bool(best.success)
@@ -96,6 +103,8 @@ def minimize_multistart(f: Callable[[np.ndarray], float], starts: Sequence[np.nd
             xbest, fbest = np.clip(pol.x, lo, hi), float(pol.fun)
         converged = bool(pol.success) or (polish == "always" and converged)
     agree = sum(1 for r in runs if r.fun - fbest < AGREE_TOL)
-    msg = (f"{agree} of {len(runs)} refined starts reached the best log-likelihood; "
-           f"optimiser: {best.message!s}")
+    msg = (
+        f"{agree} of {len(runs)} refined starts reached the best log-likelihood; "
+        f"optimiser: {best.message!s}"
+    )
     return Optimum(xbest, fbest, converged, msg, runs, agree)

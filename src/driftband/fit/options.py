@@ -15,8 +15,8 @@ from ..defaults import DEFAULT_EDGES_NES
 from ..exceptions import OptionError
 from .models import DfeModel, parse_models
 
-__all__ = ["FitOptions", "check_edges", "format_misorientation",
-           "parse_misorientation"]
+__all__ = ["FitOptions", "check_edges", "format_misorientation", "parse_misorientation"]
+
 
 def check_edges(edges: tuple[float, ...]) -> tuple[float, ...]:
     """Validate |Ne·s| band edges: start at 0, strictly increasing, finite.
@@ -34,10 +34,16 @@ def check_edges(edges: tuple[float, ...]) -> tuple[float, ...]:
     OptionError
     """
     e = tuple(float(v) for v in edges)
-    if len(e) < 2 or e[0] != 0.0 or any(b <= a for a, b in zip(e, e[1:])) or not all(
-            np.isfinite(e)):
-        raise OptionError(f"--bands {','.join(f'{v:g}' for v in e)}: edges on |Ne*s| must "
-                          "start at 0 and increase strictly, e.g. 0,1,10,100")
+    if (
+        len(e) < 2
+        or e[0] != 0.0
+        or any(b <= a for a, b in zip(e, e[1:]))
+        or not all(np.isfinite(e))
+    ):
+        raise OptionError(
+            f"--bands {','.join(f'{v:g}' for v in e)}: edges on |Ne*s| must "
+            "start at 0 and increase strictly, e.g. 0,1,10,100"
+        )
     return e
 
 
@@ -114,8 +120,9 @@ class FitOptions:
 
     def __post_init__(self) -> None:
         if self.eps is not None and not 0.0 <= self.eps < 0.5:
-            raise OptionError(f"--misorientation {format_misorientation(self.eps)}: the rate "
-                              "must be in [0, 0.5)")
+            raise OptionError(
+                f"--misorientation {format_misorientation(self.eps)}: the rate must be in [0, 0.5)"
+            )
 
     def model(self, name: str) -> DfeModel:
         """The model called ``name`` (e.g. ``gamma+beneficial``), with these band edges.
@@ -135,10 +142,14 @@ class FitOptions:
 
     def to_dict(self) -> dict[str, Any]:
         """JSON-ready (the ``options`` of a fit file)."""
-        return {"neutral": self.neutral, "selected": self.selected,
-                "models": [m.name for m in self.models],
-                "misorientation": format_misorientation(self.eps),
-                "equilibrium": self.equilibrium, "band_edges_nes": list(self.edges_nes)}
+        return {
+            "neutral": self.neutral,
+            "selected": self.selected,
+            "models": [m.name for m in self.models],
+            "misorientation": format_misorientation(self.eps),
+            "equilibrium": self.equilibrium,
+            "band_edges_nes": list(self.edges_nes),
+        }
 
     @classmethod
     def from_dict(cls, d: dict[str, Any]) -> FitOptions:
@@ -151,7 +162,11 @@ class FitOptions:
         """
         edges = check_edges(tuple(d.get("band_edges_nes", DEFAULT_EDGES_NES)))
         names = d.get("models") or ["gamma"]
-        return cls(str(d.get("neutral", "4fold")), str(d.get("selected", "0fold")),
-                   tuple(parse_models(",".join(names), False, edges)),
-                   parse_misorientation(str(d.get("misorientation", "free"))),
-                   bool(d.get("equilibrium", False)), edges)
+        return cls(
+            str(d.get("neutral", "4fold")),
+            str(d.get("selected", "0fold")),
+            tuple(parse_models(",".join(names), False, edges)),
+            parse_misorientation(str(d.get("misorientation", "free"))),
+            bool(d.get("equilibrium", False)),
+            edges,
+        )

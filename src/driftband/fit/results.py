@@ -64,11 +64,14 @@ class ModelBootstrap:
 
     def to_dict(self) -> dict[str, Any]:
         """JSON-ready."""
-        return {"replicates": self.replicates, "failed": self.failed,
-                "params": {p: v.tolist() for p, v in self.params.items()},
-                "shares": self.shares.tolist(),
-                "params_ci": {p: list(ci) for p, ci in self.params_ci.items()},
-                "shares_ci": [list(ci) for ci in self.shares_ci]}
+        return {
+            "replicates": self.replicates,
+            "failed": self.failed,
+            "params": {p: v.tolist() for p, v in self.params.items()},
+            "shares": self.shares.tolist(),
+            "params_ci": {p: list(ci) for p, ci in self.params_ci.items()},
+            "shares_ci": [list(ci) for ci in self.shares_ci],
+        }
 
     @classmethod
     def from_dict(cls, d: dict[str, Any]) -> ModelBootstrap:
@@ -76,9 +79,14 @@ class ModelBootstrap:
         shares_ci = [_interval(v) for v in d["shares_ci"]]
         rows = [_floats(r) for r in d["shares"]]
         shares = np.array(rows) if rows else np.empty((0, len(shares_ci)))
-        return cls(int(d["replicates"]), int(d["failed"]),
-                   {str(p): _floats(v) for p, v in d["params"].items()}, shares,
-                   {str(p): _interval(v) for p, v in d["params_ci"].items()}, shares_ci)
+        return cls(
+            int(d["replicates"]),
+            int(d["failed"]),
+            {str(p): _floats(v) for p, v in d["params"].items()},
+            shares,
+            {str(p): _interval(v) for p, v in d["params_ci"].items()},
+            shares_ci,
+        )
 
 
 @dataclass
@@ -106,16 +114,24 @@ class BootstrapResult:
 
     def to_dict(self) -> dict[str, Any]:
         """JSON-ready."""
-        return {"replicates": self.replicates, "blocks": self.blocks, "seed": self.seed,
-                "level": self.level,
-                "models": {k: m.to_dict() for k, m in self.models.items()}}
+        return {
+            "replicates": self.replicates,
+            "blocks": self.blocks,
+            "seed": self.seed,
+            "level": self.level,
+            "models": {k: m.to_dict() for k, m in self.models.items()},
+        }
 
     @classmethod
     def from_dict(cls, d: dict[str, Any]) -> BootstrapResult:
         """Back from :meth:`to_dict`."""
-        return cls(int(d["replicates"]), int(d["blocks"]), int(d["seed"]),
-                   float(d["level"]),
-                   {str(k): ModelBootstrap.from_dict(v) for k, v in d["models"].items()})
+        return cls(
+            int(d["replicates"]),
+            int(d["blocks"]),
+            int(d["seed"]),
+            float(d["level"]),
+            {str(k): ModelBootstrap.from_dict(v) for k, v in d["models"].items()},
+        )
 
 
 @dataclass
@@ -152,9 +168,18 @@ class PopulationFit:
         a0 = rows[0].aic
         w = np.exp(-0.5 * (np.array([f.aic for f in rows]) - a0))
         w /= w.sum()
-        return [{"model": f.model, "loglik": f.loglik, "n_params": f.n_params,
-                 "aic": f.aic, "delta_aic": f.aic - a0, "weight": float(wk),
-                 "converged": f.success} for f, wk in zip(rows, w)]
+        return [
+            {
+                "model": f.model,
+                "loglik": f.loglik,
+                "n_params": f.n_params,
+                "aic": f.aic,
+                "delta_aic": f.aic - a0,
+                "weight": float(wk),
+                "converged": f.success,
+            }
+            for f, wk in zip(rows, w)
+        ]
 
     def model_bootstrap(self, model: str) -> ModelBootstrap | None:
         """The bootstrap of one model, if it was refitted."""
@@ -169,8 +194,9 @@ class PopulationFit:
             "aic_table": self.aic_table(),
             "models": {k: f.to_dict() for k, f in self.fits.items()},
             "bootstrap": {} if self.bootstrap is None else self.bootstrap.to_dict(),
-            "adaptive": {k: adaptive_summary(self.data, f.fixation_ratio)
-                         for k, f in self.fits.items()},
+            "adaptive": {
+                k: adaptive_summary(self.data, f.fixation_ratio) for k, f in self.fits.items()
+            },
         }
 
     @classmethod
@@ -183,7 +209,10 @@ class PopulationFit:
             A missing or malformed entry.
         """
         boot = d.get("bootstrap") or None
-        return cls(population, SpectrumPair.from_dict(d["data"]),
-                   {str(k): FitResult.from_dict(v) for k, v in d["models"].items()},
-                   dataset=str(d.get("dataset", "")),
-                   bootstrap=None if boot is None else BootstrapResult.from_dict(boot))
+        return cls(
+            population,
+            SpectrumPair.from_dict(d["data"]),
+            {str(k): FitResult.from_dict(v) for k, v in d["models"].items()},
+            dataset=str(d.get("dataset", "")),
+            bootstrap=None if boot is None else BootstrapResult.from_dict(boot),
+        )

@@ -121,14 +121,21 @@ class Grid:
             o = k - 2
             r = _KL + _KU - o
             if o >= 0:
-                ab[r, o:] = R[k, :N - o]
+                ab[r, o:] = R[k, : N - o]
             else:
-                ab[r, :N + o] = R[k, -o:]
+                ab[r, : N + o] = R[k, -o:]
         return ab
 
 
-def _solve_steps(grid: Grid, v: np.ndarray, dt: np.ndarray, a: float, b: np.ndarray,
-                 n_sub: int, src: np.ndarray | None) -> np.ndarray:
+def _solve_steps(
+    grid: Grid,
+    v: np.ndarray,
+    dt: np.ndarray,
+    a: float,
+    b: np.ndarray,
+    n_sub: int,
+    src: np.ndarray | None,
+) -> np.ndarray:
     """``n_sub`` implicit Euler sub-steps of length ``dt / n_sub`` (per block)."""
     h = dt / n_sub
     lu, piv, info = lapack.dgbtrf(grid.system(h, a, b), _KL, _KU)
@@ -142,8 +149,9 @@ def _solve_steps(grid: Grid, v: np.ndarray, dt: np.ndarray, a: float, b: np.ndar
     return u
 
 
-def step_mesh(T: float, a_max: float, b_max: float, grid: Grid, rho: float,
-              cap_adv: float, cap_nu: float) -> np.ndarray:
+def step_mesh(
+    T: float, a_max: float, b_max: float, grid: Grid, rho: float, cap_adv: float, cap_nu: float
+) -> np.ndarray:
     """Macro steps over ``[0, T]``, shape (K,), shared by every block of a batch.
 
     Graded geometrically (ratio ``1 + rho``) from ``t0``, when the front of new mutations
@@ -163,10 +171,19 @@ def step_mesh(T: float, a_max: float, b_max: float, grid: Grid, rho: float,
     return np.diff(ts)
 
 
-def evolve(grid: Grid, d: np.ndarray, T: float, a_of_t: Callable[[float], float],
-           b: np.ndarray, src_of_t: Callable[[float], np.ndarray] | None = None,
-           levels: int = 5, rho: float = 0.3, cap_adv: float = 0.5,
-           cap_nu: float = math.inf, a_max: float | None = None) -> tuple[np.ndarray, int]:
+def evolve(
+    grid: Grid,
+    d: np.ndarray,
+    T: float,
+    a_of_t: Callable[[float], float],
+    b: np.ndarray,
+    src_of_t: Callable[[float], np.ndarray] | None = None,
+    levels: int = 5,
+    rho: float = 0.3,
+    cap_adv: float = 0.5,
+    cap_nu: float = math.inf,
+    a_max: float | None = None,
+) -> tuple[np.ndarray, int]:
     """Advance departures ``d`` (shape (B, mi)) over an epoch of length ``T``.
 
     ``a_of_t(t)`` is ``1/nu(t)`` (a float; ``t`` from the start of the epoch) and
@@ -211,7 +228,7 @@ def lagrange_matrix(y_src: np.ndarray, y_dst: np.ndarray, order: int = 8) -> np.
     for r, yv in enumerate(y_dst):
         j0 = int(math.floor((yv - y_src[0]) / h)) - half + 1
         j0 = min(max(j0, 0), m - order)
-        nodes = y_src[j0:j0 + order]
+        nodes = y_src[j0 : j0 + order]
         for q in range(order):
             others = np.delete(nodes, q)
             out[r, j0 + q] = np.prod((yv - others) / (nodes[q] - others))

@@ -34,13 +34,15 @@ NODES_PER_DECADE = 16
 #: standard one-panel-per-decade table has at sd = 0.5); narrower still: a table per call.
 FINE_LEVELS = (4, 16, 64)
 
+
 # -------------------------------------------------------------------- quadrature in t
 @functools.lru_cache(maxsize=64)
-def _panels(breaks: tuple[float, ...], per_panel: int = NODES_PER_DECADE
-            ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+def _panels(
+    breaks: tuple[float, ...], per_panel: int = NODES_PER_DECADE
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Gauss--Legendre nodes and weights in ln t on [T_LO, T_HI], one panel per decade,
     also split at ``breaks``. Returns (t, log_t, weights in ln t)."""
-    pts = {10.0 ** k for k in range(round(math.log10(T_LO)), round(math.log10(T_HI)) + 1)}
+    pts = {10.0**k for k in range(round(math.log10(T_LO)), round(math.log10(T_HI)) + 1)}
     pts.update(b for b in breaks if T_LO < b < T_HI)
     edges = np.log(np.array(sorted(pts)))
     xg, wg = np.polynomial.legendre.leggauss(per_panel)
@@ -90,8 +92,9 @@ def _narrow_breaks(base: BaseDfe) -> tuple[float, ...]:
     if _LN10 / FINE_LEVELS[-1] <= 4.6 * sd:
         return ()
     step = min(sd, 0.25)
-    return tuple(math.exp(c + k * step) for k in range(-int(14 * sd / step) - 1,
-                                                       int(14 * sd / step) + 2))
+    return tuple(
+        math.exp(c + k * step) for k in range(-int(14 * sd / step) - 1, int(14 * sd / step) + 2)
+    )
 
 
 def _breaks(base: BaseDfe) -> tuple[float, ...]:
@@ -106,15 +109,17 @@ def _nodes_for(base: BaseDfe) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     p, k_lo, k_hi = plan
     t, lt, w = _panels(())
     keep = np.ones(t.size, dtype=bool)
-    keep[NODES_PER_DECADE * (k_lo - _K_LO):NODES_PER_DECADE * (k_hi + 1 - _K_LO)] = False
+    keep[NODES_PER_DECADE * (k_lo - _K_LO) : NODES_PER_DECADE * (k_hi + 1 - _K_LO)] = False
     fine = [_decade_nodes(d, p) for d in range(k_lo, k_hi + 1)]
-    t2, lt2, w2 = (np.concatenate([v[keep]] + [f[j] for f in fine]) for j, v in
-                   enumerate((t, lt, w)))
+    t2, lt2, w2 = (
+        np.concatenate([v[keep]] + [f[j] for f in fine]) for j, v in enumerate((t, lt, w))
+    )
     return t2, lt2, w2
 
 
-def _expect_t(base: BaseDfe, fn: Callable[[np.ndarray], np.ndarray],
-              small_t: tuple[float, float]) -> float:
+def _expect_t(
+    base: BaseDfe, fn: Callable[[np.ndarray], np.ndarray], small_t: tuple[float, float]
+) -> float:
     """E[fn(T)] on the same ln t nodes as the DFE-averaged spectra (standard decades,
     refined where a narrow DFE has its bulk); ``small_t = (fn(0), fn'(0))`` for the mass
     below T_LO."""
@@ -160,9 +165,11 @@ def mean_fixation_ratio(dfe: Dfe) -> float:
         if not (math.isfinite(r) and r > 0):  # extreme parameters: fall back to quadrature
             r = math.nan
     if math.isnan(r):
+
         def fn(t: np.ndarray) -> np.ndarray:
             with np.errstate(over="ignore"):  # t/expm1(t) -> 0 for large t, as wanted
                 return t / np.expm1(t)
+
         r = _expect_t(base, fn, (1.0, -0.5))
     if p_b > 0:
         r = (1.0 - p_b) * r + p_b * float(fixation_ratio(s_b))
@@ -231,8 +238,9 @@ class _Fine(_Nodes):
         self.log_tw = self.log_t + np.log(np.concatenate([v[2] for v in nodes]))
         self.G = np.concatenate(parts)
         # rows of the standard table that these nodes replace
-        self.std_rows = slice(NODES_PER_DECADE * (k_lo - _K_LO),
-                              NODES_PER_DECADE * (k_hi + 1 - _K_LO))
+        self.std_rows = slice(
+            NODES_PER_DECADE * (k_lo - _K_LO), NODES_PER_DECADE * (k_hi + 1 - _K_LO)
+        )
 
 
 class _Table(_Nodes):
@@ -242,8 +250,8 @@ class _Table(_Nodes):
         n = k.n
         self.t, self.log_t, self.w = _panels(breaks)
         G = np.empty((self.t.size + 2, n - 1))
-        G[0] = 1.0 / np.arange(1, n)           # weight: P(T < T_LO)
-        G[1] = -1.0 / (2.0 * (n + 1))          # weight: E[T; T < T_LO]
+        G[0] = 1.0 / np.arange(1, n)  # weight: P(T < T_LO)
+        G[1] = -1.0 / (2.0 * (n + 1))  # weight: E[T; T < T_LO]
         G[2:] = _g_rows(k, self.t)
         self.G = G
         self.G_nodes = G[2:]
@@ -255,7 +263,6 @@ class _Table(_Nodes):
     def mean(self, base: BaseDfe) -> np.ndarray:
         p0, m0 = base._small_t(T_LO)
         return self.node_weights(base) @ self.G_nodes + (p0 * self.G[0] + m0 * self.G[1])
-
 
 
 class DfeExpectation:
@@ -390,8 +397,11 @@ class DfeExpectation:
         elif (nar := self._narrow(base)) is not None:
             w_std, blk = nar
             p0, m0 = base._small_t(T_LO)
-            out = (w_std @ self._std.G_nodes + blk.node_weights(base) @ blk.G
-                   + (p0 * self.G[0] + m0 * self.G[1]))
+            out = (
+                w_std @ self._std.G_nodes
+                + blk.node_weights(base) @ blk.G
+                + (p0 * self.G[0] + m0 * self.G[1])
+            )
         else:
             out = self._table(_breaks(base)).mean(base)
         if p_b:
@@ -422,7 +432,8 @@ class DfeExpectation:
             else:
                 lo, hi = v - h, v + h
             d = self.mean_g(dfe.with_params(**{name: hi})) - self.mean_g(
-                dfe.with_params(**{name: lo}))
+                dfe.with_params(**{name: lo})
+            )
             rows.append(d / (hi - lo))
         return np.array(rows)
 
@@ -433,8 +444,9 @@ class DfeExpectation:
         if out is None:
             K = len(e)
             tab = self._table(DiscreteDfe((1.0,) + (0.0,) * (K - 1), e).breakpoints_t)
-            out = np.array([tab.mean(DiscreteDfe(tuple(float(j == k) for j in range(K)), e))
-                            for k in range(K)])
+            out = np.array(
+                [tab.mean(DiscreteDfe(tuple(float(j == k) for j in range(K)), e)) for k in range(K)]
+            )
             out.setflags(write=False)
             self._band_means[e] = out
         return out

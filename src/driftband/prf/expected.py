@@ -145,8 +145,11 @@ class SfsKernel:
         """``log A`` for the given class rows (0-based; all rows if None)."""
         i = self._i if rows is None else self._i[rows]
         c = self._log_a_row if rows is None else self._log_a_row[rows]
-        return (c[:, None] + i[:, None] * self.log_x[None, :]
-                + (self.n - i)[:, None] * self.log_1mx[None, :])
+        return (
+            c[:, None]
+            + i[:, None] * self.log_x[None, :]
+            + (self.n - i)[:, None] * self.log_1mx[None, :]
+        )
 
     # -- weights ---------------------------------------------------------------------
     def _weights(self, S: np.ndarray) -> np.ndarray:
@@ -160,7 +163,7 @@ class SfsKernel:
                 np.expm1(W, out=W)
                 W /= np.expm1(-col)
             elif S[0] <= -1e-150:
-                W = np.multiply(col, self.x)           # -t x
+                W = np.multiply(col, self.x)  # -t x
                 np.exp(W, out=W)
                 tmp = np.multiply(col, self.one_minus_x)
                 np.expm1(tmp, out=tmp)
@@ -178,7 +181,7 @@ class SfsKernel:
         for kind in (0, 1, 2):
             idx = np.flatnonzero(kinds == kind)
             for lo in range(0, idx.size, _CHUNK):
-                sub = idx[lo:lo + _CHUNK]
+                sub = idx[lo : lo + _CHUNK]
                 res = self._weights(flat[sub]) @ self.A.T
                 if sub.size == flat.size:
                     return res
@@ -314,8 +317,9 @@ def fold_sfs(E: ArrayLike, n: int) -> np.ndarray:
     n = _check_n(n)
     E = np.asarray(E, dtype=float)
     if E.shape[-1:] != (n - 1,):
-        raise ValueError(f"`E` must have n - 1 = {n - 1} entries on its last axis, "
-                         f"got shape {E.shape}")
+        raise ValueError(
+            f"`E` must have n - 1 = {n - 1} entries on its last axis, got shape {E.shape}"
+        )
     m = n // 2
     out = E[..., :m] + E[..., ::-1][..., :m]
     if n % 2 == 0:

@@ -52,7 +52,7 @@ OPEN_BAND_DECADES = 3.0
 #: A DFE whose ln t has a standard deviation below this gets extra panels over its bulk.
 NARROW_SD = 0.5
 #: Gamma shape above which sd(ln t) = sqrt(trigamma(shape)) < NARROW_SD.
-_GAMMA_NARROW_SHAPE = float(brentq(lambda b: polygamma(1, b) - NARROW_SD ** 2, 0.5, 100.0))
+_GAMMA_NARROW_SHAPE = float(brentq(lambda b: polygamma(1, b) - NARROW_SD**2, 0.5, 100.0))
 
 
 def _check_pos(name: str, value: float) -> float:
@@ -65,11 +65,14 @@ def _check_pos(name: str, value: float) -> float:
 def check_band_edges(edges_nes: Iterable[float]) -> tuple[float, ...]:
     e = tuple(float(v) for v in edges_nes)
     if len(e) < 2 or e[0] != 0.0:
-        raise ValueError(f"band edges on |Ne s| must start at 0 and have at least two "
-                         f"values, e.g. 0,1,10,100; got {edges_nes!r}")
+        raise ValueError(
+            f"band edges on |Ne s| must start at 0 and have at least two "
+            f"values, e.g. 0,1,10,100; got {edges_nes!r}"
+        )
     if not all(math.isfinite(v) for v in e) or any(b <= a for a, b in zip(e, e[1:])):
-        raise ValueError(f"band edges on |Ne s| must be finite and strictly increasing, "
-                         f"got {edges_nes!r}")
+        raise ValueError(
+            f"band edges on |Ne s| must be finite and strictly increasing, got {edges_nes!r}"
+        )
     return e
 
 
@@ -86,6 +89,7 @@ class _Deleterious:
     family = ""
 
     if TYPE_CHECKING:  # defined by every family
+
         def cdf_t(self, t: ArrayLike) -> np.ndarray: ...
 
         def partial_mean_t(self, c: float) -> float: ...
@@ -180,8 +184,10 @@ class GammaDfe(_Deleterious):
         return self.shape > _GAMMA_NARROW_SHAPE
 
     def bulk_log_t(self) -> tuple[float, float]:
-        return (float(digamma(self.shape) - math.log(self.rate)),
-                float(math.sqrt(polygamma(1, self.shape))))
+        return (
+            float(digamma(self.shape) - math.log(self.rate)),
+            float(math.sqrt(polygamma(1, self.shape))),
+        )
 
     def sample_t(self, size: int | tuple[int, ...], rng: np.random.Generator) -> np.ndarray:
         """Random draws of t (ndarray of shape ``size``)."""
@@ -270,8 +276,9 @@ class DiscreteDfe(_Deleterious):
         e = check_band_edges(self.edges_nes)
         m = tuple(float(v) for v in self.masses)
         if len(m) != len(e):
-            raise ValueError(f"`masses` needs one value per band ({len(e)} bands for edges "
-                             f"{e}), got {len(m)}")
+            raise ValueError(
+                f"`masses` needs one value per band ({len(e)} bands for edges {e}), got {len(m)}"
+            )
         if not all(math.isfinite(v) and v >= 0 for v in m):
             raise ValueError(f"`masses` must be non-negative and finite, got {m}")
         if abs(math.fsum(m) - 1.0) > 1e-8:
@@ -300,7 +307,7 @@ class DiscreteDfe(_Deleterious):
         """Bands on t as (low, high, log_uniform) triples."""
         e = [4.0 * v for v in self.edges_nes]
         out = [(a, b, False) for a, b in zip(e[:-1], e[1:])]
-        out.append((e[-1], e[-1] * 10.0 ** OPEN_BAND_DECADES, True))
+        out.append((e[-1], e[-1] * 10.0**OPEN_BAND_DECADES, True))
         return out
 
     @property
@@ -320,13 +327,20 @@ class DiscreteDfe(_Deleterious):
 
     def cdf_t(self, t: ArrayLike) -> np.ndarray:
         """P(T <= t), array like ``t``."""
-        return cast(np.ndarray, sum(m * self._frac(t, a, b, lg)
-                                    for m, (a, b, lg) in zip(self.masses, self.bands_t)))
+        return cast(
+            np.ndarray,
+            sum(m * self._frac(t, a, b, lg) for m, (a, b, lg) in zip(self.masses, self.bands_t)),
+        )
 
     def sf_t(self, t: ArrayLike) -> np.ndarray:
         """P(T > t), array like ``t``."""
-        return cast(np.ndarray, sum(m * (1.0 - self._frac(t, a, b, lg))
-                                    for m, (a, b, lg) in zip(self.masses, self.bands_t)))
+        return cast(
+            np.ndarray,
+            sum(
+                m * (1.0 - self._frac(t, a, b, lg))
+                for m, (a, b, lg) in zip(self.masses, self.bands_t)
+            ),
+        )
 
     def logpdf_t(self, t: ArrayLike, log_t: np.ndarray | None = None) -> np.ndarray:
         """Log density of t (``-inf`` outside the support), array like ``t``."""
@@ -334,8 +348,7 @@ class DiscreteDfe(_Deleterious):
         dens = np.zeros_like(t)
         for m, (a, b, lg) in zip(self.masses, self.bands_t):
             inside = (t >= a) & (t < b)
-            dens = dens + np.where(inside, m / (t * math.log(b / a)) if lg else m / (b - a),
-                                   0.0)
+            dens = dens + np.where(inside, m / (t * math.log(b / a)) if lg else m / (b - a), 0.0)
         with np.errstate(divide="ignore"):
             return np.log(dens)
 
@@ -428,8 +441,7 @@ def split_dfe(dfe: Dfe) -> tuple[BaseDfe, float, float]:
 
 
 # ------------------------------------------------------------------------ band shares
-def deleterious_band_shares(dfe: Dfe,
-                            edges_nes: Iterable[float] = DEFAULT_EDGES_NES) -> np.ndarray:
+def deleterious_band_shares(dfe: Dfe, edges_nes: Iterable[float] = DEFAULT_EDGES_NES) -> np.ndarray:
     r"""Shares of the deleterious part of a DFE in |Ne s| bands (sum to 1).
 
     Share ``k`` is :math:`\Pr(e_k \le t/4 < e_{k+1})`, the last band open. Computed from
@@ -501,8 +513,9 @@ def band_shares(dfe: Dfe, edges_nes: Iterable[float] = DEFAULT_EDGES_NES) -> np.
     return out
 
 
-def sample_S(dfe: Dfe, size: int | tuple[int, ...],
-             rng: np.random.Generator | None = None) -> np.ndarray:
+def sample_S(
+    dfe: Dfe, size: int | tuple[int, ...], rng: np.random.Generator | None = None
+) -> np.ndarray:
     """Random draws of S = 4 Ne s from a DFE (deleterious negative), e.g. for simulation.
 
     Parameters

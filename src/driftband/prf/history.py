@@ -113,14 +113,15 @@ def _check(name: str, value: float, lo: float, hi: float, what: str) -> float:
     try:
         v = float(value)
     except (TypeError, ValueError):
-        raise OptionError(f"size history: `{name}` ({what}) must be a number, "
-                          f"got {value!r}") from None
+        raise OptionError(
+            f"size history: `{name}` ({what}) must be a number, got {value!r}"
+        ) from None
     if not math.isfinite(v) or v <= 0:
-        raise OptionError(f"size history: `{name}` ({what}) must be a positive number, "
-                          f"got {value!r}")
+        raise OptionError(
+            f"size history: `{name}` ({what}) must be a positive number, got {value!r}"
+        )
     if not lo <= v <= hi:
-        raise OptionError(f"size history: `{name}` ({what}) must be in [{lo:g}, {hi:g}], "
-                          f"got {v:g}")
+        raise OptionError(f"size history: `{name}` ({what}) must be in [{lo:g}, {hi:g}], got {v:g}")
     return v
 
 
@@ -132,13 +133,15 @@ def _tau(name: str, value: float) -> float:
     return _check(name, value, *TAU_RANGE, "duration in units of 2 N_anc generations")
 
 
-def _sim_epochs(changes: list[tuple[float, float]], ancestral_size: int
-                ) -> tuple[tuple[int, int], ...]:
+def _sim_epochs(
+    changes: list[tuple[float, float]], ancestral_size: int
+) -> tuple[tuple[int, int], ...]:
     """``(generations_ago, size)`` epochs from ``(tau_ago, nu)`` pairs, oldest last."""
     n_anc = int(ancestral_size)
     if n_anc < 1:
-        raise OptionError(f"`ancestral_size` must be a positive whole number, got "
-                          f"{ancestral_size!r}")
+        raise OptionError(
+            f"`ancestral_size` must be a positive whole number, got {ancestral_size!r}"
+        )
     out: list[tuple[int, int]] = []
     for ago, nu in changes:
         g = int(round(2 * n_anc * ago))
@@ -237,8 +240,9 @@ class TwoChanges:
 
     def simulator_epochs(self, ancestral_size: int) -> tuple[tuple[int, int], ...]:
         """The history as the simulator's ``(generations_ago, diploid_size)`` epochs."""
-        return _sim_epochs([(0.0, self.nu2), (self.tau2, self.nu1),
-                            (self.tau1 + self.tau2, 1.0)], ancestral_size)
+        return _sim_epochs(
+            [(0.0, self.nu2), (self.tau2, self.nu1), (self.tau1 + self.tau2, 1.0)], ancestral_size
+        )
 
 
 @dataclass(frozen=True)
@@ -337,16 +341,24 @@ class HistorySfs:
     True
     """
 
-    def __init__(self, n: int, history: History,
-                 reference: Literal["current", "ancestral"] = "current",
-                 resolution: _Resolution | None = None) -> None:
+    def __init__(
+        self,
+        n: int,
+        history: History,
+        reference: Literal["current", "ancestral"] = "current",
+        resolution: _Resolution | None = None,
+    ) -> None:
         self.n = _check_n(n)
         if not isinstance(history, _HISTORY_TYPES):
-            raise TypeError(f"`history` must be one of {[t.__name__ for t in _HISTORY_TYPES]}"
-                            f", got {type(history).__name__}")
+            raise TypeError(
+                f"`history` must be one of {[t.__name__ for t in _HISTORY_TYPES]}"
+                f", got {type(history).__name__}"
+            )
         if reference not in ("current", "ancestral"):
-            raise OptionError(f"`reference` (size that S and theta refer to) must be "
-                              f"'current' or 'ancestral', got {reference!r}")
+            raise OptionError(
+                f"`reference` (size that S and theta refer to) must be "
+                f"'current' or 'ancestral', got {reference!r}"
+            )
         self.history = history
         self.reference = reference
         self.res = DEFAULT_RESOLUTION if resolution is None else resolution
@@ -366,8 +378,14 @@ class HistorySfs:
             log_x = -np.logaddexp(0.0, -yf)
             log_1mx = -np.logaddexp(0.0, yf)
             i = np.arange(1, n, dtype=float)
-            Kf = np.exp(_log_binom(n)[:, None] + i[:, None] * log_x[None, :]
-                        + (n - i)[:, None] * log_1mx[None, :]) * hf
+            Kf = (
+                np.exp(
+                    _log_binom(n)[:, None]
+                    + i[:, None] * log_x[None, :]
+                    + (n - i)[:, None] * log_1mx[None, :]
+                )
+                * hf
+            )
             if ratio == 1:
                 W = Kf
             else:
@@ -396,27 +414,44 @@ class HistorySfs:
         for T, nu0, nu1 in epochs:
             d = d + g_eq(nu_prev) - g_eq(nu0)
             if nu0 == nu1:
+
                 def const_a(t: float, a: float = 1.0 / nu0) -> float:
                     return a
 
-                d, _ = _hs.evolve(grid, d, T, const_a, b, levels=r.levels, rho=r.rho,
-                                  cap_adv=r.cap_adv)
+                d, _ = _hs.evolve(
+                    grid, d, T, const_a, b, levels=r.levels, rho=r.rho, cap_adv=r.cap_adv
+                )
             else:
                 rate = math.log(nu1 / nu0) / T
+
                 def a_of_t(t: float, nu0: float = nu0, rate: float = rate) -> float:
                     return 1.0 / (nu0 * math.exp(rate * t))
 
-                def src(t: float, nu0: float = nu0, rate: float = rate,
-                        eps: float = 1e-4) -> np.ndarray:
+                def src(
+                    t: float, nu0: float = nu0, rate: float = rate, eps: float = 1e-4
+                ) -> np.ndarray:
                     # d/dt of nu w_{nu S}: central difference in ln nu (error ~ eps^2)
                     nu_t = nu0 * math.exp(rate * t)
-                    return rate * (g_eq(nu_t * math.exp(eps)) - g_eq(nu_t * math.exp(-eps))
-                                   ) / (2 * eps)
+                    return (
+                        rate
+                        * (g_eq(nu_t * math.exp(eps)) - g_eq(nu_t * math.exp(-eps)))
+                        / (2 * eps)
+                    )
 
                 cap = T / max(4.0, 8.0 * abs(math.log(nu1 / nu0)))
-                d, _ = _hs.evolve(grid, d, T, a_of_t, b, src_of_t=src, levels=r.levels,
-                                  rho=r.rho, cap_adv=r.cap_adv, cap_nu=cap,
-                                  a_max=1.0 / min(nu0, nu1))
+                d, _ = _hs.evolve(
+                    grid,
+                    d,
+                    T,
+                    a_of_t,
+                    b,
+                    src_of_t=src,
+                    levels=r.levels,
+                    rho=r.rho,
+                    cap_adv=r.cap_adv,
+                    cap_nu=cap,
+                    a_max=1.0 / min(nu0, nu1),
+                )
             nu_prev = nu1
         return eq_now + d @ W.T
 
@@ -447,7 +482,7 @@ class HistorySfs:
         # similar |S| together: the time mesh of a batch is set by its largest |S|
         order = np.argsort(np.abs(S_anc), kind="stable")
         for lo in range(0, flat.size, chunk):
-            idx = order[lo:lo + chunk]
+            idx = order[lo : lo + chunk]
             out[idx] = self._g_anc(S_anc[idx]) / nu_ref
         return out.reshape(S.shape + (self.n - 1,))
 
@@ -462,8 +497,9 @@ class HistorySfs:
         return f"HistorySfs(n={self.n}, history={self.history!r}, reference={self.reference!r})"
 
 
-def history_sfs(n: int, S: ArrayLike, history: History,
-                reference: Literal["current", "ancestral"] = "current") -> np.ndarray:
+def history_sfs(
+    n: int, S: ArrayLike, history: History, reference: Literal["current", "ancestral"] = "current"
+) -> np.ndarray:
     r"""Expected unfolded spectrum under a size history, per unit :math:`\theta L`.
 
     Parameters

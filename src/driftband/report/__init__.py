@@ -37,9 +37,12 @@ __all__ = [
 ]
 
 
-def build_report(fit_doc: dict[str, Any], compare_rows: list[dict[str, Any]] | None,
-                 spectra_docs: dict[str, dict[str, Any]] | None,
-                 provenance: dict[str, Any]) -> str:
+def build_report(
+    fit_doc: dict[str, Any],
+    compare_rows: list[dict[str, Any]] | None,
+    spectra_docs: dict[str, dict[str, Any]] | None,
+    provenance: dict[str, Any],
+) -> str:
     """The HTML report of a study, as one self-contained document.
 
     Plots are SVG images embedded as ``data:`` URIs; the page needs no network access and
@@ -78,9 +81,12 @@ def build_report(fit_doc: dict[str, Any], compare_rows: list[dict[str, Any]] | N
     return render_html(collect(fit_doc, compare_rows, spectra_docs, provenance))
 
 
-def build_summary_md(fit_doc: dict[str, Any], compare_rows: list[dict[str, Any]] | None,
-                     spectra_docs: dict[str, dict[str, Any]] | None,
-                     provenance: dict[str, Any]) -> str:
+def build_summary_md(
+    fit_doc: dict[str, Any],
+    compare_rows: list[dict[str, Any]] | None,
+    spectra_docs: dict[str, dict[str, Any]] | None,
+    provenance: dict[str, Any],
+) -> str:
     """The Markdown summary: the report's headline numbers, comparisons and warnings.
 
     Parameters

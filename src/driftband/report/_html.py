@@ -81,16 +81,22 @@ def _cell(v: Any, tag: str = "td") -> str:
 Cell = Any
 
 
-def _table(tid: str, caption: str, header: list[str], rows: Iterable[tuple[list[Cell], str]],
-           css: str = "") -> str:
+def _table(
+    tid: str, caption: str, header: list[str], rows: Iterable[tuple[list[Cell], str]], css: str = ""
+) -> str:
     """A table; each row is (cells, row css class); a cell is a value or (value, class)."""
-    out = ['<div class="wrap">',
-           f'<table id="{esc(tid)}"{f" class={chr(34)}{css}{chr(34)}" if css else ""}>',
-           f"<caption>{esc(caption)}</caption>",
-           "<thead><tr>" + "".join(_cell(h, "th") for h in header) + "</tr></thead><tbody>"]
+    out = [
+        '<div class="wrap">',
+        f'<table id="{esc(tid)}"{f" class={chr(34)}{css}{chr(34)}" if css else ""}>',
+        f"<caption>{esc(caption)}</caption>",
+        "<thead><tr>" + "".join(_cell(h, "th") for h in header) + "</tr></thead><tbody>",
+    ]
     for cells, rcls in rows:
-        out.append(f"<tr{f' class={chr(34)}{rcls}{chr(34)}' if rcls else ''}>"
-                   + "".join(_cell(c) for c in cells) + "</tr>")
+        out.append(
+            f"<tr{f' class={chr(34)}{rcls}{chr(34)}' if rcls else ''}>"
+            + "".join(_cell(c) for c in cells)
+            + "</tr>"
+        )
     out.append("</tbody></table></div>")
     return "\n".join(out)
 
@@ -100,8 +106,10 @@ def _num(text: str) -> tuple[str, str]:
 
 
 def _figure(uri: str, alt: str, caption: str) -> str:
-    return (f'<figure><img src="{uri}" alt="{esc(alt)}">'
-            f"<figcaption>{esc(caption)}</figcaption></figure>")
+    return (
+        f'<figure><img src="{uri}" alt="{esc(alt)}">'
+        f"<figcaption>{esc(caption)}</figcaption></figure>"
+    )
 
 
 def _status(ok: bool) -> tuple[str, str]:
@@ -115,51 +123,89 @@ def _answer(view: ReportView) -> str:
     sel, lvl = view.selected, pct(view.level)
     b0 = view.populations[0].bands[0]
     has_ds = len({v.dataset for v in view.populations}) > 1
-    head = ["Population"] + (["Dataset"] if has_ds else []) + [
-        "Best model (AIC)", f"Share, |Ne\u00b7s| < {b0.hi:g}", f"{lvl} interval",
-        "Bootstrap (replicates, blocks)", "Fit"]
+    head = (
+        ["Population"]
+        + (["Dataset"] if has_ds else [])
+        + [
+            "Best model (AIC)",
+            f"Share, |Ne\u00b7s| < {b0.hi:g}",
+            f"{lvl} interval",
+            "Bootstrap (replicates, blocks)",
+            "Fit",
+        ]
+    )
     rows = []
     for v in view.populations:
         b = v.bands[0]
-        boot = (f"{v.replicates}, {v.blocks}" if v.replicates is not None else "none")
-        rows.append(([v.name] + ([v.dataset] if has_ds else []) + [
-            v.best, (fnum(b.share), "num share"), _num(frange(b.ci_low, b.ci_high)),
-            _num(boot), _status(v.converged)], ""))
-    out = ['<section id="answer"><h2>The answer: effectively neutral share per population</h2>',
-           f"<p>Share of new mutations at {esc(sel)} (selected-class) sites whose scaled "
-           f"effect lies in the effectively neutral band |Ne\u00b7s| &lt; {b0.hi:g} "
-           f"(|S| &lt; {4 * b0.hi:g}), under each population's AIC-best DFE model, with "
-           f"{esc(lvl)} block-bootstrap percentile intervals.</p>",
-           _table("headline", "Effectively neutral share of new mutations", head, rows,
-                  "headline"),
-           '<ul class="answer">' + "".join(f"<li>{esc(answer_sentence(v, sel))}</li>"
-                                            for v in view.populations) + "</ul>"]
+        boot = f"{v.replicates}, {v.blocks}" if v.replicates is not None else "none"
+        rows.append(
+            (
+                [v.name]
+                + ([v.dataset] if has_ds else [])
+                + [
+                    v.best,
+                    (fnum(b.share), "num share"),
+                    _num(frange(b.ci_low, b.ci_high)),
+                    _num(boot),
+                    _status(v.converged),
+                ],
+                "",
+            )
+        )
+    out = [
+        '<section id="answer"><h2>The answer: effectively neutral share per population</h2>',
+        f"<p>Share of new mutations at {esc(sel)} (selected-class) sites whose scaled "
+        f"effect lies in the effectively neutral band |Ne\u00b7s| &lt; {b0.hi:g} "
+        f"(|S| &lt; {4 * b0.hi:g}), under each population's AIC-best DFE model, with "
+        f"{esc(lvl)} block-bootstrap percentile intervals.</p>",
+        _table("headline", "Effectively neutral share of new mutations", head, rows, "headline"),
+        '<ul class="answer">'
+        + "".join(f"<li>{esc(answer_sentence(v, sel))}</li>" for v in view.populations)
+        + "</ul>",
+    ]
     flagged = [v for v in view.populations if v.flags]
     if flagged:
-        links = ", ".join(f'<a href="#{v.anchor}">{esc(v.name)}</a> ({len(v.flags)})'
-                          for v in flagged)
-        out.append(f'<p class="flag">\u26a0 Fit or data warnings for {links}: read them in '
-                   "the population sections before relying on these numbers.</p>")
+        links = ", ".join(
+            f'<a href="#{v.anchor}">{esc(v.name)}</a> ({len(v.flags)})' for v in flagged
+        )
+        out.append(
+            f'<p class="flag">\u26a0 Fit or data warnings for {links}: read them in '
+            "the population sections before relying on these numbers.</p>"
+        )
     else:
         out.append('<p class="ok">\u2713 Every best-model fit converged; no data warnings.</p>')
-    pops = [{"name": v.name, "model": v.best,
-             "bands": [(b.label, b.label_s, b.share, b.ci_low, b.ci_high) for b in v.bands]}
-            for v in view.populations]
-    out.append(_figure(
-        bands_figure(pops, sel, lvl),
-        "Grouped bar chart of band shares for every population",
-        f"Share of new {sel} mutations in each band of |Ne\u00b7s| (bottom axis) and of "
-        f"|S| = 4|Ne\u00b7s| (top axis), AIC-best model per population; black bars: {lvl} "
-        "bootstrap percentile intervals; the shaded band is the effectively neutral one. "
-        "Colours: Okabe\u2013Ito colour-blind-safe palette, with hatching per population."))
+    pops = [
+        {
+            "name": v.name,
+            "model": v.best,
+            "bands": [(b.label, b.label_s, b.share, b.ci_low, b.ci_high) for b in v.bands],
+        }
+        for v in view.populations
+    ]
+    out.append(
+        _figure(
+            bands_figure(pops, sel, lvl),
+            "Grouped bar chart of band shares for every population",
+            f"Share of new {sel} mutations in each band of |Ne\u00b7s| (bottom axis) and of "
+            f"|S| = 4|Ne\u00b7s| (top axis), AIC-best model per population; black bars: {lvl} "
+            "bootstrap percentile intervals; the shaded band is the effectively neutral one. "
+            "Colours: Okabe\u2013Ito colour-blind-safe palette, with hatching per population.",
+        )
+    )
     bands = view.populations[0].bands
     head = ["Population", "Model"] + [f"|Ne\u00b7s| {b.label} (|S| {b.label_s})" for b in bands]
     rows = []
     for v in view.populations:
-        rows.append(([v.name, v.best] + [
-            _num(f"{fnum(b.share)} ({frange(b.ci_low, b.ci_high)})") for b in v.bands], ""))
-    out.append(_table("bands", f"Shares in all |Ne\u00b7s| bands, estimate ({lvl} interval)",
-                      head, rows))
+        rows.append(
+            (
+                [v.name, v.best]
+                + [_num(f"{fnum(b.share)} ({frange(b.ci_low, b.ci_high)})") for b in v.bands],
+                "",
+            )
+        )
+    out.append(
+        _table("bands", f"Shares in all |Ne\u00b7s| bands, estimate ({lvl} interval)", head, rows)
+    )
     out.append("</section>")
     return "\n".join(out)
 
@@ -167,26 +213,34 @@ def _answer(view: ReportView) -> str:
 def _comparisons(view: ReportView) -> str:
     out = ['<section id="comparisons"><h2>Comparisons between populations</h2>']
     if view.compare_rows is None:
-        out.append("<p>No comparison table was given (make one with 'driftband compare' "
-                   "and pass it with --compare).</p></section>")
+        out.append(
+            "<p>No comparison table was given (make one with 'driftband compare' "
+            "and pass it with --compare).</p></section>"
+        )
         return "\n".join(out)
     for pair in view.pairs:
         out.append(f"<h3>{esc(pair.a)} and {esc(pair.b)}</h3>")
-        out.append('<ul class="pair">' + "".join(f"<li>{esc(s)}</li>"
-                                                 for _t, s in pair.sentences) + "</ul>")
-    how = (f"p-values are adjusted across pairs, test by test ({esc(view.adjust_method)})."
-           if view.adjust_known else
-           "p-values are adjusted across pairs, test by test, by 'driftband compare' (Holm "
-           "unless it was run with another --adjust; the table does not record the method).")
-    out.append(f'<p class="note">{how} The neutral-share difference uses paired bootstrap '
-               "replicates; the likelihood-ratio tests refer their statistic to \u03c7\u00b2 "
-               "with the number of DFE parameters as degrees of freedom. The Ne ratio of "
-               "the 'only Ne differs' test comes from neutral diversity and carries the "
-               "stated mutation-rate assumption.</p>")
+        out.append(
+            '<ul class="pair">'
+            + "".join(f"<li>{esc(s)}</li>" for _t, s in pair.sentences)
+            + "</ul>"
+        )
+    how = (
+        f"p-values are adjusted across pairs, test by test ({esc(view.adjust_method)})."
+        if view.adjust_known
+        else "p-values are adjusted across pairs, test by test, by 'driftband compare' (Holm "
+        "unless it was run with another --adjust; the table does not record the method)."
+    )
+    out.append(
+        f'<p class="note">{how} The neutral-share difference uses paired bootstrap '
+        "replicates; the likelihood-ratio tests refer their statistic to \u03c7\u00b2 "
+        "with the number of DFE parameters as degrees of freedom. The Ne ratio of "
+        "the 'only Ne differs' test comes from neutral diversity and carries the "
+        "stated mutation-rate assumption.</p>"
+    )
     known = list(_COMPARE_HEADERS)
     extra = sorted({k for r in view.compare_rows for k in r} - set(known) - {"_line"})
-    cols = [c for c in known + extra
-            if any(r.get(c) not in (None, "") for r in view.compare_rows)]
+    cols = [c for c in known + extra if any(r.get(c) not in (None, "") for r in view.compare_rows)]
     rows = []
     for r in view.compare_rows:
         cells: list[Cell] = []
@@ -205,18 +259,34 @@ def _comparisons(view: ReportView) -> str:
             else:
                 cells.append("" if v is None else v)
         rows.append((cells, ""))
-    out.append(_table("compare-table", "All comparisons (compare.tsv; empty columns left out)",
-                      [_COMPARE_HEADERS.get(c, c) for c in cols], rows))
+    out.append(
+        _table(
+            "compare-table",
+            "All comparisons (compare.tsv; empty columns left out)",
+            [_COMPARE_HEADERS.get(c, c) for c in cols],
+            rows,
+        )
+    )
     out.append("</section>")
     return "\n".join(out)
 
 
 _COMPARE_HEADERS = {
-    "population_a": "A", "population_b": "B", "test": "Test", "model": "Model",
-    "statistic": "Statistic", "df": "df", "p_value": "p", "p_adjusted": "Adjusted p",
-    "estimate": "Estimate", "ci_low": "CI low", "ci_high": "CI high",
-    "ne_ratio": "Ne ratio B/A", "predicted_share_b": "Predicted share B",
-    "observed_share_b": "Observed share B", "note": "Note",
+    "population_a": "A",
+    "population_b": "B",
+    "test": "Test",
+    "model": "Model",
+    "statistic": "Statistic",
+    "df": "df",
+    "p_value": "p",
+    "p_adjusted": "Adjusted p",
+    "estimate": "Estimate",
+    "ci_low": "CI low",
+    "ci_high": "CI high",
+    "ne_ratio": "Ne ratio B/A",
+    "predicted_share_b": "Predicted share B",
+    "observed_share_b": "Observed share B",
+    "note": "Note",
 }
 
 
@@ -227,20 +297,45 @@ def _aic_table(v: PopulationView) -> str:
         for r in table:
             m = r.get("model")
             conv = r.get("converged", v.record["models"].get(m, {}).get("success"))
-            rows.append(([m, _num(fsig(r.get("loglik"), 6)), _num(fnum(r.get("n_params"), 0)),
-                          _num(fsig(r.get("aic"), 6)), _num(fnum(r.get("delta_aic"), 2)),
-                          _num(fnum(r.get("weight"), 3)), _status(bool(conv))],
-                         "best" if m == v.best else ""))
+            rows.append(
+                (
+                    [
+                        m,
+                        _num(fsig(r.get("loglik"), 6)),
+                        _num(fnum(r.get("n_params"), 0)),
+                        _num(fsig(r.get("aic"), 6)),
+                        _num(fnum(r.get("delta_aic"), 2)),
+                        _num(fnum(r.get("weight"), 3)),
+                        _status(bool(conv)),
+                    ],
+                    "best" if m == v.best else "",
+                )
+            )
     else:
-        for m, f in sorted(v.record["models"].items(),
-                           key=lambda kv: kv[1].get("aic") if is_num(kv[1].get("aic"))
-                           else math.inf):
-            rows.append(([m, _num(fsig(f.get("loglik"), 6)), _num(fnum(f.get("n_params"), 0)),
-                          _num(fsig(f.get("aic"), 6)), _num(NA), _num(NA),
-                          _status(bool(f.get("success")))], "best" if m == v.best else ""))
-    return _table(f"aic-{v.anchor}", f"Model comparison, {v.name} (best model highlighted)",
-                  ["Model", "log-likelihood", "parameters", "AIC", "\u0394AIC",
-                   "Akaike weight", "Fit"], rows)
+        for m, f in sorted(
+            v.record["models"].items(),
+            key=lambda kv: kv[1].get("aic") if is_num(kv[1].get("aic")) else math.inf,
+        ):
+            rows.append(
+                (
+                    [
+                        m,
+                        _num(fsig(f.get("loglik"), 6)),
+                        _num(fnum(f.get("n_params"), 0)),
+                        _num(fsig(f.get("aic"), 6)),
+                        _num(NA),
+                        _num(NA),
+                        _status(bool(f.get("success"))),
+                    ],
+                    "best" if m == v.best else "",
+                )
+            )
+    return _table(
+        f"aic-{v.anchor}",
+        f"Model comparison, {v.name} (best model highlighted)",
+        ["Model", "log-likelihood", "parameters", "AIC", "\u0394AIC", "Akaike weight", "Fit"],
+        rows,
+    )
 
 
 def _models_in_order(v: PopulationView) -> list[str]:
@@ -249,8 +344,9 @@ def _models_in_order(v: PopulationView) -> list[str]:
 
 def _shares_table(v: PopulationView) -> str:
     edges = [b.lo for b in v.bands] + [math.inf]
-    head = ["Model"] + [f"|Ne\u00b7s| {band_label(edges[k], edges[k + 1])}"
-                        for k in range(len(v.bands))]
+    head = ["Model"] + [
+        f"|Ne\u00b7s| {band_label(edges[k], edges[k + 1])}" for k in range(len(v.bands))
+    ]
     rows = []
     for m in _models_in_order(v):
         f = v.record["models"][m]
@@ -260,9 +356,13 @@ def _shares_table(v: PopulationView) -> str:
             c = ci[k] if k < len(ci) and isinstance(ci[k], list) and len(ci[k]) == 2 else [None] * 2
             cells.append(_num(f"{fnum(s)} ({frange(c[0], c[1])})"))
         rows.append((cells, "best" if m == v.best else ""))
-    return _table(f"shares-{v.anchor}",
-                  f"Band shares under every model, {v.name}: estimate ({pct(v.level)} "
-                  "interval) \u2014 how much the answer depends on the model", head, rows)
+    return _table(
+        f"shares-{v.anchor}",
+        f"Band shares under every model, {v.name}: estimate ({pct(v.level)} "
+        "interval) \u2014 how much the answer depends on the model",
+        head,
+        rows,
+    )
 
 
 def _params_table(v: PopulationView) -> str:
@@ -281,62 +381,144 @@ def _params_table(v: PopulationView) -> str:
             got = ci.get(name)
             c = got if isinstance(got, list) else [None, None]
             se_text = fsig(se.get(name)) if name in se else "\u2014"
-            rows.append(([m, name, param_label(name, edges), _num(fsig(val)),
-                          _num(se_text), _num(frange_sig(c[0], c[1]))],
-                         "best" if m == v.best else ""))
-    return _table(f"params-{v.anchor}", f"DFE parameters, {v.name}: estimate, asymptotic "
-                  f"standard error and {pct(v.level)} bootstrap interval",
-                  ["Model", "Parameter", "Meaning", "Estimate", "s.e.", "Interval"], rows)
+            rows.append(
+                (
+                    [
+                        m,
+                        name,
+                        param_label(name, edges),
+                        _num(fsig(val)),
+                        _num(se_text),
+                        _num(frange_sig(c[0], c[1])),
+                    ],
+                    "best" if m == v.best else "",
+                )
+            )
+    return _table(
+        f"params-{v.anchor}",
+        f"DFE parameters, {v.name}: estimate, asymptotic "
+        f"standard error and {pct(v.level)} bootstrap interval",
+        ["Model", "Parameter", "Meaning", "Estimate", "s.e.", "Interval"],
+        rows,
+    )
 
 
 def _diversity(v: PopulationView, view: ReportView) -> str:
     if v.spectra is None:
-        return ("<p>No spectra file for this population was given (pass it with --spectra): "
-                "no diversity statistics.</p>")
+        return (
+            "<p>No spectra file for this population was given (pass it with --spectra): "
+            "no diversity statistics.</p>"
+        )
     st = v.spectra.get("stats") or {}
     classes = v.spectra.get("classes") or {}
     names = [c for c in (view.neutral, view.selected) if c in st or c in classes]
-    names += sorted(c for c in set(st) | set(classes)
-                    if c not in names and isinstance(st.get(c, {}), dict) and c != "piN_piS")
+    names += sorted(
+        c
+        for c in set(st) | set(classes)
+        if c not in names and isinstance(st.get(c, {}), dict) and c != "piN_piS"
+    )
     if not names:
         return "<p>The spectra file holds no diversity statistics for this population.</p>"
     rows = []
     for c in names:
         s = st.get(c) or {}
-        role = ("neutral" if c == view.neutral else "selected" if c == view.selected
-                else "other")
-        rows.append(([c, role, _num(fint((classes.get(c) or {}).get("sites"))),
-                      _num(fint(s.get("segregating"))), _num(fsig(s.get("pi"))),
-                      _num(fsig(s.get("theta_w"))), _num(fnum(s.get("tajimas_d"), 3)),
-                      _num(fint(s.get("fixed_derived")) if "fixed_derived" in s
-                           else "\u2014")],
-                     ""))
-    rows.append(([f"\u03c0_N/\u03c0_S ({view.selected}/{view.neutral})", "ratio",
-                  "", "", _num(fnum(st.get("piN_piS"), 3)), "", "", ""], "best"))
+        role = "neutral" if c == view.neutral else "selected" if c == view.selected else "other"
+        rows.append(
+            (
+                [
+                    c,
+                    role,
+                    _num(fint((classes.get(c) or {}).get("sites"))),
+                    _num(fint(s.get("segregating"))),
+                    _num(fsig(s.get("pi"))),
+                    _num(fsig(s.get("theta_w"))),
+                    _num(fnum(s.get("tajimas_d"), 3)),
+                    _num(fint(s.get("fixed_derived")) if "fixed_derived" in s else "\u2014"),
+                ],
+                "",
+            )
+        )
+    rows.append(
+        (
+            [
+                f"\u03c0_N/\u03c0_S ({view.selected}/{view.neutral})",
+                "ratio",
+                "",
+                "",
+                _num(fnum(st.get("piN_piS"), 3)),
+                "",
+                "",
+                "",
+            ],
+            "best",
+        )
+    )
     pol = v.spectra.get("polarisation")
-    cap = (f"Diversity, {v.name} (from {v.spectra_source}; polarisation: {pol or NA}); "
-           "\u03c0 and \u03b8_W per site")
-    return _table(f"diversity-{v.anchor}", cap,
-                  ["Class", "Role", "Callable sites", "Segregating sites", "\u03c0 per site",
-                   "\u03b8_W per site", "Tajima's D", "Fixed derived (divergence)"], rows)
+    cap = (
+        f"Diversity, {v.name} (from {v.spectra_source}; polarisation: {pol or NA}); "
+        "\u03c0 and \u03b8_W per site"
+    )
+    return _table(
+        f"diversity-{v.anchor}",
+        cap,
+        [
+            "Class",
+            "Role",
+            "Callable sites",
+            "Segregating sites",
+            "\u03c0 per site",
+            "\u03b8_W per site",
+            "Tajima's D",
+            "Fixed derived (divergence)",
+        ],
+        rows,
+    )
 
 
 def _adaptive(v: PopulationView, view: ReportView) -> str:
     ad = v.record.get("adaptive") or {}
     present = {m: a for m, a in ad.items() if isinstance(a, dict)}
     if not present:
-        return ("<p>No divergence counts (folded spectra, or no outgroup/ancestral "
-                "allele): no McDonald\u2013Kreitman table or \u03b1.</p>")
+        return (
+            "<p>No divergence counts (folded spectra, or no outgroup/ancestral "
+            "allele): no McDonald\u2013Kreitman table or \u03b1.</p>"
+        )
     first = present.get(v.best) or next(iter(present.values()))
     mk = first.get("mk") or {}
-    out = [_table(f"mk-{v.anchor}", f"McDonald\u2013Kreitman table, {v.name}",
-                  ["Sites", "Divergence (fixed derived)", "Polymorphism"],
-                  [([f"{view.selected} (selected)", _num(fint(mk.get("D_N"))),
-                     _num(fint(mk.get("P_N")))], ""),
-                   ([f"{view.neutral} (neutral)", _num(fint(mk.get("D_S"))),
-                     _num(fint(mk.get("P_S")))], ""),
-                   ([f"Fisher's exact test: odds ratio {fsig(mk.get('fisher_odds_ratio'))}, "
-                     f"two-sided p = {fp(mk.get('fisher_p'))}", "", ""], "")])]
+    out = [
+        _table(
+            f"mk-{v.anchor}",
+            f"McDonald\u2013Kreitman table, {v.name}",
+            ["Sites", "Divergence (fixed derived)", "Polymorphism"],
+            [
+                (
+                    [
+                        f"{view.selected} (selected)",
+                        _num(fint(mk.get("D_N"))),
+                        _num(fint(mk.get("P_N"))),
+                    ],
+                    "",
+                ),
+                (
+                    [
+                        f"{view.neutral} (neutral)",
+                        _num(fint(mk.get("D_S"))),
+                        _num(fint(mk.get("P_S"))),
+                    ],
+                    "",
+                ),
+                (
+                    [
+                        f"Fisher's exact test: odds ratio {fsig(mk.get('fisher_odds_ratio'))}, "
+                        f"two-sided p = {fp(mk.get('fisher_p'))}",
+                        "",
+                        "",
+                    ],
+                    "",
+                ),
+            ],
+        )
+    ]
     best_ci = v.model_ci(v.best).get("params_ci") or {}
 
     def ci(d, key):
@@ -344,10 +526,26 @@ def _adaptive(v: PopulationView, view: ReportView) -> str:
         return _num(frange(c[0], c[1], 3)) if isinstance(c, list) and len(c) == 2 else _num(NA)
 
     asym = first.get("alpha_asymptotic") or {}
-    rows = [(["\u03b1, classic (Smith & Eyre-Walker 2002)", "\u2014",
-              _num(fnum(first.get("alpha_classic"))), ci(best_ci, "alpha_classic")], ""),
-            ([f"\u03b1, asymptotic (Messer & Petrov 2013; {asym.get('fit', NA)} fit)", "\u2014",
-              _num(fnum(asym.get("alpha"))), ci(best_ci, "alpha_asymptotic")], "")]
+    rows = [
+        (
+            [
+                "\u03b1, classic (Smith & Eyre-Walker 2002)",
+                "\u2014",
+                _num(fnum(first.get("alpha_classic"))),
+                ci(best_ci, "alpha_classic"),
+            ],
+            "",
+        ),
+        (
+            [
+                f"\u03b1, asymptotic (Messer & Petrov 2013; {asym.get('fit', NA)} fit)",
+                "\u2014",
+                _num(fnum(asym.get("alpha"))),
+                ci(best_ci, "alpha_asymptotic"),
+            ],
+            "",
+        ),
+    ]
     for m in _models_in_order(v):
         a = present.get(m)
         if not a:
@@ -355,48 +553,96 @@ def _adaptive(v: PopulationView, view: ReportView) -> str:
         d = a.get("alpha_dfe") or {}
         mci = v.model_ci(m).get("params_ci") or {}
         cls = "best" if m == v.best else ""
-        rows.append((["\u03b1, DFE-corrected (Eyre-Walker & Keightley 2009)", m,
-                      _num(fnum(d.get("alpha"))), ci(mci, "alpha_dfe")], cls))
-        rows.append((["\u03c9_a, adaptive substitution rate relative to neutral", m,
-                      _num(fnum(d.get("omega_a"), 4)), ci(mci, "omega_a")], cls))
+        rows.append(
+            (
+                [
+                    "\u03b1, DFE-corrected (Eyre-Walker & Keightley 2009)",
+                    m,
+                    _num(fnum(d.get("alpha"))),
+                    ci(mci, "alpha_dfe"),
+                ],
+                cls,
+            )
+        )
+        rows.append(
+            (
+                [
+                    "\u03c9_a, adaptive substitution rate relative to neutral",
+                    m,
+                    _num(fnum(d.get("omega_a"), 4)),
+                    ci(mci, "omega_a"),
+                ],
+                cls,
+            )
+        )
         rows.append((["\u03c9 = d_N/d_S", m, _num(fnum(d.get("omega"), 4)), _num(NA)], cls))
-    out.append(_table(f"alpha-{v.anchor}",
-                      f"Proportion of adaptive substitutions, {v.name} ({pct(v.level)} "
-                      "bootstrap intervals)", ["Estimate", "Model", "Value", "Interval"], rows))
+    out.append(
+        _table(
+            f"alpha-{v.anchor}",
+            f"Proportion of adaptive substitutions, {v.name} ({pct(v.level)} bootstrap intervals)",
+            ["Estimate", "Model", "Value", "Interval"],
+            rows,
+        )
+    )
     return "\n".join(out)
 
 
 def _population(v: PopulationView, view: ReportView) -> str:
     d = v.record["data"]
     out = [f'<section id="{esc(v.anchor)}"><h2>Population {esc(v.name)}</h2>']
-    facts = [f"n = {v.n} gene copies", "folded spectra" if v.folded else "unfolded spectra",
-             f"callable sites: {fint(d.get('sites_neutral'))} {view.neutral}, "
-             f"{fint(d.get('sites_selected'))} {view.selected}"]
+    facts = [
+        f"n = {v.n} gene copies",
+        "folded spectra" if v.folded else "unfolded spectra",
+        f"callable sites: {fint(d.get('sites_neutral'))} {view.neutral}, "
+        f"{fint(d.get('sites_selected'))} {view.selected}",
+    ]
     if v.dataset:
         facts.insert(0, f"dataset {v.dataset}")
     if v.replicates is not None:
         facts.append(f"bootstrap: {v.replicates} replicates over {v.blocks} blocks")
     out.append(f"<p>{esc('; '.join(facts))}.</p>")
     if v.flags:
-        out.append('<div class="flag"><strong>\u26a0 Warnings</strong><ul>'
-                   + "".join(f"<li>{esc(f)}</li>" for f in v.flags) + "</ul></div>")
+        out.append(
+            '<div class="flag"><strong>\u26a0 Warnings</strong><ul>'
+            + "".join(f"<li>{esc(f)}</li>" for f in v.flags)
+            + "</ul></div>"
+        )
     else:
         out.append('<p class="ok">\u2713 All models converged; no data warnings.</p>')
     f = v.best_fit
     if f.get("observed") and f.get("expected"):
-        uri = spectra_figure(v.name, v.n, v.folded, view.neutral, view.selected,
-                             f["observed"], f["expected"], f.get("pearson_residuals") or {},
-                             v.best, v.anchor)
-        out.append(_figure(
-            uri, f"Observed and expected spectra of {v.name}",
-            f"Observed (bars) and expected (line, {v.best} model) counts of polymorphic sites "
-            f"per {'minor' if v.folded else 'derived'}-allele count, neutral ({view.neutral}) "
-            f"and selected ({view.selected}) class, {v.name}; below, Pearson residuals "
-            f"(observed {MINUS} expected)/\u221aexpected with \u00b12 marked."))
-    out += [_aic_table(v), _shares_table(v), _params_table(v),
-            "<h3>Diversity</h3>", _diversity(v, view),
-            "<h3>Divergence: McDonald\u2013Kreitman and \u03b1</h3>", _adaptive(v, view),
-            "</section>"]
+        uri = spectra_figure(
+            v.name,
+            v.n,
+            v.folded,
+            view.neutral,
+            view.selected,
+            f["observed"],
+            f["expected"],
+            f.get("pearson_residuals") or {},
+            v.best,
+            v.anchor,
+        )
+        out.append(
+            _figure(
+                uri,
+                f"Observed and expected spectra of {v.name}",
+                f"Observed (bars) and expected (line, {v.best} model) counts of polymorphic sites "
+                f"per {'minor' if v.folded else 'derived'}-allele count, neutral ({view.neutral}) "
+                f"and selected ({view.selected}) class, {v.name}; below, Pearson residuals "
+                f"(observed {MINUS} expected)/\u221aexpected with \u00b12 marked.",
+            )
+        )
+    out += [
+        _aic_table(v),
+        _shares_table(v),
+        _params_table(v),
+        "<h3>Diversity</h3>",
+        _diversity(v, view),
+        "<h3>Divergence: McDonald\u2013Kreitman and \u03b1</h3>",
+        _adaptive(v, view),
+        "</section>",
+    ]
     return "\n".join(out)
 
 
@@ -406,31 +652,49 @@ def _files(prov: dict[str, Any], source: str) -> list[tuple[list, str]]:
         recs = rec if isinstance(rec, list) else [rec]
         for r in recs:
             if isinstance(r, dict):
-                rows.append(([source, role, (r.get("path") or "", "mono"),
-                              _num(fint(r.get("size"))), (r.get("sha256") or NA, "mono")], ""))
+                rows.append(
+                    (
+                        [
+                            source,
+                            role,
+                            (r.get("path") or "", "mono"),
+                            _num(fint(r.get("size"))),
+                            (r.get("sha256") or NA, "mono"),
+                        ],
+                        "",
+                    )
+                )
             elif r is not None:
                 rows.append(([source, role, (str(r), "mono"), "", ""], ""))
     return rows
 
 
-def _kv(prov: dict[str, Any],
-        options: dict[str, Any] | None = None) -> list[tuple[list[Cell], str]]:
+def _kv(
+    prov: dict[str, Any], options: dict[str, Any] | None = None
+) -> list[tuple[list[Cell], str]]:
     rows: list[tuple[list[Cell], str]] = []
     if prov.get("software") or prov.get("version"):
-        rows.append((["software", f"{prov.get('software', 'driftband')} "
-                                  f"{prov.get('version', NA)}"], ""))
+        rows.append(
+            (["software", f"{prov.get('software', 'driftband')} {prov.get('version', NA)}"], "")
+        )
     for key in ("date", "seed"):
         if key in prov:
             rows.append(([key, str(prov[key])], ""))
     if prov.get("command"):
         cmd = prov["command"]
-        rows.append((["command", (" ".join(map(str, cmd)) if isinstance(cmd, list) else
-                                  str(cmd), "mono")], ""))
+        rows.append(
+            (
+                [
+                    "command",
+                    (" ".join(map(str, cmd)) if isinstance(cmd, list) else str(cmd), "mono"),
+                ],
+                "",
+            )
+        )
     opts = dict(prov.get("options") or {})
     opts.update(options or {})
     for k, v in opts.items():
-        rows.append(([f"option {k}", (json.dumps(v) if not isinstance(v, str) else v,
-                                      "mono")], ""))
+        rows.append(([f"option {k}", (json.dumps(v) if not isinstance(v, str) else v, "mono")], ""))
     env = prov.get("environment") or {}
     if env:
         rows.append((["environment", ", ".join(f"{k} {v}" for k, v in env.items())], ""))
@@ -440,21 +704,36 @@ def _kv(prov: dict[str, Any],
 def _provenance(view: ReportView) -> str:
     out = ['<section id="provenance"><h2>Inputs and provenance</h2>']
     out.append(_table("prov-report", "This report", ["Item", "Value"], _kv(view.provenance)))
-    out.append(_table("prov-fit", "The fit (from the fit file)", ["Item", "Value"],
-                      _kv(view.fit_provenance, view.options)))
+    out.append(
+        _table(
+            "prov-fit",
+            "The fit (from the fit file)",
+            ["Item", "Value"],
+            _kv(view.fit_provenance, view.options),
+        )
+    )
     files = _files(view.provenance, "report")
     files += _files(view.fit_provenance, "fit")
     for key, doc in view.spectra_docs.items():
         prov = doc.get("provenance") or {}
         files += _files(prov, f"spectra {key}")
-    out.append(_table("files", "Input files with SHA-256 checksums",
-                      ["Recorded by", "Role", "Path", "Bytes", "SHA-256"], files))
-    blob = {"report": view.provenance, "fit": view.fit_provenance, "fit_options": view.options,
-            "spectra": {k: d.get("provenance") for k, d in view.spectra_docs.items()}}
+    out.append(
+        _table(
+            "files",
+            "Input files with SHA-256 checksums",
+            ["Recorded by", "Role", "Path", "Bytes", "SHA-256"],
+            files,
+        )
+    )
+    blob = {
+        "report": view.provenance,
+        "fit": view.fit_provenance,
+        "fit_options": view.options,
+        "spectra": {k: d.get("provenance") for k, d in view.spectra_docs.items()},
+    }
     text = json.dumps(blob, indent=1, sort_keys=True, default=str)
     text = text.replace("<", "\\u003c").replace(">", "\\u003e").replace("&", "\\u0026")
-    out.append('<script type="application/json" id="driftband-provenance">'
-               f"{text}</script>")
+    out.append(f'<script type="application/json" id="driftband-provenance">{text}</script>')
     out.append("</section>")
     return "\n".join(out)
 
@@ -476,20 +755,37 @@ def render_html(view: ReportView) -> str:
     prov = view.provenance
     nav = ['<a href="#answer">Answer</a>', '<a href="#comparisons">Comparisons</a>']
     nav += [f'<a href="#{esc(v.anchor)}">{esc(v.name)}</a>' for v in view.populations]
-    nav += ['<a href="#provenance">Provenance</a>', '<a href="#conventions">Conventions</a>',
-            '<a href="#cautions">Cautions</a>']
-    sub = (f"Populations: {names}. Report made {prov.get('date', NA)} by "
-           f"{prov.get('software', 'driftband')} {prov.get('version', '')}.")
+    nav += [
+        '<a href="#provenance">Provenance</a>',
+        '<a href="#conventions">Conventions</a>',
+        '<a href="#cautions">Cautions</a>',
+    ]
+    sub = (
+        f"Populations: {names}. Report made {prov.get('date', NA)} by "
+        f"{prov.get('software', 'driftband')} {prov.get('version', '')}."
+    )
     body = [
-        "<!DOCTYPE html>", '<html lang="en">', "<head>", '<meta charset="utf-8">',
+        "<!DOCTYPE html>",
+        '<html lang="en">',
+        "<head>",
+        '<meta charset="utf-8">',
         '<meta name="viewport" content="width=device-width, initial-scale=1">',
         f"<title>driftband report: {esc(names)}</title>",
-        f"<style>{CSS}</style>", "</head>", "<body>", "<main>",
+        f"<style>{CSS}</style>",
+        "</head>",
+        "<body>",
+        "<main>",
         "<h1>Effectively neutral share of new mutations</h1>",
         f'<p class="sub">{esc(sub)}</p>',
         "<nav>" + "".join(nav) + "</nav>",
-        _answer(view), _comparisons(view),
+        _answer(view),
+        _comparisons(view),
         *(_population(v, view) for v in view.populations),
-        _provenance(view), _conventions_cautions(),
-        "</main>", "</body>", "</html>", ""]
+        _provenance(view),
+        _conventions_cautions(),
+        "</main>",
+        "</body>",
+        "</html>",
+        "",
+    ]
     return "\n".join(body)

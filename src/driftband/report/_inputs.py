@@ -30,8 +30,18 @@ __all__ = [
 ]
 
 #: Columns of compare.tsv read as numbers (empty or ``nan`` → None).
-NUMERIC_COMPARE_COLUMNS = ("statistic", "df", "p_value", "p_adjusted", "estimate", "ci_low",
-                           "ci_high", "ne_ratio", "predicted_share_b", "observed_share_b")
+NUMERIC_COMPARE_COLUMNS = (
+    "statistic",
+    "df",
+    "p_value",
+    "p_adjusted",
+    "estimate",
+    "ci_low",
+    "ci_high",
+    "ne_ratio",
+    "predicted_share_b",
+    "observed_share_b",
+)
 _REQUIRED_COMPARE = ("population_a", "population_b", "test", "model")
 
 
@@ -77,23 +87,36 @@ def check_fit_doc(doc: Any, path: str | os.PathLike | None = None) -> None:
             raise InputError(f"{where} has no fitted models; the file is damaged", path)
         best = p.get("best_model")
         if best not in p["models"]:
-            raise InputError(f"{where}: best_model {best!r} is not among its models "
-                             f"({', '.join(p['models'])}); the file is damaged", path)
+            raise InputError(
+                f"{where}: best_model {best!r} is not among its models "
+                f"({', '.join(p['models'])}); the file is damaged",
+                path,
+            )
         if not isinstance(p.get("data"), dict) or not _is_num(p["data"].get("n")):
-            raise InputError(f"{where} has no 'data' record with the sample size n; the file "
-                             "is damaged", path)
+            raise InputError(
+                f"{where} has no 'data' record with the sample size n; the file is damaged", path
+            )
         for m, f in p["models"].items():
             if not isinstance(f, dict):
                 raise InputError(f"{where}, model {m!r}: not a record", path)
             shares, edges = f.get("shares"), f.get("band_edges")
-            if (not isinstance(shares, list) or not isinstance(edges, list)
-                    or len(shares) != len(edges) or not shares):
-                raise InputError(f"{where}, model {m!r}: 'shares' and 'band_edges' must be "
-                                 "lists of equal length (one per |Ne*s| band); the file is "
-                                 "damaged or from another driftband version", path)
+            if (
+                not isinstance(shares, list)
+                or not isinstance(edges, list)
+                or len(shares) != len(edges)
+                or not shares
+            ):
+                raise InputError(
+                    f"{where}, model {m!r}: 'shares' and 'band_edges' must be "
+                    "lists of equal length (one per |Ne*s| band); the file is "
+                    "damaged or from another driftband version",
+                    path,
+                )
             if not all(_is_num(e) for e in edges) or edges[0] != 0:
-                raise InputError(f"{where}, model {m!r}: 'band_edges' must be numbers on "
-                                 "|Ne*s| starting at 0", path)
+                raise InputError(
+                    f"{where}, model {m!r}: 'band_edges' must be numbers on |Ne*s| starting at 0",
+                    path,
+                )
 
 
 def read_fit_doc(path: str | os.PathLike) -> dict[str, Any]:
@@ -158,13 +181,16 @@ def read_compare_tsv(path: str | os.PathLike) -> list[dict[str, Any]]:
     except UnicodeDecodeError:
         raise InputError("not a comparison table (not UTF-8 text)", path) from None
     if not lines:
-        raise InputError("empty file; expected the table written by 'driftband compare'",
-                         path)
+        raise InputError("empty file; expected the table written by 'driftband compare'", path)
     header = [h.strip() for h in lines[0]]
     missing = [c for c in _REQUIRED_COMPARE if c not in header]
     if missing:
-        raise InputError(f"not a comparison table from 'driftband compare' (no column "
-                         f"{missing[0]!r} in the header)", path, 1)
+        raise InputError(
+            f"not a comparison table from 'driftband compare' (no column "
+            f"{missing[0]!r} in the header)",
+            path,
+            1,
+        )
     rows = []
     for ln, fields in enumerate(lines[1:], start=2):
         if not fields or all(not f.strip() for f in fields):
@@ -173,18 +199,19 @@ def read_compare_tsv(path: str | os.PathLike) -> list[dict[str, Any]]:
             raise InputError(f"{len(fields)} fields, the header has {len(header)}", path, ln)
         row: dict[str, Any] = {}
         for col, val in zip(header, fields):
-            row[col] = (_number(val, path, ln, col) if col in NUMERIC_COMPARE_COLUMNS
-                        else val)
+            row[col] = _number(val, path, ln, col) if col in NUMERIC_COMPARE_COLUMNS else val
         row["_line"] = ln
         rows.append(row)
     if not rows:
-        raise InputError("the comparison table has a header but no rows; rerun "
-                         "'driftband compare'", path)
+        raise InputError(
+            "the comparison table has a header but no rows; rerun 'driftband compare'", path
+        )
     return rows
 
 
-def check_compare_rows(rows: list[dict[str, Any]], fit_doc: dict[str, Any],
-                       path: str | os.PathLike | None = None) -> None:
+def check_compare_rows(
+    rows: list[dict[str, Any]], fit_doc: dict[str, Any], path: str | os.PathLike | None = None
+) -> None:
     """Check that every comparison names populations of the fit file.
 
     Raises
@@ -196,13 +223,18 @@ def check_compare_rows(rows: list[dict[str, Any]], fit_doc: dict[str, Any],
     for k, r in enumerate(rows):
         for col in _REQUIRED_COMPARE:
             if not isinstance(r.get(col), str) or not r[col]:
-                raise InputError(f"comparison row {k + 1}: no value in column {col!r}", path,
-                                 r.get("_line"))
+                raise InputError(
+                    f"comparison row {k + 1}: no value in column {col!r}", path, r.get("_line")
+                )
         for col in ("population_a", "population_b"):
             if r[col] not in pops:
-                raise InputError(f"population {r[col]!r} is not in the fit file (it holds "
-                                 f"{', '.join(pops)}); was 'driftband compare' run on another "
-                                 "fit file?", path, r.get("_line"))
+                raise InputError(
+                    f"population {r[col]!r} is not in the fit file (it holds "
+                    f"{', '.join(pops)}); was 'driftband compare' run on another "
+                    "fit file?",
+                    path,
+                    r.get("_line"),
+                )
 
 
 def check_spectra_doc(doc: Any, path: str | os.PathLike | None = None) -> None:
@@ -227,8 +259,7 @@ def check_spectra_doc(doc: Any, path: str | os.PathLike | None = None) -> None:
         raise InputError("the spectra file holds no populations", path)
     for name, p in pops.items():
         if not isinstance(p, dict) or not _is_num(p.get("n")):
-            raise InputError(f"population {name!r} has no sample size n; the file is damaged",
-                             path)
+            raise InputError(f"population {name!r} has no sample size n; the file is damaged", path)
 
 
 def read_spectra_doc(path: str | os.PathLike) -> dict[str, Any]:

@@ -32,30 +32,51 @@ def render_markdown(view: ReportView) -> str:
     sel, lvl = view.selected, pct(view.level)
     prov = view.provenance
     b0 = view.populations[0].bands[0]
-    out = ["# Effectively neutral share of new mutations", "",
-           f"Generated {md(prov.get('date', NA))} by "
-           f"{md(prov.get('software', 'driftband'))} {md(prov.get('version', ''))}.", "",
-           "## Answer", "",
-           f"Share of new {md(sel)} (selected-class) mutations in the effectively neutral band "
-           f"|Ne·s| < {b0.hi:g} (|S| < {4 * b0.hi:g}), AIC-best model, {lvl} "
-           "block-bootstrap percentile interval:", "",
-           _row(["population", "best model", f"share \\|Ne·s\\| < {b0.hi:g}",
-                 f"{lvl} interval", "fit"]),
-           _row(["---"] * 5)]
+    out = [
+        "# Effectively neutral share of new mutations",
+        "",
+        f"Generated {md(prov.get('date', NA))} by "
+        f"{md(prov.get('software', 'driftband'))} {md(prov.get('version', ''))}.",
+        "",
+        "## Answer",
+        "",
+        f"Share of new {md(sel)} (selected-class) mutations in the effectively neutral band "
+        f"|Ne·s| < {b0.hi:g} (|S| < {4 * b0.hi:g}), AIC-best model, {lvl} "
+        "block-bootstrap percentile interval:",
+        "",
+        _row(
+            ["population", "best model", f"share \\|Ne·s\\| < {b0.hi:g}", f"{lvl} interval", "fit"]
+        ),
+        _row(["---"] * 5),
+    ]
     for v in view.populations:
         b = v.bands[0]
-        out.append(_row([cell(v.name), cell(v.best), fnum(b.share), frange(b.ci_low, b.ci_high),
-                         "converged" if v.converged else "**not converged**"]))
+        out.append(
+            _row(
+                [
+                    cell(v.name),
+                    cell(v.best),
+                    fnum(b.share),
+                    frange(b.ci_low, b.ci_high),
+                    "converged" if v.converged else "**not converged**",
+                ]
+            )
+        )
     out.append("")
     out += [f"- {md(answer_sentence(v, sel))}" for v in view.populations]
     out += ["", f"All bands (estimate and {lvl} interval):", ""]
     bands = view.populations[0].bands
-    out.append(_row(["population"] + [f"\\|Ne·s\\| {b.label} (\\|S\\| {b.label_s})"
-                                      for b in bands]))
+    out.append(
+        _row(["population"] + [f"\\|Ne·s\\| {b.label} (\\|S\\| {b.label_s})" for b in bands])
+    )
     out.append(_row(["---"] * (len(bands) + 1)))
     for v in view.populations:
-        out.append(_row([cell(v.name)] + [f"{fnum(b.share)} ({frange(b.ci_low, b.ci_high)})"
-                                        for b in v.bands]))
+        out.append(
+            _row(
+                [cell(v.name)]
+                + [f"{fnum(b.share)} ({frange(b.ci_low, b.ci_high)})" for b in v.bands]
+            )
+        )
     out += ["", "## Comparisons", ""]
     if view.compare_rows is None:
         out.append("No comparison table was given.")
@@ -65,9 +86,14 @@ def render_markdown(view: ReportView) -> str:
             out.append("")
             out += [f"- {md(s)}" for _t, s in pair.sentences]
             out.append("")
-        out.append("p-values adjusted across pairs, test by test"
-                   + (f" ({md(view.adjust_method)})." if view.adjust_known else
-                      " (Holm unless 'driftband compare' was run with another --adjust)."))
+        out.append(
+            "p-values adjusted across pairs, test by test"
+            + (
+                f" ({md(view.adjust_method)})."
+                if view.adjust_known
+                else " (Holm unless 'driftband compare' was run with another --adjust)."
+            )
+        )
     out += ["", "## Warnings", ""]
     flagged = [(v, f) for v in view.populations for f in v.flags]
     if flagged:
@@ -78,26 +104,35 @@ def render_markdown(view: ReportView) -> str:
     for v in view.populations:
         out.append(f"### {md(v.name)}")
         out.append("")
-        out.append(f"- n = {v.n} gene copies, {'folded' if v.folded else 'unfolded'} spectra; "
-                   f"best model {md(v.best)}"
-                   + (f"; bootstrap {v.replicates} replicates over {v.blocks} blocks"
-                      if v.replicates is not None else "; no bootstrap"))
+        out.append(
+            f"- n = {v.n} gene copies, {'folded' if v.folded else 'unfolded'} spectra; "
+            f"best model {md(v.best)}"
+            + (
+                f"; bootstrap {v.replicates} replicates over {v.blocks} blocks"
+                if v.replicates is not None
+                else "; no bootstrap"
+            )
+        )
         if v.spectra is not None:
             st = v.spectra.get("stats") or {}
             sn, ss = st.get(view.neutral) or {}, st.get(view.selected) or {}
-            out.append(f"- π_N/π_S = {fnum(st.get('piN_piS'))}; "
-                       f"π per site {md(view.neutral)} {fnum(sn.get('pi'), 5)}, "
-                       f"{md(view.selected)} {fnum(ss.get('pi'), 5)}; Tajima's D "
-                       f"{md(view.neutral)} {fnum(sn.get('tajimas_d'))}, "
-                       f"{md(view.selected)} {fnum(ss.get('tajimas_d'))}")
+            out.append(
+                f"- π_N/π_S = {fnum(st.get('piN_piS'))}; "
+                f"π per site {md(view.neutral)} {fnum(sn.get('pi'), 5)}, "
+                f"{md(view.selected)} {fnum(ss.get('pi'), 5)}; Tajima's D "
+                f"{md(view.neutral)} {fnum(sn.get('tajimas_d'))}, "
+                f"{md(view.selected)} {fnum(ss.get('tajimas_d'))}"
+            )
         ad = (v.record.get("adaptive") or {}).get(v.best)
         if isinstance(ad, dict):
             d = ad.get("alpha_dfe") or {}
             asym = ad.get("alpha_asymptotic") or {}
-            out.append(f"- α (DFE-corrected, {md(v.best)}) = {fnum(d.get('alpha'))}, "
-                       f"ω_a = {fnum(d.get('omega_a'), 4)}; α classic = "
-                       f"{fnum(ad.get('alpha_classic'))}; α asymptotic = "
-                       f"{fnum(asym.get('alpha'))}")
+            out.append(
+                f"- α (DFE-corrected, {md(v.best)}) = {fnum(d.get('alpha'))}, "
+                f"ω_a = {fnum(d.get('omega_a'), 4)}; α classic = "
+                f"{fnum(ad.get('alpha_classic'))}; α asymptotic = "
+                f"{fnum(asym.get('alpha'))}"
+            )
         out.append("")
     out += ["## Conventions", ""] + [f"- {md(c)}" for c in CONVENTIONS]
     out += ["", "## Cautions", ""] + [f"- **{md(t)}.** {md(x)}" for t, x in CAUTIONS]

@@ -81,14 +81,27 @@ def bands_figure(populations: list[dict[str, Any]], selected: str, level_text: s
             xs = [j + (k - (npop - 1) / 2) * width for j in range(nb)]
             ys = [b[2] if is_num(b[2]) else 0.0 for b in pop["bands"]]
             col = OKABE_ITO[k % len(OKABE_ITO)]
-            ax.bar(xs, ys, width * 0.92, color=col, edgecolor="black", linewidth=0.6,
-                   hatch=HATCHES[k % len(HATCHES)],
-                   label=_label(f"{pop['name']} ({pop['model']})"))
-            lo = [(x, b[3], b[4]) for x, b in zip(xs, pop["bands"])
-                  if is_num(b[3]) and is_num(b[4])]
+            ax.bar(
+                xs,
+                ys,
+                width * 0.92,
+                color=col,
+                edgecolor="black",
+                linewidth=0.6,
+                hatch=HATCHES[k % len(HATCHES)],
+                label=_label(f"{pop['name']} ({pop['model']})"),
+            )
+            lo = [
+                (x, b[3], b[4]) for x, b in zip(xs, pop["bands"]) if is_num(b[3]) and is_num(b[4])
+            ]
             if lo:
-                ax.vlines([t[0] for t in lo], [t[1] for t in lo], [t[2] for t in lo],
-                          colors="black", linewidth=1.1)
+                ax.vlines(
+                    [t[0] for t in lo],
+                    [t[1] for t in lo],
+                    [t[2] for t in lo],
+                    colors="black",
+                    linewidth=1.1,
+                )
                 cap = width * 0.22
                 for x, a, b in lo:
                     ax.hlines([a, b], x - cap, x + cap, colors="black", linewidth=1.1)
@@ -110,14 +123,29 @@ def bands_figure(populations: list[dict[str, Any]], selected: str, level_text: s
         handles, labels = ax.get_legend_handles_labels()
         handles.append(Line2D([], [], color="black", linewidth=1.1))
         labels.append(f"{level_text} bootstrap interval")
-        ax.legend(handles, labels, loc="upper left", bbox_to_anchor=(1.02, 1.0),
-                  title="population (model)", alignment="left")
+        ax.legend(
+            handles,
+            labels,
+            loc="upper left",
+            bbox_to_anchor=(1.02, 1.0),
+            title="population (model)",
+            alignment="left",
+        )
         return _to_data_uri(fig, "bands")
 
 
-def spectra_figure(name: str, n: int, folded: bool, neutral: str, selected: str,
-                   observed: dict[str, list], expected: dict[str, list],
-                   residuals: dict[str, list], model: str, anchor: str) -> str:
+def spectra_figure(
+    name: str,
+    n: int,
+    folded: bool,
+    neutral: str,
+    selected: str,
+    observed: dict[str, list],
+    expected: dict[str, list],
+    residuals: dict[str, list],
+    model: str,
+    anchor: str,
+) -> str:
     """Observed against expected spectra of both classes, with Pearson residuals below.
 
     Parameters
@@ -145,21 +173,41 @@ def spectra_figure(name: str, n: int, folded: bool, neutral: str, selected: str,
     """
     with matplotlib.rc_context(_RC):
         fig = Figure(figsize=(9.0, 5.4))
-        gs = fig.add_gridspec(2, 2, height_ratios=(2.3, 1.0), hspace=0.12, wspace=0.2,
-                              left=0.09, right=0.99, top=0.95, bottom=0.1)
-        xlabel = (f"minor-allele count j (folded; of n = {n})" if folded
-                  else f"derived-allele count i (of n = {n})")
+        gs = fig.add_gridspec(
+            2,
+            2,
+            height_ratios=(2.3, 1.0),
+            hspace=0.12,
+            wspace=0.2,
+            left=0.09,
+            right=0.99,
+            top=0.95,
+            bottom=0.1,
+        )
+        xlabel = (
+            f"minor-allele count j (folded; of n = {n})"
+            if folded
+            else f"derived-allele count i (of n = {n})"
+        )
         for c, (key, cls) in enumerate((("neutral", neutral), ("selected", selected))):
             obs = [float(v) if is_num(v) else math.nan for v in observed.get(key) or []]
             exp = [float(v) if is_num(v) else math.nan for v in expected.get(key) or []]
             res = [float(v) if is_num(v) else 0.0 for v in residuals.get(key) or []]
             x = list(range(1, len(obs) + 1))
             ax = fig.add_subplot(gs[0, c])
-            ax.bar(x, obs, 0.75, color="#56B4E9", edgecolor="#0072B2", linewidth=0.6,
-                   label="observed")
+            ax.bar(
+                x, obs, 0.75, color="#56B4E9", edgecolor="#0072B2", linewidth=0.6, label="observed"
+            )
             if exp:
-                ax.plot(list(range(1, len(exp) + 1)), exp, "o-", color="black",
-                        markersize=3.5, linewidth=1.1, label=f"expected ({_label(model)})")
+                ax.plot(
+                    list(range(1, len(exp) + 1)),
+                    exp,
+                    "o-",
+                    color="black",
+                    markersize=3.5,
+                    linewidth=1.1,
+                    label=f"expected ({_label(model)})",
+                )
             pos = [v for v in obs + exp if is_num(v) and v > 0]
             if pos:
                 ax.set_yscale("log")
@@ -174,8 +222,14 @@ def spectra_figure(name: str, n: int, folded: bool, neutral: str, selected: str,
             ax.grid(axis="y", color="#eeeeee", linewidth=0.5)
             ax.set_axisbelow(True)
             rx = fig.add_subplot(gs[1, c], sharex=ax)
-            rx.bar(list(range(1, len(res) + 1)), res, 0.75, color="#D55E00",
-                   edgecolor="black", linewidth=0.4)
+            rx.bar(
+                list(range(1, len(res) + 1)),
+                res,
+                0.75,
+                color="#D55E00",
+                edgecolor="black",
+                linewidth=0.4,
+            )
             rx.axhline(0.0, color="black", linewidth=0.6)
             for h in (-2.0, 2.0):
                 rx.axhline(h, color="#555555", linewidth=0.6, linestyle="--")

@@ -14,8 +14,7 @@ NA = "n/a"
 
 #: Okabe & Ito (2008) colour-blind-safe palette, in the order used for populations
 #: (black last); see https://jfly.uni-koeln.de/color/ (from memory).
-OKABE_ITO = ("#0072B2", "#E69F00", "#009E73", "#D55E00", "#CC79A7", "#56B4E9", "#F0E442",
-             "#000000")
+OKABE_ITO = ("#0072B2", "#E69F00", "#009E73", "#D55E00", "#CC79A7", "#56B4E9", "#F0E442", "#000000")
 #: Hatches that repeat the population distinction without colour.
 HATCHES = ("", "//", "..", "xx", "\\\\", "oo", "--", "++")
 
@@ -121,31 +120,43 @@ CONVENTIONS = [
 ]
 
 CAUTIONS = [
-    ("Demographic misspecification",
-     "The nuisance factors absorb distortions of the spectra by changes in population "
-     "size, structure and sampling only approximately. Strong bottlenecks, expansions, "
-     "admixture or hidden structure can still shift the fitted DFE, and with it the "
-     "effectively neutral share."),
-    ("Linked selection and background selection",
-     "Selection at linked sites lowers the local Ne and distorts the neutral (4-fold) "
-     "spectrum unevenly along the genome. The method assumes that neutral and selected "
-     "sites share one genealogical history; where they do not, estimates are biased."),
-    ("GC-biased gene conversion",
-     "gBGC favours G/C over A/T alleles like weak selection, at neutral and selected sites "
-     "alike. It can make 4-fold sites look non-neutral and bias the DFE and \u03b1."),
-    ("Ancestral misidentification",
-     "Unfolded spectra rest on the ancestral allele being right. Misidentified sites "
-     "appear as high-frequency derived variants and can mimic positive selection; the "
-     "misorientation rate \u03b5 is fitted (or fixed) and shown with the parameters. "
-     "Folded spectra avoid this but carry less information."),
-    ("Sample size and number of blocks",
-     "Few sampled gene copies resolve weakly selected mutations poorly, and bootstrap "
-     "intervals from few genomic blocks (fewer than about 20) are unreliable; blocks "
-     "should be longer than the extent of linkage disequilibrium."),
-    ("Decisions",
-     "These estimates alone are no basis for conservation or management decisions. They "
-     "rest on the model assumptions above; have them reviewed by experts on the species' "
-     "biology and demography, together with other evidence, before acting on them."),
+    (
+        "Demographic misspecification",
+        "The nuisance factors absorb distortions of the spectra by changes in population "
+        "size, structure and sampling only approximately. Strong bottlenecks, expansions, "
+        "admixture or hidden structure can still shift the fitted DFE, and with it the "
+        "effectively neutral share.",
+    ),
+    (
+        "Linked selection and background selection",
+        "Selection at linked sites lowers the local Ne and distorts the neutral (4-fold) "
+        "spectrum unevenly along the genome. The method assumes that neutral and selected "
+        "sites share one genealogical history; where they do not, estimates are biased.",
+    ),
+    (
+        "GC-biased gene conversion",
+        "gBGC favours G/C over A/T alleles like weak selection, at neutral and selected sites "
+        "alike. It can make 4-fold sites look non-neutral and bias the DFE and \u03b1.",
+    ),
+    (
+        "Ancestral misidentification",
+        "Unfolded spectra rest on the ancestral allele being right. Misidentified sites "
+        "appear as high-frequency derived variants and can mimic positive selection; the "
+        "misorientation rate \u03b5 is fitted (or fixed) and shown with the parameters. "
+        "Folded spectra avoid this but carry less information.",
+    ),
+    (
+        "Sample size and number of blocks",
+        "Few sampled gene copies resolve weakly selected mutations poorly, and bootstrap "
+        "intervals from few genomic blocks (fewer than about 20) are unreliable; blocks "
+        "should be longer than the extent of linkage disequilibrium.",
+    ),
+    (
+        "Decisions",
+        "These estimates alone are no basis for conservation or management decisions. They "
+        "rest on the model assumptions above; have them reviewed by experts on the species' "
+        "biology and demography, together with other evidence, before acting on them.",
+    ),
 ]
 
 PARAM_LABELS = {

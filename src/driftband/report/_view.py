@@ -140,8 +140,15 @@ def _bands(p: dict[str, Any]) -> list[Band]:
         lo = hi = None
         if isinstance(ci, list) and k < len(ci) and isinstance(ci[k], list) and len(ci[k]) == 2:
             lo, hi = ci[k]
-        out.append(Band(edges[k], edges[k + 1], s if is_num(s) else None,
-                        lo if is_num(lo) else None, hi if is_num(hi) else None))
+        out.append(
+            Band(
+                edges[k],
+                edges[k + 1],
+                s if is_num(s) else None,
+                lo if is_num(lo) else None,
+                hi if is_num(hi) else None,
+            )
+        )
     return out
 
 
@@ -153,38 +160,49 @@ def _flags(name: str, p: dict[str, Any], blocks: float | None) -> list[str]:
         if not f.get("success", False):
             msg = str(f.get("message") or "no message")
             if m == best:
-                out.append(f"The best model {m} did not converge ({msg}); no fitted model "
-                           "converged, so its numbers are unreliable.")
+                out.append(
+                    f"The best model {m} did not converge ({msg}); no fitted model "
+                    "converged, so its numbers are unreliable."
+                )
             else:
-                out.append(f"Model {m} did not converge ({msg}); it is left out of the "
-                           "AIC choice.")
+                out.append(f"Model {m} did not converge ({msg}); it is left out of the AIC choice.")
     se = p["models"][best].get("stderr") or {}
     missing = [k for k, v in se.items() if not is_num(v)]
     if missing:
-        out.append(f"No asymptotic standard error for {', '.join(missing)} of the best model "
-                   f"{best} (the Hessian was not usable there); rely on the bootstrap "
-                   "interval.")
+        out.append(
+            f"No asymptotic standard error for {', '.join(missing)} of the best model "
+            f"{best} (the Hessian was not usable there); rely on the bootstrap "
+            "interval."
+        )
     boot = p.get("bootstrap") or {}
     if not boot:
-        out.append("No bootstrap: the shares have no confidence intervals (rerun "
-                   "'driftband fit' with --bootstrap B).")
+        out.append(
+            "No bootstrap: the shares have no confidence intervals (rerun "
+            "'driftband fit' with --bootstrap B)."
+        )
     else:
         reps = boot.get("replicates")
         for m, b in (boot.get("models") or {}).items():
             failed = b.get("failed") or 0
             if is_num(failed) and failed > 0:
-                out.append(f"{int(failed)} of {reps} bootstrap refits of model {m} failed or "
-                           "did not converge.")
+                out.append(
+                    f"{int(failed)} of {reps} bootstrap refits of model {m} failed or "
+                    "did not converge."
+                )
         if is_num(blocks) and blocks < 20:
-            out.append(f"Only {int(blocks)} genomic blocks: bootstrap intervals from fewer "
-                       "than 20 blocks are unreliable.")
+            out.append(
+                f"Only {int(blocks)} genomic blocks: bootstrap intervals from fewer "
+                "than 20 blocks are unreliable."
+            )
     res = p["models"][best].get("pearson_residuals") or {}
     vals = [v for arr in res.values() if isinstance(arr, list) for v in arr if is_num(v)]
     big = [v for v in vals if abs(v) > RESIDUAL_FLAG]
     if big:
-        out.append(f"{len(big)} of {len(vals)} spectrum classes have |Pearson residual| > "
-                   f"{RESIDUAL_FLAG:g} under {best}: check the residual plot; the model may "
-                   "not capture the shape of the spectra.")
+        out.append(
+            f"{len(big)} of {len(vals)} spectrum classes have |Pearson residual| > "
+            f"{RESIDUAL_FLAG:g} under {best}: check the residual plot; the model may "
+            "not capture the shape of the spectra."
+        )
     return out
 
 
@@ -198,29 +216,37 @@ def _match_spectra(views: list[PopulationView], docs: dict[str, dict[str, Any]])
                     found.append((0, key, rec))
                 elif key == v.dataset and (v.name == q or v.name.endswith("/" + q)):
                     found.append((1, key, rec))
-                elif v.name == q or ("/" in v.name and v.name.split("/", 1)[1] == q
-                                     and not v.dataset):
+                elif v.name == q or (
+                    "/" in v.name and v.name.split("/", 1)[1] == q and not v.dataset
+                ):
                     found.append((2, key, rec))
         if not found:
             continue
         top = min(f[0] for f in found)
         best = [f for f in found if f[0] == top]
         if len(best) > 1:
-            raise InputError(f"population {v.name!r} is in several spectra files "
-                             f"({', '.join(f[1] for f in best)}); give them as "
-                             "--spectra LABEL=FILE with the labels used by 'driftband fit'")
+            raise InputError(
+                f"population {v.name!r} is in several spectra files "
+                f"({', '.join(f[1] for f in best)}); give them as "
+                "--spectra LABEL=FILE with the labels used by 'driftband fit'"
+            )
         _, key, rec = best[0]
         if int(rec["n"]) != v.n or bool(rec.get("folded", False)) != v.folded:
-            raise InputError(f"population {v.name!r}: the spectra file has n = {rec['n']} "
-                             f"({'folded' if rec.get('folded') else 'unfolded'}), the fit "
-                             f"has n = {v.n} ({'folded' if v.folded else 'unfolded'}); is it "
-                             "the spectra file the fit was made from?", key)
+            raise InputError(
+                f"population {v.name!r}: the spectra file has n = {rec['n']} "
+                f"({'folded' if rec.get('folded') else 'unfolded'}), the fit "
+                f"has n = {v.n} ({'folded' if v.folded else 'unfolded'}); is it "
+                "the spectra file the fit was made from?",
+                key,
+            )
         v.spectra, v.spectra_source = rec, key
     for key, doc in docs.items():
         if not any(v.spectra_source == key for v in views):
-            raise InputError(f"none of its populations ({', '.join(doc['populations'])}) is "
-                             f"in the fit file (it holds {', '.join(v.name for v in views)})",
-                             key)
+            raise InputError(
+                f"none of its populations ({', '.join(doc['populations'])}) is "
+                f"in the fit file (it holds {', '.join(v.name for v in views)})",
+                key,
+            )
 
 
 def _share(pops: dict[str, PopulationView], name: str, model: str) -> float | None:
@@ -247,16 +273,19 @@ def _p_for_verdict(r: dict[str, Any]) -> float | None:
     return p if is_num(p) else None
 
 
-def _sentence_difference(r: dict[str, Any], pops: dict[str, PopulationView], method: str,
-                         level: float) -> str:
+def _sentence_difference(
+    r: dict[str, Any], pops: dict[str, PopulationView], method: str, level: float
+) -> str:
     a, b, model = r["population_a"], r["population_b"], r["model"]
     d = r.get("estimate")
     sa, sb = _share(pops, a, model), _share(pops, b, model)
     if is_num(sa) and is_num(sb) and not is_num(d):
         d = sb - sa
     if not is_num(d):
-        return (f"{a} and {b}: no estimate of the difference in the effectively neutral "
-                f"share ({r.get('note') or 'empty row'}).")
+        return (
+            f"{a} and {b}: no estimate of the difference in the effectively neutral "
+            f"share ({r.get('note') or 'empty row'})."
+        )
     lo, hi = r.get("ci_low"), r.get("ci_high")
     if d < 0:  # say it with the larger population first
         a, b, sa, sb, d = b, a, sb, sa, -d
@@ -266,14 +295,18 @@ def _sentence_difference(r: dict[str, Any], pops: dict[str, PopulationView], met
         head = f"{b} and {a} carry the same effectively neutral share ({fnum(sb, dig)})"
     else:
         vs = f": {fnum(sb, dig)} vs {fnum(sa, dig)}" if is_num(sa) and is_num(sb) else ""
-        head = (f"{b} carries a larger effectively neutral share than {a}{vs}, difference "
-                f"{fnum(d, dig)}")
+        head = (
+            f"{b} carries a larger effectively neutral share than {a}{vs}, difference "
+            f"{fnum(d, dig)}"
+        )
     if is_num(lo) and is_num(hi):
         head += f" ({pct(level)} CI {frange(lo, hi, dig)})"
     p = _p_for_verdict(r)
     if p is None:
-        return head + (f" ({model} model). There is no interval or p-value: "
-                       f"{r.get('note') or 'the fits have no bootstrap'}.")
+        return head + (
+            f" ({model} model). There is no interval or p-value: "
+            f"{r.get('note') or 'the fits have no bootstrap'}."
+        )
     head += f", {_p_text(r, method)} ({model} model)."
     excl = is_num(lo) and is_num(hi) and (lo > 0 or hi < 0)
     sig = p < ALPHA_LEVEL
@@ -282,8 +315,10 @@ def _sentence_difference(r: dict[str, Any], pops: dict[str, PopulationView], met
     elif not sig and not excl:
         verdict = " At the 5 % level the data do not show a clear difference."
     else:
-        verdict = (" The interval and the p-value disagree at the 5 % level (few bootstrap "
-                   "replicates?); treat the difference as uncertain.")
+        verdict = (
+            " The interval and the p-value disagree at the 5 % level (few bootstrap "
+            "replicates?); treat the difference as uncertain."
+        )
     return head + verdict
 
 
@@ -291,53 +326,65 @@ def _sentence_shared(r: dict[str, Any], method: str) -> str:
     a, b, model = r["population_a"], r["population_b"], r["model"]
     stat, df = r.get("statistic"), r.get("df")
     p = _p_for_verdict(r)
-    core = (f"One {model} DFE shared by {a} and {b} (each keeping its own \u03b8, "
-            "demographic nuisance factors and misorientation rate) against separate DFEs: "
-            f"likelihood-ratio statistic {fnum(stat, 2)}, df {fnum(df, 0)}, "
-            f"{_p_text(r, method)}.")
+    core = (
+        f"One {model} DFE shared by {a} and {b} (each keeping its own \u03b8, "
+        "demographic nuisance factors and misorientation rate) against separate DFEs: "
+        f"likelihood-ratio statistic {fnum(stat, 2)}, df {fnum(df, 0)}, "
+        f"{_p_text(r, method)}."
+    )
     if p is None:
         return core
     if p < ALPHA_LEVEL:
         core += " The shared DFE is rejected at the 5 % level: the two DFEs differ."
     else:
-        core += (" The shared DFE is not rejected at the 5 % level: the data are compatible "
-                 "with one DFE for both.")
+        core += (
+            " The shared DFE is not rejected at the 5 % level: the data are compatible "
+            "with one DFE for both."
+        )
     if is_num(r.get("estimate")):
         core += f" Under the shared DFE the effectively neutral share is {fnum(r['estimate'])}."
     return core
 
 
-def _sentence_ne_only(r: dict[str, Any], pops: dict[str, PopulationView],
-                      method: str) -> str:
+def _sentence_ne_only(r: dict[str, Any], pops: dict[str, PopulationView], method: str) -> str:
     a, b, model = r["population_a"], r["population_b"], r["model"]
     rho = r.get("ne_ratio") if is_num(r.get("ne_ratio")) else r.get("estimate")
     note = str(r.get("note") or "")
-    assumption = note.split("assuming ", 1)[1] if "assuming " in note else (
-        "equal mutation rates unless relative rates were given")
+    assumption = (
+        note.split("assuming ", 1)[1]
+        if "assuming " in note
+        else ("equal mutation rates unless relative rates were given")
+    )
     pred, obs = r.get("predicted_share_b"), r.get("observed_share_b")
     if not is_num(obs):
         obs = _share(pops, b, model)
     dig = digits_for(pred, obs)
-    text = (f"Only Ne differs? If {a} and {b} shared one distribution of s and differed only "
-            f"in Ne, with Ne({b})/Ne({a}) = {fnum(rho, 2)} (from the ratio of diversity "
-            f"\u03c0 at neutral sites, assuming {assumption}), "
-            f"the effectively neutral share of {b} would be {fnum(pred, dig)}; observed "
-            f"{fnum(obs, dig)}. Likelihood-ratio test of this constraint against separate "
-            f"DFEs: statistic {fnum(r.get('statistic'), 2)}, df {fnum(r.get('df'), 0)}, "
-            f"{_p_text(r, method)}.")
+    text = (
+        f"Only Ne differs? If {a} and {b} shared one distribution of s and differed only "
+        f"in Ne, with Ne({b})/Ne({a}) = {fnum(rho, 2)} (from the ratio of diversity "
+        f"\u03c0 at neutral sites, assuming {assumption}), "
+        f"the effectively neutral share of {b} would be {fnum(pred, dig)}; observed "
+        f"{fnum(obs, dig)}. Likelihood-ratio test of this constraint against separate "
+        f"DFEs: statistic {fnum(r.get('statistic'), 2)}, df {fnum(r.get('df'), 0)}, "
+        f"{_p_text(r, method)}."
+    )
     p = _p_for_verdict(r)
     if p is None:
         return text
     if p < ALPHA_LEVEL:
-        return text + (" Rejected at the 5 % level: a difference in Ne alone does not "
-                       "explain the two DFEs (the distributions of s may differ, or the Ne "
-                       "ratio is misestimated).")
-    return text + (" Not rejected at the 5 % level: a difference in Ne alone is compatible "
-                   "with the data.")
+        return text + (
+            " Rejected at the 5 % level: a difference in Ne alone does not "
+            "explain the two DFEs (the distributions of s may differ, or the Ne "
+            "ratio is misestimated)."
+        )
+    return text + (
+        " Not rejected at the 5 % level: a difference in Ne alone is compatible with the data."
+    )
 
 
-def _pairs(rows: list[dict[str, Any]], pops: dict[str, PopulationView], method: str,
-           level: float) -> list[PairView]:
+def _pairs(
+    rows: list[dict[str, Any]], pops: dict[str, PopulationView], method: str, level: float
+) -> list[PairView]:
     order: dict[tuple[str, str], list] = {}
     for r in rows:
         order.setdefault((r["population_a"], r["population_b"]), []).append(r)
@@ -356,9 +403,12 @@ def _pairs(rows: list[dict[str, Any]], pops: dict[str, PopulationView], method: 
     return out
 
 
-def collect(fit_doc: dict[str, Any], compare_rows: list[dict[str, Any]] | None,
-            spectra_docs: dict[str, dict[str, Any]] | None,
-            provenance: dict[str, Any]) -> ReportView:
+def collect(
+    fit_doc: dict[str, Any],
+    compare_rows: list[dict[str, Any]] | None,
+    spectra_docs: dict[str, dict[str, Any]] | None,
+    provenance: dict[str, Any],
+) -> ReportView:
     """Gather what the report shows from the documents.
 
     Parameters
@@ -394,36 +444,57 @@ def collect(fit_doc: dict[str, Any], compare_rows: list[dict[str, Any]] | None,
         boot = p.get("bootstrap") or {}
         level = boot.get("level", options.get("level", 0.95))
         blocks = boot.get("blocks")
-        views.append(PopulationView(
-            name=name, anchor=_anchor(k, name), record=p, best=p["best_model"],
-            bands=_bands(p), level=level if is_num(level) else 0.95,
-            replicates=boot.get("replicates") if boot else None,
-            blocks=blocks if is_num(blocks) else None,
-            flags=_flags(name, p, blocks if is_num(blocks) else None)))
+        views.append(
+            PopulationView(
+                name=name,
+                anchor=_anchor(k, name),
+                record=p,
+                best=p["best_model"],
+                bands=_bands(p),
+                level=level if is_num(level) else 0.95,
+                replicates=boot.get("replicates") if boot else None,
+                blocks=blocks if is_num(blocks) else None,
+                flags=_flags(name, p, blocks if is_num(blocks) else None),
+            )
+        )
     _match_spectra(views, spectra_docs)
     first = [b.lo for b in views[0].bands]
     if any([b.lo for b in v.bands] != first for v in views):
-        raise InputError("the populations of the fit file have different |Ne*s| band edges; "
-                         "the report needs one set (refit with the same --bands)")
+        raise InputError(
+            "the populations of the fit file have different |Ne*s| band edges; "
+            "the report needs one set (refit with the same --bands)"
+        )
     methods = {str(r.get("adjust") or "") for r in compare_rows or []} - {""}
     adjust_known = len(methods) == 1
     method = methods.pop() if adjust_known else "Holm"
     pops = {v.name: v for v in views}
     pairs = _pairs(compare_rows or [], pops, method, views[0].level)
-    return ReportView(options=options, neutral=str(options.get("neutral", "4fold")),
-                      selected=str(options.get("selected", "0fold")), populations=views,
-                      pairs=pairs, compare_rows=compare_rows,
-                      fit_provenance=fit_doc.get("provenance") or {},
-                      spectra_docs=spectra_docs, provenance=provenance or {},
-                      adjust_method=method, adjust_known=adjust_known)
+    return ReportView(
+        options=options,
+        neutral=str(options.get("neutral", "4fold")),
+        selected=str(options.get("selected", "0fold")),
+        populations=views,
+        pairs=pairs,
+        compare_rows=compare_rows,
+        fit_provenance=fit_doc.get("provenance") or {},
+        spectra_docs=spectra_docs,
+        provenance=provenance or {},
+        adjust_method=method,
+        adjust_known=adjust_known,
+    )
 
 
 def answer_sentence(v: PopulationView, selected: str) -> str:
     """The headline of one population in words."""
     b = v.bands[0]
-    ci = (f" ({pct(v.level)} CI {frange(b.ci_low, b.ci_high, 2)})"
-          if is_num(b.ci_low) and is_num(b.ci_high) else " (no interval: no bootstrap)")
+    ci = (
+        f" ({pct(v.level)} CI {frange(b.ci_low, b.ci_high, 2)})"
+        if is_num(b.ci_low) and is_num(b.ci_high)
+        else " (no interval: no bootstrap)"
+    )
     status = "" if v.converged else " \u2014 the fit did not converge, see the flags"
-    return (f"{v.name}: a share of {fnum(b.share, 2)}{ci} of new {selected} mutations is "
-            f"effectively neutral (|Ne\u00b7s| < {b.hi:g}, |S| < {4 * b.hi:g}) under the "
-            f"{v.best} DFE (lowest AIC){status}.")
+    return (
+        f"{v.name}: a share of {fnum(b.share, 2)}{ci} of new {selected} mutations is "
+        f"effectively neutral (|Ne\u00b7s| < {b.hi:g}, |S| < {4 * b.hi:g}) under the "
+        f"{v.best} DFE (lowest AIC){status}."
+    )

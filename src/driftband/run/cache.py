@@ -51,6 +51,7 @@ class StageError(DriftbandError):
 
 # ------------------------------------------------------------------------ stage cache
 
+
 def _canonical(obj: Any) -> str:
     return json.dumps(obj, sort_keys=True, separators=(",", ":"), default=str)
 
@@ -126,8 +127,9 @@ class RunLog(logging.Handler):
     def __init__(self) -> None:
         super().__init__(logging.INFO)
         self.lines: list[str] = []
-        self.setFormatter(logging.Formatter("%(asctime)s %(levelname)s %(message)s",
-                                            "%Y-%m-%d %H:%M:%S"))
+        self.setFormatter(
+            logging.Formatter("%(asctime)s %(levelname)s %(message)s", "%Y-%m-%d %H:%M:%S")
+        )
 
     def emit(self, record: logging.LogRecord) -> None:
         """Keep ``record`` as one formatted line."""
@@ -198,8 +200,14 @@ class StageRunner:
         self.col = col
         self.stages = stages
 
-    def run(self, sid: str, inputs: dict[str, Path | str | None], options: dict[str, Any],
-            outputs: list[Path], fn: Callable[[], Any]) -> bool:
+    def run(
+        self,
+        sid: str,
+        inputs: dict[str, Path | str | None],
+        options: dict[str, Any],
+        outputs: list[Path],
+        fn: Callable[[], Any],
+    ) -> bool:
         """Run stage ``sid`` unless cached; returns True when it ran."""
         sums = {k: (None if p is None else sha256sum(p)) for k, p in inputs.items()}
         key = stage_key(sid.split("[")[0], sums, options)
@@ -224,18 +232,21 @@ class StageRunner:
             self.col.note(logging.ERROR, f"stage {sid}: interrupted; rerun to resume here")
             raise
         except Exception as err:
-            self.col.note(logging.ERROR, f"stage {sid}: internal error "
-                                         f"{type(err).__name__}: {err}")
+            self.col.note(logging.ERROR, f"stage {sid}: internal error {type(err).__name__}: {err}")
             raise
         secs = time.monotonic() - t0
-        self.cache.record(sid, {
-            "key": key, "inputs": {k: (None if p is None else os.fspath(p))
-                                   for k, p in inputs.items()},
-            "input_sha256": sums, "options": options,
-            "outputs": {p.name: sha256sum(p) for p in outputs},
-            "finished": _dt.datetime.now(_dt.timezone.utc).isoformat(timespec="seconds"),
-            "seconds": round(secs, 2)})
-        log.info("stage %s: done in %.1f s (%s)", sid, secs,
-                 ", ".join(p.name for p in outputs))
+        self.cache.record(
+            sid,
+            {
+                "key": key,
+                "inputs": {k: (None if p is None else os.fspath(p)) for k, p in inputs.items()},
+                "input_sha256": sums,
+                "options": options,
+                "outputs": {p.name: sha256sum(p) for p in outputs},
+                "finished": _dt.datetime.now(_dt.timezone.utc).isoformat(timespec="seconds"),
+                "seconds": round(secs, 2),
+            },
+        )
+        log.info("stage %s: done in %.1f s (%s)", sid, secs, ", ".join(p.name for p in outputs))
         self.stages[sid] = "ran"
         return True

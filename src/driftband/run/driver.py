@@ -64,8 +64,15 @@ from .stages import (
 )
 from .study import Study, check_files, read_study
 
-__all__ = ["DEMO_STUDY", "STAGES", "RunResult", "demo_study", "demo_study_path",
-           "output_paths", "run_study"]
+__all__ = [
+    "DEMO_STUDY",
+    "STAGES",
+    "RunResult",
+    "demo_study",
+    "demo_study_path",
+    "output_paths",
+    "run_study",
+]
 
 log = logging.getLogger("driftband")
 
@@ -101,6 +108,7 @@ class RunResult:
 
 # ------------------------------------------------------------------------ layout
 
+
 def output_paths(study: Study, out: str | os.PathLike) -> dict[str, Any]:
     """The output layout of a study in folder ``out``.
 
@@ -115,22 +123,33 @@ def output_paths(study: Study, out: str | os.PathLike) -> dict[str, Any]:
     out = Path(out)
     prov = out / "provenance"
     paths: dict[str, Any] = {
-        "out_dir": out, "report": out / "report.html", "summary": out / "summary.md",
-        "fit": out / "fit.json", "bands": out / "bands.tsv", "compare": out / "compare.tsv",
-        "log": out / "run.log", "provenance": prov, "stages": prov / "stages.json",
-        "study": prov / "study.json", "study_toml": prov / "study.toml",
-        "point_fits": prov / "fit.point.json", "datasets": {}}
+        "out_dir": out,
+        "report": out / "report.html",
+        "summary": out / "summary.md",
+        "fit": out / "fit.json",
+        "bands": out / "bands.tsv",
+        "compare": out / "compare.tsv",
+        "log": out / "run.log",
+        "provenance": prov,
+        "stages": prov / "stages.json",
+        "study": prov / "study.json",
+        "study_toml": prov / "study.toml",
+        "point_fits": prov / "fit.point.json",
+        "datasets": {},
+    }
     for d in study.datasets:
         pre = f"{d.name}." if study.several else ""
         paths["datasets"][d.name] = {
             "sites": out / f"{pre}sites.bed" if d.sites is None else Path(d.sites),
             "classified": d.classify,
             "classify_summary": prov / f"{d.name}.classify.tsv",
-            "spectra": out / f"{pre}spectra.json"}
+            "spectra": out / f"{pre}spectra.json",
+        }
     return paths
 
 
 # ------------------------------------------------------------------------ the run
+
 
 def _check_out_dir(out: Path, study: Study, rec_path: Path, force: bool) -> None:
     if out.exists() and not out.is_dir():
@@ -144,24 +163,29 @@ def _check_out_dir(out: Path, study: Study, rec_path: Path, force: bool) -> None
         if ident != study.identity() and not force:
             what = "another study"
             if isinstance(ident, dict):
-                files = ", ".join(v for d in ident.get("datasets", []) for k, v in d.items()
-                                  if k == "vcf")
+                files = ", ".join(
+                    v for d in ident.get("datasets", []) for k, v in d.items() if k == "vcf"
+                )
                 what = f"another study ({ident.get('name')!r}, from {files or '?'})"
-            raise OptionError(f"{out} holds the results of {what}; choose another output "
-                              "folder, or use --force to replace them")
+            raise OptionError(
+                f"{out} holds the results of {what}; choose another output "
+                "folder, or use --force to replace them"
+            )
     elif out.is_dir() and any(out.iterdir()) and not force:
-        raise OptionError(f"{out} is not empty and holds no driftband run (no "
-                          "provenance/study.json); choose a new or empty output folder, or "
-                          "use --force to write into it")
+        raise OptionError(
+            f"{out} is not empty and holds no driftband run (no "
+            "provenance/study.json); choose a new or empty output folder, or "
+            "use --force to write into it"
+        )
 
 
 def _remove_stale_temporaries(paths: dict[str, Any]) -> None:
     """Remove temporary files of our outputs left by a run that was killed mid-write."""
-    outs = [p for k, p in paths.items() if isinstance(p, Path) and k not in (
-        "out_dir", "provenance")]
+    outs = [
+        p for k, p in paths.items() if isinstance(p, Path) and k not in ("out_dir", "provenance")
+    ]
     for d in paths["datasets"].values():
-        outs += [d["spectra"], d["classify_summary"]] + ([d["sites"]] if d["classified"]
-                                                          else [])
+        outs += [d["spectra"], d["classify_summary"]] + ([d["sites"]] if d["classified"] else [])
     for p in outs:
         for tmp in p.parent.glob(f".{p.name}.*.tmp"):
             with contextlib.suppress(OSError):
@@ -169,16 +193,25 @@ def _remove_stale_temporaries(paths: dict[str, Any]) -> None:
                 log.info("removed %s, left by an interrupted run", tmp)
 
 
-def _apply(study: Study, replicates: int | None, workers: int | None,
-           seed: int | None, level: float | None) -> Study:
+def _apply(
+    study: Study, replicates: int | None, workers: int | None, seed: int | None, level: float | None
+) -> Study:
     """The study with the bootstrap settings given on the command line."""
     from ..fit.bootstrap import check_bootstrap_settings
 
     b = study.bootstrap
     if workers is not None:
         resolve_workers(workers)
-    changes: dict[str, Any] = {k: v for k, v in (("replicates", replicates), ("workers", workers),
-                                 ("seed", seed), ("level", level)) if v is not None}
+    changes: dict[str, Any] = {
+        k: v
+        for k, v in (
+            ("replicates", replicates),
+            ("workers", workers),
+            ("seed", seed),
+            ("level", level),
+        )
+        if v is not None
+    }
     if not changes:
         return study
     nb = dataclasses.replace(b, **changes)
@@ -186,9 +219,16 @@ def _apply(study: Study, replicates: int | None, workers: int | None,
     return dataclasses.replace(study, bootstrap=nb)
 
 
-def run_study(study: Study, out_dir: str | os.PathLike | None = None, *, force: bool = False,
-              replicates: int | None = None, workers: int | None = None,
-              seed: int | None = None, level: float | None = None) -> RunResult:
+def run_study(
+    study: Study,
+    out_dir: str | os.PathLike | None = None,
+    *,
+    force: bool = False,
+    replicates: int | None = None,
+    workers: int | None = None,
+    seed: int | None = None,
+    level: float | None = None,
+) -> RunResult:
     """Run every stage of a study into one output folder (see the module docstring).
 
     Parameters
@@ -217,8 +257,9 @@ def run_study(study: Study, out_dir: str | os.PathLike | None = None, *, force: 
     t0 = time.monotonic()
     target = out_dir if out_dir is not None else study.out_dir
     if target is None:
-        raise OptionError("no output folder: give --out-dir DIR (or out_dir in the study "
-                          "file's [study] section)")
+        raise OptionError(
+            "no output folder: give --out-dir DIR (or out_dir in the study file's [study] section)"
+        )
     out = Path(target).expanduser().absolute()
     study = _apply(study, replicates, workers, seed, level)
     check_files(study)
@@ -228,15 +269,28 @@ def run_study(study: Study, out_dir: str | os.PathLike | None = None, *, force: 
     paths["provenance"].mkdir(parents=True, exist_ok=True)
     result = RunResult(out, paths)
     with run_log(paths["log"]) as col:
-        log.info("driftband %s: run of study %r (%s) into %s%s", __version__, study.name,
-                 study.source or "command-line flags", out, " (--force)" if force else "")
+        log.info(
+            "driftband %s: run of study %r (%s) into %s%s",
+            __version__,
+            study.name,
+            study.source or "command-line flags",
+            out,
+            " (--force)" if force else "",
+        )
         _remove_stale_temporaries(paths)
         with atomic_output(paths["study"], force=True) as fh:
-            json.dump({"schema": _STUDY_SCHEMA, "schema_version": 1,
-                       "identity": study.identity(), "study": study.to_dict(),
-                       "driftband": __version__,
-                       "updated": _dt.datetime.now(_dt.timezone.utc).isoformat(
-                           timespec="seconds")}, fh, indent=1)
+            json.dump(
+                {
+                    "schema": _STUDY_SCHEMA,
+                    "schema_version": 1,
+                    "identity": study.identity(),
+                    "study": study.to_dict(),
+                    "driftband": __version__,
+                    "updated": _dt.datetime.now(_dt.timezone.utc).isoformat(timespec="seconds"),
+                },
+                fh,
+                indent=1,
+            )
             fh.write("\n")
         if study.text is not None:
             with atomic_output(paths["study_toml"], force=True) as fh:
@@ -249,49 +303,95 @@ def run_study(study: Study, out_dir: str | os.PathLike | None = None, *, force: 
     return result
 
 
-def _run_stages(study: Study, options: Any, paths: dict[str, Any], runner: StageRunner,
-                cache: StageCache, workers: int | None) -> None:
+def _run_stages(
+    study: Study,
+    options: Any,
+    paths: dict[str, Any],
+    runner: StageRunner,
+    cache: StageCache,
+    workers: int | None,
+) -> None:
     spectra = []
     for d in study.datasets:
         dp = paths["datasets"][d.name]
         if d.classify:
-            runner.run(f"classify[{d.name}]", {"fasta": d.fasta, "gff": d.gff},
-                       d.classify_options(), [dp["sites"], dp["classify_summary"]],
-                       functools.partial(stage_classify, d, dp["sites"],
-                                         dp["classify_summary"]))
-        inputs = {"vcf": d.vcf, "popmap": d.popmap, "sites": dp["sites"],
-                  "callable": d.callable, "blocks": d.blocks}
+            runner.run(
+                f"classify[{d.name}]",
+                {"fasta": d.fasta, "gff": d.gff},
+                d.classify_options(),
+                [dp["sites"], dp["classify_summary"]],
+                functools.partial(stage_classify, d, dp["sites"], dp["classify_summary"]),
+            )
+        inputs = {
+            "vcf": d.vcf,
+            "popmap": d.popmap,
+            "sites": dp["sites"],
+            "callable": d.callable,
+            "blocks": d.blocks,
+        }
         for k, r in enumerate(d.regions or []):
             if os.path.isfile(r):
                 inputs[f"regions{k}"] = r
-        runner.run(f"spectra[{d.name}]", inputs, d.spectra_options(), [dp["spectra"]],
-                   functools.partial(stage_spectra, d, dp["sites"], dp["spectra"]))
+        runner.run(
+            f"spectra[{d.name}]",
+            inputs,
+            d.spectra_options(),
+            [dp["spectra"]],
+            functools.partial(stage_spectra, d, dp["sites"], dp["spectra"]),
+        )
         spectra.append((d.name, d.name if study.several else "", dp["spectra"]))
     nworkers = workers or study.bootstrap.workers or available_cores()
     sp_inputs = {f"spectra {n}": p for n, _l, p in spectra}
     labels = {n: lab for n, lab, _p in spectra}
     fit_opts = options.to_dict() | {"labels": labels, "populations": study.fit.populations}
-    runner.run("fit", sp_inputs, fit_opts, [paths["point_fits"]],
-               lambda: stage_fit(spectra, options, study.fit.populations, paths["point_fits"],
-                                 nworkers))
+    runner.run(
+        "fit",
+        sp_inputs,
+        fit_opts,
+        [paths["point_fits"]],
+        lambda: stage_fit(spectra, options, study.fit.populations, paths["point_fits"], nworkers),
+    )
     b = study.bootstrap
-    boot_opts = fit_opts | {"replicates": b.replicates, "level": b.level, "seed": b.seed,
-                            "models": b.models, "compare_model": study.compare.model}
-    runner.run("bootstrap", {"point_fits": paths["point_fits"], **sp_inputs}, boot_opts,
-               [paths["fit"], paths["bands"]],
-               lambda: stage_bootstrap(paths["point_fits"], spectra, options, b,
-                                       study.compare.model, paths["fit"], paths["bands"],
-                                       workers))
+    boot_opts = fit_opts | {
+        "replicates": b.replicates,
+        "level": b.level,
+        "seed": b.seed,
+        "models": b.models,
+        "compare_model": study.compare.model,
+    }
+    runner.run(
+        "bootstrap",
+        {"point_fits": paths["point_fits"], **sp_inputs},
+        boot_opts,
+        [paths["fit"], paths["bands"]],
+        lambda: stage_bootstrap(
+            paths["point_fits"],
+            spectra,
+            options,
+            b,
+            study.compare.model,
+            paths["fit"],
+            paths["bands"],
+            workers,
+        ),
+    )
     npop = len(json.loads(paths["fit"].read_text(encoding="utf-8"))["populations"])
     compare = None
     if npop >= 2 and study.compare.tests:
         c = study.compare
-        runner.run("compare", {"fit": paths["fit"]},
-                   {"model": c.model, "tests": list(c.tests), "adjust": c.adjust,
-                    "pairs": c.pairs, "relative_mutation_rate": c.relative_mutation_rate},
-                   [paths["compare"]],
-                   lambda: stage_compare(paths["fit"], c, paths["compare"], nworkers,
-                                         study))
+        runner.run(
+            "compare",
+            {"fit": paths["fit"]},
+            {
+                "model": c.model,
+                "tests": list(c.tests),
+                "adjust": c.adjust,
+                "pairs": c.pairs,
+                "relative_mutation_rate": c.relative_mutation_rate,
+            },
+            [paths["compare"]],
+            lambda: stage_compare(paths["fit"], c, paths["compare"], nworkers, study),
+        )
         compare = paths["compare"]
     else:
         why = "one population" if npop < 2 else "[compare] tests is empty"
@@ -301,12 +401,15 @@ def _run_stages(study: Study, options: Any, paths: dict[str, Any], runner: Stage
             with contextlib.suppress(FileNotFoundError):
                 paths["compare"].unlink()
             cache.drop("compare")
-    runner.run("report", {"fit": paths["fit"], "compare": compare, **sp_inputs},
-               {"study": study.name, "description": study.description,
-                "identity": study.identity()},
-               [paths["report"], paths["summary"]],
-               lambda: stage_report(study, paths["fit"], compare, spectra, paths["report"],
-                                    paths["summary"]))
+    runner.run(
+        "report",
+        {"fit": paths["fit"], "compare": compare, **sp_inputs},
+        {"study": study.name, "description": study.description, "identity": study.identity()},
+        [paths["report"], paths["summary"]],
+        lambda: stage_report(
+            study, paths["fit"], compare, spectra, paths["report"], paths["summary"]
+        ),
+    )
 
 
 # ------------------------------------------------------------------------ demo
@@ -328,9 +431,12 @@ def demo_study_path() -> Path:
     # a package on disk gives a pathlib.Path; one inside a zip file has no file to read
     p = Path(os.fspath(res)) if isinstance(res, os.PathLike) else None
     if p is None or not p.is_file():
-        raise InputError("the demo data is not installed with this driftband (expected "
-                         "driftband/data/demo/); reinstall with 'pip install .' from a "
-                         "clone of the repository", p)
+        raise InputError(
+            "the demo data is not installed with this driftband (expected "
+            "driftband/data/demo/); reinstall with 'pip install .' from a "
+            "clone of the repository",
+            p,
+        )
     return p
 
 

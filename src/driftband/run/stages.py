@@ -18,8 +18,17 @@ from .._options import COMMAND_LINE, OptionSource
 from ..exceptions import InputError
 from .study import BootstrapSettings, CompareSettings, Dataset, Study
 
-__all__ = ["SpectraFile", "fit_options", "stage_bootstrap", "stage_classify",
-           "stage_compare", "stage_fit", "stage_report", "stage_spectra", "study_model"]
+__all__ = [
+    "SpectraFile",
+    "fit_options",
+    "stage_bootstrap",
+    "stage_classify",
+    "stage_compare",
+    "stage_fit",
+    "stage_report",
+    "stage_spectra",
+    "study_model",
+]
 
 log = logging.getLogger("driftband")
 
@@ -67,8 +76,9 @@ def fit_options(study: Study) -> Any:
     return FitOptions(fs.neutral, fs.selected, models, eps, fs.equilibrium, edges)
 
 
-def stage_classify(dataset: Dataset, out_bed: str | os.PathLike[str],
-                   summary: str | os.PathLike[str] | None = None) -> Any:
+def stage_classify(
+    dataset: Dataset, out_bed: str | os.PathLike[str], summary: str | os.PathLike[str] | None = None
+) -> Any:
     """Site classes of a dataset from its FASTA + GFF3, written as a BED4.
 
     Parameters
@@ -87,21 +97,31 @@ def stage_classify(dataset: Dataset, out_bed: str | os.PathLike[str],
     from ..sites.bed import write_bed4
     from ..sites.classify import classify_sites, write_summary
 
-    if dataset.fasta is None or dataset.gff is None:   # the study checks rule it out
+    if dataset.fasta is None or dataset.gff is None:  # the study checks rule it out
         raise ValueError(f"dataset {dataset.name!r}: classifying needs fasta and gff")
-    res = classify_sites(dataset.fasta, dataset.gff, code=dataset.code,
-                         transcripts=dataset.transcripts,
-                         exclude_softmasked=dataset.exclude_softmasked)
+    res = classify_sites(
+        dataset.fasta,
+        dataset.gff,
+        code=dataset.code,
+        transcripts=dataset.transcripts,
+        exclude_softmasked=dataset.exclude_softmasked,
+    )
     n = write_bed4(out_bed, res.rows(), force=True)
     if summary is not None:
         write_summary(res, summary, force=True)
-    log.info("classify[%s]: %d intervals, %d 0-fold and %d 4-fold sites", dataset.name, n,
-             res.total("0fold"), res.total("4fold"))
+    log.info(
+        "classify[%s]: %d intervals, %d 0-fold and %d 4-fold sites",
+        dataset.name,
+        n,
+        res.total("0fold"),
+        res.total("4fold"),
+    )
     return res
 
 
-def stage_spectra(dataset: Dataset, sites: str | os.PathLike[str],
-                  out_json: str | os.PathLike[str]) -> Any:
+def stage_spectra(
+    dataset: Dataset, sites: str | os.PathLike[str], out_json: str | os.PathLike[str]
+) -> Any:
     """Spectra of a dataset (all populations, both classes, per block), written as JSON.
 
     Parameters
@@ -118,11 +138,20 @@ def stage_spectra(dataset: Dataset, sites: str | os.PathLike[str],
     from ..spectra import build_spectra, summary_lines
     from ..spectra.io import write_spectra_json
 
-    ss = build_spectra(dataset.vcf, dataset.popmap, sites, callable_mask=dataset.callable,
-                       ancestral=dataset.ancestral, project=dataset.project,
-                       block_size=dataset.block_size, blocks=dataset.blocks,
-                       regions=dataset.regions, min_gq=dataset.min_gq,
-                       min_dp=dataset.min_dp, pass_only=dataset.pass_only)
+    ss = build_spectra(
+        dataset.vcf,
+        dataset.popmap,
+        sites,
+        callable_mask=dataset.callable,
+        ancestral=dataset.ancestral,
+        project=dataset.project,
+        block_size=dataset.block_size,
+        blocks=dataset.blocks,
+        regions=dataset.regions,
+        min_gq=dataset.min_gq,
+        min_dp=dataset.min_dp,
+        pass_only=dataset.pass_only,
+    )
     write_spectra_json(ss, out_json, force=True)
     for line in summary_lines(ss):
         log.info("spectra[%s]: %s", dataset.name, line)
@@ -133,16 +162,22 @@ def _labelled(spectra: list[SpectraFile]) -> list[Any]:
     from ..fit.api import LabelledSpectra
     from ..spectra.io import read_spectra
 
-    return [LabelledSpectra(os.fspath(p), read_spectra(p), label, name)
-            for name, label, p in spectra]
+    return [
+        LabelledSpectra(os.fspath(p), read_spectra(p), label, name) for name, label, p in spectra
+    ]
 
 
 def _spectra_records(spectra: list[SpectraFile]) -> list[dict[str, Any] | None]:
     return [file_record(p) for _n, _l, p in spectra]
 
 
-def stage_fit(spectra: list[SpectraFile], options: Any, populations: list[str] | None,
-              out_json: str | os.PathLike[str], workers: int | None = None) -> list[Any]:
+def stage_fit(
+    spectra: list[SpectraFile],
+    options: Any,
+    populations: list[str] | None,
+    out_json: str | os.PathLike[str],
+    workers: int | None = None,
+) -> list[Any]:
     """Point fits of every model of ``options`` to every population.
 
     Parameters
@@ -194,10 +229,16 @@ def study_model(fits: list[Any], order: list[str] | None = None) -> str:
     return min(ok, key=lambda m: (sum(pf.fits[m].aic for pf in fits), ok.index(m)))
 
 
-def stage_bootstrap(point_json: str | os.PathLike[str], spectra: list[SpectraFile],
-                    options: Any, settings: BootstrapSettings, compare_model: str,
-                    out_json: str | os.PathLike[str], out_bands: str | os.PathLike[str],
-                    workers: int | None = None) -> dict[str, Any]:
+def stage_bootstrap(
+    point_json: str | os.PathLike[str],
+    spectra: list[SpectraFile],
+    options: Any,
+    settings: BootstrapSettings,
+    compare_model: str,
+    out_json: str | os.PathLike[str],
+    out_bands: str | os.PathLike[str],
+    workers: int | None = None,
+) -> dict[str, Any]:
     """Block bootstrap of the point fits; writes the fit file and the band table.
 
     Parameters
@@ -231,24 +272,41 @@ def stage_bootstrap(point_json: str | os.PathLike[str], spectra: list[SpectraFil
     order = [m.name for m in options.models]
     chosen = study_model(fits, order) if compare_model == "auto" else compare_model
     if chosen not in order:
-        raise InputError(f"[compare] model {chosen!r} is not among the fitted models "
-                         f"({', '.join(order)})")
+        raise InputError(
+            f"[compare] model {chosen!r} is not among the fitted models ({', '.join(order)})"
+        )
     reps = settings.replicates
     booted: dict[str, list[str]] = {}
     if reps > 0:
         for pf in fits:
             want = set(order) if settings.models == "all" else {pf.best.model, chosen}
             booted[pf.population] = [m for m in order if m in want]
-        log.info("bootstrap: %d replicates of %s", reps, "; ".join(
-            f"{p}: {', '.join(ms)}" for p, ms in booted.items()))
-        bootstrap_fits(fits, block_spectra(_labelled(spectra)), options, reps,
-                       seed=settings.seed, level=settings.level,
-                       workers=workers or settings.workers, models=booted)
-    opts = options.to_dict() | {"bootstrap": reps, "seed": settings.seed,
-                                "level": settings.level, "bootstrap_models": settings.models,
-                                "bootstrapped": booted, "compare_model": chosen}
-    prov = provenance(opts, {"spectra": _spectra_records(spectra),
-                             "point_fits": file_record(point_json)})
+        log.info(
+            "bootstrap: %d replicates of %s",
+            reps,
+            "; ".join(f"{p}: {', '.join(ms)}" for p, ms in booted.items()),
+        )
+        bootstrap_fits(
+            fits,
+            block_spectra(_labelled(spectra)),
+            options,
+            reps,
+            seed=settings.seed,
+            level=settings.level,
+            workers=workers or settings.workers,
+            models=booted,
+        )
+    opts = options.to_dict() | {
+        "bootstrap": reps,
+        "seed": settings.seed,
+        "level": settings.level,
+        "bootstrap_models": settings.models,
+        "bootstrapped": booted,
+        "compare_model": chosen,
+    }
+    prov = provenance(
+        opts, {"spectra": _spectra_records(spectra), "point_fits": file_record(point_json)}
+    )
     prov["seed"] = settings.seed
     out = fit_document(fits, opts, prov)
     write_fit_json(out, out_json, force=True)
@@ -256,16 +314,25 @@ def stage_bootstrap(point_json: str | os.PathLike[str], spectra: list[SpectraFil
     for pf in fits:
         mb = pf.model_bootstrap(pf.best.model)
         ci = mb.shares_ci[0] if mb is not None else None
-        iv = f" ({ci.low:.3f}-{ci.high:.3f})" if ci is not None and math.isfinite(
-            ci.low) else ""
-        log.info("bootstrap: %s: %s, share with |Ne*s| < %g: %.3f%s", pf.population,
-                 pf.best.model, options.edges_nes[1], pf.best.shares[0], iv)
+        iv = f" ({ci.low:.3f}-{ci.high:.3f})" if ci is not None and math.isfinite(ci.low) else ""
+        log.info(
+            "bootstrap: %s: %s, share with |Ne*s| < %g: %.3f%s",
+            pf.population,
+            pf.best.model,
+            options.edges_nes[1],
+            pf.best.shares[0],
+            iv,
+        )
     return out
 
 
-def stage_compare(fit_json: str | os.PathLike[str], settings: CompareSettings,
-                  out_tsv: str | os.PathLike[str], workers: int | None = None,
-                  study: Study | None = None) -> list[Any]:
+def stage_compare(
+    fit_json: str | os.PathLike[str],
+    settings: CompareSettings,
+    out_tsv: str | os.PathLike[str],
+    workers: int | None = None,
+    study: Study | None = None,
+) -> list[Any]:
     """Tests between pairs of populations (every pair unless ``settings.pairs``).
 
     Parameters
@@ -291,17 +358,30 @@ def stage_compare(fit_json: str | os.PathLike[str], settings: CompareSettings,
     ff = read_fits(fit_json)
     name = ff.settings.get("compare_model") if settings.model == "auto" else settings.model
     source = _source(study, "compare") if study is not None else OptionSource("compare")
-    rows = compare_fits(ff.populations, ff.options, str(name), pairs=settings.pairs,
-                        tests=settings.tests, relative_mu=settings.relative_mutation_rate,
-                        adjust=settings.adjust, source=source, holder="the study has",
-                        workers=workers)
+    rows = compare_fits(
+        ff.populations,
+        ff.options,
+        str(name),
+        pairs=settings.pairs,
+        tests=settings.tests,
+        relative_mu=settings.relative_mutation_rate,
+        adjust=settings.adjust,
+        source=source,
+        holder="the study has",
+        workers=workers,
+    )
     write_compare_tsv(rows, out_tsv, force=True)
     return rows
 
 
-def stage_report(study: Study, fit_json: str | os.PathLike[str],
-                 compare_tsv: str | os.PathLike[str] | None, spectra: list[SpectraFile],
-                 out_html: str | os.PathLike[str], out_md: str | os.PathLike[str]) -> None:
+def stage_report(
+    study: Study,
+    fit_json: str | os.PathLike[str],
+    compare_tsv: str | os.PathLike[str] | None,
+    spectra: list[SpectraFile],
+    out_html: str | os.PathLike[str],
+    out_md: str | os.PathLike[str],
+) -> None:
     """The HTML report and the Markdown summary of a study.
 
     Parameters

@@ -51,8 +51,11 @@ STUDY_KEYS: dict[str, dict[str, tuple[str, str]]] = {
         "out_dir": ("path", "output folder (default: none; --out-dir overrides it)"),
     },
     "dataset": {
-        "name": ("name", "label of the dataset; population names become NAME/POP when "
-                         "the study has several datasets (default: the VCF's name)"),
+        "name": (
+            "name",
+            "label of the dataset; population names become NAME/POP when "
+            "the study has several datasets (default: the VCF's name)",
+        ),
         "vcf": ("file", "VCF/BCF of all samples (bgzipped + indexed, bgzipped or plain)"),
         "popmap": ("file", "TSV sample<TAB>population (header optional)"),
         "sites": ("file", "BED4 of site classes (0fold, 4fold); or give fasta + gff"),
@@ -62,10 +65,12 @@ STUDY_KEYS: dict[str, dict[str, tuple[str, str]]] = {
         "transcripts": ("str", "classify: 'agree' (default) or 'longest'"),
         "exclude_softmasked": ("bool", "classify: drop soft-masked (lowercase) sites"),
         "callable": ("file", "BED of callable sites; classes are intersected with it"),
-        "ancestral": ("str", "polarisation: 'aa' (INFO/AA, default), 'fold' or "
-                             "'outgroup:POP'"),
-        "project": ("project", "gene copies to project to: N for all populations or a "
-                               "table {POP = N} (default: automatic)"),
+        "ancestral": ("str", "polarisation: 'aa' (INFO/AA, default), 'fold' or 'outgroup:POP'"),
+        "project": (
+            "project",
+            "gene copies to project to: N for all populations or a "
+            "table {POP = N} (default: automatic)",
+        ),
         "block_size": ("posint", f"bootstrap block length in bp (default {DEFAULT_BLOCK_SIZE})"),
         "blocks": ("file", "BED of bootstrap blocks (e.g. genes) instead of block_size"),
         "regions": ("strlist", "only these regions: CHROM, CHROM:START-END or BED files"),
@@ -74,13 +79,18 @@ STUDY_KEYS: dict[str, dict[str, tuple[str, str]]] = {
         "pass_only": ("bool", "keep only records whose FILTER is PASS or '.'"),
     },
     "fit": {
-        "dfe": ("strlist", f"DFE families fitted (default {', '.join(DEFAULT_MODELS)}; "
-                           "NAME+beneficial adds a beneficial class)"),
+        "dfe": (
+            "strlist",
+            f"DFE families fitted (default {', '.join(DEFAULT_MODELS)}; "
+            "NAME+beneficial adds a beneficial class)",
+        ),
         "beneficial": ("bool", "add a beneficial class to every family"),
         "misorientation": ("str", "'free' (default) or 'fixed:RATE'"),
         "equilibrium": ("bool", "no demographic nuisance parameters"),
-        "bands": ("numlist", "band edges on |Ne*s| (default "
-                             f"[{format_edges().replace(',', ', ')}])"),
+        "bands": (
+            "numlist",
+            f"band edges on |Ne*s| (default [{format_edges().replace(',', ', ')}])",
+        ),
         "neutral": ("str", "neutral class (default 4fold)"),
         "selected": ("str", "selected class (default 0fold)"),
         "populations": ("strlist", "fit only these populations (default: all)"),
@@ -90,18 +100,24 @@ STUDY_KEYS: dict[str, dict[str, tuple[str, str]]] = {
         "level": ("float", "confidence level of the intervals (default 0.95)"),
         "seed": ("int", "random seed (default 1)"),
         "workers": ("posint", "worker processes (default: the cores available)"),
-        "models": ("str", "'best' (default: each population's AIC-best model and the "
-                          "model compared) or 'all'"),
+        "models": (
+            "str",
+            "'best' (default: each population's AIC-best model and the model compared) or 'all'",
+        ),
     },
     "compare": {
-        "model": ("str", "DFE model of the comparisons: 'auto' (default: lowest AIC "
-                         "summed over all populations) or a fitted model"),
-        "tests": ("strlist", f"tests (default all: {', '.join(COMPARE_TESTS)}); [] for "
-                             "none"),
+        "model": (
+            "str",
+            "DFE model of the comparisons: 'auto' (default: lowest AIC "
+            "summed over all populations) or a fitted model",
+        ),
+        "tests": ("strlist", f"tests (default all: {', '.join(COMPARE_TESTS)}); [] for none"),
         "adjust": ("str", "multiple-testing adjustment (default holm)"),
         "pairs": ("strlist", "pairs as 'A:B' (default: every pair)"),
-        "relative_mutation_rate": ("floattable", "{POP = R}: mutation rate relative to "
-                                                 "the others (default 1)"),
+        "relative_mutation_rate": (
+            "floattable",
+            "{POP = R}: mutation rate relative to the others (default 1)",
+        ),
     },
 }
 
@@ -142,14 +158,23 @@ class Dataset:
 
     def spectra_options(self) -> dict[str, Any]:
         """Options of the spectra stage (JSON-ready)."""
-        return {"ancestral": self.ancestral, "project": self.project,
-                "block_size": self.block_size, "regions": self.regions,
-                "min_gq": self.min_gq, "min_dp": self.min_dp, "pass_only": self.pass_only}
+        return {
+            "ancestral": self.ancestral,
+            "project": self.project,
+            "block_size": self.block_size,
+            "regions": self.regions,
+            "min_gq": self.min_gq,
+            "min_dp": self.min_dp,
+            "pass_only": self.pass_only,
+        }
 
     def classify_options(self) -> dict[str, Any]:
         """Options of the classify stage (JSON-ready)."""
-        return {"code": self.code, "transcripts": self.transcripts,
-                "exclude_softmasked": self.exclude_softmasked}
+        return {
+            "code": self.code,
+            "transcripts": self.transcripts,
+            "exclude_softmasked": self.exclude_softmasked,
+        }
 
 
 @dataclass
@@ -233,12 +258,24 @@ class Study:
         Option changes or edited file contents keep the identity (the stage cache
         redoes what they affect); another name or other input files make another study.
         """
-        return {"name": self.name, "datasets": [
-            {"name": d.name, **{k: os.path.basename(getattr(d, k)) for k in _FILE_KEYS
-                                if getattr(d, k) is not None}} for d in self.datasets]}
+        return {
+            "name": self.name,
+            "datasets": [
+                {
+                    "name": d.name,
+                    **{
+                        k: os.path.basename(getattr(d, k))
+                        for k in _FILE_KEYS
+                        if getattr(d, k) is not None
+                    },
+                }
+                for d in self.datasets
+            ],
+        }
 
 
 # ------------------------------------------------------------------------- TOML reading
+
 
 def _load_toml(path: Path) -> tuple[dict[str, Any], str]:
     if sys.version_info >= (3, 11):
@@ -257,8 +294,7 @@ def _load_toml(path: Path) -> tuple[dict[str, Any], str]:
         doc = tomllib.loads(text)
     except tomllib.TOMLDecodeError as err:
         m = re.search(r"line (\d+)", str(err))
-        raise InputError(f"not valid TOML ({err})", path,
-                         int(m.group(1)) if m else None) from None
+        raise InputError(f"not valid TOML ({err})", path, int(m.group(1)) if m else None) from None
     return doc, text
 
 
@@ -290,8 +326,9 @@ def _key_lines(text: str) -> dict[tuple[str, str | None], int]:
 class _Where:
     """Names a key in messages: ``study.toml:12`` + ``[fit] key 'dfe'`` or ``--dfe``."""
 
-    def __init__(self, path: str | None, lines: dict | None = None,
-                 flags: dict[str, str] | None = None) -> None:
+    def __init__(
+        self, path: str | None, lines: dict | None = None, flags: dict[str, str] | None = None
+    ) -> None:
         self.path = path
         self.lines = lines or {}
         self.flags = flags or {}
@@ -352,20 +389,25 @@ def _value(where: _Where, section: str, key: str, v: Any, kind: str) -> Any:
             raise bad("a list of strings")
         return list(v)
     if kind == "numlist":
-        if not isinstance(v, list) or not all(isinstance(t, int | float) and
-                                              not isinstance(t, bool) for t in v):
+        if not isinstance(v, list) or not all(
+            isinstance(t, int | float) and not isinstance(t, bool) for t in v
+        ):
             raise bad("a list of numbers")
         return tuple(float(t) for t in v)
     if kind == "project":
         if isinstance(v, int) and not isinstance(v, bool) and v > 0:
             return v
-        if isinstance(v, dict) and v and all(isinstance(n, int) and not isinstance(n, bool)
-                                             and n > 0 for n in v.values()):
+        if (
+            isinstance(v, dict)
+            and v
+            and all(isinstance(n, int) and not isinstance(n, bool) and n > 0 for n in v.values())
+        ):
             return {str(k): int(n) for k, n in v.items()}
         raise bad("a positive integer or a table {POP = N}")
     if kind == "floattable":
-        if isinstance(v, dict) and all(isinstance(r, int | float) and not isinstance(r, bool)
-                                       for r in v.values()):
+        if isinstance(v, dict) and all(
+            isinstance(r, int | float) and not isinstance(r, bool) for r in v.values()
+        ):
             return {str(k): float(r) for k, r in v.items()}
         raise bad("a table {POP = number}")
     raise AssertionError(kind)  # pragma: no cover
@@ -381,8 +423,9 @@ def _section(where: _Where, section: str, table: Any, schema: str) -> dict[str, 
     for key, v in table.items():
         if key not in keys:
             known = ", ".join(keys)
-            raise where.error(section, key, f"unknown key {key!r} in [{shown}] (known keys: "
-                                            f"{known})")
+            raise where.error(
+                section, key, f"unknown key {key!r} in [{shown}] (known keys: {known})"
+            )
         out[key] = _value(where, section, key, v, keys[key][0])
     return out
 
@@ -403,49 +446,72 @@ def _default_name(vcf: str) -> str:
 
 def _dataset(where: _Where, section: str, vals: dict[str, Any], base: Path) -> Dataset:
     label = vals.get("name")
-    who = (f"dataset {label!r}" if label else f"dataset {int(section[8:-1]) + 1}"
-           if where.path is not None else "the dataset")
+    who = (
+        f"dataset {label!r}"
+        if label
+        else f"dataset {int(section[8:-1]) + 1}"
+        if where.path is not None
+        else "the dataset"
+    )
     for key in ("vcf", "popmap"):
         if key not in vals:
-            raise where.error(section, None, f"{who}: {where.name(section, key)} is "
-                                             "required")
+            raise where.error(section, None, f"{who}: {where.name(section, key)} is required")
     has_sites, has_genome = "sites" in vals, ("fasta" in vals or "gff" in vals)
     if has_sites and has_genome:
-        raise where.error(section, "sites", f"{who}: give either sites (a BED of site "
-                                            "classes) or fasta + gff, not both")
+        raise where.error(
+            section,
+            "sites",
+            f"{who}: give either sites (a BED of site classes) or fasta + gff, not both",
+        )
     if not has_sites and not ("fasta" in vals and "gff" in vals):
         missing = "gff" if "fasta" in vals else "fasta" if "gff" in vals else "sites"
-        raise where.error(section, None, f"{who}: needs the site classes: sites = BED, or "
-                                         f"fasta + gff ({where.name(section, missing)} "
-                                         "is missing)")
+        raise where.error(
+            section,
+            None,
+            f"{who}: needs the site classes: sites = BED, or "
+            f"fasta + gff ({where.name(section, missing)} "
+            "is missing)",
+        )
     if has_sites:
         for key in ("code", "transcripts", "exclude_softmasked"):
             if key in vals:
-                raise where.error(section, key, f"{who}: {where.name(section, key)} applies "
-                                                "only to site classes made from fasta + gff")
+                raise where.error(
+                    section,
+                    key,
+                    f"{who}: {where.name(section, key)} applies "
+                    "only to site classes made from fasta + gff",
+                )
     if vals.get("transcripts", "agree") not in ("agree", "longest"):
-        raise where.error(section, "transcripts", f"{who}: transcripts must be 'agree' or "
-                                                  "'longest'")
+        raise where.error(
+            section, "transcripts", f"{who}: transcripts must be 'agree' or 'longest'"
+        )
     anc = vals.get("ancestral", "aa")
     kind, _, pop = anc.partition(":")
     if not (anc in ("aa", "fold") or (kind == "outgroup" and pop)):
-        raise where.error(section, "ancestral", f"{who}: ancestral must be 'aa', 'fold' or "
-                                                f"'outgroup:POP', not {anc!r}")
+        raise where.error(
+            section,
+            "ancestral",
+            f"{who}: ancestral must be 'aa', 'fold' or 'outgroup:POP', not {anc!r}",
+        )
     if "blocks" in vals and "block_size" in vals:
         raise where.error(section, "blocks", f"{who}: give blocks or block_size, not both")
-    d: dict[str, Any] = {k: (_resolve(base, v) if k in _FILE_KEYS else v)
-                         for k, v in vals.items()}
+    d: dict[str, Any] = {k: (_resolve(base, v) if k in _FILE_KEYS else v) for k, v in vals.items()}
     regions = d.get("regions")
     if regions:  # BED files among the regions are paths too
-        d["regions"] = [_resolve(base, r) if r.endswith((".bed", ".bed.gz")) else r
-                        for r in regions]
+        d["regions"] = [
+            _resolve(base, r) if r.endswith((".bed", ".bed.gz")) else r for r in regions
+        ]
     d.setdefault("name", _default_name(d["vcf"]))
     return Dataset(**d)
 
 
-def study_from_dict(doc: dict[str, Any], source: str | os.PathLike | None = None,
-                    base: str | os.PathLike | None = None, text: str | None = None,
-                    flags: dict[str, str] | None = None) -> Study:
+def study_from_dict(
+    doc: dict[str, Any],
+    source: str | os.PathLike | None = None,
+    base: str | os.PathLike | None = None,
+    text: str | None = None,
+    flags: dict[str, str] | None = None,
+) -> Study:
     """Build and check a :class:`Study` from a parsed study document.
 
     Parameters
@@ -480,26 +546,40 @@ def study_from_dict(doc: dict[str, Any], source: str | os.PathLike | None = None
     base_dir = Path(base) if base is not None else (Path(src).parent if src else Path.cwd())
     for sec in doc:
         if sec not in STUDY_KEYS:
-            what = (f"unknown section [{sec}]" if isinstance(doc[sec], dict | list)
-                    else f"unknown key {sec!r} outside any section")
+            what = (
+                f"unknown section [{sec}]"
+                if isinstance(doc[sec], dict | list)
+                else f"unknown key {sec!r} outside any section"
+            )
             known = ", ".join("[[dataset]]" if s == "dataset" else f"[{s}]" for s in STUDY_KEYS)
-            raise where.error(sec if isinstance(doc[sec], dict | list) else "", sec,
-                              f"{what} (known sections: {known})")
+            raise where.error(
+                sec if isinstance(doc[sec], dict | list) else "",
+                sec,
+                f"{what} (known sections: {known})",
+            )
     st = _section(where, "study", doc.get("study", {}), "study")
     raw = doc.get("dataset")
     if raw is None or raw == []:
-        raise where.error("", None, "the study has no dataset (add a [[dataset]] table with "
-                                    "vcf, popmap and sites or fasta + gff)")
+        raise where.error(
+            "",
+            None,
+            "the study has no dataset (add a [[dataset]] table with "
+            "vcf, popmap and sites or fasta + gff)",
+        )
     tables = raw if isinstance(raw, list) else [raw]
-    datasets = [_dataset(where, f"dataset[{i}]", _section(where, f"dataset[{i}]", t,
-                                                            "dataset"), base_dir)
-                for i, t in enumerate(tables)]
+    datasets = [
+        _dataset(where, f"dataset[{i}]", _section(where, f"dataset[{i}]", t, "dataset"), base_dir)
+        for i, t in enumerate(tables)
+    ]
     names = [d.name for d in datasets]
     dup = next((n for n in names if names.count(n) > 1), None)
     if dup is not None:
         k = len(names) - 1 - names[::-1].index(dup)
-        raise where.error(f"dataset[{k}]", "name", f"two datasets are named {dup!r}; give "
-                                                   "each dataset its own name")
+        raise where.error(
+            f"dataset[{k}]",
+            "name",
+            f"two datasets are named {dup!r}; give each dataset its own name",
+        )
     fit = _section(where, "fit", doc.get("fit", {}), "fit")
     boot = _section(where, "bootstrap", doc.get("bootstrap", {}), "bootstrap")
     comp = _section(where, "compare", doc.get("compare", {}), "compare")
@@ -509,20 +589,34 @@ def study_from_dict(doc: dict[str, Any], source: str | os.PathLike | None = None
             raise where.error("fit", "dfe", f"{where.name('fit', 'dfe')} names no model")
     if "tests" in comp:
         comp["tests"] = tuple(comp["tests"])
-    check_compare_settings(comp.get("tests", ()), comp.get("adjust", "holm"),
-                           comp.get("pairs"), where.source("compare"))
+    check_compare_settings(
+        comp.get("tests", ()),
+        comp.get("adjust", "holm"),
+        comp.get("pairs"),
+        where.source("compare"),
+    )
     if "models" in boot and boot["models"] not in ("best", "all"):
-        raise where.error("bootstrap", "models", f"{where.name('bootstrap', 'models')} must "
-                                                 f"be 'best' or 'all', not {boot['models']!r}")
-    check_bootstrap_settings(boot.get("replicates", 0), boot.get("level", DEFAULT_LEVEL),
-                             where.source("bootstrap"))
+        raise where.error(
+            "bootstrap",
+            "models",
+            f"{where.name('bootstrap', 'models')} must be 'best' or 'all', not {boot['models']!r}",
+        )
+    check_bootstrap_settings(
+        boot.get("replicates", 0), boot.get("level", DEFAULT_LEVEL), where.source("bootstrap")
+    )
     default_name = Path(src).name.split(".")[0] if src else datasets[0].name
     out_dir = _resolve(base_dir, st["out_dir"]) if "out_dir" in st else None
-    return Study(name=st.get("name", default_name), datasets=datasets,
-                 fit=FitSettings(**fit), bootstrap=BootstrapSettings(**boot),
-                 compare=CompareSettings(**comp), description=st.get("description", ""),
-                 out_dir=out_dir, source=None if src is None else os.path.abspath(src),
-                 text=text)
+    return Study(
+        name=st.get("name", default_name),
+        datasets=datasets,
+        fit=FitSettings(**fit),
+        bootstrap=BootstrapSettings(**boot),
+        compare=CompareSettings(**comp),
+        description=st.get("description", ""),
+        out_dir=out_dir,
+        source=None if src is None else os.path.abspath(src),
+        text=text,
+    )
 
 
 def read_study(path: str | os.PathLike) -> Study:
@@ -564,13 +658,20 @@ def check_files(study: Study) -> None:
                 if study.source is None:
                     raise InputError(f"file not found (--{key})", p)
                 line = lines.get((f"dataset[{i}]", key))
-                raise InputError(f"dataset {d.name!r}: {key} file {p} not found", study.source,
-                                 line)
+                raise InputError(
+                    f"dataset {d.name!r}: {key} file {p} not found", study.source, line
+                )
             if os.path.isdir(p):
-                where = f"--{key}" if study.source is None else \
-                    f"dataset {d.name!r}, key {key!r} of {study.source}"
+                where = (
+                    f"--{key}"
+                    if study.source is None
+                    else f"dataset {d.name!r}, key {key!r} of {study.source}"
+                )
                 raise InputError(f"is a folder, not a file ({where})", p)
         for r in d.regions or []:
             if r.endswith((".bed", ".bed.gz")) and not os.path.exists(r):
-                raise InputError(f"dataset {d.name!r}: regions file {r} not found",
-                                 study.source or r, lines.get((f"dataset[{i}]", "regions")))
+                raise InputError(
+                    f"dataset {d.name!r}: regions file {r} not found",
+                    study.source or r,
+                    lines.get((f"dataset[{i}]", "regions")),
+                )

@@ -54,15 +54,18 @@ class SimDFE:
 
     def __post_init__(self) -> None:
         if self.family not in _FAMILIES:
-            raise OptionError(f"--dfe: unknown family {self.family!r} "
-                              f"(use one of {', '.join(_FAMILIES)})")
+            raise OptionError(
+                f"--dfe: unknown family {self.family!r} (use one of {', '.join(_FAMILIES)})"
+            )
         need = set(_FAMILIES[self.family])
         have = set(self.params)
         if have != need:
             missing, extra = sorted(need - have), sorted(have - need)
-            what = (f"missing {', '.join(missing)}" if missing else "") + \
-                ("; " if missing and extra else "") + \
-                (f"unknown {', '.join(extra)}" if extra else "")
+            what = (
+                (f"missing {', '.join(missing)}" if missing else "")
+                + ("; " if missing and extra else "")
+                + (f"unknown {', '.join(extra)}" if extra else "")
+            )
             expected = ", ".join(k + "=" for k in _FAMILIES[self.family]) or "no parameters"
             raise OptionError(f"--dfe {self.family}: {what} (expected {expected})")
         p = self.params
@@ -75,8 +78,9 @@ class SimDFE:
             raise OptionError("--dfe lognormal: sigma must be >= 0")
         if not 0.0 <= self.beneficial_p <= 1.0:
             raise OptionError(f"--beneficial: p={self.beneficial_p} must be in [0, 1]")
-        if self.beneficial_p > 0 and not (self.beneficial_S > 0 and
-                                          math.isfinite(self.beneficial_S)):
+        if self.beneficial_p > 0 and not (
+            self.beneficial_S > 0 and math.isfinite(self.beneficial_S)
+        ):
             raise OptionError(f"--beneficial: S={self.beneficial_S} must be a finite number > 0")
 
     def sample_S(self, size: int, rng: np.random.Generator) -> np.ndarray:
@@ -204,8 +208,12 @@ def s_from_S(S: np.ndarray, n_ref: float) -> np.ndarray:
     return np.maximum(np.asarray(S, dtype=float) / (4.0 * n_ref), S_MIN_CLIP)
 
 
-def band_shares(dfe: SimDFE, n_ref: float, n_pop: float,
-                edges: tuple[float, ...] = (0.0, 1.0, 10.0, 100.0, math.inf)) -> list[float]:
+def band_shares(
+    dfe: SimDFE,
+    n_ref: float,
+    n_pop: float,
+    edges: tuple[float, ...] = (0.0, 1.0, 10.0, 100.0, math.inf),
+) -> list[float]:
     """True shares of new selected-class mutations in bands of |N_pop·s|.
 
     The simulator's s = max(S / (4·N_ref), −0.5) is put on the axis |N_pop·s| of a
@@ -221,12 +229,12 @@ def band_shares(dfe: SimDFE, n_ref: float, n_pop: float,
     from scipy import stats
 
     p = dfe.params
-    cap = n_pop * -S_MIN_CLIP            # |N s| of a clipped mutation
+    cap = n_pop * -S_MIN_CLIP  # |N s| of a clipped mutation
 
-    def cdf_del(x: float) -> float:      # P(|N_pop s| < x) for the deleterious part
+    def cdf_del(x: float) -> float:  # P(|N_pop s| < x) for the deleterious part
         if x > cap:
             return 1.0
-        t = 4.0 * n_ref * x / n_pop       # the same threshold on |S_ref|
+        t = 4.0 * n_ref * x / n_pop  # the same threshold on |S_ref|
         if dfe.family == "gamma":
             return float(stats.gamma.cdf(t, p["shape"], scale=p["mean"] / p["shape"]))
         if dfe.family == "lognormal":

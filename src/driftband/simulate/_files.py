@@ -41,8 +41,13 @@ from ._genome import build_reference, fasta_index, write_fasta, write_gff3
 from ._model import PopulationModel
 from ._study import CLASSES, SimulatedStudy, _seed_stream
 
-__all__ = ["check_genome_option", "check_vcf_options", "study_paths", "write_study",
-           "write_study_vcf"]
+__all__ = [
+    "check_genome_option",
+    "check_vcf_options",
+    "study_paths",
+    "write_study",
+    "write_study_vcf",
+]
 
 log = logging.getLogger("driftband")
 
@@ -54,8 +59,12 @@ def study_paths(vcf_prefix: str | os.PathLike, genome: bool = False) -> dict[str
     """Output paths of the VCF set for a prefix: ``vcf``, ``tbi``, ``bed``, ``popmap``
     and, with ``genome``, ``fasta``, ``fai``, ``gff``."""
     p = os.fspath(vcf_prefix)
-    out = {"vcf": p + ".vcf.gz", "tbi": p + ".vcf.gz.tbi", "bed": p + ".sites.bed",
-           "popmap": p + ".popmap.tsv"}
+    out = {
+        "vcf": p + ".vcf.gz",
+        "tbi": p + ".vcf.gz.tbi",
+        "bed": p + ".sites.bed",
+        "popmap": p + ".popmap.tsv",
+    }
     if genome:
         out.update({"fasta": p + ".fa", "fai": p + ".fa.fai", "gff": p + ".gff3"})
     return out
@@ -66,10 +75,17 @@ def _sample_names(name: str, count: int) -> list[str]:
     return [f"{name}_{i + 1:0{width}d}" for i in range(count)]
 
 
-def write_study_vcf(study: SimulatedStudy, prefix: str | os.PathLike, missing: float = 0.0,
-                    outgroup: tuple[str, int] | None = None, ref_derived: float = 0.0,
-                    depth: float = 20.0, genome: bool = False, force: bool = False,
-                    command: str | None = None) -> dict[str, str]:
+def write_study_vcf(
+    study: SimulatedStudy,
+    prefix: str | os.PathLike,
+    missing: float = 0.0,
+    outgroup: tuple[str, int] | None = None,
+    ref_derived: float = 0.0,
+    depth: float = 20.0,
+    genome: bool = False,
+    force: bool = False,
+    command: str | None = None,
+) -> dict[str, str]:
     """Write ``PREFIX.vcf.gz`` (+ ``.tbi``), ``PREFIX.sites.bed`` and ``PREFIX.popmap.tsv``.
 
     Parameters
@@ -124,8 +140,9 @@ def write_study_vcf(study: SimulatedStudy, prefix: str | os.PathLike, missing: f
     m = chrom.size
     # Ancestral bases from a reference of real codons; derived bases at random.
     genome_ref = build_reference(lay, _seed_stream(study.seed, 3))
-    anc = np.array([genome_ref.seqs[c][p] for c, p in zip(chrom.tolist(), pos0.tolist())],
-                   dtype=np.int64)
+    anc = np.array(
+        [genome_ref.seqs[c][p] for c, p in zip(chrom.tolist(), pos0.tolist())], dtype=np.int64
+    )
     der = (anc + rng.integers(1, 4, m)) % 4
     # REF carries the derived base for a share of records, where the reference codon
     # keeps its classes with it.
@@ -153,7 +170,7 @@ def write_study_vcf(study: SimulatedStudy, prefix: str | os.PathLike, missing: f
             copies[sel[:, None], offs[pi] + np.arange(n)] = rank < rk[sel, None]
     # Allele index in the VCF: derived is ALT (1) unless REF is derived.
     allele = np.where(flip[:, None], 1 - copies, copies).astype(np.int8)
-    gt = allele[:, 0::2] + allele[:, 1::2]      # 0, 1, 2 ALT copies per individual
+    gt = allele[:, 0::2] + allele[:, 1::2]  # 0, 1, 2 ALT copies per individual
     n_ind = gt.shape[1]
     miss = rng.random((m, n_ind)) < missing if missing > 0 else np.zeros((m, n_ind), bool)
     dp = np.maximum(rng.poisson(depth, (m, n_ind)), 1)
@@ -162,8 +179,9 @@ def write_study_vcf(study: SimulatedStudy, prefix: str | os.PathLike, missing: f
     samples = [s for p in pops for s in _sample_names(p.name, p.n // 2)]
     if outgroup:
         samples += _sample_names(outgroup[0], n_out // 2)
-    fmt = np.char.add(np.char.add(np.char.add(_GT[gt], ":"), dp.astype(str)),
-                      np.char.add(":", gq.astype(str)))
+    fmt = np.char.add(
+        np.char.add(np.char.add(_GT[gt], ":"), dp.astype(str)), np.char.add(":", gq.astype(str))
+    )
     if miss.any():
         fmt[miss] = "./.:.:."
     header = _header(study, samples, command)
@@ -187,9 +205,13 @@ def write_study_vcf(study: SimulatedStudy, prefix: str | os.PathLike, missing: f
     return paths
 
 
-def check_vcf_options(populations: Sequence[PopulationModel], missing: float = 0.0,
-                      outgroup: tuple[str, int] | None = None, ref_derived: float = 0.0,
-                      depth: float = 20.0) -> None:
+def check_vcf_options(
+    populations: Sequence[PopulationModel],
+    missing: float = 0.0,
+    outgroup: tuple[str, int] | None = None,
+    ref_derived: float = 0.0,
+    depth: float = 20.0,
+) -> None:
     """Check the VCF options against the populations before any work.
 
     Raises
@@ -199,8 +221,10 @@ def check_vcf_options(populations: Sequence[PopulationModel], missing: float = 0
     """
     for p in populations:
         if p.n % 2:
-            raise OptionError(f"population {p.name!r}: n={p.n} is odd; a VCF needs diploid "
-                              "individuals (an even number of gene copies)")
+            raise OptionError(
+                f"population {p.name!r}: n={p.n} is odd; a VCF needs diploid "
+                "individuals (an even number of gene copies)"
+            )
     if not 0.0 <= missing < 1.0:
         raise OptionError(f"--missing {missing}: must be in [0, 1)")
     if not 0.0 <= ref_derived <= 1.0:
@@ -217,22 +241,25 @@ def check_vcf_options(populations: Sequence[PopulationModel], missing: float = 0
 
 def _header(study: SimulatedStudy, samples: list[str], command: str | None) -> str:
     lay = study.layout
-    lines = ["##fileformat=VCFv4.2",
-             f"##source=driftband-simulate-{__version__}",
-             f"##driftband_simulate_seed={study.seed}"]
+    lines = [
+        "##fileformat=VCFv4.2",
+        f"##source=driftband-simulate-{__version__}",
+        f"##driftband_simulate_seed={study.seed}",
+    ]
     if command:
         lines.append(f"##driftband_simulate_command={command}")
-    lines += [f"##contig=<ID={c},length={int(n)}>"
-              for c, n in zip(lay.chrom_names, lay.chrom_lengths)]
+    lines += [
+        f"##contig=<ID={c},length={int(n)}>" for c, n in zip(lay.chrom_names, lay.chrom_lengths)
+    ]
     lines += [
         '##FILTER=<ID=PASS,Description="All filters passed">',
         '##INFO=<ID=AA,Number=1,Type=String,Description="Ancestral allele">',
         '##FORMAT=<ID=GT,Number=1,Type=String,Description="Genotype">',
         '##FORMAT=<ID=DP,Number=1,Type=Integer,Description="Read depth">',
-        '##FORMAT=<ID=GQ,Number=1,Type=Integer,Description="Genotype quality '
-        '(phred-scaled)">',
-        "\t".join(["#CHROM", "POS", "ID", "REF", "ALT", "QUAL", "FILTER", "INFO", "FORMAT",
-                   *samples]),
+        '##FORMAT=<ID=GQ,Number=1,Type=Integer,Description="Genotype quality (phred-scaled)">',
+        "\t".join(
+            ["#CHROM", "POS", "ID", "REF", "ALT", "QUAL", "FILTER", "INFO", "FORMAT", *samples]
+        ),
     ]
     return "\n".join(lines) + "\n"
 
@@ -240,13 +267,16 @@ def _header(study: SimulatedStudy, samples: list[str], command: str | None) -> s
 def check_genome_option(class_sites: np.ndarray) -> None:
     """A genome needs at least as many 0fold as 4fold sites (real codons do)."""
     if int(class_sites[0]) < int(class_sites[1]):
-        raise OptionError("--genome needs at least as many 0fold as 4fold sites (every "
-                          "codon's second position is 0-fold); raise --sites-0fold")
+        raise OptionError(
+            "--genome needs at least as many 0fold as 4fold sites (every "
+            "codon's second position is 0-fold); raise --sites-0fold"
+        )
 
 
 @contextlib.contextmanager
-def _atomic_with_index(path: str, index_path: str,
-                       suffix: str = ".tmp") -> Iterator[tuple[str, str]]:
+def _atomic_with_index(
+    path: str, index_path: str, suffix: str = ".tmp"
+) -> Iterator[tuple[str, str]]:
     """Temporary paths for a file and its index, renamed into place together on success.
 
     The block writes the file at the first path and its index at the second (the
@@ -258,7 +288,7 @@ def _atomic_with_index(path: str, index_path: str,
     directory.mkdir(parents=True, exist_ok=True)
     fd, tmp = tempfile.mkstemp(prefix=f".{Path(path).name}.", suffix=suffix, dir=directory)
     os.close(fd)
-    tmp_index = tmp + Path(index_path).name[len(Path(path).name):]
+    tmp_index = tmp + Path(index_path).name[len(Path(path).name) :]
     try:
         yield tmp, tmp_index
         mode = 0o666 & ~_umask()
@@ -279,9 +309,18 @@ def _umask() -> int:
     return cur
 
 
-def _write_vcf(path: str, tbi: str, header: str, chrom: np.ndarray, pos0: np.ndarray,
-               ref: np.ndarray, alt: np.ndarray, anc: np.ndarray, fmt: np.ndarray,
-               lay: Any) -> None:
+def _write_vcf(
+    path: str,
+    tbi: str,
+    header: str,
+    chrom: np.ndarray,
+    pos0: np.ndarray,
+    ref: np.ndarray,
+    alt: np.ndarray,
+    anc: np.ndarray,
+    fmt: np.ndarray,
+    lay: Any,
+) -> None:
     """bgzip-compressed VCF and its tabix index, written atomically (temp then rename)."""
     import pysam
 
@@ -301,10 +340,14 @@ def _write_vcf(path: str, tbi: str, header: str, chrom: np.ndarray, pos0: np.nda
         pysam.tabix_index(tmp, preset="vcf", index=tmp_tbi, force=True)
 
 
-def write_study(study: SimulatedStudy, output: str | os.PathLike | None = None,
-                tsv: str | os.PathLike | None = None,
-                vcf_prefix: str | os.PathLike | None = None, force: bool = False,
-                **vcf_options: Any) -> dict[str, str]:
+def write_study(
+    study: SimulatedStudy,
+    output: str | os.PathLike | None = None,
+    tsv: str | os.PathLike | None = None,
+    vcf_prefix: str | os.PathLike | None = None,
+    force: bool = False,
+    **vcf_options: Any,
+) -> dict[str, str]:
     """Write a simulated study's spectra (JSON, optional TSV) and optionally its VCF set.
 
     Every output path is checked before anything is written.
@@ -335,9 +378,13 @@ def write_study(study: SimulatedStudy, output: str | os.PathLike | None = None,
     if vcf_prefix is not None:
         if genome:
             check_genome_option(study.layout.block_sites.sum(axis=0))
-        check_vcf_options(study.populations, vcf_options.get("missing", 0.0),
-                           vcf_options.get("outgroup"), vcf_options.get("ref_derived", 0.0),
-                           vcf_options.get("depth", 20.0))
+        check_vcf_options(
+            study.populations,
+            vcf_options.get("missing", 0.0),
+            vcf_options.get("outgroup"),
+            vcf_options.get("ref_derived", 0.0),
+            vcf_options.get("depth", 20.0),
+        )
         planned += list(study_paths(vcf_prefix, genome).values())
     check_outputs(planned, force)
     if vcf_prefix is not None:

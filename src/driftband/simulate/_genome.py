@@ -82,8 +82,9 @@ CODON_POSITION_CLASSES = _position_classes()
 
 #: Sense codons whose position classes equal each row of :data:`CODON_PATTERNS`
 #: (the ``(., ., 4fold)`` row has none: a second codon position is never 4-fold).
-PATTERN_CODONS = [np.flatnonzero((CODON_POSITION_CLASSES == row).all(axis=1))
-                  for row in CODON_PATTERNS]
+PATTERN_CODONS = [
+    np.flatnonzero((CODON_POSITION_CLASSES == row).all(axis=1)) for row in CODON_PATTERNS
+]
 
 _STOPS = np.flatnonzero(_AA == "*")
 
@@ -110,14 +111,15 @@ class ReferenceGenome:
     genes: list[tuple[int, int, int]]
     real_codons: bool = True
 
-    def pick_ref_derived(self, chrom: int, codon_start: int, k: int, anc: int,
-                         rng: np.random.Generator) -> int:
+    def pick_ref_derived(
+        self, chrom: int, codon_start: int, k: int, anc: int, rng: np.random.Generator
+    ) -> int:
         """A derived base for position ``k`` of a codon that keeps its position classes.
 
         Returns the base code, or −1 if no other base keeps the classes.
         """
         seq = self.seqs[chrom]
-        d = [int(x) for x in seq[codon_start:codon_start + 3]]
+        d = [int(x) for x in seq[codon_start : codon_start + 3]]
         c = 16 * d[0] + 4 * d[1] + d[2]
         ok = []
         for b in range(4):
@@ -169,7 +171,7 @@ def build_reference(layout: GenomeLayout, rng: np.random.Generator) -> Reference
             phase[ci][start + k] = k
         for s, e in layout.gene_intervals(b):
             stop = int(_STOPS[rng.integers(0, _STOPS.size)])
-            seq[e:e + 3] = (stop // 16, (stop // 4) % 4, stop % 4)
+            seq[e : e + 3] = (stop // 16, (stop // 4) % 4, stop % 4)
             genes.append((ci, s, e + 3))
     return ReferenceGenome(seqs, phase, genes, real)
 
@@ -180,12 +182,17 @@ def write_fasta(fh: IO[str], names: list[str], seqs: list[np.ndarray], width: in
     for name, seq in zip(names, seqs):
         fh.write(f">{name}\n")
         text = letters[seq].tobytes().decode()
-        fh.write("\n".join(text[i:i + width] for i in range(0, len(text), width)))
+        fh.write("\n".join(text[i : i + width] for i in range(0, len(text), width)))
         fh.write("\n")
 
 
-def write_gff3(fh: IO[str], names: list[str], lengths: list[int], ref: ReferenceGenome,
-               source: str = "driftband_simulate") -> None:
+def write_gff3(
+    fh: IO[str],
+    names: list[str],
+    lengths: list[int],
+    ref: ReferenceGenome,
+    source: str = "driftband_simulate",
+) -> None:
     """Write the genes as GFF3 (gene → mRNA → exon + CDS, plus strand, phase 0)."""
     fh.write("##gff-version 3\n")
     for name, n in zip(names, lengths):

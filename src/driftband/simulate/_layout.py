@@ -31,8 +31,9 @@ __all__ = ["CODON_PATTERNS", "GenomeLayout", "codon_pattern_counts", "make_layou
 
 #: Class of each codon position per pattern: 0 = first class (0fold), 1 = second (4fold),
 #: -1 = neither. Rows: (0,0,4), (0,0,.), (.,0,4), (.,0,.), (.,.,4).
-CODON_PATTERNS = np.array([[0, 0, 1], [0, 0, -1], [-1, 0, 1], [-1, 0, -1], [-1, -1, 1]],
-                          dtype=np.int8)
+CODON_PATTERNS = np.array(
+    [[0, 0, 1], [0, 0, -1], [-1, 0, 1], [-1, 0, -1], [-1, -1, 1]], dtype=np.int8
+)
 
 
 def codon_pattern_counts(m0: int, m4: int) -> np.ndarray:
@@ -68,8 +69,11 @@ def codon_pattern_counts(m0: int, m4: int) -> np.ndarray:
 def _interleave(counts: np.ndarray) -> np.ndarray:
     """Pattern sequence with each pattern spread evenly along the block."""
     types = np.repeat(np.arange(counts.size), counts)
-    keys = np.concatenate([(np.arange(c) + 0.5) / c for c in counts if c > 0]) \
-        if counts.sum() else np.empty(0)
+    keys = (
+        np.concatenate([(np.arange(c) + 0.5) / c for c in counts if c > 0])
+        if counts.sum()
+        else np.empty(0)
+    )
     return types[np.argsort(keys, kind="stable")].astype(np.int8)
 
 
@@ -104,8 +108,7 @@ class GenomeLayout:
     _cum: np.ndarray = field(init=False, repr=False)
 
     def __post_init__(self) -> None:
-        self._cum = np.vstack([np.zeros((1, 2), np.int64),
-                               np.cumsum(self.block_sites, axis=0)])
+        self._cum = np.vstack([np.zeros((1, 2), np.int64), np.cumsum(self.block_sites, axis=0)])
 
     @property
     def n_blocks(self) -> int:
@@ -194,14 +197,20 @@ class GenomeLayout:
 
     def blocks(self) -> list[Block]:
         """The blocks as spectra-schema :class:`~driftband.spectra.Block` objects."""
-        return [Block(self.chrom_names[int(c)], int(s), int(e), f"block{b + 1}")
-                for b, (c, s, e) in enumerate(zip(self.block_chrom, self.block_start,
-                                                  self.block_end))]
+        return [
+            Block(self.chrom_names[int(c)], int(s), int(e), f"block{b + 1}")
+            for b, (c, s, e) in enumerate(zip(self.block_chrom, self.block_start, self.block_end))
+        ]
 
 
-def make_layout(sites: tuple[int, int], blocks: int, chromosomes: int,
-                class_names: tuple[str, str] = ("0fold", "4fold"),
-                gene_codons: int = 300, spacer: int = 300) -> GenomeLayout:
+def make_layout(
+    sites: tuple[int, int],
+    blocks: int,
+    chromosomes: int,
+    class_names: tuple[str, str] = ("0fold", "4fold"),
+    gene_codons: int = 300,
+    spacer: int = 300,
+) -> GenomeLayout:
     """Lay out ``sites = (L_selected, L_neutral)`` sites in ``blocks`` equal blocks.
 
     Each class is split into blocks of equal size (the first ``L mod K`` blocks get one
@@ -214,8 +223,17 @@ def make_layout(sites: tuple[int, int], blocks: int, chromosomes: int,
         bs[:, ci] = L // K + (np.arange(K) < L % K)
     block_chrom = (np.arange(K) * C) // K
     lengths = np.empty(K, dtype=np.int64)
-    tmp = GenomeLayout(class_names, bs, block_chrom, np.zeros(K, np.int64),
-                       np.zeros(K, np.int64), [], np.zeros(C, np.int64), gene_codons, spacer)
+    tmp = GenomeLayout(
+        class_names,
+        bs,
+        block_chrom,
+        np.zeros(K, np.int64),
+        np.zeros(K, np.int64),
+        [],
+        np.zeros(C, np.int64),
+        gene_codons,
+        spacer,
+    )
     for b in range(K):
         sizes = tmp._genes(b)
         lengths[b] = sizes.size * spacer + 3 * int(sizes.sum())
@@ -227,5 +245,14 @@ def make_layout(sites: tuple[int, int], blocks: int, chromosomes: int,
         chrom_len[c] += lengths[b]
     chrom_len += spacer
     names = [f"chr{i + 1}" for i in range(C)]
-    return GenomeLayout(class_names, bs, block_chrom, starts, starts + lengths, names,
-                        chrom_len, gene_codons, spacer)
+    return GenomeLayout(
+        class_names,
+        bs,
+        block_chrom,
+        starts,
+        starts + lengths,
+        names,
+        chrom_len,
+        gene_codons,
+        spacer,
+    )

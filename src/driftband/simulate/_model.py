@@ -45,25 +45,34 @@ class PopulationModel:
 
     def __post_init__(self) -> None:
         if not _NAME.match(self.name):
-            raise OptionError(f"--population: name {self.name!r} must start with a letter or "
-                              "digit and hold only letters, digits, '_', '.', '-'")
+            raise OptionError(
+                f"--population: name {self.name!r} must start with a letter or "
+                "digit and hold only letters, digits, '_', '.', '-'"
+            )
         if not self.epochs or self.epochs[0][0] != 0:
-            raise OptionError(f"population {self.name!r}: the size history needs a present "
-                              "size (an epoch at 0 generations ago, or N=)")
+            raise OptionError(
+                f"population {self.name!r}: the size history needs a present "
+                "size (an epoch at 0 generations ago, or N=)"
+            )
         agos = [a for a, _ in self.epochs]
         if any(b <= a for a, b in zip(agos, agos[1:])):
-            raise OptionError(f"population {self.name!r}: history times must be distinct "
-                              "and increasing")
+            raise OptionError(
+                f"population {self.name!r}: history times must be distinct and increasing"
+            )
         for a, size in self.epochs:
             if a < 0 or size < 1:
-                raise OptionError(f"population {self.name!r}: history entry {a}:{size} "
-                                  "needs AGO >= 0 and SIZE >= 1")
+                raise OptionError(
+                    f"population {self.name!r}: history entry {a}:{size} "
+                    "needs AGO >= 0 and SIZE >= 1"
+                )
         if self.n < 2:
             raise OptionError(f"population {self.name!r}: n={self.n} must be >= 2 gene copies")
         smallest_recent = self.present_size
         if self.n > 2 * smallest_recent:
-            raise OptionError(f"population {self.name!r}: cannot sample n={self.n} gene copies "
-                              f"from 2N={2 * smallest_recent}")
+            raise OptionError(
+                f"population {self.name!r}: cannot sample n={self.n} gene copies "
+                f"from 2N={2 * smallest_recent}"
+            )
         if self.theta is not None and not self.theta > 0:
             raise OptionError(f"population {self.name!r}: theta={self.theta} must be > 0")
 
@@ -94,10 +103,13 @@ class PopulationModel:
 
     def describe(self) -> dict:
         """Plain-dict description (for provenance)."""
-        return {"n": self.n, "present_size": self.present_size,
-                "ancestral_size": self.ancestral_size,
-                "history": [{"generations_ago": a, "size": s} for a, s in self.epochs],
-                **({"theta": self.theta} if self.theta is not None else {})}
+        return {
+            "n": self.n,
+            "present_size": self.present_size,
+            "ancestral_size": self.ancestral_size,
+            "history": [{"generations_ago": a, "size": s} for a, s in self.epochs],
+            **({"theta": self.theta} if self.theta is not None else {}),
+        }
 
 
 def _int(v: str, what: str) -> int:
@@ -168,8 +180,9 @@ def parse_history(text: str) -> tuple[str | None, list[tuple[int, int]]]:
     return name, epochs
 
 
-def build_populations(populations: Sequence[str], histories: Iterable[str] = ()
-                      ) -> list[PopulationModel]:
+def build_populations(
+    populations: Sequence[str], histories: Iterable[str] = ()
+) -> list[PopulationModel]:
     """Combine ``--population`` and ``--history`` texts into population models.
 
     A history without ``NAME=`` applies to every population that has no history of its
@@ -203,12 +216,16 @@ def build_populations(populations: Sequence[str], histories: Iterable[str] = ()
         N = keys.get("N")
         if ep and ep[0][0] == 0:
             if N is not None and int(N) != ep[0][1]:
-                raise OptionError(f"population {name!r}: N={int(N)} disagrees with the "
-                                  f"history's present size {ep[0][1]}")
+                raise OptionError(
+                    f"population {name!r}: N={int(N)} disagrees with the "
+                    f"history's present size {ep[0][1]}"
+                )
         else:
             if N is None:
-                raise OptionError(f"--population {name}: N= (present diploid size) is "
-                                  "required unless its --history starts at 0")
+                raise OptionError(
+                    f"--population {name}: N= (present diploid size) is "
+                    "required unless its --history starts at 0"
+                )
             ep.insert(0, (0, int(N)))
         out.append(PopulationModel(name, int(keys["n"]), tuple(ep), keys.get("theta")))
     return out

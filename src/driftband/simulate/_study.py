@@ -137,10 +137,17 @@ def _seed_stream(seed: int, *key: int) -> np.random.Generator:
     return np.random.default_rng(np.random.SeedSequence(entropy=seed, spawn_key=key))
 
 
-def simulate_population(model: PopulationModel, dfe: SimDFE, mu: float,
-                        sites: dict[str, int], n_ref: float, burn_in: int,
-                        divergence_generations: int, rng: np.random.Generator,
-                        progress: Progress | None = None) -> PopulationSample:
+def simulate_population(
+    model: PopulationModel,
+    dfe: SimDFE,
+    mu: float,
+    sites: dict[str, int],
+    n_ref: float,
+    burn_in: int,
+    divergence_generations: int,
+    rng: np.random.Generator,
+    progress: Progress | None = None,
+) -> PopulationSample:
     """Run one population forward and sample it.
 
     Parameters
@@ -196,8 +203,9 @@ def simulate_population(model: PopulationModel, dfe: SimDFE, mu: float,
     sub_s: list[np.ndarray] = []
     n_sub_neutral = 0
     # Size of each generation, by generations before the sample.
-    sizes = np.array([model.size_at(a) for a in range(model.history_generations + 1)],
-                     dtype=np.int64)
+    sizes = np.array(
+        [model.size_at(a) for a in range(model.history_generations + 1)], dtype=np.int64
+    )
     step = max(1, total // 100)
     one = np.ones(0, np.int64)
     for g in range(total):
@@ -242,15 +250,19 @@ def simulate_population(model: PopulationModel, dfe: SimDFE, mu: float,
     sub_s_all = np.concatenate(sub_s) if sub_s else np.empty(0)
     n_subs = (sub_s_all.size, n_sub_neutral)
     classes = {}
-    for ci, (name, k, s_seg, s_sub) in enumerate((
+    for ci, (name, k, s_seg, s_sub) in enumerate(
+        (
             (CLASSES[0], k_s, sv, sub_s_all),
-            (CLASSES[1], k_n, np.zeros(cnt_n.size), np.zeros(n_sub_neutral)))):
+            (CLASSES[1], k_n, np.zeros(cnt_n.size), np.zeros(n_sub_neutral)),
+        )
+    ):
         var = k > 0
         classes[name] = ClassVariants(
             derived=np.concatenate([k[var], np.full(n_subs[ci], n)]).astype(np.int64),
             s=np.concatenate([s_seg[var], s_sub]),
-            substitution=np.concatenate([np.zeros(int(var.sum()), bool),
-                                         np.ones(n_subs[ci], bool)]),
+            substitution=np.concatenate(
+                [np.zeros(int(var.sum()), bool), np.ones(n_subs[ci], bool)]
+            ),
         )
     seg_end = (cnt_s.size, cnt_n.size)
     truth = {
@@ -268,15 +280,23 @@ def simulate_population(model: PopulationModel, dfe: SimDFE, mu: float,
     return PopulationSample(model.name, n, classes, truth)
 
 
-def simulate_study(populations: Sequence[PopulationModel], dfe: SimDFE,
-                   theta: float = 0.01, sites: dict[str, int] | int = 100_000,
-                   blocks: int = 100, reference_size: float | None = None,
-                   burn_in: int | None = None, burn_in_factor: float = 10.0,
-                   divergence_generations: int = 0, seed: int | None = None,
-                   chromosomes: int = 4, gene_codons: int = 300, intergenic: int = 300,
-                   options: dict[str, Any] | None = None,
-                   progress: Callable[[str, int, int], None] | None = None
-                   ) -> SimulatedStudy:
+def simulate_study(
+    populations: Sequence[PopulationModel],
+    dfe: SimDFE,
+    theta: float = 0.01,
+    sites: dict[str, int] | int = 100_000,
+    blocks: int = 100,
+    reference_size: float | None = None,
+    burn_in: int | None = None,
+    burn_in_factor: float = 10.0,
+    divergence_generations: int = 0,
+    seed: int | None = None,
+    chromosomes: int = 4,
+    gene_codons: int = 300,
+    intergenic: int = 300,
+    options: dict[str, Any] | None = None,
+    progress: Callable[[str, int, int], None] | None = None,
+) -> SimulatedStudy:
     """Simulate every population of a study and build its spectra.
 
     Parameters
@@ -335,15 +355,18 @@ def simulate_study(populations: Sequence[PopulationModel], dfe: SimDFE,
         raise OptionError(f"--blocks {K}: need at least one block")
     for c, L in sites.items():
         if L < K:
-            raise OptionError(f"--sites for {c}: {L} sites cannot fill {K} blocks "
-                              "(lower --blocks or raise --sites)")
+            raise OptionError(
+                f"--sites for {c}: {L} sites cannot fill {K} blocks "
+                "(lower --blocks or raise --sites)"
+            )
     if chromosomes < 1 or gene_codons < 1 or intergenic < 3:
-        raise OptionError("--chromosomes and --gene-codons must be >= 1 and --intergenic "
-                          ">= 3 (room for each gene's stop codon)")
+        raise OptionError(
+            "--chromosomes and --gene-codons must be >= 1 and --intergenic "
+            ">= 3 (room for each gene's stop codon)"
+        )
     if not (theta > 0 and math.isfinite(theta)):
         raise OptionError(f"--theta {theta}: must be a positive number")
-    n_ref = float(reference_size) if reference_size is not None else \
-        float(pops[0].ancestral_size)
+    n_ref = float(reference_size) if reference_size is not None else float(pops[0].ancestral_size)
     if not n_ref > 0:
         raise OptionError(f"--reference-size {reference_size}: must be > 0")
     if divergence_generations < 0:
@@ -357,33 +380,50 @@ def simulate_study(populations: Sequence[PopulationModel], dfe: SimDFE,
     plan = []
     for p in pops:
         mu = p.theta / (4.0 * p.ancestral_size) if p.theta is not None else mu_shared
-        b = int(burn_in) if burn_in is not None else int(math.ceil(burn_in_factor *
-                                                                   p.ancestral_size))
+        b = (
+            int(burn_in)
+            if burn_in is not None
+            else int(math.ceil(burn_in_factor * p.ancestral_size))
+        )
         if b < 0:
             raise OptionError(f"--burn-in {b}: must be >= 0")
         if b < 10 * p.ancestral_size:
-            warnings.warn(f"population {p.name!r}: burn-in of {b} generations is shorter "
-                          f"than 10N = {10 * p.ancestral_size}; its spectra may not have "
-                          "reached equilibrium", DriftbandWarning, stacklevel=2)
+            warnings.warn(
+                f"population {p.name!r}: burn-in of {b} generations is shorter "
+                f"than 10N = {10 * p.ancestral_size}; its spectra may not have "
+                "reached equilibrium",
+                DriftbandWarning,
+                stacklevel=2,
+            )
         total = b + p.history_generations
         if divergence_generations > total:
-            raise OptionError(f"--divergence-generations {divergence_generations} is longer "
-                              f"than population {p.name!r}'s simulation ({total} generations)")
+            raise OptionError(
+                f"--divergence-generations {divergence_generations} is longer "
+                f"than population {p.name!r}'s simulation ({total} generations)"
+            )
         max_theta = 4.0 * max(s for _, s in p.epochs) * mu
         plan.append((p, mu, b, max_theta))
     # Infinite sites: the sampled variable sites of all populations must fit in L.
     for c, L in sites.items():
         expect = sum(th * L * sum(1.0 / i for i in range(1, p.n)) for p, _, _, th in plan)
         if expect > 0.5 * L:
-            raise OptionError(f"theta is too large for infinite sites: about {expect:.0f} "
-                              f"variable {c} sites expected among {L} (lower --theta)")
+            raise OptionError(
+                f"theta is too large for infinite sites: about {expect:.0f} "
+                f"variable {c} sites expected among {L} (lower --theta)"
+            )
     samples = []
     for i, (p, mu, b, _) in enumerate(plan):
-        log.info("simulating population %s: N=%d (ancestral %d), %d generations",
-                 p.name, p.present_size, p.ancestral_size, b + p.history_generations)
+        log.info(
+            "simulating population %s: N=%d (ancestral %d), %d generations",
+            p.name,
+            p.present_size,
+            p.ancestral_size,
+            b + p.history_generations,
+        )
         cb = None if progress is None else (lambda d, t, _n=p.name: progress(_n, d, t))
-        samp = simulate_population(p, dfe, mu, sites, n_ref, b, divergence_generations,
-                                   _seed_stream(seed, 0, i), cb)
+        samp = simulate_population(
+            p, dfe, mu, sites, n_ref, b, divergence_generations, _seed_stream(seed, 0, i), cb
+        )
         samp.truth["dfe_on_population_scale"] = {
             "present_size": dfe.scaled(p.present_size / n_ref),
             "ancestral_size": dfe.scaled(p.ancestral_size / n_ref),
@@ -394,8 +434,14 @@ def simulate_study(populations: Sequence[PopulationModel], dfe: SimDFE,
             "ancestral_size": band_shares(dfe, n_ref, p.ancestral_size, _EDGES),
         }
         samples.append(samp)
-    layout = make_layout((sites[CLASSES[0]], sites[CLASSES[1]]), K, chromosomes, CLASSES,
-                         gene_codons=gene_codons, spacer=intergenic)
+    layout = make_layout(
+        (sites[CLASSES[0]], sites[CLASSES[1]]),
+        K,
+        chromosomes,
+        CLASSES,
+        gene_codons=gene_codons,
+        spacer=intergenic,
+    )
     # Distinct sites for the variable sites of all populations, per class.
     srng = _seed_stream(seed, 1)
     site_index: dict[str, list[np.ndarray]] = {}
@@ -403,8 +449,10 @@ def simulate_study(populations: Sequence[PopulationModel], dfe: SimDFE,
         counts = [s.classes[c].derived.size for s in samples]
         m = sum(counts)
         if m > sites[c]:
-            raise OptionError(f"{m} variable {c} sites do not fit in {sites[c]} sites "
-                              "(infinite sites; lower --theta or raise --sites)")
+            raise OptionError(
+                f"{m} variable {c} sites do not fit in {sites[c]} sites "
+                "(infinite sites; lower --theta or raise --sites)"
+            )
         idx = srng.choice(sites[c], size=m, replace=False).astype(np.int64)
         site_index[c] = np.split(idx, np.cumsum(counts)[:-1])
     pops_out = {}
@@ -413,8 +461,11 @@ def simulate_study(populations: Sequence[PopulationModel], dfe: SimDFE,
         classes = {}
         for ci, c in enumerate(CLASSES):
             blk = layout.block_of(ci, site_index[c][pi])
-            flat = np.bincount(blk * (n + 1) + samp.classes[c].derived,
-                               minlength=K * (n + 1)).reshape(K, n + 1).astype(np.int64)
+            flat = (
+                np.bincount(blk * (n + 1) + samp.classes[c].derived, minlength=K * (n + 1))
+                .reshape(K, n + 1)
+                .astype(np.int64)
+            )
             flat[:, 0] = layout.block_sites[:, ci] - flat[:, 1:].sum(axis=1)
             classes[c] = ClassSpectrum(flat, layout.block_sites[:, ci].copy())
         ps = PopulationSpectra(p.name, n, False, classes, "aa")
@@ -422,7 +473,7 @@ def simulate_study(populations: Sequence[PopulationModel], dfe: SimDFE,
         pops_out[p.name] = ps
     sim_info = {
         "model": "diploid Wright-Fisher, unlinked sites, infinite sites; fitnesses 1 : 1+s "
-                 ": 1+2s; S = 4 N s; history in generations before the sample",
+        ": 1+2s; S = 4 N s; history in generations before the sample",
         "seed": seed,
         "theta": theta,
         "reference_size": n_ref,
@@ -432,8 +483,7 @@ def simulate_study(populations: Sequence[PopulationModel], dfe: SimDFE,
         "divergence_generations": int(divergence_generations),
         "dfe": dfe.describe(),
         "s_clip_min": -0.5,
-        "populations": {p.name: {**p.describe(), **samp.truth}
-                        for p, samp in zip(pops, samples)},
+        "populations": {p.name: {**p.describe(), **samp.truth} for p, samp in zip(pops, samples)},
     }
     prov = provenance(options or {})
     prov["simulation"] = sim_info

@@ -52,8 +52,9 @@ def selection_step(p: np.ndarray | float, s: np.ndarray | float) -> np.ndarray:
     return p * (1.0 + s + sp) / (1.0 + 2.0 * sp)
 
 
-def wf_generation(counts: np.ndarray, s: np.ndarray, two_n_parent: int, two_n: int,
-                  rng: np.random.Generator) -> np.ndarray:
+def wf_generation(
+    counts: np.ndarray, s: np.ndarray, two_n_parent: int, two_n: int, rng: np.random.Generator
+) -> np.ndarray:
     """One Wright–Fisher generation of many independent (unlinked) biallelic sites.
 
     Parameters
@@ -112,9 +113,14 @@ class FixationResult:
         return float(np.sqrt(u * (1 - u) / self.mutations)) if self.mutations else float("nan")
 
 
-def simulate_fixation(N: int, s: float, mutations: int, rng: np.random.Generator,
-                      initial_count: int = 1,
-                      max_generations: int | None = None) -> FixationResult:
+def simulate_fixation(
+    N: int,
+    s: float,
+    mutations: int,
+    rng: np.random.Generator,
+    initial_count: int = 1,
+    max_generations: int | None = None,
+) -> FixationResult:
     """Follow ``mutations`` independent new mutations until each is lost or fixed.
 
     Uses the simulator's own generation step (:func:`wf_generation`) at constant size.
@@ -160,13 +166,23 @@ def simulate_fixation(N: int, s: float, mutations: int, rng: np.random.Generator
             keep = (cnt > 0) & (cnt < two_n)
             cnt = cnt[keep]
             sv = sv[keep]
-    return FixationResult(int(mutations), fixed, lost,
-                          tfix / fixed if fixed else float("nan"),
-                          tloss / lost if lost else float("nan"))
+    return FixationResult(
+        int(mutations),
+        fixed,
+        lost,
+        tfix / fixed if fixed else float("nan"),
+        tloss / lost if lost else float("nan"),
+    )
 
 
-def simulate_trajectories(N: int, s: float, replicates: int, generations: int,
-                          rng: np.random.Generator, initial_count: int = 1) -> np.ndarray:
+def simulate_trajectories(
+    N: int,
+    s: float,
+    replicates: int,
+    generations: int,
+    rng: np.random.Generator,
+    initial_count: int = 1,
+) -> np.ndarray:
     """Allele-count trajectories of independent replicate sites at constant size.
 
     Parameters

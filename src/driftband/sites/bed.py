@@ -63,8 +63,11 @@ def intersect(a: Intervals, b: Intervals) -> Intervals:
     hi = np.searchsorted(bs, ae, side="left")
     counts = np.maximum(hi - lo, 0)
     ai = np.repeat(np.arange(as_.size), counts)
-    bi = np.concatenate([np.arange(l, h) for l, h in zip(lo, hi) if h > l]) if counts.sum() \
+    bi = (
+        np.concatenate([np.arange(l, h) for l, h in zip(lo, hi) if h > l])
+        if counts.sum()
         else np.empty(0, np.int64)
+    )
     s = np.maximum(as_[ai], bs[bi])
     e = np.minimum(ae[ai], be[bi])
     keep = e > s
@@ -117,8 +120,10 @@ class SiteClasses:
         return {c for s in self.classes.values() for c in s.chroms}
 
 
-def read_bed(path: str | os.PathLike, need_name: bool = False,
-             ) -> dict[str, dict[str, tuple[list[int], list[int]]]]:
+def read_bed(
+    path: str | os.PathLike,
+    need_name: bool = False,
+) -> dict[str, dict[str, tuple[list[int], list[int]]]]:
     """Read a BED file (plain or gzip) into ``name -> chrom -> (starts, ends)``.
 
     ``track``/``browser``/``#`` lines are skipped. Without ``need_name`` all intervals go
@@ -141,20 +146,28 @@ def read_bed(path: str | os.PathLike, need_name: bool = False,
                 continue
             f = line.rstrip("\r\n").split("\t")
             if len(f) < 3:
-                raise InputError("a BED line needs at least 3 tab-separated columns "
-                                 "(chrom, start, end)", path, ln)
+                raise InputError(
+                    "a BED line needs at least 3 tab-separated columns (chrom, start, end)",
+                    path,
+                    ln,
+                )
             try:
                 s, e = int(f[1]), int(f[2])
             except ValueError:
-                raise InputError(f"start/end {f[1]!r}, {f[2]!r} are not integers", path,
-                                 ln) from None
+                raise InputError(
+                    f"start/end {f[1]!r}, {f[2]!r} are not integers", path, ln
+                ) from None
             if s < 0 or e < s:
-                raise InputError(f"invalid interval {s}-{e} (BED is 0-based, half-open: "
-                                 "0 <= start <= end)", path, ln)
+                raise InputError(
+                    f"invalid interval {s}-{e} (BED is 0-based, half-open: 0 <= start <= end)",
+                    path,
+                    ln,
+                )
             if need_name:
                 if len(f) < 4 or not f[3]:
-                    raise InputError("column 4 (the site class, e.g. 0fold or 4fold) is "
-                                     "missing", path, ln)
+                    raise InputError(
+                        "column 4 (the site class, e.g. 0fold or 4fold) is missing", path, ln
+                    )
                 name = f[3]
             else:
                 name = ""
@@ -165,8 +178,9 @@ def read_bed(path: str | os.PathLike, need_name: bool = False,
 
 
 def _to_set(chroms: dict[str, tuple[list[int], list[int]]]) -> IntervalSet:
-    return IntervalSet({c: merge_intervals(np.array(s), np.array(e))
-                        for c, (s, e) in chroms.items()})
+    return IntervalSet(
+        {c: merge_intervals(np.array(s), np.array(e)) for c, (s, e) in chroms.items()}
+    )
 
 
 def read_mask(path: str | os.PathLike) -> IntervalSet:
@@ -177,8 +191,7 @@ def read_mask(path: str | os.PathLike) -> IntervalSet:
     return _to_set(raw[""])
 
 
-def read_site_classes(path: str | os.PathLike,
-                      classes: Iterable[str] | None = None) -> SiteClasses:
+def read_site_classes(path: str | os.PathLike, classes: Iterable[str] | None = None) -> SiteClasses:
     """Read a BED4 of site classes (class in column 4) and check that classes are disjoint.
 
     Parameters
@@ -201,17 +214,21 @@ def read_site_classes(path: str | os.PathLike,
     sets = {name: _to_set(ch) for name, ch in sorted(raw.items())}
     names = list(sets)
     for i, a in enumerate(names):
-        for b in names[i + 1:]:
+        for b in names[i + 1 :]:
             both = sets[a].intersect(sets[b])
             if both.chroms:
                 c, (s, _e) = next(iter(both.chroms.items()))
-                raise InputError(f"site {c}:{int(s[0]) + 1} (1-based) is in two classes, "
-                                 f"{a!r} and {b!r}; a site may have one class only", path)
+                raise InputError(
+                    f"site {c}:{int(s[0]) + 1} (1-based) is in two classes, "
+                    f"{a!r} and {b!r}; a site may have one class only",
+                    path,
+                )
     return SiteClasses(sets, os.fspath(path))
 
 
-def write_bed4(path: str | os.PathLike,
-               rows: Iterable[tuple[str, int, int, str]], force: bool = False) -> int:
+def write_bed4(
+    path: str | os.PathLike, rows: Iterable[tuple[str, int, int, str]], force: bool = False
+) -> int:
     """Write BED4 rows atomically; returns the number of rows written."""
     n = 0
     with atomic_output(path, force=force, newline="") as fh:

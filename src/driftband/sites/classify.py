@@ -75,8 +75,8 @@ EXCLUSION_REASONS: dict[str, str] = {
     "softmasked": "sites",
 }
 
-_UNKNOWN = 4   # base of a codon that cannot be classified (non-ACGT, incomplete)
-_STOP = 5      # base of the terminal stop codon
+_UNKNOWN = 4  # base of a codon that cannot be classified (non-ACGT, incomplete)
+_STOP = 5  # base of the terminal stop codon
 
 # ASCII -> base code (A, C, G, T = 0..3 in either case; anything else 4).
 _BASE_CODE = np.full(256, 4, dtype=np.int8)
@@ -188,10 +188,13 @@ class ClassifyResult:
 
         for c in self.chroms:
             block(c.chrom, c.class_sites, c.excluded, c.transcripts_used, c.coding_sites)
-        block("all", {k: self.total(k) for k in DEGENERACY_NAMES},
-              {r: self.total(r) for r in EXCLUSION_REASONS},
-              sum(c.transcripts_used for c in self.chroms),
-              sum(c.coding_sites for c in self.chroms))
+        block(
+            "all",
+            {k: self.total(k) for k in DEGENERACY_NAMES},
+            {r: self.total(r) for r in EXCLUSION_REASONS},
+            sum(c.transcripts_used for c in self.chroms),
+            sum(c.coding_sites for c in self.chroms),
+        )
         return out
 
     def to_site_classes(self) -> SiteClasses:
@@ -213,11 +216,11 @@ class ClassifyResult:
 
 @dataclass
 class _Layout:
-    pos: np.ndarray        # genome position of each coding base, transcript order
-    tx: np.ndarray         # transcript index (into the list given) of each base
-    cpos: np.ndarray       # codon position 0..2 from the part's phase
-    minus: np.ndarray      # bool per base
-    tx_first: np.ndarray   # first base index of each transcript, shape (n_tx + 1,)
+    pos: np.ndarray  # genome position of each coding base, transcript order
+    tx: np.ndarray  # transcript index (into the list given) of each base
+    cpos: np.ndarray  # codon position 0..2 from the part's phase
+    minus: np.ndarray  # bool per base
+    tx_first: np.ndarray  # first base index of each transcript, shape (n_tx + 1,)
 
 
 def _layout(transcripts: Sequence[Transcript]) -> _Layout:
@@ -257,9 +260,14 @@ def _empty_counts() -> dict[str, int]:
     return dict.fromkeys(EXCLUSION_REASONS, 0)
 
 
-def classify_chromosome(seq: np.ndarray, transcripts: Sequence[Transcript],
-                        code: GeneticCode, mode: str = "agree",
-                        exclude_softmasked: bool = False, chrom: str = "") -> ChromClasses:
+def classify_chromosome(
+    seq: np.ndarray,
+    transcripts: Sequence[Transcript],
+    code: GeneticCode,
+    mode: str = "agree",
+    exclude_softmasked: bool = False,
+    chrom: str = "",
+) -> ChromClasses:
     """Classify the coding sites of one chromosome (no I/O).
 
     Parameters
@@ -304,8 +312,12 @@ def classify_chromosome(seq: np.ndarray, transcripts: Sequence[Transcript],
     # Complete codons: three consecutive coding bases of one transcript at codon
     # positions 0, 1, 2.
     if total >= 3:
-        j = np.flatnonzero((lay.cpos[:-2] == 0) & (lay.cpos[1:-1] == 1)
-                           & (lay.cpos[2:] == 2) & (lay.tx[:-2] == lay.tx[2:]))
+        j = np.flatnonzero(
+            (lay.cpos[:-2] == 0)
+            & (lay.cpos[1:-1] == 1)
+            & (lay.cpos[2:] == 2)
+            & (lay.tx[:-2] == lay.tx[2:])
+        )
     else:
         j = np.empty(0, np.int64)
     b0, b1, b2 = b[j], b[j + 1], b[j + 2]
@@ -386,17 +398,26 @@ def classify_chromosome(seq: np.ndarray, transcripts: Sequence[Transcript],
     else:
         starts = ends = np.empty(0, np.int64)
         classes = np.empty(0, np.uint8)
-    return ChromClasses(chrom=chrom, length=int(seq.size), starts=starts, ends=ends,
-                        classes=classes, class_sites=class_sites, excluded=excluded,
-                        transcripts_used=int(keep_tx.sum()), coding_sites=int(sites.size))
+    return ChromClasses(
+        chrom=chrom,
+        length=int(seq.size),
+        starts=starts,
+        ends=ends,
+        classes=classes,
+        class_sites=class_sites,
+        excluded=excluded,
+        transcripts_used=int(keep_tx.sum()),
+        coding_sites=int(sites.size),
+    )
 
 
 # ---------------------------------------------------------------------------------------
 # I/O layer: FASTA through pysam (sites/fasta.py), GFF3 through read_gff3.
 
 
-def _missing_seqid_error(ann: Annotation, missing: list[str], refs: Sequence[str],
-                         fasta: str) -> InputError:
+def _missing_seqid_error(
+    ann: Annotation, missing: list[str], refs: Sequence[str], fasta: str
+) -> InputError:
     s = missing[0]
     line = ann.seqid_lines[s]
     hint = ""
@@ -410,23 +431,31 @@ def _missing_seqid_error(ann: Annotation, missing: list[str], refs: Sequence[str
         hint = f"; the FASTA has '{lower[s.lower()]}' (names are case-sensitive)"
     more = f" (and {len(missing) - 1} more seqids)" if len(missing) > 1 else ""
     shown = ", ".join(refs[:3]) + (", ..." if len(refs) > 3 else "")
-    return InputError(f"CDS seqid {s!r}{more} is not a sequence of the FASTA {fasta} "
-                      f"(which has {shown}){hint}", ann.path, line)
+    return InputError(
+        f"CDS seqid {s!r}{more} is not a sequence of the FASTA {fasta} (which has {shown}){hint}",
+        ann.path,
+        line,
+    )
 
 
-def _check_bounds(transcripts: Iterable[Transcript], chrom: str, length: int,
-                  path: str | None) -> None:
+def _check_bounds(
+    transcripts: Iterable[Transcript], chrom: str, length: int, path: str | None
+) -> None:
     for t in transcripts:
         if t.ends.size and int(t.ends.max()) > length:
             k = int(np.argmax(t.ends))
-            raise InputError(f"CDS {int(t.starts[k]) + 1}-{int(t.ends[k])} runs beyond the "
-                             f"end of {chrom} (length {length}); the annotation does not "
-                             "match this FASTA", path, int(t.lines[k]))
+            raise InputError(
+                f"CDS {int(t.starts[k]) + 1}-{int(t.ends[k])} runs beyond the "
+                f"end of {chrom} (length {length}); the annotation does not "
+                "match this FASTA",
+                path,
+                int(t.lines[k]),
+            )
 
 
-def _prepare(fasta: str | os.PathLike, gff: str | os.PathLike | Annotation,
-             chroms: Iterable[str] | None
-             ) -> tuple[Annotation, pysam.FastaFile, dict[str, list[Transcript]], list[str]]:
+def _prepare(
+    fasta: str | os.PathLike, gff: str | os.PathLike | Annotation, chroms: Iterable[str] | None
+) -> tuple[Annotation, pysam.FastaFile, dict[str, list[Transcript]], list[str]]:
     ann = gff if isinstance(gff, Annotation) else read_gff3(gff)
     fa = open_fasta(fasta)
     refs = list(fa.references)
@@ -452,10 +481,14 @@ def _chrom_array(fa: pysam.FastaFile, chrom: str) -> np.ndarray:
     return np.frombuffer(fa.fetch(chrom).encode("ascii"), dtype=np.uint8)
 
 
-def classify_sites(fasta: str | os.PathLike, gff: str | os.PathLike | Annotation,
-                   code: int = 1, transcripts: str = "agree",
-                   exclude_softmasked: bool = False,
-                   chroms: Iterable[str] | None = None) -> ClassifyResult:
+def classify_sites(
+    fasta: str | os.PathLike,
+    gff: str | os.PathLike | Annotation,
+    code: int = 1,
+    transcripts: str = "agree",
+    exclude_softmasked: bool = False,
+    chroms: Iterable[str] | None = None,
+) -> ClassifyResult:
     """Classify 0-fold and 4-fold degenerate sites of a genome from its GFF3 annotation.
 
     Parameters
@@ -506,30 +539,47 @@ def classify_sites(fasta: str | os.PathLike, gff: str | os.PathLike | Annotation
             length = fa.get_reference_length(chrom)
             _check_bounds(by_chrom[chrom], chrom, length, ann.path)
             seq = _chrom_array(fa, chrom)
-            res = classify_chromosome(seq, by_chrom[chrom], table, transcripts,
-                                      exclude_softmasked, chrom)
-            log.info("%s: %d 0-fold and %d 4-fold sites from %d transcripts", chrom,
-                     res.class_sites["0fold"], res.class_sites["4fold"],
-                     res.transcripts_used)
+            res = classify_chromosome(
+                seq, by_chrom[chrom], table, transcripts, exclude_softmasked, chrom
+            )
+            log.info(
+                "%s: %d 0-fold and %d 4-fold sites from %d transcripts",
+                chrom,
+                res.class_sites["0fold"],
+                res.class_sites["4fold"],
+                res.transcripts_used,
+            )
             out.append(res)
             del seq
     finally:
         fa.close()
-    result = ClassifyResult(out, code=table.number, transcripts=transcripts,
-                            exclude_softmasked=exclude_softmasked, fasta=os.fspath(fasta),
-                            gff=ann.path,
-                            options={"code": table.number, "transcripts": transcripts,
-                                     "exclude_softmasked": exclude_softmasked})
+    result = ClassifyResult(
+        out,
+        code=table.number,
+        transcripts=transcripts,
+        exclude_softmasked=exclude_softmasked,
+        fasta=os.fspath(fasta),
+        gff=ann.path,
+        options={
+            "code": table.number,
+            "transcripts": transcripts,
+            "exclude_softmasked": exclude_softmasked,
+        },
+    )
     if result.total("0fold") + result.total("4fold") == 0:
         ex = {r: result.total(r) for r in EXCLUSION_REASONS if result.total(r)}
         why = ", ".join(f"{r}={n}" for r, n in ex.items()) or "nothing classifiable"
-        raise InputError(f"no 0-fold or 4-fold site found ({why}); check that the GFF3 "
-                         "matches this FASTA and the genetic code (--code)", ann.path)
+        raise InputError(
+            f"no 0-fold or 4-fold site found ({why}); check that the GFF3 "
+            "matches this FASTA and the genetic code (--code)",
+            ann.path,
+        )
     return result
 
 
-def coding_sequences(fasta: str | os.PathLike, gff: str | os.PathLike | Annotation,
-                     ids: Iterable[str] | None = None) -> dict[str, str]:
+def coding_sequences(
+    fasta: str | os.PathLike, gff: str | os.PathLike | Annotation, ids: Iterable[str] | None = None
+) -> dict[str, str]:
     """Spliced coding sequence of each transcript, built as :func:`classify_sites` does.
 
     Parameters
@@ -559,22 +609,24 @@ def coding_sequences(fasta: str | os.PathLike, gff: str | os.PathLike | Annotati
             bases = seq[lay.pos]
             bases = np.where(lay.minus, _COMPLEMENT[bases], bases).astype(np.uint8)
             for k, t in enumerate(txs):
-                out[t.id] = bases[lay.tx_first[k]:lay.tx_first[k + 1]].tobytes().decode()
+                out[t.id] = bases[lay.tx_first[k] : lay.tx_first[k + 1]].tobytes().decode()
     finally:
         fa.close()
     return out
 
 
-def write_summary(result: ClassifyResult, path: str | os.PathLike, force: bool = False
-                  ) -> None:
+def write_summary(result: ClassifyResult, path: str | os.PathLike, force: bool = False) -> None:
     """Write the summary TSV (``chrom, kind, name, count, unit``) of a classification."""
     prov = provenance(result.options)
     with atomic_output(path, force=force, newline="") as fh:
-        fh.write(f"# driftband {prov['version']} classify: sites per class and "
-                 "exclusions by reason\n")
-        fh.write(f"# fasta={result.fasta} gff={result.gff} code={result.code} "
-                 f"transcripts={result.transcripts} "
-                 f"exclude_softmasked={str(result.exclude_softmasked).lower()}\n")
+        fh.write(
+            f"# driftband {prov['version']} classify: sites per class and exclusions by reason\n"
+        )
+        fh.write(
+            f"# fasta={result.fasta} gff={result.gff} code={result.code} "
+            f"transcripts={result.transcripts} "
+            f"exclude_softmasked={str(result.exclude_softmasked).lower()}\n"
+        )
         fh.write("chrom\tkind\tname\tcount\tunit\n")
         for row in result.summary_rows():
             fh.write("\t".join(str(x) for x in row) + "\n")

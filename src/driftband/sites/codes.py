@@ -44,52 +44,83 @@ DEGENERACY_NAMES = ("0fold", "2fold", "3fold", "4fold")
 #: Tables 27, 28 and 31, whose stop codons are read as sense codons depending on context,
 #: are left out on purpose: a site's degeneracy is not defined by the table alone there.
 NCBI_TABLES: dict[int, tuple[str, str]] = {
-    1: ("Standard",
-        "FFLLSSSSYY**CC*WLLLLPPPPHHQQRRRRIIIMTTTTNNKKSSRRVVVVAAAADDEEGGGG"),
-    2: ("Vertebrate Mitochondrial",
-        "FFLLSSSSYY**CCWWLLLLPPPPHHQQRRRRIIMMTTTTNNKKSS**VVVVAAAADDEEGGGG"),
-    3: ("Yeast Mitochondrial",
-        "FFLLSSSSYY**CCWWTTTTPPPPHHQQRRRRIIMMTTTTNNKKSSRRVVVVAAAADDEEGGGG"),
-    4: ("Mold, Protozoan and Coelenterate Mitochondrial; Mycoplasma; Spiroplasma",
-        "FFLLSSSSYY**CCWWLLLLPPPPHHQQRRRRIIIMTTTTNNKKSSRRVVVVAAAADDEEGGGG"),
-    5: ("Invertebrate Mitochondrial",
-        "FFLLSSSSYY**CCWWLLLLPPPPHHQQRRRRIIMMTTTTNNKKSSSSVVVVAAAADDEEGGGG"),
-    6: ("Ciliate, Dasycladacean and Hexamita Nuclear",
-        "FFLLSSSSYYQQCC*WLLLLPPPPHHQQRRRRIIIMTTTTNNKKSSRRVVVVAAAADDEEGGGG"),
-    9: ("Echinoderm and Flatworm Mitochondrial",
-        "FFLLSSSSYY**CCWWLLLLPPPPHHQQRRRRIIIMTTTTNNNKSSSSVVVVAAAADDEEGGGG"),
-    10: ("Euplotid Nuclear",
-         "FFLLSSSSYY**CCCWLLLLPPPPHHQQRRRRIIIMTTTTNNKKSSRRVVVVAAAADDEEGGGG"),
-    11: ("Bacterial, Archaeal and Plant Plastid",
-         "FFLLSSSSYY**CC*WLLLLPPPPHHQQRRRRIIIMTTTTNNKKSSRRVVVVAAAADDEEGGGG"),
-    12: ("Alternative Yeast Nuclear",
-         "FFLLSSSSYY**CC*WLLLSPPPPHHQQRRRRIIIMTTTTNNKKSSRRVVVVAAAADDEEGGGG"),
-    13: ("Ascidian Mitochondrial",
-         "FFLLSSSSYY**CCWWLLLLPPPPHHQQRRRRIIMMTTTTNNKKSSGGVVVVAAAADDEEGGGG"),
-    14: ("Alternative Flatworm Mitochondrial",
-         "FFLLSSSSYYY*CCWWLLLLPPPPHHQQRRRRIIIMTTTTNNNKSSSSVVVVAAAADDEEGGGG"),
-    16: ("Chlorophycean Mitochondrial",
-         "FFLLSSSSYY*LCC*WLLLLPPPPHHQQRRRRIIIMTTTTNNKKSSRRVVVVAAAADDEEGGGG"),
-    21: ("Trematode Mitochondrial",
-         "FFLLSSSSYY**CCWWLLLLPPPPHHQQRRRRIIMMTTTTNNNKSSSSVVVVAAAADDEEGGGG"),
-    22: ("Scenedesmus obliquus Mitochondrial",
-         "FFLLSS*SYY*LCC*WLLLLPPPPHHQQRRRRIIIMTTTTNNKKSSRRVVVVAAAADDEEGGGG"),
-    23: ("Thraustochytrium Mitochondrial",
-         "FF*LSSSSYY**CC*WLLLLPPPPHHQQRRRRIIIMTTTTNNKKSSRRVVVVAAAADDEEGGGG"),
-    24: ("Rhabdopleuridae Mitochondrial",
-         "FFLLSSSSYY**CCWWLLLLPPPPHHQQRRRRIIIMTTTTNNKKSSSKVVVVAAAADDEEGGGG"),
-    25: ("Candidate Division SR1 and Gracilibacteria",
-         "FFLLSSSSYY**CCGWLLLLPPPPHHQQRRRRIIIMTTTTNNKKSSRRVVVVAAAADDEEGGGG"),
-    26: ("Pachysolen tannophilus Nuclear",
-         "FFLLSSSSYY**CC*WLLLAPPPPHHQQRRRRIIIMTTTTNNKKSSRRVVVVAAAADDEEGGGG"),
-    29: ("Mesodinium Nuclear",
-         "FFLLSSSSYYYYCC*WLLLLPPPPHHQQRRRRIIIMTTTTNNKKSSRRVVVVAAAADDEEGGGG"),
-    30: ("Peritrich Nuclear",
-         "FFLLSSSSYYEECC*WLLLLPPPPHHQQRRRRIIIMTTTTNNKKSSRRVVVVAAAADDEEGGGG"),
-    32: ("Balanophoraceae Plastid",
-         "FFLLSSSSYY*WCC*WLLLLPPPPHHQQRRRRIIIMTTTTNNKKSSRRVVVVAAAADDEEGGGG"),
-    33: ("Cephalodiscidae Mitochondrial",
-         "FFLLSSSSYYY*CCWWLLLLPPPPHHQQRRRRIIIMTTTTNNKKSSSKVVVVAAAADDEEGGGG"),
+    1: ("Standard", "FFLLSSSSYY**CC*WLLLLPPPPHHQQRRRRIIIMTTTTNNKKSSRRVVVVAAAADDEEGGGG"),
+    2: (
+        "Vertebrate Mitochondrial",
+        "FFLLSSSSYY**CCWWLLLLPPPPHHQQRRRRIIMMTTTTNNKKSS**VVVVAAAADDEEGGGG",
+    ),
+    3: ("Yeast Mitochondrial", "FFLLSSSSYY**CCWWTTTTPPPPHHQQRRRRIIMMTTTTNNKKSSRRVVVVAAAADDEEGGGG"),
+    4: (
+        "Mold, Protozoan and Coelenterate Mitochondrial; Mycoplasma; Spiroplasma",
+        "FFLLSSSSYY**CCWWLLLLPPPPHHQQRRRRIIIMTTTTNNKKSSRRVVVVAAAADDEEGGGG",
+    ),
+    5: (
+        "Invertebrate Mitochondrial",
+        "FFLLSSSSYY**CCWWLLLLPPPPHHQQRRRRIIMMTTTTNNKKSSSSVVVVAAAADDEEGGGG",
+    ),
+    6: (
+        "Ciliate, Dasycladacean and Hexamita Nuclear",
+        "FFLLSSSSYYQQCC*WLLLLPPPPHHQQRRRRIIIMTTTTNNKKSSRRVVVVAAAADDEEGGGG",
+    ),
+    9: (
+        "Echinoderm and Flatworm Mitochondrial",
+        "FFLLSSSSYY**CCWWLLLLPPPPHHQQRRRRIIIMTTTTNNNKSSSSVVVVAAAADDEEGGGG",
+    ),
+    10: ("Euplotid Nuclear", "FFLLSSSSYY**CCCWLLLLPPPPHHQQRRRRIIIMTTTTNNKKSSRRVVVVAAAADDEEGGGG"),
+    11: (
+        "Bacterial, Archaeal and Plant Plastid",
+        "FFLLSSSSYY**CC*WLLLLPPPPHHQQRRRRIIIMTTTTNNKKSSRRVVVVAAAADDEEGGGG",
+    ),
+    12: (
+        "Alternative Yeast Nuclear",
+        "FFLLSSSSYY**CC*WLLLSPPPPHHQQRRRRIIIMTTTTNNKKSSRRVVVVAAAADDEEGGGG",
+    ),
+    13: (
+        "Ascidian Mitochondrial",
+        "FFLLSSSSYY**CCWWLLLLPPPPHHQQRRRRIIMMTTTTNNKKSSGGVVVVAAAADDEEGGGG",
+    ),
+    14: (
+        "Alternative Flatworm Mitochondrial",
+        "FFLLSSSSYYY*CCWWLLLLPPPPHHQQRRRRIIIMTTTTNNNKSSSSVVVVAAAADDEEGGGG",
+    ),
+    16: (
+        "Chlorophycean Mitochondrial",
+        "FFLLSSSSYY*LCC*WLLLLPPPPHHQQRRRRIIIMTTTTNNKKSSRRVVVVAAAADDEEGGGG",
+    ),
+    21: (
+        "Trematode Mitochondrial",
+        "FFLLSSSSYY**CCWWLLLLPPPPHHQQRRRRIIMMTTTTNNNKSSSSVVVVAAAADDEEGGGG",
+    ),
+    22: (
+        "Scenedesmus obliquus Mitochondrial",
+        "FFLLSS*SYY*LCC*WLLLLPPPPHHQQRRRRIIIMTTTTNNKKSSRRVVVVAAAADDEEGGGG",
+    ),
+    23: (
+        "Thraustochytrium Mitochondrial",
+        "FF*LSSSSYY**CC*WLLLLPPPPHHQQRRRRIIIMTTTTNNKKSSRRVVVVAAAADDEEGGGG",
+    ),
+    24: (
+        "Rhabdopleuridae Mitochondrial",
+        "FFLLSSSSYY**CCWWLLLLPPPPHHQQRRRRIIIMTTTTNNKKSSSKVVVVAAAADDEEGGGG",
+    ),
+    25: (
+        "Candidate Division SR1 and Gracilibacteria",
+        "FFLLSSSSYY**CCGWLLLLPPPPHHQQRRRRIIIMTTTTNNKKSSRRVVVVAAAADDEEGGGG",
+    ),
+    26: (
+        "Pachysolen tannophilus Nuclear",
+        "FFLLSSSSYY**CC*WLLLAPPPPHHQQRRRRIIIMTTTTNNKKSSRRVVVVAAAADDEEGGGG",
+    ),
+    29: ("Mesodinium Nuclear", "FFLLSSSSYYYYCC*WLLLLPPPPHHQQRRRRIIIMTTTTNNKKSSRRVVVVAAAADDEEGGGG"),
+    30: ("Peritrich Nuclear", "FFLLSSSSYYEECC*WLLLLPPPPHHQQRRRRIIIMTTTTNNKKSSRRVVVVAAAADDEEGGGG"),
+    32: (
+        "Balanophoraceae Plastid",
+        "FFLLSSSSYY*WCC*WLLLLPPPPHHQQRRRRIIIMTTTTNNKKSSRRVVVVAAAADDEEGGGG",
+    ),
+    33: (
+        "Cephalodiscidae Mitochondrial",
+        "FFLLSSSSYYY*CCWWLLLLPPPPHHQQRRRRIIIMTTTTNNKKSSSKVVVVAAAADDEEGGGG",
+    ),
 }
 
 
@@ -199,7 +230,7 @@ class GeneticCode:
         out = []
         for first in range(4):
             for second in range(4):
-                box = self.amino_acids[16 * first + 4 * second:16 * first + 4 * second + 4]
+                box = self.amino_acids[16 * first + 4 * second : 16 * first + 4 * second + 4]
                 if box[0] != "*" and len(set(box)) == 1:
                     out.append(BASES[first] + BASES[second])
         return out
@@ -234,6 +265,7 @@ def genetic_code(number: int) -> GeneticCode:
         name, aas = NCBI_TABLES[number]
     except (KeyError, ValueError, TypeError):
         known = ", ".join(str(k) for k in NCBI_TABLES)
-        raise OptionError(f"--code {number!r}: not a supported NCBI translation table; "
-                          f"use one of {known}") from None
+        raise OptionError(
+            f"--code {number!r}: not a supported NCBI translation table; use one of {known}"
+        ) from None
     return GeneticCode.from_ncbi(number, name, aas)

@@ -21,8 +21,9 @@ __all__ = ["open_fasta"]
 
 def _is_bgzf(head: bytes) -> bool:
     # BGZF: a gzip member with the FEXTRA flag and a 'BC' extra subfield (SAM spec 4.1).
-    return len(head) >= 14 and head[:2] == b"\x1f\x8b" and bool(head[3] & 4) \
-        and head[12:14] == b"BC"
+    return (
+        len(head) >= 14 and head[:2] == b"\x1f\x8b" and bool(head[3] & 4) and head[12:14] == b"BC"
+    )
 
 
 def open_fasta(path: str | os.PathLike) -> pysam.FastaFile:
@@ -51,23 +52,32 @@ def open_fasta(path: str | os.PathLike) -> pysam.FastaFile:
     with open(p, "rb") as fh:
         head = fh.read(18)
     if head[:2] == b"\x1f\x8b" and not _is_bgzf(head):
-        raise InputError("FASTA is gzip-compressed but not with bgzip, so it cannot be "
-                         "indexed; recompress it with 'zcat FILE | bgzip > FILE.bgz' or "
-                         "decompress it", p)
+        raise InputError(
+            "FASTA is gzip-compressed but not with bgzip, so it cannot be "
+            "indexed; recompress it with 'zcat FILE | bgzip > FILE.bgz' or "
+            "decompress it",
+            p,
+        )
     need = [p + ".fai"] + ([p + ".gzi"] if head[:2] == b"\x1f\x8b" else [])
     if not all(os.path.exists(x) for x in need):
         folder = os.path.dirname(os.path.abspath(p))
         if not os.access(folder, os.W_OK):
-            raise InputError(f"FASTA has no index ({', '.join(os.path.basename(x) for x in need)})"
-                             f" and its folder {folder} is not writable; index it where it "
-                             "can be written or copy the FASTA to a writable folder", p)
-    old = pysam.set_verbosity(0)   # keep htslib's own messages off stderr
+            raise InputError(
+                f"FASTA has no index ({', '.join(os.path.basename(x) for x in need)})"
+                f" and its folder {folder} is not writable; index it where it "
+                "can be written or copy the FASTA to a writable folder",
+                p,
+            )
+    old = pysam.set_verbosity(0)  # keep htslib's own messages off stderr
     try:
         fa = pysam.FastaFile(p)
     except (OSError, ValueError) as err:
-        raise InputError(f"cannot be read or indexed as FASTA ({err}); check that it is "
-                         "FASTA with equal-length lines within each record and unique "
-                         "names", p) from None
+        raise InputError(
+            f"cannot be read or indexed as FASTA ({err}); check that it is "
+            "FASTA with equal-length lines within each record and unique "
+            "names",
+            p,
+        ) from None
     finally:
         pysam.set_verbosity(old)
     if fa.nreferences == 0:

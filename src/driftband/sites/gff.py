@@ -100,8 +100,18 @@ class Annotation:
 
 
 # Feature types that are never the parent of a CDS (not remembered, to save memory).
-_LEAF_TYPES = frozenset({"exon", "intron", "five_prime_UTR", "three_prime_UTR",
-                         "start_codon", "stop_codon", "region", "repeat_region"})
+_LEAF_TYPES = frozenset(
+    {
+        "exon",
+        "intron",
+        "five_prime_UTR",
+        "three_prime_UTR",
+        "start_codon",
+        "stop_codon",
+        "region",
+        "repeat_region",
+    }
+)
 
 
 def _attributes(text: str) -> dict[str, str]:
@@ -152,9 +162,9 @@ def read_gff3(path: str | os.PathLike) -> Annotation:
         fh = open_text(p, errors="replace")
     except FileNotFoundError:
         raise InputError("file not found", p) from None
-    parent_of: dict[str, str] = {}     # feature ID -> its first Parent
+    parent_of: dict[str, str] = {}  # feature ID -> its first Parent
     pseudo_ids: set[str] = set()
-    parts: dict[str, list] = {}        # transcript ID -> [seqids, strands, s, e, ph, ln, ...]
+    parts: dict[str, list] = {}  # transcript ID -> [seqids, strands, s, e, ph, ln, ...]
     cds_ids: dict[str, str] = {}
     pseudo_tx: set[str] = set()
     seqid_lines: dict[str, int] = {}
@@ -170,8 +180,9 @@ def read_gff3(path: str | os.PathLike) -> Annotation:
                     continue
                 f = line.rstrip("\r\n").split("\t")
                 if len(f) < 9:
-                    raise InputError(f"a GFF3 line needs 9 tab-separated columns, found "
-                                     f"{len(f)}", p, ln)
+                    raise InputError(
+                        f"a GFF3 line needs 9 tab-separated columns, found {len(f)}", p, ln
+                    )
                 ftype = f[2]
                 attrs = _attributes(f[8])
                 fid = attrs.get("ID")
@@ -187,25 +198,36 @@ def read_gff3(path: str | os.PathLike) -> Annotation:
                 n_cds += 1
                 par = _parents(attrs.get("Parent"))
                 if not par:
-                    raise InputError("CDS feature without a Parent attribute; give each "
-                                     "CDS the ID of its mRNA/transcript as Parent=", p, ln)
+                    raise InputError(
+                        "CDS feature without a Parent attribute; give each "
+                        "CDS the ID of its mRNA/transcript as Parent=",
+                        p,
+                        ln,
+                    )
                 try:
                     start, end = int(f[3]), int(f[4])
                 except ValueError:
-                    raise InputError(f"start/end {f[3]!r}, {f[4]!r} are not integers", p,
-                                     ln) from None
+                    raise InputError(
+                        f"start/end {f[3]!r}, {f[4]!r} are not integers", p, ln
+                    ) from None
                 if start < 1 or end < start:
-                    raise InputError(f"invalid CDS coordinates {start}-{end} (GFF3 is "
-                                     "1-based and closed: 1 <= start <= end)", p, ln)
+                    raise InputError(
+                        f"invalid CDS coordinates {start}-{end} (GFF3 is "
+                        "1-based and closed: 1 <= start <= end)",
+                        p,
+                        ln,
+                    )
                 phase = f[7]
                 if phase not in ("0", "1", "2"):
                     what = "missing ('.')" if phase == "." else f"invalid ({phase!r})"
-                    raise InputError(f"CDS phase is {what}; column 8 of a CDS must be 0, 1 "
-                                     "or 2", p, ln)
+                    raise InputError(
+                        f"CDS phase is {what}; column 8 of a CDS must be 0, 1 or 2", p, ln
+                    )
                 strand = f[6]
                 if strand not in ("+", "-"):
-                    raise InputError(f"CDS strand is {strand!r}; column 7 of a CDS must be "
-                                     "'+' or '-'", p, ln)
+                    raise InputError(
+                        f"CDS strand is {strand!r}; column 7 of a CDS must be '+' or '-'", p, ln
+                    )
                 seqid = _dec(f[0])
                 seqid_lines.setdefault(seqid, ln)
                 is_pseudo = attrs.get("pseudo", "").lower() == "true"
@@ -226,8 +248,11 @@ def read_gff3(path: str | os.PathLike) -> Annotation:
         except (UnicodeDecodeError, EOFError, OSError, gzip.BadGzipFile) as err:
             raise InputError(f"cannot be read as GFF3 text ({err})", p) from None
     if not parts:
-        raise InputError("no CDS features found; a GFF3 annotation with CDS features "
-                         "(gene -> mRNA -> CDS) is needed", p)
+        raise InputError(
+            "no CDS features found; a GFF3 annotation with CDS features "
+            "(gene -> mRNA -> CDS) is needed",
+            p,
+        )
     transcripts = []
     for tx, (seqids, strands, s, e, ph, lines) in parts.items():
         problem = None
@@ -236,11 +261,19 @@ def read_gff3(path: str | os.PathLike) -> Annotation:
         elif len(set(strands)) > 1:
             problem = "mixed_strand"
         gene = parent_of.get(tx, tx)
-        transcripts.append(Transcript(
-            id=tx, gene=gene, seqid=seqids[0], strand=strands[0],
-            starts=np.array(s, dtype=np.int64), ends=np.array(e, dtype=np.int64),
-            phases=np.array(ph, dtype=np.int64), lines=np.array(lines, dtype=np.int64),
-            cds_id=cds_ids.get(tx),
-            pseudo=tx in pseudo_tx or tx in pseudo_ids or gene in pseudo_ids,
-            problem=problem))
+        transcripts.append(
+            Transcript(
+                id=tx,
+                gene=gene,
+                seqid=seqids[0],
+                strand=strands[0],
+                starts=np.array(s, dtype=np.int64),
+                ends=np.array(e, dtype=np.int64),
+                phases=np.array(ph, dtype=np.int64),
+                lines=np.array(lines, dtype=np.int64),
+                cds_id=cds_ids.get(tx),
+                pseudo=tx in pseudo_tx or tx in pseudo_ids or gene in pseudo_ids,
+                problem=problem,
+            )
+        )
     return Annotation(transcripts, p, n_cds, seqid_lines)

@@ -76,28 +76,44 @@ class SpectraOptions:
     def provenance_options(self) -> dict[str, Any]:
         """The options as recorded in the provenance of the spectra file."""
         project = self.project
-        return {"ancestral": self.ancestral,
-                "project": project if not isinstance(project, Mapping) else dict(project),
-                "block_size": None if self.blocks else self.block_size,
-                "blocks": None if self.blocks is None else os.fspath(self.blocks),
-                "regions": list(self.regions) if self.regions else None,
-                "min_gq": self.min_gq, "min_dp": self.min_dp, "pass_only": self.pass_only,
-                "keep_fraction": self.keep,
-                "projection_rule": (f"largest n such that >= {self.keep:.0%} of usable "
-                                    "records have n or more called gene copies")}
+        return {
+            "ancestral": self.ancestral,
+            "project": project if not isinstance(project, Mapping) else dict(project),
+            "block_size": None if self.blocks else self.block_size,
+            "blocks": None if self.blocks is None else os.fspath(self.blocks),
+            "regions": list(self.regions) if self.regions else None,
+            "min_gq": self.min_gq,
+            "min_dp": self.min_dp,
+            "pass_only": self.pass_only,
+            "keep_fraction": self.keep,
+            "projection_rule": (
+                f"largest n such that >= {self.keep:.0%} of usable "
+                "records have n or more called gene copies"
+            ),
+        }
 
 
-def build_spectra(vcf: str | os.PathLike, popmap: Popmap | str | os.PathLike,
-                  sites: SiteClasses | str | os.PathLike, *,
-                  callable_mask: IntervalSet | str | os.PathLike | None = None,
-                  ancestral: str = "aa", project: int | Mapping[str, int] | None = None,
-                  block_size: int = 100_000, blocks: str | os.PathLike | None = None,
-                  regions: Sequence[str] | None = None, min_gq: int | None = None,
-                  min_dp: int | None = None, pass_only: bool = False,
-                  region_size: int = DEFAULT_REGION_SIZE, keep: float = DEFAULT_KEEP_FRACTION,
-                  progress: Callable[[int, int, int], None] | None = None,
-                  checksums: bool = True, workers: int | None = 1,
-                  scheduler: Any = None) -> SpectraSet:
+def build_spectra(
+    vcf: str | os.PathLike,
+    popmap: Popmap | str | os.PathLike,
+    sites: SiteClasses | str | os.PathLike,
+    *,
+    callable_mask: IntervalSet | str | os.PathLike | None = None,
+    ancestral: str = "aa",
+    project: int | Mapping[str, int] | None = None,
+    block_size: int = 100_000,
+    blocks: str | os.PathLike | None = None,
+    regions: Sequence[str] | None = None,
+    min_gq: int | None = None,
+    min_dp: int | None = None,
+    pass_only: bool = False,
+    region_size: int = DEFAULT_REGION_SIZE,
+    keep: float = DEFAULT_KEEP_FRACTION,
+    progress: Callable[[int, int, int], None] | None = None,
+    checksums: bool = True,
+    workers: int | None = 1,
+    scheduler: Any = None,
+) -> SpectraSet:
     """Per-population, per-class, per-block site frequency spectra from a VCF/BCF.
 
     Parameters
@@ -149,11 +165,20 @@ def build_spectra(vcf: str | os.PathLike, popmap: Popmap | str | os.PathLike,
 
     check_region_size(region_size)
     resolve_workers(workers)
-    opts = SpectraOptions(ancestral=ancestral, project=project, block_size=block_size,
-                          blocks=blocks, regions=None if regions is None else tuple(regions),
-                          min_gq=min_gq, min_dp=min_dp, pass_only=pass_only,
-                          region_size=region_size, keep=keep, checksums=checksums,
-                          workers=workers)
+    opts = SpectraOptions(
+        ancestral=ancestral,
+        project=project,
+        block_size=block_size,
+        blocks=blocks,
+        regions=None if regions is None else tuple(regions),
+        min_gq=min_gq,
+        min_dp=min_dp,
+        pass_only=pass_only,
+        region_size=region_size,
+        keep=keep,
+        checksums=checksums,
+        workers=workers,
+    )
     client = connect(scheduler) if isinstance(scheduler, str) else scheduler  # fail fast
     src = None
     try:
@@ -168,7 +193,8 @@ def build_spectra(vcf: str | os.PathLike, popmap: Popmap | str | os.PathLike,
     ss.provenance["execution"] = {
         "region_size": region_size,
         "workers": resolve_workers(workers) if scheduler is None else None,
-        "scheduler": scheduler_address(scheduler)}
+        "scheduler": scheduler_address(scheduler),
+    }
     return ss
 
 
@@ -180,59 +206,78 @@ def _as_classes(x: SiteClasses | str | os.PathLike) -> SiteClasses:
     return x if isinstance(x, SiteClasses) else read_site_classes(x)
 
 
-def _build(src: VcfSource, vcf: str | os.PathLike, popmap: Popmap | str | os.PathLike,
-           sites: SiteClasses | str | os.PathLike,
-           callable_mask: IntervalSet | str | os.PathLike | None,
-           opts: SpectraOptions, progress: Callable[[int, int, int], None] | None,
-           scheduler: Any) -> SpectraSet:
+def _build(
+    src: VcfSource,
+    vcf: str | os.PathLike,
+    popmap: Popmap | str | os.PathLike,
+    sites: SiteClasses | str | os.PathLike,
+    callable_mask: IntervalSet | str | os.PathLike | None,
+    opts: SpectraOptions,
+    progress: Callable[[int, int, int], None] | None,
+    scheduler: Any,
+) -> SpectraSet:
     """:func:`build_spectra` on an open VCF; ``provenance`` without ``execution``."""
-    digest = _Checksum(vcf if opts.checksums else None)   # hashed while counting runs
+    digest = _Checksum(vcf if opts.checksums else None)  # hashed while counting runs
     pm = _as_popmap(popmap)
     og = _check_header(src, opts)
     assign = assign_samples(pm, src.header.samples, src.path, og or None)
     if assign.ignored:
         shown = ", ".join(assign.ignored[:10]) + (" ..." if len(assign.ignored) > 10 else "")
-        log.warning("%d VCF sample(s) not in the popmap are ignored: %s",
-                    len(assign.ignored), shown)
+        log.warning(
+            "%d VCF sample(s) not in the popmap are ignored: %s", len(assign.ignored), shown
+        )
     sc = _as_classes(sites)
     mask = None
     if callable_mask is not None:
-        mask = callable_mask if isinstance(callable_mask, IntervalSet) else read_mask(
-            callable_mask)
+        mask = callable_mask if isinstance(callable_mask, IntervalSet) else read_mask(callable_mask)
     reg = parse_regions(opts.regions) if opts.regions else None
     blk = read_blocks(opts.blocks) if opts.blocks is not None else None
-    design = make_design(assign, sorted(sc.classes), opts.ancestral, opts.min_dp, opts.min_gq,
-                         opts.pass_only)
+    design = make_design(
+        assign, sorted(sc.classes), opts.ancestral, opts.min_dp, opts.min_gq, opts.pass_only
+    )
     vchroms = src.chroms
     plan = make_plan(sc, vchroms, mask, reg, opts.block_size, blk, src.header.contig_lengths)
     bed_path = sc.path or "site classes"
     if reg is not None:
         unknown = [c for c in reg.chroms if vchroms and c not in vchroms]
         if unknown and (src.indexed or src.header.contigs):
-            raise OptionError(f"--regions: chromosome {unknown[0]!r} is not in the VCF "
-                              f"({chrom_mismatch_hint(unknown, vchroms)})")
+            raise OptionError(
+                f"--regions: chromosome {unknown[0]!r} is not in the VCF "
+                f"({chrom_mismatch_hint(unknown, vchroms)})"
+            )
     known_now = src.indexed or bool(src.header.contigs)
     if known_now:
         _check_chroms(plan, sc, vchroms, bed_path, src.path)
     for c, n in plan.sites().items():
         if n == 0:
-            raise InputError(f"class {c!r} has no callable sites after intersecting with the "
-                             "mask, regions and blocks", bed_path)
+            raise InputError(
+                f"class {c!r} has no callable sites after intersecting with the "
+                "mask, regions and blocks",
+                bed_path,
+            )
     if src.indexed:
         from .parallel import count_regions
 
         plan = plan.restrict(vchroms)
-        total = count_regions(src, design, plan, opts.region_size, workers=opts.workers,
-                              scheduler=scheduler, progress=progress)
+        total = count_regions(
+            src,
+            design,
+            plan,
+            opts.region_size,
+            workers=opts.workers,
+            scheduler=scheduler,
+            progress=progress,
+        )
     else:
-        total, plan = _count_unindexed(src, design, plan, opts, progress, scheduler,
-                                       None if known_now else (sc, bed_path))
+        total, plan = _count_unindexed(
+            src, design, plan, opts, progress, scheduler, None if known_now else (sc, bed_path)
+        )
     if total.records == 0:
-        raise InputError("the VCF holds no records in the regions with class sites",
-                         src.path)
+        raise InputError("the VCF holds no records in the regions with class sites", src.path)
     ss = spectra_from_counts(total, design, plan.blocks, opts.project, opts.keep)
-    ss.provenance = _provenance(opts, digest, vcf, pm, sc, callable_mask, total, design,
-                                assign.ignored)
+    ss.provenance = _provenance(
+        opts, digest, vcf, pm, sc, callable_mask, total, design, assign.ignored
+    )
     return ss
 
 
@@ -242,22 +287,31 @@ def _check_header(src: VcfSource, opts: SpectraOptions) -> str:
     if kind == "outgroup" and not og:
         raise OptionError("--ancestral outgroup:POP needs the outgroup population's name")
     if kind == "aa" and "AA" not in src.header.info:
-        raise InputError("--ancestral aa needs INFO/AA, but the header declares no "
-                         "##INFO=<ID=AA> field; use --ancestral fold or outgroup:POP", src.path)
+        raise InputError(
+            "--ancestral aa needs INFO/AA, but the header declares no "
+            "##INFO=<ID=AA> field; use --ancestral fold or outgroup:POP",
+            src.path,
+        )
     if "GT" not in src.header.formats:
-        raise InputError("the VCF has no GT field (no ##FORMAT=<ID=GT> header line); spectra "
-                         "need genotypes", src.path)
+        raise InputError(
+            "the VCF has no GT field (no ##FORMAT=<ID=GT> header line); spectra need genotypes",
+            src.path,
+        )
     for name, v, key in (("--min-dp", opts.min_dp, "DP"), ("--min-gq", opts.min_gq, "GQ")):
         if v is not None and key not in src.header.formats:
-            raise InputError(f"{name} given but the header declares no FORMAT/{key}",
-                             src.path)
+            raise InputError(f"{name} given but the header declares no FORMAT/{key}", src.path)
     return og
 
 
-def _count_unindexed(src: VcfSource, design: CountDesign, plan: SitePlan,
-                     opts: SpectraOptions, progress: Callable[[int, int, int], None] | None,
-                     scheduler: Any, check: tuple[SiteClasses, str] | None
-                     ) -> tuple[RegionCounts, SitePlan]:
+def _count_unindexed(
+    src: VcfSource,
+    design: CountDesign,
+    plan: SitePlan,
+    opts: SpectraOptions,
+    progress: Callable[[int, int, int], None] | None,
+    scheduler: Any,
+    check: tuple[SiteClasses, str] | None,
+) -> tuple[RegionCounts, SitePlan]:
     """Count a file without an index as one stream, in this process.
 
     ``check`` (site classes, BED name) when the VCF's chromosomes are known only after the
@@ -267,7 +321,9 @@ def _count_unindexed(src: VcfSource, design: CountDesign, plan: SitePlan,
     if scheduler is not None or opts.workers != 1:
         (log.warning if scheduler is not None else log.info)(
             "%s is not indexed: counting it as one stream in this process (index it "
-            "with tabix -p vcf or bcftools index to count regions in parallel)", src.path)
+            "with tabix -p vcf or bcftools index to count regions in parallel)",
+            src.path,
+        )
     state = {"n": 0}
 
     def tick(_chrom: str, k: int) -> None:
@@ -287,11 +343,19 @@ def _count_unindexed(src: VcfSource, design: CountDesign, plan: SitePlan,
     return total, plan
 
 
-def _provenance(opts: SpectraOptions, digest: _Checksum, vcf: str | os.PathLike, pm: Popmap,
-                sc: SiteClasses, callable_mask: IntervalSet | str | os.PathLike | None,
-                total: RegionCounts, design: CountDesign, ignored: Sequence[str]
-                ) -> dict[str, Any]:
+def _provenance(
+    opts: SpectraOptions,
+    digest: _Checksum,
+    vcf: str | os.PathLike,
+    pm: Popmap,
+    sc: SiteClasses,
+    callable_mask: IntervalSet | str | os.PathLike | None,
+    total: RegionCounts,
+    design: CountDesign,
+    ignored: Sequence[str],
+) -> dict[str, Any]:
     """The provenance of the spectra file: options, inputs and what was counted."""
+
     def rec(p: str | os.PathLike | None) -> dict[str, Any] | None:
         if opts.checksums:
             return file_record(p)
@@ -299,18 +363,21 @@ def _provenance(opts: SpectraOptions, digest: _Checksum, vcf: str | os.PathLike,
             return None
         return {"path": os.path.abspath(os.fspath(p)) if os.fspath(p) != "-" else "-"}
 
-    inputs = {"vcf": digest.result() or rec(vcf), "popmap": rec(pm.path),
-              "sites": rec(sc.path),
-              "callable": rec(callable_mask) if isinstance(callable_mask, str | os.PathLike)
-              else None, "blocks": rec(opts.blocks)}
-    prov = provenance(opts.provenance_options(),
-                      {k: v for k, v in inputs.items() if v is not None})
-    prov["counts"] = {"records_read": total.records,
-                      "records_used": {p: int(r[:, 4].sum()) for p, r in total.rows.items()},
-                      "ignored_samples": list(ignored),
-                      "samples": {p: int(c.size) for p, c in zip(design.populations,
-                                                                  design.columns)},
-                      "outgroup": design.outgroup}
+    inputs = {
+        "vcf": digest.result() or rec(vcf),
+        "popmap": rec(pm.path),
+        "sites": rec(sc.path),
+        "callable": rec(callable_mask) if isinstance(callable_mask, str | os.PathLike) else None,
+        "blocks": rec(opts.blocks),
+    }
+    prov = provenance(opts.provenance_options(), {k: v for k, v in inputs.items() if v is not None})
+    prov["counts"] = {
+        "records_read": total.records,
+        "records_used": {p: int(r[:, 4].sum()) for p, r in total.rows.items()},
+        "ignored_samples": list(ignored),
+        "samples": {p: int(c.size) for p, c in zip(design.populations, design.columns)},
+        "outgroup": design.outgroup,
+    }
     return prov
 
 
@@ -342,20 +409,28 @@ class _Checksum:
         return self.record
 
 
-def _check_chroms(plan: SitePlan, sc: SiteClasses, vchroms: Sequence[str], bed_path: str,
-                  vcf_path: str) -> None:
+def _check_chroms(
+    plan: SitePlan, sc: SiteClasses, vchroms: Sequence[str], bed_path: str, vcf_path: str
+) -> None:
     bed_chroms = list(plan.chroms) or sorted(sc.chroms)
     present = [c for c in bed_chroms if c in set(vchroms)]
     if not present:
         ex_b = ", ".join(bed_chroms[:3])
         ex_v = ", ".join(list(vchroms)[:3]) or "none"
-        raise InputError(f"none of the BED chromosomes ({ex_b} ...) is in the VCF "
-                         f"{vcf_path} (it has {ex_v} ...); "
-                         f"{chrom_mismatch_hint(bed_chroms, vchroms)}", bed_path)
+        raise InputError(
+            f"none of the BED chromosomes ({ex_b} ...) is in the VCF "
+            f"{vcf_path} (it has {ex_v} ...); "
+            f"{chrom_mismatch_hint(bed_chroms, vchroms)}",
+            bed_path,
+        )
     absent = [c for c in bed_chroms if c not in set(vchroms)]
     if absent:
-        log.warning("%d BED chromosome(s) are not in the VCF and are left out: %s%s",
-                    len(absent), ", ".join(absent[:5]), " ..." if len(absent) > 5 else "")
+        log.warning(
+            "%d BED chromosome(s) are not in the VCF and are left out: %s%s",
+            len(absent),
+            ", ".join(absent[:5]),
+            " ..." if len(absent) > 5 else "",
+        )
 
 
 def _renumber(total: RegionCounts, old: Sequence[Block], new: Sequence[Block]) -> RegionCounts:
@@ -369,5 +444,11 @@ def _renumber(total: RegionCounts, old: Sequence[Block], new: Sequence[Block]) -
         a[:, col] = remap[a[:, col]]
         return a[a[:, col] >= 0]
 
-    return RegionCounts({p: fix(r) for p, r in total.rows.items()}, fix(total.callable),
-                        fix(total.removed), total.skipped, total.records, total.chroms)
+    return RegionCounts(
+        {p: fix(r) for p, r in total.rows.items()},
+        fix(total.callable),
+        fix(total.removed),
+        total.skipped,
+        total.records,
+        total.chroms,
+    )

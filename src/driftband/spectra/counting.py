@@ -52,8 +52,14 @@ __all__ = [
     "make_design",
 ]
 
-REASONS = ("no_site_class", "indel_or_symbolic", "multiallelic", "filter", "unpolarisable",
-           "duplicate_position")
+REASONS = (
+    "no_site_class",
+    "indel_or_symbolic",
+    "multiallelic",
+    "filter",
+    "unpolarisable",
+    "duplicate_position",
+)
 _REMOVING = {2: "multiallelic", 3: "filter", 4: "unpolarisable", 5: "duplicate_position"}
 _PLACEHOLDERS = {b"<*>", b"<NON_REF>", b"<X>"}
 _BASES = {b"A", b"C", b"G", b"T"}
@@ -63,6 +69,7 @@ _IS_BASE[[65, 67, 71, 84]] = True
 
 
 # ---------------------------------------------------------------------------- design
+
 
 @dataclass(frozen=True)
 class CountDesign:
@@ -112,14 +119,18 @@ class CountDesign:
             parts.append(self.outgroup_columns)
         used = np.unique(np.concatenate(parts))
         idx = [np.searchsorted(used, c) for c in self.columns]
-        og = None if self.outgroup_columns is None else np.searchsorted(used,
-                                                                        self.outgroup_columns)
+        og = None if self.outgroup_columns is None else np.searchsorted(used, self.outgroup_columns)
         return used, idx, og
 
 
-def make_design(assignment: SampleAssignment, classes: Sequence[str], ancestral: str = "aa",
-                min_dp: int | None = None, min_gq: int | None = None,
-                pass_only: bool = False) -> CountDesign:
+def make_design(
+    assignment: SampleAssignment,
+    classes: Sequence[str],
+    ancestral: str = "aa",
+    min_dp: int | None = None,
+    min_gq: int | None = None,
+    pass_only: bool = False,
+) -> CountDesign:
     """A :class:`CountDesign` from matched samples and options (``ancestral`` may be
     ``"aa"``, ``"fold"`` or ``"outgroup:POP"``)."""
     kind = ancestral.split(":", 1)[0]
@@ -130,12 +141,21 @@ def make_design(assignment: SampleAssignment, classes: Sequence[str], ancestral:
     for name, v in (("--min-dp", min_dp), ("--min-gq", min_gq)):
         if v is not None and v < 0:
             raise OptionError(f"{name} must be >= 0, got {v}")
-    return CountDesign(assignment.populations, assignment.columns, tuple(classes), kind,
-                       assignment.outgroup, assignment.outgroup_columns, min_dp, min_gq,
-                       pass_only)
+    return CountDesign(
+        assignment.populations,
+        assignment.columns,
+        tuple(classes),
+        kind,
+        assignment.outgroup,
+        assignment.outgroup_columns,
+        min_dp,
+        min_gq,
+        pass_only,
+    )
 
 
 # ---------------------------------------------------------------------------- counts
+
 
 def _merge_rows(parts: Sequence[np.ndarray], q: int) -> np.ndarray:
     parts = [p for p in parts if p.size]
@@ -178,15 +198,27 @@ class RegionCounts:
         if not isinstance(other, RegionCounts):
             return NotImplemented
         pops = list(dict.fromkeys([*self.rows, *other.rows]))
-        rows = {p: _merge_rows([self.rows.get(p, np.zeros((0, 5), np.int64)),
-                                other.rows.get(p, np.zeros((0, 5), np.int64))], 4)
-                for p in pops}
+        rows = {
+            p: _merge_rows(
+                [
+                    self.rows.get(p, np.zeros((0, 5), np.int64)),
+                    other.rows.get(p, np.zeros((0, 5), np.int64)),
+                ],
+                4,
+            )
+            for p in pops
+        }
         sk = dict(self.skipped)
         for k, v in other.skipped.items():
             sk[k] = sk.get(k, 0) + v
-        return RegionCounts(rows, _merge_rows([self.callable, other.callable], 2),
-                            _merge_rows([self.removed, other.removed], 2), sk,
-                            self.records + other.records, self.chroms | other.chroms)
+        return RegionCounts(
+            rows,
+            _merge_rows([self.callable, other.callable], 2),
+            _merge_rows([self.removed, other.removed], 2),
+            sk,
+            self.records + other.records,
+            self.chroms | other.chroms,
+        )
 
     def __radd__(self, other: object) -> RegionCounts:
         if other == 0:  # sum() starts from 0
@@ -202,10 +234,14 @@ class RegionCounts:
         for r in parts:
             for k, v in r.skipped.items():
                 sk[k] = sk.get(k, 0) + v
-        return cls({p: _merge_rows([r.rows[p] for r in parts if p in r.rows], 4) for p in pops},
-                   _merge_rows([r.callable for r in parts], 2),
-                   _merge_rows([r.removed for r in parts], 2), sk,
-                   sum(r.records for r in parts), set().union(*(r.chroms for r in parts)))
+        return cls(
+            {p: _merge_rows([r.rows[p] for r in parts if p in r.rows], 4) for p in pops},
+            _merge_rows([r.callable for r in parts], 2),
+            _merge_rows([r.removed for r in parts], 2),
+            sk,
+            sum(r.records for r in parts),
+            set().union(*(r.chroms for r in parts)),
+        )
 
 
 def _classify(ref: bytes, alt: bytes) -> tuple[int, int, int]:
@@ -251,11 +287,15 @@ class _RegionCounter:
         self.W = np.zeros((self.used.size, len(groups)), np.float32)
         for k, ix in enumerate(groups):
             self.W[ix, k] = 1.0
-        runs = [(int(ix[0]), int(ix[-1]) + 1) for ix in groups
-                if ix.size and ix[-1] - ix[0] == ix.size - 1]
+        runs = [
+            (int(ix[0]), int(ix[-1]) + 1)
+            for ix in groups
+            if ix.size and ix[-1] - ix[0] == ix.size - 1
+        ]
         self.slices = runs if len(runs) == len(groups) else None
-        self.fields = tuple(f for f, v in (("DP", design.min_dp), ("GQ", design.min_gq))
-                            if v is not None)
+        self.fields = tuple(
+            f for f, v in (("DP", design.min_dp), ("GQ", design.min_gq)) if v is not None
+        )
         self.kinds: dict[tuple[bytes, bytes], tuple[int, int, int]] = {}
         self.aa_cache: dict[tuple, int] = {}
         self.skip = dict.fromkeys(("no_site_class", "indel_or_symbolic"), 0)
@@ -294,21 +334,22 @@ class _RegionCounter:
         alt_idx = simple_snp.astype(np.int64)
         n_alts = alt_idx.copy()
         hard = np.flatnonzero(kind < 0)
-        if hard.size:   # everything but plain SNPs and monomorphic records: per record
+        if hard.size:  # everything but plain SNPs and monomorphic records: per record
             kinds = self.kinds
             ref, alt = b.ref, b.alt
             for j in hard.tolist():
                 i = int(rows[j])
                 x = kinds.get((ref[i], alt[i])) or kinds.setdefault(
-                    (ref[i], alt[i]), _classify(ref[i], alt[i]))
+                    (ref[i], alt[i]), _classify(ref[i], alt[i])
+                )
                 kind[j], alt_idx[j], n_alts[j] = x
-        status = np.zeros(rows.size, np.int64)   # 0 usable, 1 indel, 2.. removing reasons
+        status = np.zeros(rows.size, np.int64)  # 0 usable, 1 indel, 2.. removing reasons
         status[kind == _OTHER] = 1
         status[kind == _MULTI] = 2
         if self.d.pass_only:
             bad = codes["pass"][rows] == 0
             status[(status == 0) & bad] = 3
-        anc = np.zeros(rows.size, np.int64)       # 0 REF, 1 ALT, 2 other (fixed derived)
+        anc = np.zeros(rows.size, np.int64)  # 0 REF, 1 ALT, 2 other (fixed derived)
         if self.d.ancestral == "aa":
             aa1 = codes["aa1"][rows]
             easy = (status == 0) & (aa1 != 0) & (simple_snp | simple_mono)
@@ -327,8 +368,9 @@ class _RegionCounter:
                     key = (v, ref[i], alt[i])
                     code = cache.get(key)
                     if code is None:
-                        code = cache.setdefault(key, _aa_code(
-                            v, ref[i], alt[i], (int(kind[j]), int(alt_idx[j]), 0)))
+                        code = cache.setdefault(
+                            key, _aa_code(v, ref[i], alt[i], (int(kind[j]), int(alt_idx[j]), 0))
+                        )
                     if code < 0:
                         status[j] = 4
                     else:
@@ -352,16 +394,23 @@ class _RegionCounter:
             self.u_m.append(self._m[np.searchsorted(good, ok)])
             self.u_d.append(self._dd[np.searchsorted(good, ok)])
 
-    def _genotypes(self, b: VariantBatch, rows: np.ndarray, good: np.ndarray,
-                   kind: np.ndarray, info: tuple[np.ndarray, np.ndarray], anc: np.ndarray,
-                   status: np.ndarray) -> None:
+    def _genotypes(
+        self,
+        b: VariantBatch,
+        rows: np.ndarray,
+        good: np.ndarray,
+        kind: np.ndarray,
+        info: tuple[np.ndarray, np.ndarray],
+        anc: np.ndarray,
+        status: np.ndarray,
+    ) -> None:
         snp = kind[good] == _SNP
         fast = None
         if not self.fields and hasattr(b, "allele_counts"):
             fast = b.allele_counts(rows[good], self.used)
         if fast is not None:
             altc, called, ok = fast
-            if not snp.all():   # allele 1 in a monomorphic record: placeholder or error
+            if not snp.all():  # allele 1 in a monomorphic record: placeholder or error
                 ok = ok & (snp | (altc.max(axis=1) == 0))
             if not ok.all():
                 slow = np.flatnonzero(~ok)
@@ -372,9 +421,15 @@ class _RegionCounter:
             altc, called = self._counts(b, rows, good, kind, info, snp)
         self._finish(altc, called, snp, anc[good], good, status)
 
-    def _counts(self, b: VariantBatch, rows: np.ndarray, good: np.ndarray,
-                kind: np.ndarray, info: tuple[np.ndarray, np.ndarray], snp: np.ndarray
-                ) -> tuple[np.ndarray, np.ndarray]:
+    def _counts(
+        self,
+        b: VariantBatch,
+        rows: np.ndarray,
+        good: np.ndarray,
+        kind: np.ndarray,
+        info: tuple[np.ndarray, np.ndarray],
+        snp: np.ndarray,
+    ) -> tuple[np.ndarray, np.ndarray]:
         """Per-sample ALT and called copies through the generic genotype decoder."""
         g = b.genotypes(rows[good], self.used, self.fields)
         a = g.alleles
@@ -384,8 +439,9 @@ class _RegionCounter:
             over = np.any(a.astype(np.int16) > n_alts[:, None, None], axis=(1, 2))
             if over.any():
                 name, ln = b.where(int(rows[good[int(np.flatnonzero(over)[0])]]))
-                raise InputError(f"{name}: a GT allele index exceeds the number of ALT "
-                                 "alleles", b.path, ln)
+                raise InputError(
+                    f"{name}: a GT allele index exceeds the number of ALT alleles", b.path, ln
+                )
         if amax <= 0:
             is_alt = np.zeros(a.shape, bool)
         elif snp.all():
@@ -402,7 +458,7 @@ class _RegionCounter:
         keep = None
         for f, thr in (("DP", self.d.min_dp), ("GQ", self.d.min_gq)):
             if thr is not None:
-                ok = g.fields[f] >= thr        # missing (-1) fails too
+                ok = g.fields[f] >= thr  # missing (-1) fails too
                 keep = ok if keep is None else keep & ok
         if keep is not None:
             k8 = keep.view(np.int8)
@@ -410,19 +466,27 @@ class _RegionCounter:
             altc = altc * k8
         return altc, called
 
-    def _finish(self, altc: np.ndarray, called: np.ndarray, snp: np.ndarray, ga: np.ndarray,
-                good: np.ndarray, status: np.ndarray) -> None:
+    def _finish(
+        self,
+        altc: np.ndarray,
+        called: np.ndarray,
+        snp: np.ndarray,
+        ga: np.ndarray,
+        good: np.ndarray,
+        status: np.ndarray,
+    ) -> None:
         """Per-population called (m) and derived (d) copies of the usable records."""
         r = called.shape[0]
-        if self.slices is not None:     # populations are runs of columns: slice sums
+        if self.slices is not None:  # populations are runs of columns: slice sums
             both = np.empty((2 * r, len(self.slices)), np.int64)
             for k, (a, z) in enumerate(self.slices):
                 both[:r, k] = called[:, a:z].sum(axis=1, dtype=np.int64)
                 both[r:, k] = altc[:, a:z].sum(axis=1, dtype=np.int64)
         else:  # one small matrix product (exact: integers < 2**24)
-            both = np.rint(np.concatenate([called, altc]).astype(np.float32) @ self.W
-                           ).astype(np.int64)
-        m, x = both[:r, :self.npop], both[r:, :self.npop]
+            both = np.rint(np.concatenate([called, altc]).astype(np.float32) @ self.W).astype(
+                np.int64
+            )
+        m, x = both[:r, : self.npop], both[r:, : self.npop]
         if self.d.ancestral == "outgroup":
             mo, xo = both[:r, self.npop], both[r:, self.npop]
             ga = np.where(snp, np.where(xo == 0, 0, 1), 0)
@@ -434,21 +498,26 @@ class _RegionCounter:
     def result(self) -> RegionCounts:
         """The counts of the region (duplicate positions resolved)."""
         npop = len(self.d.populations)
+
         def cat(xs: list[np.ndarray]) -> np.ndarray:
             return np.concatenate(xs).astype(np.int64) if xs else np.zeros(0, np.int64)
 
         u_pos, u_cls, u_blk = cat(self.u_pos), cat(self.u_cls), cat(self.u_blk)
         u_m = np.concatenate(self.u_m) if self.u_m else np.zeros((0, npop), np.int64)
         u_d = np.concatenate(self.u_d) if self.u_d else np.zeros((0, npop), np.int64)
-        r_pos, r_cls, r_blk, r_why = (cat(self.r_pos), cat(self.r_cls), cat(self.r_blk),
-                                      cat(self.r_why))
+        r_pos, r_cls, r_blk, r_why = (
+            cat(self.r_pos),
+            cat(self.r_cls),
+            cat(self.r_blk),
+            cat(self.r_why),
+        )
         allpos = np.concatenate([u_pos, r_pos])
         if allpos.size:
             _, inv, cnt = np.unique(allpos, return_inverse=True, return_counts=True)
             dup = cnt[inv] > 1
         else:
             dup = np.zeros(0, bool)
-        du, dr = dup[:u_pos.size], dup[u_pos.size:]
+        du, dr = dup[: u_pos.size], dup[u_pos.size :]
         r_why = np.where(dr, 5, r_why)
         if du.any():
             r_pos = np.concatenate([r_pos, u_pos[du]])
@@ -463,20 +532,30 @@ class _RegionCounter:
         # each removed position counts once, whatever the number of its records
         if r_pos.size:
             _, first = np.unique(r_pos, return_index=True)
-            removed = aggregate(np.stack([r_cls[first], r_blk[first]], axis=1),
-                                np.ones(first.size, np.int64))
+            removed = aggregate(
+                np.stack([r_cls[first], r_blk[first]], axis=1), np.ones(first.size, np.int64)
+            )
         else:
             removed = np.zeros((0, 3), np.int64)
         rows = {}
         for k, p in enumerate(self.d.populations):
-            rows[p] = aggregate(np.stack([u_cls, u_blk, u_m[:, k], u_d[:, k]], axis=1),
-                                np.ones(u_cls.size, np.int64))
-        return RegionCounts(rows, self.sites.callable_rows(), removed, skipped,
-                            self.records, set(self.chroms))
+            rows[p] = aggregate(
+                np.stack([u_cls, u_blk, u_m[:, k], u_d[:, k]], axis=1),
+                np.ones(u_cls.size, np.int64),
+            )
+        return RegionCounts(
+            rows, self.sites.callable_rows(), removed, skipped, self.records, set(self.chroms)
+        )
 
 
-def count_region(vcf: str | os.PathLike | VcfSource, chrom: str, start: int, end: int,
-                 design: CountDesign, sites: RegionSites) -> RegionCounts:
+def count_region(
+    vcf: str | os.PathLike | VcfSource,
+    chrom: str,
+    start: int,
+    end: int,
+    design: CountDesign,
+    sites: RegionSites,
+) -> RegionCounts:
     """Count the records of one region of an indexed VCF/BCF.
 
     Parameters
@@ -507,8 +586,10 @@ def count_region(vcf: str | os.PathLike | VcfSource, chrom: str, start: int, end
     own = src is not vcf
     try:
         if not src.indexed:
-            raise OptionError(f"{src.path}: counting by region needs an indexed file "
-                              "(bgzip + tabix -p vcf, or bcftools index)")
+            raise OptionError(
+                f"{src.path}: counting by region needs an indexed file "
+                "(bgzip + tabix -p vcf, or bcftools index)"
+            )
         counter = _RegionCounter(design, sites)
         for b in src.fetch(chrom, start, end, design.batch_bytes):
             counter.add(b)
@@ -518,8 +599,13 @@ def count_region(vcf: str | os.PathLike | VcfSource, chrom: str, start: int, end
             src.close()
 
 
-def count_stream(src: VcfSource, design: CountDesign, plan: SitePlan, region_size: int,
-                 progress: Callable[[str, int], None] | None = None) -> RegionCounts:
+def count_stream(
+    src: VcfSource,
+    design: CountDesign,
+    plan: SitePlan,
+    region_size: int,
+    progress: Callable[[str, int], None] | None = None,
+) -> RegionCounts:
     """Count a VCF read as one stream (no index), region by region of the same grid.
 
     Parameters
@@ -565,4 +651,3 @@ def count_stream(src: VcfSource, design: CountDesign, plan: SitePlan, region_siz
         if (c, s // region_size) not in visited and (c in seen or c in src.header.contigs):
             parts.append(_RegionCounter(design, plan.region_sites(c, s, e)).result())
     return RegionCounts.total(parts)
-

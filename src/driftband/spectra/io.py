@@ -66,8 +66,7 @@ SCHEMA = "driftband-spectra"
 SCHEMA_VERSION = 1
 
 
-def add_diversity(pop: PopulationSpectra, neutral: str = "4fold",
-                  selected: str = "0fold") -> None:
+def add_diversity(pop: PopulationSpectra, neutral: str = "4fold", selected: str = "0fold") -> None:
     """Fill ``pop.stats`` with π, θ_W, Tajima's D per class and π_N/π_S."""
     stats: dict[str, Any] = {}
     for name, cs in pop.classes.items():
@@ -97,15 +96,19 @@ def spectra_to_dict(ss: SpectraSet) -> dict[str, Any]:
             },
             "stats": pop.stats,
         }
-    return json_ready({
-        "schema": SCHEMA,
-        "schema_version": SCHEMA_VERSION,
-        "blocks": [{"chrom": b.chrom, "start": b.start, "end": b.end, "name": b.name}
-                   for b in ss.blocks],
-        "populations": pops,
-        "skipped": ss.skipped,
-        "provenance": ss.provenance,
-    })
+    return json_ready(
+        {
+            "schema": SCHEMA,
+            "schema_version": SCHEMA_VERSION,
+            "blocks": [
+                {"chrom": b.chrom, "start": b.start, "end": b.end, "name": b.name}
+                for b in ss.blocks
+            ],
+            "populations": pops,
+            "skipped": ss.skipped,
+            "provenance": ss.provenance,
+        }
+    )
 
 
 def write_spectra_json(ss: SpectraSet, path: str | os.PathLike, force: bool = False) -> None:
@@ -149,34 +152,49 @@ def read_spectra_json(path: str | os.PathLike) -> SpectraSet:
         raise _fail(path, f"not a spectra JSON file ({err})") from None
     check_spectra_schema(doc, path)
     try:
-        blocks = [Block(str(b["chrom"]), int(b["start"]), int(b["end"]), str(b.get("name", "")))
-                  for b in doc.get("blocks", [])]
+        blocks = [
+            Block(str(b["chrom"]), int(b["start"]), int(b["end"]), str(b.get("name", "")))
+            for b in doc.get("blocks", [])
+        ]
         pops: dict[str, PopulationSpectra] = {}
         for name, p in doc["populations"].items():
             n, folded = int(p["n"]), bool(p["folded"])
             m = spectrum_length(n, folded)
             classes = {}
             for c, cd in p["classes"].items():
-                bs = _counts_array(np.asarray(cd.get("block_sfs", [cd["sfs"]]),
-                                              dtype=np.float64))
+                bs = _counts_array(np.asarray(cd.get("block_sfs", [cd["sfs"]]), dtype=np.float64))
                 bsites = np.asarray(cd.get("block_sites", [cd["sites"]]), dtype=np.int64)
                 if bs.ndim != 2 or bs.shape[1] != m:
-                    raise _fail(path, f"population {name!r} class {c!r}: spectra must have "
-                                      f"{m} entries for n={n}{' folded' if folded else ''}")
+                    raise _fail(
+                        path,
+                        f"population {name!r} class {c!r}: spectra must have "
+                        f"{m} entries for n={n}{' folded' if folded else ''}",
+                    )
                 if np.any(bs < 0):
                     raise _fail(path, f"population {name!r} class {c!r}: negative counts")
                 cs = ClassSpectrum(bs, bsites)
-                if "sfs" in cd and not np.allclose(cs.sfs, np.asarray(cd["sfs"], float),
-                                                   rtol=1e-9, atol=1e-6):
-                    raise _fail(path, f"population {name!r} class {c!r}: \"sfs\" is not the "
-                                      "sum of \"block_sfs\"")
+                if "sfs" in cd and not np.allclose(
+                    cs.sfs, np.asarray(cd["sfs"], float), rtol=1e-9, atol=1e-6
+                ):
+                    raise _fail(
+                        path,
+                        f'population {name!r} class {c!r}: "sfs" is not the sum of "block_sfs"',
+                    )
                 if not np.allclose(bs.sum(axis=1), bsites, rtol=1e-9, atol=1e-6):
-                    raise _fail(path, f"population {name!r} class {c!r}: block spectra do not "
-                                      "add up to block_sites")
+                    raise _fail(
+                        path,
+                        f"population {name!r} class {c!r}: block spectra do not "
+                        "add up to block_sites",
+                    )
                 classes[c] = cs
-            pops[name] = PopulationSpectra(name, n, folded, classes,
-                                           str(p.get("polarisation", "given")),
-                                           dict(p.get("stats") or {}))
+            pops[name] = PopulationSpectra(
+                name,
+                n,
+                folded,
+                classes,
+                str(p.get("polarisation", "given")),
+                dict(p.get("stats") or {}),
+            )
     except (KeyError, TypeError, ValueError) as err:
         raise _fail(path, f"malformed spectra file ({type(err).__name__}: {err})") from None
     return SpectraSet(pops, blocks, dict(doc.get("skipped", {})), dict(doc.get("provenance", {})))
@@ -198,12 +216,18 @@ def check_spectra_schema(doc: Any, path: str | os.PathLike | None = None) -> Non
         Not a dict with ``"schema": "driftband-spectra"``, or another ``schema_version``.
     """
     if not isinstance(doc, dict) or doc.get("schema") != SCHEMA:
-        raise _fail(path, f"not a spectra file (expected \"schema\": \"{SCHEMA}\"; make one "
-                          "with 'driftband spectra')")
+        raise _fail(
+            path,
+            f'not a spectra file (expected "schema": "{SCHEMA}"; make one '
+            "with 'driftband spectra')",
+        )
     ver = doc.get("schema_version")
     if ver != SCHEMA_VERSION:
-        raise _fail(path, f"spectra schema version {ver!r} is not supported "
-                          f"(this driftband reads version {SCHEMA_VERSION})")
+        raise _fail(
+            path,
+            f"spectra schema version {ver!r} is not supported "
+            f"(this driftband reads version {SCHEMA_VERSION})",
+        )
 
 
 def read_spectra_tsv(path: str | os.PathLike, folded: bool | None = None) -> SpectraSet:
@@ -265,8 +289,7 @@ def read_spectra_tsv(path: str | os.PathLike, folded: bool | None = None) -> Spe
             else:
                 total = int(float(r[2]))
                 vals = r[3:]
-                counts: dict[int, float] = {k: int(float(x)) for k, x in enumerate(vals)
-                                            if x != ""}
+                counts: dict[int, float] = {k: int(float(x)) for k, x in enumerate(vals) if x != ""}
                 if 0 not in counts:
                     counts[0] = total - sum(counts.values())
                 if any(v < 0 for v in counts.values()):
@@ -290,22 +313,34 @@ def read_spectra_tsv(path: str | os.PathLike, folded: bool | None = None) -> Spe
             arr = np.zeros(length, dtype=np.float64)
             for k, v in counts.items():
                 if k >= length:
-                    raise _fail(path, f"population {pop!r} class {cls!r}: count {k} beyond "
-                                      f"the spectrum length {length}")
+                    raise _fail(
+                        path,
+                        f"population {pop!r} class {cls!r}: count {k} beyond "
+                        f"the spectrum length {length}",
+                    )
                 arr[k] = v
             if not long and len(counts) != length:
-                raise _fail(path, f"population {pop!r} class {cls!r}: {len(counts)} entries, "
-                                  f"others of this population have {length}")
+                raise _fail(
+                    path,
+                    f"population {pop!r} class {cls!r}: {len(counts)} entries, "
+                    f"others of this population have {length}",
+                )
             if (pop, cls) in sites and arr.sum() != sites[(pop, cls)]:
-                raise _fail(path, f"population {pop!r} class {cls!r}: entries add up to "
-                                  f"{arr.sum()}, not to sites={sites[(pop, cls)]}")
+                raise _fail(
+                    path,
+                    f"population {pop!r} class {cls!r}: entries add up to "
+                    f"{arr.sum()}, not to sites={sites[(pop, cls)]}",
+                )
             out[cls] = ClassSpectrum.from_total(_counts_array(arr))
         ps = PopulationSpectra(pop, n, is_folded, out, "fold" if is_folded else "given")
         add_diversity(ps)
         pops[pop] = ps
-    return SpectraSet(pops, [Block("all", 0, 0, "table")], {},
-                      {"source": {"path": os.path.abspath(path), "layout":
-                                  "long" if long else "wide"}})
+    return SpectraSet(
+        pops,
+        [Block("all", 0, 0, "table")],
+        {},
+        {"source": {"path": os.path.abspath(path), "layout": "long" if long else "wide"}},
+    )
 
 
 def read_spectra(path: str | os.PathLike) -> SpectraSet:

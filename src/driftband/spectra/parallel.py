@@ -37,24 +37,32 @@ def _count_task(task: tuple) -> RegionCounts:
     """One region (runs in a worker): ``(vcf, chrom, start, end, design, sites)``."""
     vcf, chrom, start, end, design, sites = task
     if isinstance(vcf, str) and not os.path.exists(vcf):
-        raise InputError(f"VCF file not found on worker host {socket.gethostname()}; on a "
-                         "cluster every worker must see the VCF and its index at the same "
-                         "path (e.g. a shared filesystem)", vcf)
+        raise InputError(
+            f"VCF file not found on worker host {socket.gethostname()}; on a "
+            "cluster every worker must see the VCF and its index at the same "
+            "path (e.g. a shared filesystem)",
+            vcf,
+        )
     return count_region(vcf, chrom, start, end, design, sites)
 
 
 def check_region_size(region_size: int) -> int:
     """``region_size`` if it is a positive whole number of bases (else OptionError)."""
     if isinstance(region_size, bool) or not isinstance(region_size, int) or region_size < 1:
-        raise OptionError(f"--region-size must be a positive number of bases, got "
-                          f"{region_size!r}")
+        raise OptionError(f"--region-size must be a positive number of bases, got {region_size!r}")
     return region_size
 
 
-def count_regions(src: VcfSource, design: CountDesign, plan: SitePlan,
-                  region_size: int = DEFAULT_REGION_SIZE, *, workers: int | None = None,
-                  scheduler: Any = None,
-                  progress: Callable[[int, int, int], None] | None = None) -> RegionCounts:
+def count_regions(
+    src: VcfSource,
+    design: CountDesign,
+    plan: SitePlan,
+    region_size: int = DEFAULT_REGION_SIZE,
+    *,
+    workers: int | None = None,
+    scheduler: Any = None,
+    progress: Callable[[int, int, int], None] | None = None,
+) -> RegionCounts:
     """Count every region task of an indexed VCF/BCF and sum the counts.
 
     Parameters
@@ -85,10 +93,14 @@ def count_regions(src: VcfSource, design: CountDesign, plan: SitePlan,
         workers = min(_parallel.resolve_workers(workers), max(1, len(windows)))
     here = scheduler is None and workers == 1
     vcf: VcfSource | str = src if here else os.path.abspath(src.path)
-    where = ("this process" if here else f"{workers} worker processes" if scheduler is None
-             else "the dask cluster")
-    log.info("counting %d region(s) of <= %s bp on %s", len(windows), f"{region_size:,}",
-             where)
+    where = (
+        "this process"
+        if here
+        else f"{workers} worker processes"
+        if scheduler is None
+        else "the dask cluster"
+    )
+    log.info("counting %d region(s) of <= %s bp on %s", len(windows), f"{region_size:,}", where)
 
     def tasks() -> Iterator[tuple]:
         for c, s, e in windows:
@@ -102,6 +114,13 @@ def count_regions(src: VcfSource, design: CountDesign, plan: SitePlan,
         if progress is not None:
             progress(state["done"], len(windows), state["records"])
 
-    return _parallel.map_reduce(_count_task, tasks(), operator.add, empty=RegionCounts,
-                                workers=workers, scheduler=scheduler, name="region",
-                                on_result=tick)
+    return _parallel.map_reduce(
+        _count_task,
+        tasks(),
+        operator.add,
+        empty=RegionCounts,
+        workers=workers,
+        scheduler=scheduler,
+        name="region",
+        on_result=tick,
+    )

@@ -74,8 +74,9 @@ class RegionSites:
         pos0 = np.asarray(pos0, dtype=np.int64)
         k = np.searchsorted(self.starts, pos0, side="right") - 1
         kk = np.maximum(k, 0)
-        inside = (k >= 0) & (pos0 < self.ends[kk]) if self.starts.size else np.zeros(
-            pos0.shape, bool)
+        inside = (
+            (k >= 0) & (pos0 < self.ends[kk]) if self.starts.size else np.zeros(pos0.shape, bool)
+        )
         if not self.starts.size:
             z = np.zeros(pos0.shape, np.int64)
             return inside, z, z
@@ -109,7 +110,7 @@ def aggregate(keys: np.ndarray, weights: np.ndarray) -> np.ndarray:
     keys = keys.reshape(weights.size, -1)
     lo, hi = keys.min(axis=0), keys.max(axis=0)
     bits = [int(h).bit_length() for h in hi]
-    if lo.min() >= 0 and sum(bits) <= 62:   # pack the key columns into one int64
+    if lo.min() >= 0 and sum(bits) <= 62:  # pack the key columns into one int64
         packed = np.zeros(weights.size, np.int64)
         for j, b in enumerate(bits):
             packed = (packed << b) | keys[:, j]
@@ -175,7 +176,7 @@ class SitePlan:
     def regions(self, size: int, chroms: Iterable[str] | None = None) -> list[tuple[str, int, int]]:
         """Windows ``[k·size, (k+1)·size)`` that hold callable sites, in plan order."""
         out: list[tuple[str, int, int]] = []
-        for c in (self.chroms if chroms is None else chroms):
+        for c in self.chroms if chroms is None else chroms:
             cs = self.chroms.get(c)
             if cs is None or not cs.starts.size:
                 continue
@@ -191,8 +192,11 @@ class SitePlan:
         old = [b for b in range(len(self.blocks)) if self.blocks[b].chrom in set(keep)]
         remap = np.full(len(self.blocks), -1, np.int64)
         remap[old] = np.arange(len(old))
-        chrom_sites = {c: _ChromSites(cs.starts, cs.ends, cs.cls, remap[cs.block])
-                       for c, cs in self.chroms.items() if c in set(keep)}
+        chrom_sites = {
+            c: _ChromSites(cs.starts, cs.ends, cs.cls, remap[cs.block])
+            for c, cs in self.chroms.items()
+            if c in set(keep)
+        }
         return SitePlan(self.classes, [self.blocks[i] for i in old], chrom_sites)
 
 
@@ -209,11 +213,15 @@ def chrom_mismatch_hint(bed_chroms: Iterable[str], vcf_chroms: Iterable[str]) ->
     strip = {c[3:] for c in bed if c.startswith("chr")}
     add = {"chr" + c for c in bed}
     if strip & vcf:
-        return ("the BED names chromosomes with a 'chr' prefix and the VCF without it; "
-                "remove the prefix from the BED (e.g. sed 's/^chr//')")
+        return (
+            "the BED names chromosomes with a 'chr' prefix and the VCF without it; "
+            "remove the prefix from the BED (e.g. sed 's/^chr//')"
+        )
     if add & vcf:
-        return ("the VCF names chromosomes with a 'chr' prefix and the BED without it; "
-                "add the prefix to the BED (e.g. sed 's/^/chr/')")
+        return (
+            "the VCF names chromosomes with a 'chr' prefix and the BED without it; "
+            "add the prefix to the BED (e.g. sed 's/^/chr/')"
+        )
     return "check that the BED and the VCF use the same reference and chromosome names"
 
 
@@ -235,16 +243,18 @@ def read_blocks(path: str | os.PathLike) -> dict[str, list[Block]]:
             if not line.strip() or line.startswith(("#", "track", "browser")):
                 continue
             f = line.rstrip("\r\n").split("\t")
-            out.setdefault(f[0], []).append((int(f[1]), int(f[2]),
-                                             f[3] if len(f) > 3 else "", ln))
+            out.setdefault(f[0], []).append((int(f[1]), int(f[2]), f[3] if len(f) > 3 else "", ln))
     blocks: dict[str, list[Block]] = {}
     for c, rows in out.items():
         rows.sort()
         for (s0, e0, _n0, l0), (s1, e1, _n1, l1) in zip(rows, rows[1:]):
             if s1 < e0:
-                raise InputError(f"blocks overlap: {c}:{s0}-{e0} (line {l0}) and "
-                                 f"{c}:{s1}-{e1} (BED coordinates); blocks must be disjoint",
-                                 path, l1)
+                raise InputError(
+                    f"blocks overlap: {c}:{s0}-{e0} (line {l0}) and "
+                    f"{c}:{s1}-{e1} (BED coordinates); blocks must be disjoint",
+                    path,
+                    l1,
+                )
         blocks[c] = [Block(c, s, e, n) for s, e, n, _ in rows if e > s]
     if not blocks:
         raise InputError("the blocks BED holds no intervals", path)
@@ -274,23 +284,25 @@ def parse_regions(items: Sequence[str]) -> IntervalSet:
             continue
         m = _REGION.match(it)
         if not m:
-            raise OptionError(f"--regions {it!r}: expected CHROM, CHROM:START-END or a BED "
-                              "file")
+            raise OptionError(f"--regions {it!r}: expected CHROM, CHROM:START-END or a BED file")
         c = m.group("chrom")
         s = int(m.group("start").replace(",", "")) - 1 if m.group("start") else 0
         e = int(m.group("end").replace(",", "")) if m.group("end") else big
         if s < 0 or e <= s:
-            raise OptionError(f"--regions {it!r}: START-END must satisfy 1 <= START <= END "
-                              "(1-based, inclusive)")
+            raise OptionError(
+                f"--regions {it!r}: START-END must satisfy 1 <= START <= END (1-based, inclusive)"
+            )
         d = chroms.setdefault(c, ([], []))
         d[0].append(s)
         d[1].append(e)
-    return IntervalSet({c: merge_intervals(np.array(s), np.array(e))
-                        for c, (s, e) in chroms.items()})
+    return IntervalSet(
+        {c: merge_intervals(np.array(s), np.array(e)) for c, (s, e) in chroms.items()}
+    )
 
 
-def _split_windows(s: np.ndarray, e: np.ndarray, size: int
-                   ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+def _split_windows(
+    s: np.ndarray, e: np.ndarray, size: int
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Cut intervals at multiples of ``size``; returns starts, ends and window numbers."""
     first = s // size
     last = (e - 1) // size
@@ -301,10 +313,15 @@ def _split_windows(s: np.ndarray, e: np.ndarray, size: int
     return ss, ee, w
 
 
-def make_plan(classes: SiteClasses, chrom_order: Sequence[str],
-              mask: IntervalSet | None = None, regions: IntervalSet | None = None,
-              block_size: int = 100_000, blocks: dict[str, list[Block]] | None = None,
-              contig_lengths: dict[str, int] | None = None) -> SitePlan:
+def make_plan(
+    classes: SiteClasses,
+    chrom_order: Sequence[str],
+    mask: IntervalSet | None = None,
+    regions: IntervalSet | None = None,
+    block_size: int = 100_000,
+    blocks: dict[str, list[Block]] | None = None,
+    contig_lengths: dict[str, int] | None = None,
+) -> SitePlan:
     """Intersect classes with the mask and regions and cut them into blocks.
 
     Parameters

@@ -83,8 +83,7 @@ def _projection_band(m: int, n: int, d: np.ndarray) -> tuple[np.ndarray, np.ndar
     j = d - q + t
     ok = (j >= 0) & (j <= n)
     jc = np.clip(j, 0, n)
-    logp = (lf[d] + lf[m - d] - lf[jc] - lf[n - jc] - lf[q - t] - lf[t]
-            - (lf[m] - lf[n] - lf[q]))
+    logp = lf[d] + lf[m - d] - lf[jc] - lf[n - jc] - lf[q - t] - lf[t] - (lf[m] - lf[n] - lf[q])
     return j, np.where(ok, np.exp(np.where(ok, logp, 0.0)), 0.0)
 
 
@@ -96,13 +95,21 @@ def _projection_rows(m: int, n: int, d: np.ndarray) -> np.ndarray:
     ok = (j <= d) & (n - j <= m - d)
     jj = np.minimum(j, d)
     kk = np.clip(n - j, 0, m - d)
-    logp = (lf[d] - lf[jj] - lf[d - jj] + lf[m - d] - lf[kk] - lf[m - d - kk]
-            - (lf[m] - lf[n] - lf[m - n]))
+    logp = (
+        lf[d]
+        - lf[jj]
+        - lf[d - jj]
+        + lf[m - d]
+        - lf[kk]
+        - lf[m - d - kk]
+        - (lf[m] - lf[n] - lf[m - n])
+    )
     return np.where(ok, np.exp(np.where(ok, logp, 0.0)), 0.0)
 
 
-def choose_sample_size(m: np.ndarray, weights: np.ndarray,
-                       keep: float = DEFAULT_KEEP_FRACTION) -> int:
+def choose_sample_size(
+    m: np.ndarray, weights: np.ndarray, keep: float = DEFAULT_KEEP_FRACTION
+) -> int:
     """The default projection: the largest ``n`` kept by at least ``keep`` of the sites.
 
     Parameters
@@ -133,15 +140,19 @@ def choose_sample_size(m: np.ndarray, weights: np.ndarray,
 def _fold(sfs: np.ndarray, n: int) -> np.ndarray:
     """Fold spectra (rows) of ``n`` copies: entry j + entry n - j, middle entry once."""
     h = n // 2
-    out = sfs[:, :h + 1] + sfs[:, ::-1][:, :h + 1]
+    out = sfs[:, : h + 1] + sfs[:, ::-1][:, : h + 1]
     if n % 2 == 0:
         out[:, h] = sfs[:, h]
     return out
 
 
-def spectra_from_counts(counts: RegionCounts, design: CountDesign, blocks: Sequence[Block],
-                        project: int | Mapping[str, int] | None = None,
-                        keep: float = DEFAULT_KEEP_FRACTION) -> SpectraSet:
+def spectra_from_counts(
+    counts: RegionCounts,
+    design: CountDesign,
+    blocks: Sequence[Block],
+    project: int | Mapping[str, int] | None = None,
+    keep: float = DEFAULT_KEEP_FRACTION,
+) -> SpectraSet:
     """Assemble spectra from summed counts: choose ``n``, project, fill entry 0, fold.
 
     Parameters
@@ -180,8 +191,10 @@ def spectra_from_counts(counts: RegionCounts, design: CountDesign, blocks: Seque
     default = project if isinstance(project, int) else per.pop("*", None)
     for p in per:
         if p not in design.populations:
-            raise OptionError(f"--project {p}={per[p]}: {p!r} is not a focal population "
-                              f"({', '.join(design.populations)})")
+            raise OptionError(
+                f"--project {p}={per[p]}: {p!r} is not a focal population "
+                f"({', '.join(design.populations)})"
+            )
     skipped = dict(counts.skipped)
     pops: dict[str, PopulationSpectra] = {}
     folded = design.ancestral == "fold"
@@ -192,29 +205,40 @@ def spectra_from_counts(counts: RegionCounts, design: CountDesign, blocks: Seque
         mmax = int(m.max()) if m.size else 0
         if n is None:
             if not w.sum():
-                raise InputError(f"population {p!r}: no usable record at callable class "
-                                 "sites; give the sample size with --project",
-                                 None)
+                raise InputError(
+                    f"population {p!r}: no usable record at callable class "
+                    "sites; give the sample size with --project",
+                    None,
+                )
             n = choose_sample_size(m, w, keep)
             if n < 2:
-                raise InputError(f"population {p!r}: too much missing data (the default "
-                                 f"rule gives n={n} gene copies); lower it with --project "
-                                 "or filter samples", None)
+                raise InputError(
+                    f"population {p!r}: too much missing data (the default "
+                    f"rule gives n={n} gene copies); lower it with --project "
+                    "or filter samples",
+                    None,
+                )
         else:
             if n < 2:
                 raise OptionError(f"--project {p}={n}: a spectrum needs n >= 2 gene copies")
             if m.size and n > mmax:
-                raise OptionError(f"--project {p}={n}: at most {mmax} gene copies are called "
-                                  f"at any site of population {p!r}")
+                raise OptionError(
+                    f"--project {p}={n}: at most {mmax} gene copies are called "
+                    f"at any site of population {p!r}"
+                )
         kept = m >= n
         dropped = np.bincount(tgt[~kept], weights=w[~kept], minlength=C * B).astype(np.int64)
         counted = np.bincount(tgt[kept], weights=w[kept], minlength=C * B).astype(np.int64)
         sites = L - R - dropped
         skipped[f"missing_data:{p}"] = int(dropped.sum())
         exact = kept & (m == n)
-        S: np.ndarray = np.bincount(tgt[exact] * (n + 1) + d[exact], weights=w[exact],
-                                    minlength=C * B * (n + 1)
-                                    ).astype(np.int64).reshape(C * B, n + 1)
+        S: np.ndarray = (
+            np.bincount(
+                tgt[exact] * (n + 1) + d[exact], weights=w[exact], minlength=C * B * (n + 1)
+            )
+            .astype(np.int64)
+            .reshape(C * B, n + 1)
+        )
         proj = kept & (m > n)
         if proj.any():
             Sf = S.astype(np.float64)
@@ -224,8 +248,7 @@ def spectra_from_counts(counts: RegionCounts, design: CountDesign, blocks: Seque
                 j, prob = _projection_band(mm, n, d[sel])
                 idx = tgt[sel, None] * (n + 1) + j
                 ok = (j >= 0) & (j <= n)
-                flat += np.bincount(idx[ok], weights=(prob * w[sel, None])[ok],
-                                    minlength=flat.size)
+                flat += np.bincount(idx[ok], weights=(prob * w[sel, None])[ok], minlength=flat.size)
             S = Sf
         S[:, 0] += sites - counted
         if np.any(S[:, 0] < -1e-6):
@@ -236,14 +259,16 @@ def spectra_from_counts(counts: RegionCounts, design: CountDesign, blocks: Seque
             S = _fold(S, n)
         classes = {}
         for ci, c in enumerate(design.classes):
-            cs = ClassSpectrum(S[ci * B:(ci + 1) * B], sites[ci * B:(ci + 1) * B])
+            cs = ClassSpectrum(S[ci * B : (ci + 1) * B], sites[ci * B : (ci + 1) * B])
             if cs.sites <= 0:
-                raise InputError(f"class {c!r} has no callable sites left in population "
-                                 f"{p!r} after filtering (mask, FILTER, missing data with "
-                                 f"n={n}); check the inputs or lower --project", None)
+                raise InputError(
+                    f"class {c!r} has no callable sites left in population "
+                    f"{p!r} after filtering (mask, FILTER, missing data with "
+                    f"n={n}); check the inputs or lower --project",
+                    None,
+                )
             classes[c] = cs
         ps = PopulationSpectra(p, int(n), folded, classes, design.polarisation)
         add_diversity(ps)
         pops[p] = ps
     return SpectraSet(pops, list(blocks), skipped, {})
-

@@ -28,18 +28,24 @@ def summary_lines(ss: SpectraSet) -> list[str]:
     sk = ss.skipped
     if sk:
         out.append("skipped records: " + ", ".join(f"{k} {v:,}" for k, v in sk.items()))
-    hdr = f"{'population':<14} {'class':<8} {'n':>5} {'sites':>12} {'segregating':>11} " \
-          f"{'pi':>10} {'theta_W':>10} {'Tajima_D':>9}"
+    hdr = (
+        f"{'population':<14} {'class':<8} {'n':>5} {'sites':>12} {'segregating':>11} "
+        f"{'pi':>10} {'theta_W':>10} {'Tajima_D':>9}"
+    )
     out.append(hdr)
     for name, pop in ss.populations.items():
         for c, cs in pop.classes.items():
             st = pop.stats.get(c, {})
-            out.append(f"{name:<14} {c:<8} {pop.n:>5} {cs.sites:>12,} "
-                       f"{_fmt(st.get('segregating'), 0):>11} {_fmt(st.get('pi')):>10} "
-                       f"{_fmt(st.get('theta_w')):>10} {_fmt(st.get('tajimas_d'), 3):>9}")
+            out.append(
+                f"{name:<14} {c:<8} {pop.n:>5} {cs.sites:>12,} "
+                f"{_fmt(st.get('segregating'), 0):>11} {_fmt(st.get('pi')):>10} "
+                f"{_fmt(st.get('theta_w')):>10} {_fmt(st.get('tajimas_d'), 3):>9}"
+            )
         r = pop.stats.get("piN_piS")
-        out.append(f"{name:<14} piN/piS = {_fmt(r, 4)}"
-                   + ("" if r is not None else " (needs classes 0fold and 4fold)"))
+        out.append(
+            f"{name:<14} piN/piS = {_fmt(r, 4)}"
+            + ("" if r is not None else " (needs classes 0fold and 4fold)")
+        )
     return out
 
 

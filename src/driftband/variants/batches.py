@@ -22,8 +22,15 @@ from ..exceptions import VcfFormatError
 from .decode import upper_codes
 from .streams import quiet_htslib
 
-__all__ = ["GenotypeData", "RecordBatch", "RecordParseError", "VariantBatch",
-           "bcf_batches", "pysam_parse", "records_genotypes"]
+__all__ = [
+    "GenotypeData",
+    "RecordBatch",
+    "RecordParseError",
+    "VariantBatch",
+    "bcf_batches",
+    "pysam_parse",
+    "records_genotypes",
+]
 
 
 @dataclass
@@ -96,11 +103,16 @@ class VariantBatch:
         one = [a if len(a) == 1 else b"\0" for a in self.alt]
         alt1 = np.frombuffer(b"".join(one), np.uint8) if one else np.zeros(0, np.uint8)
         passed = np.array([f in (b"PASS", b".") for f in self.filt], np.int8)
-        return {"ref1": upper_codes(ref1), "alt1": upper_codes(alt1), "pass": passed,
-                "aa1": np.zeros(len(self), np.uint8)}
+        return {
+            "ref1": upper_codes(ref1),
+            "alt1": upper_codes(alt1),
+            "pass": passed,
+            "aa1": np.zeros(len(self), np.uint8),
+        }
 
-    def genotypes(self, rows: np.ndarray, cols: np.ndarray, fields: Sequence[str] = (),
-                  fast: bool = True) -> GenotypeData:
+    def genotypes(
+        self, rows: np.ndarray, cols: np.ndarray, fields: Sequence[str] = (), fast: bool = True
+    ) -> GenotypeData:
         """Decode the genotypes of some records.
 
         Parameters
@@ -119,14 +131,16 @@ class VariantBatch:
 
 # ---------------------------------------------------------------------------- pysam
 
+
 def _gt_tuple_to_row(gt: tuple[int | None, ...], width: int, out: np.ndarray) -> None:
     out[:] = -2
     for k, a in enumerate(gt[:width]):
         out[k] = -1 if a is None else a
 
 
-def records_genotypes(records: Sequence[Any], cols: np.ndarray, fields: Sequence[str],
-                      names: Sequence[str]) -> tuple[np.ndarray, dict[str, np.ndarray]]:
+def records_genotypes(
+    records: Sequence[Any], cols: np.ndarray, fields: Sequence[str], names: Sequence[str]
+) -> tuple[np.ndarray, dict[str, np.ndarray]]:
     """Genotypes of pysam records (the fallback, and the BCF path).
 
     Returns ``alleles`` (r, s, p) int8 as in :class:`GenotypeData` and the integer
@@ -143,16 +157,22 @@ def records_genotypes(records: Sequence[Any], cols: np.ndarray, fields: Sequence
     vals = {f: np.full((r, s), -1, np.int32) for f in fields}
     for i, rec in enumerate(records):
         if "GT" not in rec.format:
-            raise VcfFormatError(f"record {rec.chrom}:{rec.pos} has no GT field "
-                                 f"(FORMAT {':'.join(rec.format.keys()) or '.'})", names[0])
+            raise VcfFormatError(
+                f"record {rec.chrom}:{rec.pos} has no GT field "
+                f"(FORMAT {':'.join(rec.format.keys()) or '.'})",
+                names[0],
+            )
         smp = rec.samples
         row = []
         for j, c in enumerate(cols.tolist()):
             call = smp[c]
             gt = call["GT"]
             if gt == () and list(rec.format.keys())[0] != "GT":
-                raise VcfFormatError(f"record {rec.chrom}:{rec.pos}: GT must be the first "
-                                     "FORMAT key (VCF specification)", names[0])
+                raise VcfFormatError(
+                    f"record {rec.chrom}:{rec.pos}: GT must be the first "
+                    "FORMAT key (VCF specification)",
+                    names[0],
+                )
             row.append(gt)
             ploidy = max(ploidy, len(gt))
             for f in fields:
@@ -243,14 +263,14 @@ class RecordBatch(VariantBatch):
             out.append(None if v is None else str(v).encode())
         return out
 
-    def genotypes(self, rows: np.ndarray, cols: np.ndarray, fields: Sequence[str] = (),
-                  fast: bool = True) -> GenotypeData:
+    def genotypes(
+        self, rows: np.ndarray, cols: np.ndarray, fields: Sequence[str] = (), fast: bool = True
+    ) -> GenotypeData:
         """Decode the genotypes of some records with pysam (see
         :meth:`VariantBatch.genotypes`; ``fast`` has no effect here)."""
         rows = np.asarray(rows, dtype=np.int64)
         recs = [self._records[i] for i in rows.tolist()]
-        alleles, vals = records_genotypes(recs, np.asarray(cols, np.int64), fields,
-                                          [self.path])
+        alleles, vals = records_genotypes(recs, np.asarray(cols, np.int64), fields, [self.path])
         return GenotypeData(alleles, vals, np.zeros(rows.size, bool))
 
 
@@ -278,8 +298,9 @@ def bcf_batches(it: Iterator[Any], path: str, n: int = 2000) -> Iterator[RecordB
             except StopIteration:
                 ended = True
             except OSError as err:
-                raise VcfFormatError(f"cannot read the BCF ({err}); truncated or corrupt?",
-                                     path) from None
+                raise VcfFormatError(
+                    f"cannot read the BCF ({err}); truncated or corrupt?", path
+                ) from None
         if recs:
             yield RecordBatch(recs, path)
         if ended:

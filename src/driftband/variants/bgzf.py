@@ -21,8 +21,7 @@ from .streams import quiet_htslib
 if TYPE_CHECKING:
     import ctypes
 
-__all__ = ["BGZF_EOF", "DeflateBGZF", "Libdeflate", "QuietBGZFile", "check_bgzf_eof",
-           "open_bgzf"]
+__all__ = ["BGZF_EOF", "DeflateBGZF", "Libdeflate", "QuietBGZFile", "check_bgzf_eof", "open_bgzf"]
 
 BGZF_EOF = bytes.fromhex("1f8b08040000000000ff0600424302001b0003000000000000000000")
 
@@ -41,8 +40,11 @@ def check_bgzf_eof(path: str) -> None:
         fh.seek(max(0, size - len(BGZF_EOF)))
         tail = fh.read()
     if tail != BGZF_EOF:
-        raise VcfFormatError("the file is truncated (no BGZF end-of-file block); was it "
-                             "copied or written completely?", path)
+        raise VcfFormatError(
+            "the file is truncated (no BGZF end-of-file block); was it "
+            "copied or written completely?",
+            path,
+        )
 
 
 class Libdeflate:
@@ -66,11 +68,15 @@ class Libdeflate:
                 lib = ctypes.CDLL(name or "libdeflate.so.0")
                 lib.libdeflate_alloc_decompressor.restype = ctypes.c_void_p
                 lib.libdeflate_deflate_decompress.argtypes = [
-                    ctypes.c_void_p, ctypes.c_void_p, ctypes.c_size_t, ctypes.c_void_p,
-                    ctypes.c_size_t, ctypes.POINTER(ctypes.c_size_t)]
+                    ctypes.c_void_p,
+                    ctypes.c_void_p,
+                    ctypes.c_size_t,
+                    ctypes.c_void_p,
+                    ctypes.c_size_t,
+                    ctypes.POINTER(ctypes.c_size_t),
+                ]
                 lib.libdeflate_deflate_decompress.restype = ctypes.c_int
-                lib.libdeflate_crc32.argtypes = [ctypes.c_uint32, ctypes.c_void_p,
-                                                 ctypes.c_size_t]
+                lib.libdeflate_crc32.argtypes = [ctypes.c_uint32, ctypes.c_void_p, ctypes.c_size_t]
                 lib.libdeflate_crc32.restype = ctypes.c_uint32
                 cls._lib = (lib, lib.libdeflate_alloc_decompressor())
             except (OSError, AttributeError):
@@ -109,22 +115,24 @@ class DeflateBGZF:
         off, total = 0, 0
         cb = self._cbuf
         while total < want:
-            if len(cb) - off < 18 or len(cb) - off < int.from_bytes(cb[off + 16:off + 18],
-                                                                    "little") + 1:
+            if (
+                len(cb) - off < 18
+                or len(cb) - off < int.from_bytes(cb[off + 16 : off + 18], "little") + 1
+            ):
                 more = self._fh.read(max(1 << 20, want // 2))
                 if not more:
                     if off < len(cb):
                         raise OSError("truncated BGZF block")
                     break
-                cb = cb + more   # keep the offsets of the blocks found so far
+                cb = cb + more  # keep the offsets of the blocks found so far
                 self._cbuf = cb
                 continue
-            if cb[off:off + 4] != b"\x1f\x8b\x08\x04" or cb[off + 12:off + 14] != b"BC":
+            if cb[off : off + 4] != b"\x1f\x8b\x08\x04" or cb[off + 12 : off + 14] != b"BC":
                 raise OSError("not a BGZF block")
-            xlen = int.from_bytes(cb[off + 10:off + 12], "little")
-            bsize = int.from_bytes(cb[off + 16:off + 18], "little") + 1
-            crc = int.from_bytes(cb[off + bsize - 8:off + bsize - 4], "little")
-            isize = int.from_bytes(cb[off + bsize - 4:off + bsize], "little")
+            xlen = int.from_bytes(cb[off + 10 : off + 12], "little")
+            bsize = int.from_bytes(cb[off + 16 : off + 18], "little") + 1
+            crc = int.from_bytes(cb[off + bsize - 8 : off + bsize - 4], "little")
+            isize = int.from_bytes(cb[off + bsize - 4 : off + bsize], "little")
             out.append((off + 12 + xlen, bsize - 20 - xlen, isize, crc))
             total += isize
             off += bsize
@@ -146,24 +154,26 @@ class DeflateBGZF:
             return b""
         total = sum(b[2] for b in blocks)
         out = bytearray(total)
-        dst = ctypes.addressof((ctypes.c_char * max(total, 1)).from_buffer(out)) if total \
-            else 0
+        dst = ctypes.addressof((ctypes.c_char * max(total, 1)).from_buffer(out)) if total else 0
         src = cast(int, ctypes.cast(ctypes.c_char_p(self._cbuf), ctypes.c_void_p).value)
         got = ctypes.c_size_t()
         pos = 0
         for off, clen, isize, crc in blocks:
             if isize:
-                r = self._lib.libdeflate_deflate_decompress(self._dec, src + off, clen,
-                                                            dst + pos, isize,
-                                                            ctypes.byref(got))
-                if r != 0 or got.value != isize or \
-                        self._lib.libdeflate_crc32(0, dst + pos, isize) != crc:
+                r = self._lib.libdeflate_deflate_decompress(
+                    self._dec, src + off, clen, dst + pos, isize, ctypes.byref(got)
+                )
+                if (
+                    r != 0
+                    or got.value != isize
+                    or self._lib.libdeflate_crc32(0, dst + pos, isize) != crc
+                ):
                     raise OSError("corrupt BGZF block (inflate or CRC check failed)")
             pos += isize
-        self._cbuf = self._cbuf[self._consumed:]
+        self._cbuf = self._cbuf[self._consumed :]
         data = bytes(out)
         if self._skip:
-            data, self._skip = data[self._skip:], 0
+            data, self._skip = data[self._skip :], 0
         return data
 
     def close(self) -> None:

@@ -18,21 +18,28 @@ from typing import cast
 
 import numpy as np
 
-__all__ = ["count_gt_alleles", "decode_gt", "decode_int", "parse_pos", "parse_uint",
-           "scan_uint", "upper_codes"]
+__all__ = [
+    "count_gt_alleles",
+    "decode_gt",
+    "decode_int",
+    "parse_pos",
+    "parse_uint",
+    "scan_uint",
+    "upper_codes",
+]
 
-_LUT_ALLELE = np.full(256, -100, np.int8)   # digit -> allele index, '.' -> -1
+_LUT_ALLELE = np.full(256, -100, np.int8)  # digit -> allele index, '.' -> -1
 _LUT_ALLELE[48:58] = np.arange(10)
 _LUT_ALLELE[46] = -1
-_LUT_END = np.zeros(256, bool)              # bytes that end a subfield
+_LUT_END = np.zeros(256, bool)  # bytes that end a subfield
 _LUT_END[[58, 9, 10, 0]] = True
 
 
-_LUT_COUNT = np.zeros(256, np.uint8)       # bit 0: allele 1, bit 1: called 0/1, bit 2: valid
+_LUT_COUNT = np.zeros(256, np.uint8)  # bit 0: allele 1, bit 1: called 0/1, bit 2: valid
 _LUT_COUNT[48] = 6
 _LUT_COUNT[49] = 7
 _LUT_COUNT[46] = 4
-_LUT_SEP = np.full(256, 2, np.int8)        # 0: '/' or '|', 1: end of the GT subfield
+_LUT_SEP = np.full(256, 2, np.int8)  # 0: '/' or '|', 1: end of the GT subfield
 _LUT_SEP[[47, 124]] = 0
 _LUT_SEP[[58, 9, 10, 0]] = 1
 
@@ -42,8 +49,9 @@ def upper_codes(c: np.ndarray) -> np.ndarray:
     return np.where((c >= 97) & (c <= 122), c - 32, c).astype(np.uint8)
 
 
-def decode_gt(buf: np.ndarray, p: np.ndarray, e: np.ndarray
-              ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+def decode_gt(
+    buf: np.ndarray, p: np.ndarray, e: np.ndarray
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Vectorised GT decoding of sample fields ``buf[p:e]`` (GT first), shape (r, s).
 
     Handles haploid and diploid calls with single-digit allele indices and ``.``; returns
@@ -51,7 +59,7 @@ def decode_gt(buf: np.ndarray, p: np.ndarray, e: np.ndarray
     ``hap`` (r, s) bool, True where the GT has one character (haploid or ``.``).
     """
     a0 = _LUT_ALLELE.take(buf.take(p))
-    sep = _LUT_SEP.take(buf[1:].take(p))      # shifted views: no index arithmetic
+    sep = _LUT_SEP.take(buf[1:].take(p))  # shifted views: no index arithmetic
     a2 = _LUT_ALLELE.take(buf[2:].take(p))
     hap = sep == 1
     ok = (a0 > -100) & (hap | ((sep == 0) & _LUT_END.take(buf[3:].take(p)) & (a2 > -100)))
@@ -61,8 +69,7 @@ def decode_gt(buf: np.ndarray, p: np.ndarray, e: np.ndarray
     return alleles, ok.all(axis=1), hap
 
 
-def count_gt_alleles(buf: np.ndarray, t: np.ndarray
-                     ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+def count_gt_alleles(buf: np.ndarray, t: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Copies of allele 1 and called copies (alleles 0 or 1) of the GTs after the tabs
     ``t`` (r, s) (sample fields that start with GT).
 
@@ -102,8 +109,9 @@ def parse_uint(buf: np.ndarray, s: np.ndarray, w: np.ndarray) -> tuple[np.ndarra
     return val, good
 
 
-def scan_uint(buf: np.ndarray, s: np.ndarray, e: np.ndarray
-              ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+def scan_uint(
+    buf: np.ndarray, s: np.ndarray, e: np.ndarray
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Read the unsigned integer subfields starting at ``s`` (sample fields end at ``e``).
 
     Digits are read up to the next non-digit, which must end the subfield (':', tab or
@@ -116,14 +124,21 @@ def scan_uint(buf: np.ndarray, s: np.ndarray, e: np.ndarray
     d0, d1, d2 = b0 - np.uint8(48), b1 - np.uint8(48), b2 - np.uint8(48)
     D0, D1, D2 = d0 <= 9, d1 <= 9, d2 <= 9
     if not np.any(D0 & D1 & D2 & (b3 - np.uint8(48) <= 9)):
-        w = (D0.view(np.uint8) * (1 + D1.view(np.uint8) * (1 + D2.view(np.uint8))))
-        v16 = np.where(w == 3, d0.astype(np.int16) * 100 + d1.astype(np.int16) * 10 + d2,
-                       np.where(w == 2, d0.astype(np.int16) * 10 + d1, d0))
+        w = D0.view(np.uint8) * (1 + D1.view(np.uint8) * (1 + D2.view(np.uint8)))
+        v16 = np.where(
+            w == 3,
+            d0.astype(np.int16) * 100 + d1.astype(np.int16) * 10 + d2,
+            np.where(w == 2, d0.astype(np.int16) * 10 + d1, d0),
+        )
         dot = present & (w == 0) & (b0 == 46)
-        wd = w + dot.view(np.uint8)                 # '.' takes one character
-        end = np.where(wd == 0, _LUT_END.take(b0),
-                       np.where(wd == 1, _LUT_END.take(b1),
-                                np.where(wd == 2, _LUT_END.take(b2), _LUT_END.take(b3))))
+        wd = w + dot.view(np.uint8)  # '.' takes one character
+        end = np.where(
+            wd == 0,
+            _LUT_END.take(b0),
+            np.where(
+                wd == 1, _LUT_END.take(b1), np.where(wd == 2, _LUT_END.take(b2), _LUT_END.take(b3))
+            ),
+        )
         good = end | ~present
         val = np.where(present & (w > 0), v16, -1).astype(np.int32)
         return val, wd.astype(np.int64), good
@@ -150,9 +165,16 @@ def scan_uint(buf: np.ndarray, s: np.ndarray, e: np.ndarray
     return val, w, good
 
 
-def decode_int(buf: np.ndarray, p: np.ndarray, e: np.ndarray, k: int, nkeys: int,
-               base: np.ndarray | None, colpos: np.ndarray, cc_fn: Callable[[], np.ndarray]
-               ) -> tuple[np.ndarray, np.ndarray]:
+def decode_int(
+    buf: np.ndarray,
+    p: np.ndarray,
+    e: np.ndarray,
+    k: int,
+    nkeys: int,
+    base: np.ndarray | None,
+    colpos: np.ndarray,
+    cc_fn: Callable[[], np.ndarray],
+) -> tuple[np.ndarray, np.ndarray]:
     """Vectorised decoding of the integer subfield ``k`` (0-based) of sample fields.
 
     ``p``/``e`` are the starts/ends of the sample fields (r, s); ``colpos`` the positions

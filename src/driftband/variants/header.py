@@ -57,8 +57,9 @@ def parse_header(text: str, path: str) -> VcfHeader:
     """
     lines = text.splitlines()
     if not lines or not lines[0].startswith("##fileformat=VCF"):
-        raise VcfFormatError("not a VCF file (the first line must be ##fileformat=VCFv4.x)",
-                             path, 1)
+        raise VcfFormatError(
+            "not a VCF file (the first line must be ##fileformat=VCFv4.x)", path, 1
+        )
     contigs: list[str] = []
     lengths: dict[str, int] = {}
     info: set[str] = set()
@@ -83,15 +84,20 @@ def parse_header(text: str, path: str) -> VcfHeader:
         elif line.startswith("#CHROM"):
             chrom_line = (ln, line)
         elif not line.startswith("##"):
-            raise VcfFormatError("header line does not start with ## (or the #CHROM line "
-                                 "is missing)", path, ln)
+            raise VcfFormatError(
+                "header line does not start with ## (or the #CHROM line is missing)", path, ln
+            )
     if chrom_line is None:
         raise VcfFormatError("no #CHROM header line (truncated file, or not a VCF)", path)
     ln, line = chrom_line
     cols = line.rstrip("\r").split("\t")
     if len(cols) < 10 or cols[8] != "FORMAT":
-        raise VcfFormatError("the VCF has no sample columns (a FORMAT column and at least "
-                             "one sample are needed for spectra)", path, ln)
+        raise VcfFormatError(
+            "the VCF has no sample columns (a FORMAT column and at least "
+            "one sample are needed for spectra)",
+            path,
+            ln,
+        )
     return VcfHeader(cols[9:], contigs, lengths, info, formats, text, len(lines))
 
 
@@ -116,25 +122,28 @@ def read_header(fh: ByteReader, path: str, chunk: int) -> tuple[VcfHeader, bytes
         if k >= 0:
             e = buf.find(b"\n", k + 1)
             if e >= 0:
-                text = buf[:e + 1]
+                text = buf[: e + 1]
                 try:
                     header = parse_header(text.decode("utf-8"), path)
                 except UnicodeDecodeError:
-                    raise VcfFormatError("the header is not UTF-8 text (not a VCF?)",
-                                         path) from None
-                return header, buf[e + 1:]
+                    raise VcfFormatError(
+                        "the header is not UTF-8 text (not a VCF?)", path
+                    ) from None
+                return header, buf[e + 1 :]
         more = read_bytes(fh, chunk, path)
         if not more:
             if not buf:
                 raise VcfFormatError("empty file (no VCF header)", path)
             if not buf.startswith(b"##fileformat=VCF"):
-                raise VcfFormatError("not a VCF file (the first line must be "
-                                     "##fileformat=VCFv4.x)", path, 1)
+                raise VcfFormatError(
+                    "not a VCF file (the first line must be ##fileformat=VCFv4.x)", path, 1
+                )
             raise VcfFormatError("no #CHROM header line (truncated file, or not a VCF)", path)
         buf += more
         if len(buf) >= 16 and not buf.startswith(b"##"):
-            raise VcfFormatError("not a VCF file (the first line must be "
-                                 "##fileformat=VCFv4.x)", path, 1)
+            raise VcfFormatError(
+                "not a VCF file (the first line must be ##fileformat=VCFv4.x)", path, 1
+            )
 
 
 def header_from_pysam(h: pysam.VariantHeader, path: str) -> VcfHeader:
@@ -154,5 +163,6 @@ def header_from_pysam(h: pysam.VariantHeader, path: str) -> VcfHeader:
     for c in contigs:
         if n := h.contigs[c].length:
             lengths[c] = n
-    return VcfHeader(samples, contigs, lengths, set(h.info.keys()), set(h.formats.keys()),
-                     text, text.count("\n"))
+    return VcfHeader(
+        samples, contigs, lengths, set(h.info.keys()), set(h.formats.keys()), text, text.count("\n")
+    )

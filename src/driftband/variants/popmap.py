@@ -83,8 +83,9 @@ def read_popmap(path: str | os.PathLike) -> Popmap:
     except FileNotFoundError:
         raise InputError("popmap file not found", p) from None
     except UnicodeDecodeError:
-        raise InputError("popmap is not a UTF-8 text file (expected sample<TAB>population "
-                         "lines)", p) from None
+        raise InputError(
+            "popmap is not a UTF-8 text file (expected sample<TAB>population lines)", p
+        ) from None
     samples: dict[str, str] = {}
     lines: dict[str, int] = {}
     first = True
@@ -104,13 +105,16 @@ def read_popmap(path: str | os.PathLike) -> Popmap:
                 continue
         s, pop = cols[0], cols[1]
         if s in samples:
-            raise InputError(f"sample {s!r} is listed twice (also on line {lines[s]}); "
-                             "each sample may belong to one population only", p, ln)
+            raise InputError(
+                f"sample {s!r} is listed twice (also on line {lines[s]}); "
+                "each sample may belong to one population only",
+                p,
+                ln,
+            )
         samples[s] = pop
         lines[s] = ln
     if not samples:
-        raise InputError("the popmap lists no samples (expected sample<TAB>population "
-                         "lines)", p)
+        raise InputError("the popmap lists no samples (expected sample<TAB>population lines)", p)
     return Popmap(samples, p, lines)
 
 
@@ -146,9 +150,13 @@ class SampleAssignment:
         return np.unique(np.concatenate(cols)) if cols else np.empty(0, np.int64)
 
 
-def assign_samples(popmap: Popmap, vcf_samples: Sequence[str], vcf_path: str | None = None,
-                   outgroup: str | None = None,
-                   populations: Sequence[str] | None = None) -> SampleAssignment:
+def assign_samples(
+    popmap: Popmap,
+    vcf_samples: Sequence[str],
+    vcf_path: str | None = None,
+    outgroup: str | None = None,
+    populations: Sequence[str] | None = None,
+) -> SampleAssignment:
     """Match a popmap to the samples of a VCF.
 
     Parameters
@@ -178,8 +186,7 @@ def assign_samples(popmap: Popmap, vcf_samples: Sequence[str], vcf_path: str | N
     index: dict[str, int] = {}
     for i, s in enumerate(vcf_samples):
         if s in index:
-            raise InputError(f"sample {s!r} appears twice in the #CHROM header line",
-                             vcf_path)
+            raise InputError(f"sample {s!r} appears twice in the #CHROM header line", vcf_path)
         index[s] = i
     missing = [s for s in popmap.samples if s not in index]
     if missing:
@@ -188,31 +195,40 @@ def assign_samples(popmap: Popmap, vcf_samples: Sequence[str], vcf_path: str | N
         raise InputError(
             f"{len(missing)} popmap sample(s) not among the samples of the VCF{where}: "
             f"{shown}; remove them from the popmap or fix the sample names",
-            popmap.path, popmap.lines.get(missing[0]))
+            popmap.path,
+            popmap.lines.get(missing[0]),
+        )
     pops = popmap.populations
     if outgroup is not None and outgroup not in pops:
-        raise OptionError(f"--ancestral outgroup:{outgroup}: population {outgroup!r} is not "
-                          f"in the popmap (populations: {', '.join(pops)})")
+        raise OptionError(
+            f"--ancestral outgroup:{outgroup}: population {outgroup!r} is not "
+            f"in the popmap (populations: {', '.join(pops)})"
+        )
     focal = [p for p in pops if p != outgroup]
     if populations is not None:
         for p in populations:
             if p not in pops:
-                raise OptionError(f"population {p!r} is not in the popmap "
-                                  f"(populations: {', '.join(pops)})")
+                raise OptionError(
+                    f"population {p!r} is not in the popmap (populations: {', '.join(pops)})"
+                )
             if p == outgroup:
                 raise OptionError(f"population {p!r} is the outgroup and cannot be focal")
         focal = [p for p in focal if p in set(populations)]
     if not focal:
-        raise InputError("no focal population left (the popmap holds only the outgroup)",
-                         popmap.path)
+        raise InputError(
+            "no focal population left (the popmap holds only the outgroup)", popmap.path
+        )
     cols = []
     for p in focal:
         members = popmap.members(p)
         if len(members) < 2:
-            raise InputError(f"population {p!r} has {len(members)} sample; a spectrum needs "
-                             "at least 2 samples (merge it with another population or "
-                             "drop it from the popmap)", popmap.path,
-                             popmap.lines.get(members[0]) if members else None)
+            raise InputError(
+                f"population {p!r} has {len(members)} sample; a spectrum needs "
+                "at least 2 samples (merge it with another population or "
+                "drop it from the popmap)",
+                popmap.path,
+                popmap.lines.get(members[0]) if members else None,
+            )
         cols.append(np.array(sorted(index[s] for s in members), dtype=np.int64))
     og_cols = None
     if outgroup is not None:

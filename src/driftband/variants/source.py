@@ -56,8 +56,9 @@ def _sniff(path: str) -> tuple[str, bytes]:
             with gzip.open(path, "rb") as gz:
                 inner = gz.read(5)
         except (OSError, EOFError, zlib.error) as err:
-            raise VcfFormatError(f"cannot decompress the file ({err}); it is truncated or "
-                                 "corrupt", path) from None
+            raise VcfFormatError(
+                f"cannot decompress the file ({err}); it is truncated or corrupt", path
+            ) from None
         if inner.startswith(b"BCF"):
             return "bcf", inner
         return ("bgzf" if is_bgzf else "gzip"), inner
@@ -115,9 +116,12 @@ class VcfSource:
                 break
         if self.index_path is not None:
             if os.path.getmtime(self.index_path) < os.path.getmtime(self.path):
-                raise InputError(f"the index {self.index_path} is older than the file; "
-                                 "rebuild it (tabix -f -p vcf FILE, or bcftools index -f "
-                                 "FILE)", self.path)
+                raise InputError(
+                    f"the index {self.index_path} is older than the file; "
+                    "rebuild it (tabix -f -p vcf FILE, or bcftools index -f "
+                    "FILE)",
+                    self.path,
+                )
         if self.kind == "bcf":
             self._open_bcf()
         else:
@@ -130,8 +134,11 @@ class VcfSource:
                     with quiet_htslib():
                         self._tabix = pysam.TabixFile(self.path, index=self.index_path)
                 except (OSError, ValueError) as err:
-                    raise InputError(f"cannot read the index {self.index_path} ({err}); "
-                                     "rebuild it with tabix -f -p vcf", self.path) from None
+                    raise InputError(
+                        f"cannot read the index {self.index_path} ({err}); "
+                        "rebuild it with tabix -f -p vcf",
+                        self.path,
+                    ) from None
                 self.index_chroms = list(self._tabix.contigs)
 
     # -- opening
@@ -180,8 +187,7 @@ class VcfSource:
         self._stream_fh = fh
         self.header, self._stream_rest = read_header(Prefixed(first, fh), "-", BATCH_BYTES)
 
-    def _open_text_stream(self
-                          ) -> io.BufferedReader | gzip.GzipFile | DeflateBGZF | QuietBGZFile:
+    def _open_text_stream(self) -> io.BufferedReader | gzip.GzipFile | DeflateBGZF | QuietBGZFile:
         if self.kind == "plain":
             return open(self.path, "rb")
         if self.kind == "gzip":
@@ -214,8 +220,9 @@ class VcfSource:
         self.close()
 
     # -- reading
-    def fetch(self, chrom: str, start: int, end: int,
-              batch_bytes: int = BATCH_BYTES) -> Iterator[VariantBatch]:
+    def fetch(
+        self, chrom: str, start: int, end: int, batch_bytes: int = BATCH_BYTES
+    ) -> Iterator[VariantBatch]:
         """Records with ``start <= POS - 1 < end`` (0-based, half-open) on ``chrom``.
 
         Needs an index. Batches hold about ``batch_bytes`` of text.
@@ -227,7 +234,7 @@ class VcfSource:
             return
         if chrom not in self.index_chroms:
             return
-        assert self._tabix is not None   # opened with the index
+        assert self._tabix is not None  # opened with the index
         with quiet_htslib():
             it = self._tabix.fetch(chrom, start, end)
             try:
@@ -235,8 +242,7 @@ class VcfSource:
             except StopIteration:
                 return
             except OSError as err:
-                raise VcfFormatError(f"cannot read records of {chrom} ({err})",
-                                     self.path) from None
+                raise VcfFormatError(f"cannot read records of {chrom} ({err})", self.path) from None
             voff = self._tabix.tell()
         if self._bgzf is None:
             self._bgzf = open_bgzf(self.path)
@@ -253,9 +259,11 @@ class VcfSource:
                     done = True
                 if b.pos.size and (b.pos[0] < last or np.any(np.diff(b.pos) < 0)):
                     i = int(np.flatnonzero(np.diff(np.r_[last, b.pos]) < 0)[0])
-                    raise VcfFormatError(f"{b.where(i)[0]} is out of order (positions must "
-                                         "increase; sort the file with bcftools sort)",
-                                         self.path)
+                    raise VcfFormatError(
+                        f"{b.where(i)[0]} is out of order (positions must "
+                        "increase; sort the file with bcftools sort)",
+                        self.path,
+                    )
                 last = int(b.pos[-1]) if b.pos.size else last
                 if sel.all():
                     yield b
@@ -292,9 +300,13 @@ class VcfSource:
             if b.chrom != chrom:
                 if b.chrom in seen:
                     name, ln = b.where(0)
-                    raise VcfFormatError(f"{name}: chromosome {b.chrom} appears again after "
-                                         "another one; the file is not sorted (bcftools "
-                                         "sort)", b.path, ln)
+                    raise VcfFormatError(
+                        f"{name}: chromosome {b.chrom} appears again after "
+                        "another one; the file is not sorted (bcftools "
+                        "sort)",
+                        b.path,
+                        ln,
+                    )
                 seen.add(b.chrom)
                 chrom, last = b.chrom, 0
             d = np.diff(np.r_[last, b.pos])
@@ -302,8 +314,11 @@ class VcfSource:
                 i = int(np.flatnonzero(d < 0)[0])
                 name, ln = b.where(i)
                 prev = last if i == 0 else int(b.pos[i - 1])
-                raise VcfFormatError(f"{name} comes after position {prev}; the file is not "
-                                     "sorted (bcftools sort)", b.path, ln)
+                raise VcfFormatError(
+                    f"{name} comes after position {prev}; the file is not sorted (bcftools sort)",
+                    b.path,
+                    ln,
+                )
             last = int(b.pos[-1])
             yield b
 
@@ -322,7 +337,7 @@ class VcfSource:
         opened = None
         fh: ByteReader
         if self.stdin:
-            assert self._stream_fh is not None   # text on standard input: set when opened
+            assert self._stream_fh is not None  # text on standard input: set when opened
             fh, rest = self._stream_fh, self._stream_rest
         else:
             fh = opened = self._open_text_stream()
@@ -343,4 +358,3 @@ class VcfSource:
 def open_vcf(path: str | os.PathLike) -> VcfSource:
     """Open a VCF/BCF (see :class:`VcfSource`)."""
     return VcfSource(path)
-

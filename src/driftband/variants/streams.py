@@ -45,8 +45,9 @@ def read_bytes(fh: ByteReader, n: int, path: str) -> bytes:
         with quiet_htslib():
             return fh.read(n)
     except (OSError, EOFError, zlib.error) as err:
-        raise VcfFormatError(f"cannot decompress the file ({err}); it is truncated or "
-                             "corrupt", path) from None
+        raise VcfFormatError(
+            f"cannot decompress the file ({err}); it is truncated or corrupt", path
+        ) from None
 
 
 def line_blocks(fh: ByteReader, first: bytes, path: str, chunk: int) -> Iterator[bytes]:

@@ -30,17 +30,17 @@ from .header import VcfHeader
 
 __all__ = ["TextBatch", "split_text"]
 
-_PAD = b"\0" * 24   # NULs after the text: decoders read a few bytes past a field
+_PAD = b"\0" * 24  # NULs after the text: decoders read a few bytes past a field
 
 
 def _info_get(info: bytes, key: bytes) -> bytes | None:
     if info.startswith(key):
-        v = info[len(key):]
+        v = info[len(key) :]
     else:
         k = info.find(b";" + key)
         if k < 0:
             return None
-        v = info[k + len(key) + 1:]
+        v = info[k + len(key) + 1 :]
     e = v.find(b";")
     return v if e < 0 else v[:e]
 
@@ -51,9 +51,19 @@ class TextBatch(VariantBatch):
 
     _LAZY = ("ref", "alt", "filt", "_info", "fmt")
 
-    def __init__(self, data: bytes, buf: np.ndarray, tabs: np.ndarray, nl: np.ndarray,
-                 starts: np.ndarray, chrom: str, pos: np.ndarray,
-                 lineno: np.ndarray | None, header: VcfHeader, path: str) -> None:
+    def __init__(
+        self,
+        data: bytes,
+        buf: np.ndarray,
+        tabs: np.ndarray,
+        nl: np.ndarray,
+        starts: np.ndarray,
+        chrom: str,
+        pos: np.ndarray,
+        lineno: np.ndarray | None,
+        header: VcfHeader,
+        path: str,
+    ) -> None:
         self._data, self._buf, self._tabs, self._nl, self._starts = data, buf, tabs, nl, starts
         self.chrom = chrom
         self.pos = pos
@@ -71,8 +81,9 @@ class TextBatch(VariantBatch):
 
     def _split_fixed(self) -> None:
         d = self._data
-        fixed = [d[a:b].split(b"\t") for a, b in zip(self._starts.tolist(),
-                                                      self._tabs[:, 8].tolist())]
+        fixed = [
+            d[a:b].split(b"\t") for a, b in zip(self._starts.tolist(), self._tabs[:, 8].tolist())
+        ]
         cols = tuple(zip(*fixed)) if fixed else ((),) * 9
         _, _, _, ref, alt, _, filt, info, fmt = (list(c) for c in cols)
         self.__dict__.update(ref=ref, alt=alt, filt=filt, _info=info, fmt=fmt)
@@ -85,15 +96,28 @@ class TextBatch(VariantBatch):
         alt1 = np.where(t[:, 4] - t[:, 3] == 2, buf.take(t[:, 3] + 1), 0).astype(np.uint8)
         fl = t[:, 6] - t[:, 5] - 1
         f0 = t[:, 5] + 1
-        is_pass = (fl == 4) & (buf.take(f0) == 80) & (buf[1:].take(f0) == 65) & \
-            (buf[2:].take(f0) == 83) & (buf[3:].take(f0) == 83)
+        is_pass = (
+            (fl == 4)
+            & (buf.take(f0) == 80)
+            & (buf[1:].take(f0) == 65)
+            & (buf[2:].take(f0) == 83)
+            & (buf[3:].take(f0) == 83)
+        )
         passed = np.where(is_pass | ((fl == 1) & (buf.take(f0) == 46)), 1, 0).astype(np.int8)
-        i0 = t[:, 6] + 1          # INFO "AA=X;..." or "AA=X"
-        simple_aa = (buf.take(i0) == 65) & (buf[1:].take(i0) == 65) & \
-            (buf[2:].take(i0) == 61) & np.isin(buf[4:].take(i0), (59, 9))
+        i0 = t[:, 6] + 1  # INFO "AA=X;..." or "AA=X"
+        simple_aa = (
+            (buf.take(i0) == 65)
+            & (buf[1:].take(i0) == 65)
+            & (buf[2:].take(i0) == 61)
+            & np.isin(buf[4:].take(i0), (59, 9))
+        )
         aa1 = np.where(simple_aa, buf[3:].take(i0), 0).astype(np.uint8)
-        return {"ref1": upper_codes(ref1), "alt1": upper_codes(alt1), "pass": passed,
-                "aa1": upper_codes(aa1)}
+        return {
+            "ref1": upper_codes(ref1),
+            "alt1": upper_codes(alt1),
+            "pass": passed,
+            "aa1": upper_codes(aa1),
+        }
 
     def _uniform_format(self) -> bytes | None:
         """The FORMAT of every record when they all have the same one, else None."""
@@ -101,14 +125,15 @@ class TextBatch(VariantBatch):
         w = t[:, 8] - t[:, 7] - 1
         if not w.size or np.any(w != w[0]):
             return None
-        f0 = self._data[int(t[0, 7]) + 1:int(t[0, 8])]
+        f0 = self._data[int(t[0, 7]) + 1 : int(t[0, 8])]
         idx = t[:, 7, None] + 1 + np.arange(w[0])
         if not np.all(buf.take(idx) == np.frombuffer(f0, np.uint8)):
             return None
         return f0
 
-    def allele_counts(self, rows: np.ndarray, cols: np.ndarray
-                      ) -> tuple[np.ndarray, np.ndarray, np.ndarray] | None:
+    def allele_counts(
+        self, rows: np.ndarray, cols: np.ndarray
+    ) -> tuple[np.ndarray, np.ndarray, np.ndarray] | None:
         """Per-sample copies of allele 1 and called copies (alleles 0 or 1), GT only.
 
         The vectorised path for biallelic counting: returns ``alt``, ``called`` (r, s)
@@ -124,10 +149,10 @@ class TextBatch(VariantBatch):
         full = rows.size == len(self.pos) and rows.size and rows[-1] == rows.size - 1
         tr = self._tabs if full else self._tabs[rows]
         if cols.size and cols[-1] - cols[0] == cols.size - 1:
-            t = tr[:, 8 + int(cols[0]):9 + int(cols[-1])]
+            t = tr[:, 8 + int(cols[0]) : 9 + int(cols[-1])]
         else:
             t = tr[:, 8 + cols]
-        return count_gt_alleles(self._buf, t)   # t: the tab before each sample field
+        return count_gt_alleles(self._buf, t)  # t: the tab before each sample field
 
     def info(self, rows: Sequence[int], key: str) -> list[bytes | None]:
         """INFO values of ``key`` (bytes) for some records; None where absent."""
@@ -149,14 +174,15 @@ class TextBatch(VariantBatch):
 
     def line(self, i: int) -> bytes:
         """The raw text of record ``i`` (without the newline)."""
-        return self._data[int(self._starts[i]):int(self._nl[i])]
+        return self._data[int(self._starts[i]) : int(self._nl[i])]
 
     def _colon_index(self) -> tuple[np.ndarray, Callable[[], np.ndarray]]:
         """Positions of ':' (with sentinels) and a lazy inclusive cumulative count."""
         if self._colons is None:
-            buf = self._buf   # not self: no reference cycle keeping batches alive
-            colpos = np.concatenate([np.flatnonzero(buf == 58),
-                                     np.full(16, buf.size + 1, np.int64)])
+            buf = self._buf  # not self: no reference cycle keeping batches alive
+            colpos = np.concatenate(
+                [np.flatnonzero(buf == 58), np.full(16, buf.size + 1, np.int64)]
+            )
             cache: dict[str, np.ndarray] = {}
 
             def cc_fn() -> np.ndarray:
@@ -167,8 +193,9 @@ class TextBatch(VariantBatch):
             self._colons = (colpos, cc_fn)
         return self._colons
 
-    def genotypes(self, rows: np.ndarray, cols: np.ndarray, fields: Sequence[str] = (),
-                  fast: bool = True) -> GenotypeData:
+    def genotypes(
+        self, rows: np.ndarray, cols: np.ndarray, fields: Sequence[str] = (), fast: bool = True
+    ) -> GenotypeData:
         """Decode the genotypes of some records: vectorised where possible, the other
         records with pysam (see :meth:`VariantBatch.genotypes`).
 
@@ -184,31 +211,42 @@ class TextBatch(VariantBatch):
         f0 = self._uniform_format()
         fmts = [f0] * r if f0 is not None else [self.fmt[i] for i in rows.tolist()]
         firsts = {f: f == b"GT" or f.startswith(b"GT:") for f in set(fmts)}
-        gt_first = np.array([firsts[f] for f in fmts], dtype=bool) if len(firsts) > 1 \
+        gt_first = (
+            np.array([firsts[f] for f in fmts], dtype=bool)
+            if len(firsts) > 1
             else np.full(r, all(firsts.values()), bool)
+        )
         for i in np.flatnonzero(~gt_first).tolist():
             if b"GT" not in fmts[i].split(b":"):
                 name, ln = self.where(int(rows[i]))
-                raise VcfFormatError(f"{name} has no GT field (FORMAT "
-                                     f"{fmts[i].decode(errors='replace')}); spectra need "
-                                     "genotypes", self.path, ln)
+                raise VcfFormatError(
+                    f"{name} has no GT field (FORMAT "
+                    f"{fmts[i].decode(errors='replace')}); spectra need "
+                    "genotypes",
+                    self.path,
+                    ln,
+                )
             name, ln = self.where(int(rows[i]))
-            raise VcfFormatError(f"{name}: GT must be the first FORMAT key (VCF "
-                                 "specification)", self.path, ln)
+            raise VcfFormatError(
+                f"{name}: GT must be the first FORMAT key (VCF specification)", self.path, ln
+            )
         alleles = np.full((r, s, 2), -2, np.int8)
         vals = {f: np.full((r, s), -1, np.int32) for f in fields}
         ok = np.zeros(r, bool)
         if fast and r:
-            tr = self._tabs if rows.size == len(self.pos) and rows[-1] == rows.size - 1 \
+            tr = (
+                self._tabs
+                if rows.size == len(self.pos) and rows[-1] == rows.size - 1
                 else self._tabs[rows]
+            )
             nlr = self._nl if tr is self._tabs else self._nl[rows]
-            if cols.size and cols[-1] - cols[0] == cols.size - 1:   # a run of columns
+            if cols.size and cols[-1] - cols[0] == cols.size - 1:  # a run of columns
                 c0, c1 = int(cols[0]), int(cols[-1]) + 1
-                p = tr[:, 8 + c0:8 + c1] + 1
+                p = tr[:, 8 + c0 : 8 + c1] + 1
                 if c1 < self._n_samples:
-                    e = tr[:, 9 + c0:9 + c1]
+                    e = tr[:, 9 + c0 : 9 + c1]
                 else:
-                    e = np.concatenate([tr[:, 9 + c0:], nlr[:, None]], axis=1)
+                    e = np.concatenate([tr[:, 9 + c0 :], nlr[:, None]], axis=1)
             else:
                 ext = np.concatenate([tr[:, 9:], nlr[:, None]], axis=1)
                 p = tr[:, 8 + cols] + 1
@@ -222,8 +260,12 @@ class TextBatch(VariantBatch):
                     if not lazy:
                         colpos, cc_fn = self._colon_index()
                         first = np.searchsorted(colpos, tr[:, 8])
-                        lazy.update(colpos=colpos, cc_fn=cc_fn, first=first,
-                                    total=np.searchsorted(colpos, nlr) - first)
+                        lazy.update(
+                            colpos=colpos,
+                            cc_fn=cc_fn,
+                            first=first,
+                            total=np.searchsorted(colpos, nlr) - first,
+                        )
                     return lazy
 
                 groups: dict[bytes, list[int]] = {}
@@ -237,7 +279,7 @@ class TextBatch(VariantBatch):
                     keys = f.split(b":")
                     nk = len(keys)
                     last = max((keys.index(x) for x in want if x in keys), default=0)
-                    if last and keys[0] == b"GT" and all(x in want for x in keys[1:last + 1]):
+                    if last and keys[0] == b"GT" and all(x in want for x in keys[1 : last + 1]):
                         # GT then only wanted integers: read them one after the other
                         sel = np.array(idx) if len(idx) < r else slice(None)
                         st = p[sel] + np.where(hap[sel], 2, 4)
@@ -257,8 +299,11 @@ class TextBatch(VariantBatch):
                     for part, is_reg in ((reg, True), (~reg, False)):
                         if not part.any():
                             continue
-                        rr = (np.flatnonzero(part) if isinstance(sel, slice)
-                              else np.asarray(idx)[part])
+                        rr = (
+                            np.flatnonzero(part)
+                            if isinstance(sel, slice)
+                            else np.asarray(idx)[part]
+                        )
                         if rr.size == r:
                             rr = slice(None)
                         base = (first[rr, None] + cols * (nk - 1)) if is_reg else None
@@ -266,8 +311,9 @@ class TextBatch(VariantBatch):
                             nb = name.encode()
                             if nb not in keys:
                                 continue
-                            v, okv = decode_int(self._buf, p[rr], e[rr], keys.index(nb),
-                                                 nk, base, colpos, cc_fn)
+                            v, okv = decode_int(
+                                self._buf, p[rr], e[rr], keys.index(nb), nk, base, colpos, cc_fn
+                            )
                             vals[name][rr] = v
                             ok[rr] &= okv
         slow = np.flatnonzero(~ok)
@@ -275,33 +321,37 @@ class TextBatch(VariantBatch):
             a2, v2 = self._fallback(rows[slow], cols, fields)
             if a2.shape[2] > alleles.shape[2]:
                 wide = np.full((r, s, a2.shape[2]), -2, np.int8)
-                wide[:, :, :alleles.shape[2]] = alleles
+                wide[:, :, : alleles.shape[2]] = alleles
                 alleles = wide
             alleles[slow] = -2
-            alleles[slow, :, :a2.shape[2]] = a2
+            alleles[slow, :, : a2.shape[2]] = a2
             for f in fields:
                 vals[f][slow] = v2[f]
         return GenotypeData(alleles, vals, ok)
 
-    def _fallback(self, rows: np.ndarray, cols: np.ndarray, fields: Sequence[str]
-                  ) -> tuple[np.ndarray, dict[str, np.ndarray]]:
+    def _fallback(
+        self, rows: np.ndarray, cols: np.ndarray, fields: Sequence[str]
+    ) -> tuple[np.ndarray, dict[str, np.ndarray]]:
         """Decode records with pysam (through a small temporary VCF)."""
         lines = [self.line(i) for i in rows.tolist()]
         try:
             records = pysam_parse(self._header.text, lines)
         except RecordParseError as err:
             name, ln = self.where(int(rows[err.index]))
-            raise VcfFormatError(f"{name}: htslib cannot parse this record ({err}); check "
-                                 "its GT and FORMAT values", self.path, ln) from None
+            raise VcfFormatError(
+                f"{name}: htslib cannot parse this record ({err}); check its GT and FORMAT values",
+                self.path,
+                ln,
+            ) from None
         try:
             return records_genotypes(records, cols, fields, [self.path])
         except (ValueError, TypeError) as err:
-            raise VcfFormatError(f"record {self.chrom}: bad FORMAT value ({err})",
-                                 self.path) from None
+            raise VcfFormatError(
+                f"record {self.chrom}: bad FORMAT value ({err})", self.path
+            ) from None
 
 
-def split_text(data: bytes, header: VcfHeader, path: str,
-               lineno0: int | None) -> list[TextBatch]:
+def split_text(data: bytes, header: VcfHeader, path: str, lineno0: int | None) -> list[TextBatch]:
     """Split complete record lines (``data`` ends with a newline) into per-chromosome batches.
 
     ``lineno0`` is the 1-based line number of the first line (None when unknown).
@@ -347,37 +397,60 @@ def split_text(data: bytes, header: VcfHeader, path: str,
     bad = np.flatnonzero(per_line != ntab)
     if bad.size:
         i = int(bad[0])
-        line = data[starts[i]:nl[i]]
+        line = data[starts[i] : nl[i]]
         f = line.split(b"\t", 2)
-        name = (f"record {f[0].decode(errors='replace')}:{f[1].decode(errors='replace')}"
-                if len(f) > 2 else "record")
+        name = (
+            f"record {f[0].decode(errors='replace')}:{f[1].decode(errors='replace')}"
+            if len(f) > 2
+            else "record"
+        )
         ln = None if lineno is None else int(lineno[i])
         last = i == nl.size - 1
         hint = " (truncated file?)" if last and per_line[i] < ntab else ""
-        raise VcfFormatError(f"{name} has {per_line[i] + 1} columns, the header has "
-                             f"{ntab + 1} (9 + {len(header.samples)} samples){hint}", path, ln)
+        raise VcfFormatError(
+            f"{name} has {per_line[i] + 1} columns, the header has "
+            f"{ntab + 1} (9 + {len(header.samples)} samples){hint}",
+            path,
+            ln,
+        )
     tabs = tabs.reshape(nl.size, ntab)
     pos, good = parse_pos(buf, tabs[:, 0] + 1, tabs[:, 1] - tabs[:, 0] - 1)
     if not good.all():
         i = int(np.flatnonzero(~good)[0])
-        v = data[int(tabs[i, 0]) + 1:int(tabs[i, 1])]
-        raise VcfFormatError(f"POS {v.decode(errors='replace')!r} is not a positive integer",
-                             path, None if lineno is None else int(lineno[i]))
-    c0 = data[int(starts[0]):int(tabs[0, 0])]
+        v = data[int(tabs[i, 0]) + 1 : int(tabs[i, 1])]
+        raise VcfFormatError(
+            f"POS {v.decode(errors='replace')!r} is not a positive integer",
+            path,
+            None if lineno is None else int(lineno[i]),
+        )
+    c0 = data[int(starts[0]) : int(tabs[0, 0])]
     clen = tabs[:, 0] - starts
     same = bool(np.all(clen == len(c0)))
     if same and len(c0):
         idx = starts[:, None] + np.arange(len(c0))
         same = bool(np.all(buf.take(idx) == np.frombuffer(c0, np.uint8)))
     if same:
-        return [TextBatch(data, buf, tabs, nl, starts, c0.decode(errors="replace"), pos,
-                          lineno, header, path)]
+        return [
+            TextBatch(
+                data, buf, tabs, nl, starts, c0.decode(errors="replace"), pos, lineno, header, path
+            )
+        ]
     chroms = [data[a:b] for a, b in zip(starts.tolist(), tabs[:, 0].tolist())]
     cut = [0] + [i for i in range(1, len(chroms)) if chroms[i] != chroms[i - 1]] + [len(chroms)]
     out = []
     for a, b in zip(cut[:-1], cut[1:]):
-        out.append(TextBatch(data, buf, tabs[a:b], nl[a:b], starts[a:b],
-                             chroms[a].decode(errors="replace"),
-                             pos[a:b], None if lineno is None else lineno[a:b], header, path))
+        out.append(
+            TextBatch(
+                data,
+                buf,
+                tabs[a:b],
+                nl[a:b],
+                starts[a:b],
+                chroms[a].decode(errors="replace"),
+                pos[a:b],
+                None if lineno is None else lineno[a:b],
+                header,
+                path,
+            )
+        )
     return out
-

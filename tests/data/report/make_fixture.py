@@ -67,21 +67,50 @@ def residuals(o, e):
     return ((o - e) / np.sqrt(e)).tolist()
 
 
-def model_entry(pop, name, params, stderr, shares, ll, k, eps, eps_free, theta, en, es, on,
-                os_, fix_ratio, success=True, message=None):
+def model_entry(
+    pop,
+    name,
+    params,
+    stderr,
+    shares,
+    ll,
+    k,
+    eps,
+    eps_free,
+    theta,
+    en,
+    es,
+    on,
+    os_,
+    fix_ratio,
+    success=True,
+    message=None,
+):
     return {
-        "population": pop, "model": name, "params": params, "stderr": stderr,
-        "eps": eps, "eps_free": eps_free, "theta": theta,
-        "nuisance": [1.0] * len(en), "equilibrium": False,
-        "loglik": ll, "n_params": k, "aic": 2 * k - 2 * ll,
+        "population": pop,
+        "model": name,
+        "params": params,
+        "stderr": stderr,
+        "eps": eps,
+        "eps_free": eps_free,
+        "theta": theta,
+        "nuisance": [1.0] * len(en),
+        "equilibrium": False,
+        "loglik": ll,
+        "n_params": k,
+        "aic": 2 * k - 2 * ll,
         "success": success,
-        "message": message or "5 of 9 starts reached the best log-likelihood; optimiser: "
-                              "CONVERGENCE: RELATIVE REDUCTION OF F <= FACTR*EPSMCH",
-        "band_edges": EDGES, "shares": shares, "fixation_ratio": fix_ratio,
+        "message": message
+        or "5 of 9 starts reached the best log-likelihood; optimiser: "
+        "CONVERGENCE: RELATIVE REDUCTION OF F <= FACTR*EPSMCH",
+        "band_edges": EDGES,
+        "shares": shares,
+        "fixation_ratio": fix_ratio,
         "observed": {"neutral": on.tolist(), "selected": os_.tolist()},
         "expected": {"neutral": en.tolist(), "selected": es.tolist()},
         "pearson_residuals": {"neutral": residuals(on, en), "selected": residuals(os_, es)},
-        "x": [0.0] * 3, "optimizer": {"starts": 9, "evaluations": 2113},
+        "x": [0.0] * 3,
+        "optimizer": {"starts": 9, "evaluations": 2113},
     }
 
 
@@ -90,9 +119,18 @@ def aic_table(models):
     a0 = rows[0]["aic"]
     w = np.exp(-0.5 * (np.array([f["aic"] for f in rows]) - a0))
     w /= w.sum()
-    return [{"model": f["model"], "loglik": f["loglik"], "n_params": f["n_params"],
-             "aic": f["aic"], "delta_aic": f["aic"] - a0, "weight": float(wk),
-             "converged": f["success"]} for f, wk in zip(rows, w)]
+    return [
+        {
+            "model": f["model"],
+            "loglik": f["loglik"],
+            "n_params": f["n_params"],
+            "aic": f["aic"],
+            "delta_aic": f["aic"] - a0,
+            "weight": float(wk),
+            "converged": f["success"],
+        }
+        for f, wk in zip(rows, w)
+    ]
 
 
 def boot(rng, params, shares, extra=None):
@@ -104,41 +142,89 @@ def boot(rng, params, shares, extra=None):
     sh = np.clip(np.array(shares) + 0.03 * rng.standard_normal((REPS, len(shares))), 0, 1)
     sh /= sh.sum(axis=1, keepdims=True)
     a = (1 - LEVEL) / 2
-    ci = {k: [float(np.quantile(v, a)), float(np.quantile(v, 1 - a))]
-          for k, v in out_params.items()}
-    sci = [[float(np.quantile(sh[:, j], a)), float(np.quantile(sh[:, j], 1 - a))]
-           for j in range(sh.shape[1])]
-    return {"replicates": REPS, "failed": 0, "params": out_params, "shares": sh.tolist(),
-            "params_ci": ci, "shares_ci": sci}
+    ci = {
+        k: [float(np.quantile(v, a)), float(np.quantile(v, 1 - a))] for k, v in out_params.items()
+    }
+    sci = [
+        [float(np.quantile(sh[:, j], a)), float(np.quantile(sh[:, j], 1 - a))]
+        for j in range(sh.shape[1])
+    ]
+    return {
+        "replicates": REPS,
+        "failed": 0,
+        "params": out_params,
+        "shares": sh.tolist(),
+        "params_ci": ci,
+        "shares_ci": sci,
+    }
 
 
 def population(rng, pop, n, folded, theta, ln, ls, g, lg, disc, fixed=None, disc_ok=True):
     nuis = 1.0 + 0.25 * np.sin(np.arange(1, n + 1) / 2.0)
-    en, es, on, os_ = spectra_pair(rng, n, folded, theta, ln, ls,
-                                   lambda x: 0.18 + 0.22 * np.exp(-6 * x), nuis)
+    en, es, on, os_ = spectra_pair(
+        rng, n, folded, theta, ln, ls, lambda x: 0.18 + 0.22 * np.exp(-6 * x), nuis
+    )
     m = en.size
     eps_free = not folded
     eps = 0.021 if eps_free else 0.0
     ke = 1 if eps_free else 0
     models = {
-        "gamma": model_entry(pop, "gamma", {"shape": g[0], "mean_S": g[1]},
-                             {"shape": g[0] * 0.11, "mean_S": g[1] * 0.4,
-                              **({"eps": 0.004} if eps_free else {})},
-                             gamma_shares(g[0], g[1]), g[2], 2 + m + ke, eps, eps_free, theta,
-                             en, es, on, os_, g[3]),
-        "lognormal": model_entry(pop, "lognormal", {"log_mean": lg[0], "log_sd": lg[1]},
-                                 {"log_mean": 0.6, "log_sd": None,
-                                  **({"eps": 0.005} if eps_free else {})},
-                                 lognormal_shares(lg[0], lg[1]), lg[2], 2 + m + ke, eps,
-                                 eps_free, theta, en, es, on, os_, lg[3]),
-        "discrete": model_entry(pop, "discrete",
-                                {f"mass_{k}": v for k, v in enumerate(disc[0])},
-                                {f"mass_{k}": 0.05 for k in range(4)},
-                                list(disc[0]), disc[1], 3 + m + ke, eps, eps_free, theta,
-                                en, es, on, os_, disc[2], success=disc_ok,
-                                message=None if disc_ok else
-                                "1 of 5 starts reached the best log-likelihood; optimiser: "
-                                "ABNORMAL_TERMINATION_IN_LNSRCH"),
+        "gamma": model_entry(
+            pop,
+            "gamma",
+            {"shape": g[0], "mean_S": g[1]},
+            {"shape": g[0] * 0.11, "mean_S": g[1] * 0.4, **({"eps": 0.004} if eps_free else {})},
+            gamma_shares(g[0], g[1]),
+            g[2],
+            2 + m + ke,
+            eps,
+            eps_free,
+            theta,
+            en,
+            es,
+            on,
+            os_,
+            g[3],
+        ),
+        "lognormal": model_entry(
+            pop,
+            "lognormal",
+            {"log_mean": lg[0], "log_sd": lg[1]},
+            {"log_mean": 0.6, "log_sd": None, **({"eps": 0.005} if eps_free else {})},
+            lognormal_shares(lg[0], lg[1]),
+            lg[2],
+            2 + m + ke,
+            eps,
+            eps_free,
+            theta,
+            en,
+            es,
+            on,
+            os_,
+            lg[3],
+        ),
+        "discrete": model_entry(
+            pop,
+            "discrete",
+            {f"mass_{k}": v for k, v in enumerate(disc[0])},
+            {f"mass_{k}": 0.05 for k in range(4)},
+            list(disc[0]),
+            disc[1],
+            3 + m + ke,
+            eps,
+            eps_free,
+            theta,
+            en,
+            es,
+            on,
+            os_,
+            disc[2],
+            success=disc_ok,
+            message=None
+            if disc_ok
+            else "1 of 5 starts reached the best log-likelihood; optimiser: "
+            "ABNORMAL_TERMINATION_IN_LNSRCH",
+        ),
     }
     table = aic_table(models)
     ok = [r for r in table if r["converged"]]
@@ -156,10 +242,16 @@ def population(rng, pop, n, folded, theta, ln, ls, g, lg, disc, fixed=None, disc
         b["models"][name] = boot(rng, f["params"], f["shares"], extra)
     if not disc_ok:
         b["models"]["discrete"]["failed"] = 6
-    data = {"n": n, "folded": folded, "neutral": on.tolist(), "selected": os_.tolist(),
-            "sites_neutral": ln, "sites_selected": ls,
-            "fixed_neutral": None if fixed is None else fixed[0],
-            "fixed_selected": None if fixed is None else fixed[1]}
+    data = {
+        "n": n,
+        "folded": folded,
+        "neutral": on.tolist(),
+        "selected": os_.tolist(),
+        "sites_neutral": ln,
+        "sites_selected": ls,
+        "fixed_neutral": None if fixed is None else fixed[0],
+        "fixed_selected": None if fixed is None else fixed[1],
+    }
     adaptive = {}
     for name, f in models.items():
         if fixed is None:
@@ -170,23 +262,44 @@ def population(rng, pop, n, folded, theta, ln, ls, g, lg, disc, fixed=None, disc
         odds, p = stats.fisher_exact(np.rint([[dn, ds], [pn, ps]]).astype(int))
         d_n, d_s = dn / ls, ds / ln
         adaptive[name] = {
-            "mk": {"P_N": pn, "P_S": ps, "D_N": dn, "D_S": ds,
-                   "fisher_odds_ratio": float(odds), "fisher_p": float(p)},
+            "mk": {
+                "P_N": pn,
+                "P_S": ps,
+                "D_N": dn,
+                "D_S": ds,
+                "fisher_odds_ratio": float(odds),
+                "fisher_p": float(p),
+            },
             "alpha_classic": 1 - (ds * pn) / (dn * ps),
-            "alpha_asymptotic": {"alpha": 0.21, "fit": "exponential", "a": 0.24, "b": -0.5,
-                                 "c": 4.1},
-            "alpha_dfe": {"alpha": 1 - f["fixation_ratio"] * d_s / d_n,
-                          "omega_a": d_n / d_s - f["fixation_ratio"], "omega": d_n / d_s},
+            "alpha_asymptotic": {
+                "alpha": 0.21,
+                "fit": "exponential",
+                "a": 0.24,
+                "b": -0.5,
+                "c": 4.1,
+            },
+            "alpha_dfe": {
+                "alpha": 1 - f["fixation_ratio"] * d_s / d_n,
+                "omega_a": d_n / d_s - f["fixation_ratio"],
+                "omega": d_n / d_s,
+            },
         }
-    entry = {"dataset": "spectra.json", "best_model": best, "data": data, "aic_table": table,
-             "models": models, "bootstrap": b, "adaptive": adaptive}
+    entry = {
+        "dataset": "spectra.json",
+        "best_model": best,
+        "data": data,
+        "aic_table": table,
+        "models": models,
+        "bootstrap": b,
+        "adaptive": adaptive,
+    }
     return entry, on, os_
 
 
 def full_sfs(poly, n, folded, sites, fixed):
     length = n // 2 + 1 if folded else n + 1
     s = np.zeros(length)
-    s[1:1 + poly.size] = poly
+    s[1 : 1 + poly.size] = poly
     if not folded:
         s[n] = fixed
     s[0] = sites - s[1:].sum()
@@ -202,35 +315,78 @@ def diversity(sfs, n, folded, sites):
 
 def main() -> None:
     rng = np.random.default_rng(20250314)
-    lake, lon, los = population(rng, "lake", 16, False, 0.0065, 180000.0, 520000.0,
-                                g=(0.31, 2150.0, -118.42, 0.211),
-                                lg=(5.1, 3.2, -119.87, 0.232),
-                                disc=((0.14, 0.09, 0.17, 0.60), -117.96, 0.219),
-                                fixed=(1452.0, 1310.0))
-    spring, son, sos = population(rng, "spring", 12, True, 0.0018, 176000.0, 512000.0,
-                                  g=(0.29, 240.0, -61.07, 0.301),
-                                  lg=(3.6, 2.9, -61.35, 0.322),
-                                  disc=((0.31, 0.12, 0.19, 0.38), -60.71, 0.334),
-                                  disc_ok=False)
+    lake, lon, los = population(
+        rng,
+        "lake",
+        16,
+        False,
+        0.0065,
+        180000.0,
+        520000.0,
+        g=(0.31, 2150.0, -118.42, 0.211),
+        lg=(5.1, 3.2, -119.87, 0.232),
+        disc=((0.14, 0.09, 0.17, 0.60), -117.96, 0.219),
+        fixed=(1452.0, 1310.0),
+    )
+    spring, son, sos = population(
+        rng,
+        "spring",
+        12,
+        True,
+        0.0018,
+        176000.0,
+        512000.0,
+        g=(0.29, 240.0, -61.07, 0.301),
+        lg=(3.6, 2.9, -61.35, 0.322),
+        disc=((0.31, 0.12, 0.19, 0.38), -60.71, 0.334),
+        disc_ok=False,
+    )
     fit = {
-        "schema": "driftband-fit", "schema_version": 1,
-        "options": {"neutral": "4fold", "selected": "0fold",
-                    "models": ["gamma", "lognormal", "discrete"], "misorientation": "free",
-                    "equilibrium": False, "band_edges_nes": EDGES, "bootstrap": REPS,
-                    "seed": SEED, "level": LEVEL},
+        "schema": "driftband-fit",
+        "schema_version": 1,
+        "options": {
+            "neutral": "4fold",
+            "selected": "0fold",
+            "models": ["gamma", "lognormal", "discrete"],
+            "misorientation": "free",
+            "equilibrium": False,
+            "band_edges_nes": EDGES,
+            "bootstrap": REPS,
+            "seed": SEED,
+            "level": LEVEL,
+        },
         "populations": {"lake": lake, "spring": spring},
         "provenance": {
-            "software": "driftband", "version": "0.1.0.dev0",
-            "command": ["driftband", "fit", "spectra.json", "--bootstrap", str(REPS),
-                        "--seed", str(SEED), "-o",
-                        "fit.json"],
+            "software": "driftband",
+            "version": "0.1.0.dev0",
+            "command": [
+                "driftband",
+                "fit",
+                "spectra.json",
+                "--bootstrap",
+                str(REPS),
+                "--seed",
+                str(SEED),
+                "-o",
+                "fit.json",
+            ],
             "date": DATE,
-            "options": {"bootstrap": REPS, "seed": SEED, "level": LEVEL,
-                        "band_edges_nes": EDGES},
-            "inputs": {"spectra": [{"path": "/study/snails/spectra.json", "size": 48213,
-                                    "sha256": "3f1c" + "0" * 56 + "9a2b"}]},
-            "environment": {"python": "3.11.2", "platform": "Linux-x86_64",
-                            "numpy": "1.26.4", "scipy": "1.11.4"},
+            "options": {"bootstrap": REPS, "seed": SEED, "level": LEVEL, "band_edges_nes": EDGES},
+            "inputs": {
+                "spectra": [
+                    {
+                        "path": "/study/snails/spectra.json",
+                        "size": 48213,
+                        "sha256": "3f1c" + "0" * 56 + "9a2b",
+                    }
+                ]
+            },
+            "environment": {
+                "python": "3.11.2",
+                "platform": "Linux-x86_64",
+                "numpy": "1.26.4",
+                "scipy": "1.11.4",
+            },
         },
     }
     (HERE / "fit.json").write_text(json.dumps(fit, indent=1) + "\n", encoding="utf-8")
@@ -238,8 +394,9 @@ def main() -> None:
     # Spectra file of the same study (per-block spectra split the totals over 4 blocks).
     pops = {}
     for name, n, folded, on, os_, ln, ls, fixed, pol in (
-            ("lake", 16, False, lon, los, 180000.0, 520000.0, (1452.0, 1310.0), "outgroup"),
-            ("spring", 12, True, son, sos, 176000.0, 512000.0, (0.0, 0.0), "folded")):
+        ("lake", 16, False, lon, los, 180000.0, 520000.0, (1452.0, 1310.0), "outgroup"),
+        ("spring", 12, True, son, sos, 176000.0, 512000.0, (0.0, 0.0), "folded"),
+    ):
         classes, st = {}, {}
         for cls, poly, sites, fx in (("4fold", on, ln, fixed[0]), ("0fold", os_, ls, fixed[1])):
             sfs = full_sfs(poly, n, folded, sites, fx)
@@ -248,23 +405,41 @@ def main() -> None:
             block = np.floor(np.outer(frac, sfs))
             block[-1] = sfs - block[:-1].sum(axis=0)
             bsites = block.sum(axis=1)
-            classes[cls] = {"sfs": sfs.astype(int).tolist(), "sites": int(sites),
-                            "block_sfs": block.astype(int).tolist(),
-                            "block_sites": bsites.astype(int).tolist()}
+            classes[cls] = {
+                "sfs": sfs.astype(int).tolist(),
+                "sites": int(sites),
+                "block_sfs": block.astype(int).tolist(),
+                "block_sites": bsites.astype(int).tolist(),
+            }
             st[cls] = diversity(sfs, n, folded, int(sites))
         st["piN_piS"] = st["0fold"]["pi"] / st["4fold"]["pi"]
-        pops[name] = {"n": n, "folded": folded, "polarisation": pol, "classes": classes,
-                      "stats": st}
+        pops[name] = {
+            "n": n,
+            "folded": folded,
+            "polarisation": pol,
+            "classes": classes,
+            "stats": st,
+        }
     spectra = {
-        "schema": "driftband-spectra", "schema_version": 1,
-        "blocks": [{"chrom": "scf1", "start": k * 100000, "end": (k + 1) * 100000,
-                    "name": ""} for k in range(4)],
-        "populations": pops, "skipped": {"multiallelic": 12, "filtered": 40},
-        "provenance": {"software": "driftband", "version": "0.1.0.dev0", "date": DATE,
-                       "command": ["driftband", "spectra"], "options": {"block_size": 100000},
-                       "inputs": {"vcf": {"path": "/study/snails/calls.vcf.gz",
-                                          "size": 2200000, "sha256": "ab" * 32}},
-                       "environment": {"python": "3.11.2"}},
+        "schema": "driftband-spectra",
+        "schema_version": 1,
+        "blocks": [
+            {"chrom": "scf1", "start": k * 100000, "end": (k + 1) * 100000, "name": ""}
+            for k in range(4)
+        ],
+        "populations": pops,
+        "skipped": {"multiallelic": 12, "filtered": 40},
+        "provenance": {
+            "software": "driftband",
+            "version": "0.1.0.dev0",
+            "date": DATE,
+            "command": ["driftband", "spectra"],
+            "options": {"block_size": 100000},
+            "inputs": {
+                "vcf": {"path": "/study/snails/calls.vcf.gz", "size": 2200000, "sha256": "ab" * 32}
+            },
+            "environment": {"python": "3.11.2"},
+        },
     }
     (HERE / "spectra.json").write_text(json.dumps(spectra, indent=1) + "\n", encoding="utf-8")
 
@@ -273,31 +448,75 @@ def main() -> None:
     rho = pops["spring"]["stats"]["4fold"]["pi"] / pops["lake"]["stats"]["4fold"]["pi"]
     sl, ss = lake["models"]["gamma"]["shares"][0], spring["models"]["gamma"]["shares"][0]
     diff = ss - sl
-    cols = ["population_a", "population_b", "test", "model", "statistic", "df", "p_value",
-            "p_adjusted", "estimate", "ci_low", "ci_high", "ne_ratio", "predicted_share_b",
-            "observed_share_b", "note"]
+    cols = [
+        "population_a",
+        "population_b",
+        "test",
+        "model",
+        "statistic",
+        "df",
+        "p_value",
+        "p_adjusted",
+        "estimate",
+        "ci_low",
+        "ci_high",
+        "ne_ratio",
+        "predicted_share_b",
+        "observed_share_b",
+        "note",
+    ]
     rows = [
-        {"population_a": "lake", "population_b": "spring", "test": "shared_dfe_lrt",
-         "model": "gamma", "statistic": 14.62, "df": 2, "p_value": 0.000668,
-         "p_adjusted": 0.000668, "estimate": 0.231,
-         "note": "estimate: neutral-band share under the shared DFE"},
-        {"population_a": "lake", "population_b": "spring",
-         "test": "neutral_share_difference", "model": "gamma", "statistic": 4.1,
-         "p_value": 0.0488, "p_adjusted": 0.0488, "estimate": diff,
-         "ci_low": diff - 0.061, "ci_high": diff + 0.058,
-         "note": f"bootstrap: {REPS} replicates, level 0.95"},
-        {"population_a": "lake", "population_b": "spring", "test": "ne_only_lrt",
-         "model": "gamma", "statistic": 3.05, "df": 2, "p_value": 0.2176,
-         "p_adjusted": 0.2176, "estimate": rho, "ne_ratio": rho,
-         "predicted_share_b": ss - 0.024, "observed_share_b": ss,
-         "note": "estimate: Ne_B/Ne_A from neutral pi ratio, assuming equal mutation rates"},
+        {
+            "population_a": "lake",
+            "population_b": "spring",
+            "test": "shared_dfe_lrt",
+            "model": "gamma",
+            "statistic": 14.62,
+            "df": 2,
+            "p_value": 0.000668,
+            "p_adjusted": 0.000668,
+            "estimate": 0.231,
+            "note": "estimate: neutral-band share under the shared DFE",
+        },
+        {
+            "population_a": "lake",
+            "population_b": "spring",
+            "test": "neutral_share_difference",
+            "model": "gamma",
+            "statistic": 4.1,
+            "p_value": 0.0488,
+            "p_adjusted": 0.0488,
+            "estimate": diff,
+            "ci_low": diff - 0.061,
+            "ci_high": diff + 0.058,
+            "note": f"bootstrap: {REPS} replicates, level 0.95",
+        },
+        {
+            "population_a": "lake",
+            "population_b": "spring",
+            "test": "ne_only_lrt",
+            "model": "gamma",
+            "statistic": 3.05,
+            "df": 2,
+            "p_value": 0.2176,
+            "p_adjusted": 0.2176,
+            "estimate": rho,
+            "ne_ratio": rho,
+            "predicted_share_b": ss - 0.024,
+            "observed_share_b": ss,
+            "note": "estimate: Ne_B/Ne_A from neutral pi ratio, assuming equal mutation rates",
+        },
     ]
     with open(HERE / "compare.tsv", "w", newline="", encoding="utf-8") as fh:
         w = csv.writer(fh, delimiter="\t", lineterminator="\n")
         w.writerow(cols)
         for r in rows:
-            w.writerow(["" if r.get(c) is None else (f"{r[c]:.6g}" if isinstance(r[c], float)
-                                                     else r[c]) for c in cols])
+            w.writerow(
+                [
+                    "" if r.get(c) is None else (f"{r[c]:.6g}" if isinstance(r[c], float) else r[c])
+                    for c in cols
+                ]
+            )
 
 
 if __name__ == "__main__":
