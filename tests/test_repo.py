@@ -36,3 +36,20 @@ def test_pre_commit_uses_the_ruff_pinned_in_pyproject():
     assert "entry: ruff check" in hooks and "entry: ruff format" in hooks
     deps = re.findall(r"additional_dependencies: \[(.*)\]", hooks)
     assert deps == [f'"{pin}"'] * 2
+
+
+def test_ruff_check_and_format_are_clean():
+    # The lint and format settings of pyproject.toml hold over the whole tree.
+    import shutil
+    import subprocess
+    import sys
+
+    import pytest
+
+    if shutil.which("ruff") is None:  # pragma: no cover - ruff is in the test extra
+        pytest.skip("ruff is not installed (pip install '.[test]')")
+    for args in (["check", "."], ["format", "--check", "."]):
+        res = subprocess.run(
+            [sys.executable, "-m", "ruff", *args], cwd=ROOT, capture_output=True, text=True
+        )
+        assert res.returncode == 0, res.stdout[-3000:] + res.stderr[-1000:]
