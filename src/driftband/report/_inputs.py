@@ -15,6 +15,7 @@ import math
 import os
 from typing import Any
 
+from ..compare.table import COLUMNS
 from ..exceptions import InputError
 from ..fit.io import check_fit_schema
 from ..spectra.io import check_spectra_schema
@@ -30,17 +31,8 @@ __all__ = [
 ]
 
 #: Columns of compare.tsv read as numbers (empty or ``nan`` → None).
-NUMERIC_COMPARE_COLUMNS = (
-    "statistic",
-    "df",
-    "p_value",
-    "p_adjusted",
-    "estimate",
-    "ci_low",
-    "ci_high",
-    "ne_ratio",
-    "predicted_share_b",
-    "observed_share_b",
+NUMERIC_COMPARE_COLUMNS = tuple(
+    c for c in COLUMNS if c not in ("population_a", "population_b", "test", "model", "note")
 )
 _REQUIRED_COMPARE = ("population_a", "population_b", "test", "model")
 
