@@ -12,7 +12,9 @@ __all__ = [
     "DEFAULT_EDGES_NES",
     "DEFAULT_LEVEL",
     "DEFAULT_MODELS",
+    "DEFAULT_REPLICATES",
     "DEFAULT_SEED",
+    "HEADLINES",
     "MIN_BLOCKS",
     "format_edges",
 ]
@@ -24,6 +26,12 @@ DEFAULT_EDGES_NES: tuple[float, ...] = (0.0, 1.0, 10.0, 100.0)
 DEFAULT_MODELS: tuple[str, ...] = ("gamma", "lognormal", "discrete")
 #: The tests between two populations, in the order they are run and reported.
 COMPARE_TESTS: tuple[str, ...] = ("shared_dfe_lrt", "neutral_share_difference", "ne_only_lrt")
+#: How the headline shares are made: averaged over the DFE families by Akaike weight (the
+#: default), or from the AIC-best family alone.
+HEADLINES: tuple[str, ...] = ("averaged", "best")
+#: Bootstrap replicates of ``driftband run``: percentile intervals from B = 200 cover within
+#: one point of nominal at 95 % (benchmarks/bench_interval_coverage.py: 94.2 %).
+DEFAULT_REPLICATES = 200
 #: Length of the genomic blocks of the block bootstrap, in bp.
 DEFAULT_BLOCK_SIZE = 100_000
 #: Confidence level of bootstrap intervals.

@@ -8,7 +8,7 @@ import os
 from typing import Any
 
 from .._io import check_outputs, file_record, provenance
-from ..defaults import DEFAULT_MODELS, format_edges
+from ..defaults import DEFAULT_MODELS, HEADLINES, format_edges
 from ..exceptions import OptionError
 from ._common import Subparsers, add_common_arguments, add_subcommand, parse_kv
 
@@ -83,6 +83,14 @@ def add_parser(subparsers: Subparsers) -> None:
         help="no demographic nuisance parameters (all r_i = 1)",
     )
     p.add_argument(
+        "--headline",
+        choices=HEADLINES,
+        default=HEADLINES[0],
+        help="headline shares: averaged over the families by Akaike weight (default; "
+        "the interval needs --bootstrap and refits every family) or from the AIC-best "
+        "family alone",
+    )
+    p.add_argument(
         "--bands",
         default=format_edges(),
         metavar="EDGES",
@@ -150,6 +158,7 @@ def run(args: argparse.Namespace) -> int:
         eps,
         args.equilibrium,
         edges,
+        args.headline,
     )
     check_bootstrap_settings(args.bootstrap, args.level)
     labels = parse_kv(args.label, "--label")

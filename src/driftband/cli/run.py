@@ -6,6 +6,7 @@ import argparse
 import sys
 from typing import TYPE_CHECKING
 
+from ..defaults import HEADLINES
 from ..exceptions import OptionError
 from ._common import Subparsers, add_common_arguments, add_subcommand, progress_on_stderr
 
@@ -68,6 +69,7 @@ _FIT_FLAGS = {
     "misorientation": "--misorientation",
     "equilibrium": "--equilibrium",
     "beneficial": "--beneficial",
+    "headline": "--headline",
 }
 
 
@@ -128,6 +130,11 @@ def add_parser(subparsers: Subparsers) -> argparse.ArgumentParser:
     d.add_argument("--name", help="name of the study and dataset (default: the VCF's name)")
     f = p.add_argument_group("fit (without a study file)")
     f.add_argument("--dfe", metavar="NAMES", help="DFE families (default gamma,lognormal,discrete)")
+    f.add_argument(
+        "--headline",
+        choices=HEADLINES,
+        help="headline shares averaged over the families (default) or the AIC-best one",
+    )
     f.add_argument("--bands", metavar="EDGES", help="band edges on |Ne*s| (default 0,1,10,100)")
     f.add_argument(
         "--misorientation",

@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import itertools
 import logging
+import math
 from collections.abc import Sequence
 from typing import Any
 
@@ -129,6 +130,34 @@ def adjust_pvalues(rows: list[ComparisonRow], method: str = "holm") -> None:
             r.p_adjusted = float(p)
 
 
+def _warn_floor(rows: list[ComparisonRow], adjust: str, alpha: float = 0.05) -> None:
+    """Warn when the bootstrap's p-value floor 2/(B+1), after the adjustment across pairs,
+    cannot reach ``alpha``: no difference could then be called significant."""
+    diff = [r for r in rows if r.test == "neutral_share_difference" and np.isfinite(r.p_value)]
+    if not diff:
+        return
+    B = max(
+        int(r.note.split("bootstrap: ", 1)[1].split(" ", 1)[0])
+        for r in diff
+        if r.note.startswith("bootstrap: ")
+    )
+    floor = 2.0 / (B + 1)
+    m = len(diff)
+    reach = floor * (m if adjust.lower() in ("holm", "bonferroni") else 1)
+    if reach > alpha:
+        need = math.ceil(2 * (m if reach > floor else 1) / alpha) - 1
+        log.warning(
+            "neutral_share_difference: with B = %d bootstrap replicates the smallest "
+            "p-value is 2/(B+1) = %.3g%s, so no pair can reach %g; use --bootstrap %d or "
+            "more",
+            B,
+            floor,
+            f", {reach:.3g} after {adjust} over {m} pairs" if m > 1 else "",
+            alpha,
+            need,
+        )
+
+
 def _compare_task(task: tuple[Any, ...]) -> list[ComparisonRow]:
     """One test of one pair (runs in a worker process)."""
     return compare_pair(*task)
@@ -222,6 +251,7 @@ def compare_fits(
         parts = [compare_pair(*t, cache) for t in tasks]
     rows = [r for part in parts for r in part]
     adjust_pvalues(rows, adjust)
+    _warn_floor(rows, adjust)
     if any("no bootstrap" in r.note for r in rows):
         log.warning(
             "neutral_share_difference has no interval or p-value: the fits have no "

@@ -30,7 +30,7 @@ from typing import Any
 import numpy as np
 from scipy import stats
 
-from ..defaults import COMPARE_TESTS
+from ..defaults import COMPARE_TESTS, MIN_BLOCKS
 from ..exceptions import InputError, OptionError
 from ..fit.likelihood import Objective, SpectrumPair
 from ..fit.mle import FitResult
@@ -247,36 +247,80 @@ def compare_pair(
     return rows
 
 
+def _draws(pop: PopulationFit, model: str) -> tuple[str, np.ndarray | None]:
+    """The neutral-share draws compared: the model-averaged ones when the population's
+    headline is averaged and was bootstrapped, else those of ``model``."""
+    boot = pop.bootstrap
+    if boot is not None and boot.averaged is not None and pop.headline_method == "averaged":
+        return "averaged", boot.averaged.share_draws(0)
+    return model, _draws_of(pop, model)
+
+
 def _share_difference(pop_a: PopulationFit, pop_b: PopulationFit, model: str) -> ComparisonRow:
-    """share_B − share_A with its paired-bootstrap interval and p-value."""
-    sa = float(pop_a.fits[model].shares[0])
-    sb = float(pop_b.fits[model].shares[0])
+    """share_B − share_A with its paired-bootstrap interval and p-value.
+
+    The replicates pair up by index (the same block draw for the populations of one
+    dataset); a replicate that failed in either population is left out of both.
+    """
+    which_a, xa = _draws(pop_a, model)
+    which_b, xb = _draws(pop_b, model)
+    which = which_a if which_a == which_b else model
+    if which != which_a or which != which_b:  # one averaged, one not: compare the model
+        xa = _draws_of(pop_a, model)
+        xb = _draws_of(pop_b, model)
+    if which == "averaged":
+        sa = float(pop_a.headline().shares[0])
+        sb = float(pop_b.headline().shares[0])
+    else:
+        sa = float(pop_a.fits[model].shares[0])
+        sb = float(pop_b.fits[model].shares[0])
     row = ComparisonRow(
         pop_a.population,
         pop_b.population,
         "neutral_share_difference",
-        model,
+        which,
         estimate=sb - sa,
         extra={"share_a": sa, "share_b": sb},
     )
-    ba, bb = pop_a.model_bootstrap(model), pop_b.model_bootstrap(model)
-    if ba is None or bb is None or not ba.shares.size or not bb.shares.size:
+    if xa is None or xb is None or not xa.size or not xb.size:
         row.note = "no bootstrap in the fit files: rerun 'driftband fit' with --bootstrap B"
         return row
-    xa, xb = ba.shares[:, 0], bb.shares[:, 0]
-    m = min(xa.size, xb.size)
-    d = xb[:m] - xa[:m]
+    notes = []
+    if xa.size == xb.size:
+        d = xb - xa
+    else:  # files without placeholders for failed replicates (schema version 1)
+        m = min(xa.size, xb.size)
+        d = xb[:m] - xa[:m]
+        notes.append("replicates paired by position (an older fit file)")
     d = d[np.isfinite(d)]
+    if d.size < 2:
+        row.note = "fewer than two bootstrap replicates converged in both populations"
+        return row
     level = pop_a.bootstrap.level if pop_a.bootstrap is not None else 0.95
     a = (1 - level) / 2
     row.ci_low, row.ci_high = (float(v) for v in np.quantile(d, [a, 1 - a]))
     tail = min(np.sum(d <= 0), np.sum(d >= 0))
-    row.p_value = float(min(1.0, 2.0 * (tail + 1) / (d.size + 1)))
-    row.statistic = float((sb - sa) / np.std(d, ddof=1)) if d.size > 1 else np.nan
-    row.note = f"bootstrap: {d.size} replicates, level {level:g}"
-    if tail == 0:
-        row.note += (
-            f"; no replicate crossed zero, so p is at the floor "
-            f"2/(B+1) = {row.p_value:.2g} of this B"
+    row.statistic = float((sb - sa) / np.std(d, ddof=1))
+    few = [p for p in (pop_a, pop_b) if p.bootstrap is not None and p.bootstrap.few_blocks]
+    notes.insert(0, f"bootstrap: {d.size} replicates, level {level:g}")
+    if few:
+        nb = min(p.bootstrap.blocks for p in few if p.bootstrap is not None)
+        notes.append(
+            f"no p-value: only {nb} genomic blocks (fewer than {MIN_BLOCKS}), "
+            "so the interval is unreliable too"
         )
+    else:
+        row.p_value = float(min(1.0, 2.0 * (tail + 1) / (d.size + 1)))
+        if tail == 0:
+            row.extra["p_at_floor"] = True
+            notes.append(
+                f"no replicate crossed zero: p <= 2/(B+1) = {row.p_value:.2g}, "
+                "the smallest p this B can give"
+            )
+    row.note = "; ".join(notes)
     return row
+
+
+def _draws_of(pop: PopulationFit, model: str) -> np.ndarray | None:
+    mb = pop.model_bootstrap(model)
+    return None if mb is None or not mb.shares.size else mb.share_draws(0)

@@ -20,6 +20,7 @@ COLUMNS = [
     "df",
     "p_value",
     "p_adjusted",
+    "p_at_floor",
     "estimate",
     "ci_low",
     "ci_high",

@@ -114,7 +114,7 @@ def fit_population(
             edges_nes=options.edges_nes,
             expectation=ex,
         )
-    return PopulationFit(population, data, fits)
+    return PopulationFit(population, data, fits, headline_method=options.headline)
 
 
 def pool_populations(
@@ -222,7 +222,7 @@ def fit_spectra(
     done = iter(parallel_map(_fit_task, tasks, workers=workers, scheduler=scheduler, name="fit"))
     fits = []
     for name, dataset, data in pooled:
-        pf = PopulationFit(name, data, {}, dataset=dataset)
+        pf = PopulationFit(name, data, {}, dataset=dataset, headline_method=options.headline)
         for _m in options.models:
             pf.fits.update(next(done))
         for f in pf.fits.values():

@@ -26,7 +26,14 @@ from .adaptive import adaptive_summary
 from .likelihood import SpectrumPair
 from .mle import fit_model
 from .options import FitOptions
-from .results import BootstrapResult, ConfidenceInterval, ModelBootstrap, PopulationFit
+from .results import (
+    AveragedBootstrap,
+    BootstrapResult,
+    ConfidenceInterval,
+    ModelBootstrap,
+    PopulationFit,
+    akaike_weights,
+)
 
 if TYPE_CHECKING:
     from ..spectra import PopulationSpectra
@@ -154,6 +161,7 @@ def _replicate_task(args: _ReplicateBatch) -> list[dict[str, Any]]:
                     # a None start becomes NaNs here, as it would in the
                     # optimiser: every such refit fails and is counted failed
                     starts=[np.asarray(starts[m.name], dtype=float)],
+                    grid_starts=1,  # and the best grid point: two dispersed starts
                     stderr=False,
                 )
             rep[m.name] = {
@@ -230,6 +238,7 @@ def bootstrap_fits(
     tasks: list[_ReplicateBatch] = []
     owners: list[int] = []
     wanted: list[list[str]] = []
+    distinct: list[int] = []
     for k, pf in enumerate(fits):
         pop = pops[pf.population]
         names = [
@@ -257,6 +266,7 @@ def bootstrap_fits(
         # so that between-population comparisons keep the covariance of shared regions.
         stream = zlib.crc32(pf.dataset.encode())
         idx = resample_indices(nb, replicates, seed, stream)
+        distinct.append(len({tuple(np.sort(row)) for row in idx}))
         opts = dataclasses.replace(options, models=tuple(options.model(n) for n in names))
         starts = {name: pf.fits[name].x for name in names}
         for b0 in range(0, replicates, batch):
@@ -276,34 +286,75 @@ def bootstrap_fits(
     for k, pf in enumerate(fits):
         reps = per_pop.get(k, [])
         blocks = int(pops[pf.population].classes[options.neutral].block_sfs.shape[0])
+        boots = {
+            name: _summarise(pf.fits[name], [r.get(name) for r in reps], level)
+            for name in wanted[k]
+        }
+        every = set(wanted[k]) == set(pf.fits) and len(pf.fits) > 1
         pf.bootstrap = BootstrapResult(
             replicates,
             blocks,
             seed,
             level,
-            {
-                name: _summarise(
-                    pf.fits[name], [r[name] for r in reps if r and name in r], replicates, level
-                )
-                for name in wanted[k]
-            },
+            boots,
+            _averaged(pf, boots, level) if every else None,
+            distinct[k],
         )
 
 
-def _summarise(f: Any, ok: list[dict[str, Any]], replicates: int, level: float) -> ModelBootstrap:
-    """The replicates of one model: values per replicate and percentile intervals."""
-    shares = np.array([r["shares"] for r in ok]) if ok else np.empty((0, len(f.shares)))
-    params = {p: np.array([r["params"][p] for r in ok]) for p in f.params}
-    params["eps"] = np.array([r["eps"] for r in ok])
-    params["fixation_ratio"] = np.array([r["fixation_ratio"] for r in ok])
+def _averaged(
+    pf: PopulationFit, models: dict[str, ModelBootstrap], level: float
+) -> AveragedBootstrap:
+    """Model-averaged shares per replicate, with the Akaike weights of that replicate."""
+    names = list(models)
+    B = next(iter(models.values())).shares.shape[0]
+    K = len(pf.best.shares)
+    shares = np.full((B, K), np.nan)
+    weights = {m: np.full(B, np.nan) for m in names}
+    for r in range(B):
+        aic = {
+            m: (2 * pf.fits[m].n_params - 2 * float(mb.loglik[r]))
+            if mb.loglik is not None and mb.ok[r]
+            else float("nan")
+            for m, mb in models.items()
+        }
+        w = akaike_weights(aic)
+        if not np.isfinite(list(w.values())).all():
+            continue
+        shares[r] = np.sum([w[m] * models[m].shares[r] for m in names if w[m] > 0], axis=0)
+        for m in names:
+            weights[m][r] = w[m]
+    return AveragedBootstrap(
+        shares, weights, [percentile_interval(shares[:, j], level) for j in range(K)]
+    )
+
+
+def _summarise(f: Any, reps: list[dict[str, Any] | None], level: float) -> ModelBootstrap:
+    """The replicates of one model, each in its place (NaN where the refit failed), and
+    percentile intervals from the converged ones."""
+    B = len(reps)
+    nan = float("nan")
+
+    def col(get: Any) -> np.ndarray:
+        return np.array([get(r) if r else nan for r in reps], dtype=float)
+
+    shares = np.array([r["shares"] if r else [nan] * len(f.shares) for r in reps], dtype=float)
+    shares = shares.reshape(B, len(f.shares))
+    converged = np.array([bool(r and r["success"]) for r in reps], dtype=bool)
+    params = {p: col(lambda r, p=p: r["params"][p]) for p in f.params}
+    params["eps"] = col(lambda r: r["eps"])
+    params["fixation_ratio"] = col(lambda r: r["fixation_ratio"])
     for key in ("alpha_dfe", "omega_a", "alpha_classic", "alpha_asymptotic"):
-        if ok and key in ok[0]:
-            params[key] = np.array([r.get(key, np.nan) for r in ok], dtype=float)
+        if any(r and key in r for r in reps):
+            params[key] = col(lambda r, key=key: r.get(key, nan))
+    ok = converged & np.all(np.isfinite(shares), axis=1)
     return ModelBootstrap(
-        replicates=len(ok),
-        failed=int(replicates - len(ok) + sum(1 for r in ok if not r["success"])),
+        replicates=int(ok.sum()),
+        failed=int(B - ok.sum()),
         params=params,
         shares=shares,
-        params_ci={p: percentile_interval(v, level) for p, v in params.items()},
-        shares_ci=[percentile_interval(shares[:, j], level) for j in range(shares.shape[1])],
+        params_ci={p: percentile_interval(v[ok], level) for p, v in params.items()},
+        shares_ci=[percentile_interval(shares[ok, j], level) for j in range(shares.shape[1])],
+        converged=converged,
+        loglik=col(lambda r: r["loglik"]),
     )

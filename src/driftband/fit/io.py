@@ -51,7 +51,11 @@ __all__ = [
 ]
 
 FIT_SCHEMA = "driftband-fit"
-FIT_SCHEMA_VERSION = 1
+#: Version 2 keeps every bootstrap replicate in its place (failed ones as null, with a
+#: ``converged`` mask), adds the model-averaged shares and the ``headline``; version 1
+#: files are still read.
+FIT_SCHEMA_VERSION = 2
+FIT_SCHEMA_VERSIONS_READ = (1, 2)
 #: Columns of ``bands.tsv``.
 BANDS_COLUMNS = [
     "population",
@@ -64,6 +68,10 @@ BANDS_COLUMNS = [
     "ci_low",
     "ci_high",
     "model",
+    "role",
+    "weight",
+    "interval",
+    "note",
 ]
 
 
@@ -130,10 +138,10 @@ def check_fit_schema(doc: Any, path: str | os.PathLike | None = None) -> None:
             f'not a fit file (expected "schema": "{FIT_SCHEMA}"; make one with \'driftband fit\')',
             path,
         )
-    if doc.get("schema_version") != FIT_SCHEMA_VERSION:
+    if doc.get("schema_version") not in FIT_SCHEMA_VERSIONS_READ:
         raise InputError(
             f"fit schema version {doc.get('schema_version')!r} is not "
-            f"supported (this driftband reads {FIT_SCHEMA_VERSION})",
+            f"supported (this driftband reads {', '.join(map(str, FIT_SCHEMA_VERSIONS_READ))})",
             path,
         )
 
@@ -219,30 +227,59 @@ def band_label(lo: float, hi: float) -> str:
     return f"{lo:g}-{hi:g}"
 
 
+def _interval_word(ci: Any, reliable: bool) -> str:
+    """``interval`` column: empty without one, else ``reliable`` or ``unreliable``."""
+    if ci is None:
+        return ""
+    return "reliable" if reliable else "unreliable"
+
+
 def band_rows(fits: list[PopulationFit]) -> list[dict[str, Any]]:
-    """Rows of ``bands.tsv`` (AIC-best model of each population; columns
-    :data:`BANDS_COLUMNS`)."""
+    """Rows of ``bands.tsv`` (columns :data:`BANDS_COLUMNS`).
+
+    For each population: the headline rows (``role`` = ``headline``; ``model`` =
+    ``averaged``, or the AIC-best family under ``--headline best``), then one row per band
+    of every fitted family (``role`` = ``family``) with its Akaike weight. ``note`` carries
+    the headline's caveats (few blocks, families that disagree, few replicates).
+    """
     rows = []
     for pf in fits:
-        f = pf.best
-        edges = list(f.band_edges) + [float("inf")]
-        mb = pf.model_bootstrap(f.model)
-        for k, share in enumerate(f.shares):
-            lo, hi = edges[k], edges[k + 1]
-            rows.append(
-                {
-                    "population": pf.population,
-                    "band": band_label(lo, hi),
-                    "nes_low": lo,
-                    "nes_high": hi,
-                    "S_low": 4 * lo,
-                    "S_high": 4 * hi,
-                    "share": float(share),
-                    "ci_low": None if mb is None else mb.shares_ci[k].low,
-                    "ci_high": None if mb is None else mb.shares_ci[k].high,
-                    "model": f.model,
-                }
+        h = pf.headline()
+        edges = list(pf.best.band_edges) + [float("inf")]
+        note = "; ".join(h.notes)
+        entries: list[tuple[str, str, Any, Any, Any]] = [
+            ("headline", h.model, h.shares, h.shares_ci, None)
+        ]
+        weights = pf.weights()
+        few = pf.bootstrap is not None and pf.bootstrap.few_blocks
+        for name, f in pf.fits.items():
+            mb = pf.model_bootstrap(name)
+            entries.append(
+                ("family", name, f.shares, None if mb is None else mb.shares_ci, weights.get(name))
             )
+        for role, model, shares, ci, w in entries:
+            for k, share in enumerate(shares):
+                lo, hi = edges[k], edges[k + 1]
+                rows.append(
+                    {
+                        "population": pf.population,
+                        "band": band_label(lo, hi),
+                        "nes_low": lo,
+                        "nes_high": hi,
+                        "S_low": 4 * lo,
+                        "S_high": 4 * hi,
+                        "share": float(share),
+                        "ci_low": None if ci is None else ci[k].low,
+                        "ci_high": None if ci is None else ci[k].high,
+                        "model": model,
+                        "role": role,
+                        "weight": w,
+                        "interval": _interval_word(
+                            ci, h.interval_reliable if role == "headline" else not few
+                        ),
+                        "note": note if role == "headline" else "",
+                    }
+                )
     return rows
 
 

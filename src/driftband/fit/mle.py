@@ -252,6 +252,7 @@ def fit_model(
     starts: list[np.ndarray] | None = None,
     stderr: bool = True,
     n_local: int = 3,
+    grid_starts: int = 0,
 ) -> FitResult:
     """Fit one DFE model to one population by maximum likelihood.
 
@@ -278,17 +279,28 @@ def fit_model(
     n_local : int
         Starting points refined by L-BFGS-B: the best ``n_local`` of the grid, each
         screened by one evaluation.
+    grid_starts : int
+        With ``starts`` given: also refine the best ``grid_starts`` points of the model's
+        grid on these data (each refit then has at least two dispersed starts).
 
     Returns
     -------
     FitResult
     """
     obj = Objective(data, model, eps=eps, equilibrium=equilibrium, expectation=expectation)
+    grid = model.starts()
+    if obj.free_eps:
+        grid = [np.append(s, e) for s in grid for e in (np.log(0.01 / 0.99),)]
     if starts is None:
-        starts = model.starts()
-        if obj.free_eps:
-            starts = [np.append(s, e) for s in starts for e in (np.log(0.01 / 0.99),)]
-    opt = minimize_multistart(obj, starts, obj.bounds(), screen=n_local)
+        starts = grid
+    elif grid_starts > 0:
+        # Given starts (a warm start) plus the best points of the grid, screened here: a
+        # refit then explores beyond the basin of the given start.
+        vals = np.array([obj(g) for g in grid])
+        starts = list(starts) + [grid[j] for j in np.argsort(vals, kind="stable")[:grid_starts]]
+    opt = minimize_multistart(
+        obj, starts, obj.bounds(), screen=None if grid_starts > 0 else n_local
+    )
     xbest, fbest = opt.x, opt.fun
     success = bool(np.isfinite(fbest) and fbest < 1e299 and opt.success)
     msg = opt.message

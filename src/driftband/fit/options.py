@@ -11,7 +11,7 @@ from typing import Any
 
 import numpy as np
 
-from ..defaults import DEFAULT_EDGES_NES
+from ..defaults import DEFAULT_EDGES_NES, HEADLINES
 from ..exceptions import OptionError
 from .models import DfeModel, parse_models
 
@@ -109,6 +109,9 @@ class FitOptions:
         Fix nuisance factors r_i = 1.
     edges_nes : tuple of float
         Band edges on |Ne·s| (first 0; the last band is open).
+    headline : {"averaged", "best"}
+        Headline shares averaged over the families by Akaike weight, or from the AIC-best
+        family alone.
     """
 
     neutral: str = "4fold"
@@ -117,8 +120,11 @@ class FitOptions:
     eps: float | None = None
     equilibrium: bool = False
     edges_nes: tuple[float, ...] = DEFAULT_EDGES_NES
+    headline: str = "averaged"
 
     def __post_init__(self) -> None:
+        if self.headline not in HEADLINES:
+            raise OptionError(f"--headline {self.headline!r}: choose {' or '.join(HEADLINES)}")
         if self.eps is not None and not 0.0 <= self.eps < 0.5:
             raise OptionError(
                 f"--misorientation {format_misorientation(self.eps)}: the rate must be in [0, 0.5)"
@@ -149,6 +155,7 @@ class FitOptions:
             "misorientation": format_misorientation(self.eps),
             "equilibrium": self.equilibrium,
             "band_edges_nes": list(self.edges_nes),
+            "headline": self.headline,
         }
 
     @classmethod
@@ -169,4 +176,5 @@ class FitOptions:
             parse_misorientation(str(d.get("misorientation", "free"))),
             bool(d.get("equilibrium", False)),
             edges,
+            str(d.get("headline", "best")),  # files before the averaged headline: the best
         )

@@ -32,7 +32,9 @@ __all__ = [
 
 #: Columns of compare.tsv read as numbers (empty or ``nan`` → None).
 NUMERIC_COMPARE_COLUMNS = tuple(
-    c for c in COLUMNS if c not in ("population_a", "population_b", "test", "model", "note")
+    c
+    for c in COLUMNS
+    if c not in ("population_a", "population_b", "test", "model", "p_at_floor", "note")
 )
 _REQUIRED_COMPARE = ("population_a", "population_b", "test", "model")
 

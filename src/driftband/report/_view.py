@@ -130,13 +130,27 @@ def _anchor(k: int, name: str) -> str:
     return f"pop{k + 1}-" + (re.sub(r"[^a-z0-9]+", "-", name.lower()).strip("-") or "x")
 
 
+def headline_model(p: dict[str, Any]) -> str:
+    """``averaged`` or the model the headline shares come from."""
+    return str((p.get("headline") or {}).get("model") or p["best_model"])
+
+
 def _bands(p: dict[str, Any]) -> list[Band]:
+    """The headline bands: the model-averaged shares where the fit file has them (schema
+    2), else the AIC-best model's."""
     best = p["best_model"]
     f = p["models"][best]
     edges = [float(e) for e in f["band_edges"]] + [math.inf]
-    ci = (((p.get("bootstrap") or {}).get("models") or {}).get(best) or {}).get("shares_ci")
+    head = p.get("headline") or {}
+    if head:
+        shares, ci = head.get("shares") or [], head.get("shares_ci")
+        if head.get("interval_reliable") is False:
+            ci = None  # never shown as if it were an interval; the flags say why
+    else:
+        shares = f["shares"]
+        ci = (((p.get("bootstrap") or {}).get("models") or {}).get(best) or {}).get("shares_ci")
     out = []
-    for k, s in enumerate(f["shares"]):
+    for k, s in enumerate(shares):
         lo = hi = None
         if isinstance(ci, list) and k < len(ci) and isinstance(ci[k], list) and len(ci[k]) == 2:
             lo, hi = ci[k]
@@ -194,6 +208,10 @@ def _flags(name: str, p: dict[str, Any], blocks: float | None) -> list[str]:
                 f"Only {int(blocks)} genomic blocks: bootstrap intervals from fewer "
                 "than 20 blocks are unreliable."
             )
+    for note in (p.get("headline") or {}).get("notes") or []:
+        if "genomic blocks" in note and is_num(blocks) and blocks < 20:
+            continue  # said above
+        out.append(f"Headline: {note[0].upper()}{note[1:]}.")
     res = p["models"][best].get("pearson_residuals") or {}
     vals = [v for arr in res.values() if isinstance(arr, list) for v in arr if is_num(v)]
     big = [v for v in vals if abs(v) > RESIDUAL_FLAG]
@@ -251,18 +269,24 @@ def _match_spectra(views: list[PopulationView], docs: dict[str, dict[str, Any]])
 
 def _share(pops: dict[str, PopulationView], name: str, model: str) -> float | None:
     v = pops.get(name)
-    if v is None or model not in v.record["models"]:
+    if v is None:
         return None
-    s = v.record["models"][model]["shares"][0]
+    if model == "averaged" and v.record.get("headline"):
+        s = v.record["headline"]["shares"][0]
+    elif model in v.record["models"]:
+        s = v.record["models"][model]["shares"][0]
+    else:
+        return None
     return s if is_num(s) else None
 
 
 def _p_text(r: dict[str, Any], method: str) -> str:
     parts = []
+    rel = "\u2264" if str(r.get("p_at_floor") or "").lower() == "true" else "="
     if is_num(r.get("p_value")):
-        parts.append(f"p = {fp(r['p_value'])}")
+        parts.append(f"p {rel} {fp(r['p_value'])}")
     if is_num(r.get("p_adjusted")):
-        parts.append(f"{method}-adjusted p = {fp(r['p_adjusted'])}")
+        parts.append(f"{method}-adjusted p {rel} {fp(r['p_adjusted'])}")
     return ", ".join(parts) if parts else "no p-value"
 
 
@@ -487,14 +511,26 @@ def collect(
 def answer_sentence(v: PopulationView, selected: str) -> str:
     """The headline of one population in words."""
     b = v.bands[0]
-    ci = (
-        f" ({pct(v.level)} CI {frange(b.ci_low, b.ci_high, 2)})"
-        if is_num(b.ci_low) and is_num(b.ci_high)
-        else " (no interval: no bootstrap)"
-    )
+    head = v.record.get("headline") or {}
+    if is_num(b.ci_low) and is_num(b.ci_high):
+        ci = f" ({pct(v.level)} CI {frange(b.ci_low, b.ci_high, 2)})"
+    elif head.get("interval_reliable") is False and head.get("shares_ci"):
+        ci = " (interval not shown: unreliable, see the flags)"
+    elif v.replicates:
+        ci = " (no interval, see the flags)"
+    else:
+        ci = " (no interval: no bootstrap)"
     status = "" if v.converged else " \u2014 the fit did not converge, see the flags"
+    if headline_model(v.record) == "averaged":
+        w = head.get("weights") or {}
+        ws = ", ".join(
+            f"{m} {fnum(x, 2)}" for m, x in sorted(w.items(), key=lambda t: -t[1]) if is_num(x)
+        )
+        under = f"averaged over the DFE families by Akaike weight ({ws})"
+    else:
+        under = f"under the {v.best} DFE (lowest AIC)"
     return (
         f"{v.name}: a share of {fnum(b.share, 2)}{ci} of new {selected} mutations is "
-        f"effectively neutral (|Ne\u00b7s| < {b.hi:g}, |S| < {4 * b.hi:g}) under the "
-        f"{v.best} DFE (lowest AIC){status}."
+        f"effectively neutral (|Ne\u00b7s| < {b.hi:g}, |S| < {4 * b.hi:g}), {under}"
+        f"{status}."
     )

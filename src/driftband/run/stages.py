@@ -73,7 +73,10 @@ def fit_options(study: Study) -> Any:
     names = [m.name for m in models]
     if len(set(names)) != len(names):
         raise fail("dfe", OptionError("a model is named twice"))
-    return FitOptions(fs.neutral, fs.selected, models, eps, fs.equilibrium, edges)
+    try:
+        return FitOptions(fs.neutral, fs.selected, models, eps, fs.equilibrium, edges, fs.headline)
+    except OptionError as err:
+        raise fail("headline", err) from None
 
 
 def stage_classify(

@@ -25,6 +25,7 @@ from ..defaults import (
     DEFAULT_EDGES_NES,
     DEFAULT_LEVEL,
     DEFAULT_MODELS,
+    DEFAULT_REPLICATES,
     DEFAULT_SEED,
     format_edges,
 )
@@ -94,15 +95,24 @@ STUDY_KEYS: dict[str, dict[str, tuple[str, str]]] = {
         "neutral": ("str", "neutral class (default 4fold)"),
         "selected": ("str", "selected class (default 0fold)"),
         "populations": ("strlist", "fit only these populations (default: all)"),
+        "headline": (
+            "str",
+            "'averaged' (default: shares averaged over the families by Akaike weight) or "
+            "'best' (the AIC-best family alone)",
+        ),
     },
     "bootstrap": {
-        "replicates": ("nonnegint", "block-bootstrap replicates (default 100; 0: none)"),
+        "replicates": (
+            "nonnegint",
+            f"block-bootstrap replicates (default {DEFAULT_REPLICATES}; 0: none)",
+        ),
         "level": ("float", "confidence level of the intervals (default 0.95)"),
         "seed": ("int", "random seed (default 1)"),
         "workers": ("posint", "worker processes (default: the cores available)"),
         "models": (
             "str",
-            "'best' (default: each population's AIC-best model and the model compared) or 'all'",
+            "'all' (default: every family, needed for the interval of the averaged "
+            "headline) or 'best' (each population's AIC-best model and the model compared)",
         ),
     },
     "compare": {
@@ -189,17 +199,18 @@ class FitSettings:
     neutral: str = "4fold"
     selected: str = "0fold"
     populations: list[str] | None = None
+    headline: str = "averaged"
 
 
 @dataclass
 class BootstrapSettings:
     """Options of the bootstrap stage (``workers`` does not change the results)."""
 
-    replicates: int = 100
+    replicates: int = DEFAULT_REPLICATES
     level: float = DEFAULT_LEVEL
     seed: int = DEFAULT_SEED
     workers: int | None = None
-    models: str = "best"
+    models: str = "all"
 
 
 @dataclass
