@@ -19,7 +19,7 @@ import numpy as np
 
 def coverage(B: int, studies: int, level: float = 0.95, seed: int = 1) -> float:
     rng = np.random.default_rng(seed)
-    est = rng.standard_normal(studies)                      # truth 0, sd 1
+    est = rng.standard_normal(studies)  # truth 0, sd 1
     draws = est[:, None] + rng.standard_normal((studies, B))
     a = (1 - level) / 2
     lo, hi = np.quantile(draws, [a, 1 - a], axis=1)
@@ -28,8 +28,10 @@ def coverage(B: int, studies: int, level: float = 0.95, seed: int = 1) -> float:
 
 def main() -> None:
     studies = int(sys.argv[1]) if len(sys.argv) > 1 else 40_000
-    print(f"percentile-interval coverage at 95 %, {studies} studies per B "
-          f"(binomial SE about {100 * (0.95 * 0.05 / studies) ** 0.5:.2f} points)")
+    print(
+        f"percentile-interval coverage at 95 %, {studies} studies per B "
+        f"(binomial SE about {100 * (0.95 * 0.05 / studies) ** 0.5:.2f} points)"
+    )
     print(f"{'B':>6} {'coverage':>9} {'shortfall':>10}")
     for B in (50, 100, 200, 400, 1000):
         c = coverage(B, studies)

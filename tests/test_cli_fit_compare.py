@@ -73,6 +73,10 @@ def test_fit_bootstrap_compare(study, tmp_path):
     assert rc == 0
     rows = _read_tsv(bands)
     assert {r["population"] for r in rows} == {"big", "small"}
+    # one family: the headline rows are the gamma fit's, and so are the family rows
+    assert {(r["role"], r["model"]) for r in rows} == {("headline", "gamma"), ("family", "gamma")}
+    assert all(r["weight"] == "1" for r in rows if r["role"] == "family")
+    rows = [r for r in rows if r["role"] == "headline"]
     for pop in ("big", "small"):
         sub = [r for r in rows if r["population"] == pop]
         assert [r["band"] for r in sub] == ["0-1", "1-10", "10-100", ">=100"]
@@ -220,8 +224,8 @@ def test_reviewer_table_fit(tmp_path):
         )
         == 0
     )
-    rows = _read_tsv(bands)
-    assert len(rows) == 4 and rows[0]["ci_low"] == ""
+    rows = [r for r in _read_tsv(bands) if r["role"] == "headline"]
+    assert len(rows) == 4 and rows[0]["ci_low"] == "" and rows[0]["interval"] == ""
 
 
 def test_compare_errors(study, tmp_path, capsys):
@@ -284,6 +288,16 @@ def test_readme_reviewer_example(tmp_path):
         )
         == 0
     )
-    rows = _read_tsv(bands)
+    every = _read_tsv(bands)
+    rows = [r for r in every if r["role"] == "headline"]
     assert [r["population"] for r in rows] == ["pond"] * 4
+    assert {r["model"] for r in rows} == {"averaged"}
     assert sum(float(r["share"]) for r in rows) == pytest.approx(1.0, abs=1e-5)
+    # The averaged share is the Akaike-weighted mean of the families' shares
+    # (Burnham & Anderson 2002, sec. 4.2), with weights summing to one.
+    fam = [r for r in every if r["role"] == "family"]
+    w = {r["model"]: float(r["weight"]) for r in fam}
+    assert set(w) == {"gamma", "discrete"} and sum(w.values()) == pytest.approx(1, abs=1e-5)
+    for r in rows:
+        mix = sum(w[f["model"]] * float(f["share"]) for f in fam if f["band"] == r["band"])
+        assert float(r["share"]) == pytest.approx(mix, abs=2e-6)

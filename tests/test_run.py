@@ -111,6 +111,9 @@ def test_band_table(demo_run):
     need = ["population", "band", "nes_low", "nes_high", "share", "ci_low", "ci_high", "model"]
     assert all(c in rows[0] for c in need)
     assert {r["population"] for r in rows} == {"lake", "spring"}  # not the outgroup
+    assert {r["role"] for r in rows} == {"headline", "family"}
+    assert {r["model"] for r in rows if r["role"] == "headline"} == {"averaged"}
+    rows = [r for r in rows if r["role"] == "headline"]
     for pop in ("lake", "spring"):
         sub = [r for r in rows if r["population"] == pop]
         assert [float(r["nes_low"]) for r in sub] == [0, 1, 10, 100]
@@ -129,7 +132,7 @@ def test_band_table(demo_run):
 
 def test_small_population_has_larger_neutral_share_near_truth(demo_run):
     rows = _tsv(demo_run / "bands.tsv")
-    first = {r["population"]: r for r in rows if r["band"] == "0-1"}
+    first = {r["population"]: r for r in rows if r["band"] == "0-1" and r["role"] == "headline"}
     lake, spring = float(first["lake"]["share"]), float(first["spring"]["share"])
     assert spring > lake
     # Truth: one distribution of s, S = 4Ns scales with N: mean |Ne*s| = 400/4 = 100 in
@@ -157,7 +160,12 @@ def test_comparison_of_the_pair(demo_run):
     # (the AIC of the joint model of separate fits).
     total = {m: sum(p["models"][m]["aic"] for p in pops.values()) for m in pops["lake"]["models"]}
     assert fit["options"]["compare_model"] == min(total, key=total.get)
-    assert {r["model"] for r in rows} == {min(total, key=total.get)}
+    # the likelihood-ratio tests use that model; the share difference compares the
+    # headline shares, averaged over the families
+    assert {by[t]["model"] for t in ("shared_dfe_lrt", "ne_only_lrt")} == {
+        min(total, key=total.get)
+    }
+    assert by["neutral_share_difference"]["model"] == "averaged"
     d = by["neutral_share_difference"]
     assert float(d["estimate"]) > 0 and float(d["ci_low"]) > 0
     # Ne ratio from the ratio of neutral diversity (theta = 4*Ne*mu with one mu; common
@@ -167,11 +175,15 @@ def test_comparison_of_the_pair(demo_run):
     # should not be rejected at any reasonable level, the "same DFE on S" one should.
     assert float(by["ne_only_lrt"]["p_value"]) > 0.01
     assert float(by["shared_dfe_lrt"]["p_value"]) < 1e-6
-    # Bootstraps: the AIC-best model of each population and the compared model.
+    # Bootstraps: every family (the averaged headline's interval needs them all), every
+    # replicate in its place.
     for name, p in pops.items():
         booted = set(p["bootstrap"]["models"])
-        assert booted == {p["best_model"], fit["options"]["compare_model"]}, name
+        assert booted == set(p["models"]), name
         assert p["bootstrap"]["replicates"] == int(BOOT)
+        for b in p["bootstrap"]["models"].values():
+            assert len(b["shares"]) == len(b["converged"]) == int(BOOT)
+        assert len(p["bootstrap"]["averaged"]["shares"]) == int(BOOT)
 
 
 def test_report_and_summary(demo_run):
@@ -541,5 +553,6 @@ def test_flags_make_the_same_kind_of_study(tmp_path):
     assert d.project == {"lake": 20, "spring": 18} and d.block_size == 50_000
     assert d.regions == ["chr1"] and d.ancestral == "outgroup:sister"
     assert st.fit.dfe == ("gamma", "lognormal") and st.fit.bands == (0.0, 1.0, 10.0)
-    assert st.bootstrap.replicates == 100 and st.compare.model == "auto"
+    assert st.bootstrap.replicates == 200 and st.compare.model == "auto"  # the run defaults
+    assert st.bootstrap.models == "all" and st.fit.headline == "averaged"
     runmod.check_files(st)

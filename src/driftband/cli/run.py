@@ -158,7 +158,7 @@ def add_parser(subparsers: Subparsers) -> argparse.ArgumentParser:
         "--bootstrap",
         type=int,
         metavar="B",
-        help="block-bootstrap replicates (default 100; 0: none)",
+        help="block-bootstrap replicates (default 200; 0: none)",
     )
     b.add_argument("--seed", type=int, help="random seed of the bootstrap (default 1)")
     b.add_argument("--level", type=float, help="confidence level (default 0.95)")

@@ -526,11 +526,11 @@ def answer_sentence(v: PopulationView, selected: str) -> str:
         ws = ", ".join(
             f"{m} {fnum(x, 2)}" for m, x in sorted(w.items(), key=lambda t: -t[1]) if is_num(x)
         )
-        under = f"averaged over the DFE families by Akaike weight ({ws})"
+        under = f", averaged over the DFE families by Akaike weight ({ws})"
     else:
-        under = f"under the {v.best} DFE (lowest AIC)"
+        under = f" under the {v.best} DFE (lowest AIC)"
     return (
         f"{v.name}: a share of {fnum(b.share, 2)}{ci} of new {selected} mutations is "
-        f"effectively neutral (|Ne\u00b7s| < {b.hi:g}, |S| < {4 * b.hi:g}), {under}"
+        f"effectively neutral (|Ne\u00b7s| < {b.hi:g}, |S| < {4 * b.hi:g}){under}"
         f"{status}."
     )

@@ -457,6 +457,7 @@ def main() -> None:
         "df",
         "p_value",
         "p_adjusted",
+        "p_at_floor",
         "estimate",
         "ci_low",
         "ci_high",
