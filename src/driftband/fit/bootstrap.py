@@ -22,7 +22,7 @@ from .._parallel import parallel_map, resolve_workers
 from ..defaults import MIN_BLOCKS
 from ..exceptions import DriftbandWarning, InputError
 from ..prf.dfe import DfeExpectation
-from .adaptive import adaptive_summary
+from .adaptive import ALPHA_KEYS, adaptive_replicate
 from .likelihood import SpectrumPair
 from .mle import fit_model
 from .options import FitOptions
@@ -165,12 +165,7 @@ def _replicate_task(args: _ReplicateBatch) -> list[dict[str, Any]]:
                 "loglik": f.loglik,
                 "success": f.success,
             }
-            ad = adaptive_summary(data, f.fixation_ratio)
-            if ad is not None:
-                rep[m.name]["alpha_dfe"] = ad["alpha_dfe"]["alpha"]
-                rep[m.name]["omega_a"] = ad["alpha_dfe"]["omega_a"]
-                rep[m.name]["alpha_classic"] = ad["alpha_classic"]
-                rep[m.name]["alpha_asymptotic"] = ad["alpha_asymptotic"]["alpha"]
+            rep[m.name].update(adaptive_replicate(data, f))
         out.append(rep)
     return out
 
@@ -296,7 +291,7 @@ def _summarise(f: Any, ok: list[dict[str, Any]], replicates: int, level: float) 
     params = {p: np.array([r["params"][p] for r in ok]) for p in f.params}
     params["eps"] = np.array([r["eps"] for r in ok])
     params["fixation_ratio"] = np.array([r["fixation_ratio"] for r in ok])
-    for key in ("alpha_dfe", "omega_a", "alpha_classic", "alpha_asymptotic"):
+    for key in ALPHA_KEYS:
         if ok and key in ok[0]:
             params[key] = np.array([r.get(key, np.nan) for r in ok], dtype=float)
     return ModelBootstrap(
