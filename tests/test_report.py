@@ -368,6 +368,8 @@ def test_alpha_table_few_substitutions_and_beneficial_class(docs):
     text = " ".join(page.text)
     assert cav in text
     assert "\u03b1 implied by the DFE: the share of substitutions" in text
+    plain = " ".join(parse(build_report(fit, None, spectra, PROV)).text)
+    assert "\u03b1 implied by the DFE" not in plain  # no beneficial class: no such line
     md_text = build_summary_md(f2, None, spectra, PROV)
     if model == lake["best_model"]:
         assert "α implied by the DFE = 0.420" in md_text

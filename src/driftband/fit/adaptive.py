@@ -49,9 +49,9 @@ __all__ = [
 ]
 
 #: A choice, not a standard: below 20 substitutions in a class its Poisson relative
-#: standard error 1/√D exceeds 0.22 (that of d_N/d_S, √(1/D_N + 1/D_S), exceeds 0.32 at
-#: 20 and 20), single substitutions move α visibly, and a block bootstrap of a few counts
-#: gives short, lumpy intervals.
+#: standard error 1/√D exceeds 0.22 (that of d_N/d_S, √(1/D_N + 1/D_S), is 0.32 at 20 and
+#: 20), single substitutions move α visibly, and a block bootstrap of a few counts gives
+#: lumpy intervals (most blocks hold none).
 MIN_SUBSTITUTIONS = 20
 #: The α values of one bootstrap replicate (:func:`adaptive_replicate`).
 ALPHA_KEYS = ("alpha_dfe", "omega_a", "alpha_model", "alpha_classic", "alpha_asymptotic")
@@ -230,7 +230,7 @@ def small_count_caveat(dn: float, ds: float) -> str | None:
     return (
         f"only {dn:.0f} selected and {ds:.0f} neutral substitutions (fewer than "
         f"{MIN_SUBSTITUTIONS} in a class): α and ω_a from these counts are rough, and a "
-        "bootstrap interval would understate their uncertainty"
+        "bootstrap interval of so few counts is not reliable"
     )
 
 

@@ -609,9 +609,9 @@ def _adaptive(v: PopulationView, view: ReportView) -> str:
     )
     if caveat:
         out.append(f'<p class="flag">\u26a0 {esc(caveat)}.</p>')
-    out.append(
-        '<ul class="note">' + "".join(f"<li>{esc(t)}</li>" for t in ALPHA_EXPLAINED) + "</ul>"
-    )
+    implied = any(is_num((a.get("alpha_dfe") or {}).get("alpha_model")) for a in present.values())
+    lines = ALPHA_EXPLAINED if implied else ALPHA_EXPLAINED[:-1]  # the last: α implied
+    out.append('<ul class="note">' + "".join(f"<li>{esc(t)}</li>" for t in lines) + "</ul>")
     return "\n".join(out)
 
 
