@@ -10,5 +10,23 @@ the 2-core development machine under load, and the demo run's fit stage 10.9 s a
 
 import os
 
+import pytest
+
 for _key in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS"):
     os.environ.setdefault(_key, "1")
+
+
+@pytest.fixture
+def failing_optimizer(monkeypatch):
+    """Every scipy.optimize.minimize call of the fit optimiser stops after one iteration
+    and reports failure (to test how non-convergence is flagged and warned about)."""
+    from driftband.fit import optimize as fit_optimize
+
+    real = fit_optimize.optimize.minimize
+
+    def failing(*args, **kwargs):
+        r = real(*args, **{**kwargs, "options": {"maxiter": 1}})
+        r.success = False
+        return r
+
+    monkeypatch.setattr(fit_optimize.optimize, "minimize", failing)

@@ -343,6 +343,39 @@ def test_report_without_compare_and_spectra(docs):
     assert "headline" in page.tables and "diversity-pop1-lake" not in page.tables
 
 
+def test_alpha_table_few_substitutions_and_beneficial_class(docs):
+    """Few substitutions: the α values carry the caveat and no bootstrap interval; a
+    beneficial class adds the α implied by the DFE, whose interval does not rest on the
+    divergence counts; every row of the table is explained in a line of plain words."""
+    fit, _rows, spectra = docs
+    f2 = copy.deepcopy(fit)
+    lake = f2["populations"]["lake"]
+    cav = "only 4 selected and 10 neutral substitutions (fewer than 20 in a class)"
+    model = next(m for m, a in lake["adaptive"].items() if a)
+    for a in lake["adaptive"].values():
+        if a:
+            a["caveat"] = cav
+    lake["adaptive"][model]["alpha_dfe"]["alpha_model"] = 0.42
+    ci = lake["bootstrap"]["models"][model]["params_ci"]
+    ci["alpha_model"] = [0.31, 0.52]
+    page = parse(build_report(f2, None, spectra, PROV))
+    rows = page.tables["alpha-pop1-lake"][1:]
+    dfe_rows = [r for r in rows if r[0].startswith("\u03b1, DFE-corrected")]
+    assert dfe_rows and all(r[3] == "not shown (few substitutions)" for r in dfe_rows)
+    assert all("\u26a0" in r[2] for r in dfe_rows)
+    implied = [r for r in rows if r[0].startswith("\u03b1 implied by the DFE")]
+    assert [(r[1], r[2], r[3]) for r in implied] == [(model, "0.420", "0.310\u20130.520")]
+    text = " ".join(page.text)
+    assert cav in text
+    assert "\u03b1 implied by the DFE: the share of substitutions" in text
+    plain = " ".join(parse(build_report(fit, None, spectra, PROV)).text)
+    assert "\u03b1 implied by the DFE" not in plain  # no beneficial class: no such line
+    md_text = build_summary_md(f2, None, spectra, PROV)
+    if model == lake["best_model"]:
+        assert "α implied by the DFE = 0.420" in md_text
+    assert cav in md_text
+
+
 def test_minimal_fit_and_labelled_spectra(docs):
     """A fit without bootstrap, divergence or AIC table; populations labelled by dataset."""
     fit, _rows, spectra = docs

@@ -24,6 +24,7 @@ runs every pair and adjusts the p-values across pairs.
 
 from __future__ import annotations
 
+import warnings
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -31,7 +32,7 @@ import numpy as np
 from scipy import stats
 
 from ..defaults import COMPARE_TESTS, MIN_BLOCKS
-from ..exceptions import InputError, OptionError
+from ..exceptions import ConvergenceWarning, InputError, OptionError
 from ..fit.likelihood import Objective, SpectrumPair
 from ..fit.mle import FitResult
 from ..fit.models import DfeModel
@@ -95,7 +96,8 @@ def _joint_fit(
 ) -> tuple[float, np.ndarray, bool]:
     """Maximise Σ log L_k(x + shift_k, ε_k) over a shared DFE vector x and per-pop ε.
 
-    Returns the maximum, the maximiser and the optimiser's convergence flag.
+    Returns the maximum (the objective at the maximiser, which lies within the bounds),
+    the maximiser and the optimiser's convergence flag.
     """
     k = model.n_free
     n_eps = [1 if o.free_eps else 0 for o in objs]
@@ -130,8 +132,17 @@ def _starts(
 
 
 def _not_converged(rows: list[ComparisonRow], converged: bool) -> None:
+    """Record the joint fit's convergence in the last row; note and warn when it failed."""
+    row = rows[-1]
+    row.extra["converged"] = bool(converged)
     if not converged:
-        rows[-1].note += "; the joint fit did not converge (treat the test with caution)"
+        row.note += "; the joint fit did not converge (treat the test with caution)"
+        warnings.warn(
+            f"{row.population_a} vs {row.population_b} / {row.model}: the joint fit of "
+            f"{row.test} did not converge; treat the test with caution",
+            ConvergenceWarning,
+            stacklevel=3,
+        )
 
 
 def compare_pair(

@@ -22,7 +22,7 @@ from .._parallel import parallel_map, resolve_workers
 from ..defaults import MIN_BLOCKS
 from ..exceptions import DriftbandWarning, InputError
 from ..prf.dfe import DfeExpectation
-from .adaptive import adaptive_summary
+from .adaptive import ALPHA_KEYS, adaptive_replicate
 from .likelihood import SpectrumPair
 from .mle import fit_model
 from .options import FitOptions
@@ -173,12 +173,7 @@ def _replicate_task(args: _ReplicateBatch) -> list[dict[str, Any]]:
                 "loglik": f.loglik,
                 "success": f.success,
             }
-            ad = adaptive_summary(data, f.fixation_ratio)
-            if ad is not None:
-                rep[m.name]["alpha_dfe"] = ad["alpha_dfe"]["alpha"]
-                rep[m.name]["omega_a"] = ad["alpha_dfe"]["omega_a"]
-                rep[m.name]["alpha_classic"] = ad["alpha_classic"]
-                rep[m.name]["alpha_asymptotic"] = ad["alpha_asymptotic"]["alpha"]
+            rep[m.name].update(adaptive_replicate(data, f))
         out.append(rep)
     return out
 
@@ -344,7 +339,7 @@ def _summarise(f: Any, reps: list[dict[str, Any] | None], level: float) -> Model
     params = {p: col(lambda r, p=p: r["params"][p]) for p in f.params}
     params["eps"] = col(lambda r: r["eps"])
     params["fixation_ratio"] = col(lambda r: r["fixation_ratio"])
-    for key in ("alpha_dfe", "omega_a", "alpha_classic", "alpha_asymptotic"):
+    for key in ALPHA_KEYS:
         if any(r and key in r for r in reps):
             params[key] = col(lambda r, key=key: r.get(key, nan))
     ok = converged & np.all(np.isfinite(shares), axis=1)

@@ -18,6 +18,7 @@ import numpy as np
 from ..defaults import DEFAULT_EDGES_NES
 from ..exceptions import ConvergenceWarning
 from ..prf.dfe import DfeExpectation, mean_fixation_ratio
+from ..prf.expected import fixation_ratio as kimura_u
 from ..prf.families import band_shares
 from .likelihood import Objective, SpectrumPair
 from .models import DfeModel
@@ -54,6 +55,12 @@ class FitResult:
         Edges on |Ne·s|.
     shares : ndarray
         Share of new selected-class mutations in each |Ne·s| band.
+    fixation_ratio : float
+        :math:`\bar r`, the mean substitution rate of new selected-class mutations relative
+        to neutral over the whole DFE (beneficial class included).
+    fixation_ratio_deleterious : float
+        :math:`\bar r_{del}`, the same over the deleterious part alone (equal to
+        ``fixation_ratio`` without a beneficial class).
     """
 
     population: str
@@ -80,6 +87,7 @@ class FitResult:
     n_starts: int = 0
     n_eval: int = 0
     equilibrium: bool = False
+    fixation_ratio_deleterious: float = float("nan")
 
     def residuals(self) -> dict[str, np.ndarray]:
         """Pearson residuals (obs − exp)/√exp of both classes."""
@@ -118,6 +126,7 @@ class FitResult:
             "band_edges": list(self.band_edges),
             "shares": self.shares.tolist(),
             "fixation_ratio": self.fixation_ratio,
+            "fixation_ratio_deleterious": self.fixation_ratio_deleterious,
             "observed": {
                 "neutral": self.observed_neutral.tolist(),
                 "selected": self.observed_selected.tolist(),
@@ -180,12 +189,29 @@ class FitResult:
             n_starts=int(opt.get("starts", 0)),
             n_eval=int(opt.get("evaluations", 0)),
             equilibrium=bool(d.get("equilibrium", False)),
+            fixation_ratio_deleterious=_deleterious_ratio(d),
         )
+
+    def beneficial(self) -> tuple[float, float]:
+        """(p_b, S_b) of the beneficial class; (0, NaN) without one."""
+        return self.params.get("p_b", 0.0), self.params.get("S_b", float("nan"))
 
 
 def _nan(v: Any) -> float:
     """A number of a fit file: ``None`` (how JSON stores NaN and inf here) as NaN."""
     return float("nan") if v is None else float(v)
+
+
+def _deleterious_ratio(d: dict[str, Any]) -> float:
+    """r̄_del of a fit-file model entry; files written before it was stored give it from
+    r̄ = (1 − p_b) r̄_del + p_b u(S_b)."""
+    if "fixation_ratio_deleterious" in d:
+        return _nan(d["fixation_ratio_deleterious"])
+    r, params = _nan(d["fixation_ratio"]), d.get("params") or {}
+    if "p_b" not in params:
+        return r
+    p_b, s_b = _nan(params["p_b"]), _nan(params["S_b"])
+    return (r - p_b * float(kimura_u(s_b))) / (1.0 - p_b)
 
 
 def _hessian(f, x, bounds, h=1e-4):
@@ -334,6 +360,7 @@ def fit_model(
         band_edges=tuple(edges_nes),
         shares=band_shares(dfe, edges_nes),
         fixation_ratio=float(mean_fixation_ratio(dfe)),
+        fixation_ratio_deleterious=float(mean_fixation_ratio(dfe, "deleterious")),
         observed_neutral=data.neutral.copy(),
         observed_selected=data.selected.copy(),
         expected_neutral=ln,

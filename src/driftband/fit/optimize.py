@@ -2,7 +2,8 @@
 
 Multi-start L-BFGS-B on the unconstrained scale (bounded), optionally after screening a
 grid of starting points by one evaluation each, then a Nelder–Mead polish from the best
-point (robust to flat or kinked directions of a profile likelihood). The fits of one
+point (robust to flat or kinked directions of a profile likelihood), bounded as well: the
+returned point lies within the bounds and the returned value is the objective there. The fits of one
 population (:func:`driftband.fit.mle.fit_model`) and the joint fits of a pair of
 populations (:mod:`driftband.compare`) both go through :func:`minimize_multistart`, so that
 they share one set of tolerances and one convergence rule.
@@ -36,7 +37,7 @@ class Optimum:
     x : ndarray, shape (k,)
         Minimiser (inside the bounds).
     fun : float
-        Objective at ``x``.
+        Objective at ``x`` (evaluated there).
     success : bool
         The optimiser's own convergence flag at the final point (the polish's when it ran).
     message : str
@@ -77,8 +78,8 @@ def minimize_multistart(
         When more starts are given, evaluate each once and refine only the best
         ``screen`` of them (ties keep their order).
     polish : {"if_failed", "always"}
-        Run the Nelder–Mead polish only when the best L-BFGS-B run did not converge, or
-        always (the polished point is kept when it is no worse).
+        Run the (bounded) Nelder–Mead polish only when the best L-BFGS-B run did not
+        converge, or always (the polished point is kept when it is no worse).
 
     Returns
     -------
@@ -98,9 +99,15 @@ def minimize_multistart(
     best = runs[0]
     xbest, fbest, converged = best.x, float(best.fun), bool(best.success)
     if polish == "always" or not converged:
-        pol = optimize.minimize(f, best.x, method="Nelder-Mead", options=NELDER_MEAD_OPTIONS)
-        if pol.fun <= fbest:
-            xbest, fbest = np.clip(pol.x, lo, hi), float(pol.fun)
+        pol = optimize.minimize(
+            f, best.x, method="Nelder-Mead", bounds=bounds, options=NELDER_MEAD_OPTIONS
+        )
+        # scipy keeps the simplex inside the bounds; the clip only guards against
+        # rounding, and the objective is taken at the very point returned
+        xpol = np.clip(pol.x, lo, hi)
+        fpol = float(f(xpol))
+        if fpol <= fbest:
+            xbest, fbest = xpol, fpol
         converged = bool(pol.success) or (polish == "always" and converged)
     agree = sum(1 for r in runs if r.fun - fbest < AGREE_TOL)
     msg = (

@@ -447,9 +447,7 @@ class PopulationFit:
             "models": {k: f.to_dict() for k, f in self.fits.items()},
             "bootstrap": {} if self.bootstrap is None else self.bootstrap.to_dict(),
             "headline": self.headline().to_dict(),
-            "adaptive": {
-                k: adaptive_summary(self.data, f.fixation_ratio) for k, f in self.fits.items()
-            },
+            "adaptive": {k: adaptive_summary(self.data, f) for k, f in self.fits.items()},
         }
 
     @classmethod

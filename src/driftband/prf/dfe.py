@@ -13,6 +13,7 @@ from __future__ import annotations
 import functools
 import math
 from collections.abc import Callable, Iterable
+from typing import Literal
 
 import numpy as np
 from scipy.special import gammaln, zeta
@@ -131,11 +132,14 @@ def _expect_t(
     return float(dens @ fn(t)) + p0 * small_t[0] + m0 * small_t[1]
 
 
-def mean_fixation_ratio(dfe: Dfe) -> float:
+def mean_fixation_ratio(dfe: Dfe, part: Literal["all", "deleterious"] = "all") -> float:
     r"""Mean substitution rate of new mutations relative to neutral, :math:`\bar r`.
 
-    :math:`\bar r = E_F[S/(1-e^{-S})]` (Kimura 1962 per mutation), including a
-    beneficial point mass: :math:`(1-p_b) E[t/(e^t - 1)] + p_b s_b/(1-e^{-s_b})`.
+    :math:`\bar r = E_F[S/(1-e^{-S})]` (Kimura 1962 per mutation). With a beneficial
+    point mass, ``part="all"`` gives :math:`(1-p_b)\,\bar r_{del} + p_b\,u(s_b)` and
+    ``part="deleterious"`` gives :math:`\bar r_{del} = E[t/(e^t - 1)]` over the deleterious
+    part alone (not weighted by :math:`1-p_b`), with :math:`u(S) = S/(1-e^{-S})`. Without a
+    beneficial class the two are equal.
 
     For the gamma family the closed form
     :math:`E[t/(e^t-1)] = \beta\lambda^\beta \zeta(\beta+1, 1+\lambda)` (Hurwitz zeta,
@@ -145,6 +149,8 @@ def mean_fixation_ratio(dfe: Dfe) -> float:
     Parameters
     ----------
     dfe : DFE object
+    part : {"all", "deleterious"}
+        The whole DFE, or its deleterious part only.
 
     Returns
     -------
@@ -155,6 +161,8 @@ def mean_fixation_ratio(dfe: Dfe) -> float:
     >>> round(mean_fixation_ratio(GammaDfe(shape=0.2, mean=100.0)), 4)
     0.3225
     """
+    if part not in ("all", "deleterious"):
+        raise ValueError(f"part must be 'all' or 'deleterious', not {part!r}")
     base, p_b, s_b = split_dfe(dfe)
     r = math.nan
     if isinstance(base, GammaDfe):
@@ -171,7 +179,7 @@ def mean_fixation_ratio(dfe: Dfe) -> float:
                 return t / np.expm1(t)
 
         r = _expect_t(base, fn, (1.0, -0.5))
-    if p_b > 0:
+    if p_b > 0 and part == "all":
         r = (1.0 - p_b) * r + p_b * float(fixation_ratio(s_b))
     return r
 

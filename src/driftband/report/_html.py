@@ -10,6 +10,7 @@ from typing import Any
 
 from ._plots import bands_figure, spectra_figure
 from ._text import (
+    ALPHA_EXPLAINED,
     CAUTIONS,
     CONVENTIONS,
     MINUS,
@@ -377,6 +378,8 @@ def _params_table(v: PopulationView) -> str:
             items.append(("eps", f.get("eps")))
         items.append(("theta", f.get("theta")))
         items.append(("fixation_ratio", f.get("fixation_ratio")))
+        if "p_b" in (f.get("params") or {}) and "fixation_ratio_deleterious" in f:
+            items.append(("fixation_ratio_deleterious", f.get("fixation_ratio_deleterious")))
         for name, val in items:
             got = ci.get(name)
             c = got if isinstance(got, list) else [None, None]
@@ -520,10 +523,18 @@ def _adaptive(v: PopulationView, view: ReportView) -> str:
         )
     ]
     best_ci = v.model_ci(v.best).get("params_ci") or {}
+    caveat = first.get("caveat")
+    # few substitutions: no bootstrap interval of the count-based estimates (item text)
+    few = _num("not shown (few substitutions)")
 
-    def ci(d, key):
+    def ci(d, key, counts=True):
         c = d.get(key)
+        if counts and caveat:
+            return few
         return _num(frange(c[0], c[1], 3)) if isinstance(c, list) and len(c) == 2 else _num(NA)
+
+    def val(x, digits=3):
+        return _num(fnum(x, digits) + (" \u26a0" if caveat else ""))
 
     asym = first.get("alpha_asymptotic") or {}
     rows = [
@@ -531,7 +542,7 @@ def _adaptive(v: PopulationView, view: ReportView) -> str:
             [
                 "\u03b1, classic (Smith & Eyre-Walker 2002)",
                 "\u2014",
-                _num(fnum(first.get("alpha_classic"))),
+                val(first.get("alpha_classic")),
                 ci(best_ci, "alpha_classic"),
             ],
             "",
@@ -540,7 +551,7 @@ def _adaptive(v: PopulationView, view: ReportView) -> str:
             [
                 f"\u03b1, asymptotic (Messer & Petrov 2013; {asym.get('fit', NA)} fit)",
                 "\u2014",
-                _num(fnum(asym.get("alpha"))),
+                val(asym.get("alpha")),
                 ci(best_ci, "alpha_asymptotic"),
             ],
             "",
@@ -558,7 +569,7 @@ def _adaptive(v: PopulationView, view: ReportView) -> str:
                 [
                     "\u03b1, DFE-corrected (Eyre-Walker & Keightley 2009)",
                     m,
-                    _num(fnum(d.get("alpha"))),
+                    val(d.get("alpha")),
                     ci(mci, "alpha_dfe"),
                 ],
                 cls,
@@ -569,13 +580,25 @@ def _adaptive(v: PopulationView, view: ReportView) -> str:
                 [
                     "\u03c9_a, adaptive substitution rate relative to neutral",
                     m,
-                    _num(fnum(d.get("omega_a"), 4)),
+                    val(d.get("omega_a"), 4),
                     ci(mci, "omega_a"),
                 ],
                 cls,
             )
         )
-        rows.append((["\u03c9 = d_N/d_S", m, _num(fnum(d.get("omega"), 4)), _num(NA)], cls))
+        rows.append((["\u03c9 = d_N/d_S", m, val(d.get("omega"), 4), _num(NA)], cls))
+        if is_num(d.get("alpha_model")):
+            rows.append(
+                (
+                    [
+                        "\u03b1 implied by the DFE (beneficial class)",
+                        m,
+                        _num(fnum(d.get("alpha_model"))),
+                        ci(mci, "alpha_model", counts=False),
+                    ],
+                    cls,
+                )
+            )
     out.append(
         _table(
             f"alpha-{v.anchor}",
@@ -584,6 +607,11 @@ def _adaptive(v: PopulationView, view: ReportView) -> str:
             rows,
         )
     )
+    if caveat:
+        out.append(f'<p class="flag">\u26a0 {esc(caveat)}.</p>')
+    implied = any(is_num((a.get("alpha_dfe") or {}).get("alpha_model")) for a in present.values())
+    lines = ALPHA_EXPLAINED if implied else ALPHA_EXPLAINED[:-1]  # the last: α implied
+    out.append('<ul class="note">' + "".join(f"<li>{esc(t)}</li>" for t in lines) + "</ul>")
     return "\n".join(out)
 
 

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import re
 
-from ._text import CAUTIONS, CONVENTIONS, NA, fnum, frange, pct
+from ._text import CAUTIONS, CONVENTIONS, NA, fnum, frange, is_num, pct
 from ._view import ReportView, answer_sentence
 
 __all__ = ["render_markdown"]
@@ -127,11 +127,14 @@ def render_markdown(view: ReportView) -> str:
         if isinstance(ad, dict):
             d = ad.get("alpha_dfe") or {}
             asym = ad.get("alpha_asymptotic") or {}
+            implied = d.get("alpha_model")
             out.append(
                 f"- α (DFE-corrected, {md(v.best)}) = {fnum(d.get('alpha'))}, "
                 f"ω_a = {fnum(d.get('omega_a'), 4)}; α classic = "
                 f"{fnum(ad.get('alpha_classic'))}; α asymptotic = "
                 f"{fnum(asym.get('alpha'))}"
+                + (f"; α implied by the DFE = {fnum(implied)}" if is_num(implied) else "")
+                + (f" (⚠ {md(ad['caveat'])})" if ad.get("caveat") else "")
             )
         out.append("")
     out += ["## Conventions", ""] + [f"- {md(c)}" for c in CONVENTIONS]

@@ -159,6 +159,22 @@ CAUTIONS = [
     ),
 ]
 
+#: One line per α estimate of the report's α table, in plain words.
+ALPHA_EXPLAINED = (
+    "\u03b1, classic: the share of selected-class substitutions that were adaptive, from "
+    "the McDonald\u2013Kreitman counts alone; slightly deleterious polymorphisms bias it "
+    "down.",
+    "\u03b1, asymptotic: the same share read off at high derived frequencies, where "
+    "slightly deleterious polymorphisms are rare.",
+    "\u03b1, DFE-corrected: the share of substitutions beyond what the fitted deleterious "
+    "and neutral mutations would fix by drift (beneficial mutations count as adaptive).",
+    "\u03c9_a: the rate of those adaptive substitutions per selected site, relative to the "
+    "neutral substitution rate.",
+    "\u03b1 implied by the DFE: the share of substitutions that the fitted DFE's "
+    "beneficial class would fix, from the polymorphism fit alone, without the divergence "
+    "counts.",
+)
+
 PARAM_LABELS = {
     "shape": "shape \u03b2 of the gamma distribution of \u2212S",
     "mean_S": "mean of \u2212S (mean |S| of deleterious mutations)",
@@ -169,6 +185,7 @@ PARAM_LABELS = {
     "eps": "ancestral misidentification rate \u03b5",
     "theta": "\u03b8 per site (neutral class, r\u2081 = 1)",
     "fixation_ratio": "mean fixation rate relative to neutral, r\u0304",
+    "fixation_ratio_deleterious": "mean fixation rate of the deleterious part, r\u0304_del",
 }
 
 
