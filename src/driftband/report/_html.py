@@ -377,19 +377,26 @@ def _params_table(v: PopulationView) -> str:
             items.append(("eps", f.get("eps")))
         items.append(("theta", f.get("theta")))
         items.append(("fixation_ratio", f.get("fixation_ratio")))
+        bound = set(f.get("at_bounds") or [])
         for name, val in items:
             got = ci.get(name)
             c = got if isinstance(got, list) else [None, None]
             se_text = fsig(se.get(name)) if name in se else "\u2014"
+            est, ci_text = fsig(val), frange_sig(c[0], c[1])
+            if name in bound:
+                # no estimate ± s.e. for a parameter at a bound (see the flags)
+                est, se_text = f"at bound ({est})", "\u2014"
+                if c[0] is not None and c[0] == c[1]:
+                    ci_text = "\u2014 (every replicate at the bound)"
             rows.append(
                 (
                     [
                         m,
                         name,
                         param_label(name, edges),
-                        _num(fsig(val)),
+                        _num(est),
                         _num(se_text),
-                        _num(frange_sig(c[0], c[1])),
+                        _num(ci_text),
                     ],
                     "best" if m == v.best else "",
                 )
