@@ -29,7 +29,13 @@ log = logging.getLogger("driftband")
 _format_other_warning = warnings.formatwarning
 
 
-def _format_warning(message, category, filename, lineno, line=None):  # type: ignore[no-untyped-def]
+def _format_warning(
+    message: Warning | str,
+    category: type[Warning],
+    filename: str,
+    lineno: int,
+    line: str | None = None,
+) -> str:
     """driftband's own warnings as ``warning: MESSAGE`` (no source line); others as usual."""
     if issubclass(category, DriftbandWarning):
         return f"warning: {message}"
