@@ -386,8 +386,8 @@ def _params_table(v: PopulationView) -> str:
             if name in bound:
                 # no estimate ± s.e. for a parameter at a bound (see the flags)
                 est, se_text = f"at bound ({est})", "\u2014"
-                if c[0] is not None and c[0] == c[1]:
-                    ci_text = "\u2014 (every replicate at the bound)"
+                if c[0] is not None and fsig(c[0]) == fsig(c[1]):
+                    ci_text = "\u2014 (the replicates sit on the bound)"
             rows.append(
                 (
                     [
