@@ -21,6 +21,7 @@ import typing as _typing
 
 from ._version import __version__
 from .exceptions import (
+    BoundWarning,
     ConvergenceWarning,
     DriftbandError,
     DriftbandWarning,
@@ -80,6 +81,7 @@ def __dir__() -> list[str]:
 
 
 __all__ = [
+    "BoundWarning",
     "ConvergenceWarning",
     "DfeExpectation",
     "DfeModel",

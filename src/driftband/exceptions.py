@@ -10,6 +10,7 @@ from __future__ import annotations
 import os
 
 __all__ = [
+    "BoundWarning",
     "ConvergenceWarning",
     "DriftbandError",
     "DriftbandWarning",
@@ -72,3 +73,7 @@ class DriftbandWarning(UserWarning):
 
 class ConvergenceWarning(DriftbandWarning):
     """An optimisation did not converge; the result is kept and flagged."""
+
+
+class BoundWarning(DriftbandWarning):
+    """A fitted parameter lies at a bound of its range; it has no standard error."""

@@ -13,10 +13,11 @@ import importlib
 import logging
 import os
 import sys
+import warnings
 from collections.abc import Sequence
 
 from .._version import __version__
-from ..exceptions import DriftbandError
+from ..exceptions import DriftbandError, DriftbandWarning
 
 __all__ = ["get_parser", "main"]
 
@@ -24,6 +25,21 @@ __all__ = ["get_parser", "main"]
 _SUBCOMMANDS = ["classify", "spectra", "fit", "compare", "report", "run", "demo", "simulate"]
 
 log = logging.getLogger("driftband")
+
+_format_other_warning = warnings.formatwarning
+
+
+def _format_warning(
+    message: Warning | str,
+    category: type[Warning],
+    filename: str,
+    lineno: int,
+    line: str | None = None,
+) -> str:
+    """driftband's own warnings as ``warning: MESSAGE`` (no source line); others as usual."""
+    if issubclass(category, DriftbandWarning):
+        return f"warning: {message}"
+    return _format_other_warning(message, category, filename, lineno, line)
 
 
 def _available_subcommands() -> list:
@@ -63,6 +79,7 @@ def _setup_logging(verbosity: int) -> None:
     log.setLevel(level)
     log.propagate = False
     logging.captureWarnings(True)
+    warnings.formatwarning = _format_warning
     wlog = logging.getLogger("py.warnings")
     wlog.handlers[:] = [handler]
     wlog.propagate = False

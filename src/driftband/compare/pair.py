@@ -18,12 +18,20 @@ For a pair of populations A, B and one DFE family:
     separate DFEs (χ², df = DFE parameters); the predicted neutral share of B is reported
     beside the observed one.
 
+Where the null fit puts a DFE parameter on the boundary of its space (a beneficial mass
+p_b at its lower bound, the stand-in for 0, or a band mass of the discrete family at 0),
+the χ² reference is replaced by the χ̄² mixture of Self & Liang (1987): for one such
+parameter, 0.5·χ²(df − 1) + 0.5·χ²(df) (:func:`chibar2_sf`), and the row's note says so.
+With the shared value at 0 a difference between the populations can only lie on one side
+of it, which is what the mixture accounts for.
+
 This module runs the tests of one pair and does no I/O; :mod:`driftband.compare.api`
 runs every pair and adjusts the p-values across pairs.
 """
 
 from __future__ import annotations
 
+import math
 import warnings
 from dataclasses import dataclass, field
 from typing import Any
@@ -43,7 +51,14 @@ from ..prf.dfe import DfeExpectation
 from ..prf.families import band_shares
 from ..spectra.stats import pi_theta_counts
 
-__all__ = ["ComparisonRow", "compare_pair", "neutral_pi", "scale_shift"]
+__all__ = [
+    "ComparisonRow",
+    "boundary_parameters",
+    "chibar2_sf",
+    "compare_pair",
+    "neutral_pi",
+    "scale_shift",
+]
 
 
 @dataclass
@@ -89,6 +104,85 @@ def neutral_pi(data: SpectrumPair) -> float:
     """π per site of the neutral class (Tajima 1983) from the polymorphic entries."""
     sfs = np.concatenate([[0.0], data.neutral])
     return pi_theta_counts(sfs, data.n, data.folded)[0] / data.sites_neutral
+
+
+def boundary_parameters(model: DfeModel, x: np.ndarray) -> list[str]:
+    """DFE parameters of ``x`` on the boundary of their space (not only of the box).
+
+    ``p_b`` at its lower bound (which stands in for 0) and discrete band masses at 0;
+    the other bounds of :meth:`DfeModel.bounds` keep the optimiser in a sane region and
+    are not boundaries of the parameter space.
+
+    Parameters
+    ----------
+    model : DfeModel
+    x : ndarray
+        Unconstrained DFE vector (of the null fit).
+
+    Returns
+    -------
+    list of str
+    """
+    return [
+        n
+        for n, side, _v in model.at_bounds(x)
+        if side == "lower" and (n == "p_b" or n.startswith("mass_"))
+    ]
+
+
+def chibar2_sf(stat: float, df: int, k: int) -> float:
+    r"""p-value P(T ≥ t) of the χ̄² mixture for ``k`` parameters on the boundary.
+
+    .. math::
+
+        P(T \ge t) = \sum_{j=0}^{k} \binom{k}{j} 2^{-k}\, P(\chi^2_{df-k+j} > t),
+
+    with χ²₀ a point mass at 0 (Self & Liang 1987). For ``k = 1`` this is the 50:50
+    mixture of χ²(df − 1) and χ²(df); for ``k > 1`` the binomial weights hold for
+    asymptotically independent boundary parameters. ``k = 0`` is the plain χ²(df).
+
+    Parameters
+    ----------
+    stat : float
+        The likelihood-ratio statistic (≥ 0).
+    df : int
+        Degrees of freedom of the test without the boundary.
+    k : int
+        Parameters on the boundary (at most ``df``).
+
+    Returns
+    -------
+    float
+
+    Examples
+    --------
+    >>> round(chibar2_sf(2.706, 1, 1), 3)  # half of the chi2(1) tail
+    0.05
+    """
+    k = max(0, min(int(k), int(df)))
+    total = 0.0
+    for j in range(k + 1):
+        d = df - k + j
+        tail = (1.0 if stat <= 0 else 0.0) if d == 0 else float(stats.chi2.sf(stat, d))
+        total += math.comb(k, j) / 2.0**k * tail
+    return total
+
+
+def _lrt_p(stat: float, df: int, model: DfeModel, x_null: np.ndarray) -> tuple[float, str]:
+    """p-value of an LRT (χ², or χ̄² where the null is on a boundary) and a note."""
+    at = boundary_parameters(model, x_null)
+    if not at:
+        return float(stats.chi2.sf(stat, df)), ""
+    k = min(len(at), df)
+    mix = " + ".join(
+        f"{math.comb(k, j) / 2.0**k:g}\u00b7\u03c7\u00b2({df - k + j})" for j in range(k + 1)
+    )
+    note = (
+        f"; p from the \u03c7\u0304\u00b2 mixture {mix} (Self & Liang 1987): the null fit puts "
+        f"{', '.join(at)} on the boundary of its space"
+        + (" (weights for independent boundary parameters)" if k > 1 else "")
+    )
+    return chibar2_sf(stat, df, k), note
 
 
 def _joint_fit(
@@ -200,6 +294,7 @@ def compare_pair(
         ll_joint, z, ok = _joint_fit(objs, model, zero, _starts(model, fa, fb, objs, zero))
         stat = max(0.0, 2.0 * (ll_sep - ll_joint))
         shared = model.to_dfe(z[:df])
+        p, boundary = _lrt_p(stat, df, model, z[:df])
         rows.append(
             ComparisonRow(
                 name_a,
@@ -208,10 +303,10 @@ def compare_pair(
                 model.name,
                 stat,
                 df,
-                float(stats.chi2.sf(stat, df)),
+                p,
                 estimate=float(band_shares(shared, edges)[0]),
                 extra={"loglik_separate": ll_sep, "loglik_shared": ll_joint},
-                note="estimate: neutral-band share under the shared DFE",
+                note="estimate: neutral-band share under the shared DFE" + boundary,
             )
         )
         _not_converged(rows, ok)
@@ -227,6 +322,7 @@ def compare_pair(
         stat = max(0.0, 2.0 * (ll_sep - ll_c))
         pred_b = float(band_shares(model.to_dfe(z[:df] + shift_b), edges)[0])
         pred_a = float(band_shares(model.to_dfe(z[:df]), edges)[0])
+        p, boundary = _lrt_p(stat, df, model, z[:df])
         assumption = (
             "equal mutation rates"
             if not mu
@@ -240,7 +336,7 @@ def compare_pair(
                 model.name,
                 stat,
                 df,
-                float(stats.chi2.sf(stat, df)),
+                p,
                 estimate=float(rho),
                 extra={
                     "ne_ratio": float(rho),
@@ -251,7 +347,7 @@ def compare_pair(
                     "loglik_constrained": ll_c,
                     "loglik_separate": ll_sep,
                 },
-                note=f"estimate: Ne_B/Ne_A from neutral pi ratio, assuming {assumption}",
+                note=f"estimate: Ne_B/Ne_A from neutral pi ratio, assuming {assumption}" + boundary,
             )
         )
         _not_converged(rows, ok)

@@ -16,6 +16,7 @@ import os
 from dataclasses import dataclass
 from typing import Any
 
+from .._options import COMMAND_LINE, OptionSource
 from .._parallel import parallel_map
 from ..exceptions import InputError
 from ..prf.dfe import DfeExpectation
@@ -24,7 +25,14 @@ from .mle import FitResult, fit_model
 from .options import FitOptions
 from .results import PopulationFit
 
-__all__ = ["LabelledSpectra", "block_spectra", "fit_population", "fit_spectra", "pool_populations"]
+__all__ = [
+    "LabelledSpectra",
+    "block_spectra",
+    "check_models_for_data",
+    "fit_population",
+    "fit_spectra",
+    "pool_populations",
+]
 
 log = logging.getLogger("driftband")
 
@@ -176,6 +184,34 @@ def pool_populations(
     return out
 
 
+def check_models_for_data(
+    pooled: list[tuple[str, str, SpectrumPair]],
+    options: FitOptions,
+    source: OptionSource = COMMAND_LINE,
+) -> None:
+    """Refuse a beneficial class on folded spectra, naming the option and the population.
+
+    Folding removes the polarity of S (a derived allele at frequency x and one at 1 − x
+    fall in one class), so a beneficial mass and a deleterious one are not identifiable.
+
+    Raises
+    ------
+    OptionError or InputError
+        A model with a beneficial class and a population with folded spectra (an
+        InputError naming the study file when the models came from one).
+    """
+    ben = [m.name for m in options.models if m.beneficial]
+    folded = [name for name, _ds, data in pooled if data.folded]
+    if ben and folded:
+        raise source.error(
+            "dfe",
+            f"(or {source.name('beneficial')}) asks for {ben[0]}, but population "
+            f"{folded[0]!r} has folded spectra: folding removes the sign of S, so a "
+            "beneficial class is not identifiable; drop the beneficial class or use "
+            "unfolded spectra (with an outgroup)",
+        )
+
+
 def _fit_task(task: tuple[SpectrumPair, FitOptions, str]) -> dict[str, FitResult]:
     """Fit the models of ``options`` to one population (runs in a worker process)."""
     data, options, name = task
@@ -189,6 +225,7 @@ def fit_spectra(
     *,
     workers: int | None = 1,
     scheduler: Any = None,
+    source: OptionSource = COMMAND_LINE,
 ) -> list[PopulationFit]:
     """Point fits of every model of ``options`` to every population of the spectra sets.
 
@@ -203,13 +240,21 @@ def fit_spectra(
         process; None: the cores available). The results do not depend on it.
     scheduler : str or distributed.Client, optional
         Run the tasks on a dask cluster instead.
+    source : OptionSource
+        Where the options came from (for messages).
 
     Returns
     -------
     list of PopulationFit
         In the order of the spectra sets and their populations.
+
+    Raises
+    ------
+    InputError or OptionError
+        See :func:`pool_populations` and :func:`check_models_for_data`.
     """
     pooled = pool_populations(spectra_sets, options, populations)
+    check_models_for_data(pooled, options, source)
     tasks = [
         (data, dataclasses.replace(options, models=(m,)), name)
         for name, _ds, data in pooled

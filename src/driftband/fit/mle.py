@@ -5,6 +5,12 @@ point; convergence is judged by the optimiser's own flag *and* by agreement of t
 starts, and is reported, never hidden (a :class:`~driftband.exceptions.ConvergenceWarning`
 is issued for a fit that did not converge). Standard errors come from a central-difference
 Hessian of the profile log-likelihood, mapped to the natural scale by the delta method.
+
+Parameters whose estimate lies at a bound of the optimiser's box (within
+:data:`~driftband.fit.models.AT_BOUND_TOL` of the bound interval on the unconstrained
+scale; a discrete band mass below :data:`~driftband.fit.models.MASS_TOL`) are listed in
+``FitResult.at_bounds`` and get no standard error: the Wald approximation needs an interior
+maximum (Self & Liang 1987). A :class:`~driftband.exceptions.BoundWarning` names them.
 """
 
 from __future__ import annotations
@@ -16,15 +22,15 @@ from typing import Any
 import numpy as np
 
 from ..defaults import DEFAULT_EDGES_NES
-from ..exceptions import ConvergenceWarning
+from ..exceptions import BoundWarning, ConvergenceWarning, OptionError
 from ..prf.dfe import DfeExpectation, mean_fixation_ratio
 from ..prf.expected import fixation_ratio as kimura_u
 from ..prf.families import band_shares
 from .likelihood import Objective, SpectrumPair
-from .models import DfeModel
+from .models import DfeModel, at_bound
 from .optimize import minimize_multistart
 
-__all__ = ["FitResult", "fit_model"]
+__all__ = ["FitResult", "fit_model", "params_at_bounds"]
 
 
 @dataclass
@@ -37,7 +43,8 @@ class FitResult:
     params : dict of str to float
         DFE parameters on the natural scale (``shape``, ``mean_S`` = mean of −S, ...).
     stderr : dict of str to float
-        Asymptotic standard errors (NaN where the Hessian is not usable).
+        Asymptotic standard errors (NaN where the Hessian is not usable, for a parameter
+        at a bound, and for ``S_b`` when ``p_b`` is at its bound).
     eps : float
         Ancestral misidentification rate (estimated or fixed).
     theta : float
@@ -61,6 +68,10 @@ class FitResult:
     fixation_ratio_deleterious : float
         :math:`\bar r_{del}`, the same over the deleterious part alone (equal to
         ``fixation_ratio`` without a beneficial class).
+    at_bounds : tuple of str
+        Natural-scale names of the parameters (DFE parameters and ``eps``) whose estimate
+        lies at a bound of the fit (see :func:`params_at_bounds`); they have no standard
+        error.
     """
 
     population: str
@@ -88,6 +99,7 @@ class FitResult:
     n_eval: int = 0
     equilibrium: bool = False
     fixation_ratio_deleterious: float = float("nan")
+    at_bounds: tuple[str, ...] = ()
 
     def residuals(self) -> dict[str, np.ndarray]:
         """Pearson residuals (obs − exp)/√exp of both classes."""
@@ -125,6 +137,7 @@ class FitResult:
             "message": self.message,
             "band_edges": list(self.band_edges),
             "shares": self.shares.tolist(),
+            "at_bounds": list(self.at_bounds),
             "fixation_ratio": self.fixation_ratio,
             "fixation_ratio_deleterious": self.fixation_ratio_deleterious,
             "observed": {
@@ -190,6 +203,8 @@ class FitResult:
             n_eval=int(opt.get("evaluations", 0)),
             equilibrium=bool(d.get("equilibrium", False)),
             fixation_ratio_deleterious=_deleterious_ratio(d),
+            # files written before the key existed list nothing
+            at_bounds=tuple(str(v) for v in d.get("at_bounds") or ()),
         )
 
     def beneficial(self) -> tuple[float, float]:
@@ -266,6 +281,46 @@ def _stderr(obj: Objective, x: np.ndarray) -> dict[str, float]:
         return nan
 
 
+def params_at_bounds(obj: Objective, x: np.ndarray) -> list[tuple[str, str, float]]:
+    """The parameters of an estimate that lie at a bound of ``obj.bounds()``.
+
+    Parameters
+    ----------
+    obj : Objective
+    x : ndarray
+        Unconstrained vector (DFE parameters, then logit ε when free).
+
+    Returns
+    -------
+    list of (str, str, float)
+        Natural-scale name (``shape``, ``log_sd``, ``p_b``, ``mass_2``, ``eps``, ...),
+        ``"lower"`` or ``"upper"``, and the bound on the natural scale.
+    """
+    xd, _e = obj.split(x)
+    out = obj.model.at_bounds(xd)
+    if obj.free_eps:
+        b = obj.bounds()[-1]
+        side = at_bound(float(x[-1]), b)
+        if side is not None:
+            v = b[0] if side == "lower" else b[1]
+            out.append(("eps", side, float(1.0 / (1.0 + np.exp(-v)))))
+    return out
+
+
+def _bound_message(label: str, found: list[tuple[str, str, float]]) -> str:
+    """The warning about parameters at a bound, in plain words."""
+    what = "; ".join(f"{n} is at its {side} bound ({v:.4g})" for n, side, v in found)
+    names = [n for n, _s, _v in found]
+    text = (
+        f"{label}: {what}. The data do not place "
+        f"{'it' if len(names) == 1 else 'them'} inside the range the fit allows, so no "
+        "standard error is reported (a Wald s.e. is not valid at a bound)"
+    )
+    if "p_b" in names:
+        text += "; with p_b at its bound S_b is not identified either"
+    return text
+
+
 def fit_model(
     data: SpectrumPair,
     model: DfeModel,
@@ -313,6 +368,11 @@ def fit_model(
     -------
     FitResult
     """
+    if data.folded and model.beneficial:
+        raise OptionError(
+            f"model {model.name}: a beneficial class cannot be fitted to folded spectra "
+            "(folding removes the sign of S); drop '+beneficial' or use unfolded spectra"
+        )
     obj = Objective(data, model, eps=eps, equilibrium=equilibrium, expectation=expectation)
     grid = model.starts()
     if obj.free_eps:
@@ -337,6 +397,17 @@ def fit_model(
     k_nuis = 1 if equilibrium else data.m
     n_params = model.n_free + k_nuis + (1 if obj.free_eps else 0)
     se = _stderr(obj, xbest) if stderr else {}
+    bound = params_at_bounds(obj, xbest)
+    names = tuple(n for n, _s, _v in bound)
+    unset = names + (("S_b",) if "p_b" in names and "S_b" not in names else ())
+    se = {k: float("nan") if k in unset else v for k, v in se.items()}
+    if bound and stderr:
+        # once per point fit; bootstrap refits (stderr=False) stay quiet
+        warnings.warn(
+            _bound_message(f"{population or 'population'} / {model.name}", bound),
+            BoundWarning,
+            stacklevel=2,
+        )
     if not success:
         warnings.warn(
             f"{population or 'population'} / {model.name}: the fit did not converge ({msg})",
@@ -369,4 +440,5 @@ def fit_model(
         n_starts=len(opt.runs),
         n_eval=obj.n_eval,
         equilibrium=equilibrium,
+        at_bounds=names,
     )

@@ -20,7 +20,7 @@ from ..prf.families import DiscreteDfe, GammaDfe, LognormalDfe, WithBeneficial
 if TYPE_CHECKING:
     from ..prf.dfe import BaseDfe, Dfe
 
-__all__ = ["FAMILIES", "DfeModel", "parse_models"]
+__all__ = ["AT_BOUND_TOL", "FAMILIES", "MASS_TOL", "DfeModel", "at_bound", "parse_models"]
 
 FAMILIES = ("gamma", "lognormal", "discrete")
 
@@ -28,6 +28,13 @@ FAMILIES = ("gamma", "lognormal", "discrete")
 # shape in [0.01, 100], mean |S| in [1e-4, 1e7], lognormal sigma in [0.01, 30], S_b in
 # [0.01, 1e4], p_b in [1e-6, 0.5].
 _LOG = np.log
+
+#: A coordinate lies at a bound when it is within this fraction of its bound interval
+#: (on the unconstrained scale) of either end.
+AT_BOUND_TOL = 1e-3
+#: A band mass of the discrete family lies at its bound 0 below this (the softmax has no
+#: bound per mass; 1e-6 of the mass's interval [0, 1]).
+MASS_TOL = 1e-6
 
 
 def _logit(p: float) -> float:
@@ -95,6 +102,43 @@ class DfeModel:
             b += [(_logit(1e-6), _logit(0.5)), (_LOG(0.01), _LOG(1e4))]
         return b
 
+    def at_bounds(self, x: np.ndarray) -> list[tuple[str, str, float]]:
+        """The DFE parameters of ``x`` that lie at a bound of :meth:`bounds`.
+
+        A coordinate counts when it is within ``AT_BOUND_TOL`` of its bound interval of
+        an end; a band mass of the discrete family when it is below ``MASS_TOL``.
+
+        Parameters
+        ----------
+        x : ndarray, shape (n_free,)
+            Unconstrained DFE vector.
+
+        Returns
+        -------
+        list of (str, str, float)
+            Natural-scale name, ``"lower"`` or ``"upper"``, and the bound on the natural
+            scale, in the order of :attr:`param_names`.
+        """
+        x = np.asarray(x, dtype=float)
+        nat = self.natural(x)
+        out: list[tuple[str, str, float]] = []
+        if self.family == "discrete":
+            masses = [n for n in self.param_names if n.startswith("mass_")]
+            out += [(n, "lower", 0.0) for n in masses if nat[n] < MASS_TOL]
+            coords = list(range(self.n_free - 2, self.n_free)) if self.beneficial else []
+            names = ["p_b", "S_b"] if self.beneficial else []
+        else:
+            coords = list(range(self.n_free))
+            names = list(self.param_names)
+        bounds = self.bounds()
+        for j, name in zip(coords, names):
+            side = at_bound(float(x[j]), bounds[j])
+            if side is not None:
+                xb = x.copy()
+                xb[j] = bounds[j][0 if side == "lower" else 1]
+                out.append((name, side, self.natural(xb)[name]))
+        return out
+
     def to_dfe(self, x: np.ndarray) -> Dfe:
         """DFE object for an unconstrained vector ``x``."""
         x = np.asarray(x, dtype=float)
@@ -154,6 +198,24 @@ class DfeModel:
             return base
         ben = [np.array([_logit(0.01), np.log(10.0)]), np.array([_logit(0.05), np.log(100.0)])]
         return [np.concatenate([b, e]) for b in base for e in ben]
+
+
+def at_bound(value: float, bound: tuple[float, float]) -> str | None:
+    """``"lower"`` or ``"upper"`` when ``value`` is within ``AT_BOUND_TOL`` of the width
+    of ``bound`` of that end, else None.
+
+    Examples
+    --------
+    >>> at_bound(-13.79, (-13.8, -0.01)), at_bound(-5.0, (-13.8, -0.01))
+    ('lower', None)
+    """
+    lo, hi = bound
+    tol = AT_BOUND_TOL * (hi - lo)
+    if value <= lo + tol:
+        return "lower"
+    if value >= hi - tol:
+        return "upper"
+    return None
 
 
 def parse_models(

@@ -380,19 +380,26 @@ def _params_table(v: PopulationView) -> str:
         items.append(("fixation_ratio", f.get("fixation_ratio")))
         if "p_b" in (f.get("params") or {}) and "fixation_ratio_deleterious" in f:
             items.append(("fixation_ratio_deleterious", f.get("fixation_ratio_deleterious")))
+        bound = set(f.get("at_bounds") or [])
         for name, val in items:
             got = ci.get(name)
             c = got if isinstance(got, list) else [None, None]
             se_text = fsig(se.get(name)) if name in se else "\u2014"
+            est, ci_text = fsig(val), frange_sig(c[0], c[1])
+            if name in bound:
+                # no estimate ± s.e. for a parameter at a bound (see the flags)
+                est, se_text = f"at bound ({est})", "\u2014"
+                if c[0] is not None and fsig(c[0]) == fsig(c[1]):
+                    ci_text = "\u2014 (the replicates sit on the bound)"
             rows.append(
                 (
                     [
                         m,
                         name,
                         param_label(name, edges),
-                        _num(fsig(val)),
+                        _num(est),
                         _num(se_text),
-                        _num(frange_sig(c[0], c[1])),
+                        _num(ci_text),
                     ],
                     "best" if m == v.best else "",
                 )

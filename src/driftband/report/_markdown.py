@@ -3,8 +3,9 @@
 from __future__ import annotations
 
 import re
+from typing import Any
 
-from ._text import CAUTIONS, CONVENTIONS, NA, fnum, frange, is_num, pct
+from ._text import CAUTIONS, CONVENTIONS, NA, fnum, frange, fsig, is_num, pct
 from ._view import ReportView, answer_sentence
 
 __all__ = ["render_markdown"]
@@ -25,6 +26,19 @@ def cell(text: object) -> str:
 
 def _row(cells: list[str]) -> str:
     return "| " + " | ".join(cells) + " |"
+
+
+def _at_bounds_text(record: dict[str, Any]) -> str:
+    """``lognormal: log_sd at bound (0.01); gamma: eps at bound (1.016e−6)`` or empty."""
+    parts = []
+    for m, f in (record.get("models") or {}).items():
+        params = dict(f.get("params") or {}, eps=f.get("eps"))
+        names = f.get("at_bounds") or []
+        if names:
+            parts.append(
+                f"{m}: " + ", ".join(f"{n} at bound ({fsig(params.get(n))})" for n in names)
+            )
+    return "; ".join(parts)
 
 
 def render_markdown(view: ReportView) -> str:
@@ -123,6 +137,9 @@ def render_markdown(view: ReportView) -> str:
                 f"{md(view.neutral)} {fnum(sn.get('tajimas_d'))}, "
                 f"{md(view.selected)} {fnum(ss.get('tajimas_d'))}"
             )
+        at = _at_bounds_text(v.record)
+        if at:
+            out.append(f"- parameters at a bound (no standard error): {md(at)}")
         ad = (v.record.get("adaptive") or {}).get(v.best)
         if isinstance(ad, dict):
             d = ad.get("alpha_dfe") or {}

@@ -15,9 +15,9 @@ from typing import Any
 
 from ..exceptions import InputError
 from ._inputs import check_compare_rows, check_fit_doc, check_spectra_doc
-from ._text import ALPHA_LEVEL, band_label, digits_for, fnum, fp, frange, is_num, pct
+from ._text import ALPHA_LEVEL, band_label, digits_for, fnum, fp, frange, fsig, is_num, pct
 
-__all__ = ["Band", "PairView", "PopulationView", "ReportView", "collect"]
+__all__ = ["Band", "PairView", "PopulationView", "ReportView", "bound_flag", "collect"]
 
 RESIDUAL_FLAG = 3.0  # |Pearson residual| above which a class is pointed out
 
@@ -180,8 +180,19 @@ def _flags(name: str, p: dict[str, Any], blocks: float | None) -> list[str]:
                 )
             else:
                 out.append(f"Model {m} did not converge ({msg}); it is left out of the AIC choice.")
+    for m, f in p["models"].items():
+        names = dfe_at_bounds(f)
+        if names:
+            out.append(
+                f"Model {m}: {', '.join(names)} at bound ({_bound_values(f, names)}); "
+                "the data do not place "
+                f"{'this parameter' if len(names) == 1 else 'these parameters'} inside "
+                "the range the fit allows, so no standard error is shown and the band shares "
+                "of this model rest on a limit of the fit."
+            )
     se = p["models"][best].get("stderr") or {}
-    missing = [k for k, v in se.items() if not is_num(v)]
+    unset = _no_wald(p["models"][best])
+    missing = [k for k, v in se.items() if not is_num(v) and k not in unset]
     if missing:
         out.append(
             f"No asymptotic standard error for {', '.join(missing)} of the best model "
@@ -222,6 +233,44 @@ def _flags(name: str, p: dict[str, Any], blocks: float | None) -> list[str]:
             "not capture the shape of the spectra."
         )
     return out
+
+
+def dfe_at_bounds(fit: dict[str, Any]) -> list[str]:
+    """The DFE parameters of a model record that lie at a bound (``eps`` left out)."""
+    return [str(n) for n in fit.get("at_bounds") or [] if n != "eps"]
+
+
+def _no_wald(fit: dict[str, Any]) -> set[str]:
+    """Parameters of a model record without a Wald s.e. by design: at a bound, and
+    ``S_b`` when ``p_b`` is at its bound (not identified)."""
+    names = {str(n) for n in fit.get("at_bounds") or []}
+    return names | ({"S_b"} if "p_b" in names else set())
+
+
+def _bound_values(fit: dict[str, Any], names: list[str]) -> str:
+    params = dict(fit.get("params") or {}, eps=fit.get("eps"))
+    return ", ".join(f"{n} = {fsig(params.get(n))}" for n in names)
+
+
+def bound_flag(fit: dict[str, Any]) -> str:
+    """The flag of a headline share from a model with a DFE parameter at a bound.
+
+    Parameters
+    ----------
+    fit : dict
+        One model's record of a fit file (``populations[...]["models"][name]``).
+
+    Returns
+    -------
+    str
+        E.g. ``"log_sd at bound: the share rests on a limit of the fit"``; empty when
+        no DFE parameter of the model is at a bound (``eps`` at its bound is not
+        flagged: it does not enter the DFE).
+    """
+    names = dfe_at_bounds(fit)
+    if not names:
+        return ""
+    return f"{', '.join(names)} at bound: the share rests on a limit of the fit"
 
 
 def _match_spectra(views: list[PopulationView], docs: dict[str, dict[str, Any]]) -> None:
@@ -529,6 +578,8 @@ def answer_sentence(v: PopulationView, selected: str) -> str:
         under = f", averaged over the DFE families by Akaike weight ({ws})"
     else:
         under = f" under the {v.best} DFE (lowest AIC)"
+    flag = bound_flag(v.best_fit)
+    status += f" \u2014 {flag}, see the flags" if flag else ""
     return (
         f"{v.name}: a share of {fnum(b.share, 2)}{ci} of new {selected} mutations is "
         f"effectively neutral (|Ne\u00b7s| < {b.hi:g}, |S| < {4 * b.hi:g}){under}"

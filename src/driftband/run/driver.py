@@ -349,7 +349,9 @@ def _run_stages(
         sp_inputs,
         fit_opts,
         [paths["point_fits"]],
-        lambda: stage_fit(spectra, options, study.fit.populations, paths["point_fits"], nworkers),
+        lambda: stage_fit(
+            spectra, options, study.fit.populations, paths["point_fits"], nworkers, study
+        ),
     )
     b = study.bootstrap
     boot_opts = fit_opts | {

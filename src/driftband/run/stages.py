@@ -180,6 +180,7 @@ def stage_fit(
     populations: list[str] | None,
     out_json: str | os.PathLike[str],
     workers: int | None = None,
+    study: Study | None = None,
 ) -> list[Any]:
     """Point fits of every model of ``options`` to every population.
 
@@ -195,6 +196,8 @@ def stage_fit(
         The fit file of the point estimates (no bootstrap).
     workers : int, optional
         Worker processes (one task per population and model; default 1).
+    study : Study, optional
+        The study the options came from (messages name its ``[fit]`` keys).
 
     Returns
     -------
@@ -203,7 +206,8 @@ def stage_fit(
     from ..fit.api import fit_spectra
     from ..fit.io import fit_document, write_fit_json
 
-    fits = fit_spectra(_labelled(spectra), options, populations, workers=workers or 1)
+    src = _source(study, "fit") if study is not None else COMMAND_LINE
+    fits = fit_spectra(_labelled(spectra), options, populations, workers=workers or 1, source=src)
     prov = provenance(options.to_dict(), {"spectra": _spectra_records(spectra)})
     write_fit_json(fit_document(fits, options.to_dict(), prov), out_json, force=True)
     return fits
