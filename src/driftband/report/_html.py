@@ -144,7 +144,7 @@ def _answer(view: ReportView) -> str:
                 [v.name]
                 + ([v.dataset] if has_ds else [])
                 + [
-                    v.best,
+                    v.headline,
                     (fnum(b.share), "num share"),
                     _num(frange(b.ci_low, b.ci_high)),
                     _num(boot),
@@ -178,7 +178,7 @@ def _answer(view: ReportView) -> str:
     pops = [
         {
             "name": v.name,
-            "model": v.best,
+            "model": v.headline,
             "bands": [(b.label, b.label_s, b.share, b.ci_low, b.ci_high) for b in v.bands],
         }
         for v in view.populations
@@ -188,7 +188,9 @@ def _answer(view: ReportView) -> str:
             bands_figure(pops, sel, lvl),
             "Grouped bar chart of band shares for every population",
             f"Share of new {sel} mutations in each band of |Ne\u00b7s| (bottom axis) and of "
-            f"|S| = 4|Ne\u00b7s| (top axis), AIC-best model per population; black bars: {lvl} "
+            f"|S| = 4|Ne\u00b7s| (top axis), headline shares per population (averaged over "
+            "the DFE families by Akaike weight unless the fit asked for the AIC-best "
+            f"family); black bars: {lvl} "
             "bootstrap percentile intervals; the shaded band is the effectively neutral one. "
             "Colours: Okabe\u2013Ito colour-blind-safe palette, with hatching per population.",
         )
@@ -199,7 +201,7 @@ def _answer(view: ReportView) -> str:
     for v in view.populations:
         rows.append(
             (
-                [v.name, v.best]
+                [v.name, v.headline]
                 + [_num(f"{fnum(b.share)} ({frange(b.ci_low, b.ci_high)})") for b in v.bands],
                 "",
             )

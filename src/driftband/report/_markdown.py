@@ -59,7 +59,13 @@ def render_markdown(view: ReportView) -> str:
         "block-bootstrap percentile interval:",
         "",
         _row(
-            ["population", "best model", f"share \\|Ne·s\\| < {b0.hi:g}", f"{lvl} interval", "fit"]
+            [
+                "population",
+                "headline model",
+                f"share \\|Ne·s\\| < {b0.hi:g}",
+                f"{lvl} interval",
+                "fit",
+            ]
         ),
         _row(["---"] * 5),
     ]
@@ -69,7 +75,7 @@ def render_markdown(view: ReportView) -> str:
             _row(
                 [
                     cell(v.name),
-                    cell(v.best),
+                    cell(v.headline),
                     fnum(b.share),
                     frange(b.ci_low, b.ci_high),
                     "converged" if v.converged else "**not converged**",

@@ -70,6 +70,11 @@ class PopulationView:
         return self.record["models"][self.best]
 
     @property
+    def headline(self) -> str:
+        """``averaged`` or the model the headline shares come from."""
+        return headline_model(self.record)
+
+    @property
     def converged(self) -> bool:
         """Whether the best model's fit converged."""
         return bool(self.best_fit.get("success", False))
