@@ -173,16 +173,9 @@ class ConstantSize:
 
 
 @dataclass(frozen=True)
-class OneChange:
-    r"""One instantaneous change to :math:`\nu N_{anc}`, :math:`\tau` before the sample.
-
-    Parameters
-    ----------
-    nu : float
-        Current size over ancestral size, in [0.01, 100].
-    tau : float
-        Time since the change in units of :math:`2N_{anc}` generations, in [0.001, 5].
-    """
+class _RatioAndTime:
+    """A history set by one size ratio ``nu`` (current over ancestral) and one time
+    ``tau`` (units of 2 N_anc generations), both range-checked."""
 
     nu: float
     tau: float
@@ -195,6 +188,19 @@ class OneChange:
     def nu_now(self) -> float:
         """Current size over ancestral size."""
         return self.nu
+
+
+@dataclass(frozen=True)
+class OneChange(_RatioAndTime):
+    r"""One instantaneous change to :math:`\nu N_{anc}`, :math:`\tau` before the sample.
+
+    Parameters
+    ----------
+    nu : float
+        Current size over ancestral size, in [0.01, 100].
+    tau : float
+        Time since the change in units of :math:`2N_{anc}` generations, in [0.001, 5].
+    """
 
     def epochs(self) -> list[tuple[float, float, float]]:
         """``(duration, nu_start, nu_end)`` after the ancestral equilibrium, oldest first."""
@@ -246,7 +252,7 @@ class TwoChanges:
 
 
 @dataclass(frozen=True)
-class ExponentialChange:
+class ExponentialChange(_RatioAndTime):
     r"""Exponential change from :math:`N_{anc}` at :math:`\tau` ago to :math:`\nu N_{anc}`
     at the sample: :math:`N(t) = N_{anc}\nu^{t/\tau}`, ``t`` the time since the onset.
 
@@ -257,18 +263,6 @@ class ExponentialChange:
     tau : float
         Time since the onset in units of :math:`2N_{anc}` generations, in [0.001, 5].
     """
-
-    nu: float
-    tau: float
-
-    def __post_init__(self) -> None:
-        object.__setattr__(self, "nu", _nu("nu", self.nu))
-        object.__setattr__(self, "tau", _tau("tau", self.tau))
-
-    @property
-    def nu_now(self) -> float:
-        """Current size over ancestral size."""
-        return self.nu
 
     def epochs(self) -> list[tuple[float, float, float]]:
         """``(duration, nu_start, nu_end)`` after the ancestral equilibrium, oldest first."""
