@@ -6,6 +6,10 @@ fit, the bootstrap and the comparisons. Every key is listed in :data:`STUDY_KEYS
 README's "Study files" section documents them); an unknown key is an error naming the
 key, its section, the file and the line. Relative paths are taken relative to the study
 file's folder. See :func:`read_study`, :func:`study_from_dict` and :func:`check_files`.
+
+Longer than the ~600-line guide (about 690 lines after formatting): most of it is the
+table of study keys with their help texts and the per-key type checks, one concern
+(reading and checking a study file).
 """
 
 from __future__ import annotations

@@ -22,6 +22,10 @@ conflicts (``class_conflict``). The written classes of all chromosomes are disjo
 The work is vectorised per chromosome: all coding bases of the chromosome's transcripts
 form one array, codons become indices 0..63 and classes are read from a 64 × 3 table.
 Memory is bounded by the largest chromosome and its coding bases.
+
+Longer than the ~600-line guide (about 630 lines after formatting): the codon walk of a
+chromosome and the reconciliation of transcripts that disagree are one concern; the
+FASTA reading lives in :mod:`driftband.sites.fasta`.
 """
 
 from __future__ import annotations
