@@ -15,7 +15,7 @@ with a large lake population and a small, isolated spring population (about 7 ti
 fewer individuals, the same distribution of s), plus outgroup samples of a sister species;
 a 2.1 Mb reference with 420 genes, a VCF of 34 samples, all simulated with
 'driftband simulate' (invented data, nothing real). The bootstrap is reduced to 50
-replicates on 2 workers so that the demo takes a minute or two; the small population's
+replicates on 2 workers so that the demo takes a few minutes; the small population's
 effectively neutral share comes out clearly larger than the large one's, as the
 simulation's truth says it should (lake 0.19, spring 0.34). Prints where the report is."""
 
