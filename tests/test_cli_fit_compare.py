@@ -301,3 +301,75 @@ def test_readme_reviewer_example(tmp_path):
     for r in rows:
         mix = sum(w[f["model"]] * float(f["share"]) for f in fam if f["band"] == r["band"])
         assert float(r["share"]) == pytest.approx(mix, abs=2e-6)
+
+
+def test_few_blocks_flag_the_interval_propose_a_block_size_and_give_no_p(tmp_path, capsys):
+    # Fewer than 20 blocks (common practice for block resampling: too few blocks make the
+    # bootstrap distribution coarse): the warning proposes a block size giving 20 blocks of
+    # what the blocks cover, bands.tsv marks the interval unreliable, and the share
+    # difference has no bootstrap p-value.
+    sp = tmp_path / "sp.json"
+    assert (
+        main(
+            [
+                "simulate",
+                "--population",
+                "big:N=300,n=10",
+                "--population",
+                "small:N=60,n=10",
+                "--sites",
+                "20000",
+                "--theta",
+                "0.02",
+                "--blocks",
+                "6",
+                "--seed",
+                "3",
+                "-o",
+                str(sp),
+                "-q",
+            ]
+        )
+        == 0
+    )
+    doc = json.loads(sp.read_text())
+    covered = sum(b["end"] - b["start"] for b in doc["blocks"])
+    fit, bands = tmp_path / "f.json", tmp_path / "b.tsv"
+    capsys.readouterr()
+    assert (
+        main(
+            [
+                "fit",
+                str(sp),
+                "--dfe",
+                "gamma",
+                "--misorientation",
+                "fixed:0",
+                "--bootstrap",
+                "4",
+                "--workers",
+                "1",
+                "-o",
+                str(fit),
+                "--bands-tsv",
+                str(bands),
+            ]
+        )
+        == 0
+    )
+    err = capsys.readouterr().err
+    size = covered // 20 // 1000 * 1000
+    assert "only 6 blocks" in err and f"--block-size {size} " in err
+    head = [r for r in _read_tsv(bands) if r["role"] == "headline"]
+    assert {r["interval"] for r in head} == {"unreliable"}
+    assert all("only 6 genomic blocks" in r["note"] for r in head)
+    cmp_path = tmp_path / "c.tsv"
+    assert (
+        main(
+            ["compare", str(fit), "--tests", "neutral_share_difference", "-o", str(cmp_path), "-q"]
+        )
+        == 0
+    )
+    (row,) = _read_tsv(cmp_path)
+    assert row["p_value"] == "" and "no p-value: only 6 genomic blocks" in row["note"]
+    assert row["ci_low"] != ""  # the interval is still written, marked by the note

@@ -180,7 +180,7 @@ def run(args: argparse.Namespace) -> int:
 
 
 def _run(args: argparse.Namespace, options: Any, labels: dict[str, str], client: Any) -> int:
-    from ..fit.api import LabelledSpectra, block_spectra, fit_spectra
+    from ..fit.api import LabelledSpectra, block_spectra, covered_bp, fit_spectra
     from ..fit.io import fit_document, write_bands_tsv, write_fit_json
     from ..spectra.io import read_spectra
 
@@ -203,6 +203,7 @@ def _run(args: argparse.Namespace, options: Any, labels: dict[str, str], client:
             block_spectra(sets),
             options,
             args.bootstrap,
+            covered=covered_bp(sets),
             seed=args.seed,
             level=args.level,
             workers=args.workers,

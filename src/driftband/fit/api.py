@@ -28,6 +28,7 @@ from .results import PopulationFit
 __all__ = [
     "LabelledSpectra",
     "block_spectra",
+    "covered_bp",
     "check_models_for_data",
     "fit_population",
     "fit_spectra",
@@ -66,6 +67,21 @@ class LabelledSpectra:
     def population_name(self, pop: str) -> str:
         """The name of population ``pop`` of this set after labelling."""
         return f"{self.label}/{pop}" if self.label else pop
+
+
+def covered_bp(spectra_sets: list[LabelledSpectra]) -> dict[str, int]:
+    """Base pairs covered by the bootstrap blocks of each population's spectra set.
+
+    Returns
+    -------
+    dict of str to int
+        By population name after labelling; 0 when the set lists no blocks.
+    """
+    return {
+        ls.population_name(n): int(sum(b.end - b.start for b in ls.spectra.blocks))
+        for ls in spectra_sets
+        for n in ls.spectra.populations
+    }
 
 
 def block_spectra(spectra_sets: list[LabelledSpectra]) -> dict[str, Any]:

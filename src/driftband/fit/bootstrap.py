@@ -39,6 +39,7 @@ if TYPE_CHECKING:
     from ..spectra import PopulationSpectra
 
 __all__ = [
+    "block_size_hint",
     "bootstrap_fits",
     "check_bootstrap_settings",
     "default_batch",
@@ -87,6 +88,46 @@ def check_bootstrap_settings(
         raise source.error(key, f"must be a whole number >= 0, got {replicates!r}")
     if not 0.5 < level < 1.0:
         raise source.error("level", "must lie between 0.5 and 1, e.g. 0.95")
+
+
+def block_size_hint(covered: int, blocks: int = MIN_BLOCKS, smallest: int = 1000) -> str:
+    """The advice of a warning about too few blocks: a block size that gives ``blocks``.
+
+    Parameters
+    ----------
+    covered : int
+        Base pairs covered by the blocks (0: unknown, no advice).
+    blocks : int
+        Blocks wanted.
+    smallest : int
+        Smallest block length worth proposing, in bp (shorter blocks would no longer
+        hold the linkage between sites within a block).
+
+    Returns
+    -------
+    str
+        ``"; --block-size 15000 would give 20 blocks of the 300000 bp covered"``, a note
+        that the assembly is too small, or empty.
+
+    Examples
+    --------
+    >>> block_size_hint(300_000).split(" (")[0]
+    '; --block-size 15000'
+    >>> block_size_hint(10_000)
+    '; the 10000 bp covered are too few for 20 blocks of at least 1000 bp: add more of the genome'
+    """
+    if covered <= 0:
+        return ""
+    size = covered // blocks // 1000 * 1000
+    if size < smallest:
+        return (
+            f"; the {covered} bp covered are too few for {blocks} blocks of at least "
+            f"{smallest} bp: add more of the genome"
+        )
+    return (
+        f"; --block-size {size} (block_size in a study file) would give {blocks} blocks "
+        f"of the {covered} bp covered"
+    )
 
 
 def resample_indices(n_blocks: int, replicates: int, seed: int, stream: int = 0) -> np.ndarray:
@@ -194,6 +235,7 @@ def bootstrap_fits(
     scheduler: Any = None,
     batch: int | None = None,
     models: dict[str, list[str]] | None = None,
+    covered: dict[str, int] | None = None,
 ) -> None:
     """Block-bootstrap every population fit in place (sets ``PopulationFit.bootstrap``).
 
@@ -218,6 +260,10 @@ def bootstrap_fits(
     models : dict of str to list of str, optional
         The models refitted for each population (default: every model of ``options``
         that the population has).
+    covered : dict of str to int, optional
+        Base pairs covered by each population's blocks
+        (:func:`driftband.fit.api.covered_bp`): with fewer than 20 blocks the warning
+        then proposes a block size that would give 20.
 
     Raises
     ------
@@ -253,7 +299,8 @@ def bootstrap_fits(
         if nb < MIN_BLOCKS:
             warnings.warn(
                 f"population {pf.population!r}: only {nb} blocks; bootstrap "
-                f"intervals from fewer than {MIN_BLOCKS} blocks are unreliable",
+                f"intervals from fewer than {MIN_BLOCKS} blocks are unreliable"
+                + block_size_hint((covered or {}).get(pf.population, 0)),
                 DriftbandWarning,
                 stacklevel=2,
             )

@@ -271,7 +271,7 @@ def stage_bootstrap(
     dict
         The fit document written.
     """
-    from ..fit.api import block_spectra
+    from ..fit.api import block_spectra, covered_bp
     from ..fit.bootstrap import bootstrap_fits
     from ..fit.io import fit_document, read_fits, write_bands_tsv, write_fit_json
 
@@ -293,11 +293,13 @@ def stage_bootstrap(
             reps,
             "; ".join(f"{p}: {', '.join(ms)}" for p, ms in booted.items()),
         )
+        sets = _labelled(spectra)
         bootstrap_fits(
             fits,
-            block_spectra(_labelled(spectra)),
+            block_spectra(sets),
             options,
             reps,
+            covered=covered_bp(sets),
             seed=settings.seed,
             level=settings.level,
             workers=workers or settings.workers,

@@ -1,0 +1,72 @@
+"""Bootstrap bookkeeping: replicates keep their place, failures are counted, Akaike
+weights are recomputed per replicate (Burnham & Anderson 2002, sec. 2.9 and 4.2)."""
+
+from __future__ import annotations
+
+import math
+from types import SimpleNamespace
+
+import numpy as np
+import pytest
+
+from driftband.fit.bootstrap import _averaged, _summarise, percentile_interval
+from driftband.fit.results import akaike_weights
+
+
+def _rep(share0: float, loglik: float, success: bool = True) -> dict:
+    return {
+        "params": {"shape": 0.3},
+        "eps": 0.0,
+        "shares": [share0, 1 - share0],
+        "fixation_ratio": 0.1,
+        "theta": 0.01,
+        "loglik": loglik,
+        "success": success,
+    }
+
+
+FIT = SimpleNamespace(shares=np.array([0.2, 0.8]), params={"shape": 0.3}, n_params=3)
+
+
+def test_failed_and_non_converged_replicates_keep_their_place_and_are_left_out():
+    reps = [_rep(0.10, -5), None, _rep(0.90, -5, success=False), _rep(0.20, -5), _rep(0.30, -5)]
+    mb = _summarise(FIT, reps, 0.95)
+    assert mb.shares.shape == (5, 2) and np.all(np.isnan(mb.shares[1]))
+    assert mb.converged.tolist() == [True, False, False, True, True]
+    assert mb.replicates == 3 and mb.failed == 2
+    # the interval is made of the converged replicates only (0.9 would widen it)
+    assert tuple(mb.shares_ci[0]) == percentile_interval(np.array([0.1, 0.2, 0.3]), 0.95)
+    d = mb.share_draws(0)
+    assert np.isnan(d[1]) and np.isnan(d[2]) and d[3] == 0.2
+    back = type(mb).from_dict(
+        mb.to_dict() | {"shares": [None if np.isnan(r[0]) else list(r) for r in mb.shares]}
+    )
+    assert back.ok.tolist() == mb.ok.tolist()
+
+
+def test_akaike_weights_by_hand():
+    # w_k = exp(-Δ_k/2) / Σ exp(-Δ_j/2): ΔAIC 0 and 2 give 1/(1+e^-1) and e^-1/(1+e^-1)
+    w = akaike_weights({"a": 10.0, "b": 12.0, "c": math.nan})
+    assert w["a"] == pytest.approx(1 / (1 + math.exp(-1)), rel=1e-12)
+    assert w["b"] == pytest.approx(math.exp(-1) / (1 + math.exp(-1)), rel=1e-12)
+    assert w["c"] == 0.0
+
+
+def test_averaged_shares_reweigh_every_replicate():
+    pf = SimpleNamespace(
+        fits={"a": SimpleNamespace(n_params=3), "b": SimpleNamespace(n_params=4)}, best=FIT
+    )
+    ra = [_rep(0.1, -10.0), _rep(0.1, -10.0), _rep(0.1, -10.0)]
+    rb = [_rep(0.5, -10.0), _rep(0.5, -5.0), None]
+    models = {"a": _summarise(FIT, ra, 0.95), "b": _summarise(FIT, rb, 0.95)}
+    av = _averaged(pf, models, 0.95)
+    # replicate 0: AIC a = 26, b = 28 -> weights 1/(1+e^-1), e^-1/(1+e^-1)
+    wa = 1 / (1 + math.exp(-1))
+    assert av.weights["a"][0] == pytest.approx(wa) and av.shares[0, 0] == pytest.approx(
+        wa * 0.1 + (1 - wa) * 0.5
+    )
+    # replicate 1: b's log-likelihood is 5 higher, AIC b = 18 < 26: b dominates
+    wb = 1 / (1 + math.exp(-4))
+    assert av.weights["b"][1] == pytest.approx(wb)
+    # replicate 2: b failed, so a takes all the weight
+    assert av.weights["a"][2] == 1.0 and av.shares[2, 0] == pytest.approx(0.1)
