@@ -163,8 +163,10 @@ def _answer(view: ReportView) -> str:
         '<section id="answer"><h2>The answer: effectively neutral share per population</h2>',
         f"<p>Share of new mutations at {esc(sel)} (selected-class) sites whose scaled "
         f"effect lies in the effectively neutral band |Ne\u00b7s| &lt; {b0.hi:g} "
-        f"(|S| &lt; {4 * b0.hi:g}), under each population's AIC-best DFE model, with "
-        f"{esc(lvl)} block-bootstrap percentile intervals.</p>",
+        f"(|S| &lt; {4 * b0.hi:g}), averaged over the DFE families by their Akaike "
+        "weights (or under the AIC-best family where the fit asked for it), with "
+        f"{esc(lvl)} block-bootstrap percentile intervals in which the model choice is "
+        "redone in every replicate.</p>",
         _table("headline", "Effectively neutral share of new mutations", head, rows, "headline"),
         '<ul class="answer">'
         + "".join(f"<li>{esc(answer_sentence(v, sel))}</li>" for v in view.populations)

@@ -55,8 +55,9 @@ def render_markdown(view: ReportView) -> str:
         "## Answer",
         "",
         f"Share of new {md(sel)} (selected-class) mutations in the effectively neutral band "
-        f"|Ne·s| < {b0.hi:g} (|S| < {4 * b0.hi:g}), AIC-best model, {lvl} "
-        "block-bootstrap percentile interval:",
+        f"|Ne·s| < {b0.hi:g} (|S| < {4 * b0.hi:g}), headline model (averaged over the DFE "
+        f"families by Akaike weight, or the AIC-best one), {lvl} block-bootstrap percentile "
+        "interval:",
         "",
         _row(
             [
