@@ -136,11 +136,7 @@ def _warn_floor(rows: list[ComparisonRow], adjust: str, alpha: float = 0.05) -> 
     diff = [r for r in rows if r.test == "neutral_share_difference" and np.isfinite(r.p_value)]
     if not diff:
         return
-    B = max(
-        int(r.note.split("bootstrap: ", 1)[1].split(" ", 1)[0])
-        for r in diff
-        if r.note.startswith("bootstrap: ")
-    )
+    B = max(int(r.extra["replicates"]) for r in diff)
     floor = 2.0 / (B + 1)
     m = len(diff)
     reach = floor * (m if adjust.lower() in ("holm", "bonferroni") else 1)
@@ -244,7 +240,7 @@ def compare_fits(
     for a, b in chosen:
         log.info("compare: %s and %s (%s model; %s)", a, b, dfe.name, ", ".join(wanted))
     tasks = [(by_name[a], by_name[b], dfe, options, mu, (t,)) for a, b in chosen for t in wanted]
-    if workers is None or workers > 1 and len(tasks) > 1:
+    if len(tasks) > 1 and (workers is None or workers > 1):
         parts = parallel_map(_compare_task, tasks, workers=workers, name="compare")
     else:
         cache: dict[int, DfeExpectation] = {}

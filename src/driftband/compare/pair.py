@@ -354,33 +354,31 @@ def compare_pair(
     return rows
 
 
-def _draws(pop: PopulationFit, model: str) -> tuple[str, np.ndarray | None]:
-    """The neutral-share draws compared: the model-averaged ones when the population's
-    headline is averaged and was bootstrapped, else those of ``model``."""
+def _averaged_draws(pop: PopulationFit) -> np.ndarray | None:
+    """The model-averaged neutral-share draws, when the population's headline is averaged
+    and every family was bootstrapped."""
     boot = pop.bootstrap
-    if boot is not None and boot.averaged is not None and pop.headline_method == "averaged":
-        return "averaged", boot.averaged.share_draws(0)
-    return model, _draws_of(pop, model)
+    if boot is None or boot.averaged is None or pop.headline_method != "averaged":
+        return None
+    return boot.averaged.share_draws(0)
 
 
 def _share_difference(pop_a: PopulationFit, pop_b: PopulationFit, model: str) -> ComparisonRow:
     """share_B − share_A with its paired-bootstrap interval and p-value.
 
-    The replicates pair up by index (the same block draw for the populations of one
-    dataset); a replicate that failed in either population is left out of both.
+    The headline shares are compared when both populations' headlines are model-averaged,
+    else the shares of ``model``. The replicates pair up by index (the same block draw for
+    the populations of one dataset); a replicate that failed in either population is left
+    out of both.
     """
-    which_a, xa = _draws(pop_a, model)
-    which_b, xb = _draws(pop_b, model)
-    which = which_a if which_a == which_b else model
-    if which != which_a or which != which_b:  # one averaged, one not: compare the model
-        xa = _draws_of(pop_a, model)
-        xb = _draws_of(pop_b, model)
-    if which == "averaged":
-        sa = float(pop_a.headline().shares[0])
-        sb = float(pop_b.headline().shares[0])
+    xa, xb = _averaged_draws(pop_a), _averaged_draws(pop_b)
+    if xa is not None and xb is not None:
+        which = "averaged"
+        sa, sb = (float(p.headline().shares[0]) for p in (pop_a, pop_b))
     else:
-        sa = float(pop_a.fits[model].shares[0])
-        sb = float(pop_b.fits[model].shares[0])
+        which = model
+        xa, xb = _draws_of(pop_a, model), _draws_of(pop_b, model)
+        sa, sb = (float(p.fits[model].shares[0]) for p in (pop_a, pop_b))
     row = ComparisonRow(
         pop_a.population,
         pop_b.population,
@@ -408,10 +406,11 @@ def _share_difference(pop_a: PopulationFit, pop_b: PopulationFit, model: str) ->
     row.ci_low, row.ci_high = (float(v) for v in np.quantile(d, [a, 1 - a]))
     tail = min(np.sum(d <= 0), np.sum(d >= 0))
     row.statistic = float((sb - sa) / np.std(d, ddof=1))
-    few = [p for p in (pop_a, pop_b) if p.bootstrap is not None and p.bootstrap.few_blocks]
+    row.extra["replicates"] = int(d.size)
+    few = [p.bootstrap.blocks for p in (pop_a, pop_b) if p.bootstrap and p.bootstrap.few_blocks]
     notes.insert(0, f"bootstrap: {d.size} replicates, level {level:g}")
     if few:
-        nb = min(p.bootstrap.blocks for p in few if p.bootstrap is not None)
+        nb = min(few)
         notes.append(
             f"no p-value: only {nb} genomic blocks (fewer than {MIN_BLOCKS}), "
             "so the interval is unreliable too"

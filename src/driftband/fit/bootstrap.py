@@ -389,14 +389,9 @@ def _summarise(f: Any, reps: list[dict[str, Any] | None], level: float) -> Model
     for key in ALPHA_KEYS:
         if any(r and key in r for r in reps):
             params[key] = col(lambda r, key=key: r.get(key, nan))
-    ok = converged & np.all(np.isfinite(shares), axis=1)
-    return ModelBootstrap(
-        replicates=int(ok.sum()),
-        failed=int(B - ok.sum()),
-        params=params,
-        shares=shares,
-        params_ci={p: percentile_interval(v[ok], level) for p, v in params.items()},
-        shares_ci=[percentile_interval(shares[ok, j], level) for j in range(shares.shape[1])],
-        converged=converged,
-        loglik=col(lambda r: r["loglik"]),
-    )
+    mb = ModelBootstrap(0, 0, params, shares, {}, [], converged, col(lambda r: r["loglik"]))
+    ok = mb.ok
+    mb.replicates, mb.failed = int(ok.sum()), int(B - ok.sum())
+    mb.params_ci = {p: percentile_interval(v[ok], level) for p, v in params.items()}
+    mb.shares_ci = [percentile_interval(shares[ok, j], level) for j in range(shares.shape[1])]
+    return mb

@@ -421,11 +421,8 @@ class PopulationFit:
                 "fewer than 200 are short (about 91.6 % coverage at B = 50 and "
                 "93.3 % at B = 100 for a nominal 95 %)"
             )
-        close = [
-            k
-            for k, f in self.fits.items()
-            if f.success and f.aic - min(g.aic for g in self.fits.values() if g.success) < 2
-        ]
+        ok_aic = {k: f.aic for k, f in self.fits.items() if f.success}
+        close = [k for k, a in ok_aic.items() if a - min(ok_aic.values()) < 2]
         if len(close) > 1 and ci is not None and reliable:
             vals = [float(self.fits[k].shares[0]) for k in close]
             width = ci[0].high - ci[0].low
