@@ -100,6 +100,7 @@ def test_fit_bootstrap_compare(study, tmp_path):
     assert {r["test"] for r in crow} == {
         "shared_dfe_lrt",
         "neutral_share_difference",
+        "ne_only_free_lrt",
         "ne_only_lrt",
     }
     lrt = next(r for r in crow if r["test"] == "shared_dfe_lrt")
@@ -109,6 +110,12 @@ def test_fit_bootstrap_compare(study, tmp_path):
     ne = next(r for r in crow if r["test"] == "ne_only_lrt")
     # Neutral diversity ratio small/big is about 100/400 for equal mutation rates.
     assert 0.1 < float(ne["ne_ratio"]) < 0.5 or 2 < float(ne["ne_ratio"]) < 10
+    free = next(r for r in crow if r["test"] == "ne_only_free_lrt")
+    assert free["df"] == "1"  # the shape shared, the scale free: k - 1
+    assert free["ne_ratio_pi"] == ne["ne_ratio"]
+    # Twelve replicates are too few to estimate the linkage adjustment: the p-value is
+    # the raw one, and the note says why.
+    assert free["p_value"] == free["p_raw"] and "not adjusted for linked sites" in free["note"]
 
     # Same seed, different worker count: identical bootstrap.
     fit2 = tmp_path / "fit2.json"

@@ -8,7 +8,9 @@ import numpy as np
 import pytest
 from scipy import optimize
 
-from driftband.compare.pair import _joint_fit, _starts, compare_pair
+from driftband.compare.lrt import joint_fit as _joint_fit
+from driftband.compare.lrt import joint_starts as _starts
+from driftband.compare.pair import compare_pair
 from driftband.exceptions import ConvergenceWarning
 from driftband.fit import optimize as fit_optimize
 from driftband.fit.likelihood import Objective, SpectrumPair

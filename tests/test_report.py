@@ -448,7 +448,8 @@ def test_summary_has_the_same_headline_numbers(docs, page):
         cells = [c.strip() for c in ln.strip("|").split("|")]
         h = html_rows[cells[0]]
         assert cells[2] == h[2] and cells[3] == h[3]
-    assert "Only Ne differs?" in md_text
+    assert "Only Ne differs (ratio fitted; the version to read)?" in md_text
+    assert "Only Ne differs (ratio from \u03c0)?" in md_text
     assert "no basis for conservation or management decisions" in md_text
 
 

@@ -153,7 +153,12 @@ def test_comparison_of_the_pair(demo_run):
     rows = _tsv(demo_run / "compare.tsv")
     assert {(r["population_a"], r["population_b"]) for r in rows} == {("lake", "spring")}
     by = {r["test"]: r for r in rows}
-    assert set(by) == {"shared_dfe_lrt", "neutral_share_difference", "ne_only_lrt"}
+    assert set(by) == {
+        "shared_dfe_lrt",
+        "neutral_share_difference",
+        "ne_only_free_lrt",
+        "ne_only_lrt",
+    }
     fit = json.loads((demo_run / "fit.json").read_text())
     pops = fit["populations"]
     # The model compared is the one with the lowest AIC summed over the populations

@@ -25,7 +25,12 @@ DEFAULT_EDGES_NES: tuple[float, ...] = (0.0, 1.0, 10.0, 100.0)
 #: DFE families fitted unless told otherwise.
 DEFAULT_MODELS: tuple[str, ...] = ("gamma", "lognormal", "discrete")
 #: The tests between two populations, in the order they are run and reported.
-COMPARE_TESTS: tuple[str, ...] = ("shared_dfe_lrt", "neutral_share_difference", "ne_only_lrt")
+COMPARE_TESTS: tuple[str, ...] = (
+    "shared_dfe_lrt",
+    "neutral_share_difference",
+    "ne_only_free_lrt",
+    "ne_only_lrt",
+)
 #: How the headline shares are made: averaged over the DFE families by Akaike weight (the
 #: default), or from the AIC-best family alone.
 HEADLINES: tuple[str, ...] = ("averaged", "best")

@@ -1,233 +1,255 @@
-"""Tests between populations (no I/O): shared DFE, neutral-band share, "only Ne differs".
+"""Tests between two populations (no I/O): shared DFE, neutral-band share, "only Ne differs".
 
 For a pair of populations A, B and one DFE family:
 
 ``shared_dfe_lrt``
     Likelihood-ratio test of one DFE shared by both (each keeps its own θ, nuisance factors
-    and misorientation rate) against separate DFEs; χ² with as many degrees of freedom as
-    the family has DFE parameters.
+    and misorientation rate) against separate DFEs; df = the family's DFE parameters.
 ``neutral_share_difference``
-    share_B − share_A of new selected-class mutations in the effectively neutral band, with
-    the percentile interval of the bootstrap differences and a two-sided bootstrap p-value
-    (2·min of the tail fractions, (k+1)/(B+1) rule). Needs fits made with ``--bootstrap``.
-``ne_only_lrt``
+    share_B − share_A of the effectively neutral band with its paired-bootstrap interval
+    and p-value (:mod:`driftband.compare.share`). Needs fits made with ``--bootstrap``.
+``ne_only_free_lrt``
     Both populations share one distribution of s and differ only in Ne, so the DFE on
-    S = 4·Ne·s of B is that of A scaled by ρ = Ne_B/Ne_A. ρ is taken from the ratio of
-    neutral diversity π_S (equal mutation rates unless relative rates are given:
-    ρ = (π_B/μ_B)/(π_A/μ_A)) and held fixed. The constrained joint fit is tested against
-    separate DFEs (χ², df = DFE parameters); the predicted neutral share of B is reported
-    beside the observed one.
+    S = 4·Ne·s of B is that of A scaled by ρ = Ne_B/Ne_A. The shape of the DFE is shared
+    and ρ is fitted (df = DFE parameters − 1). The fitted ρ is reported beside the one
+    from neutral diversity. It does not depend on π being at equilibrium.
+``ne_only_lrt``
+    The same null with ρ taken from the ratio of neutral diversity π_S (equal mutation
+    rates unless relative rates are given: ρ = (π_B/μ_B)/(π_A/μ_A)); df = DFE
+    parameters. The ratio's sampling uncertainty is carried by the block bootstrap (ρ is
+    recomputed in each replicate, see :mod:`driftband.compare.linkage`). π reflects Ne
+    only at equilibrium: after a recent change of size it does not, and the test then
+    rejects a true null.
 
-Where the null fit puts a DFE parameter on the boundary of its space (a beneficial mass
-p_b at its lower bound, the stand-in for 0, or a band mass of the discrete family at 0),
-the χ² reference is replaced by the χ̄² mixture of Self & Liang (1987): for one such
-parameter, 0.5·χ²(df − 1) + 0.5·χ²(df) (:func:`chibar2_sf`), and the row's note says so.
-With the shared value at 0 a difference between the populations can only lie on one side
-of it, which is what the mixture accounts for.
+The likelihood-ratio statistics are read off χ² (``p_raw``; the χ̄² mixture of Self &
+Liang 1987 where the null is on a boundary, :mod:`driftband.compare.lrt`) and, with a
+bootstrap of at least 20 blocks, off the composite-likelihood reference that accounts for
+linked sites (:mod:`driftband.compare.linkage`): ``p_value`` is then the adjusted p.
 
-This module runs the tests of one pair and does no I/O; :mod:`driftband.compare.api`
-runs every pair and adjusts the p-values across pairs.
+This module runs the tests of one pair; :mod:`driftband.compare.api` runs every pair and
+adjusts the p-values across pairs.
 """
 
 from __future__ import annotations
 
 import math
 import warnings
-from dataclasses import dataclass, field
-from typing import Any
+from dataclasses import dataclass
 
 import numpy as np
 from scipy import stats
 
 from ..defaults import COMPARE_TESTS, MIN_BLOCKS
-from ..exceptions import ConvergenceWarning, InputError, OptionError
+from ..exceptions import ConvergenceWarning, DriftbandWarning, InputError
 from ..fit.likelihood import Objective, SpectrumPair
-from ..fit.mle import FitResult
 from ..fit.models import DfeModel
-from ..fit.optimize import minimize_multistart
 from ..fit.options import FitOptions
 from ..fit.results import PopulationFit
 from ..prf.dfe import DfeExpectation
 from ..prf.families import band_shares
-from ..spectra.stats import pi_theta_counts
+from ..spectra.stats import pi_theta_counts, tajimas_d
+from .linkage import (
+    LinkageAdjustment,
+    interior_coordinates,
+    linkage_adjustment,
+    naive_covariance,
+    replicate_vectors,
+)
+from .lrt import boundary_parameters, chibar2_sf, joint_fit, joint_starts, lrt_pvalue, scale_shift
+from .share import share_difference
+from .table import ComparisonRow
 
 __all__ = [
+    "DEPARTURE_LOG_R",
+    "DEPARTURE_TAJIMA_D",
     "ComparisonRow",
     "boundary_parameters",
     "chibar2_sf",
     "compare_pair",
+    "equilibrium_departure",
     "neutral_pi",
     "scale_shift",
 ]
 
-
-@dataclass
-class ComparisonRow:
-    """One row of ``compare.tsv``."""
-
-    population_a: str
-    population_b: str
-    test: str
-    model: str
-    statistic: float = float("nan")
-    df: float = float("nan")
-    p_value: float = float("nan")
-    p_adjusted: float = float("nan")
-    estimate: float = float("nan")
-    ci_low: float = float("nan")
-    ci_high: float = float("nan")
-    extra: dict[str, Any] = field(default_factory=dict)
-    note: str = ""
-
-
-def scale_shift(model: DfeModel, log_rho: float) -> np.ndarray:
-    """Shift of the unconstrained DFE vector that multiplies every S by ρ = e^log_rho.
-
-    Only families with a scale parameter can be scaled: gamma (mean S̄), lognormal (μ);
-    a beneficial S_b is scaled too, p_b is kept.
-    """
-    if model.family == "gamma":
-        d = [0.0, log_rho]
-    elif model.family == "lognormal":
-        d = [log_rho, 0.0]
-    else:
-        raise OptionError(
-            "the 'only Ne differs' test needs a DFE family with a scale "
-            "parameter (gamma or lognormal), not 'discrete'"
-        )
-    if model.beneficial:
-        d += [0.0, log_rho]
-    return np.array(d)
+#: Tajima's D of the neutral class beyond which a population counts as out of equilibrium
+#: for the "only Ne differs" tests (genome-wide D is near 0 at equilibrium; a four-fold
+#: change of size within the last Ne generations moves it by about 0.5 to 0.8, by
+#: coalescent simulation with msprime).
+DEPARTURE_TAJIMA_D = 0.2
+#: Mean |log r_i| of the nuisance factors (weighted by the neutral counts) beyond which
+#: a population counts as out of equilibrium (r_i = 1 at equilibrium; 0.18 = log 1.2).
+DEPARTURE_LOG_R = math.log(1.2)
 
 
 def neutral_pi(data: SpectrumPair) -> float:
-    """π per site of the neutral class (Tajima 1983) from the polymorphic entries."""
-    sfs = np.concatenate([[0.0], data.neutral])
-    return pi_theta_counts(sfs, data.n, data.folded)[0] / data.sites_neutral
+    """π per site of the neutral class (Tajima 1983): :attr:`SpectrumPair.neutral_pi`."""
+    return data.neutral_pi
 
 
-def boundary_parameters(model: DfeModel, x: np.ndarray) -> list[str]:
-    """DFE parameters of ``x`` on the boundary of their space (not only of the box).
+def equilibrium_departure(pop: PopulationFit, model: str) -> str:
+    """Plain words on a population's departure from equilibrium, or ``""`` when none shows.
 
-    ``p_b`` at its lower bound (which stands in for 0) and discrete band masses at 0;
-    the other bounds of :meth:`DfeModel.bounds` keep the optimiser in a sane region and
-    are not boundaries of the parameter space.
-
-    Parameters
-    ----------
-    model : DfeModel
-    x : ndarray
-        Unconstrained DFE vector (of the null fit).
-
-    Returns
-    -------
-    list of str
-    """
-    return [
-        n
-        for n, side, _v in model.at_bounds(x)
-        if side == "lower" and (n == "p_b" or n.startswith("mass_"))
-    ]
-
-
-def chibar2_sf(stat: float, df: int, k: int) -> float:
-    r"""p-value P(T ≥ t) of the χ̄² mixture for ``k`` parameters on the boundary.
-
-    .. math::
-
-        P(T \ge t) = \sum_{j=0}^{k} \binom{k}{j} 2^{-k}\, P(\chi^2_{df-k+j} > t),
-
-    with χ²₀ a point mass at 0 (Self & Liang 1987). For ``k = 1`` this is the 50:50
-    mixture of χ²(df − 1) and χ²(df); for ``k > 1`` the binomial weights hold for
-    asymptotically independent boundary parameters. ``k = 0`` is the plain χ²(df).
+    Tajima's D of the neutral class (Tajima 1989) beyond :data:`DEPARTURE_TAJIMA_D`, or
+    nuisance factors r_i of the fit of ``model`` whose count-weighted mean |log r_i|
+    exceeds :data:`DEPARTURE_LOG_R`.
 
     Parameters
     ----------
-    stat : float
-        The likelihood-ratio statistic (≥ 0).
-    df : int
-        Degrees of freedom of the test without the boundary.
-    k : int
-        Parameters on the boundary (at most ``df``).
+    pop : PopulationFit
+    model : str
 
     Returns
     -------
-    float
-
-    Examples
-    --------
-    >>> round(chibar2_sf(2.706, 1, 1), 3)  # half of the chi2(1) tail
-    0.05
+    str
     """
-    k = max(0, min(int(k), int(df)))
-    total = 0.0
-    for j in range(k + 1):
-        d = df - k + j
-        tail = (1.0 if stat <= 0 else 0.0) if d == 0 else float(stats.chi2.sf(stat, d))
-        total += math.comb(k, j) / 2.0**k * tail
-    return total
+    d = pop.data
+    sfs = np.concatenate([[0.0], d.neutral])
+    pi, _tw, seg = pi_theta_counts(sfs, d.n, d.folded)
+    D = tajimas_d(pi, seg, d.n)
+    signs = []
+    if math.isfinite(D) and abs(D) > DEPARTURE_TAJIMA_D:
+        signs.append(f"Tajima's D of the neutral class is {D:+.2f}")
+    fit = pop.fits.get(model)
+    if fit is not None and not fit.equilibrium:
+        r = np.asarray(fit.nuisance, dtype=float)
+        w = np.asarray(d.neutral, dtype=float)[: r.size]
+        ok = (r > 0) & np.isfinite(r)
+        if ok.any() and w[ok].sum() > 0:
+            dev = float(np.sum(w[ok] * np.abs(np.log(r[ok]))) / w[ok].sum())
+            if dev > DEPARTURE_LOG_R:
+                signs.append(f"its nuisance factors depart from 1 by {math.expm1(dev):.0%}")
+    return f"population {pop.population!r}: " + " and ".join(signs) if signs else ""
 
 
-def _lrt_p(stat: float, df: int, model: DfeModel, x_null: np.ndarray) -> tuple[float, str]:
-    """p-value of an LRT (χ², or χ̄² where the null is on a boundary) and a note."""
-    at = boundary_parameters(model, x_null)
-    if not at:
-        return float(stats.chi2.sf(stat, df)), ""
-    k = min(len(at), df)
-    mix = " + ".join(
-        f"{math.comb(k, j) / 2.0**k:g}\u00b7\u03c7\u00b2({df - k + j})" for j in range(k + 1)
+@dataclass
+class _Linkage:
+    """What the linkage adjustment of one pair and model needs (or why it cannot be made)."""
+
+    c_naive: np.ndarray | None
+    moves_a: np.ndarray | None
+    moves_b: np.ndarray | None
+    coordinates: list[int]
+    why_not: str
+
+
+def _linkage_inputs(
+    pop_a: PopulationFit, pop_b: PopulationFit, model: DfeModel, objs: list[Objective]
+) -> _Linkage:
+    fa, fb = pop_a.fits[model.name], pop_b.fits[model.name]
+    none = _Linkage(None, None, None, [], "")
+    boots = [p.bootstrap for p in (pop_a, pop_b)]
+    mbs = [p.model_bootstrap(model.name) for p in (pop_a, pop_b)]
+    if any(b is None for b in boots) or any(m is None or not m.shares.size for m in mbs):
+        none.why_not = f"the fits of {model.name} were made without --bootstrap B"
+        return none
+    blocks = min(b.blocks for b in boots if b is not None)
+    if blocks < MIN_BLOCKS:
+        none.why_not = f"only {blocks} genomic blocks (fewer than {MIN_BLOCKS})"
+        return none
+    if fa.x is None or fb.x is None:
+        none.why_not = "a fit file without the optimiser's vector"
+        return none
+    xs = [np.asarray(f.x, dtype=float) for f in (fa, fb)]
+    got = [naive_covariance(o, x, None if m is None else m.score) for o, x, m in zip(objs, xs, mbs)]
+    ga, gb = got
+    if ga is None or gb is None:
+        none.why_not = "the Hessian of a fit is not positive definite"
+        return none
+    (ca, ma), (cb, mb) = ga, gb
+    if ma is None or mb is None:  # older fit files: the refitted estimates
+        ma, mb = (replicate_vectors(m, model) - x[: model.n_free] for m, x in zip(mbs, xs) if m)
+    if ma.shape != mb.shape:
+        none.why_not = "the two fit files' replicates do not pair up (an older fit file)"
+        return none
+    coords = interior_coordinates(model, xs[0], xs[1])
+    return _Linkage(ca + cb, ma, mb, coords, "")
+
+
+def _log_ratio_draws(
+    pop_a: PopulationFit, pop_b: PopulationFit, mu: dict[str, float]
+) -> np.ndarray | None:
+    """log ρ from neutral π in each bootstrap replicate (None without the replicates' π)."""
+    ba, bb = pop_a.bootstrap, pop_b.bootstrap
+    if ba is None or bb is None or ba.neutral_pi is None or bb.neutral_pi is None:
+        return None
+    if ba.neutral_pi.shape != bb.neutral_pi.shape:
+        return None
+    ma, mb = mu.get(pop_a.population, 1.0), mu.get(pop_b.population, 1.0)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return np.log((bb.neutral_pi / mb) / (ba.neutral_pi / ma))
+
+
+def _finish_lrt(
+    row: ComparisonRow,
+    model: DfeModel,
+    x_null: np.ndarray,
+    link: _Linkage,
+    draws: np.ndarray | None,
+    free: np.ndarray | None = None,
+) -> None:
+    """The row's raw and linkage-adjusted p-values (``p_raw``; ``p_value``) and notes."""
+    df = int(row.df)
+    p_raw, boundary = lrt_pvalue(row.statistic, df, model, x_null)
+    row.extra["p_raw"] = p_raw
+    row.note += boundary
+    adj: LinkageAdjustment | None = None
+    why = link.why_not
+    if not why and draws is not None:
+        coords = [j for j in link.coordinates if j not in _boundary_coordinates(model, x_null)]
+        adj = (
+            linkage_adjustment(link.c_naive, draws, coords, free)
+            if link.c_naive is not None
+            else None
+        )
+        if adj is None:
+            why = (
+                "every DFE parameter is on a bound"
+                if len(coords) - (free is not None) < 1
+                else "too few converged bootstrap replicates in both populations"
+            )
+    if adj is None:
+        row.p_value = p_raw
+        row.note += f"; p not adjusted for linked sites: {why}"
+        warnings.warn(
+            f"{row.population_a} vs {row.population_b} / {row.model}: the p-value of "
+            f"{row.test} is read off chi2 as if sites were unlinked ({why})",
+            DriftbandWarning,
+            stacklevel=4,
+        )
+        return
+    stat_adj = row.statistic / adj.factor
+    k_b = len(boundary_parameters(model, x_null))
+    if k_b:
+        row.p_value = chibar2_sf(row.statistic / adj.mean, df, min(k_b, df))
+    else:
+        row.p_value = float(stats.chi2.sf(stat_adj, adj.df))
+    row.extra.update(
+        linkage_factor=adj.factor,
+        statistic_linkage=stat_adj,
+        df_linkage=adj.df,
+        linkage_eigenvalues=adj.eigenvalues.tolist(),
     )
-    note = (
-        f"; p from the \u03c7\u0304\u00b2 mixture {mix} (Self & Liang 1987): the null fit puts "
-        f"{', '.join(at)} on the boundary of its space"
-        + (" (weights for independent boundary parameters)" if k > 1 else "")
+    used = (
+        ""
+        if len(adj.coordinates) == model.n_free
+        else (
+            f" from {len(adj.coordinates)} of {model.n_free} DFE coordinates, the others on a bound"
+        )
     )
-    return chibar2_sf(stat, df, k), note
+    row.note += (
+        f"; p adjusted for linked sites: statistic / {adj.factor:.3g} on "
+        f"{adj.df:.3g} df (composite likelihood, {adj.replicates} paired block-bootstrap "
+        f"replicates{used})"
+    )
 
 
-def _joint_fit(
-    objs: list[Objective], model: DfeModel, shifts: list[np.ndarray], starts: list[np.ndarray]
-) -> tuple[float, np.ndarray, bool]:
-    """Maximise Σ log L_k(x + shift_k, ε_k) over a shared DFE vector x and per-pop ε.
-
-    Returns the maximum (the objective at the maximiser, which lies within the bounds),
-    the maximiser and the optimiser's convergence flag.
-    """
-    k = model.n_free
-    n_eps = [1 if o.free_eps else 0 for o in objs]
-    bounds = list(model.bounds()) + [(-13.8, -0.01)] * sum(n_eps)
-
-    def f(z: np.ndarray) -> float:
-        x = z[:k]
-        tot, j = 0.0, k
-        for o, sh, ne in zip(objs, shifts, n_eps):
-            v = np.concatenate([x + sh, z[j : j + ne]])
-            j += ne
-            tot += o(v)
-            if tot >= 1e299:
-                return 1e300
-        return tot
-
-    opt = minimize_multistart(f, starts, bounds, polish="always")
-    return -opt.fun, opt.x, opt.success
+def _boundary_coordinates(model: DfeModel, x: np.ndarray) -> set[int]:
+    """Coordinates of the null fit on a bound (their curvature is not usable)."""
+    return set(range(model.n_free)) - set(interior_coordinates(model, x))
 
 
-def _starts(
-    model: DfeModel, fa: FitResult, fb: FitResult, objs: list[Objective], shifts: list[np.ndarray]
-) -> list[np.ndarray]:
-    """Joint starts: each population's own estimate (shifted back) and the model grid."""
-    k = model.n_free
-    xa, xb = (np.asarray(f.x, dtype=float) for f in (fa, fb))
-    eps_part = [x[k:] for x, o in zip((xa, xb), objs) if o.free_eps]
-    eps_vec = np.concatenate(eps_part) if eps_part else np.empty(0)
-    base = [xa[:k] - shifts[0], xb[:k] - shifts[1]]
-    base += [s for s in model.starts()[::3]]
-    return [np.concatenate([b, eps_vec]) for b in base]
-
-
-def _not_converged(rows: list[ComparisonRow], converged: bool) -> None:
-    """Record the joint fit's convergence in the last row; note and warn when it failed."""
-    row = rows[-1]
+def _not_converged(row: ComparisonRow, converged: bool) -> None:
+    """Record the joint fit's convergence in the row; note and warn when it failed."""
     row.extra["converged"] = bool(converged)
     if not converged:
         row.note += "; the joint fit did not converge (treat the test with caution)"
@@ -237,6 +259,27 @@ def _not_converged(rows: list[ComparisonRow], converged: bool) -> None:
             ConvergenceWarning,
             stacklevel=3,
         )
+
+
+def _departure_note(
+    rows: list[ComparisonRow], pops: tuple[PopulationFit, PopulationFit], model: str
+) -> None:
+    """Note and warn on the "only Ne differs" rows when a population is out of equilibrium."""
+    found = [s for s in (equilibrium_departure(p, model) for p in pops) if s]
+    if not found:
+        return
+    text = (
+        "; ".join(found)
+        + ": the population looks out of equilibrium, and the 'only Ne differs' tests "
+        "assume equilibrium (explicit size histories are not yet available); the version "
+        "with the ratio from pi rejects a true null after a recent change of size"
+    )
+    for row in rows:
+        row.note += "; " + text
+        row.extra["out_of_equilibrium"] = True
+    warnings.warn(
+        f"{pops[0].population} vs {pops[1].population}: {text}", DriftbandWarning, stacklevel=3
+    )
 
 
 def compare_pair(
@@ -253,7 +296,8 @@ def compare_pair(
     Parameters
     ----------
     pop_a, pop_b : PopulationFit
-        The two populations' fits (with their bootstrap for the share difference).
+        The two populations' fits (with their bootstrap for the share difference and
+        for the linkage adjustment of the likelihood-ratio tests).
     model : DfeModel
         The family compared (it must have been fitted to both).
     options : FitOptions
@@ -279,154 +323,119 @@ def compare_pair(
             )
     fa, fb = pop_a.fits[model.name], pop_b.fits[model.name]
     edges = options.edges_nes
-    da, db = pop_a.data, pop_b.data
 
     def objective(d: SpectrumPair) -> Objective:
         ex = expectations.setdefault(d.n, DfeExpectation(d.n))
         return Objective(d, model, eps=options.eps, equilibrium=options.equilibrium, expectation=ex)
 
+    objs = [objective(pop_a.data), objective(pop_b.data)]
+    lrts = {"shared_dfe_lrt", "ne_only_free_lrt", "ne_only_lrt"} & set(tests)
+    link = _linkage_inputs(pop_a, pop_b, model, objs) if lrts else None
+    # each replicate's ψ: the difference of the populations' DFE vectors, about the estimate
+    diff = (
+        None
+        if link is None or link.moves_a is None or link.moves_b is None
+        else link.moves_b - link.moves_a
+    )
     ll_sep = float(fa.loglik) + float(fb.loglik)
     rows: list[ComparisonRow] = []
     df = model.n_free
-    if "shared_dfe_lrt" in tests:
-        objs = [objective(da), objective(db)]
-        zero = [np.zeros(df), np.zeros(df)]
-        ll_joint, z, ok = _joint_fit(objs, model, zero, _starts(model, fa, fb, objs, zero))
-        stat = max(0.0, 2.0 * (ll_sep - ll_joint))
-        shared = model.to_dfe(z[:df])
-        p, boundary = _lrt_p(stat, df, model, z[:df])
-        rows.append(
-            ComparisonRow(
-                name_a,
-                name_b,
-                "shared_dfe_lrt",
-                model.name,
-                stat,
+    zero = [np.zeros(df), np.zeros(df)]
+    mu = relative_mu or {}
+    rho_pi = (neutral_pi(pop_b.data) / mu.get(name_b, 1.0)) / (
+        neutral_pi(pop_a.data) / mu.get(name_a, 1.0)
+    )
+
+    def lrt_row(test: str, ll_null: float, dof: int, **kw: object) -> ComparisonRow:
+        stat = max(0.0, 2.0 * (ll_sep - ll_null))
+        return ComparisonRow(name_a, name_b, test, model.name, stat, dof, **kw)  # type: ignore[arg-type]
+
+    for test in (t for t in COMPARE_TESTS if t in tests):
+        if test == "shared_dfe_lrt":
+            ll, z, ok = joint_fit(objs, model, zero, joint_starts(model, fa, fb, objs, zero))
+            row = lrt_row(
+                test,
+                ll,
                 df,
-                p,
-                estimate=float(band_shares(shared, edges)[0]),
-                extra={"loglik_separate": ll_sep, "loglik_shared": ll_joint},
-                note="estimate: neutral-band share under the shared DFE" + boundary,
+                estimate=float(band_shares(model.to_dfe(z[:df]), edges)[0]),
+                extra={"loglik_separate": ll_sep, "loglik_shared": ll},
+                note="estimate: neutral-band share under the shared DFE",
             )
-        )
-        _not_converged(rows, ok)
-    if "neutral_share_difference" in tests:
-        rows.append(_share_difference(pop_a, pop_b, model.name))
-    if "ne_only_lrt" in tests:
-        mu = relative_mu or {}
-        rho = (neutral_pi(db) / mu.get(name_b, 1.0)) / (neutral_pi(da) / mu.get(name_a, 1.0))
-        shift_b = scale_shift(model, float(np.log(rho)))
-        objs = [objective(da), objective(db)]
-        shifts = [np.zeros(df), shift_b]
-        ll_c, z, ok = _joint_fit(objs, model, shifts, _starts(model, fa, fb, objs, shifts))
-        stat = max(0.0, 2.0 * (ll_sep - ll_c))
-        pred_b = float(band_shares(model.to_dfe(z[:df] + shift_b), edges)[0])
-        pred_a = float(band_shares(model.to_dfe(z[:df]), edges)[0])
-        p, boundary = _lrt_p(stat, df, model, z[:df])
-        assumption = (
-            "equal mutation rates"
-            if not mu
-            else "relative mutation rates " + ", ".join(f"{k}={v:g}" for k, v in mu.items())
-        )
-        rows.append(
-            ComparisonRow(
-                name_a,
-                name_b,
-                "ne_only_lrt",
-                model.name,
-                stat,
-                df,
-                p,
-                estimate=float(rho),
+            _finish_lrt(row, model, z[:df], link or _Linkage(None, None, None, [], ""), diff)
+        elif test == "neutral_share_difference":
+            rows.append(share_difference(pop_a, pop_b, model.name))
+            continue
+        elif test == "ne_only_free_lrt":
+            direction = scale_shift(model, 1.0)
+            ll, z, ok = joint_fit(
+                objs,
+                model,
+                zero,
+                joint_starts(model, fa, fb, objs, zero, direction, (math.log(rho_pi),)),
+                free=direction,
+            )
+            rho = math.exp(float(z[df]))
+            row = lrt_row(
+                test,
+                ll,
+                df - 1,
+                estimate=rho,
                 extra={
-                    "ne_ratio": float(rho),
-                    "predicted_share_a": pred_a,
-                    "predicted_share_b": pred_b,
-                    "observed_share_a": float(fa.shares[0]),
+                    "ne_ratio": rho,
+                    "ne_ratio_pi": float(rho_pi),
+                    "predicted_share_b": float(
+                        band_shares(model.to_dfe(z[:df] + z[df] * direction), edges)[0]
+                    ),
                     "observed_share_b": float(fb.shares[0]),
-                    "loglik_constrained": ll_c,
+                    "loglik_constrained": ll,
                     "loglik_separate": ll_sep,
                 },
-                note=f"estimate: Ne_B/Ne_A from neutral pi ratio, assuming {assumption}" + boundary,
+                note="estimate: Ne_B/Ne_A fitted (the DFE's shape shared, its scale free)",
             )
-        )
-        _not_converged(rows, ok)
+            _finish_lrt(
+                row, model, z[:df], link or _Linkage(None, None, None, [], ""), diff, direction
+            )
+        else:  # ne_only_lrt
+            shift_b = scale_shift(model, float(np.log(rho_pi)))
+            shifts = [np.zeros(df), shift_b]
+            ll, z, ok = joint_fit(objs, model, shifts, joint_starts(model, fa, fb, objs, shifts))
+            assumption = (
+                "equal mutation rates"
+                if not mu
+                else "relative mutation rates " + ", ".join(f"{k}={v:g}" for k, v in mu.items())
+            )
+            row = lrt_row(
+                test,
+                ll,
+                df,
+                estimate=float(rho_pi),
+                extra={
+                    "ne_ratio": float(rho_pi),
+                    "ne_ratio_pi": float(rho_pi),
+                    "predicted_share_a": float(band_shares(model.to_dfe(z[:df]), edges)[0]),
+                    "predicted_share_b": float(
+                        band_shares(model.to_dfe(z[:df] + shift_b), edges)[0]
+                    ),
+                    "observed_share_a": float(fa.shares[0]),
+                    "observed_share_b": float(fb.shares[0]),
+                    "loglik_constrained": ll,
+                    "loglik_separate": ll_sep,
+                },
+                note=f"estimate: Ne_B/Ne_A from neutral pi ratio, assuming {assumption}",
+            )
+            draws = diff
+            log_rho = _log_ratio_draws(pop_a, pop_b, mu)
+            if draws is not None and log_rho is not None:
+                draws = draws - np.outer(log_rho, scale_shift(model, 1.0))
+            elif draws is not None:
+                row.note += (
+                    "; the pi ratio's own uncertainty is not included (fit files without "
+                    "the replicates' pi: refit with this version)"
+                )
+            _finish_lrt(row, model, z[:df], link or _Linkage(None, None, None, [], ""), draws)
+        _not_converged(row, ok)
+        rows.append(row)
+    ne_rows = [r for r in rows if r.test.startswith("ne_only")]
+    if ne_rows:
+        _departure_note(ne_rows, (pop_a, pop_b), model.name)
     return rows
-
-
-def _averaged_draws(pop: PopulationFit) -> np.ndarray | None:
-    """The model-averaged neutral-share draws, when the population's headline is averaged
-    and every family was bootstrapped."""
-    boot = pop.bootstrap
-    if boot is None or boot.averaged is None or pop.headline_method != "averaged":
-        return None
-    return boot.averaged.share_draws(0)
-
-
-def _share_difference(pop_a: PopulationFit, pop_b: PopulationFit, model: str) -> ComparisonRow:
-    """share_B − share_A with its paired-bootstrap interval and p-value.
-
-    The headline shares are compared when both populations' headlines are model-averaged,
-    else the shares of ``model``. The replicates pair up by index (the same block draw for
-    the populations of one dataset); a replicate that failed in either population is left
-    out of both.
-    """
-    xa, xb = _averaged_draws(pop_a), _averaged_draws(pop_b)
-    if xa is not None and xb is not None:
-        which = "averaged"
-        sa, sb = (float(p.headline().shares[0]) for p in (pop_a, pop_b))
-    else:
-        which = model
-        xa, xb = _draws_of(pop_a, model), _draws_of(pop_b, model)
-        sa, sb = (float(p.fits[model].shares[0]) for p in (pop_a, pop_b))
-    row = ComparisonRow(
-        pop_a.population,
-        pop_b.population,
-        "neutral_share_difference",
-        which,
-        estimate=sb - sa,
-        extra={"share_a": sa, "share_b": sb},
-    )
-    if xa is None or xb is None or not xa.size or not xb.size:
-        row.note = "no bootstrap in the fit files: rerun 'driftband fit' with --bootstrap B"
-        return row
-    notes = []
-    if xa.size == xb.size:
-        d = xb - xa
-    else:  # files without placeholders for failed replicates (schema version 1)
-        m = min(xa.size, xb.size)
-        d = xb[:m] - xa[:m]
-        notes.append("replicates paired by position (an older fit file)")
-    d = d[np.isfinite(d)]
-    if d.size < 2:
-        row.note = "fewer than two bootstrap replicates converged in both populations"
-        return row
-    level = pop_a.bootstrap.level if pop_a.bootstrap is not None else 0.95
-    a = (1 - level) / 2
-    row.ci_low, row.ci_high = (float(v) for v in np.quantile(d, [a, 1 - a]))
-    tail = min(np.sum(d <= 0), np.sum(d >= 0))
-    row.statistic = float((sb - sa) / np.std(d, ddof=1))
-    row.extra["replicates"] = int(d.size)
-    few = [p.bootstrap.blocks for p in (pop_a, pop_b) if p.bootstrap and p.bootstrap.few_blocks]
-    notes.insert(0, f"bootstrap: {d.size} replicates, level {level:g}")
-    if few:
-        nb = min(few)
-        notes.append(
-            f"no p-value: only {nb} genomic blocks (fewer than {MIN_BLOCKS}), "
-            "so the interval is unreliable too"
-        )
-    else:
-        row.p_value = float(min(1.0, 2.0 * (tail + 1) / (d.size + 1)))
-        if tail == 0:
-            row.extra["p_at_floor"] = True
-            notes.append(
-                f"no replicate crossed zero: p <= 2/(B+1) = {row.p_value:.2g}, "
-                "the smallest p this B can give"
-            )
-    row.note = "; ".join(notes)
-    return row
-
-
-def _draws_of(pop: PopulationFit, model: str) -> np.ndarray | None:
-    mb = pop.model_bootstrap(model)
-    return None if mb is None or not mb.shares.size else mb.share_draws(0)

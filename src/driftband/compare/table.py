@@ -1,14 +1,35 @@
-"""The comparison table ``compare.tsv``: its columns and its writer."""
+"""The comparison table ``compare.tsv``: its rows, its columns and its writer."""
 
 from __future__ import annotations
 
 import csv
 import os
+from dataclasses import dataclass, field
+from typing import Any
 
 from .._io import atomic_output, tsv_cell
-from .pair import ComparisonRow
 
-__all__ = ["COLUMNS", "write_compare_tsv"]
+__all__ = ["COLUMNS", "ComparisonRow", "write_compare_tsv"]
+
+
+@dataclass
+class ComparisonRow:
+    """One row of ``compare.tsv`` (test-specific values in ``extra``, by column name)."""
+
+    population_a: str
+    population_b: str
+    test: str
+    model: str
+    statistic: float = float("nan")
+    df: float = float("nan")
+    p_value: float = float("nan")
+    p_adjusted: float = float("nan")
+    estimate: float = float("nan")
+    ci_low: float = float("nan")
+    ci_high: float = float("nan")
+    extra: dict[str, Any] = field(default_factory=dict)
+    note: str = ""
+
 
 #: Columns of ``compare.tsv``.
 COLUMNS = [
@@ -18,6 +39,10 @@ COLUMNS = [
     "model",
     "statistic",
     "df",
+    "p_raw",
+    "linkage_factor",
+    "statistic_linkage",
+    "df_linkage",
     "p_value",
     "p_adjusted",
     "p_at_floor",
@@ -25,8 +50,10 @@ COLUMNS = [
     "ci_low",
     "ci_high",
     "ne_ratio",
+    "ne_ratio_pi",
     "predicted_share_b",
     "observed_share_b",
+    "out_of_equilibrium",
     "note",
 ]
 

@@ -23,8 +23,10 @@ from ..defaults import MIN_BLOCKS
 from ..exceptions import DriftbandWarning, InputError
 from ..prf.dfe import DfeExpectation
 from .adaptive import ALPHA_KEYS, adaptive_replicate
-from .likelihood import SpectrumPair
+from .likelihood import Objective, SpectrumPair
 from .mle import fit_model
+from .models import DfeModel
+from .optimize import central_gradient
 from .options import FitOptions
 from .results import (
     AveragedBootstrap,
@@ -215,8 +217,28 @@ def _replicate_task(args: _ReplicateBatch) -> list[dict[str, Any]]:
                 "success": f.success,
             }
             rep[m.name].update(adaptive_replicate(data, f))
+            rep[m.name]["score"] = _score(data, m, options, ex, starts[m.name])
         out.append(rep)
     return out
+
+
+def _score(
+    data: SpectrumPair,
+    model: DfeModel,
+    options: FitOptions,
+    ex: DfeExpectation,
+    x: np.ndarray | None,
+) -> list[float] | None:
+    """Gradient of the replicate's negative profile log-likelihood at the point estimate.
+
+    Over the replicates its covariance estimates the variability J of the score (the
+    block draws carry the linkage between sites), for the composite-likelihood
+    adjustment of the tests between populations (:mod:`driftband.compare.linkage`).
+    """
+    if x is None:
+        return None
+    obj = Objective(data, model, eps=options.eps, equilibrium=options.equilibrium, expectation=ex)
+    return central_gradient(obj, np.asarray(x, dtype=float)).tolist()
 
 
 def default_batch(replicates: int, workers: int) -> int:
@@ -280,6 +302,7 @@ def bootstrap_fits(
     owners: list[int] = []
     wanted: list[list[str]] = []
     distinct: list[int] = []
+    pis: list[np.ndarray] = []
     for k, pf in enumerate(fits):
         pop = pops[pf.population]
         names = [
@@ -309,6 +332,7 @@ def bootstrap_fits(
         stream = zlib.crc32(pf.dataset.encode())
         idx = resample_indices(nb, replicates, seed, stream)
         distinct.append(len({tuple(np.sort(row)) for row in idx}))
+        pis.append(_replicate_pi(pf.data, bn, ln, idx))
         opts = dataclasses.replace(options, models=tuple(options.model(n) for n in names))
         starts = {name: pf.fits[name].x for name in names}
         for b0 in range(0, replicates, batch):
@@ -341,7 +365,26 @@ def bootstrap_fits(
             boots,
             _averaged(pf, boots, level) if every else None,
             distinct[k],
+            pis[k],
         )
+
+
+def _replicate_pi(
+    data: SpectrumPair, bn: np.ndarray, ln: np.ndarray, idx: np.ndarray
+) -> np.ndarray:
+    """π per site of the neutral class (Tajima 1983) in each replicate's block draw.
+
+    NaN where a replicate's draw has no callable neutral site.
+    """
+    n = data.n
+    if not len(idx):
+        return np.empty(0)
+    counts = np.stack([np.bincount(row, minlength=bn.shape[0]) for row in idx])
+    sfs, sites = counts @ bn, counts @ ln
+    i = np.arange(1, n // 2 + 1 if data.folded else n)
+    total = sfs[:, i] @ (i * (n - i) / (n * (n - 1) / 2.0))
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return np.where(sites > 0, total / sites, np.nan)
 
 
 def _averaged(
@@ -389,7 +432,14 @@ def _summarise(f: Any, reps: list[dict[str, Any] | None], level: float) -> Model
     for key in ALPHA_KEYS:
         if any(r and key in r for r in reps):
             params[key] = col(lambda r, key=key: r.get(key, nan))
-    mb = ModelBootstrap(0, 0, params, shares, {}, [], converged, col(lambda r: r["loglik"]))
+    dim = max((len(r["score"]) for r in reps if r and r.get("score") is not None), default=0)
+    score = np.array(
+        [r["score"] if r and r.get("score") is not None else [nan] * dim for r in reps],
+        dtype=float,
+    ).reshape(B, dim)
+    mb = ModelBootstrap(
+        0, 0, params, shares, {}, [], converged, col(lambda r: r["loglik"]), score if dim else None
+    )
     ok = mb.ok
     mb.replicates, mb.failed = int(ok.sum()), int(B - ok.sum())
     mb.params_ci = {p: percentile_interval(v[ok], level) for p, v in params.items()}

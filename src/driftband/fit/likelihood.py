@@ -158,6 +158,14 @@ class SpectrumPair:
         return cls(n, folded, xn, xs, float(sites_neutral), float(sites_selected), *fixed)
 
     @property
+    def neutral_pi(self) -> float:
+        """π per site of the neutral class (Tajima 1983) from its polymorphic entries."""
+        from ..spectra.stats import pi_theta_counts
+
+        sfs = np.concatenate([[0.0], self.neutral])
+        return pi_theta_counts(sfs, self.n, self.folded)[0] / self.sites_neutral
+
+    @property
     def m(self) -> int:
         """Number of polymorphic classes."""
         return self.neutral.size

@@ -28,7 +28,7 @@ from ..prf.expected import fixation_ratio as kimura_u
 from ..prf.families import band_shares
 from .likelihood import Objective, SpectrumPair
 from .models import DfeModel, at_bound
-from .optimize import minimize_multistart
+from .optimize import central_hessian, minimize_multistart
 
 __all__ = ["FitResult", "fit_model", "params_at_bounds"]
 
@@ -229,28 +229,6 @@ def _deleterious_ratio(d: dict[str, Any]) -> float:
     return (r - p_b * float(kimura_u(s_b))) / (1.0 - p_b)
 
 
-def _hessian(f, x, bounds, h=1e-4):
-    """Central-difference Hessian of ``f`` at ``x`` (steps shrunk near the bounds)."""
-    k = x.size
-    H = np.empty((k, k))
-    steps = np.full(k, h)
-    f0 = f(x)
-    for a in range(k):
-        for b in range(a, k):
-            ea = np.zeros(k)
-            eb = np.zeros(k)
-            ea[a] = steps[a]
-            eb[b] = steps[b]
-            if a == b:
-                v = (f(x + ea) - 2 * f0 + f(x - ea)) / steps[a] ** 2
-            else:
-                v = (f(x + ea + eb) - f(x + ea - eb) - f(x - ea + eb) + f(x - ea - eb)) / (
-                    4 * steps[a] * steps[b]
-                )
-            H[a, b] = H[b, a] = v
-    return H
-
-
 def _natural_vector(obj: Objective, x: np.ndarray) -> np.ndarray:
     xd, eps = obj.split(x)
     vals = list(obj.model.natural(xd).values())
@@ -263,7 +241,7 @@ def _stderr(obj: Objective, x: np.ndarray) -> dict[str, float]:
     names = list(obj.model.param_names) + (["eps"] if obj.free_eps else [])
     nan = {k: float("nan") for k in names}
     try:
-        H = _hessian(obj, x, obj.bounds())
+        H = central_hessian(obj, x)
         if not np.all(np.isfinite(H)):
             return nan
         cov = np.linalg.inv(H)

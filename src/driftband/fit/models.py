@@ -173,6 +173,46 @@ class DfeModel:
             vals += [d.p_b, d.s_b]
         return dict(zip(self.param_names, (float(v) for v in vals)))
 
+    def from_natural(self, values: dict[str, float]) -> np.ndarray:
+        """The unconstrained vector of natural-scale parameters (inverse of :meth:`natural`).
+
+        Coordinates are clipped into :meth:`bounds` (a band mass of 0 maps to the lower
+        bound of its log-ratio).
+
+        Parameters
+        ----------
+        values : dict of str to float
+            By the names of :attr:`param_names` (other keys are ignored).
+
+        Returns
+        -------
+        ndarray, shape (n_free,)
+            NaN where a value is missing or not finite.
+
+        Examples
+        --------
+        >>> m = DfeModel("gamma")
+        >>> x = m.from_natural({"shape": 0.3, "mean_S": 200.0})
+        >>> {k: round(v, 6) for k, v in m.natural(x).items()}
+        {'shape': 0.3, 'mean_S': 200.0}
+        """
+        nat = np.array([values.get(n, np.nan) for n in self.param_names], dtype=float)
+        k = len(self.param_names) - (2 if self.beneficial else 0)
+        base, ben = nat[:k], nat[k:]
+        with np.errstate(divide="ignore", invalid="ignore"):
+            if self.family == "gamma":
+                x = list(np.log(base))
+            elif self.family == "lognormal":
+                x = [base[0], np.log(base[1])]
+            else:
+                x = list(np.log(base[1:]) - np.log(base[0]))
+            if self.beneficial:
+                x += [np.log(ben[0]) - np.log1p(-ben[0]), np.log(ben[1])]
+        out = np.array(x, dtype=float)
+        lo, hi = np.array(self.bounds()).T
+        bad = np.isnan(out) | ~np.isfinite(nat).all()
+        return np.where(bad, np.nan, np.clip(out, lo, hi))
+
     def starts(self) -> list[np.ndarray]:
         """Starting points of the multi-start search (unconstrained scale)."""
         if self.family == "gamma":

@@ -18,7 +18,14 @@ from typing import Any, Literal
 import numpy as np
 from scipy import optimize
 
-__all__ = ["LBFGSB_OPTIONS", "NELDER_MEAD_OPTIONS", "Optimum", "minimize_multistart"]
+__all__ = [
+    "LBFGSB_OPTIONS",
+    "NELDER_MEAD_OPTIONS",
+    "Optimum",
+    "central_gradient",
+    "central_hessian",
+    "minimize_multistart",
+]
 
 #: Options of the L-BFGS-B runs from each start.
 LBFGSB_OPTIONS = {"maxiter": 500, "ftol": 1e-13, "gtol": 1e-8}
@@ -115,3 +122,76 @@ def minimize_multistart(
         f"optimiser: {best.message!s}"
     )
     return Optimum(xbest, fbest, converged, msg, runs, agree)
+
+
+def central_hessian(f: Callable[[np.ndarray], float], x: np.ndarray, h: float = 1e-4) -> np.ndarray:
+    """Central-difference Hessian of ``f`` at ``x`` (step ``h`` on every coordinate).
+
+    Parameters
+    ----------
+    f : callable
+        Scalar function of a vector.
+    x : ndarray, shape (k,)
+    h : float
+        Step.
+
+    Returns
+    -------
+    ndarray, shape (k, k)
+
+    Examples
+    --------
+    >>> H = central_hessian(lambda v: v[0] ** 2 + 3 * v[0] * v[1], np.array([1.0, 2.0]))
+    >>> np.round(H, 6).tolist()
+    [[2.0, 3.0], [3.0, 0.0]]
+    """
+    x = np.asarray(x, dtype=float)
+    k = x.size
+    H = np.empty((k, k))
+    f0 = f(x)
+    e = np.eye(k) * h
+    for a in range(k):
+        for b in range(a, k):
+            if a == b:
+                v = (f(x + e[a]) - 2 * f0 + f(x - e[a])) / h**2
+            else:
+                v = (
+                    f(x + e[a] + e[b])
+                    - f(x + e[a] - e[b])
+                    - f(x - e[a] + e[b])
+                    + f(x - e[a] - e[b])
+                ) / (4 * h * h)
+            H[a, b] = H[b, a] = v
+    return H
+
+
+def central_gradient(
+    f: Callable[[np.ndarray], float], x: np.ndarray, h: float = 1e-5
+) -> np.ndarray:
+    """Central-difference gradient of ``f`` at ``x`` (NaN where ``f`` is infeasible).
+
+    Parameters
+    ----------
+    f : callable
+        Scalar function of a vector; values of 1e299 or more mark infeasible points.
+    x : ndarray, shape (k,)
+    h : float
+        Step.
+
+    Returns
+    -------
+    ndarray, shape (k,)
+
+    Examples
+    --------
+    >>> np.round(central_gradient(lambda v: v[0] ** 2 + 3 * v[1], np.array([1.0, 2.0])), 6)
+    array([2., 3.])
+    """
+    x = np.asarray(x, dtype=float)
+    g = np.empty(x.size)
+    for j in range(x.size):
+        e = np.zeros(x.size)
+        e[j] = h
+        hi, lo = f(x + e), f(x - e)
+        g[j] = np.nan if max(hi, lo) >= 1e299 else (hi - lo) / (2 * h)
+    return g

@@ -71,6 +71,10 @@ class ModelBootstrap:
         Whether each replicate's refit converged.
     loglik : ndarray, shape (B,)
         Log-likelihood of each refit (for the Akaike weights of each replicate).
+    score : ndarray, shape (B, dim), or None
+        Gradient of each replicate's negative profile log-likelihood at the point
+        estimate, on the optimiser's scale (DFE vector, then logit ε when free); NaN
+        rows where the replicate has no data.
     """
 
     replicates: int
@@ -81,6 +85,7 @@ class ModelBootstrap:
     shares_ci: list[ConfidenceInterval]
     converged: np.ndarray | None = None
     loglik: np.ndarray | None = None
+    score: np.ndarray | None = None
 
     @property
     def ok(self) -> np.ndarray:
@@ -108,6 +113,8 @@ class ModelBootstrap:
             out["converged"] = [bool(v) for v in self.converged]
         if self.loglik is not None:
             out["loglik"] = self.loglik.tolist()
+        if self.score is not None:
+            out["score"] = self.score.tolist()
         return out
 
     @classmethod
@@ -118,6 +125,7 @@ class ModelBootstrap:
         shares = np.array(rows) if rows else np.empty((0, len(shares_ci)))
         conv = d.get("converged")
         ll = d.get("loglik")
+        sc = d.get("score")
         return cls(
             int(d["replicates"]),
             int(d["failed"]),
@@ -127,6 +135,7 @@ class ModelBootstrap:
             shares_ci,
             None if conv is None else np.array([bool(v) for v in conv]),
             None if ll is None else _floats(ll),
+            None if sc is None else np.array([_floats(r) for r in sc]),
         )
 
 
@@ -196,6 +205,13 @@ class BootstrapResult:
         Confidence level of the intervals.
     models : dict of str to ModelBootstrap
         The models refitted in every replicate.
+    averaged : AveragedBootstrap or None
+        Model-averaged shares per replicate (when every family was refitted).
+    distinct : int or None
+        Distinct block draws among the replicates.
+    neutral_pi : ndarray, shape (B,), or None
+        π per site of the neutral class in each replicate (NaN where the replicate has no
+        data), for tests whose Ne ratio comes from neutral diversity.
     """
 
     replicates: int
@@ -205,6 +221,7 @@ class BootstrapResult:
     models: dict[str, ModelBootstrap] = field(default_factory=dict)
     averaged: AveragedBootstrap | None = None
     distinct: int | None = None
+    neutral_pi: np.ndarray | None = None
 
     @property
     def few_blocks(self) -> bool:
@@ -224,6 +241,8 @@ class BootstrapResult:
             out["distinct_replicates"] = self.distinct
         if self.averaged is not None:
             out["averaged"] = self.averaged.to_dict()
+        if self.neutral_pi is not None:
+            out["neutral_pi"] = self.neutral_pi.tolist()
         return out
 
     @classmethod
@@ -231,6 +250,7 @@ class BootstrapResult:
         """Back from :meth:`to_dict`."""
         av = d.get("averaged")
         dist = d.get("distinct_replicates")
+        npi = d.get("neutral_pi")
         return cls(
             int(d["replicates"]),
             int(d["blocks"]),
@@ -239,6 +259,7 @@ class BootstrapResult:
             {str(k): ModelBootstrap.from_dict(v) for k, v in d["models"].items()},
             None if av is None else AveragedBootstrap.from_dict(av),
             None if dist is None else int(dist),
+            None if npi is None else _floats(npi),
         )
 
 

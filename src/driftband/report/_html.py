@@ -32,7 +32,7 @@ from ._text import (
     param_label,
     pct,
 )
-from ._view import PopulationView, ReportView, answer_sentence
+from ._view import PopulationView, ReportView, answer_sentence, comparison_guides
 
 __all__ = ["render_html"]
 
@@ -236,6 +236,7 @@ def _comparisons(view: ReportView) -> str:
             + "".join(f"<li>{esc(s)}</li>" for _t, s in pair.sentences)
             + "</ul>"
         )
+    out += [f"<p>{esc(g)}</p>" for g in comparison_guides(view)]
     how = (
         f"p-values are adjusted across pairs, test by test ({esc(view.adjust_method)})."
         if view.adjust_known

@@ -6,7 +6,7 @@ import re
 from typing import Any
 
 from ._text import CAUTIONS, CONVENTIONS, NA, fnum, frange, fsig, is_num, pct
-from ._view import ReportView, answer_sentence
+from ._view import ReportView, answer_sentence, comparison_guides
 
 __all__ = ["render_markdown"]
 
@@ -107,6 +107,8 @@ def render_markdown(view: ReportView) -> str:
             out.append("")
             out += [f"- {md(s)}" for _t, s in pair.sentences]
             out.append("")
+        for g in comparison_guides(view):
+            out += [md(g), ""]
         out.append(
             "p-values adjusted across pairs, test by test"
             + (

@@ -17,7 +17,15 @@ from ..exceptions import InputError
 from ._inputs import check_compare_rows, check_fit_doc, check_spectra_doc
 from ._text import ALPHA_LEVEL, band_label, digits_for, fnum, fp, frange, fsig, is_num, pct
 
-__all__ = ["Band", "PairView", "PopulationView", "ReportView", "bound_flag", "collect"]
+__all__ = [
+    "Band",
+    "PairView",
+    "PopulationView",
+    "ReportView",
+    "bound_flag",
+    "collect",
+    "comparison_guides",
+]
 
 RESIDUAL_FLAG = 3.0  # |Pearson residual| above which a class is pointed out
 
@@ -341,6 +349,14 @@ def _p_text(r: dict[str, Any], method: str) -> str:
         parts.append(f"p {rel} {fp(r['p_value'])}")
     if is_num(r.get("p_adjusted")):
         parts.append(f"{method}-adjusted p {rel} {fp(r['p_adjusted'])}")
+    if is_num(r.get("statistic_linkage")) and is_num(r.get("p_raw")):
+        parts.append(
+            f"p read off the statistic adjusted for linked sites (divided by "
+            f"{fnum(r.get('linkage_factor'), 2)}); as if sites were unlinked p = "
+            f"{fp(r['p_raw'])}"
+        )
+    elif is_num(r.get("p_raw")):
+        parts.append("p not adjusted for linked sites (see the table's note)")
     return ", ".join(parts) if parts else "no p-value"
 
 
@@ -428,36 +444,94 @@ def _sentence_ne_only(r: dict[str, Any], pops: dict[str, PopulationView], method
     a, b, model = r["population_a"], r["population_b"], r["model"]
     rho = r.get("ne_ratio") if is_num(r.get("ne_ratio")) else r.get("estimate")
     note = str(r.get("note") or "")
-    assumption = (
-        note.split("assuming ", 1)[1]
-        if "assuming " in note
-        else ("equal mutation rates unless relative rates were given")
-    )
+    free = r["test"] == "ne_only_free_lrt"
     pred, obs = r.get("predicted_share_b"), r.get("observed_share_b")
     if not is_num(obs):
         obs = _share(pops, b, model)
     dig = digits_for(pred, obs)
+    if free:
+        how = (
+            f"fitted with the shape of the DFE shared and its scale free: Ne({b})/Ne({a}) "
+            f"= {fnum(rho, 2)}"
+            + (
+                f" (from neutral diversity π: {fnum(r.get('ne_ratio_pi'), 2)})"
+                if is_num(r.get("ne_ratio_pi"))
+                else ""
+            )
+        )
+        head = "Only Ne differs (ratio fitted; the version to read)?"
+    else:
+        assumption = (
+            note.split("assuming ", 1)[1].split(";", 1)[0]
+            if "assuming " in note
+            else "equal mutation rates unless relative rates were given"
+        )
+        how = (
+            f"with Ne({b})/Ne({a}) = {fnum(rho, 2)} from the ratio of diversity π at "
+            f"neutral sites, assuming {assumption}"
+        )
+        head = "Only Ne differs (ratio from π)?"
     text = (
-        f"Only Ne differs? If {a} and {b} shared one distribution of s and differed only "
-        f"in Ne, with Ne({b})/Ne({a}) = {fnum(rho, 2)} (from the ratio of diversity "
-        f"\u03c0 at neutral sites, assuming {assumption}), "
-        f"the effectively neutral share of {b} would be {fnum(pred, dig)}; observed "
-        f"{fnum(obs, dig)}. Likelihood-ratio test of this constraint against separate "
-        f"DFEs: statistic {fnum(r.get('statistic'), 2)}, df {fnum(r.get('df'), 0)}, "
-        f"{_p_text(r, method)}."
+        f"{head} If {a} and {b} shared one distribution of s and differed only in Ne, "
+        f"{how}, the effectively neutral share of {b} would be {fnum(pred, dig)}; "
+        f"observed {fnum(obs, dig)}. Likelihood-ratio test of this constraint against "
+        f"separate DFEs: statistic {fnum(r.get('statistic'), 2)}, df "
+        f"{fnum(r.get('df'), 0)}, {_p_text(r, method)}."
     )
+    if str(r.get("out_of_equilibrium") or "").lower() == "true":
+        text += (
+            " Caution: a population looks out of equilibrium (see the table's note); both "
+            "versions assume equilibrium, and the one with the ratio from π can reject "
+            "a true null after a recent change of size."
+        )
     p = _p_for_verdict(r)
     if p is None:
         return text
     if p < ALPHA_LEVEL:
         return text + (
             " Rejected at the 5 % level: a difference in Ne alone does not "
-            "explain the two DFEs (the distributions of s may differ, or the Ne "
-            "ratio is misestimated)."
+            "explain the two DFEs (the distributions of s may differ"
+            + ("" if free else ", or the Ne ratio from π is not that of the DFE")
+            + ")."
         )
     return text + (
         " Not rejected at the 5 % level: a difference in Ne alone is compatible with the data."
     )
+
+
+NE_ONLY_GUIDE = (
+    "Two versions of the 'only Ne differs' test are run. Read the one with the Ne ratio "
+    "fitted: it asks only whether one DFE shape, stretched along S = 4Ne·s, fits both "
+    "populations. The version with the ratio from neutral diversity π adds a second "
+    "assumption: that π measures the same Ne as the DFE does, which holds at "
+    "equilibrium but not after a recent change of size (π then still reflects the "
+    "older size), when it rejects a true null; where the two versions disagree, the "
+    "fitted ratio and the one from π usually differ too."
+)
+
+
+LINKAGE_GUIDE = (
+    "The likelihood-ratio tests compare Poisson likelihoods that treat every site as "
+    "independent. Sites close together on a chromosome share their history, so these "
+    "statistics overstate the evidence. With a bootstrap over at least 20 genomic blocks "
+    "each statistic is divided by a factor estimated from how much the blocks vary "
+    "(composite-likelihood theory: Varin, Reid & Firth 2011; a Rao\u2013Scott-type "
+    "correction), and its p-value is read off the adjusted statistic; a factor near 1 "
+    "means the sites behave as if unlinked. The table keeps both the raw and the adjusted "
+    "statistic. The neutral-share difference needs no such adjustment: its bootstrap "
+    "resamples whole blocks."
+)
+
+
+def comparison_guides(view: ReportView) -> list[str]:
+    """Plain-words paragraphs that explain the tests present in the comparison table."""
+    tests = {r.get("test") for r in view.compare_rows or []}
+    out = []
+    if tests & {"shared_dfe_lrt", "ne_only_free_lrt", "ne_only_lrt"}:
+        out.append(LINKAGE_GUIDE)
+    if tests & {"ne_only_free_lrt", "ne_only_lrt"}:
+        out.append(NE_ONLY_GUIDE)
+    return out
 
 
 def _pairs(
@@ -469,7 +543,12 @@ def _pairs(
     out = []
     for (a, b), rs in order.items():
         sent: list[tuple[str, str]] = []
-        for test in ("neutral_share_difference", "shared_dfe_lrt", "ne_only_lrt"):
+        for test in (
+            "neutral_share_difference",
+            "shared_dfe_lrt",
+            "ne_only_free_lrt",
+            "ne_only_lrt",
+        ):
             for r in (x for x in rs if x["test"] == test):
                 if test == "neutral_share_difference":
                     sent.append((test, _sentence_difference(r, pops, method, level)))

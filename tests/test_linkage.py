@@ -1,0 +1,187 @@
+"""The composite-likelihood (linked-sites) adjustment of the likelihood-ratio tests.
+
+Reference: Varin, Reid & Firth (2011), Statistica Sinica 21:5–42, sec. 4.2 — the
+likelihood-ratio statistic of a composite likelihood tends to Σ λ_j χ²₁, λ_j the
+eigenvalues of (H^ψψ)⁻¹ G^ψψ; with independent observations all λ_j = 1 (Wilks). The
+second-order correction W/c on ν df with c = Σλ²/Σλ, ν = (Σλ)²/Σλ² is that of
+Satterthwaite (1946) / Rao & Scott (1981).
+"""
+
+import csv
+import json
+
+import numpy as np
+import pytest
+
+from driftband.cli import main
+from driftband.compare.linkage import (
+    interior_coordinates,
+    linkage_adjustment,
+    naive_covariance,
+    replicate_vectors,
+)
+from driftband.fit.likelihood import Objective, SpectrumPair
+from driftband.fit.models import DfeModel
+from driftband.fit.results import ModelBootstrap
+from driftband.prf.families import GammaDfe
+
+
+def test_eigenvalues_against_a_hand_worked_case():
+    # Naive covariance I, true covariance diag(2, 3): λ = 2 and 3 (the eigenvalues of
+    # I⁻¹·G), c = (4 + 9)/5 = 2.6 and ν = 25/13 (Satterthwaite's formulas, by hand).
+    rng = np.random.default_rng(7)
+    draws = rng.standard_normal((200_000, 2)) * np.sqrt([2.0, 3.0])
+    adj = linkage_adjustment(np.eye(2), draws, [0, 1])
+    assert sorted(adj.eigenvalues) == pytest.approx([2.0, 3.0], rel=0.02)
+    assert adj.factor == pytest.approx(2.6, rel=0.02)
+    assert adj.df == pytest.approx(25 / 13, rel=0.02)
+    # A null that leaves the first direction free projects it out: one eigenvalue, 3.
+    free = linkage_adjustment(np.eye(2), draws, [0, 1], free=np.array([1.0, 0.0]))
+    assert free.eigenvalues == pytest.approx([3.0], rel=0.02)
+    assert free.df == pytest.approx(1.0)
+    # Correlated naive metric: λ are the generalised eigenvalues of (G, H), from scipy.
+    from scipy.linalg import eigh
+
+    H = np.array([[1.0, 0.6], [0.6, 2.0]])
+    G = np.array([[3.0, 0.5], [0.5, 2.5]])
+    d = rng.multivariate_normal([0, 0], G, size=200_000)
+    lam = linkage_adjustment(H, d, [0, 1]).eigenvalues
+    assert sorted(lam) == pytest.approx(sorted(eigh(G, H, eigvals_only=True)), rel=0.02)
+
+
+def test_too_few_replicates_or_coordinates_give_no_adjustment():
+    d = np.random.default_rng(1).standard_normal((15, 2))
+    assert linkage_adjustment(np.eye(2), d, [0, 1]) is None  # fewer than 20 replicates
+    d = np.random.default_rng(1).standard_normal((100, 2))
+    assert linkage_adjustment(np.eye(2), d, []) is None
+    assert linkage_adjustment(np.eye(2), d, [0], free=np.array([1.0, 0.0])) is None
+
+
+def test_bounds_are_left_out():
+    m = DfeModel("gamma")
+    # shape at its upper bound 100 in one of the fits: only the mean's coordinate is used
+    assert interior_coordinates(m, np.log([0.3, 200.0]), np.log([100.0, 50.0])) == [1]
+    d = DfeModel("discrete")
+    x = d.from_natural({"mass_0": 0.2, "mass_1": 0.0, "mass_2": 0.3, "mass_3": 0.5})
+    assert interior_coordinates(d, x) == [1, 2]  # mass_1 = 0: its log ratio is dropped
+    b = DfeModel("gamma", beneficial=True)
+    x = b.from_natural({"shape": 0.3, "mean_S": 200.0, "p_b": 1e-6, "S_b": 10.0})
+    assert interior_coordinates(b, x) == [0, 1, 3]
+
+
+def test_naive_covariance_is_the_inverse_fisher_information():
+    # An internal consistency check (no outside reference): on noise-free spectra the
+    # covariance is positive definite and does not depend on the finite-difference step.
+    from driftband.prf.dfe import DfeExpectation
+
+    n = 12
+    ex = DfeExpectation(n)
+    dfe = GammaDfe(0.3, 200.0)
+    lam_s = 1e6 * 0.01 * np.asarray(ex.mean_g(dfe))
+    lam_n = 1e6 * 0.01 / np.arange(1, n)
+    data = SpectrumPair(n, False, lam_n, lam_s, 1e6, 1e6)
+    m = DfeModel("gamma")
+    obj = Objective(data, m, eps=0.0, expectation=ex)
+    x = np.log([0.3, 200.0])
+    got = naive_covariance(obj, x)
+    assert got is not None
+    c1, moves = got
+    assert moves is None and np.all(np.linalg.eigvalsh(c1) > 0)
+    from driftband.fit.optimize import central_hessian
+
+    c2 = np.linalg.inv(central_hessian(obj, x, h=1e-3))
+    assert c1 == pytest.approx(c2, rel=1e-3)
+
+
+def test_replicate_vectors_invert_the_natural_parameters():
+    m = DfeModel("lognormal")
+    params = {"log_mean": np.array([3.0, np.nan]), "log_sd": np.array([1.5, np.nan])}
+    mb = ModelBootstrap(1, 1, params, np.array([[0.2, 0.8], [np.nan, np.nan]]), {}, [])
+    v = replicate_vectors(mb, m)
+    assert v[0] == pytest.approx([3.0, np.log(1.5)])
+    assert np.isnan(v[1]).all()
+
+
+def _tsv(path):
+    with open(path, newline="") as fh:
+        return {r["test"]: r for r in csv.DictReader(fh, delimiter="\t")}
+
+
+@pytest.fixture(scope="module")
+def doubled(tmp_path_factory):
+    """A simulated pair, and the same spectra with every block's counts doubled."""
+    d = tmp_path_factory.mktemp("linkage")
+    one = d / "one.json"
+    rc = main(
+        [
+            "simulate",
+            "--population",
+            "big:N=400,n=12",
+            "--population",
+            "small:N=150,n=12",
+            "--sites",
+            "60000",
+            "--theta",
+            "0.02",
+            "--dfe",
+            "gamma:shape=0.3,mean=200",
+            "--blocks",
+            "30",
+            "--seed",
+            "5",
+            "-o",
+            str(one),
+            "-q",
+        ]
+    )
+    assert rc == 0
+    doc = json.loads(one.read_text())
+    for pop in doc["populations"].values():
+        for c in pop["classes"].values():
+            c["sfs"] = [2 * v for v in c["sfs"]]
+            c["sites"] *= 2
+            c["block_sfs"] = [[2 * v for v in row] for row in c["block_sfs"]]
+            c["block_sites"] = [2 * v for v in c["block_sites"]]
+    two = d / "two.json"
+    two.write_text(json.dumps(doc))
+    out = {}
+    for name, path in (("one", one), ("two", two)):
+        fit = d / f"{name}.fit.json"
+        # one label: the same dataset, so the same block draws for both
+        args = ["fit", str(path), "--label", f"{path}=pair", "--dfe", "gamma"]
+        args += ["--misorientation", "fixed:0"]
+        args += ["--bootstrap", "40", "--seed", "3", "--workers", "1", "-o", str(fit), "-q"]
+        assert main(args) == 0
+        cmp = d / f"{name}.tsv"
+        assert main(["compare", str(fit), "-o", str(cmp), "-q"]) == 0
+        out[name] = _tsv(cmp)
+    return out
+
+
+def test_every_site_counted_twice_is_undone_by_the_adjustment(doubled):
+    # Counting every site twice (pairs of perfectly linked sites) leaves the estimates
+    # and their block-bootstrap spread unchanged but doubles the Poisson log-likelihood:
+    # the raw statistic doubles, the naive information doubles, so λ doubles, and the
+    # adjusted statistic and its df are those of the data counted once (the Godambe
+    # information is invariant to such duplication; Varin, Reid & Firth 2011, sec. 2.3).
+    one, two = doubled["one"], doubled["two"]
+    for test in ("shared_dfe_lrt", "ne_only_free_lrt", "ne_only_lrt"):
+        a, b = one[test], two[test]
+        assert float(b["statistic"]) == pytest.approx(2 * float(a["statistic"]), rel=0.02, abs=0.02)
+        assert float(b["linkage_factor"]) == pytest.approx(2 * float(a["linkage_factor"]), rel=0.02)
+        assert float(b["statistic_linkage"]) == pytest.approx(
+            float(a["statistic_linkage"]), rel=0.03, abs=0.02
+        )
+        assert float(b["df_linkage"]) == pytest.approx(float(a["df_linkage"]), rel=0.02)
+        assert float(b["p_value"]) == pytest.approx(float(a["p_value"]), rel=0.05, abs=0.005)
+        # the raw p of the doubled data is smaller: it reads twice the evidence
+        assert float(b["p_raw"]) <= float(a["p_raw"]) + 1e-12
+        assert "p adjusted for linked sites" in b["note"]
+
+
+def test_unlinked_sites_give_factors_near_one(doubled):
+    # The simulator's sites are unlinked: every eigenvalue is about 1 (Wilks), up to the
+    # sampling error of a covariance from 40 replicates (about sqrt(2/40) = 0.22 each).
+    for row in doubled["one"].values():
+        if row["test"] != "neutral_share_difference":
+            assert 0.5 < float(row["linkage_factor"]) < 1.8, row["test"]
