@@ -185,3 +185,81 @@ def test_unlinked_sites_give_factors_near_one(doubled):
     for row in doubled["one"].values():
         if row["test"] != "neutral_share_difference":
             assert 0.5 < float(row["linkage_factor"]) < 1.8, row["test"]
+
+
+def _neutral_pair(sfs: np.ndarray, n: int) -> SpectrumPair:
+    # a selected class equal to the neutral one: only the neutral class matters here
+    return SpectrumPair(n, False, sfs[1:n], sfs[1:n], 1e6, 1e6)
+
+
+def _msprime_sfs(n: int, sizes: list[tuple[float, float]]) -> np.ndarray:
+    """Expected neutral SFS (branch lengths, many replicates) under a size history."""
+    msprime = pytest.importorskip("msprime")
+    dem = msprime.Demography()
+    dem.add_population(name="p", initial_size=sizes[0][1])
+    for t, size in sizes[1:]:
+        dem.add_population_parameters_change(time=t, initial_size=size)
+    acc = np.zeros(n + 1)
+    reps = msprime.sim_ancestry(
+        samples=n // 2, demography=dem, num_replicates=400, random_seed=4, ploidy=2
+    )
+    for ts in reps:
+        acc += ts.allele_frequency_spectrum(mode="branch", polarised=True, span_normalise=False)
+    return acc / acc[1:n].sum() * 20_000  # 20,000 segregating sites
+
+
+def test_equilibrium_departure_flags_a_recent_decline():
+    # msprime coalescent spectra: constant size vs a four-fold decline 0.5 Ne generations
+    # ago (Tajima's D of about +0.6 by the same simulation with more replicates), vs a
+    # four-fold expansion (D about -0.8). Tajima (1989): D is about 0 at equilibrium.
+    from driftband.compare.pair import equilibrium_departure
+    from driftband.fit.results import PopulationFit
+
+    n = 16
+    eq = _msprime_sfs(n, [(0, 400.0)])
+    decline = _msprime_sfs(n, [(0, 100.0), (200, 400.0)])
+    growth = _msprime_sfs(n, [(0, 400.0), (200, 100.0)])
+    flags = {
+        name: equilibrium_departure(PopulationFit(name, _neutral_pair(s, n), {}), "gamma")
+        for name, s in (("eq", eq), ("decline", decline), ("growth", growth))
+    }
+    assert flags["eq"] == ""
+    assert "Tajima's D of the neutral class is +" in flags["decline"]
+    assert "Tajima's D of the neutral class is -" in flags["growth"]
+
+
+def test_replicate_pi_matches_the_spectrum_pair():
+    # The per-replicate π of the bootstrap equals Tajima's π of the replicate's summed
+    # spectrum (the same sum as spectra.stats.pi_theta_counts; Tajima 1983).
+    from driftband.fit.bootstrap import _replicate_pi  # a private helper
+
+    rng = np.random.default_rng(2)
+    n, nb = 10, 6
+    bn = rng.integers(0, 50, size=(nb, n + 1)).astype(float)
+    ln = bn.sum(axis=1) + 1000
+    idx = rng.integers(0, nb, size=(4, nb))
+    got = _replicate_pi(_neutral_pair(bn.sum(axis=0), n), bn, ln, idx)
+    for r in range(4):
+        c = np.bincount(idx[r], minlength=nb)
+        pair = SpectrumPair.from_arrays(n, False, c @ bn, c @ bn, float(c @ ln), float(c @ ln))
+        assert got[r] == pytest.approx(pair.neutral_pi, rel=1e-12)
+
+
+@pytest.mark.parametrize(
+    "model, values",
+    [
+        (DfeModel("gamma"), {"shape": 0.3, "mean_S": 250.0}),
+        (DfeModel("lognormal"), {"log_mean": 2.5, "log_sd": 1.7}),
+        (
+            DfeModel("discrete"),
+            {"mass_0": 0.25, "mass_1": 0.15, "mass_2": 0.1, "mass_3": 0.5},
+        ),
+        (
+            DfeModel("gamma", beneficial=True),
+            {"shape": 0.4, "mean_S": 90.0, "p_b": 0.02, "S_b": 30.0},
+        ),
+    ],
+)
+def test_from_natural_inverts_natural(model, values):
+    x = model.from_natural(values)
+    assert model.natural(x) == pytest.approx(values, rel=1e-10)
