@@ -9,7 +9,8 @@ trapezoid rule over log |S|). Fitted to noise-free expectations, the likelihood-
 statistic of each test is its non-centrality δ at the number of sites used (it grows in
 proportion to the sites); the size of the test at level 5 % with L sites per class is
 then P(χ²_df(δ·L/L₀) > χ²_df,0.95) (the non-central χ² limit of the LRT under a fixed
-misspecification; scipy's ncx2).
+misspecification; scipy's ncx2). ``flagged``: whether compare's out-of-equilibrium check
+(Tajima's D of the neutral class, nuisance factors) warned on the pair.
 
     python benchmarks/bench_ne_only_history.py              # n = 20, two decline ages
     python benchmarks/bench_ne_only_history.py --nodes 120  # a finer quadrature
@@ -79,7 +80,7 @@ def main() -> None:
     tests = ("ne_only_free_lrt", "ne_only_lrt", "shared_dfe_lrt")
     print(f"n = {n}; {SITES:.0e} sites per class; size at 5 % for L sites per class")
     header = f"{'case':<46}{'test':<18}{'ratio':>7}{'pi ratio':>9}{'delta/1e6':>11}"
-    header += "".join(f"{'L=' + f'{L:.0e}':>10}" for L in (1e6, 1e7, 1e8))
+    header += "".join(f"{'L=' + f'{L:.0e}':>10}" for L in (1e6, 1e7, 1e8)) + "  flagged"
     print(header)
     for label, hist in cases.items():
         b = population("B", n, hist, 100.0, args.nodes)
@@ -98,6 +99,7 @@ def main() -> None:
             print(
                 f"{label:<46}{r.test:<18}{ratio:>7.3f}{pi:>9.3f}{r.statistic:>11.3f}"
                 + "".join(f"{s:>10.3f}" for s in size)
+                + ("  yes" if r.extra.get("out_of_equilibrium") else "  no")
             )
     print(f"time {time.perf_counter() - t0:.0f} s")
 

@@ -16,6 +16,7 @@ import sys
 import warnings
 from collections.abc import Sequence
 
+from .._parallel import single_blas_thread
 from .._version import __version__
 from ..exceptions import DriftbandError, DriftbandWarning
 
@@ -106,7 +107,8 @@ def main(argv: Sequence[str] | None = None) -> int:
     _setup_logging(getattr(args, "verbose", 0) - getattr(args, "quiet", 0))
     prog = f"driftband {getattr(args, 'subcommand', '')}".strip()
     try:
-        return int(args.runner(args) or 0)
+        with single_blas_thread():
+            return int(args.runner(args) or 0)
     except DriftbandError as err:
         print(f"{prog}: error: {err}", file=sys.stderr)
         return 2
