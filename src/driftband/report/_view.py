@@ -13,7 +13,6 @@ import re
 from dataclasses import dataclass, field
 from typing import Any
 
-from ..defaults import DEFAULT_REPLICATES
 from ..exceptions import InputError
 from ._inputs import check_compare_rows, check_fit_doc, check_spectra_doc
 from ._text import ALPHA_LEVEL, band_label, digits_for, fnum, fp, frange, fsig, is_num, pct
@@ -228,14 +227,6 @@ def _flags(name: str, p: dict[str, Any], blocks: float | None) -> list[str]:
                     f"{int(failed)} of {reps} bootstrap refits of model {m} failed or "
                     "did not converge."
                 )
-        if is_num(reps) and 0 < reps < DEFAULT_REPLICATES:
-            out.append(
-                f"Bootstrap of {int(reps)} replicates: percentile intervals from fewer than "
-                f"{DEFAULT_REPLICATES} replicates are too short (a nominal 95 % interval "
-                "covers about 91.6 % of the time at B = 50 and 93.3 % at B = 100, by "
-                "simulation); rerun with --bootstrap "
-                f"{DEFAULT_REPLICATES} or more for figures to publish."
-            )
         if is_num(blocks) and blocks < 20:
             out.append(
                 f"Only {int(blocks)} genomic blocks: bootstrap intervals from fewer "
