@@ -70,3 +70,43 @@ def test_averaged_shares_reweigh_every_replicate():
     assert av.weights["b"][1] == pytest.approx(wb)
     # replicate 2: b failed, so a takes all the weight
     assert av.weights["a"][2] == 1.0 and av.shares[2, 0] == pytest.approx(0.1)
+
+
+def test_a_family_failing_in_most_replicates_is_named_in_the_headline():
+    # When a family with real Akaike weight fails in most replicates, the averaged interval
+    # leaves it out of them; the headline says so rather than hiding it.
+    import warnings
+
+    from driftband.fit.likelihood import SpectrumPair
+    from driftband.fit.mle import fit_model
+    from driftband.fit.models import DfeModel
+    from driftband.fit.results import BootstrapResult, ModelBootstrap, PopulationFit
+    from driftband.prf.dfe import DfeExpectation
+    from driftband.prf.families import GammaDfe
+
+    n, L = 8, 2e5
+    rng = np.random.default_rng(3)
+    i = np.arange(1, n)
+    xn = rng.poisson(0.01 * L / i).astype(float)
+    xs = rng.poisson(0.01 * L * DfeExpectation(n).mean_g(GammaDfe(0.3, 300.0))).astype(float)
+    data = SpectrumPair(n, False, xn, xs, L, L)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        fits = {
+            f: fit_model(data, DfeModel(f), eps=0.0, stderr=False) for f in ("gamma", "lognormal")
+        }
+    B = 10
+
+    def mb(name: str, failed: int) -> ModelBootstrap:
+        conv = np.arange(B) >= failed
+        shares = np.tile(fits[name].shares, (B, 1))
+        return ModelBootstrap(B - failed, failed, {}, shares, {}, [], conv)
+
+    boot = BootstrapResult(
+        B, 40, 1, 0.95, {"gamma": mb("gamma", 0), "lognormal": mb("lognormal", 8)}
+    )
+    pf = PopulationFit("p", data, fits, bootstrap=boot)
+    assert min(pf.weights().values()) > 0.05  # both families carry weight
+    notes = " ".join(pf.headline().notes)
+    assert "lognormal family" in notes and "in 8 of 10 bootstrap replicates" in notes
+    assert "gamma family" not in notes

@@ -116,3 +116,19 @@ def test_joint_fit_not_converged_is_recorded_and_warned(pair, failing_optimizer)
         rows = compare_pair(*pair, DfeModel("gamma"), opts, tests=("shared_dfe_lrt",))
     assert rows[0].extra["converged"] is False
     assert "did not converge" in rows[0].note
+
+
+def test_a_pair_with_a_fit_that_did_not_converge_is_written_with_its_warning(pair):
+    # A fit that did not converge still gives rows, each noting it, and one warning:
+    # never a silent number.
+    import dataclasses
+
+    pa, pb = pair
+    bad = PopulationFit(
+        "b", pb.data, {"gamma": dataclasses.replace(pb.fits["gamma"], success=False)}
+    )
+    with pytest.warns(ConvergenceWarning, match="'b' did not converge"):
+        rows = compare_pair(
+            pa, bad, DfeModel("gamma"), FitOptions(eps=0.0), tests=("shared_dfe_lrt",)
+        )
+    assert "did not converge: the tests that use it are unreliable" in rows[0].note

@@ -438,4 +438,13 @@ def compare_pair(
     ne_rows = [r for r in rows if r.test.startswith("ne_only")]
     if ne_rows:
         _departure_note(ne_rows, (pop_a, pop_b), model.name)
+    failed = [p.population for p, f in ((pop_a, fa), (pop_b, fb)) if not f.success]
+    if failed:
+        text = (
+            f"the {model.name} fit of {' and '.join(repr(n) for n in failed)} did not "
+            "converge: the tests that use it are unreliable"
+        )
+        for row in rows:
+            row.note += "; " + text
+        warnings.warn(f"{name_a} vs {name_b}: {text}", ConvergenceWarning, stacklevel=2)
     return rows

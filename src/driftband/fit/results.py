@@ -12,7 +12,7 @@ from typing import Any, NamedTuple
 
 import numpy as np
 
-from ..defaults import MIN_BLOCKS
+from ..defaults import DEFAULT_REPLICATES, MIN_BLOCKS
 from .adaptive import adaptive_summary
 from .likelihood import SpectrumPair
 from .mle import FitResult
@@ -436,12 +436,23 @@ class PopulationFit:
                 f"only {boot.blocks} genomic blocks: intervals from fewer than "
                 f"{MIN_BLOCKS} blocks are unreliable"
             )
-        if boot is not None and boot.replicates < 200:
+        if boot is not None and boot.replicates < DEFAULT_REPLICATES:
             notes.append(
                 f"{boot.replicates} bootstrap replicates: percentile intervals from "
-                "fewer than 200 are short (about 91.6 % coverage at B = 50 and "
-                "93.3 % at B = 100 for a nominal 95 %)"
+                f"fewer than {DEFAULT_REPLICATES} are short (about 91.6 % coverage at B = 50 "
+                "and 93.3 % at B = 100 for a nominal 95 %)"
             )
+        for k, mb in (boot.models if boot is not None else {}).items():
+            if (
+                weights.get(k, 0.0) > 0.05
+                and mb.shares.shape[0]
+                and mb.failed > mb.shares.shape[0] / 2
+            ):
+                notes.append(
+                    f"the {k} family (Akaike weight {weights[k]:.2f}) failed or did not "
+                    f"converge in {mb.failed} of {mb.shares.shape[0]} bootstrap replicates; "
+                    "the interval leaves it out of those replicates"
+                )
         ok_aic = {k: f.aic for k, f in self.fits.items() if f.success}
         close = [k for k, a in ok_aic.items() if a - min(ok_aic.values()) < 2]
         if len(close) > 1 and ci is not None and reliable:
