@@ -501,12 +501,15 @@ def _sentence_ne_only(r: dict[str, Any], pops: dict[str, PopulationView], method
 
 NE_ONLY_GUIDE = (
     "Two versions of the 'only Ne differs' test are run. Read the one with the Ne ratio "
-    "fitted: it asks only whether one DFE shape, stretched along S = 4Ne·s, fits both "
-    "populations. The version with the ratio from neutral diversity π adds a second "
-    "assumption: that π measures the same Ne as the DFE does, which holds at "
-    "equilibrium but not after a recent change of size (π then still reflects the "
-    "older size), when it rejects a true null; where the two versions disagree, the "
-    "fitted ratio and the one from π usually differ too."
+    "fitted: it asks only whether one DFE shape, stretched along S = 4Ne\u00b7s, fits both "
+    "populations. The version with the ratio from neutral diversity \u03c0 adds the "
+    "assumption that \u03c0 measures the same Ne as the DFE does (equal mutation rates, "
+    "equilibrium, no more linked selection in one population than in the other). Both "
+    "versions assume that the populations are at equilibrium: after a recent change of "
+    "size both reject a true null once there are enough sites (with exact spectra of a "
+    "four-fold decline 200 generations ago in a population of 400, at 10 million sites "
+    "per class), so where a population is flagged as out of equilibrium neither can be "
+    "trusted until explicit size histories are fitted."
 )
 
 
