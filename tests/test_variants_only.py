@@ -1,0 +1,97 @@
+"""Variants-only VCFs: detected, warned about, recorded in the spectra file, and the two
+ways out (a callable-sites BED, or the statement that every class site was callable).
+
+Fact of the trade (common practice): variant callers write variant records only unless
+asked for every site (e.g. ``bcftools call`` without ``-v`` writes monomorphic records,
+with ``-v`` only variants); sites absent from such a VCF are of unknown callability.
+"""
+
+from __future__ import annotations
+
+import json
+
+from driftband.cli import main
+from driftband.spectra.build import build_spectra
+from vcf_fixtures import header, rec, write_text, write_vcf
+
+SAMPLES = ["p1a", "p1b", "p2a", "p2b"]
+POPMAP = "p1a\tone\np1b\tone\np2a\ttwo\np2b\ttwo\n"
+SITES = "1\t0\t100\t4fold\n1\t100\t200\t0fold\n"
+SNPS = [
+    rec(1, 11, "A", "G", ["0/1", "0/0", "1/1", "0/1"]),
+    rec(1, 21, "A", "G", ["0/0", "0/1", "0/1", "1/1"]),
+    rec(1, 111, "A", "G", ["0/1", "0/1", "0/0", "0/0"]),
+]
+
+
+def _files(tmp_path, records):
+    vcf = write_vcf(
+        tmp_path / "v.vcf", header(SAMPLES, [("1", 1000)]) + "\n".join(records) + "\n", "bgzf"
+    )
+    return vcf, write_text(tmp_path / "pm.tsv", POPMAP), write_text(tmp_path / "s.bed", SITES)
+
+
+def test_variants_only_vcf_is_flagged(tmp_path, caplog):
+    vcf, pm, bed = _files(tmp_path, SNPS)
+    with caplog.at_level("WARNING", logger="driftband"):
+        ss = build_spectra(vcf, pm, bed)
+    cs = ss.provenance["callable_sites"]
+    assert cs == {
+        "variants_only": True,
+        "monomorphic_records": 0,
+        "source": "assumed",
+        "warning": True,
+    }
+    msg = " ".join(r.getMessage() for r in caplog.records)
+    assert "variants-only" in msg and "--callable" in msg and "--all-sites-callable" in msg
+    # 200 class sites, 3 with a record: 197 taken as callable monomorphic
+    assert "197" in msg
+
+
+def test_all_sites_vcf_is_not_flagged(tmp_path, caplog):
+    mono = rec(1, 31, "A", ".", ["0/0"] * 4)
+    vcf, pm, bed = _files(tmp_path, [*SNPS[:2], mono, SNPS[2]])
+    with caplog.at_level("WARNING", logger="driftband"):
+        ss = build_spectra(vcf, pm, bed)
+    cs = ss.provenance["callable_sites"]
+    assert cs["source"] == "all_sites_vcf" and cs["variants_only"] is False
+    assert cs["monomorphic_records"] == 1 and cs["warning"] is False
+    assert not [r for r in caplog.records if "variants-only" in r.getMessage()]
+
+
+def test_gvcf_placeholder_records_count_as_monomorphic(tmp_path):
+    # A reference block of a gVCF-style file: ALT '<NON_REF>' only (common practice).
+    ref_block = rec(1, 41, "A", "<NON_REF>", ["0/0"] * 4)
+    vcf, pm, bed = _files(tmp_path, [*SNPS[:2], ref_block, SNPS[2]])
+    ss = build_spectra(vcf, pm, bed)
+    assert ss.provenance["callable_sites"]["variants_only"] is False
+
+
+def test_the_two_ways_out(tmp_path, caplog):
+    vcf, pm, bed = _files(tmp_path, SNPS)
+    mask = write_text(tmp_path / "callable.bed", "1\t0\t50\n1\t100\t150\n")
+    with caplog.at_level("WARNING", logger="driftband"):
+        masked = build_spectra(vcf, pm, bed, callable_mask=mask)
+        stated = build_spectra(vcf, pm, bed, all_sites_callable=True)
+    assert not [r for r in caplog.records if "variants-only" in r.getMessage()]
+    assert masked.provenance["callable_sites"]["source"] == "mask"
+    assert masked.populations["one"].classes["4fold"].sites == 50
+    assert stated.provenance["callable_sites"]["source"] == "stated"
+    assert stated.provenance["callable_sites"]["variants_only"] is True
+    assert stated.provenance["options"]["all_sites_callable"] is True
+    assert stated.populations["one"].classes["4fold"].sites == 100
+
+
+def test_cli_warns_loudly_and_the_statement_silences_it(tmp_path, capsys):
+    vcf, pm, bed = _files(tmp_path, SNPS)
+    out = tmp_path / "o.json"
+    args = ["spectra", str(vcf), "--popmap", str(pm), "--sites", str(bed), "-o", str(out)]
+    assert main(args) == 0
+    err = capsys.readouterr().err
+    assert "WARNING" in err and "variants-only" in err
+    assert "callable sites: every class site, ASSUMED" in err
+    doc = json.loads(out.read_text())
+    assert doc["provenance"]["callable_sites"]["warning"] is True
+    assert main([*args, "--force", "--all-sites-callable"]) == 0
+    err = capsys.readouterr().err
+    assert "WARNING" not in err and "as stated (--all-sites-callable)" in err
