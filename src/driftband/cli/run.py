@@ -52,7 +52,9 @@ _DATASET_FLAGS = {
     "fasta": "--fasta",
     "gff": "--gff",
     "callable": "--callable",
+    "all_sites_callable": "--all-sites-callable",
     "ancestral": "--ancestral",
+    "exclude_lowercase_ancestral": "--exclude-lowercase-ancestral",
     "project": "--project",
     "block_size": "--block-size",
     "blocks": "--blocks",
@@ -100,7 +102,22 @@ def add_parser(subparsers: Subparsers) -> argparse.ArgumentParser:
     d.add_argument("--code", type=int, metavar="N", help="NCBI translation table (default 1)")
     d.add_argument("--callable", metavar="BED", help="BED of callable sites")
     d.add_argument(
-        "--ancestral", metavar="aa|fold|outgroup:POP", help="polarisation (default aa: INFO/AA)"
+        "--all-sites-callable",
+        action="store_true",
+        default=None,
+        help="state that every class site was callable (a variants-only VCF without "
+        "--callable is warned about otherwise)",
+    )
+    d.add_argument(
+        "--ancestral",
+        metavar="aa|fold|outgroup:POP|fasta:FILE",
+        help="polarisation (default aa: INFO/AA; fasta:FILE an ancestral sequence)",
+    )
+    d.add_argument(
+        "--exclude-lowercase-ancestral",
+        action="store_true",
+        default=None,
+        help="with fasta:FILE, drop sites whose ancestral base is lower case",
     )
     d.add_argument(
         "--project",

@@ -328,6 +328,7 @@ def _run_stages(
             "sites": dp["sites"],
             "callable": d.callable,
             "blocks": d.blocks,
+            "ancestral": d.ancestral_fasta,
         }
         for k, r in enumerate(d.regions or []):
             if os.path.isfile(r):
