@@ -95,3 +95,33 @@ def test_cli_warns_loudly_and_the_statement_silences_it(tmp_path, capsys):
     assert main([*args, "--force", "--all-sites-callable"]) == 0
     err = capsys.readouterr().err
     assert "WARNING" not in err and "as stated (--all-sites-callable)" in err
+
+
+def test_report_shows_the_assumption(tmp_path):
+    # The report reads provenance.callable_sites of the spectra file: a warning among the
+    # population's flags (HTML and summary.md) and a row of the callable-sites table.
+    import copy
+    from pathlib import Path
+
+    from driftband.report import build_report, build_summary_md
+    from driftband.report._inputs import read_compare_tsv, read_fit_doc, read_spectra_doc
+
+    data = Path(__file__).parent / "data" / "report"
+    fit = read_fit_doc(data / "fit.json")
+    rows = read_compare_tsv(data / "compare.tsv")
+    plain = read_spectra_doc(data / "spectra.json")
+    flagged = copy.deepcopy(plain)
+    flagged["provenance"]["callable_sites"] = {
+        "variants_only": True,
+        "monomorphic_records": 0,
+        "source": "assumed",
+        "warning": True,
+    }
+    prov = {"software": "driftband", "version": "0.0.test"}
+    for doc, shown in ((plain, False), (flagged, True)):
+        html = build_report(fit, rows, {"spectra.json": doc}, prov)
+        md = build_summary_md(fit, rows, {"spectra.json": doc}, prov)
+        assert ("looks variants-only" in html) is shown
+        assert ("looks variants-only" in md) is shown
+        assert "Callable sites and polarisation" in html
+    assert "ASSUMED" in build_report(fit, rows, {"spectra.json": flagged}, prov)
