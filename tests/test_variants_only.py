@@ -41,6 +41,7 @@ def test_variants_only_vcf_is_flagged(tmp_path, caplog):
         "monomorphic_records": 0,
         "source": "assumed",
         "warning": True,
+        "record_coverage": 3 / 200,  # 3 records at 200 class sites
     }
     msg = " ".join(r.getMessage() for r in caplog.records)
     assert "variants-only" in msg and "--callable" in msg and "--all-sites-callable" in msg

@@ -13,7 +13,7 @@ from ._common import Subparsers, add_common_arguments, add_subcommand, progress_
 if TYPE_CHECKING:
     from ..run import Study
 
-__all__ = ["add_parser", "run", "study_from_args"]
+__all__ = ["add_parser", "add_study_arguments", "run", "study_from_args"]
 
 DESCRIPTION = """\
 The whole job in one command: classify sites (when a FASTA + GFF3 is given), count the
@@ -85,13 +85,33 @@ def add_parser(subparsers: Subparsers) -> argparse.ArgumentParser:
         examples=EXAMPLES,
     )
     p.add_argument(
+        "--out-dir", metavar="DIR", help="output folder (default: out_dir of the study file)"
+    )
+    add_study_arguments(p)
+    b = p.add_argument_group("bootstrap (these also override a study file)")
+    b.add_argument(
+        "--bootstrap",
+        type=int,
+        metavar="B",
+        help="block-bootstrap replicates (default 200; 0: none)",
+    )
+    b.add_argument("--seed", type=int, help="random seed of the bootstrap (default 1)")
+    b.add_argument("--level", type=float, help="confidence level (default 0.95)")
+    b.add_argument(
+        "--workers", type=int, metavar="N", help="worker processes (default: the cores available)"
+    )
+    add_common_arguments(p)
+    p.set_defaults(runner=run)
+    return p
+
+
+def add_study_arguments(p: argparse.ArgumentParser) -> None:
+    """The study file or one dataset's flags, and the fit flags (``run`` and ``check``)."""
+    p.add_argument(
         "study",
         nargs="?",
         metavar="STUDY.toml",
         help="study file (TOML); or give one dataset with the flags below",
-    )
-    p.add_argument(
-        "--out-dir", metavar="DIR", help="output folder (default: out_dir of the study file)"
     )
     d = p.add_argument_group("one dataset from flags (instead of a study file)")
     d.add_argument("--vcf", metavar="VCF", help="VCF/BCF of all samples")
@@ -170,21 +190,6 @@ def add_parser(subparsers: Subparsers) -> argparse.ArgumentParser:
         default=None,
         help="add a beneficial class to every family",
     )
-    b = p.add_argument_group("bootstrap (these also override a study file)")
-    b.add_argument(
-        "--bootstrap",
-        type=int,
-        metavar="B",
-        help="block-bootstrap replicates (default 200; 0: none)",
-    )
-    b.add_argument("--seed", type=int, help="random seed of the bootstrap (default 1)")
-    b.add_argument("--level", type=float, help="confidence level (default 0.95)")
-    b.add_argument(
-        "--workers", type=int, metavar="N", help="worker processes (default: the cores available)"
-    )
-    add_common_arguments(p)
-    p.set_defaults(runner=run)
-    return p
 
 
 def study_from_args(args: argparse.Namespace) -> Study:

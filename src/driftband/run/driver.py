@@ -264,6 +264,7 @@ def run_study(
     study = _apply(study, replicates, workers, seed, level)
     check_files(study)
     options = fit_options(study)
+    _preflight(study)
     paths = output_paths(study, out)
     _check_out_dir(out, study, paths["study"], force)
     paths["provenance"].mkdir(parents=True, exist_ok=True)
@@ -301,6 +302,22 @@ def run_study(
         result.seconds = time.monotonic() - t0
         log.info("run finished in %.1f s: %s", result.seconds, paths["report"])
     return result
+
+
+def _preflight(study: Study) -> None:
+    """The checks of ``driftband check`` that need no pass over the records, before any
+    work: every problem of every dataset in one message."""
+    from .preflight import check_study
+
+    problems = [
+        f"dataset {c.name!r}: {p}" if study.several else p
+        for c in check_study(study, count=False)
+        for p in c.problems
+    ]
+    if len(problems) == 1:
+        raise InputError(f"preflight: {problems[0]}")
+    if problems:
+        raise InputError(f"preflight, {len(problems)} problems: " + "; ".join(problems))
 
 
 def _run_stages(

@@ -380,7 +380,9 @@ def _build(
     digest = _Checksum(vcf if opts.checksums else None)  # hashed while counting runs
     prep = prepare_counting(src, popmap, sites, callable_mask, opts)
     total, plan = count_prepared(src, prep, opts, progress, scheduler)
-    status = callable_status(total, callable_mask is not None, opts.all_sites_callable)
+    status = callable_status(
+        total, callable_mask is not None, opts.all_sites_callable, sum(plan.sites().values())
+    )
     ss = spectra_from_counts(total, prep.design, plan.blocks, opts.project, opts.keep)
     if status["warn"]:
         absent = max(sum(plan.sites().values()) - sites_with_records(total), 0)

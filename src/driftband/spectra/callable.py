@@ -31,7 +31,9 @@ CALLABLE_SOURCES = {
 }
 
 
-def callable_status(total: RegionCounts, has_mask: bool, stated: bool) -> dict[str, Any]:
+def callable_status(
+    total: RegionCounts, has_mask: bool, stated: bool, callable_sites: int | None = None
+) -> dict[str, Any]:
     """Where the callable sites come from, and whether the VCF looks variants-only.
 
     A VCF *looks variants-only* when none of its records at callable class sites is
@@ -47,13 +49,17 @@ def callable_status(total: RegionCounts, has_mask: bool, stated: bool) -> dict[s
         A callable-sites BED was given.
     stated : bool
         The user stated that every class site was callable.
+    callable_sites : int, optional
+        Callable class sites of the plan, for ``record_coverage``.
 
     Returns
     -------
     dict
         ``variants_only`` (bool), ``monomorphic_records`` (int), ``source`` (``"mask"``,
         ``"all_sites_vcf"``, ``"stated"`` or ``"assumed"``) and ``warn`` (bool: a
-        variants-only VCF whose absent sites are assumed callable).
+        variants-only VCF whose absent sites are assumed callable); with
+        ``callable_sites``, also ``record_coverage``: the share of the callable class
+        sites that hold a record (near 1 for an all-sites VCF without a mask).
     """
     used = sites_with_records(total)
     variants_only = total.monomorphic == 0 and used > 0
@@ -65,12 +71,15 @@ def callable_status(total: RegionCounts, has_mask: bool, stated: bool) -> dict[s
         source = "stated"
     else:
         source = "assumed"
-    return {
+    out: dict[str, Any] = {
         "variants_only": variants_only,
         "monomorphic_records": int(total.monomorphic),
         "source": source,
         "warn": source == "assumed",
     }
+    if callable_sites:
+        out["record_coverage"] = round(used / callable_sites, 6)
+    return out
 
 
 def sites_with_records(total: RegionCounts) -> int:
