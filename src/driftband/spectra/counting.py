@@ -353,8 +353,8 @@ class _RegionCounter:
         outside = int(pos0.size - rows.size)
         if outside and self.sites.dropped is not None:  # no ancestral base there
             why = self.sites.drop_reasons(pos0[~inside])
-            for code, name in enumerate(_DROP_REASONS, start=1):
-                k = int((why == code).sum())
+            for reason_code, name in enumerate(_DROP_REASONS, start=1):
+                k = int((why == reason_code).sum())
                 self.skip[name] += k
                 outside -= k
         self.skip["no_site_class"] += outside

@@ -35,7 +35,8 @@ def summary_lines(ss: SpectraSet) -> list[str]:
         out.append(f"dropped sites, {reason}: {sum(per.values()):,} ({each})")
     cs = ss.provenance.get("callable_sites") or {}
     if cs:
-        out.append(f"callable sites: {CALLABLE_SOURCES.get(cs.get('source'), cs.get('source'))}")
+        src = str(cs.get("source"))
+        out.append(f"callable sites: {CALLABLE_SOURCES.get(src, src)}")
     hdr = (
         f"{'population':<14} {'class':<8} {'n':>5} {'sites':>12} {'segregating':>11} "
         f"{'pi':>10} {'theta_W':>10} {'Tajima_D':>9}"
