@@ -444,14 +444,15 @@ def test_folder_of_another_study_or_foreign_files_is_refused(demo_run, tmp_path,
 
 
 def test_stage_error_named_once(tmp_path, capsys):
-    body = GOOD + 'ancestral = "outgroup:nosuch"\nregions = ["chr1"]\n'
+    # a sample size beyond the called copies shows only when the records are counted
+    body = GOOD + 'project = 999\nregions = ["chr1"]\n'
     out = tmp_path / "o"
     assert main(["run", str(_write(tmp_path, body)), "--out-dir", str(out), "-q"]) == 2
     err = _err(capsys)
     assert err.startswith("driftband run: error: stage spectra[snail]: ")
-    assert "'nosuch'" in err
+    assert "999" in err
     log = (out / "run.log").read_text()
-    assert log.count("'nosuch'") == 1 and "ERROR stage spectra[snail]" in log
+    assert log.count("=999") == 1 and "ERROR stage spectra[snail]" in log
     stages = json.loads((out / "provenance/stages.json").read_text())["stages"]
     assert list(stages) == ["classify[snail]"]  # the failed stage left no record
 

@@ -23,7 +23,17 @@ from ..exceptions import DriftbandError, DriftbandWarning
 __all__ = ["get_parser", "main"]
 
 # Subcommand modules, in the order of the pipeline.
-_SUBCOMMANDS = ["classify", "spectra", "fit", "compare", "report", "run", "demo", "simulate"]
+_SUBCOMMANDS = [
+    "classify",
+    "spectra",
+    "fit",
+    "compare",
+    "report",
+    "check",
+    "run",
+    "demo",
+    "simulate",
+]
 
 log = logging.getLogger("driftband")
 

@@ -13,7 +13,7 @@ from ._common import Subparsers, add_common_arguments, add_subcommand, progress_
 if TYPE_CHECKING:
     from ..run import Study
 
-__all__ = ["add_parser", "run", "study_from_args"]
+__all__ = ["add_parser", "add_study_arguments", "run", "study_from_args"]
 
 DESCRIPTION = """\
 The whole job in one command: classify sites (when a FASTA + GFF3 is given), count the
@@ -52,7 +52,9 @@ _DATASET_FLAGS = {
     "fasta": "--fasta",
     "gff": "--gff",
     "callable": "--callable",
+    "all_sites_callable": "--all-sites-callable",
     "ancestral": "--ancestral",
+    "exclude_lowercase_ancestral": "--exclude-lowercase-ancestral",
     "project": "--project",
     "block_size": "--block-size",
     "blocks": "--blocks",
@@ -83,13 +85,33 @@ def add_parser(subparsers: Subparsers) -> argparse.ArgumentParser:
         examples=EXAMPLES,
     )
     p.add_argument(
+        "--out-dir", metavar="DIR", help="output folder (default: out_dir of the study file)"
+    )
+    add_study_arguments(p)
+    b = p.add_argument_group("bootstrap (these also override a study file)")
+    b.add_argument(
+        "--bootstrap",
+        type=int,
+        metavar="B",
+        help="block-bootstrap replicates (default 200; 0: none)",
+    )
+    b.add_argument("--seed", type=int, help="random seed of the bootstrap (default 1)")
+    b.add_argument("--level", type=float, help="confidence level (default 0.95)")
+    b.add_argument(
+        "--workers", type=int, metavar="N", help="worker processes (default: the cores available)"
+    )
+    add_common_arguments(p)
+    p.set_defaults(runner=run)
+    return p
+
+
+def add_study_arguments(p: argparse.ArgumentParser) -> None:
+    """The study file or one dataset's flags, and the fit flags (``run`` and ``check``)."""
+    p.add_argument(
         "study",
         nargs="?",
         metavar="STUDY.toml",
         help="study file (TOML); or give one dataset with the flags below",
-    )
-    p.add_argument(
-        "--out-dir", metavar="DIR", help="output folder (default: out_dir of the study file)"
     )
     d = p.add_argument_group("one dataset from flags (instead of a study file)")
     d.add_argument("--vcf", metavar="VCF", help="VCF/BCF of all samples")
@@ -100,7 +122,22 @@ def add_parser(subparsers: Subparsers) -> argparse.ArgumentParser:
     d.add_argument("--code", type=int, metavar="N", help="NCBI translation table (default 1)")
     d.add_argument("--callable", metavar="BED", help="BED of callable sites")
     d.add_argument(
-        "--ancestral", metavar="aa|fold|outgroup:POP", help="polarisation (default aa: INFO/AA)"
+        "--all-sites-callable",
+        action="store_true",
+        default=None,
+        help="state that every class site was callable (a variants-only VCF without "
+        "--callable is warned about otherwise)",
+    )
+    d.add_argument(
+        "--ancestral",
+        metavar="aa|fold|outgroup:POP|fasta:FILE",
+        help="polarisation (default aa: INFO/AA; fasta:FILE an ancestral sequence)",
+    )
+    d.add_argument(
+        "--exclude-lowercase-ancestral",
+        action="store_true",
+        default=None,
+        help="with fasta:FILE, drop sites whose ancestral base is lower case",
     )
     d.add_argument(
         "--project",
@@ -153,21 +190,6 @@ def add_parser(subparsers: Subparsers) -> argparse.ArgumentParser:
         default=None,
         help="add a beneficial class to every family",
     )
-    b = p.add_argument_group("bootstrap (these also override a study file)")
-    b.add_argument(
-        "--bootstrap",
-        type=int,
-        metavar="B",
-        help="block-bootstrap replicates (default 200; 0: none)",
-    )
-    b.add_argument("--seed", type=int, help="random seed of the bootstrap (default 1)")
-    b.add_argument("--level", type=float, help="confidence level (default 0.95)")
-    b.add_argument(
-        "--workers", type=int, metavar="N", help="worker processes (default: the cores available)"
-    )
-    add_common_arguments(p)
-    p.set_defaults(runner=run)
-    return p
 
 
 def study_from_args(args: argparse.Namespace) -> Study:

@@ -17,7 +17,9 @@ Count per-population, per-class site frequency spectra from a multi-sample VCF/B
 kept per genomic block for the block bootstrap.
 
 Keeps biallelic SNPs at the sites of the class BED (intersected with --callable);
-callable sites absent from the VCF count as monomorphic ancestral (entry 0). Missing
+callable sites absent from the VCF count as monomorphic ancestral (entry 0). A VCF with
+no monomorphic record (variants-only) without --callable is warned about: give a
+callable-sites BED or an all-sites VCF, or state --all-sites-callable. Missing
 genotypes are handled by hypergeometric projection to n gene copies per population
 (default n: the largest n called at >= 90% of the usable records; without missing data,
 all gene copies). Skipped records are counted by reason. A summary (skip counts, n,
@@ -30,6 +32,8 @@ driftband spectra calls.bcf --popmap pops.tsv --sites classes.bed --callable mas
 driftband spectra calls.vcf.gz --popmap pops.tsv --sites classes.bed --ancestral fold \\
     --blocks genes.bed --min-dp 8 --min-gq 20 --pass-only --regions chr1 chr2:1-5000000 \\
     -o spectra.json
+driftband spectra calls.vcf.gz --popmap pops.tsv --sites classes.bed \\
+    --ancestral fasta:ancestor.fa.gz --exclude-lowercase-ancestral -o spectra.json
 bcftools view -s A1,A2,B1,B2 calls.vcf.gz | driftband spectra - --popmap pops.tsv \\
     --sites classes.bed -o spectra.json
 driftband spectra calls.vcf.gz --popmap pops.tsv --sites classes.bed --workers 8 \\
@@ -72,11 +76,23 @@ def add_parser(subparsers: Subparsers) -> argparse.ArgumentParser:
         help="BED of callable sites; classes are intersected with it",
     )
     p.add_argument(
+        "--all-sites-callable",
+        action="store_true",
+        help="state that every class site (after --callable and --regions) was callable, "
+        "so that sites absent from a variants-only VCF are monomorphic (no warning)",
+    )
+    p.add_argument(
         "--ancestral",
         default="aa",
-        metavar="aa|fold|outgroup:POP",
-        help="polarisation: INFO/AA (default), fold (minor-allele spectra), or "
-        "the alleles of outgroup population POP of the popmap",
+        metavar="aa|fold|outgroup:POP|fasta:FILE",
+        help="polarisation: INFO/AA (default), fold (minor-allele spectra), "
+        "the alleles of outgroup population POP of the popmap, or the bases of an "
+        "ancestral sequence FILE (FASTA aligned to the reference)",
+    )
+    p.add_argument(
+        "--exclude-lowercase-ancestral",
+        action="store_true",
+        help="with fasta:FILE, drop sites whose ancestral base is lower case (low confidence)",
     )
     p.add_argument(
         "--project",
@@ -225,6 +241,8 @@ def run(args: argparse.Namespace) -> int:
             region_size=(DEFAULT_REGION_SIZE if args.region_size is None else args.region_size),
             workers=args.workers,
             scheduler=args.scheduler,
+            exclude_lowercase_ancestral=args.exclude_lowercase_ancestral,
+            all_sites_callable=args.all_sites_callable,
         )
     finally:
         bar.close()

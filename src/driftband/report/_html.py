@@ -14,11 +14,13 @@ import math
 from collections.abc import Iterable
 from typing import Any
 
+from ..spectra.callable import CALLABLE_SOURCES
 from ._plots import bands_figure, spectra_figure
 from ._text import (
     ALPHA_EXPLAINED,
     CAUTIONS,
     CONVENTIONS,
+    FOLDED_SHORT,
     MINUS,
     NA,
     band_label,
@@ -647,6 +649,8 @@ def _population(v: PopulationView, view: ReportView) -> str:
     if v.replicates is not None:
         facts.append(f"bootstrap: {v.replicates} replicates over {v.blocks} blocks")
     out.append(f"<p>{esc('; '.join(facts))}.</p>")
+    if v.folded:
+        out.append(f'<p class="note">{esc(FOLDED_SHORT)}</p>')
     if v.flags:
         out.append(
             '<div class="flag"><strong>\u26a0 Warnings</strong><ul>'
@@ -747,6 +751,27 @@ def _kv(
     return rows
 
 
+def _sites_rows(view: ReportView) -> list[tuple[list[Cell], str]]:
+    rows: list[tuple[list[Cell], str]] = []
+    for key, doc in view.spectra_docs.items():
+        prov = doc.get("provenance") or {}
+        cs = prov.get("callable_sites") or {}
+        src = str(cs.get("source") or "")
+        where = CALLABLE_SOURCES.get(src, "not recorded (an older spectra file)")
+        if cs:
+            where += f"; {fint(cs.get('monomorphic_records'))} monomorphic records"
+        pol = sorted({str(p.get("polarisation")) for p in doc["populations"].values()})
+        dropped = (prov.get("counts") or {}).get("dropped_sites") or {}
+        drop = "; ".join(
+            f"{r}: " + ", ".join(f"{c} {fint(n)}" for c, n in per.items())
+            for r, per in dropped.items()
+        )
+        rows.append(
+            ([key, where, ", ".join(pol), drop or "none"], "bad" if cs.get("warning") else "")
+        )
+    return rows
+
+
 def _provenance(view: ReportView) -> str:
     out = ['<section id="provenance"><h2>Inputs and provenance</h2>']
     out.append(_table("prov-report", "This report", ["Item", "Value"], _kv(view.provenance)))
@@ -758,6 +783,15 @@ def _provenance(view: ReportView) -> str:
             _kv(view.fit_provenance, view.options),
         )
     )
+    if view.spectra_docs:
+        out.append(
+            _table(
+                "prov-sites",
+                "Callable sites and polarisation (from the spectra files)",
+                ["Spectra", "Callable sites", "Polarisation", "Dropped sites"],
+                _sites_rows(view),
+            )
+        )
     files = _files(view.provenance, "report")
     files += _files(view.fit_provenance, "fit")
     for key, doc in view.spectra_docs.items():

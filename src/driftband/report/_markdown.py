@@ -5,7 +5,7 @@ from __future__ import annotations
 import re
 from typing import Any
 
-from ._text import CAUTIONS, CONVENTIONS, NA, fnum, frange, fsig, is_num, pct
+from ._text import CAUTIONS, CONVENTIONS, FOLDED_SHORT, NA, fnum, frange, fsig, is_num, pct
 from ._view import ReportView, answer_sentence, comparison_guides
 
 __all__ = ["render_markdown"]
@@ -136,6 +136,8 @@ def render_markdown(view: ReportView) -> str:
                 else "; no bootstrap"
             )
         )
+        if v.folded:
+            out.append(f"- {md(FOLDED_SHORT)}")
         if v.spectra is not None:
             st = v.spectra.get("stats") or {}
             sn, ss = st.get(view.neutral) or {}, st.get(view.selected) or {}

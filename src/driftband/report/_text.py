@@ -119,6 +119,37 @@ CONVENTIONS = [
     "Models are ranked by AIC; Akaike weights are exp(\u2212\u0394AIC/2), normalised.",
 ]
 
+#: When folded spectra are the right choice and what they lose (the README's "Folded or
+#: unfolded?" says the same).
+FOLDED_NOTE = (
+    "Folded spectra (minor-allele counts) need no ancestral allele: use them when no "
+    "reliable ancestral state is available (no INFO/AA, outgroup or ancestral sequence, "
+    "or only a distant or poorly aligned one). What is lost: the n//2+1 folded entries "
+    "carry less information than the n+1 unfolded ones, so intervals are wider; entry n, "
+    "the divergence counts, and with them the McDonald\u2013Kreitman table, \u03b1 and "
+    "\u03c9_a; the misorientation rate \u03b5; and a beneficial class, which folding "
+    "confounds with deleterious mutations at low frequency. The deleterious DFE and the "
+    "effectively neutral share are still estimated."
+)
+
+#: The same, in short, beside a population with folded spectra.
+FOLDED_SHORT = (
+    "Folded spectra: no divergence counts (no McDonald\u2013Kreitman table, \u03b1 or "
+    "\u03c9_a), no misorientation rate and no beneficial class; see 'Folded or unfolded' "
+    "under Cautions."
+)
+
+#: The flag of a population whose spectra assumed every class site without a record to
+#: be callable (a variants-only VCF without a callable-sites BED).
+VARIANTS_ONLY_FLAG = (
+    "The VCF looks variants-only (no monomorphic record at the class sites) and no "
+    "callable-sites BED was given: every class site without a record was counted as a "
+    "callable monomorphic site, which inflates the callable sites and biases \u03b8 and "
+    "the DFE wherever coverage was patchy. Recount the spectra with a callable-sites BED "
+    "(--callable) or from an all-sites VCF, or state --all-sites-callable if every class "
+    "site was in fact callable."
+)
+
 CAUTIONS = [
     (
         "Demographic misspecification",
@@ -144,6 +175,13 @@ CAUTIONS = [
         "appear as high-frequency derived variants and can mimic positive selection; the "
         "misorientation rate \u03b5 is fitted (or fixed) and shown with the parameters. "
         "Folded spectra avoid this but carry less information.",
+    ),
+    ("Folded or unfolded", FOLDED_NOTE),
+    (
+        "Callable sites",
+        "Class sites without a VCF record count as callable monomorphic sites. That holds "
+        "for an all-sites VCF or inside a callable-sites BED; with a variants-only VCF and "
+        "no such BED it holds only if every site was callable (see the warnings).",
     ),
     (
         "Sample size and number of blocks",

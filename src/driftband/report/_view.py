@@ -15,7 +15,18 @@ from typing import Any
 
 from ..exceptions import InputError
 from ._inputs import check_compare_rows, check_fit_doc, check_spectra_doc
-from ._text import ALPHA_LEVEL, band_label, digits_for, fnum, fp, frange, fsig, is_num, pct
+from ._text import (
+    ALPHA_LEVEL,
+    VARIANTS_ONLY_FLAG,
+    band_label,
+    digits_for,
+    fnum,
+    fp,
+    frange,
+    fsig,
+    is_num,
+    pct,
+)
 
 __all__ = [
     "Band",
@@ -329,6 +340,24 @@ def _match_spectra(views: list[PopulationView], docs: dict[str, dict[str, Any]])
             )
 
 
+def spectra_flags(doc: dict[str, Any]) -> list[str]:
+    """Data warnings a spectra file records for its populations, as sentences.
+
+    Parameters
+    ----------
+    doc : dict
+        A spectra document (``driftband spectra`` output).
+
+    Returns
+    -------
+    list of str
+        The variants-only warning when its callable sites were assumed
+        (``provenance.callable_sites.warning``); empty otherwise.
+    """
+    cs = (doc.get("provenance") or {}).get("callable_sites") or {}
+    return [VARIANTS_ONLY_FLAG] if cs.get("warning") else []
+
+
 def _share(pops: dict[str, PopulationView], name: str, model: str) -> float | None:
     v = pops.get(name)
     if v is None:
@@ -618,6 +647,9 @@ def collect(
             )
         )
     _match_spectra(views, spectra_docs)
+    for v in views:
+        if v.spectra_source is not None:
+            v.flags += spectra_flags(spectra_docs[v.spectra_source])
     first = [b.lo for b in views[0].bands]
     if any([b.lo for b in v.bands] != first for v in views):
         raise InputError(

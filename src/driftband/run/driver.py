@@ -264,6 +264,7 @@ def run_study(
     study = _apply(study, replicates, workers, seed, level)
     check_files(study)
     options = fit_options(study)
+    _preflight(study)
     paths = output_paths(study, out)
     _check_out_dir(out, study, paths["study"], force)
     paths["provenance"].mkdir(parents=True, exist_ok=True)
@@ -303,6 +304,22 @@ def run_study(
     return result
 
 
+def _preflight(study: Study) -> None:
+    """The checks of ``driftband check`` that need no pass over the records, before any
+    work: every problem of every dataset in one message."""
+    from .preflight import check_study
+
+    problems = [
+        f"dataset {c.name!r}: {p}" if study.several else p
+        for c in check_study(study, count=False)
+        for p in c.problems
+    ]
+    if len(problems) == 1:
+        raise InputError(f"preflight: {problems[0]}")
+    if problems:
+        raise InputError(f"preflight, {len(problems)} problems: " + "; ".join(problems))
+
+
 def _run_stages(
     study: Study,
     options: Any,
@@ -328,6 +345,7 @@ def _run_stages(
             "sites": dp["sites"],
             "callable": d.callable,
             "blocks": d.blocks,
+            "ancestral": d.ancestral_fasta,
         }
         for k, r in enumerate(d.regions or []):
             if os.path.isfile(r):

@@ -154,6 +154,8 @@ def stage_spectra(
         min_gq=dataset.min_gq,
         min_dp=dataset.min_dp,
         pass_only=dataset.pass_only,
+        exclude_lowercase_ancestral=dataset.exclude_lowercase_ancestral,
+        all_sites_callable=dataset.all_sites_callable,
     )
     write_spectra_json(ss, out_json, force=True)
     for line in summary_lines(ss):

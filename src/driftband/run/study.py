@@ -70,7 +70,20 @@ STUDY_KEYS: dict[str, dict[str, tuple[str, str]]] = {
         "transcripts": ("str", "classify: 'agree' (default) or 'longest'"),
         "exclude_softmasked": ("bool", "classify: drop soft-masked (lowercase) sites"),
         "callable": ("file", "BED of callable sites; classes are intersected with it"),
-        "ancestral": ("str", "polarisation: 'aa' (INFO/AA, default), 'fold' or 'outgroup:POP'"),
+        "all_sites_callable": (
+            "bool",
+            "state that every class site was callable (a variants-only VCF without "
+            "callable is warned about otherwise)",
+        ),
+        "ancestral": (
+            "str",
+            "polarisation: 'aa' (INFO/AA, default), 'fold', 'outgroup:POP' or "
+            "'fasta:FILE' (an ancestral sequence aligned to the reference)",
+        ),
+        "exclude_lowercase_ancestral": (
+            "bool",
+            "with ancestral = 'fasta:FILE': drop sites whose ancestral base is lower case",
+        ),
         "project": (
             "project",
             "gene copies to project to: N for all populations or a "
@@ -156,7 +169,9 @@ class Dataset:
     transcripts: str = "agree"
     exclude_softmasked: bool = False
     callable: str | None = None
+    all_sites_callable: bool = False
     ancestral: str = "aa"
+    exclude_lowercase_ancestral: bool = False
     project: int | dict[str, int] | None = None
     block_size: int = DEFAULT_BLOCK_SIZE
     blocks: str | None = None
@@ -164,6 +179,12 @@ class Dataset:
     min_gq: int | None = None
     min_dp: int | None = None
     pass_only: bool = False
+
+    @property
+    def ancestral_fasta(self) -> str | None:
+        """The ancestral FASTA of ``ancestral = "fasta:FILE"`` (absolute), else None."""
+        kind, _, path = self.ancestral.partition(":")
+        return path if kind == "fasta" else None
 
     @property
     def classify(self) -> bool:
@@ -180,6 +201,8 @@ class Dataset:
             "min_gq": self.min_gq,
             "min_dp": self.min_dp,
             "pass_only": self.pass_only,
+            "exclude_lowercase_ancestral": self.exclude_lowercase_ancestral,
+            "all_sites_callable": self.all_sites_callable,
         }
 
     def classify_options(self) -> dict[str, Any]:
@@ -502,11 +525,18 @@ def _dataset(where: _Where, section: str, vals: dict[str, Any], base: Path) -> D
         )
     anc = vals.get("ancestral", "aa")
     kind, _, pop = anc.partition(":")
-    if not (anc in ("aa", "fold") or (kind == "outgroup" and pop)):
+    if not (anc in ("aa", "fold") or (kind in ("outgroup", "fasta") and pop)):
         raise where.error(
             section,
             "ancestral",
-            f"{who}: ancestral must be 'aa', 'fold' or 'outgroup:POP', not {anc!r}",
+            f"{who}: ancestral must be 'aa', 'fold', 'outgroup:POP' or 'fasta:FILE', not {anc!r}",
+        )
+    if vals.get("exclude_lowercase_ancestral") and kind != "fasta":
+        raise where.error(
+            section,
+            "exclude_lowercase_ancestral",
+            f"{who}: {where.name(section, 'exclude_lowercase_ancestral')} applies only to "
+            "ancestral = 'fasta:FILE'",
         )
     if "blocks" in vals and "block_size" in vals:
         raise where.error(section, "blocks", f"{who}: give blocks or block_size, not both")
@@ -516,6 +546,8 @@ def _dataset(where: _Where, section: str, vals: dict[str, Any], base: Path) -> D
         d["regions"] = [
             _resolve(base, r) if r.endswith((".bed", ".bed.gz")) else r for r in regions
         ]
+    if kind == "fasta":  # the ancestral FASTA is a path too
+        d["ancestral"] = "fasta:" + _resolve(base, pop)
     d.setdefault("name", _default_name(d["vcf"]))
     return Dataset(**d)
 
@@ -683,6 +715,15 @@ def check_files(study: Study) -> None:
                     else f"dataset {d.name!r}, key {key!r} of {study.source}"
                 )
                 raise InputError(f"is a folder, not a file ({where})", p)
+        anc = d.ancestral_fasta
+        if anc is not None and not os.path.isfile(anc):
+            if study.source is None:
+                raise InputError("file not found (--ancestral fasta:FILE)", anc)
+            raise InputError(
+                f"dataset {d.name!r}: ancestral FASTA {anc} not found",
+                study.source,
+                lines.get((f"dataset[{i}]", "ancestral")),
+            )
         for r in d.regions or []:
             if r.endswith((".bed", ".bed.gz")) and not os.path.exists(r):
                 raise InputError(

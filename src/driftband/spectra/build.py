@@ -32,9 +32,10 @@ import numpy as np
 from .._io import file_record, provenance
 from ..exceptions import InputError, OptionError
 from ..sites.bed import IntervalSet, SiteClasses, read_mask, read_site_classes
-from ..variants.popmap import Popmap, assign_samples, read_popmap
+from ..variants.popmap import Popmap, SampleAssignment, assign_samples, read_popmap
 from ..variants.source import VcfSource
 from ._types import Block, SpectraSet
+from .callable import callable_status, sites_with_records, variants_only_message
 from .counting import CountDesign, RegionCounts, count_stream, make_design
 from .plan import (
     DEFAULT_REGION_SIZE,
@@ -46,7 +47,13 @@ from .plan import (
 )
 from .projection import DEFAULT_KEEP_FRACTION, spectra_from_counts
 
-__all__ = ["SpectraOptions", "build_spectra"]
+__all__ = [
+    "Prepared",
+    "SpectraOptions",
+    "build_spectra",
+    "count_prepared",
+    "prepare_counting",
+]
 
 log = logging.getLogger("driftband")
 
@@ -72,6 +79,8 @@ class SpectraOptions:
     keep: float
     checksums: bool
     workers: int | None
+    exclude_lowercase_ancestral: bool = False
+    all_sites_callable: bool = False
 
     def provenance_options(self) -> dict[str, Any]:
         """The options as recorded in the provenance of the spectra file."""
@@ -85,6 +94,8 @@ class SpectraOptions:
             "min_gq": self.min_gq,
             "min_dp": self.min_dp,
             "pass_only": self.pass_only,
+            "exclude_lowercase_ancestral": self.exclude_lowercase_ancestral,
+            "all_sites_callable": self.all_sites_callable,
             "keep_fraction": self.keep,
             "projection_rule": (
                 f"largest n such that >= {self.keep:.0%} of usable "
@@ -113,6 +124,8 @@ def build_spectra(
     checksums: bool = True,
     workers: int | None = 1,
     scheduler: Any = None,
+    exclude_lowercase_ancestral: bool = False,
+    all_sites_callable: bool = False,
 ) -> SpectraSet:
     """Per-population, per-class, per-block site frequency spectra from a VCF/BCF.
 
@@ -127,7 +140,9 @@ def build_spectra(
     callable_mask : IntervalSet or path-like, optional
         BED of callable sites; classes are intersected with it.
     ancestral : str
-        ``"aa"`` (INFO/AA), ``"fold"`` or ``"outgroup:POP"``.
+        ``"aa"`` (INFO/AA), ``"fold"``, ``"outgroup:POP"`` or ``"fasta:FILE"`` (an
+        ancestral sequence aligned to the reference, see
+        :mod:`driftband.spectra.ancestral`).
     project : int or mapping, optional
         Sample size (gene copies) for all or some populations; default rule otherwise.
     block_size : int
@@ -154,6 +169,12 @@ def build_spectra(
     scheduler : str or distributed.Client, optional
         Count on this dask.distributed cluster instead (address ``tcp://HOST:8786``);
         every worker must see the VCF at the same path.
+    exclude_lowercase_ancestral : bool
+        With ``fasta:FILE``: drop sites whose ancestral base is lower case (low confidence).
+    all_sites_callable : bool
+        The user states that every class site (after the mask and regions) was callable,
+        so that sites absent from the VCF are monomorphic: no warning when the VCF holds
+        no monomorphic record (variants-only). Recorded in the provenance.
 
     Returns
     -------
@@ -178,6 +199,8 @@ def build_spectra(
         keep=keep,
         checksums=checksums,
         workers=workers,
+        exclude_lowercase_ancestral=exclude_lowercase_ancestral,
+        all_sites_callable=all_sites_callable,
     )
     client = connect(scheduler) if isinstance(scheduler, str) else scheduler  # fail fast
     src = None
@@ -206,18 +229,63 @@ def _as_classes(x: SiteClasses | str | os.PathLike) -> SiteClasses:
     return x if isinstance(x, SiteClasses) else read_site_classes(x)
 
 
-def _build(
+@dataclass
+class Prepared:
+    """Everything fixed before any VCF record is read (see :func:`prepare_counting`).
+
+    Attributes
+    ----------
+    popmap : Popmap
+    assign : SampleAssignment
+    classes : SiteClasses
+    design : CountDesign
+    plan : SitePlan
+        Callable class sites (with their ancestral bases for ``fasta:FILE``).
+    dropped : dict of str to dict of str to int
+        Class sites dropped for want of an ancestral base, by reason and class (empty
+        unless ``fasta:FILE``).
+    bed_path : str
+        The site-class BED's name, for messages.
+    chroms_known : bool
+        Whether the VCF's chromosomes are known before reading records (index or header).
+    """
+
+    popmap: Popmap
+    assign: SampleAssignment
+    classes: SiteClasses
+    design: CountDesign
+    plan: SitePlan
+    dropped: dict[str, dict[str, int]]
+    bed_path: str
+    chroms_known: bool
+
+
+def prepare_counting(
     src: VcfSource,
-    vcf: str | os.PathLike,
     popmap: Popmap | str | os.PathLike,
     sites: SiteClasses | str | os.PathLike,
     callable_mask: IntervalSet | str | os.PathLike | None,
     opts: SpectraOptions,
-    progress: Callable[[int, int, int], None] | None,
-    scheduler: Any,
-) -> SpectraSet:
-    """:func:`build_spectra` on an open VCF; ``provenance`` without ``execution``."""
-    digest = _Checksum(vcf if opts.checksums else None)  # hashed while counting runs
+) -> Prepared:
+    """Check the header, match the samples and plan the callable sites, before counting.
+
+    Parameters
+    ----------
+    src : VcfSource
+        The open VCF/BCF.
+    popmap, sites, callable_mask
+        As for :func:`build_spectra`.
+    opts : SpectraOptions
+
+    Returns
+    -------
+    Prepared
+
+    Raises
+    ------
+    InputError, OptionError
+        The checks of :func:`build_spectra` that need no VCF record.
+    """
     pm = _as_popmap(popmap)
     og = _check_header(src, opts)
     assign = assign_samples(pm, src.header.samples, src.path, og or None)
@@ -248,20 +316,40 @@ def _build(
     known_now = src.indexed or bool(src.header.contigs)
     if known_now:
         _check_chroms(plan, sc, vchroms, bed_path, src.path)
+    dropped: dict[str, dict[str, int]] = {}
+    if design.ancestral == "fasta" and design.ancestral_file is not None:
+        from .ancestral import attach_ancestral
+
+        plan, dropped = attach_ancestral(
+            plan, design.ancestral_file, opts.exclude_lowercase_ancestral, src.header.contig_lengths
+        )
     for c, n in plan.sites().items():
         if n == 0:
+            why = " and the sites without an ancestral base" if dropped else ""
             raise InputError(
                 f"class {c!r} has no callable sites after intersecting with the "
-                "mask, regions and blocks",
+                f"mask, regions and blocks{why}",
                 bed_path,
             )
+    return Prepared(pm, assign, sc, design, plan, dropped, bed_path, known_now)
+
+
+def count_prepared(
+    src: VcfSource,
+    prep: Prepared,
+    opts: SpectraOptions,
+    progress: Callable[[int, int, int], None] | None = None,
+    scheduler: Any = None,
+) -> tuple[RegionCounts, SitePlan]:
+    """Count the records of the VCF on the prepared plan (regions of an indexed file in
+    parallel, or one stream); returns the summed counts and the plan they refer to."""
     if src.indexed:
         from .parallel import count_regions
 
-        plan = plan.restrict(vchroms)
+        plan = prep.plan.restrict(src.chroms)
         total = count_regions(
             src,
-            design,
+            prep.design,
             plan,
             opts.region_size,
             workers=opts.workers,
@@ -269,15 +357,52 @@ def _build(
             progress=progress,
         )
     else:
+        check = None if prep.chroms_known else (prep.classes, prep.bed_path)
         total, plan = _count_unindexed(
-            src, design, plan, opts, progress, scheduler, None if known_now else (sc, bed_path)
+            src, prep.design, prep.plan, opts, progress, scheduler, check
         )
     if total.records == 0:
         raise InputError("the VCF holds no records in the regions with class sites", src.path)
-    ss = spectra_from_counts(total, design, plan.blocks, opts.project, opts.keep)
-    ss.provenance = _provenance(
-        opts, digest, vcf, pm, sc, callable_mask, total, design, assign.ignored
+    return total, plan
+
+
+def _build(
+    src: VcfSource,
+    vcf: str | os.PathLike,
+    popmap: Popmap | str | os.PathLike,
+    sites: SiteClasses | str | os.PathLike,
+    callable_mask: IntervalSet | str | os.PathLike | None,
+    opts: SpectraOptions,
+    progress: Callable[[int, int, int], None] | None,
+    scheduler: Any,
+) -> SpectraSet:
+    """:func:`build_spectra` on an open VCF; ``provenance`` without ``execution``."""
+    digest = _Checksum(vcf if opts.checksums else None)  # hashed while counting runs
+    prep = prepare_counting(src, popmap, sites, callable_mask, opts)
+    total, plan = count_prepared(src, prep, opts, progress, scheduler)
+    status = callable_status(
+        total, callable_mask is not None, opts.all_sites_callable, sum(plan.sites().values())
     )
+    ss = spectra_from_counts(total, prep.design, plan.blocks, opts.project, opts.keep)
+    if status["warn"]:
+        absent = max(sum(plan.sites().values()) - sites_with_records(total), 0)
+        log.warning("WARNING: %s", variants_only_message(src.path, absent))
+    ss.provenance = _provenance(
+        opts,
+        digest,
+        vcf,
+        prep.popmap,
+        prep.classes,
+        callable_mask,
+        total,
+        prep.design,
+        prep.assign.ignored,
+    )
+    ss.provenance["callable_sites"] = {k: v for k, v in status.items() if k != "warn"} | {
+        "warning": status["warn"]
+    }
+    if prep.dropped:
+        ss.provenance["counts"]["dropped_sites"] = prep.dropped
     return ss
 
 
@@ -286,6 +411,11 @@ def _check_header(src: VcfSource, opts: SpectraOptions) -> str:
     kind, _, og = opts.ancestral.partition(":")
     if kind == "outgroup" and not og:
         raise OptionError("--ancestral outgroup:POP needs the outgroup population's name")
+    if opts.exclude_lowercase_ancestral and kind != "fasta":
+        raise OptionError(
+            "--exclude-lowercase-ancestral applies only to --ancestral fasta:FILE "
+            f"(not {opts.ancestral})"
+        )
     if kind == "aa" and "AA" not in src.header.info:
         raise InputError(
             "--ancestral aa needs INFO/AA, but the header declares no "
@@ -300,7 +430,7 @@ def _check_header(src: VcfSource, opts: SpectraOptions) -> str:
     for name, v, key in (("--min-dp", opts.min_dp, "DP"), ("--min-gq", opts.min_gq, "GQ")):
         if v is not None and key not in src.header.formats:
             raise InputError(f"{name} given but the header declares no FORMAT/{key}", src.path)
-    return og
+    return og if kind == "outgroup" else ""
 
 
 def _count_unindexed(
@@ -369,6 +499,7 @@ def _provenance(
         "sites": rec(sc.path),
         "callable": rec(callable_mask) if isinstance(callable_mask, str | os.PathLike) else None,
         "blocks": rec(opts.blocks),
+        "ancestral": rec(design.ancestral_file) if design.ancestral_file else None,
     }
     prov = provenance(opts.provenance_options(), {k: v for k, v in inputs.items() if v is not None})
     prov["counts"] = {
@@ -377,6 +508,7 @@ def _provenance(
         "ignored_samples": list(ignored),
         "samples": {p: int(c.size) for p, c in zip(design.populations, design.columns)},
         "outgroup": design.outgroup,
+        "monomorphic_records": int(total.monomorphic),
     }
     return prov
 
@@ -451,4 +583,5 @@ def _renumber(total: RegionCounts, old: Sequence[Block], new: Sequence[Block]) -
         total.skipped,
         total.records,
         total.chroms,
+        total.monomorphic,
     )

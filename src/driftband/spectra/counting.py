@@ -19,12 +19,17 @@ Rules (stated in the README)
   neither REF nor ALT; outgroup without calls or polymorphic), ``duplicate_position``
   (two or more records at one position, e.g. a split multi-allelic site). Sites of every
   reason but ``no_site_class`` and ``indel_or_symbolic`` are removed from the callable
-  count (they are not known to be monomorphic). ``missing_data:POP`` (counted later, by
-  :func:`driftband.spectra.projection.spectra_from_counts`): sites with fewer than ``n``
-  called copies in population POP, dropped from its spectrum and its callable count.
-* Monomorphic records (ALT ``.``) count at entry 0, or at entry ``n`` when INFO/AA is a
-  base other than REF; callable sites absent from the VCF count at entry 0; no site is
-  counted twice.
+  count (they are not known to be monomorphic). With an ancestral sequence
+  (:mod:`driftband.spectra.ancestral`), records at class sites dropped for want of an
+  ancestral base are skipped with that reason (``no_ancestral_base``,
+  ``low_confidence_ancestral``) instead of ``no_site_class``. ``missing_data:POP``
+  (counted later, by :func:`driftband.spectra.projection.spectra_from_counts`): sites
+  with fewer than ``n`` called copies in population POP, dropped from its spectrum and
+  its callable count.
+* Monomorphic records (ALT ``.``) count at entry 0, or at entry ``n`` when INFO/AA (or the
+  ancestral sequence) is a base other than REF; :attr:`RegionCounts.monomorphic` counts
+  them (no such record at all: the VCF looks variants-only); callable sites absent from
+  the VCF count at entry 0; no site is counted twice.
 * Genotype filters ``min_dp``/``min_gq`` set a genotype to missing when its DP/GQ is below
   the threshold or missing.
 
@@ -45,6 +50,7 @@ from ..exceptions import InputError, OptionError
 from ..variants.batches import VariantBatch
 from ..variants.popmap import SampleAssignment
 from ..variants.source import BATCH_BYTES, VcfSource
+from .ancestral import DROP_REASONS as _DROP_REASONS
 from .plan import RegionSites, SitePlan, aggregate
 
 __all__ = [
@@ -87,8 +93,8 @@ class CountDesign:
         VCF sample columns of each focal population.
     classes : tuple of str
         Site class names (index order of the class arrays).
-    ancestral : {"aa", "fold", "outgroup"}
-        How alleles are polarised.
+    ancestral : {"aa", "fold", "outgroup", "fasta"}
+        How alleles are polarised (``fasta``: the plan's ancestral bases).
     outgroup : str or None
     outgroup_columns : ndarray of int64 or None
     min_dp, min_gq : int or None
@@ -109,11 +115,17 @@ class CountDesign:
     min_gq: int | None = None
     pass_only: bool = False
     batch_bytes: int = BATCH_BYTES
+    ancestral_file: str | None = None
 
     @property
     def polarisation(self) -> str:
-        """Label stored in the spectra file: ``aa``, ``fold`` or ``outgroup:POP``."""
-        return f"outgroup:{self.outgroup}" if self.ancestral == "outgroup" else self.ancestral
+        """Label stored in the spectra file: ``aa``, ``fold``, ``outgroup:POP`` or
+        ``fasta:NAME`` (the ancestral FASTA's file name)."""
+        if self.ancestral == "outgroup":
+            return f"outgroup:{self.outgroup}"
+        if self.ancestral == "fasta":
+            return f"fasta:{os.path.basename(self.ancestral_file or '')}"
+        return self.ancestral
 
     def used_columns(self) -> tuple[np.ndarray, list[np.ndarray], np.ndarray | None]:
         """Sorted VCF columns decoded, and each population's (and the outgroup's) indices
@@ -136,12 +148,16 @@ def make_design(
     pass_only: bool = False,
 ) -> CountDesign:
     """A :class:`CountDesign` from matched samples and options (``ancestral`` may be
-    ``"aa"``, ``"fold"`` or ``"outgroup:POP"``)."""
-    kind = ancestral.split(":", 1)[0]
-    if kind not in ("aa", "fold", "outgroup"):
-        raise OptionError(f"--ancestral {ancestral!r}: expected aa, fold or outgroup:POP")
+    ``"aa"``, ``"fold"``, ``"outgroup:POP"`` or ``"fasta:FILE"``)."""
+    kind, _, arg = ancestral.partition(":")
+    if kind not in ("aa", "fold", "outgroup", "fasta"):
+        raise OptionError(
+            f"--ancestral {ancestral!r}: expected aa, fold, outgroup:POP or fasta:FILE"
+        )
     if kind == "outgroup" and assignment.outgroup is None:
         raise OptionError("--ancestral outgroup:POP needs the outgroup population's name")
+    if kind == "fasta" and not arg:
+        raise OptionError("--ancestral fasta:FILE needs the ancestral FASTA's path")
     for name, v in (("--min-dp", min_dp), ("--min-gq", min_gq)):
         if v is not None and v < 0:
             raise OptionError(f"{name} must be >= 0, got {v}")
@@ -155,6 +171,7 @@ def make_design(
         min_dp,
         min_gq,
         pass_only,
+        ancestral_file=arg if kind == "fasta" else None,
     )
 
 
@@ -189,6 +206,8 @@ class RegionCounts:
         Records read.
     chroms : set of str
         Chromosomes of the records read.
+    monomorphic : int
+        Monomorphic records (ALT ``.`` or a placeholder only) at callable class sites.
     """
 
     rows: dict[str, np.ndarray] = field(default_factory=dict)
@@ -197,6 +216,7 @@ class RegionCounts:
     skipped: dict[str, int] = field(default_factory=dict)
     records: int = 0
     chroms: set[str] = field(default_factory=set)
+    monomorphic: int = 0
 
     def __add__(self, other: RegionCounts) -> RegionCounts:
         if not isinstance(other, RegionCounts):
@@ -222,6 +242,7 @@ class RegionCounts:
             sk,
             self.records + other.records,
             self.chroms | other.chroms,
+            self.monomorphic + other.monomorphic,
         )
 
     def __radd__(self, other: object) -> RegionCounts:
@@ -245,6 +266,7 @@ class RegionCounts:
             sk,
             sum(r.records for r in parts),
             set().union(*(r.chroms for r in parts)),
+            sum(r.monomorphic for r in parts),
         )
 
 
@@ -302,7 +324,9 @@ class _RegionCounter:
         )
         self.kinds: dict[tuple[bytes, bytes], tuple[int, int, int]] = {}
         self.aa_cache: dict[tuple, int] = {}
-        self.skip = dict.fromkeys(("no_site_class", "indel_or_symbolic"), 0)
+        drops = _DROP_REASONS if design.ancestral == "fasta" else ()
+        self.skip = dict.fromkeys(("no_site_class", *drops, "indel_or_symbolic"), 0)
+        self.monomorphic = 0
         # usable records: position, class, block, called and derived copies per population
         self.u_pos: list[np.ndarray] = []
         self.u_cls: list[np.ndarray] = []
@@ -326,7 +350,14 @@ class _RegionCounter:
         pos0 = b.pos - 1
         inside, cls, blk = self.sites.lookup(pos0)
         rows = np.flatnonzero(inside)
-        self.skip["no_site_class"] += int(pos0.size - rows.size)
+        outside = int(pos0.size - rows.size)
+        if outside and self.sites.dropped is not None:  # no ancestral base there
+            why = self.sites.drop_reasons(pos0[~inside])
+            for reason_code, name in enumerate(_DROP_REASONS, start=1):
+                k = int((why == reason_code).sum())
+                self.skip[name] += k
+                outside -= k
+        self.skip["no_site_class"] += outside
         if not rows.size:
             return
         codes = b.codes()
@@ -335,6 +366,7 @@ class _RegionCounter:
         simple_snp = base_r & _IS_BASE[a1] & (r1 != a1)
         simple_mono = base_r & (a1 == 46)
         kind = np.where(simple_snp, _SNP, np.where(simple_mono, _MONO, -1)).astype(np.int64)
+        n_mono = int(simple_mono.sum())
         alt_idx = simple_snp.astype(np.int64)
         n_alts = alt_idx.copy()
         hard = np.flatnonzero(kind < 0)
@@ -347,6 +379,8 @@ class _RegionCounter:
                     (ref[i], alt[i]), _classify(ref[i], alt[i])
                 )
                 kind[j], alt_idx[j], n_alts[j] = x
+                n_mono += x[0] == _MONO
+        self.monomorphic += n_mono
         status = np.zeros(rows.size, np.int64)  # 0 usable, 1 indel, 2.. removing reasons
         status[kind == _OTHER] = 1
         status[kind == _MULTI] = 2
@@ -354,8 +388,9 @@ class _RegionCounter:
             bad = codes["pass"][rows] == 0
             status[(status == 0) & bad] = 3
         anc = np.zeros(rows.size, np.int64)  # 0 REF, 1 ALT, 2 other (fixed derived)
-        if self.d.ancestral == "aa":
-            aa1 = codes["aa1"][rows]
+        if self.d.ancestral in ("aa", "fasta"):
+            fasta = self.d.ancestral == "fasta"
+            aa1 = self.sites.ancestral_codes(pos0[rows]) if fasta else codes["aa1"][rows]
             easy = (status == 0) & (aa1 != 0) & (simple_snp | simple_mono)
             snp_e = easy & simple_snp
             anc[snp_e & (aa1 == a1)] = 1
@@ -364,7 +399,11 @@ class _RegionCounter:
             anc[mono_e & _IS_BASE[aa1] & (aa1 != r1)] = 2
             cand = np.flatnonzero((status == 0) & ~easy)
             if cand.size:
-                aa = b.info(rows[cand].tolist(), "AA")
+                aa = (
+                    [bytes(aa1[cand[k] : cand[k] + 1]) for k in range(cand.size)]
+                    if fasta
+                    else b.info(rows[cand].tolist(), "AA")
+                )
                 cache = self.aa_cache
                 ref, alt = b.ref, b.alt
                 for j, v in zip(cand.tolist(), aa):
@@ -548,7 +587,13 @@ class _RegionCounter:
                 np.ones(u_cls.size, np.int64),
             )
         return RegionCounts(
-            rows, self.sites.callable_rows(), removed, skipped, self.records, set(self.chroms)
+            rows,
+            self.sites.callable_rows(),
+            removed,
+            skipped,
+            self.records,
+            set(self.chroms),
+            self.monomorphic,
         )
 
 

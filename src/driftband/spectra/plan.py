@@ -22,6 +22,7 @@ from ._types import Block
 
 __all__ = [
     "DEFAULT_REGION_SIZE",
+    "ChromSites",
     "RegionSites",
     "SitePlan",
     "chrom_mismatch_hint",
@@ -51,6 +52,13 @@ class RegionSites:
         Class index of each interval (into :attr:`SitePlan.classes`).
     block : ndarray of int64, shape (k,)
         Global block index of each interval (into :attr:`SitePlan.blocks`).
+    anc : ndarray of uint8, optional
+        With an ancestral sequence: the ancestral base (upper-case byte code) of every
+        callable site, the intervals' sites one after the other.
+    dropped : tuple of three ndarrays of int64, optional
+        With an ancestral sequence: ``starts, ends, reason`` of the class sites dropped
+        for want of a (confident) ancestral base (reason codes of
+        :data:`driftband.spectra.ancestral.DROP_REASONS`, from 1).
     """
 
     chrom: str
@@ -60,6 +68,8 @@ class RegionSites:
     ends: np.ndarray
     cls: np.ndarray
     block: np.ndarray
+    anc: np.ndarray | None = None
+    dropped: tuple[np.ndarray, np.ndarray, np.ndarray] | None = None
 
     def lookup(self, pos0: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
         """Class and block of 0-based positions.
@@ -81,6 +91,29 @@ class RegionSites:
             z = np.zeros(pos0.shape, np.int64)
             return inside, z, z
         return inside, self.cls[kk], self.block[kk]
+
+    def ancestral_codes(self, pos0: np.ndarray) -> np.ndarray:
+        """Ancestral base (upper-case byte code) at callable sites ``pos0`` (0-based).
+
+        Only with an ancestral sequence (:attr:`anc`); every position must be inside.
+        """
+        if self.anc is None:
+            raise ValueError("no ancestral sequence in this plan")
+        pos0 = np.asarray(pos0, dtype=np.int64)
+        k = np.searchsorted(self.starts, pos0, side="right") - 1
+        off = np.concatenate([[0], np.cumsum(self.ends - self.starts)])
+        return self.anc[off[k] + pos0 - self.starts[k]]
+
+    def drop_reasons(self, pos0: np.ndarray) -> np.ndarray:
+        """Reason code (0: none) of positions that are class sites dropped for want of an
+        ancestral base (see :attr:`dropped`)."""
+        pos0 = np.asarray(pos0, dtype=np.int64)
+        if self.dropped is None or not self.dropped[0].size:
+            return np.zeros(pos0.shape, np.int64)
+        s, e, why = self.dropped
+        k = np.searchsorted(s, pos0, side="right") - 1
+        kk = np.maximum(k, 0)
+        return np.where((k >= 0) & (pos0 < e[kk]), why[kk], 0)
 
     def callable_rows(self) -> np.ndarray:
         """Callable sites per (class, block): int64 array (k, 3) of class, block, sites."""
@@ -127,11 +160,17 @@ def aggregate(keys: np.ndarray, weights: np.ndarray) -> np.ndarray:
 
 
 @dataclass
-class _ChromSites:
+class ChromSites:
+    """Callable sites of one chromosome: disjoint, sorted intervals, each inside one block,
+    with class and block indices (and, with an ancestral sequence, the fields of
+    :class:`RegionSites` of the same names)."""
+
     starts: np.ndarray
     ends: np.ndarray
     cls: np.ndarray
     block: np.ndarray
+    anc: np.ndarray | None = None  # see RegionSites.anc
+    dropped: tuple[np.ndarray, np.ndarray, np.ndarray] | None = None  # see RegionSites
 
 
 @dataclass
@@ -144,13 +183,26 @@ class SitePlan:
         Class names (sorted), the class index order of every array.
     blocks : list of Block
         All blocks holding callable sites, in chromosome then position order.
-    chroms : dict of str to _ChromSites
+    chroms : dict of str to ChromSites
         Per chromosome: intervals, class and block indices.
     """
 
     classes: tuple[str, ...]
     blocks: list[Block]
-    chroms: dict[str, _ChromSites]
+    chroms: dict[str, ChromSites]
+
+    def with_chroms(self, chroms: dict[str, ChromSites]) -> SitePlan:
+        """The plan with other sites on its blocks; blocks left without sites are removed
+        and the others renumbered (order kept)."""
+        parts = [cs.block for cs in chroms.values()]
+        used = np.unique(np.concatenate(parts)) if parts else np.zeros(0, np.int64)
+        remap = np.full(len(self.blocks), -1, np.int64)
+        remap[used] = np.arange(used.size)
+        new = {
+            c: ChromSites(cs.starts, cs.ends, cs.cls, remap[cs.block], cs.anc, cs.dropped)
+            for c, cs in chroms.items()
+        }
+        return SitePlan(self.classes, [self.blocks[i] for i in used.tolist()], new)
 
     def sites(self) -> dict[str, int]:
         """Callable sites per class."""
@@ -171,7 +223,19 @@ class SitePlan:
         b = np.searchsorted(cs.starts, end, side="left")
         s = np.maximum(cs.starts[a:b], start)
         e = np.minimum(cs.ends[a:b], end)
-        return RegionSites(chrom, start, end, s, e, cs.cls[a:b].copy(), cs.block[a:b].copy())
+        anc = dropped = None
+        if cs.anc is not None:  # the intervals' sites are consecutive in cs.anc
+            off = int((cs.ends[:a] - cs.starts[:a]).sum())
+            lo = off + int(s[0] - cs.starts[a]) if s.size else off
+            anc = cs.anc[lo : lo + int((e - s).sum())].copy()
+        if cs.dropped is not None:
+            ds, de, dw = cs.dropped
+            i = np.searchsorted(de, start, side="right")
+            j = np.searchsorted(ds, end, side="left")
+            dropped = (np.maximum(ds[i:j], start), np.minimum(de[i:j], end), dw[i:j].copy())
+        return RegionSites(
+            chrom, start, end, s, e, cs.cls[a:b].copy(), cs.block[a:b].copy(), anc, dropped
+        )
 
     def regions(self, size: int, chroms: Iterable[str] | None = None) -> list[tuple[str, int, int]]:
         """Windows ``[k·size, (k+1)·size)`` that hold callable sites, in plan order."""
@@ -193,7 +257,7 @@ class SitePlan:
         remap = np.full(len(self.blocks), -1, np.int64)
         remap[old] = np.arange(len(old))
         chrom_sites = {
-            c: _ChromSites(cs.starts, cs.ends, cs.cls, remap[cs.block])
+            c: ChromSites(cs.starts, cs.ends, cs.cls, remap[cs.block], cs.anc, cs.dropped)
             for c, cs in self.chroms.items()
             if c in set(keep)
         }
@@ -350,7 +414,7 @@ def make_plan(
     all_chroms = set(classes.chroms)
     order = [c for c in dict.fromkeys(chrom_order) if c in all_chroms]
     order += sorted(all_chroms - set(order))
-    plan_chroms: dict[str, _ChromSites] = {}
+    plan_chroms: dict[str, ChromSites] = {}
     block_list: list[Block] = []
     lengths = contig_lengths or {}
     for c in order:
@@ -382,7 +446,7 @@ def make_plan(
                 if c in lengths:
                     end = min(end, max(lengths[c], x * block_size + 1))
                 block_list.append(Block(c, x * block_size, end, ""))
-            plan_chroms[c] = _ChromSites(ss, ee, kk, base + inv)
+            plan_chroms[c] = ChromSites(ss, ee, kk, base + inv)
         else:
             bl = blocks.get(c, [])
             if not bl:
@@ -406,5 +470,5 @@ def make_plan(
             used, inv = np.unique(xb, return_inverse=True)
             base = len(block_list)
             block_list.extend(bl[i] for i in used.tolist())
-            plan_chroms[c] = _ChromSites(xs, xe, xk, base + inv)
+            plan_chroms[c] = ChromSites(xs, xe, xk, base + inv)
     return SitePlan(names, block_list, plan_chroms)

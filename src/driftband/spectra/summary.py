@@ -6,6 +6,7 @@ import math
 from typing import Any
 
 from ._types import SpectraSet
+from .callable import CALLABLE_SOURCES
 
 __all__ = ["summary_lines"]
 
@@ -28,6 +29,14 @@ def summary_lines(ss: SpectraSet) -> list[str]:
     sk = ss.skipped
     if sk:
         out.append("skipped records: " + ", ".join(f"{k} {v:,}" for k, v in sk.items()))
+    counts = ss.provenance.get("counts") or {}
+    for reason, per in (counts.get("dropped_sites") or {}).items():
+        each = ", ".join(f"{c} {n:,}" for c, n in per.items())
+        out.append(f"dropped sites, {reason}: {sum(per.values()):,} ({each})")
+    cs = ss.provenance.get("callable_sites") or {}
+    if cs:
+        src = str(cs.get("source"))
+        out.append(f"callable sites: {CALLABLE_SOURCES.get(src, src)}")
     hdr = (
         f"{'population':<14} {'class':<8} {'n':>5} {'sites':>12} {'segregating':>11} "
         f"{'pi':>10} {'theta_W':>10} {'Tajima_D':>9}"
