@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import contextlib
+import contextvars
 import datetime as _dt
 import gzip
 import hashlib
@@ -16,40 +17,226 @@ from typing import IO, Any, overload
 
 import numpy as np
 
-from .exceptions import OutputExistsError
+from .exceptions import OptionError, OutputError, OutputExistsError
 
 __all__ = [
+    "OutputSet",
     "atomic_output",
+    "check_output_path",
     "check_outputs",
+    "commit_output",
     "file_record",
     "json_ready",
     "open_text",
+    "output_set",
     "provenance",
     "sha256sum",
+    "temporary_output",
     "tsv_cell",
 ]
 
 
+class OutputSet:
+    """The outputs of one command, committed together.
+
+    Inside :func:`output_set`, every :func:`atomic_output` (and any writer that calls
+    :func:`commit_output`) writes to a temporary file next to its final path; the renames
+    happen together when the set closes without error, and on any error (or interruption)
+    every temporary file is removed, so a command leaves either all its outputs or none.
+    The set also knows the command's input files, which no output may replace (even with
+    ``--force``).
+
+    Parameters
+    ----------
+    inputs : iterable of path-like, optional
+        The command's input files.
+    """
+
+    def __init__(self, inputs: Iterable[str | os.PathLike] = ()) -> None:
+        self.inputs = [os.fspath(p) for p in inputs]
+        self.pending: list[tuple[str, str]] = []
+        self.defer = True
+
+    def stage(self, tmp: str | os.PathLike, final: str | os.PathLike) -> None:
+        """Rename ``tmp`` to ``final`` when the set commits (remove it if it aborts)."""
+        self.pending.append((os.fspath(tmp), os.fspath(final)))
+
+    def commit(self) -> None:
+        """Rename every staged temporary file into place (in the order staged)."""
+        while self.pending:
+            tmp, final = self.pending[0]
+            try:
+                os.replace(tmp, final)
+            except OSError as err:
+                raise OutputError(final, err.strerror or str(err)) from None
+            self.pending.pop(0)
+
+    def abort(self) -> None:
+        """Remove every staged temporary file; the final paths are untouched."""
+        for tmp, _final in self.pending:
+            with contextlib.suppress(OSError):
+                os.unlink(tmp)
+        self.pending.clear()
+
+
+_ACTIVE: contextvars.ContextVar[OutputSet | None] = contextvars.ContextVar(
+    "driftband_output_set", default=None
+)
+
+
+@contextlib.contextmanager
+def output_set(inputs: Iterable[str | os.PathLike] = (), defer: bool = True) -> Iterator[OutputSet]:
+    """Collect the outputs written in the block and commit them together.
+
+    Parameters
+    ----------
+    inputs : iterable of path-like, optional
+        Input files that no output of the block may replace (added to those of an
+        enclosing set).
+    defer : bool
+        Commit at the end of the block (true), or let each output be renamed into place
+        as soon as it is written (false: only the input guard applies).
+
+    Yields
+    ------
+    OutputSet
+        See :class:`OutputSet`.
+    """
+    outer = _ACTIVE.get()
+    inherited = outer.inputs if outer is not None else []
+    oset = OutputSet([*inherited, *(os.fspath(p) for p in inputs)])
+    oset.defer = defer
+    token = _ACTIVE.set(oset)
+    try:
+        yield oset
+        oset.commit()
+    except BaseException:
+        oset.abort()
+        raise
+    finally:
+        _ACTIVE.reset(token)
+
+
+def _same_file(a: str, b: str) -> bool:
+    try:
+        return os.path.samefile(a, b)
+    except OSError:
+        return os.path.abspath(a) == os.path.abspath(b)
+
+
+def check_output_path(path: str | os.PathLike, force: bool = False) -> None:
+    """Refuse an output path that cannot or must not be written.
+
+    Parameters
+    ----------
+    path : path-like
+        The output path.
+    force : bool
+        Allow overwriting an existing file (never an input of the command).
+
+    Raises
+    ------
+    OutputExistsError
+        The path exists and ``force`` is false.
+    OptionError
+        The path is an input of the command, a folder, or lies under a regular file.
+    """
+    p = os.fspath(path)
+    active = _ACTIVE.get()
+    if active is not None:
+        for inp in active.inputs:
+            if _same_file(p, inp):
+                raise OptionError(
+                    f"{p}: is an input of this command; choose another output path "
+                    "(--force never overwrites an input)"
+                )
+    if os.path.isdir(p):
+        raise OptionError(f"{p}: is a folder; give a file name for this output")
+    parent = Path(p).absolute().parent
+    for anc in (parent, *parent.parents):
+        if os.path.lexists(anc):
+            if not anc.is_dir():
+                raise OptionError(f"{p}: {anc} is a file, not a folder; choose another path")
+            break
+    if not force and os.path.lexists(p):
+        raise OutputExistsError(p)
+
+
 def check_outputs(paths: Iterable[str | os.PathLike | None], force: bool = False) -> None:
-    """Refuse, before any work is done, to overwrite existing outputs without ``force``.
+    """Refuse, before any work is done, outputs that cannot or must not be written.
 
     Parameters
     ----------
     paths : iterable of path-like or None
         Output paths; ``None`` entries are skipped. ``-`` means standard output.
     force : bool
-        Allow overwriting.
+        Allow overwriting (never an input of the command).
 
     Raises
     ------
     OutputExistsError
         If a path exists and ``force`` is false.
+    OptionError
+        See :func:`check_output_path`.
     """
     for p in paths:
         if p is None or os.fspath(p) == "-":
             continue
-        if not force and os.path.exists(p):
-            raise OutputExistsError(p)
+        check_output_path(p, force)
+
+
+def temporary_output(path: str | os.PathLike, suffix: str = ".tmp") -> str:
+    """Create an empty temporary file beside ``path`` (umask permissions); return its name.
+
+    Parameters
+    ----------
+    path : path-like
+        The final output path (its folder is created if needed).
+    suffix : str
+        Ending of the temporary name.
+
+    Returns
+    -------
+    str
+        The temporary file's path. Errors name ``path``, never the temporary file.
+    """
+    path = Path(path)
+    directory = path.parent if str(path.parent) else Path(".")
+    try:
+        directory.mkdir(parents=True, exist_ok=True)
+        fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=suffix, dir=directory)
+    except (FileExistsError, NotADirectoryError):
+        raise OptionError(f"{path}: a parent of this path is a file, not a folder") from None
+    except OSError as err:
+        raise OutputError(path, err.strerror or str(err)) from None
+    os.close(fd)
+    # mkstemp makes the file private (0600); outputs follow the umask like open() would.
+    umask = os.umask(0)
+    os.umask(umask)
+    os.chmod(tmp, 0o666 & ~umask)
+    return tmp
+
+
+def commit_output(tmp: str | os.PathLike, path: str | os.PathLike) -> None:
+    """Rename ``tmp`` to ``path`` now, or when the active :func:`output_set` commits.
+
+    Parameters
+    ----------
+    tmp : path-like
+        A finished temporary file (from :func:`temporary_output`).
+    path : path-like
+        Its final path.
+    """
+    active = _ACTIVE.get()
+    if active is not None and active.defer:
+        active.stage(tmp, path)
+        return
+    try:
+        os.replace(tmp, path)
+    except OSError as err:
+        with contextlib.suppress(OSError):
+            os.unlink(tmp)
+        raise OutputError(path, err.strerror or str(err)) from None
 
 
 @contextlib.contextmanager
@@ -59,7 +246,8 @@ def atomic_output(
     """Open ``path`` for writing through a temporary file renamed into place on success.
 
     If the block raises, the temporary file is removed and ``path`` is untouched, so an
-    error never leaves a half-written output.
+    error never leaves a half-written output. Inside :func:`output_set` the rename waits
+    for the whole set. Errors name ``path``, never the temporary file.
 
     Parameters
     ----------
@@ -68,7 +256,7 @@ def atomic_output(
     mode : {"w", "wb"}
         Text or binary.
     force : bool
-        Overwrite an existing file.
+        Overwrite an existing file (never an input of the command).
     **open_kwargs
         Passed to :func:`open` (e.g. ``encoding``, ``newline``).
 
@@ -77,27 +265,27 @@ def atomic_output(
     file object
         The open temporary file.
     """
-    path = Path(path)
-    if not force and path.exists():
-        raise OutputExistsError(path)
-    directory = path.parent if str(path.parent) else Path(".")
-    directory.mkdir(parents=True, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=directory)
-    os.close(fd)
-    # mkstemp makes the file private (0600); outputs follow the umask like open() would.
-    umask = os.umask(0)
-    os.umask(umask)
-    os.chmod(tmp, 0o666 & ~umask)
+    check_output_path(path, force)
+    tmp = temporary_output(path)
     if "b" not in mode:
         open_kwargs.setdefault("encoding", "utf-8")
     try:
-        with open(tmp, mode, **open_kwargs) as fh:
-            yield fh
-        os.replace(tmp, path)
+        try:
+            fh = open(tmp, mode, **open_kwargs)
+        except OSError as err:
+            raise OutputError(path, err.strerror or str(err)) from None
+        with fh:
+            try:
+                yield fh
+            except OSError as err:
+                if err.filename not in (None, tmp):
+                    raise
+                raise OutputError(path, err.strerror or str(err)) from None
     except BaseException:
         with contextlib.suppress(FileNotFoundError):
             os.unlink(tmp)
         raise
+    commit_output(tmp, path)
 
 
 def sha256sum(path: str | os.PathLike, chunk: int = 1 << 20) -> str:

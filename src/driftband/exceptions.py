@@ -16,6 +16,7 @@ __all__ = [
     "DriftbandWarning",
     "InputError",
     "OptionError",
+    "OutputError",
     "OutputExistsError",
     "VcfFormatError",
 ]
@@ -65,6 +66,14 @@ class OutputExistsError(DriftbandError):
     def __init__(self, path: str | os.PathLike) -> None:
         self.path = os.fspath(path)
         super().__init__(f"{self.path}: output exists; use --force to overwrite it")
+
+
+class OutputError(DriftbandError):
+    """An output file cannot be written (named by the user's path, not a temporary file)."""
+
+    def __init__(self, path: str | os.PathLike, reason: str) -> None:
+        self.path = os.fspath(path)
+        super().__init__(f"{self.path}: cannot write this output: {reason}")
 
 
 class DriftbandWarning(UserWarning):

@@ -16,6 +16,7 @@ import sys
 import warnings
 from collections.abc import Sequence
 
+from .._io import output_set
 from .._parallel import single_blas_thread
 from .._version import __version__
 from ..exceptions import DriftbandError, DriftbandWarning
@@ -96,6 +97,25 @@ def _setup_logging(verbosity: int) -> None:
     wlog.propagate = False
 
 
+#: Argument names that name outputs (every other argument naming an existing file is an
+#: input, which no output may replace). A subcommand adds its own with
+#: ``set_defaults(output_dests=...)``.
+OUTPUT_DESTS = frozenset({"output", "tsv", "summary", "bands_tsv", "out_dir"})
+
+
+def _input_files(args: argparse.Namespace) -> list[str]:
+    """The existing files named by the arguments that are not outputs."""
+    outs = OUTPUT_DESTS | frozenset(getattr(args, "output_dests", ()))
+    found: list[str] = []
+    for dest, value in vars(args).items():
+        if dest in outs:
+            continue
+        for v in value if isinstance(value, list | tuple) else [value]:
+            if isinstance(v, str | os.PathLike) and os.fspath(v) != "-" and os.path.isfile(v):
+                found.append(os.fspath(v))
+    return found
+
+
 def main(argv: Sequence[str] | None = None) -> int:
     """Entry point of the ``driftband`` command.
 
@@ -116,15 +136,18 @@ def main(argv: Sequence[str] | None = None) -> int:
         return 2
     _setup_logging(getattr(args, "verbose", 0) - getattr(args, "quiet", 0))
     prog = f"driftband {getattr(args, 'subcommand', '')}".strip()
+    # Every output of the command is committed together at the end (all or nothing),
+    # except for commands that commit their own steps (run: one stage at a time).
+    defer = getattr(args, "commit_at_end", True)
     try:
-        with single_blas_thread():
+        with single_blas_thread(), output_set(_input_files(args), defer=defer):
             return int(args.runner(args) or 0)
     except DriftbandError as err:
         print(f"{prog}: error: {err}", file=sys.stderr)
         return 2
-    except (FileNotFoundError, IsADirectoryError, PermissionError) as err:
-        name = err.filename if err.filename is not None else ""
-        print(f"{prog}: error: {name}: {err.strerror}", file=sys.stderr)
+    except OSError as err:
+        name = f"{err.filename}: " if err.filename is not None else ""
+        print(f"{prog}: error: {name}{err.strerror or err}", file=sys.stderr)
         return 2
     except KeyboardInterrupt:
         print(f"{prog}: interrupted", file=sys.stderr)

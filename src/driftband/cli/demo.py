@@ -52,7 +52,7 @@ def add_parser(subparsers: Subparsers) -> argparse.ArgumentParser:
         "--workers", type=int, default=2, metavar="N", help="worker processes (default 2)"
     )
     add_common_arguments(p)
-    p.set_defaults(runner=run)
+    p.set_defaults(runner=run, commit_at_end=False)
     return p
 
 

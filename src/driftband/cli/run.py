@@ -101,7 +101,7 @@ def add_parser(subparsers: Subparsers) -> argparse.ArgumentParser:
         "--workers", type=int, metavar="N", help="worker processes (default: the cores available)"
     )
     add_common_arguments(p)
-    p.set_defaults(runner=run)
+    p.set_defaults(runner=run, commit_at_end=False)
     return p
 
 

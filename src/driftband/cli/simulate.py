@@ -209,7 +209,7 @@ def add_parser(subparsers: Subparsers) -> None:
         help="mean read depth of the VCF genotypes (default: 20)",
     )
     add_common_arguments(p)
-    p.set_defaults(runner=run)
+    p.set_defaults(runner=run, output_dests=("vcf",))
 
 
 def _parse_outgroup(text: str | None) -> tuple[str, int] | None:

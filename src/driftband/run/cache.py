@@ -21,7 +21,7 @@ from collections.abc import Callable, Iterator
 from pathlib import Path
 from typing import Any
 
-from .._io import atomic_output, sha256sum
+from .._io import atomic_output, output_set, sha256sum
 from .._version import __version__
 from ..exceptions import DriftbandError, InputError
 
@@ -218,13 +218,14 @@ class StageRunner:
         log.info("stage %s: running", sid)
         t0 = time.monotonic()
         try:
-            fn()
+            with output_set():  # the outputs of a stage are committed together
+                fn()
         except StageError:
             raise
         except DriftbandError as err:
             self.col.note(logging.ERROR, f"stage {sid}: {err}")
             raise StageError(sid, err) from None
-        except (FileNotFoundError, IsADirectoryError, PermissionError) as err:
+        except OSError as err:
             msg = f"{err.filename}: {err.strerror}" if err.filename else str(err)
             self.col.note(logging.ERROR, f"stage {sid}: {msg}")
             raise StageError(sid, InputError(msg)) from None

@@ -25,14 +25,13 @@ from __future__ import annotations
 import contextlib
 import logging
 import os
-import tempfile
 from collections.abc import Iterator, Sequence
 from pathlib import Path
 from typing import Any
 
 import numpy as np
 
-from .._io import atomic_output, check_outputs
+from .._io import atomic_output, check_output_path, check_outputs, commit_output, temporary_output
 from .._version import __version__
 from ..exceptions import OptionError
 from ..sites.bed import write_bed4
@@ -284,23 +283,20 @@ def _atomic_with_index(
     success both get the umask's permissions and replace ``path`` and ``index_path``; if
     the block raises, both temporary files are removed and the outputs are untouched.
     """
-    directory = Path(path).parent
-    directory.mkdir(parents=True, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(prefix=f".{Path(path).name}.", suffix=suffix, dir=directory)
-    os.close(fd)
+    check_output_path(path, force=True)
+    check_output_path(index_path, force=True)
+    tmp = temporary_output(path, suffix=suffix)
     tmp_index = tmp + Path(index_path).name[len(Path(path).name) :]
     try:
         yield tmp, tmp_index
-        mode = 0o666 & ~_umask()
-        os.chmod(tmp, mode)
-        os.chmod(tmp_index, mode)
-        os.replace(tmp, path)
-        os.replace(tmp_index, index_path)
+        os.chmod(tmp_index, 0o666 & ~_umask())
     except BaseException:
         for f in (tmp, tmp_index):
             with contextlib.suppress(FileNotFoundError):
                 os.unlink(f)
         raise
+    commit_output(tmp, path)
+    commit_output(tmp_index, index_path)
 
 
 def _umask() -> int:
