@@ -28,6 +28,7 @@ __all__ = [
     "RecordParseError",
     "VariantBatch",
     "bcf_batches",
+    "gt_index_problem",
     "pysam_parse",
     "records_genotypes",
 ]
@@ -138,6 +139,48 @@ def _gt_tuple_to_row(gt: tuple[int | None, ...], width: int, out: np.ndarray) ->
         out[k] = -1 if a is None else a
 
 
+def gt_index_problem(line: str, cols: Sequence[int]) -> str | None:
+    r"""What is wrong with the GT allele indices of a VCF record line, or None.
+
+    htslib reads an allele index beyond the ALT count as missing; the specification makes
+    it an error, so driftband checks the text itself.
+
+    Parameters
+    ----------
+    line : str
+        The record line (tab-separated, GT the first FORMAT key).
+    cols : sequence of int
+        The sample columns used (0-based, after FORMAT).
+
+    Returns
+    -------
+    str or None
+        A message naming the GT and the ALT count, or None when every index is in range.
+
+    Examples
+    --------
+    >>> gt_index_problem("c\t5\t.\tA\tC\t.\t.\t.\tGT\t0/12\t1/1", [0, 1])
+    "GT '0/12' of sample #1 has allele index 12 but the record has 1 ALT allele(s)"
+    >>> gt_index_problem("c\t5\t.\tA\tC,G\t.\t.\t.\tGT\t0/2\t./.", [0, 1]) is None
+    True
+    """
+    f = line.rstrip("\r\n").split("\t")
+    if len(f) < 10:
+        return None
+    n_alts = 0 if f[4] == "." else len(f[4].split(","))
+    for c in cols:
+        if 9 + c >= len(f):
+            continue
+        gt = f[9 + c].split(":", 1)[0]
+        for tok in gt.replace("|", "/").split("/"):
+            if tok != "." and tok.isdigit() and int(tok) > n_alts:
+                return (
+                    f"GT {gt!r} of sample #{c + 1} has allele index {tok} but the record "
+                    f"has {n_alts} ALT allele(s)"
+                )
+    return None
+
+
 def records_genotypes(
     records: Sequence[Any], cols: np.ndarray, fields: Sequence[str], names: Sequence[str]
 ) -> tuple[np.ndarray, dict[str, np.ndarray]]:
@@ -164,6 +207,7 @@ def records_genotypes(
             )
         smp = rec.samples
         row = []
+        missing = False
         for j, c in enumerate(cols.tolist()):
             call = smp[c]
             gt = call["GT"]
@@ -173,6 +217,7 @@ def records_genotypes(
                     "FORMAT key (VCF specification)",
                     names[0],
                 )
+            missing |= None in gt
             row.append(gt)
             ploidy = max(ploidy, len(gt))
             for f in fields:
@@ -182,6 +227,8 @@ def records_genotypes(
                         v = v[0] if v else None
                     if v is not None:
                         vals[f][i, j] = int(v)
+        if missing and (why := gt_index_problem(str(rec), cols.tolist())):
+            raise VcfFormatError(f"record {rec.chrom}:{rec.pos}: {why}", names[0])
         gts.append(row)
     alleles = np.full((r, s, ploidy), -2, np.int8)
     for i, row in enumerate(gts):

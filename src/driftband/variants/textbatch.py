@@ -17,7 +17,14 @@ from typing import Any
 import numpy as np
 
 from ..exceptions import VcfFormatError
-from .batches import GenotypeData, RecordParseError, VariantBatch, pysam_parse, records_genotypes
+from .batches import (
+    GenotypeData,
+    RecordParseError,
+    VariantBatch,
+    gt_index_problem,
+    pysam_parse,
+    records_genotypes,
+)
 from .decode import (
     count_gt_alleles,
     decode_gt,
@@ -334,6 +341,10 @@ class TextBatch(VariantBatch):
     ) -> tuple[np.ndarray, dict[str, np.ndarray]]:
         """Decode records with pysam (through a small temporary VCF)."""
         lines = [self.line(i) for i in rows.tolist()]
+        for i, ln_text in zip(rows.tolist(), lines):
+            if why := gt_index_problem(ln_text.decode("utf-8", "replace"), cols.tolist()):
+                name, ln = self.where(int(i))
+                raise VcfFormatError(f"{name}: {why}", self.path, ln)
         try:
             records = pysam_parse(self._header.text, lines)
         except RecordParseError as err:
