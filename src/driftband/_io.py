@@ -7,8 +7,10 @@ import contextvars
 import datetime as _dt
 import gzip
 import hashlib
+import json
 import os
 import platform
+import re
 import sys
 import tempfile
 from collections.abc import Iterable, Iterator
@@ -17,7 +19,7 @@ from typing import IO, Any, overload
 
 import numpy as np
 
-from .exceptions import OptionError, OutputError, OutputExistsError
+from .exceptions import InputError, OptionError, OutputError, OutputExistsError
 
 __all__ = [
     "OutputSet",
@@ -27,6 +29,7 @@ __all__ = [
     "commit_output",
     "file_record",
     "json_ready",
+    "load_json",
     "open_text",
     "output_set",
     "provenance",
@@ -344,6 +347,63 @@ def provenance(
             "scipy": scipy.__version__,
         },
     }
+
+
+_JSON_CONSTANT = re.compile(r"[:\[,]\s*(-?Infinity|NaN)\b")
+
+
+def load_json(path: str | os.PathLike, what: str) -> Any:
+    """Read a JSON file strictly: UTF-8 and no ``NaN`` or ``Infinity`` (not JSON).
+
+    Parameters
+    ----------
+    path : path-like
+        The file.
+    what : str
+        What the file should be, for messages (e.g. ``"spectra JSON file"``).
+
+    Returns
+    -------
+    object
+        The parsed document.
+
+    Raises
+    ------
+    InputError
+        Missing or unreadable file, not UTF-8, not JSON, or a NaN/Infinity value (with
+        its line).
+    """
+
+    def reject(token: str) -> Any:
+        raise ValueError(token)
+
+    try:
+        with open(path, "rb") as fh:
+            raw = fh.read()
+    except FileNotFoundError:
+        raise InputError("file not found", path) from None
+    except IsADirectoryError:
+        raise InputError(f"is a folder, not a {what}", path) from None
+    try:
+        text = raw.decode("utf-8-sig")
+    except UnicodeDecodeError as err:
+        raise InputError(f"not a {what} (not UTF-8 text: {err.reason})", path) from None
+    try:
+        return json.loads(text, parse_constant=reject)
+    except json.JSONDecodeError as err:
+        raise InputError(
+            f"not a {what} ({err.msg}, column {err.colno})", path, err.lineno
+        ) from None
+    except ValueError as err:
+        m = _JSON_CONSTANT.search(text)
+        line = text.count("\n", 0, m.start(1)) + 1 if m else None
+        raise InputError(
+            f"{err} is not a number in JSON; a value must be finite (null where unknown)",
+            path,
+            line,
+        ) from None
+    except RecursionError:
+        raise InputError(f"not a {what} (nested too deeply)", path) from None
 
 
 def json_ready(x: Any) -> Any:

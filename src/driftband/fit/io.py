@@ -30,7 +30,7 @@ from typing import Any
 
 import numpy as np
 
-from .._io import atomic_output, json_ready, tsv_cell
+from .._io import atomic_output, json_ready, load_json, tsv_cell
 from ..exceptions import InputError
 from .options import FitOptions
 from .results import PopulationFit
@@ -42,7 +42,9 @@ __all__ = [
     "band_label",
     "band_rows",
     "check_fit_schema",
+    "check_fit_values",
     "fit_document",
+    "fits_from_doc",
     "read_fit_files",
     "read_fit_json",
     "read_fits",
@@ -120,13 +122,7 @@ def read_fit_json(path: str | os.PathLike) -> dict[str, Any]:
     InputError
         Not a fit file or an unsupported version.
     """
-    try:
-        with open(path, encoding="utf-8") as fh:
-            doc = json.load(fh)
-    except FileNotFoundError:
-        raise InputError("file not found", path) from None
-    except (json.JSONDecodeError, UnicodeDecodeError) as err:
-        raise InputError(f"not a fit JSON file ({err})", path) from None
+    doc = load_json(path, "fit JSON file")
     check_fit_schema(doc, path)
     return doc
 
@@ -169,6 +165,43 @@ class FitFile:
     provenance: dict[str, Any] = field(default_factory=dict)
 
 
+def fits_from_doc(
+    doc: dict[str, Any], path: str | os.PathLike
+) -> tuple[FitOptions, list[PopulationFit]]:
+    """The fit options and typed population fits of a parsed fit file, values checked.
+
+    Parameters
+    ----------
+    doc : dict
+        From :func:`read_fit_json`.
+    path : path-like
+        The file, named in messages.
+
+    Returns
+    -------
+    options : FitOptions
+    populations : list of PopulationFit
+        In the order of the file.
+
+    Raises
+    ------
+    InputError
+        An entry that cannot be read back, or an impossible value (see
+        :func:`check_fit_values`).
+    """
+    try:
+        options = FitOptions.from_dict(doc.get("options") or {})
+        pops = [PopulationFit.from_dict(name, p) for name, p in doc["populations"].items()]
+    except (KeyError, TypeError, ValueError, AttributeError, OverflowError) as err:
+        what = f"missing entry {err}" if isinstance(err, KeyError) else str(err)
+        raise InputError(
+            f"the fit file cannot be read back ({what}); remake it with 'driftband fit'", path
+        ) from None
+    for pf in pops:
+        check_fit_values(pf, path)
+    return options, pops
+
+
 def read_fits(path: str | os.PathLike) -> FitFile:
     """Read a fit file into typed population fits (the one reader of population fits).
 
@@ -178,14 +211,7 @@ def read_fits(path: str | os.PathLike) -> FitFile:
         Not a fit file, or an entry that cannot be read back (named).
     """
     doc = read_fit_json(path)
-    try:
-        options = FitOptions.from_dict(doc.get("options") or {})
-        pops = [PopulationFit.from_dict(name, p) for name, p in doc["populations"].items()]
-    except (KeyError, TypeError, ValueError, AttributeError) as err:
-        what = f"missing entry {err}" if isinstance(err, KeyError) else str(err)
-        raise InputError(
-            f"the fit file cannot be read back ({what}); remake it with 'driftband fit'", path
-        ) from None
+    options, pops = fits_from_doc(doc, path)
     return FitFile(
         os.fspath(path),
         options,
@@ -193,6 +219,77 @@ def read_fits(path: str | os.PathLike) -> FitFile:
         dict(doc.get("options") or {}),
         dict(doc.get("provenance") or {}),
     )
+
+
+def _share_problem(v: np.ndarray) -> str | None:
+    """Why an array of band shares is impossible (NaN allowed: not estimated), or None."""
+    v = np.asarray(v, dtype=float)
+    bad = np.isfinite(v) & ((v < -1e-9) | (v > 1 + 1e-9))
+    if np.any(bad) or np.any(np.isinf(v)):
+        x = v[bad | np.isinf(v)][0]
+        return f"a share of {x:g} (a share lies in [0, 1])"
+    return None
+
+
+def check_fit_values(pf: PopulationFit, path: str | os.PathLike) -> None:
+    """Refuse impossible values in a population fit read back from a file.
+
+    A converged model needs a finite log-likelihood and AIC; every band share (of the
+    models, the bootstrap replicates and their intervals) lies in [0, 1]; ε in [0, 1];
+    the spectra are finite and non-negative.
+
+    Parameters
+    ----------
+    pf : PopulationFit
+        As read by :meth:`PopulationFit.from_dict`.
+    path : path-like
+        The fit file, named in the message.
+
+    Raises
+    ------
+    InputError
+        Naming the population, the model and the value.
+    """
+    where = f"population {pf.population!r}"
+    d = pf.data
+    for key, arr in (("neutral", d.neutral), ("selected", d.selected)):
+        a = np.asarray(arr, dtype=float)
+        if not np.all(np.isfinite(a)) or np.any(a < 0):
+            raise InputError(f'{where} "data" "{key}": counts must be finite and >= 0', path)
+    for key in ("sites_neutral", "sites_selected"):
+        total = float(getattr(d, key))
+        if not np.isfinite(total) or total <= 0:
+            raise InputError(
+                f'{where} "data" "{key}": {total:g} is not a number of sites > 0', path
+            )
+    for name, fr in pf.fits.items():
+        wm = f"{where} model {name!r}"
+        if fr.success and not (np.isfinite(fr.loglik) and np.isfinite(fr.aic)):
+            raise InputError(
+                f'{wm}: a converged fit needs a finite "loglik" and "aic" (got '
+                f"{fr.loglik:g}, {fr.aic:g}); remake the file with 'driftband fit'",
+                path,
+            )
+        if np.isinf(fr.loglik) or np.isinf(fr.aic):
+            raise InputError(f'{wm}: "loglik" and "aic" must be finite or null', path)
+        if why := _share_problem(fr.shares):
+            raise InputError(f'{wm} "shares": {why}', path)
+        if np.isfinite(fr.eps) and not 0 <= fr.eps <= 1:
+            raise InputError(f'{wm} "eps": {fr.eps:g} is not in [0, 1]', path)
+    b = pf.bootstrap
+    if b is not None:
+        for name, mb in b.models.items():
+            vals = [np.asarray(mb.shares, float).ravel()]
+            vals += [np.array([ci.low, ci.high], float) for ci in mb.shares_ci]
+            for arr in vals:
+                if why := _share_problem(arr):
+                    raise InputError(f'{where} bootstrap of {name!r} "shares": {why}', path)
+        if b.averaged is not None:
+            vals = [np.asarray(b.averaged.shares, float).ravel()]
+            vals += [np.array([ci.low, ci.high], float) for ci in b.averaged.shares_ci]
+            for arr in vals:
+                if why := _share_problem(arr):
+                    raise InputError(f'{where} bootstrap (averaged) "shares": {why}', path)
 
 
 def read_fit_files(paths: list[str]) -> tuple[FitOptions, list[PopulationFit]]:

@@ -10,14 +10,14 @@ checked by those modules' own checks. Problems are raised as
 from __future__ import annotations
 
 import csv
-import json
 import math
 import os
 from typing import Any
 
+from .._io import load_json
 from ..compare.table import COLUMNS
 from ..exceptions import InputError
-from ..fit.io import check_fit_schema
+from ..fit.io import check_fit_schema, fits_from_doc, read_fit_json
 from ..spectra.io import check_spectra_schema
 
 __all__ = [
@@ -40,15 +40,7 @@ _REQUIRED_COMPARE = ("population_a", "population_b", "test", "model")
 
 
 def _load_json(path: str | os.PathLike, what: str) -> Any:
-    try:
-        with open(path, encoding="utf-8") as fh:
-            return json.load(fh)
-    except FileNotFoundError:
-        raise InputError("file not found", path) from None
-    except IsADirectoryError:
-        raise InputError(f"is a directory, not a {what} file", path) from None
-    except (json.JSONDecodeError, UnicodeDecodeError) as err:
-        raise InputError(f"not a {what} JSON file ({err})", path) from None
+    return load_json(path, f"{what} JSON file")
 
 
 def _is_num(v: Any) -> bool:
@@ -130,8 +122,9 @@ def read_fit_doc(path: str | os.PathLike) -> dict[str, Any]:
     InputError
         Missing file, not JSON, not a fit file, or a damaged record.
     """
-    doc = _load_json(path, "fit")
+    doc = read_fit_json(path)
     check_fit_doc(doc, path)
+    fits_from_doc(doc, path)  # every value in range (e.g. shares in [0, 1])
     return doc
 
 

@@ -37,7 +37,7 @@ from typing import Any
 
 import numpy as np
 
-from .._io import atomic_output, json_ready
+from .._io import atomic_output, json_ready, load_json
 from ..exceptions import InputError
 from ._types import (
     Block,
@@ -135,69 +135,130 @@ def _fail(path: str | os.PathLike | None, msg: str) -> InputError:
     return InputError(msg, path)
 
 
+def _numbers(v: Any, key: str, path: str | os.PathLike, depth: int) -> np.ndarray:
+    """A list (``depth`` 1) or list of equal-length lists (2) of finite numbers >= 0."""
+    rows = v if depth == 2 else [v]
+    if not isinstance(rows, list) or not rows and depth == 2:
+        raise _fail(path, f"{key} must be a non-empty list of lists of counts")
+    for r in rows:
+        if not isinstance(r, list) or not r:
+            raise _fail(path, f"{key} must be a non-empty list of counts")
+        for x in r:
+            if isinstance(x, bool) or not isinstance(x, int | float):
+                raise _fail(path, f"{key}: {json.dumps(x)} is not a number")
+            if not np.isfinite(x) or x < 0:
+                raise _fail(path, f"{key}: {x!r} is not a finite count >= 0")
+    if len({len(r) for r in rows}) != 1:
+        raise _fail(path, f"{key}: the block rows differ in length")
+    out = np.asarray(rows, dtype=np.float64)
+    return out if depth == 2 else out[0]
+
+
+def _whole(v: Any, key: str, path: str | os.PathLike, minimum: int = 0) -> int:
+    """A whole number >= ``minimum`` (JSON integer, or a float with no fraction)."""
+    ok = not isinstance(v, bool) and isinstance(v, int | float) and np.isfinite(v)
+    if not ok or v != int(v) or v < minimum:
+        raise _fail(path, f"{key}: {json.dumps(v)} is not a whole number >= {minimum}")
+    return int(v)
+
+
 def read_spectra_json(path: str | os.PathLike) -> SpectraSet:
     """Read and validate a spectra file.
+
+    Every value is checked: counts finite and non-negative, ``n`` a whole number, ``folded``
+    true or false, site totals whole numbers equal to the sums of the spectra.
 
     Raises
     ------
     InputError
-        Not JSON, another schema or version, or inconsistent arrays (named).
+        Not JSON, another schema or version, or an impossible or inconsistent value (the
+        population, class and key are named).
     """
-    try:
-        with open(path, encoding="utf-8") as fh:
-            doc = json.load(fh)
-    except FileNotFoundError:
-        raise _fail(path, "file not found") from None
-    except (json.JSONDecodeError, UnicodeDecodeError) as err:
-        raise _fail(path, f"not a spectra JSON file ({err})") from None
+    doc = load_json(path, "spectra JSON file")
     check_spectra_schema(doc, path)
+    popsd = doc.get("populations")
+    if not isinstance(popsd, dict) or not popsd:
+        raise _fail(path, '"populations" must be a non-empty object')
     try:
         blocks = [
             Block(str(b["chrom"]), int(b["start"]), int(b["end"]), str(b.get("name", "")))
             for b in doc.get("blocks", [])
         ]
-        pops: dict[str, PopulationSpectra] = {}
-        for name, p in doc["populations"].items():
-            n, folded = int(p["n"]), bool(p["folded"])
-            m = spectrum_length(n, folded)
-            classes = {}
-            for c, cd in p["classes"].items():
-                bs = _counts_array(np.asarray(cd.get("block_sfs", [cd["sfs"]]), dtype=np.float64))
-                bsites = np.asarray(cd.get("block_sites", [cd["sites"]]), dtype=np.int64)
-                if bs.ndim != 2 or bs.shape[1] != m:
-                    raise _fail(
-                        path,
-                        f"population {name!r} class {c!r}: spectra must have "
-                        f"{m} entries for n={n}{' folded' if folded else ''}",
-                    )
-                if np.any(bs < 0):
-                    raise _fail(path, f"population {name!r} class {c!r}: negative counts")
-                cs = ClassSpectrum(bs, bsites)
-                if "sfs" in cd and not np.allclose(
-                    cs.sfs, np.asarray(cd["sfs"], float), rtol=1e-9, atol=1e-6
-                ):
-                    raise _fail(
-                        path,
-                        f'population {name!r} class {c!r}: "sfs" is not the sum of "block_sfs"',
-                    )
-                if not np.allclose(bs.sum(axis=1), bsites, rtol=1e-9, atol=1e-6):
-                    raise _fail(
-                        path,
-                        f"population {name!r} class {c!r}: block spectra do not "
-                        "add up to block_sites",
-                    )
-                classes[c] = cs
-            pops[name] = PopulationSpectra(
-                name,
-                n,
-                folded,
-                classes,
-                str(p.get("polarisation", "given")),
-                dict(p.get("stats") or {}),
-            )
-    except (KeyError, TypeError, ValueError) as err:
-        raise _fail(path, f"malformed spectra file ({type(err).__name__}: {err})") from None
-    return SpectraSet(pops, blocks, dict(doc.get("skipped", {})), dict(doc.get("provenance", {})))
+    except (KeyError, TypeError, ValueError, OverflowError) as err:
+        raise _fail(path, f'"blocks": malformed entry ({type(err).__name__}: {err})') from None
+    pops: dict[str, PopulationSpectra] = {}
+    for name, p in popsd.items():
+        where = f"population {name!r}"
+        if not isinstance(p, dict):
+            raise _fail(path, f"{where}: must be an object")
+        n = _whole(p.get("n"), f'{where} "n"', path, minimum=1)
+        folded = p.get("folded")
+        if not isinstance(folded, bool):
+            raise _fail(path, f'{where} "folded": {json.dumps(folded)} is not true or false')
+        m = spectrum_length(n, folded)
+        cls = p.get("classes")
+        if not isinstance(cls, dict) or not cls:
+            raise _fail(path, f'{where} "classes" must be a non-empty object')
+        classes = {}
+        for c, cd in cls.items():
+            wc = f"{where} class {c!r}"
+            if not isinstance(cd, dict):
+                raise _fail(path, f"{wc}: must be an object")
+            if "block_sfs" not in cd and "sfs" not in cd:
+                raise _fail(path, f'{wc}: no "sfs"')
+            if "block_sites" not in cd and "sites" not in cd:
+                raise _fail(path, f'{wc}: no "sites"')
+            if "block_sfs" in cd:
+                bsf = _numbers(cd["block_sfs"], f'{wc} "block_sfs"', path, 2)
+            else:
+                bsf = _numbers(cd["sfs"], f'{wc} "sfs"', path, 1)[None, :]
+            if "block_sites" in cd:
+                bsv = cd["block_sites"]
+                if not isinstance(bsv, list) or not bsv:
+                    raise _fail(path, f'{wc} "block_sites" must be a non-empty list')
+                bsites = np.array(
+                    [_whole(v, f'{wc} "block_sites"', path) for v in bsv], dtype=np.int64
+                )
+            else:
+                bsites = np.array([_whole(cd["sites"], f'{wc} "sites"', path)], np.int64)
+            if "sites" in cd and _whole(cd["sites"], f'{wc} "sites"', path) != bsites.sum():
+                raise _fail(
+                    path,
+                    f'{wc}: "sites" is {cd["sites"]} but "block_sites" add up to {bsites.sum()}',
+                )
+            if bsf.shape[1] != m:
+                raise _fail(
+                    path,
+                    f"{wc}: spectra must have {m} entries for n={n}{' folded' if folded else ''}",
+                )
+            if bsf.shape[0] != bsites.shape[0]:
+                raise _fail(
+                    path,
+                    f'{wc}: "block_sfs" has {bsf.shape[0]} blocks, "block_sites" {bsites.shape[0]}',
+                )
+            cs = ClassSpectrum(_counts_array(bsf), bsites)
+            if "sfs" in cd:
+                sfs = _numbers(cd["sfs"], f'{wc} "sfs"', path, 1)
+                if sfs.shape != cs.sfs.shape or not np.allclose(cs.sfs, sfs, rtol=1e-9, atol=1e-6):
+                    raise _fail(path, f'{wc}: "sfs" is not the sum of "block_sfs"')
+            if not np.allclose(bsf.sum(axis=1), bsites, rtol=1e-9, atol=1e-6):
+                raise _fail(
+                    path,
+                    f"{wc}: the spectrum entries add up to {bsf.sum():g}, not to the "
+                    f"{bsites.sum()} sites (block by block)",
+                )
+            classes[str(c)] = cs
+        stats = p.get("stats") or {}
+        if not isinstance(stats, dict):
+            raise _fail(path, f'{where} "stats" must be an object')
+        pops[str(name)] = PopulationSpectra(
+            str(name), n, folded, classes, str(p.get("polarisation", "given")), dict(stats)
+        )
+    skipped = doc.get("skipped", {})
+    prov = doc.get("provenance", {})
+    if not isinstance(skipped, dict) or not isinstance(prov, dict):
+        raise _fail(path, '"skipped" and "provenance" must be objects')
+    return SpectraSet(pops, blocks, dict(skipped), dict(prov))
 
 
 def check_spectra_schema(doc: Any, path: str | os.PathLike | None = None) -> None:
@@ -347,7 +408,7 @@ def read_spectra(path: str | os.PathLike) -> SpectraSet:
     """Read a spectra file: JSON (``.json``) or a plain TSV table (anything else)."""
     p = os.fspath(path)
     with open(p, "rb") as fh:
-        head = fh.read(64).lstrip()
-    if head.startswith(b"{"):
+        head = fh.read(64).lstrip(b"\xef\xbb\xbf \t\r\n")
+    if head.startswith((b"{", b"[")):
         return read_spectra_json(p)
     return read_spectra_tsv(p)
