@@ -9,6 +9,7 @@ naming the file and the fix.
 from __future__ import annotations
 
 import os
+from collections.abc import Iterator
 from typing import TYPE_CHECKING
 
 from ..exceptions import InputError
@@ -83,4 +84,42 @@ def open_fasta(path: str | os.PathLike) -> pysam.FastaFile:
     if fa.nreferences == 0:
         fa.close()
         raise InputError("FASTA holds no sequences", p)
+    if _count_records(p, head[:2] == b"\x1f\x8b") != fa.nreferences:
+        fa.close()
+        name, line = _first_duplicate(p, head[:2] == b"\x1f\x8b")
+        raise InputError(
+            f"sequence {name!r} appears twice (its name is also on an earlier line); "
+            "every sequence name must be unique",
+            p,
+            line,
+        )
     return fa
+
+
+def _chunks(path: str, gz: bool) -> Iterator[bytes]:
+    import gzip
+
+    with gzip.open(path, "rb") if gz else open(path, "rb") as fh:
+        while block := fh.read(1 << 24):
+            yield block
+
+
+def _count_records(path: str, gz: bool) -> int:
+    """The number of ``>`` header lines (one fast pass; htslib ignores repeated names)."""
+    n, prev = 0, b"\n"
+    for block in _chunks(path, gz):
+        n += block.count(b"\n>") + (prev == b"\n" and block[:1] == b">")
+        prev = block[-1:]
+    return n
+
+
+def _first_duplicate(path: str, gz: bool) -> tuple[str, int | None]:
+    """The first sequence name seen twice and the line of its second header."""
+    seen: set[str] = set()
+    for ln, line in enumerate(b"".join(_chunks(path, gz)).split(b"\n"), start=1):
+        if line.startswith(b">"):
+            name = line[1:].split(None, 1)[0].decode("utf-8", "replace") if line[1:] else ""
+            if name in seen:
+                return name, ln
+            seen.add(name)
+    return "?", None

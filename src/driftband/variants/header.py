@@ -44,6 +44,10 @@ class VcfHeader:
 
 
 _ID = re.compile(r"<ID=([^,>]+)")
+_BOM = (
+    "the file starts with a byte-order mark (BOM, bytes EF BB BF) before ##fileformat; "
+    "VCF allows none: save it without one (e.g. sed -i '1s/^\\xEF\\xBB\\xBF//' FILE)"
+)
 _LEN = re.compile(r"[<,]length=(\d+)")
 
 
@@ -55,6 +59,8 @@ def parse_header(text: str, path: str) -> VcfHeader:
     VcfFormatError
         No ``##fileformat=VCF`` line, no ``#CHROM`` line, or no sample columns.
     """
+    if text.startswith("\ufeff"):
+        raise VcfFormatError(_BOM, path, 1)
     lines = text.splitlines()
     if not lines or not lines[0].startswith("##fileformat=VCF"):
         raise VcfFormatError(
@@ -140,6 +146,8 @@ def read_header(fh: ByteReader, path: str, chunk: int) -> tuple[VcfHeader, bytes
                 )
             raise VcfFormatError("no #CHROM header line (truncated file, or not a VCF)", path)
         buf += more
+        if buf.startswith(b"\xef\xbb\xbf"):
+            raise VcfFormatError(_BOM, path, 1)
         if len(buf) >= 16 and not buf.startswith(b"##"):
             raise VcfFormatError(
                 "not a VCF file (the first line must be ##fileformat=VCFv4.x)", path, 1

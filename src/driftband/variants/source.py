@@ -236,13 +236,15 @@ class VcfSource:
             return
         assert self._tabix is not None  # opened with the index
         with quiet_htslib():
-            it = self._tabix.fetch(chrom, start, end)
             try:
+                it = self._tabix.fetch(chrom, start, end)
                 first = next(it)
             except StopIteration:
                 return
-            except OSError as err:
-                raise VcfFormatError(f"cannot read records of {chrom} ({err})", self.path) from None
+            except (OSError, ValueError) as err:
+                raise self._index_mismatch(chrom, str(err)) from None
+            if first.split("\t", 1)[0] != chrom:
+                raise self._index_mismatch(chrom, "it points at a record of another chromosome")
             voff = self._tabix.tell()
         if self._bgzf is None:
             self._bgzf = open_bgzf(self.path)
@@ -276,14 +278,26 @@ class VcfSource:
     def _fetch_bcf(self, chrom: str, start: int, end: int) -> Iterator[VariantBatch]:
         if chrom not in self.index_chroms:
             return
-        with quiet_htslib():
-            it = self._vf.fetch(chrom, start, end)
-        for b in bcf_batches(it, self.path):
-            keep = np.flatnonzero(b.pos - 1 >= start)
-            if keep.size == len(b):
-                yield b
-            elif keep.size:
-                yield b.slice(int(keep[0]), len(b))
+        try:
+            with quiet_htslib():
+                it = self._vf.fetch(chrom, start, end)
+            for b in bcf_batches(it, self.path):
+                keep = np.flatnonzero(b.pos - 1 >= start)
+                if keep.size == len(b):
+                    yield b
+                elif keep.size:
+                    yield b.slice(int(keep[0]), len(b))
+        except (OSError, ValueError) as err:
+            raise self._index_mismatch(chrom, str(err)) from None
+
+    def _index_mismatch(self, chrom: str, why: str) -> VcfFormatError:
+        """The error for an index that cannot be used with this file."""
+        return VcfFormatError(
+            f"the index {self.index_path} does not fit this file (reading {chrom}: {why}); "
+            "it may belong to another file: rebuild it (tabix -f -p vcf FILE, or "
+            "bcftools index -f FILE)",
+            self.path,
+        )
 
     def stream(self, batch_bytes: int = BATCH_BYTES) -> Iterator[VariantBatch]:
         """All records in file order, in per-chromosome batches; checks the sort order.
