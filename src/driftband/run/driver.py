@@ -39,11 +39,11 @@ from __future__ import annotations
 import contextlib
 import dataclasses
 import datetime as _dt
-import functools
 import json
 import logging
 import os
 import time
+from collections.abc import Callable
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -62,7 +62,7 @@ from .stages import (
     stage_report,
     stage_spectra,
 )
-from .study import Study, check_files, read_study
+from .study import Study, check_files, read_study, restate_option_error
 
 __all__ = [
     "DEMO_STUDY",
@@ -309,15 +309,31 @@ def _preflight(study: Study) -> None:
     work: every problem of every dataset in one message."""
     from .preflight import check_study
 
+    index = {d.name: i for i, d in enumerate(study.datasets)}
     problems = [
         f"dataset {c.name!r}: {p}" if study.several else p
         for c in check_study(study, count=False)
-        for p in c.problems
+        for p in (
+            str(restate_option_error(study, index.get(c.name, 0), OptionError(q)))
+            for q in c.problems
+        )
     ]
     if len(problems) == 1:
         raise InputError(f"preflight: {problems[0]}")
     if problems:
         raise InputError(f"preflight, {len(problems)} problems: " + "; ".join(problems))
+
+
+def _keys_of(study: Study, index: int, fn: Callable[..., Any], *args: Any) -> Callable[[], Any]:
+    """``fn(*args)``, its errors naming the study file's keys rather than flags."""
+
+    def run() -> Any:
+        try:
+            return fn(*args)
+        except OptionError as err:
+            raise restate_option_error(study, index, err) from None
+
+    return run
 
 
 def _run_stages(
@@ -329,7 +345,7 @@ def _run_stages(
     workers: int | None,
 ) -> None:
     spectra = []
-    for d in study.datasets:
+    for i, d in enumerate(study.datasets):
         dp = paths["datasets"][d.name]
         if d.classify:
             runner.run(
@@ -337,7 +353,7 @@ def _run_stages(
                 {"fasta": d.fasta, "gff": d.gff},
                 d.classify_options(),
                 [dp["sites"], dp["classify_summary"]],
-                functools.partial(stage_classify, d, dp["sites"], dp["classify_summary"]),
+                _keys_of(study, i, stage_classify, d, dp["sites"], dp["classify_summary"]),
             )
         inputs = {
             "vcf": d.vcf,
@@ -355,7 +371,7 @@ def _run_stages(
             inputs,
             d.spectra_options(),
             [dp["spectra"]],
-            functools.partial(stage_spectra, d, dp["sites"], dp["spectra"]),
+            _keys_of(study, i, stage_spectra, d, dp["sites"], dp["spectra"]),
         )
         spectra.append((d.name, d.name if study.several else "", dp["spectra"]))
     nworkers = workers or study.bootstrap.workers or available_cores()

@@ -45,6 +45,7 @@ __all__ = [
     "Study",
     "check_files",
     "read_study",
+    "restate_option_error",
     "study_from_dict",
 ]
 
@@ -685,6 +686,36 @@ def read_study(path: str | os.PathLike) -> Study:
     p = Path(path)
     doc, text = _load_toml(p)
     return study_from_dict(doc, p, text=text)
+
+
+def restate_option_error(study: Study, index: int, err: DriftbandError) -> DriftbandError:
+    """A stage's error that names a command-line flag, restated for the study-file key.
+
+    The stages check their options once, in their API, and name flags (``--project``);
+    for a study file the message names ``[dataset] key 'project'``, the file and the line.
+
+    Parameters
+    ----------
+    study : Study
+    index : int
+        The dataset (0-based, in file order) the stage worked on.
+    err : DriftbandError
+        The stage's error.
+
+    Returns
+    -------
+    DriftbandError
+        ``err`` itself unless it is an :class:`OptionError` naming a flag and the study
+        came from a file.
+    """
+    m = re.search(r"--([a-z][a-z-]*)", str(err))
+    if study.source is None or not isinstance(err, OptionError) or m is None:
+        return err
+    key = m.group(1).replace("-", "_")
+    section = f"dataset[{index}]"
+    where = _Where(study.source, _key_lines(study.text) if study.text else None)
+    text = str(err).replace(m.group(0), where.name(section, key), 1)
+    return where.error(section, key, text)
 
 
 def check_files(study: Study) -> None:
