@@ -53,6 +53,8 @@ from threadpoolctl import threadpool_limits
 from .exceptions import DriftbandError, OptionError
 
 __all__ = [
+    "Interrupted",
+    "interruptible",
     "CONNECT_TIMEOUT",
     "DEFAULT_RETRIES",
     "WorkerLostError",
@@ -116,6 +118,38 @@ def _call(fn: Callable[[Any], Any], task: Any) -> tuple[bool, Any]:
         return False, err
 
 
+class Interrupted(KeyboardInterrupt):
+    """SIGINT, SIGTERM or SIGHUP reached the main process (``signum`` says which)."""
+
+    def __init__(self, signum: int) -> None:
+        super().__init__(signal.Signals(signum).name)
+        self.signum = signum
+
+
+def _raise_interrupted(signum: int, frame: Any) -> None:
+    raise Interrupted(signum)
+
+
+@contextlib.contextmanager
+def interruptible() -> Iterator[None]:
+    """Turn SIGTERM and SIGHUP into :class:`Interrupted` (a KeyboardInterrupt) in the block.
+
+    The usual cleanup then runs for every signal as for Ctrl-C: worker processes are
+    ended, temporary outputs removed. Outside the main thread this does nothing.
+    """
+    if threading.current_thread() is not threading.main_thread():
+        yield
+        return
+    saved = {}
+    for sig in (signal.SIGTERM, signal.SIGHUP):
+        saved[sig] = signal.signal(sig, _raise_interrupted)
+    try:
+        yield
+    finally:
+        for sig, old in saved.items():
+            signal.signal(sig, old)
+
+
 def single_blas_thread() -> Any:
     """A context in which BLAS and OpenMP libraries run one thread (threadpoolctl).
 
@@ -127,10 +161,26 @@ def single_blas_thread() -> Any:
     return threadpool_limits(limits=1)
 
 
+def _watch_parent(parent: int) -> None:
+    """End this worker process as soon as its parent is gone (whatever ended it)."""
+    while True:
+        time.sleep(0.5)
+        if os.getppid() != parent:
+            os._exit(1)
+
+
 def _init_local_worker() -> None:
     """Initializer of local worker processes."""
-    # Ctrl-C goes to the whole process group: the parent handles it and stops the workers.
+    # Ctrl-C and a hang-up go to the whole process group: the parent handles them and
+    # stops the workers (SIGTERM, which abort() sends, keeps its default: end at once).
     signal.signal(signal.SIGINT, signal.SIG_IGN)
+    signal.signal(signal.SIGHUP, signal.SIG_IGN)
+    signal.signal(signal.SIGTERM, signal.SIG_DFL)  # not the parent's handler (forked)
+    # A parent killed without cleaning up (SIGKILL, or a signal while the pool starts)
+    # must not leave its workers behind.
+    threading.Thread(
+        target=_watch_parent, args=(os.getppid(),), name="driftband-watch-parent", daemon=True
+    ).start()
     # One BLAS thread per worker process: the environment for libraries not yet loaded
     # (spawned workers), and threadpoolctl for those already loaded (forked workers
     # inherit the parent's BLAS).

@@ -17,7 +17,7 @@ import warnings
 from collections.abc import Sequence
 
 from .._io import output_set
-from .._parallel import single_blas_thread
+from .._parallel import interruptible, single_blas_thread
 from .._version import __version__
 from ..exceptions import DriftbandError, DriftbandWarning
 
@@ -140,7 +140,7 @@ def main(argv: Sequence[str] | None = None) -> int:
     # except for commands that commit their own steps (run: one stage at a time).
     defer = getattr(args, "commit_at_end", True)
     try:
-        with single_blas_thread(), output_set(_input_files(args), defer=defer):
+        with interruptible(), single_blas_thread(), output_set(_input_files(args), defer=defer):
             return int(args.runner(args) or 0)
     except DriftbandError as err:
         print(f"{prog}: error: {err}", file=sys.stderr)
@@ -149,8 +149,10 @@ def main(argv: Sequence[str] | None = None) -> int:
         name = f"{err.filename}: " if err.filename is not None else ""
         print(f"{prog}: error: {name}{err.strerror or err}", file=sys.stderr)
         return 2
-    except KeyboardInterrupt:
-        print(f"{prog}: interrupted", file=sys.stderr)
+    except KeyboardInterrupt as err:
+        what = f" by {err}" if str(err).startswith("SIG") else ""
+        again = "; rerun the same command to resume" if not defer else "; nothing was written"
+        print(f"{prog}: interrupted{what}{again}", file=sys.stderr)
         return 130
     except Exception as err:  # a bug: say so in one line, traceback only on request
         if os.environ.get("DRIFTBAND_DEBUG") or getattr(args, "verbose", 0) >= 2:
@@ -164,4 +166,12 @@ def main(argv: Sequence[str] | None = None) -> int:
 
 
 def _entry() -> None:  # pragma: no cover - console script shim
-    sys.exit(main())
+    rc = main()
+    if rc == 130:
+        # Interrupted: everything is cleaned up and the one line printed. Leave without
+        # the interpreter's exit handlers, whose joins of the (now ended) worker pool's
+        # threads can print tracebacks of closed pipes.
+        sys.stdout.flush()
+        sys.stderr.flush()
+        os._exit(rc)
+    sys.exit(rc)
