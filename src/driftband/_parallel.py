@@ -50,6 +50,7 @@ from typing import Any
 
 from threadpoolctl import threadpool_limits
 
+from ._warnings import plain_warnings
 from .exceptions import DriftbandError, OptionError
 
 __all__ = [
@@ -176,6 +177,7 @@ def _init_local_worker() -> None:
     signal.signal(signal.SIGINT, signal.SIG_IGN)
     signal.signal(signal.SIGHUP, signal.SIG_IGN)
     signal.signal(signal.SIGTERM, signal.SIG_DFL)  # not the parent's handler (forked)
+    plain_warnings()
     # A parent killed without cleaning up (SIGKILL, or a signal while the pool starts)
     # must not leave its workers behind.
     threading.Thread(

@@ -13,13 +13,13 @@ import importlib
 import logging
 import os
 import sys
-import warnings
 from collections.abc import Sequence
 
 from .._io import output_set
 from .._parallel import interruptible, single_blas_thread
 from .._version import __version__
-from ..exceptions import DriftbandError, DriftbandWarning
+from .._warnings import plain_warnings
+from ..exceptions import DriftbandError
 
 __all__ = ["get_parser", "main"]
 
@@ -37,21 +37,6 @@ _SUBCOMMANDS = [
 ]
 
 log = logging.getLogger("driftband")
-
-_format_other_warning = warnings.formatwarning
-
-
-def _format_warning(
-    message: Warning | str,
-    category: type[Warning],
-    filename: str,
-    lineno: int,
-    line: str | None = None,
-) -> str:
-    """driftband's own warnings as ``warning: MESSAGE`` (no source line); others as usual."""
-    if issubclass(category, DriftbandWarning):
-        return f"warning: {message}"
-    return _format_other_warning(message, category, filename, lineno, line)
 
 
 def _available_subcommands() -> list:
@@ -91,7 +76,7 @@ def _setup_logging(verbosity: int) -> None:
     log.setLevel(level)
     log.propagate = False
     logging.captureWarnings(True)
-    warnings.formatwarning = _format_warning
+    plain_warnings()
     wlog = logging.getLogger("py.warnings")
     wlog.handlers[:] = [handler]
     wlog.propagate = False
