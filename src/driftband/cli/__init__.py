@@ -101,6 +101,17 @@ def _input_files(args: argparse.Namespace) -> list[str]:
     return found
 
 
+def _one_line(text: str) -> str:
+    r"""A message as one printable line: control characters (from quoted input) escaped.
+
+    Examples
+    --------
+    >>> _one_line("record 'a\nb\x00': bad")
+    "record 'a\\nb\\x00': bad"
+    """
+    return "".join(c if c.isprintable() else repr(c)[1:-1] for c in text)
+
+
 def main(argv: Sequence[str] | None = None) -> int:
     """Entry point of the ``driftband`` command.
 
@@ -128,11 +139,11 @@ def main(argv: Sequence[str] | None = None) -> int:
         with interruptible(), single_blas_thread(), output_set(_input_files(args), defer=defer):
             return int(args.runner(args) or 0)
     except DriftbandError as err:
-        print(f"{prog}: error: {err}", file=sys.stderr)
+        print(f"{prog}: error: {_one_line(str(err))}", file=sys.stderr)
         return 2
     except OSError as err:
         name = f"{err.filename}: " if err.filename is not None else ""
-        print(f"{prog}: error: {name}{err.strerror or err}", file=sys.stderr)
+        print(f"{prog}: error: {_one_line(name + str(err.strerror or err))}", file=sys.stderr)
         return 2
     except KeyboardInterrupt as err:
         what = f" by {err}" if str(err).startswith("SIG") else ""

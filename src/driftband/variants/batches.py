@@ -173,7 +173,12 @@ def gt_index_problem(line: str, cols: Sequence[int]) -> str | None:
             continue
         gt = f[9 + c].split(":", 1)[0]
         for tok in gt.replace("|", "/").split("/"):
-            if tok != "." and tok.isdigit() and int(tok) > n_alts:
+            if tok != "." and not (tok.isascii() and tok.isdigit()):
+                return (
+                    f"GT {gt!r} of sample #{c + 1}: {tok!r} is not an allele index "
+                    "(a number or '.')"
+                )
+            if tok != "." and int(tok) > n_alts:
                 return (
                     f"GT {gt!r} of sample #{c + 1} has allele index {tok} but the record "
                     f"has {n_alts} ALT allele(s)"
