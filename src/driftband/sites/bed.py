@@ -7,8 +7,9 @@ disjoint, merged intervals. No model code here.
 from __future__ import annotations
 
 import os
-from collections.abc import Iterable
+from collections.abc import Iterable, Iterator
 from dataclasses import dataclass, field
+from typing import IO
 
 import numpy as np
 
@@ -16,6 +17,7 @@ from .._io import atomic_output, open_text
 from ..exceptions import InputError
 
 __all__ = [
+    "MAX_COORDINATE",
     "IntervalSet",
     "SiteClasses",
     "intersect",
@@ -120,6 +122,20 @@ class SiteClasses:
         return {c for s in self.classes.values() for c in s.chroms}
 
 
+#: The largest coordinate accepted (2**62: far beyond any genome, safe in int64 sums).
+MAX_COORDINATE = 1 << 62
+
+
+def _numbered_lines(fh: IO[str], path: str | os.PathLike) -> Iterator[tuple[int, str]]:
+    """``(line number, line)`` of a text file; bytes that are not UTF-8 are named."""
+    ln = 0
+    try:
+        for ln, line in enumerate(fh, start=1):
+            yield ln, line
+    except UnicodeDecodeError:
+        raise InputError("not a text BED file (bytes that are not UTF-8)", path, ln + 1) from None
+
+
 def read_bed(
     path: str | os.PathLike,
     need_name: bool = False,
@@ -141,7 +157,7 @@ def read_bed(
     except FileNotFoundError:
         raise InputError("file not found", path) from None
     with fh:
-        for ln, line in enumerate(fh, start=1):
+        for ln, line in _numbered_lines(fh, path):
             if not line.strip() or line.startswith(("#", "track", "browser")):
                 continue
             f = line.rstrip("\r\n").split("\t")
@@ -157,6 +173,10 @@ def read_bed(
                 raise InputError(
                     f"start/end {f[1]!r}, {f[2]!r} are not integers", path, ln
                 ) from None
+            if e > MAX_COORDINATE:
+                raise InputError(
+                    f"end {e} is beyond any chromosome (at most {MAX_COORDINATE})", path, ln
+                )
             if s < 0 or e < s:
                 raise InputError(
                     f"invalid interval {s}-{e} (BED is 0-based, half-open: 0 <= start <= end)",
