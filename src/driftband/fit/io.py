@@ -189,13 +189,23 @@ def fits_from_doc(
         An entry that cannot be read back, or an impossible value (see
         :func:`check_fit_values`).
     """
+    pops_doc = doc.get("populations")
+    if not isinstance(pops_doc, dict) or not pops_doc:
+        raise InputError(
+            "\"populations\": the fit file holds no populations; remake it with 'driftband fit'",
+            path,
+        )
+    where = '"options"'
     try:
         options = FitOptions.from_dict(doc.get("options") or {})
-        pops = [PopulationFit.from_dict(name, p) for name, p in doc["populations"].items()]
+        pops = []
+        for name, p in pops_doc.items():
+            where = f"population {name!r}"
+            pops.append(PopulationFit.from_dict(name, p))
     except (KeyError, TypeError, ValueError, AttributeError, OverflowError) as err:
         what = f"missing entry {err}" if isinstance(err, KeyError) else str(err)
         raise InputError(
-            f"the fit file cannot be read back ({what}); remake it with 'driftband fit'", path
+            f"{where}: cannot be read back ({what}); remake the file with 'driftband fit'", path
         ) from None
     for pf in pops:
         check_fit_values(pf, path)
@@ -274,6 +284,8 @@ def check_fit_values(pf: PopulationFit, path: str | os.PathLike) -> None:
             raise InputError(f'{wm}: "loglik" and "aic" must be finite or null', path)
         if why := _share_problem(fr.shares):
             raise InputError(f'{wm} "shares": {why}', path)
+        if fr.success and not np.all(np.isfinite(fr.shares)):
+            raise InputError(f'{wm} "shares": a converged fit needs every share (no null)', path)
         if np.isfinite(fr.eps) and not 0 <= fr.eps <= 1:
             raise InputError(f'{wm} "eps": {fr.eps:g} is not in [0, 1]', path)
     b = pf.bootstrap

@@ -37,7 +37,11 @@ SpectraFile = tuple[str, str, "str | os.PathLike[str]"]
 
 
 def _source(study: Study, section: str) -> OptionSource:
-    return OptionSource(section, study.source) if study.source else COMMAND_LINE
+    from .study import _key_lines
+
+    if not study.source:
+        return COMMAND_LINE
+    return OptionSource(section, study.source, _key_lines(study.text) if study.text else {})
 
 
 def fit_options(study: Study) -> Any:
