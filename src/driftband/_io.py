@@ -13,7 +13,7 @@ import platform
 import re
 import sys
 import tempfile
-from collections.abc import Iterable, Iterator
+from collections.abc import Callable, Iterable, Iterator
 from pathlib import Path
 from typing import IO, Any, overload
 
@@ -23,6 +23,8 @@ from .exceptions import InputError, OptionError, OutputError, OutputExistsError
 
 __all__ = [
     "OutputSet",
+    "add_inputs",
+    "after_commit",
     "atomic_output",
     "check_output_path",
     "check_outputs",
@@ -59,20 +61,47 @@ class OutputSet:
         self.inputs = [os.fspath(p) for p in inputs]
         self.pending: list[tuple[str, str]] = []
         self.defer = True
+        self.callbacks: list[Callable[[], None]] = []
 
     def stage(self, tmp: str | os.PathLike, final: str | os.PathLike) -> None:
         """Rename ``tmp`` to ``final`` when the set commits (remove it if it aborts)."""
         self.pending.append((os.fspath(tmp), os.fspath(final)))
 
     def commit(self) -> None:
-        """Rename every staged temporary file into place (in the order staged)."""
-        while self.pending:
-            tmp, final = self.pending[0]
-            try:
+        """Rename every staged temporary file into place, all or none.
+
+        Files being replaced are first moved aside; if any rename fails, the outputs
+        already renamed are taken back and the old files restored.
+        """
+        done: list[tuple[str, str | None, bool]] = []  # (final, backup, renamed)
+        try:
+            for tmp, final in self.pending:
+                backup = None
+                if os.path.lexists(final):
+                    backup = temporary_output(final, suffix=".old.tmp")
+                    os.replace(final, backup)
+                done.append((final, backup, False))
                 os.replace(tmp, final)
-            except OSError as err:
-                raise OutputError(final, err.strerror or str(err)) from None
-            self.pending.pop(0)
+                done[-1] = (final, backup, True)
+        except (OSError, OptionError, OutputError) as err:
+            for final, backup, renamed in reversed(done):
+                with contextlib.suppress(OSError):
+                    if renamed:
+                        os.unlink(final)
+                    if backup is not None:
+                        os.replace(backup, final)
+            if not isinstance(err, OSError):
+                raise
+            failed = done[-1][0] if done else self.pending[0][1]
+            raise OutputError(failed, err.strerror or str(err)) from None
+        for _final, backup, _renamed in done:
+            if backup is not None:
+                with contextlib.suppress(OSError):
+                    os.unlink(backup)
+        self.pending.clear()
+        callbacks, self.callbacks = self.callbacks, []
+        for fn in callbacks:
+            fn()
 
     def abort(self) -> None:
         """Remove every staged temporary file; the final paths are untouched."""
@@ -182,9 +211,14 @@ def check_outputs(paths: Iterable[str | os.PathLike | None], force: bool = False
     OptionError
         See :func:`check_output_path`.
     """
+    seen: set[str] = set()
     for p in paths:
         if p is None or os.fspath(p) == "-":
             continue
+        key = os.path.realpath(p)
+        if key in seen:
+            raise OptionError(f"{os.fspath(p)}: named for two outputs; give each its own file")
+        seen.add(key)
         check_output_path(p, force)
 
 
@@ -218,6 +252,35 @@ def temporary_output(path: str | os.PathLike, suffix: str = ".tmp") -> str:
     os.umask(umask)
     os.chmod(tmp, 0o666 & ~umask)
     return tmp
+
+
+def add_inputs(*paths: str | os.PathLike) -> None:
+    """Files a reader found beside an input (an index): no output may replace them either.
+
+    Parameters
+    ----------
+    *paths : path-like
+        Added to the inputs of the active :func:`output_set` (if any).
+    """
+    active = _ACTIVE.get()
+    if active is not None:
+        active.inputs.extend(os.fspath(p) for p in paths)
+
+
+def after_commit(fn: Callable[[], None]) -> None:
+    """Call ``fn`` once the outputs are in place: at the end of the active deferred
+    :func:`output_set` (never, if it fails), or now. For messages such as "wrote FILE".
+
+    Parameters
+    ----------
+    fn : callable
+        Called without arguments.
+    """
+    active = _ACTIVE.get()
+    if active is not None and active.defer:
+        active.callbacks.append(fn)
+    else:
+        fn()
 
 
 def commit_output(tmp: str | os.PathLike, path: str | os.PathLike) -> None:

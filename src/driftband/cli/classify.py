@@ -6,7 +6,7 @@ import argparse
 import logging
 import os
 
-from .._io import check_outputs
+from .._io import after_commit, check_outputs
 from ..exceptions import OptionError
 from ..sites.bed import write_bed4
 from ..sites.classify import classify_sites, write_summary
@@ -99,11 +99,13 @@ def run(args: argparse.Namespace) -> int:
     n = write_bed4(args.output, result.rows(), force=args.force)
     if args.summary is not None:
         write_summary(result, args.summary, force=args.force)
-    log.info(
-        "wrote %d intervals: %d 0-fold and %d 4-fold sites to %s",
-        n,
-        result.total("0fold"),
-        result.total("4fold"),
-        args.output,
+    after_commit(
+        lambda: log.info(
+            "wrote %d intervals: %d 0-fold and %d 4-fold sites to %s",
+            n,
+            result.total("0fold"),
+            result.total("4fold"),
+            args.output,
+        )
     )
     return 0

@@ -7,6 +7,7 @@ import logging
 
 from .._io import check_outputs
 from ..defaults import COMPARE_TESTS
+from ..exceptions import OptionError
 from ._common import Subparsers, add_common_arguments, add_subcommand, parse_kv
 
 log = logging.getLogger("driftband")
@@ -69,6 +70,10 @@ def run(args: argparse.Namespace) -> int:
     tests = tuple(t.strip() for t in args.tests.split(",") if t.strip())
     mu = parse_kv(args.relative_mutation_rate, "--relative-mutation-rate", float)
     options, fits = read_fit_files(args.fits)
+    try:
+        options.model(args.model)
+    except OptionError as err:
+        raise OptionError(f"--model {args.model}: {err}") from None
     rows = compare_fits(
         sorted(fits, key=lambda pf: pf.population),
         options,

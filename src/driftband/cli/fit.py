@@ -7,7 +7,7 @@ import logging
 import os
 from typing import Any
 
-from .._io import check_outputs, file_record, provenance
+from .._io import after_commit, check_outputs, file_record, provenance
 from ..defaults import DEFAULT_MODELS, HEADLINES, format_edges
 from ..exceptions import OptionError
 from ._common import Subparsers, add_common_arguments, add_subcommand, parse_kv
@@ -151,10 +151,15 @@ def run(args: argparse.Namespace) -> int:
     check_outputs([args.output, args.bands_tsv], args.force)
     edges = parse_bands(args.bands)
     eps = parse_misorientation(args.misorientation)
+    try:
+        models = tuple(parse_models(args.dfe, args.beneficial, edges))
+    except OptionError as err:
+        msg = str(err)
+        raise OptionError(msg if msg.startswith("--") else f"--dfe {args.dfe}: {msg}") from None
     options = FitOptions(
         args.neutral,
         args.selected,
-        tuple(parse_models(args.dfe, args.beneficial, edges)),
+        models,
         eps,
         args.equilibrium,
         edges,
@@ -220,5 +225,5 @@ def _run(args: argparse.Namespace, options: Any, labels: dict[str, str], client:
     if args.bands_tsv:
         write_bands_tsv(fits, args.bands_tsv, force=args.force)
     if not args.quiet:
-        print(os.path.abspath(args.output))
+        after_commit(lambda: print(os.path.abspath(args.output)))
     return 0

@@ -8,7 +8,7 @@ import os
 import sys
 from typing import Any
 
-from .._io import atomic_output, check_outputs, file_record, provenance
+from .._io import after_commit, atomic_output, check_outputs, file_record, provenance
 from ..exceptions import OptionError
 from ._common import Subparsers, add_common_arguments, add_subcommand
 
@@ -114,5 +114,7 @@ def run(args: argparse.Namespace) -> int:
     if md_text is not None:
         with atomic_output(args.summary, force=args.force) as fh:
             fh.write(md_text)
-    print(os.path.abspath(args.output), file=sys.stderr if args.quiet else sys.stdout)
+    after_commit(
+        lambda: print(os.path.abspath(args.output), file=sys.stderr if args.quiet else sys.stdout)
+    )
     return 0

@@ -272,7 +272,7 @@ def run(args: argparse.Namespace) -> int:
             import numpy as np
 
             sim.check_genome_option(np.asarray([sites["0fold"], sites["4fold"]]))
-    from .._io import check_outputs
+    from .._io import after_commit, check_outputs
 
     check_outputs(outputs, args.force)
     options = {k: v for k, v in vars(args).items() if k not in ("runner", "subcommand")}
@@ -304,5 +304,5 @@ def run(args: argparse.Namespace) -> int:
         force=args.force,
         **(vcf_opts if args.vcf is not None else {}),
     )
-    log.info("seed %d; wrote %s", study.seed, ", ".join(written.values()))
+    after_commit(lambda: log.info("seed %d; wrote %s", study.seed, ", ".join(written.values())))
     return 0

@@ -6,7 +6,7 @@ import argparse
 import sys
 import time
 
-from .._io import check_outputs
+from .._io import after_commit, check_outputs
 from ..exceptions import OptionError
 from ._common import Subparsers, add_common_arguments, add_subcommand
 
@@ -252,5 +252,6 @@ def run(args: argparse.Namespace) -> int:
     if not args.quiet:
         for line in summary_lines(ss):
             print(line, file=sys.stderr)
-        print(f"wrote {args.output}" + (f" and {args.tsv}" if args.tsv else ""), file=sys.stderr)
+        what = f"wrote {args.output}" + (f" and {args.tsv}" if args.tsv else "")
+        after_commit(lambda: print(what, file=sys.stderr))
     return 0

@@ -12,6 +12,7 @@ import os
 from collections.abc import Iterator
 from typing import TYPE_CHECKING
 
+from .._io import add_inputs
 from ..exceptions import InputError
 
 if TYPE_CHECKING:
@@ -81,6 +82,7 @@ def open_fasta(path: str | os.PathLike) -> pysam.FastaFile:
         ) from None
     finally:
         pysam.set_verbosity(old)
+    add_inputs(*(x for x in (p + ".fai", p + ".gzi") if os.path.exists(x)))
     if fa.nreferences == 0:
         fa.close()
         raise InputError("FASTA holds no sequences", p)

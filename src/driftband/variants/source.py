@@ -28,6 +28,7 @@ from collections.abc import Iterator
 import numpy as np
 import pysam
 
+from .._io import add_inputs
 from ..exceptions import InputError, VcfFormatError
 from .batches import VariantBatch, bcf_batches
 from .bgzf import DeflateBGZF, QuietBGZFile, check_bgzf_eof, open_bgzf
@@ -113,6 +114,7 @@ class VcfSource:
         for ext in (".tbi", ".csi"):
             if os.path.exists(self.path + ext):
                 self.index_path = self.path + ext
+                add_inputs(self.index_path)
                 break
         if self.index_path is not None:
             if os.path.getmtime(self.index_path) < os.path.getmtime(self.path):
