@@ -8,6 +8,8 @@ path (never a temporary file), and never changes an existing file it refused to 
 from __future__ import annotations
 
 import os
+import signal
+import time
 from pathlib import Path
 
 import pytest
@@ -17,6 +19,7 @@ from test_fuzz_vcf import POPMAP, SITES, vcf_text
 from vcf_fixtures import write_vcf
 
 DATA = Path(__file__).parent / "data" / "report"
+SIGNALS = [signal.SIGINT, signal.SIGTERM, signal.SIGHUP]
 
 
 @pytest.fixture(scope="module")
@@ -165,6 +168,34 @@ def test_both_outputs_are_written_together(capfd, inputs, tmp_path, chdir_back, 
     rc, err = run(capfd, [*args, o1, "one.out", o2, "two.out"])
     assert rc == 0, err
     assert Path("one.out").stat().st_size > 0 and Path("two.out").stat().st_size > 0
+    assert not list(tmp_path.rglob("*.tmp"))
+
+
+@pytest.mark.parametrize(
+    "sig", [signal.SIGINT, signal.SIGTERM, signal.SIGHUP], ids=lambda s: s.name
+)
+@pytest.mark.parametrize("command", LATE)
+def test_signal_while_writing_leaves_nothing(
+    capfd, inputs, tmp_path, chdir_back, monkeypatch, command, sig
+):
+    """The signal arrives while the second output is written (in this process)."""
+    args, o1, o2 = _case(tmp_path, inputs, command)
+    real = os.replace
+
+    def interrupted_replace(src, dst, *a, **k):
+        if os.path.basename(os.fspath(dst)) == "two.out":
+            os.kill(os.getpid(), sig)
+            time.sleep(1)  # the handler runs before this returns
+        return real(src, dst, *a, **k)
+
+    monkeypatch.setattr(os, "replace", interrupted_replace)
+    before = snapshot(tmp_path)
+    rc, err = run(capfd, [*args, o1, "one.out", o2, "two.out"])
+    monkeypatch.setattr(os, "replace", real)
+    lines = err.splitlines()
+    assert rc == 130, err
+    assert len(lines) == 1 and lines[0].startswith(f"driftband {command}: interrupted"), err
+    assert snapshot(tmp_path) == before
     assert not list(tmp_path.rglob("*.tmp"))
 
 

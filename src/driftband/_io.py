@@ -83,7 +83,7 @@ class OutputSet:
                 done.append((final, backup, False))
                 os.replace(tmp, final)
                 done[-1] = (final, backup, True)
-        except (OSError, OptionError, OutputError) as err:
+        except BaseException as err:  # also an interruption between two renames
             for final, backup, renamed in reversed(done):
                 with contextlib.suppress(OSError):
                     if renamed:
