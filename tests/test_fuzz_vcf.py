@@ -312,3 +312,36 @@ def test_other_alleles_are_skipped_and_counted(capfd, base, tmp_path, alt, gt):
     p.write_text(vcf_text(recs))
     res = _spectra(capfd, base, tmp_path, p)
     assert sum(res["skipped"].values()) >= 1 or alt == "G,<*>"
+
+
+# ----------------------------------------------------------------- random GT texts
+_gt_rng = random.Random(2026)
+RANDOM_GTS = sorted(
+    {
+        "".join(_gt_rng.choice("0123./|:a") for _ in range(_gt_rng.randrange(1, 6)))
+        for _ in range(80)
+    }
+)[:48]
+
+
+@pytest.mark.parametrize("gt", RANDOM_GTS)
+def test_random_gt_text_is_read_or_refused_cleanly(capfd, base, tmp_path, gt):
+    """Any GT text: either a spectrum (a valid call) or the one-line refusal naming the
+    record; never an internal error. Only a valid call is read (VCF specification:
+    indices 0..number of ALT alleles, here 1; '.' missing)."""
+    from fuzz_helpers import run
+
+    p = tmp_path / "r.vcf"
+    p.write_text(gt_record(1, gt))
+    out = tmp_path / "o.json"
+    rc, err = run(capfd, spectra_args(base, p, out))
+    assert "Traceback" not in err and "internal error" not in err, err
+    tokens = gt.split(":", 1)[0].replace("|", "/").split("/")
+    # any ploidy is valid; an index is an integer (htslib reads '01' as 1)
+    valid = all(t == "." or (t.isdigit() and int(t) <= 1) for t in tokens)
+    if rc == 0:
+        assert valid, (gt, err)
+    else:
+        lines = err.splitlines()
+        assert rc == 2 and len(lines) == 1 and f"r.vcf{line_of(1)}" in lines[0], err
+        assert not out.exists()
