@@ -215,3 +215,27 @@ def test_bad_option_values(capfd, inputs, tmp_path, chdir_back, case):
     command, opt = case
     args, o1, _o2 = _case(tmp_path, inputs, command)
     expect_refusal(capfd, tmp_path, [*args, *opt, o1, "new.out"], [opt[0]], ["new.out"])
+
+
+def test_numerical_warnings_are_one_plain_line(capfd, inputs, tmp_path, chdir_back, monkeypatch):
+    """A numpy RuntimeWarning inside a command reaches the user as one plain line per
+    message (no source line), however often it is raised."""
+    import numpy as np
+
+    from driftband.spectra import io as spectra_io
+
+    real = spectra_io.write_spectra_json
+
+    def noisy(*a, **k):
+        for _ in range(3):
+            np.log(np.zeros(2))  # numpy: "divide by zero encountered in log"
+        return real(*a, **k)
+
+    monkeypatch.setattr(spectra_io, "write_spectra_json", noisy)
+    args, o1, _o2 = _case(tmp_path, inputs, "spectra")
+    rc, err = run(capfd, [*args, o1, "one.out"])
+    assert rc == 0, err
+    assert err.splitlines() == [
+        "driftband: warning: numerical: divide by zero encountered in log "
+        "(tests/test_fuzz_outputs.py)"
+    ], err
