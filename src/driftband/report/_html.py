@@ -14,16 +14,17 @@ import math
 from collections.abc import Iterable
 from typing import Any
 
+from ..effect import convention_text
 from ..spectra.callable import CALLABLE_SOURCES
 from ._plots import bands_figure, spectra_figure
 from ._text import (
     ALPHA_EXPLAINED,
     CAUTIONS,
-    CONVENTIONS,
     FOLDED_SHORT,
     MINUS,
     NA,
     band_label,
+    conventions,
     fint,
     fnum,
     fp,
@@ -165,11 +166,12 @@ def _answer(view: ReportView) -> str:
         '<section id="answer"><h2>The answer: effectively neutral share per population</h2>',
         f"<p>Share of new mutations at {esc(sel)} (selected-class) sites whose scaled "
         f"effect lies in the effectively neutral band |Ne\u00b7s| &lt; {b0.hi:g} "
-        f"(|S| &lt; {4 * b0.hi:g}), averaged over the DFE families by their Akaike "
+        f"(|S| &lt; {b0.hi_s:g}), averaged over the DFE families by their Akaike "
         "weights (or under the AIC-best family where the fit asked for it), with "
         f"{esc(lvl)} block-bootstrap percentile intervals in which the model choice is "
         "redone in every replicate.</p>",
         _table("headline", "Effectively neutral share of new mutations", head, rows, "headline"),
+        f'<p class="convention">{esc(convention_text(view.effect))}.</p>',
         '<ul class="answer">'
         + "".join(f"<li>{esc(answer_sentence(v, sel))}</li>" for v in view.populations)
         + "</ul>",
@@ -198,7 +200,8 @@ def _answer(view: ReportView) -> str:
             bands_figure(pops, sel, lvl),
             "Grouped bar chart of band shares for every population",
             f"Share of new {sel} mutations in each band of |Ne\u00b7s| (bottom axis) and of "
-            f"|S| = 4|Ne\u00b7s| (top axis), headline shares per population (averaged over "
+            f"|S| = {b0.s_per_nes:g}|Ne\u00b7s| (top axis), headline shares per population "
+            "(averaged over "
             "the DFE families by Akaike weight unless the fit asked for the AIC-best "
             f"family); black bars: {lvl} "
             "bootstrap percentile intervals; the shaded band is the effectively neutral one. "
@@ -219,6 +222,7 @@ def _answer(view: ReportView) -> str:
     out.append(
         _table("bands", f"Shares in all |Ne\u00b7s| bands, estimate ({lvl} interval)", head, rows)
     )
+    out.append(f'<p class="convention">{esc(convention_text(view.effect))}.</p>')
     out.append("</section>")
     return "\n".join(out)
 
@@ -818,9 +822,9 @@ def _provenance(view: ReportView) -> str:
     return "\n".join(out)
 
 
-def _conventions_cautions() -> str:
+def _conventions_cautions(effect: str) -> str:
     out = ['<section id="conventions"><h2>Conventions</h2><ul>']
-    out += [f"<li>{esc(c)}</li>" for c in CONVENTIONS]
+    out += [f"<li>{esc(c)}</li>" for c in conventions(effect)]
     out.append("</ul></section>")
     out.append('<section id="cautions"><h2>Cautions</h2><dl class="cautions">')
     for title, text in CAUTIONS:
@@ -862,7 +866,7 @@ def render_html(view: ReportView) -> str:
         _comparisons(view),
         *(_population(v, view) for v in view.populations),
         _provenance(view),
-        _conventions_cautions(),
+        _conventions_cautions(view.effect),
         "</main>",
         "</body>",
         "</html>",

@@ -9,6 +9,8 @@ from __future__ import annotations
 import math
 from typing import Any, TypeGuard
 
+from ..effect import DEFAULT_EFFECT, S_PER_NES
+
 MINUS = "\u2212"
 NA = "n/a"
 
@@ -102,22 +104,38 @@ def pct(level: Any) -> str:
     return f"{100 * level:g} %" if is_num(level) else "95 %"
 
 
-CONVENTIONS = [
-    "Genotype fitnesses are 1 : 1+s : 1+2s (semidominant: the heterozygote effect is s).",
-    "The scaled selection coefficient is S = 4\u00b7Ne\u00b7s; deleterious mutations have "
-    "S < 0. The fixation probability of a new mutation relative to a neutral one is "
-    "about S/(1 \u2212 e^(\u2212S)) (Kimura 1962).",
-    "Band edges are on |Ne\u00b7s| (= |S|/4); the first band, |Ne\u00b7s| < 1 "
-    "(|S| < 4), is the effectively neutral one: there drift outweighs selection.",
-    "Shares are of new mutations at selected-class sites, not of polymorphisms or "
-    "substitutions; they sum to 1 over the bands.",
-    "Intervals are percentile intervals of a block bootstrap over genomic blocks "
-    "(blocks resampled with replacement, every model refitted).",
-    "Expected spectra come from Poisson random field theory (Sawyer & Hartl 1992) with "
-    "demographic nuisance factors r_i shared by both classes (Eyre-Walker, Woolfit & "
-    "Phelps 2006); Pearson residuals are (observed \u2212 expected)/\u221aexpected.",
-    "Models are ranked by AIC; Akaike weights are exp(\u2212\u0394AIC/2), normalised.",
-]
+def conventions(effect: str = DEFAULT_EFFECT) -> list[str]:
+    """The report's list of conventions, for the effect convention ``effect`` of the bands."""
+    k = S_PER_NES[effect]
+    if effect == "homozygote":
+        fitness = (
+            "Genotype fitnesses are 1 : 1+s/2 : 1+s (semidominant; s is the homozygote "
+            "effect, as in some published tables), so S = 2\u00b7Ne\u00b7s."
+        )
+    else:
+        fitness = (
+            "Genotype fitnesses are 1 : 1+s : 1+2s (semidominant: the heterozygote effect "
+            "is s), so S = 4\u00b7Ne\u00b7s."
+        )
+    return [
+        fitness,
+        "S is the scaled selection coefficient of Poisson random field theory (4\u00b7Ne "
+        "times the heterozygote effect); deleterious mutations have S < 0. The fixation "
+        "probability of a new mutation relative to a neutral one is about "
+        "S/(1 \u2212 e^(\u2212S)) (Kimura 1962).",
+        f"Band edges are on |Ne\u00b7s| (= |S|/{k:g}); the first band, |Ne\u00b7s| < 1 "
+        f"(|S| < {k:g}) with the default edges, is the effectively neutral one: there drift "
+        "outweighs selection.",
+        "Shares are of new mutations at selected-class sites, not of polymorphisms or "
+        "substitutions; they sum to 1 over the bands.",
+        "Intervals are percentile intervals of a block bootstrap over genomic blocks "
+        "(blocks resampled with replacement, every model refitted).",
+        "Expected spectra come from Poisson random field theory (Sawyer & Hartl 1992) with "
+        "demographic nuisance factors r_i shared by both classes (Eyre-Walker, Woolfit & "
+        "Phelps 2006); Pearson residuals are (observed \u2212 expected)/\u221aexpected.",
+        "Models are ranked by AIC; Akaike weights are exp(\u2212\u0394AIC/2), normalised.",
+    ]
+
 
 #: When folded spectra are the right choice and what they lose (the README's "Folded or
 #: unfolded?" says the same).

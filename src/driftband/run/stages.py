@@ -48,6 +48,7 @@ def fit_options(study: Study) -> Any:
     InputError or OptionError
         A bad ``[fit]`` key (or command-line flag).
     """
+    from ..effect import EFFECTS, core_edges
     from ..exceptions import OptionError
     from ..fit.models import parse_models
     from ..fit.options import FitOptions, check_edges, parse_misorientation
@@ -58,8 +59,10 @@ def fit_options(study: Study) -> Any:
     def fail(key: str, err: Exception) -> Exception:
         return src.error(key, str(err).split(": ", 1)[-1])
 
+    if fs.effect not in EFFECTS:
+        raise fail("effect", OptionError(f"--effect {fs.effect!r}: choose {' or '.join(EFFECTS)}"))
     try:
-        edges = check_edges(tuple(fs.bands))
+        edges = core_edges(check_edges(tuple(fs.bands)), fs.effect)
     except OptionError as err:
         raise fail("bands", err) from None
     try:
@@ -74,7 +77,9 @@ def fit_options(study: Study) -> Any:
     if len(set(names)) != len(names):
         raise fail("dfe", OptionError("a model is named twice"))
     try:
-        return FitOptions(fs.neutral, fs.selected, models, eps, fs.equilibrium, edges, fs.headline)
+        return FitOptions(
+            fs.neutral, fs.selected, models, eps, fs.equilibrium, edges, fs.headline, fs.effect
+        )
     except OptionError as err:
         raise fail("headline", err) from None
 
@@ -321,7 +326,7 @@ def stage_bootstrap(
     prov["seed"] = settings.seed
     out = fit_document(fits, opts, prov)
     write_fit_json(out, out_json, force=True)
-    write_bands_tsv(fits, out_bands, force=True)
+    write_bands_tsv(fits, out_bands, options.effect, force=True)
     for pf in fits:
         mb = pf.model_bootstrap(pf.best.model)
         ci = mb.shares_ci[0] if mb is not None else None
@@ -330,7 +335,7 @@ def stage_bootstrap(
             "bootstrap: %s: %s, share with |Ne*s| < %g: %.3f%s",
             pf.population,
             pf.best.model,
-            options.edges_nes[1],
+            options.shown_edges[1],
             pf.best.shares[0],
             iv,
         )
