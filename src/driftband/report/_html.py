@@ -19,10 +19,12 @@ from ..spectra.callable import CALLABLE_SOURCES
 from ._plots import bands_figure, spectra_figure
 from ._text import (
     ALPHA_EXPLAINED,
+    ALPHA_NEGATIVE_NOTE,
     CAUTIONS,
     FOLDED_SHORT,
     MINUS,
     NA,
+    REFERENCES,
     band_label,
     conventions,
     fint,
@@ -634,7 +636,8 @@ def _adaptive(v: PopulationView, view: ReportView) -> str:
     if caveat:
         out.append(f'<p class="flag">\u26a0 {esc(caveat)}.</p>')
     implied = any(is_num((a.get("alpha_dfe") or {}).get("alpha_model")) for a in present.values())
-    lines = ALPHA_EXPLAINED if implied else ALPHA_EXPLAINED[:-1]  # the last: α implied
+    # the last of ALPHA_EXPLAINED is on the α implied by the DFE
+    lines = [*(ALPHA_EXPLAINED if implied else ALPHA_EXPLAINED[:-1]), ALPHA_NEGATIVE_NOTE]
     out.append('<ul class="note">' + "".join(f"<li>{esc(t)}</li>" for t in lines) + "</ul>")
     return "\n".join(out)
 
@@ -830,6 +833,9 @@ def _conventions_cautions(effect: str) -> str:
     for title, text in CAUTIONS:
         out.append(f"<dt>{esc(title)}</dt><dd>{esc(text)}</dd>")
     out.append("</dl></section>")
+    out.append('<section id="references"><h2>References</h2><ul class="references">')
+    out += [f"<li>{esc(r)}</li>" for r in REFERENCES]
+    out.append("</ul></section>")
     return "\n".join(out)
 
 
@@ -843,6 +849,7 @@ def render_html(view: ReportView) -> str:
         '<a href="#provenance">Provenance</a>',
         '<a href="#conventions">Conventions</a>',
         '<a href="#cautions">Cautions</a>',
+        '<a href="#references">References</a>',
     ]
     sub = (
         f"Populations: {names}. Report made {prov.get('date', NA)} by "

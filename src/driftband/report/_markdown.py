@@ -6,7 +6,19 @@ import re
 from typing import Any
 
 from ..effect import convention_text
-from ._text import CAUTIONS, FOLDED_SHORT, NA, conventions, fnum, frange, fsig, is_num, pct
+from ._text import (
+    ALPHA_NEGATIVE_NOTE,
+    CAUTIONS,
+    FOLDED_SHORT,
+    NA,
+    REFERENCES,
+    conventions,
+    fnum,
+    frange,
+    fsig,
+    is_num,
+    pct,
+)
 from ._view import ReportView, answer_sentence, comparison_guides
 
 __all__ = ["render_markdown"]
@@ -165,8 +177,12 @@ def render_markdown(view: ReportView) -> str:
                 + (f"; α implied by the DFE = {fnum(implied)}" if is_num(implied) else "")
                 + (f" (⚠ {md(ad['caveat'])})" if ad.get("caveat") else "")
             )
+            classic = ad.get("alpha_classic")
+            if is_num(classic) and classic < 0:
+                out.append(f"  - {md(ALPHA_NEGATIVE_NOTE)}")
         out.append("")
     out += ["## Conventions", ""] + [f"- {md(c)}" for c in conventions(view.effect)]
     out += ["", "## Cautions", ""] + [f"- **{md(t)}.** {md(x)}" for t, x in CAUTIONS]
+    out += ["", "## References", ""] + [f"- {md(r)}" for r in REFERENCES]
     out.append("")
     return "\n".join(out)

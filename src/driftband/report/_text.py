@@ -255,3 +255,61 @@ def param_label(name: str, edges: list[float] | None = None) -> str:
         if k + 1 < len(e):
             return f"mass in |Ne\u00b7s| band {band_label(e[k], e[k + 1])}"
     return name
+
+
+#: Why the classic α of the McDonald–Kreitman table can be negative (shown beside α).
+ALPHA_NEGATIVE_NOTE = (
+    "The classic \u03b1 = 1 \u2212 D_S\u00b7P_N/(D_N\u00b7P_S) is negative when the "
+    "selected class holds more polymorphism, relative to its divergence, than the neutral "
+    "class. Slightly deleterious mutations do that: they segregate but rarely fix, so they "
+    "inflate P_N without adding to D_N. A negative value is a downward-biased estimate, not "
+    "a negative rate of adaptation; the asymptotic and the DFE-corrected \u03b1 remove most "
+    "of that bias (Fay, Wyckoff & Wu 2001; Eyre-Walker & Keightley 2009)."
+)
+
+#: Full citations of the methods the tool uses (one home: the report and the README list
+#: the same; tests/test_repo.py checks that the README holds every entry). From memory.
+REFERENCES: list[str] = [
+    "Akaike H (1974) A new look at the statistical model identification. IEEE Transactions "
+    "on Automatic Control 19: 716\u2013723.",
+    "Burnham KP, Anderson DR (2002) Model Selection and Multimodel Inference, 2nd edn. "
+    "Springer, New York.",
+    "Coffman AJ, Hsieh PH, Gravel S, Gutenkunst RN (2016) Computationally efficient "
+    "composite likelihood statistics for demographic inference. Molecular Biology and "
+    "Evolution 33: 591\u2013593.",
+    "Efron B, Tibshirani RJ (1993) An Introduction to the Bootstrap. Chapman & Hall, New York.",
+    "Eyre-Walker A, Keightley PD (2009) Estimating the rate of adaptive molecular evolution "
+    "in the presence of slightly deleterious mutations and population size change. "
+    "Molecular Biology and Evolution 26: 2097\u20132108.",
+    "Eyre-Walker A, Woolfit M, Phelps T (2006) The distribution of fitness effects of new "
+    "deleterious amino acid mutations in humans. Genetics 173: 891\u2013900.",
+    "Fay JC, Wyckoff GJ, Wu C-I (2001) Positive and negative selection on the human genome. "
+    "Genetics 158: 1227\u20131234.",
+    "Hernandez RD, Williamson SH, Bustamante CD (2007) Context dependence, ancestral "
+    "misidentification, and spurious signatures of natural selection. Molecular Biology "
+    "and Evolution 24: 1792\u20131800.",
+    "Holm S (1979) A simple sequentially rejective multiple test procedure. Scandinavian "
+    "Journal of Statistics 6: 65\u201370.",
+    "Kimura M (1962) On the probability of fixation of mutant genes in a population. "
+    "Genetics 47: 713\u2013719.",
+    "K\u00fcnsch HR (1989) The jackknife and the bootstrap for general stationary "
+    "observations. Annals of Statistics 17: 1217\u20131241.",
+    "Marth GT, Czabarka E, Murvai J, Sherry ST (2004) The allele frequency spectrum in "
+    "genome-wide human variation data reveals signals of differential demographic history "
+    "in three large world populations. Genetics 166: 351\u2013372.",
+    "McDonald JH, Kreitman M (1991) Adaptive protein evolution at the Adh locus in "
+    "Drosophila. Nature 351: 652\u2013654.",
+    "Messer PW, Petrov DA (2013) Frequent adaptation and the McDonald\u2013Kreitman test. "
+    "Proceedings of the National Academy of Sciences USA 110: 8615\u20138620.",
+    "Sawyer SA, Hartl DL (1992) Population genetics of polymorphism and divergence. "
+    "Genetics 132: 1161\u20131176.",
+    "Self SG, Liang K-Y (1987) Asymptotic properties of maximum likelihood estimators and "
+    "likelihood ratio tests under nonstandard conditions. Journal of the American "
+    "Statistical Association 82: 605\u2013610.",
+    "Smith NGC, Eyre-Walker A (2002) Adaptive protein evolution in Drosophila. Nature 415: "
+    "1022\u20131024.",
+    "Tajima F (1989) Statistical method for testing the neutral mutation hypothesis by DNA "
+    "polymorphism. Genetics 123: 585\u2013595.",
+    "Varin C, Reid N, Firth D (2011) An overview of composite likelihood methods. "
+    "Statistica Sinica 21: 5\u201342.",
+]
