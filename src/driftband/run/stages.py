@@ -15,6 +15,7 @@ from typing import Any
 
 from .._io import atomic_output, file_record, provenance
 from .._options import COMMAND_LINE, OptionSource
+from ..compare.api import study_model
 from ..exceptions import InputError
 from .study import BootstrapSettings, CompareSettings, Dataset, Study
 
@@ -218,29 +219,6 @@ def stage_fit(
     prov = provenance(options.to_dict(), {"spectra": _spectra_records(spectra)})
     write_fit_json(fit_document(fits, options.to_dict(), prov), out_json, force=True)
     return fits
-
-
-def study_model(fits: list[Any], order: list[str] | None = None) -> str:
-    """The model compared between populations: lowest AIC summed over all populations.
-
-    Among the models fitted to every population, those that converged everywhere are
-    preferred. The sum of AICs of separate fits is the AIC of the joint model.
-
-    Parameters
-    ----------
-    fits : list of PopulationFit
-    order : list of str, optional
-        Tie-break order (the study's model order).
-
-    Returns
-    -------
-    str
-    """
-    common = [m for m in (order or list(fits[0].fits)) if all(m in pf.fits for pf in fits)]
-    if not common:
-        raise InputError("no DFE model is fitted to every population")
-    ok = [m for m in common if all(pf.fits[m].success for pf in fits)] or common
-    return min(ok, key=lambda m: (sum(pf.fits[m].aic for pf in fits), ok.index(m)))
 
 
 def stage_bootstrap(
