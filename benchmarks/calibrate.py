@@ -1,18 +1,21 @@
 """Calibration of intervals and tests on replicate studies from ``driftband simulate``.
 
-Two scenarios, R replicate studies each (forward Wright–Fisher, one distribution of s,
-gamma shape 0.3; 1e5 sites per class; n = 20 gene copies; 50 blocks):
+Unlinked sites at equilibrium. Two scenarios, R replicate studies each (forward
+Wright–Fisher, one distribution of s, gamma shape 0.3; 1e5 sites per class; n = 20 gene
+copies; 50 blocks), fitted as ``driftband run`` does by default: the three default DFE
+families, the model-averaged headline, a bootstrap refitting every family, the default
+comparison tests with raw (χ²) and linkage-adjusted p-values.
 
 * ``same``: A and B both N = 300 (same DFE on S, same Ne). Reports (a) the coverage of the
-  95 % bootstrap interval of the neutral-band share (both populations pooled; target
-  93–97 %), (b) the size at 5 % of ``shared_dfe_lrt`` and ``neutral_share_difference``
-  (target <= 6 %).
+  95 % bootstrap interval of the model-averaged neutral-band share and of the gamma
+  family's (both populations pooled; target 93–97 %), (b) the size at 5 % of every test
+  (target <= 6 %), raw and adjusted.
 * ``ne_only``: A N = 600, B N = 150 (the same distribution of s, so S̄_B = S̄_A / 4). Reports
-  (c) the size at 5 % of ``ne_only_lrt`` (true here) and (d) the power of
+  (c) the size at 5 % of both "only Ne differs" tests (true here) and (d) the power of
   ``neutral_share_difference`` and ``shared_dfe_lrt`` to detect the difference in
   neutral-band share (truth printed, about 0.1).
 
-Run: python benchmarks/calibrate.py [R] [B] [workers]   (defaults 100, 100, 2)
+Run: python benchmarks/calibrate.py [R] [B] [workers]   (defaults 100, 200, 2)
 Each replicate's result is appended as a JSON line to ``benchmarks/_data/calibration.jsonl``
 as it finishes; ``python benchmarks/calibrate.py --summary`` prints the table from that
 file (e.g. for a run cut short).
@@ -33,6 +36,7 @@ import numpy as np
 from scipy.special import gammainc
 
 from driftband.compare import compare_pair
+from driftband.defaults import COMPARE_TESTS, DEFAULT_MODELS, DEFAULT_REPLICATES
 from driftband.fit.api import fit_population
 from driftband.fit.bootstrap import bootstrap_fits
 from driftband.fit.likelihood import SpectrumPair
@@ -67,7 +71,7 @@ def one_replicate(args) -> dict[str, float]:
         seed=1000 * (scenario == "ne_only") + rep,
     )
     ss = study.spectra
-    opts = FitOptions(models=(DfeModel("gamma"),), eps=0.0)
+    opts = FitOptions(models=tuple(DfeModel(m) for m in DEFAULT_MODELS), eps=0.0)
     fits = []
     for name, pop in ss.populations.items():
         pf = fit_population(SpectrumPair.from_population(pop), opts, name)
@@ -78,11 +82,15 @@ def one_replicate(args) -> dict[str, float]:
     out = {}
     tv = truth(scenario)
     for pf in fits:
-        lo, hi = pf.model_bootstrap("gamma").shares_ci[0]
+        h = pf.headline()
+        lo, hi = h.shares_ci[0]
         out[f"cover_{pf.population}"] = float(lo <= tv[pf.population] <= hi)
-        out[f"share_{pf.population}"] = float(pf.best.shares[0])
+        out[f"share_{pf.population}"] = float(h.shares[0])
+        lo, hi = pf.model_bootstrap("gamma").shares_ci[0]
+        out[f"cover_gamma_{pf.population}"] = float(lo <= tv[pf.population] <= hi)
     for r in rows:
         out[f"p_{r.test}"] = r.p_value
+        out[f"praw_{r.test}"] = r.extra.get("p_raw", r.p_value)
     return out
 
 
@@ -104,7 +112,7 @@ def _run(R: int, B: int, workers: int) -> None:
 def main() -> None:
     if sys.argv[1:2] != ["--summary"]:
         R = int(sys.argv[1]) if len(sys.argv) > 1 else 100
-        B = int(sys.argv[2]) if len(sys.argv) > 2 else 100
+        B = int(sys.argv[2]) if len(sys.argv) > 2 else DEFAULT_REPLICATES
         workers = int(sys.argv[3]) if len(sys.argv) > 3 else 2
         _run(R, B, workers)
     with open(LOG) as fh:
@@ -124,20 +132,30 @@ def main() -> None:
         )
         return float(v.mean()), v.size
 
-    cov = np.mean([r[k] for r in res["same"] for k in ("cover_A", "cover_B")])
-    print(f"{'(a) coverage of 95% CI of neutral share (same)':<58} {cov:>7.3f} {'0.93-0.97':>10}")
-    for test in ("shared_dfe_lrt", "neutral_share_difference"):
-        v, _ = rate("same", f"p_{test}", lambda p: p < 0.05)
-        print(
-            f"{'(b) size at 5% of ' + test + ' (same DFE, same Ne)':<58} {v:>7.3f} {'<= 0.06':>10}"
-        )
-    v, _ = rate("ne_only", "p_ne_only_lrt", lambda p: p < 0.05)
-    print(f"{'(c) size at 5% of ne_only_lrt (only Ne differs)':<58} {v:>7.3f} {'~0.05':>10}")
+    def se(p: float, m: int) -> str:
+        return f"± {np.sqrt(max(p * (1 - p), 1e-12) / max(m, 1)):.3f}"
+
+    for tag, what in (("", "model-averaged"), ("gamma_", "gamma family")):
+        v = [r[f"cover_{tag}{k}"] for r in res["same"] for k in "AB" if f"cover_{tag}{k}" in r]
+        if v:
+            c = float(np.mean(v))
+            label = f"(a) coverage of 95% CI of neutral share, {what}"
+            print(f"{label:<58} {c:>7.3f} {'0.93-0.97':>10} {se(c, len(v))}")
+    for test in COMPARE_TESTS:
+        for key, kind in (("praw", "raw"), ("p", "adjusted")):
+            v, m = rate("same", f"{key}_{test}", lambda p: p < 0.05)
+            label = f"(b) size at 5% of {test} ({kind})"
+            print(f"{label:<58} {v:>7.3f} {'<= 0.06':>10} {se(v, m)}")
+    for test in ("ne_only_free_lrt", "ne_only_lrt"):
+        for key, kind in (("praw", "raw"), ("p", "adjusted")):
+            v, m = rate("ne_only", f"{key}_{test}", lambda p: p < 0.05)
+            label = f"(c) size at 5% of {test} (only Ne differs; {kind})"
+            print(f"{label:<58} {v:>7.3f} {'<= 0.06':>10} {se(v, m)}")
     tv = truth("ne_only")
     for test in ("neutral_share_difference", "shared_dfe_lrt"):
-        v, _ = rate("ne_only", f"p_{test}", lambda p: p < 0.05)
+        v, m = rate("ne_only", f"p_{test}", lambda p: p < 0.05)
         label = f"(d) power of {test} (true diff {tv['B'] - tv['A']:.3f})"
-        print(f"{label:<58} {v:>7.3f} {'high':>10}")
+        print(f"{label:<58} {v:>7.3f} {'high':>10} {se(v, m)}")
     for sc in SCENARIOS:
         t = truth(sc)
         for p in "AB":

@@ -384,3 +384,19 @@ def test_few_blocks_flag_the_interval_propose_a_block_size_and_give_no_p(tmp_pat
     (row,) = _read_tsv(cmp_path)
     assert row["p_value"] == "" and "no p-value: only 6 genomic blocks" in row["note"]
     assert row["ci_low"] != ""  # the interval is still written, marked by the note
+
+
+def test_compare_model_defaults_to_the_lowest_summed_aic(study, tmp_path):
+    """As in `run`: without --model, compare uses the model of lowest AIC summed over all
+    populations (the AIC of the joint model of separate fits; Akaike 1974)."""
+    _d, spectra = study
+    fit, out = tmp_path / "fit.json", tmp_path / "compare.tsv"
+    args = ["fit", str(spectra), "--dfe", "gamma,lognormal", "--misorientation", "fixed:0"]
+    assert main(args + ["-o", str(fit), "-q"]) == 0
+    doc = json.loads(fit.read_text())
+    aic = {
+        m: sum(p["models"][m]["aic"] for p in doc["populations"].values())
+        for m in ("gamma", "lognormal")
+    }
+    assert main(["compare", str(fit), "--tests", "shared_dfe_lrt", "-o", str(out), "-q"]) == 0
+    assert {r["model"] for r in _read_tsv(out)} == {min(aic, key=aic.get)}

@@ -53,3 +53,13 @@ def test_ruff_check_and_format_are_clean():
             [sys.executable, "-m", "ruff", *args], cwd=ROOT, capture_output=True, text=True
         )
         assert res.returncode == 0, res.stdout[-3000:] + res.stderr[-1000:]
+
+
+def test_readme_lists_every_reference_of_the_report():
+    """One list of citations: the README's References hold every entry the report shows."""
+    from driftband.report._text import REFERENCES
+
+    text = (ROOT / "README.md").read_text(encoding="utf-8")
+    refs = text.split("## References", 1)[1]
+    missing = [r for r in REFERENCES if f"- {r}" not in refs]
+    assert not missing, missing

@@ -27,10 +27,13 @@ def add_parser(subparsers: Subparsers) -> None:
         help="test whether populations differ",
         description=(
             "For every pair of populations (or those named): a likelihood-ratio test of one "
-            "shared DFE, the difference in the share of new mutations with |Ne*s| < 1 with "
-            "its bootstrap interval and p-value (needs fits made with --bootstrap), and the "
-            "test that only Ne differs (one distribution of s, S scaled by the Ne ratio "
-            "taken from neutral diversity). p-values are adjusted across pairs (Holm)."
+            "shared DFE (shared_dfe_lrt), the difference in the share of new mutations with "
+            "|Ne*s| < 1 with its bootstrap interval and p-value (neutral_share_difference; "
+            "needs fits made with --bootstrap), and two tests that only Ne differs (one "
+            "distribution of s, S scaled by an Ne ratio fitted freely, ne_only_free_lrt, or "
+            "taken from neutral diversity, ne_only_lrt). p-values of the likelihood-ratio "
+            "tests are adjusted for linked sites when the fits have a bootstrap of enough "
+            "blocks, and across pairs (Holm by default)."
         ),
         examples=EXAMPLES,
     )
@@ -38,8 +41,9 @@ def add_parser(subparsers: Subparsers) -> None:
     p.add_argument("--pairs", metavar="A:B,...", help="pairs to compare (default: all)")
     p.add_argument(
         "--model",
-        default="gamma",
-        help="DFE model compared (must be fitted to both; default gamma)",
+        default="auto",
+        help="DFE model compared: 'auto' (default: the lowest AIC summed over all "
+        "populations, as in 'driftband run') or a model fitted to every population",
     )
     p.add_argument(
         "--relative-mutation-rate",
@@ -48,7 +52,9 @@ def add_parser(subparsers: Subparsers) -> None:
         help="mutation rate of POP relative to the others (default 1; repeatable)",
     )
     p.add_argument(
-        "--tests", default=",".join(COMPARE_TESTS), help="tests to run (default: all three)"
+        "--tests",
+        default=",".join(COMPARE_TESTS),
+        help=f"tests to run, comma-separated (default: all, {', '.join(COMPARE_TESTS)})",
     )
     p.add_argument(
         "--adjust",
@@ -64,20 +70,25 @@ def add_parser(subparsers: Subparsers) -> None:
 def run(args: argparse.Namespace) -> int:
     """Run ``driftband compare``."""
     from ..compare import compare_fits, write_compare_tsv
+    from ..compare.api import study_model
     from ..fit.io import read_fit_files
 
     check_outputs([args.output], args.force)
     tests = tuple(t.strip() for t in args.tests.split(",") if t.strip())
     mu = parse_kv(args.relative_mutation_rate, "--relative-mutation-rate", float)
     options, fits = read_fit_files(args.fits)
-    try:
-        options.model(args.model)
-    except OptionError as err:
-        raise OptionError(f"--model {args.model}: {err}") from None
+    model = args.model
+    if model == "auto":
+        model = study_model(fits, [m.name for m in options.models])
+    else:
+        try:
+            options.model(model)
+        except OptionError as err:
+            raise OptionError(f"--model {model}: {err}") from None
     rows = compare_fits(
         sorted(fits, key=lambda pf: pf.population),
         options,
-        args.model,
+        model,
         pairs=args.pairs.split(",") if args.pairs else None,
         tests=tests,
         relative_mu=mu,

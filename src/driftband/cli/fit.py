@@ -9,6 +9,7 @@ from typing import Any
 
 from .._io import after_commit, check_outputs, file_record, provenance
 from ..defaults import DEFAULT_MODELS, HEADLINES, format_edges
+from ..effect import DEFAULT_EFFECT, EFFECTS
 from ..exceptions import OptionError
 from ._common import Subparsers, add_common_arguments, add_subcommand, parse_kv
 
@@ -97,6 +98,13 @@ def add_parser(subparsers: Subparsers) -> None:
         help="band edges on |Ne*s| (default %(default)s; the last band is open)",
     )
     p.add_argument(
+        "--effect",
+        choices=EFFECTS,
+        default=DEFAULT_EFFECT,
+        help="what s in |Ne*s| is: the heterozygote effect (default; fitness 1:1+s:1+2s, "
+        "S = 4Ne*s) or the homozygote effect (fitness 1:1+s/2:1+s, S = 2Ne*s)",
+    )
+    p.add_argument(
         "--populations", metavar="P,...", help="fit only these populations (default: all)"
     )
     p.add_argument(
@@ -144,12 +152,13 @@ def add_parser(subparsers: Subparsers) -> None:
 def run(args: argparse.Namespace) -> int:
     """Run ``driftband fit``."""
     from .._parallel import connect, resolve_workers
+    from ..effect import core_edges
     from ..fit.bootstrap import check_bootstrap_settings
     from ..fit.models import parse_models
     from ..fit.options import FitOptions, parse_misorientation
 
     check_outputs([args.output, args.bands_tsv], args.force)
-    edges = parse_bands(args.bands)
+    edges = core_edges(parse_bands(args.bands), args.effect)
     eps = parse_misorientation(args.misorientation)
     try:
         models = tuple(parse_models(args.dfe, args.beneficial, edges))
@@ -164,6 +173,7 @@ def run(args: argparse.Namespace) -> int:
         args.equilibrium,
         edges,
         args.headline,
+        args.effect,
     )
     check_bootstrap_settings(args.bootstrap, args.level)
     labels = parse_kv(args.label, "--label")
@@ -197,7 +207,7 @@ def _run(args: argparse.Namespace, options: Any, labels: dict[str, str], client:
             "%s: best model %s, share with |Ne*s| < %g: %.3f",
             pf.population,
             pf.best.model,
-            options.edges_nes[1],
+            options.shown_edges[1],
             pf.best.shares[0],
         )
     if args.bootstrap:
@@ -223,7 +233,7 @@ def _run(args: argparse.Namespace, options: Any, labels: dict[str, str], client:
         }
     write_fit_json(fit_document(fits, opts, prov), args.output, force=args.force)
     if args.bands_tsv:
-        write_bands_tsv(fits, args.bands_tsv, force=args.force)
+        write_bands_tsv(fits, args.bands_tsv, options.effect, force=args.force)
     if not args.quiet:
         after_commit(lambda: print(os.path.abspath(args.output)))
     return 0

@@ -7,6 +7,7 @@ import sys
 from typing import TYPE_CHECKING
 
 from ..defaults import HEADLINES
+from ..effect import EFFECTS
 from ..exceptions import OptionError
 from ._common import Subparsers, add_common_arguments, add_subcommand, progress_on_stderr
 
@@ -72,6 +73,7 @@ _FIT_FLAGS = {
     "equilibrium": "--equilibrium",
     "beneficial": "--beneficial",
     "headline": "--headline",
+    "effect": "--effect",
 }
 
 
@@ -173,6 +175,12 @@ def add_study_arguments(p: argparse.ArgumentParser) -> None:
         help="headline shares averaged over the families (default) or the AIC-best one",
     )
     f.add_argument("--bands", metavar="EDGES", help="band edges on |Ne*s| (default 0,1,10,100)")
+    f.add_argument(
+        "--effect",
+        choices=EFFECTS,
+        help="s in |Ne*s| is the heterozygote effect (default; S = 4Ne*s) or the "
+        "homozygote effect (S = 2Ne*s)",
+    )
     f.add_argument(
         "--misorientation",
         metavar="free|fixed:E",

@@ -25,7 +25,13 @@ from ..fit.results import PopulationFit
 from ..prf.dfe import DfeExpectation
 from .pair import ComparisonRow, compare_pair
 
-__all__ = ["adjust_pvalues", "check_compare_settings", "compare_fits", "resolve_pairs"]
+__all__ = [
+    "adjust_pvalues",
+    "check_compare_settings",
+    "compare_fits",
+    "resolve_pairs",
+    "study_model",
+]
 
 log = logging.getLogger("driftband")
 
@@ -254,3 +260,26 @@ def compare_fits(
             "bootstrap (rerun 'driftband fit' with --bootstrap B)"
         )
     return rows
+
+
+def study_model(fits: list[Any], order: list[str] | None = None) -> str:
+    """The model compared between populations: lowest AIC summed over all populations.
+
+    Among the models fitted to every population, those that converged everywhere are
+    preferred. The sum of AICs of separate fits is the AIC of the joint model.
+
+    Parameters
+    ----------
+    fits : list of PopulationFit
+    order : list of str, optional
+        Tie-break order (the study's model order).
+
+    Returns
+    -------
+    str
+    """
+    common = [m for m in (order or list(fits[0].fits)) if all(m in pf.fits for pf in fits)]
+    if not common:
+        raise InputError("no DFE model is fitted to every population")
+    ok = [m for m in common if all(pf.fits[m].success for pf in fits)] or common
+    return min(ok, key=lambda m: (sum(pf.fits[m].aic for pf in fits), ok.index(m)))

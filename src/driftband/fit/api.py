@@ -295,7 +295,7 @@ def fit_spectra(
             name,
             best.model,
             best.aic,
-            options.edges_nes[1],
+            options.shown_edges[1],
             best.shares[0],
         )
         fits.append(pf)

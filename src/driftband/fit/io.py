@@ -14,10 +14,11 @@ The fit file, schema ``driftband-fit`` version 1::
                  "bootstrap": {...}}},
      "provenance": {...}}
 
-``bands.tsv`` has one row per population and band for the AIC-best model, columns
-``population, band, nes_low, nes_high, S_low, S_high, share, ci_low, ci_high, model``
-(``nes_*`` on |Ne·s|, ``S_*`` on |S| = 4|Ne·s|; ``nes_high`` of the last band is ``inf``;
-interval columns are empty without a bootstrap).
+``bands.tsv`` has one row per population, band and model (:data:`BANDS_COLUMNS`):
+``nes_*`` on |Ne·s| under the convention named in ``effect`` (:mod:`driftband.effect`),
+``S_*`` on |S|; ``nes_high`` of the last band is ``inf``; interval columns are empty
+without a bootstrap. The fit file's ``band_edges`` are always on the heterozygote
+|Ne·s| = |S|/4, with ``options.effect`` naming the convention of the tables.
 """
 
 from __future__ import annotations
@@ -31,6 +32,7 @@ from typing import Any
 import numpy as np
 
 from .._io import atomic_output, json_ready, load_json, tsv_cell
+from ..effect import DEFAULT_EFFECT, shown_edges
 from ..exceptions import InputError
 from .options import FitOptions
 from .results import PopulationFit
@@ -64,6 +66,7 @@ BANDS_COLUMNS = [
     "band",
     "nes_low",
     "nes_high",
+    "effect",
     "S_low",
     "S_high",
     "share",
@@ -343,8 +346,11 @@ def _interval_word(ci: Any, reliable: bool) -> str:
     return "reliable" if reliable else "unreliable"
 
 
-def band_rows(fits: list[PopulationFit]) -> list[dict[str, Any]]:
+def band_rows(fits: list[PopulationFit], effect: str = DEFAULT_EFFECT) -> list[dict[str, Any]]:
     """Rows of ``bands.tsv`` (columns :data:`BANDS_COLUMNS`).
+
+    ``nes_low``/``nes_high`` are on |Ne·s| under the convention ``effect`` (the column
+    ``effect`` names it; :mod:`driftband.effect`), ``S_low``/``S_high`` on |S|.
 
     For each population: the headline rows (``role`` = ``headline``; ``model`` =
     ``averaged``, or the AIC-best family under ``--headline best``), then one row per band
@@ -354,7 +360,8 @@ def band_rows(fits: list[PopulationFit]) -> list[dict[str, Any]]:
     rows = []
     for pf in fits:
         h = pf.headline()
-        edges = list(pf.best.band_edges) + [float("inf")]
+        core = list(pf.best.band_edges) + [float("inf")]
+        edges = list(shown_edges(core, effect))
         note = "; ".join(h.notes)
         entries: list[tuple[str, str, Any, Any, Any]] = [
             ("headline", h.model, h.shares, h.shares_ci, None)
@@ -375,8 +382,9 @@ def band_rows(fits: list[PopulationFit]) -> list[dict[str, Any]]:
                         "band": band_label(lo, hi),
                         "nes_low": lo,
                         "nes_high": hi,
-                        "S_low": 4 * lo,
-                        "S_high": 4 * hi,
+                        "effect": effect,
+                        "S_low": 4 * core[k],
+                        "S_high": 4 * core[k + 1],
                         "share": float(share),
                         "ci_low": None if ci is None else ci[k].low,
                         "ci_high": None if ci is None else ci[k].high,
@@ -393,11 +401,14 @@ def band_rows(fits: list[PopulationFit]) -> list[dict[str, Any]]:
 
 
 def write_bands_tsv(
-    fits: list[PopulationFit], path: str | os.PathLike, force: bool = False
+    fits: list[PopulationFit],
+    path: str | os.PathLike,
+    effect: str = DEFAULT_EFFECT,
+    force: bool = False,
 ) -> None:
-    """Write ``bands.tsv`` atomically."""
+    """Write ``bands.tsv`` atomically (edges on |Ne·s| under the convention ``effect``)."""
     with atomic_output(path, force=force, newline="") as fh:
         w = csv.writer(fh, delimiter="\t", lineterminator="\n")
         w.writerow(BANDS_COLUMNS)
-        for r in band_rows(fits):
+        for r in band_rows(fits, effect):
             w.writerow([tsv_cell(r[c]) for c in BANDS_COLUMNS])

@@ -359,6 +359,9 @@ class Objective:
         self.equilibrium = equilibrium
         self.expect = expectation or DfeExpectation(data.n)
         self.n_eval = 0
+        # the profiled counts of the last evaluation: the Newton start of the next one
+        # (successive points of a search are close; the optimum does not depend on it)
+        self._c_last: np.ndarray | None = None
 
     @property
     def dim(self) -> int:
@@ -386,7 +389,9 @@ class Objective:
         xd, eps = self.split(x)
         dfe = self.model.to_dfe(xd)
         gbar = self.expect.mean_g(dfe)
-        c, ln, ls = profile_counts(self.data, gbar, eps, self.equilibrium)
+        c, ln, ls = profile_counts(self.data, gbar, eps, self.equilibrium, self._c_last)
+        if self.free_eps and np.all(np.isfinite(c)) and np.all(c > 0):
+            self._c_last = c
         ll = poisson_loglik(self.data.neutral, ln) + poisson_loglik(self.data.selected, ls)
         return ll, c, ln, ls, gbar
 

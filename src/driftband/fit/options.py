@@ -12,6 +12,7 @@ from typing import Any
 import numpy as np
 
 from ..defaults import DEFAULT_EDGES_NES, HEADLINES
+from ..effect import DEFAULT_EFFECT, EFFECTS, shown_edges
 from ..exceptions import OptionError
 from .models import DfeModel, parse_models
 
@@ -108,10 +109,13 @@ class FitOptions:
     equilibrium : bool
         Fix nuisance factors r_i = 1.
     edges_nes : tuple of float
-        Band edges on |Ne·s| (first 0; the last band is open).
+        Band edges on the core's |Ne·s| = |S|/4 (first 0; the last band is open), whatever
+        the convention the user stated them in (see :mod:`driftband.effect`).
     headline : {"averaged", "best"}
         Headline shares averaged over the families by Akaike weight, or from the AIC-best
         family alone.
+    effect : {"heterozygote", "homozygote"}
+        The convention of ``s`` in the band tables a user reads (:attr:`shown_edges`).
     """
 
     neutral: str = "4fold"
@@ -121,14 +125,22 @@ class FitOptions:
     equilibrium: bool = False
     edges_nes: tuple[float, ...] = DEFAULT_EDGES_NES
     headline: str = "averaged"
+    effect: str = DEFAULT_EFFECT
 
     def __post_init__(self) -> None:
         if self.headline not in HEADLINES:
             raise OptionError(f"--headline {self.headline!r}: choose {' or '.join(HEADLINES)}")
+        if self.effect not in EFFECTS:
+            raise OptionError(f"--effect {self.effect!r}: choose {' or '.join(EFFECTS)}")
         if self.eps is not None and not 0.0 <= self.eps < 0.5:
             raise OptionError(
                 f"--misorientation {format_misorientation(self.eps)}: the rate must be in [0, 0.5)"
             )
+
+    @property
+    def shown_edges(self) -> tuple[float, ...]:
+        """The band edges on |Ne·s| under :attr:`effect`, as tables show them."""
+        return shown_edges(self.edges_nes, self.effect)
 
     def model(self, name: str) -> DfeModel:
         """The model called ``name`` (e.g. ``gamma+beneficial``), with these band edges.
@@ -156,6 +168,7 @@ class FitOptions:
             "equilibrium": self.equilibrium,
             "band_edges_nes": list(self.edges_nes),
             "headline": self.headline,
+            "effect": self.effect,
         }
 
     @classmethod
@@ -177,4 +190,5 @@ class FitOptions:
             bool(d.get("equilibrium", False)),
             edges,
             str(d.get("headline", "best")),  # files before the averaged headline: the best
+            str(d.get("effect", DEFAULT_EFFECT)),
         )

@@ -14,16 +14,19 @@ import math
 from collections.abc import Iterable
 from typing import Any
 
+from ..effect import convention_text
 from ..spectra.callable import CALLABLE_SOURCES
 from ._plots import bands_figure, spectra_figure
 from ._text import (
     ALPHA_EXPLAINED,
+    ALPHA_NEGATIVE_NOTE,
     CAUTIONS,
-    CONVENTIONS,
     FOLDED_SHORT,
     MINUS,
     NA,
+    REFERENCES,
     band_label,
+    conventions,
     fint,
     fnum,
     fp,
@@ -165,11 +168,12 @@ def _answer(view: ReportView) -> str:
         '<section id="answer"><h2>The answer: effectively neutral share per population</h2>',
         f"<p>Share of new mutations at {esc(sel)} (selected-class) sites whose scaled "
         f"effect lies in the effectively neutral band |Ne\u00b7s| &lt; {b0.hi:g} "
-        f"(|S| &lt; {4 * b0.hi:g}), averaged over the DFE families by their Akaike "
+        f"(|S| &lt; {b0.hi_s:g}), averaged over the DFE families by their Akaike "
         "weights (or under the AIC-best family where the fit asked for it), with "
         f"{esc(lvl)} block-bootstrap percentile intervals in which the model choice is "
         "redone in every replicate.</p>",
         _table("headline", "Effectively neutral share of new mutations", head, rows, "headline"),
+        f'<p class="convention">{esc(convention_text(view.effect))}.</p>',
         '<ul class="answer">'
         + "".join(f"<li>{esc(answer_sentence(v, sel))}</li>" for v in view.populations)
         + "</ul>",
@@ -198,7 +202,8 @@ def _answer(view: ReportView) -> str:
             bands_figure(pops, sel, lvl),
             "Grouped bar chart of band shares for every population",
             f"Share of new {sel} mutations in each band of |Ne\u00b7s| (bottom axis) and of "
-            f"|S| = 4|Ne\u00b7s| (top axis), headline shares per population (averaged over "
+            f"|S| = {b0.s_per_nes:g}|Ne\u00b7s| (top axis), headline shares per population "
+            "(averaged over "
             "the DFE families by Akaike weight unless the fit asked for the AIC-best "
             f"family); black bars: {lvl} "
             "bootstrap percentile intervals; the shaded band is the effectively neutral one. "
@@ -219,6 +224,7 @@ def _answer(view: ReportView) -> str:
     out.append(
         _table("bands", f"Shares in all |Ne\u00b7s| bands, estimate ({lvl} interval)", head, rows)
     )
+    out.append(f'<p class="convention">{esc(convention_text(view.effect))}.</p>')
     out.append("</section>")
     return "\n".join(out)
 
@@ -630,7 +636,8 @@ def _adaptive(v: PopulationView, view: ReportView) -> str:
     if caveat:
         out.append(f'<p class="flag">\u26a0 {esc(caveat)}.</p>')
     implied = any(is_num((a.get("alpha_dfe") or {}).get("alpha_model")) for a in present.values())
-    lines = ALPHA_EXPLAINED if implied else ALPHA_EXPLAINED[:-1]  # the last: α implied
+    # the last of ALPHA_EXPLAINED is on the α implied by the DFE
+    lines = [*(ALPHA_EXPLAINED if implied else ALPHA_EXPLAINED[:-1]), ALPHA_NEGATIVE_NOTE]
     out.append('<ul class="note">' + "".join(f"<li>{esc(t)}</li>" for t in lines) + "</ul>")
     return "\n".join(out)
 
@@ -818,14 +825,17 @@ def _provenance(view: ReportView) -> str:
     return "\n".join(out)
 
 
-def _conventions_cautions() -> str:
+def _conventions_cautions(effect: str) -> str:
     out = ['<section id="conventions"><h2>Conventions</h2><ul>']
-    out += [f"<li>{esc(c)}</li>" for c in CONVENTIONS]
+    out += [f"<li>{esc(c)}</li>" for c in conventions(effect)]
     out.append("</ul></section>")
     out.append('<section id="cautions"><h2>Cautions</h2><dl class="cautions">')
     for title, text in CAUTIONS:
         out.append(f"<dt>{esc(title)}</dt><dd>{esc(text)}</dd>")
     out.append("</dl></section>")
+    out.append('<section id="references"><h2>References</h2><ul class="references">')
+    out += [f"<li>{esc(r)}</li>" for r in REFERENCES]
+    out.append("</ul></section>")
     return "\n".join(out)
 
 
@@ -839,6 +849,7 @@ def render_html(view: ReportView) -> str:
         '<a href="#provenance">Provenance</a>',
         '<a href="#conventions">Conventions</a>',
         '<a href="#cautions">Cautions</a>',
+        '<a href="#references">References</a>',
     ]
     sub = (
         f"Populations: {names}. Report made {prov.get('date', NA)} by "
@@ -862,7 +873,7 @@ def render_html(view: ReportView) -> str:
         _comparisons(view),
         *(_population(v, view) for v in view.populations),
         _provenance(view),
-        _conventions_cautions(),
+        _conventions_cautions(view.effect),
         "</main>",
         "</body>",
         "</html>",

@@ -5,7 +5,20 @@ from __future__ import annotations
 import re
 from typing import Any
 
-from ._text import CAUTIONS, CONVENTIONS, FOLDED_SHORT, NA, fnum, frange, fsig, is_num, pct
+from ..effect import convention_text
+from ._text import (
+    ALPHA_NEGATIVE_NOTE,
+    CAUTIONS,
+    FOLDED_SHORT,
+    NA,
+    REFERENCES,
+    conventions,
+    fnum,
+    frange,
+    fsig,
+    is_num,
+    pct,
+)
 from ._view import ReportView, answer_sentence, comparison_guides
 
 __all__ = ["render_markdown"]
@@ -55,7 +68,7 @@ def render_markdown(view: ReportView) -> str:
         "## Answer",
         "",
         f"Share of new {md(sel)} (selected-class) mutations in the effectively neutral band "
-        f"|Ne·s| < {b0.hi:g} (|S| < {4 * b0.hi:g}), headline model (averaged over the DFE "
+        f"|Ne·s| < {b0.hi:g} (|S| < {b0.hi_s:g}), headline model (averaged over the DFE "
         f"families by Akaike weight, or the AIC-best one), {lvl} block-bootstrap percentile "
         "interval:",
         "",
@@ -83,7 +96,7 @@ def render_markdown(view: ReportView) -> str:
                 ]
             )
         )
-    out.append("")
+    out += ["", f"{md(convention_text(view.effect))}.", ""]
     out += [f"- {md(answer_sentence(v, sel))}" for v in view.populations]
     out += ["", f"All bands (estimate and {lvl} interval):", ""]
     bands = view.populations[0].bands
@@ -164,8 +177,12 @@ def render_markdown(view: ReportView) -> str:
                 + (f"; α implied by the DFE = {fnum(implied)}" if is_num(implied) else "")
                 + (f" (⚠ {md(ad['caveat'])})" if ad.get("caveat") else "")
             )
+            classic = ad.get("alpha_classic")
+            if is_num(classic) and classic < 0:
+                out.append(f"  - {md(ALPHA_NEGATIVE_NOTE)}")
         out.append("")
-    out += ["## Conventions", ""] + [f"- {md(c)}" for c in CONVENTIONS]
+    out += ["## Conventions", ""] + [f"- {md(c)}" for c in conventions(view.effect)]
     out += ["", "## Cautions", ""] + [f"- **{md(t)}.** {md(x)}" for t, x in CAUTIONS]
+    out += ["", "## References", ""] + [f"- {md(r)}" for r in REFERENCES]
     out.append("")
     return "\n".join(out)

@@ -9,6 +9,8 @@ from __future__ import annotations
 import math
 from typing import Any, TypeGuard
 
+from ..effect import DEFAULT_EFFECT, S_PER_NES
+
 MINUS = "\u2212"
 NA = "n/a"
 
@@ -102,22 +104,38 @@ def pct(level: Any) -> str:
     return f"{100 * level:g} %" if is_num(level) else "95 %"
 
 
-CONVENTIONS = [
-    "Genotype fitnesses are 1 : 1+s : 1+2s (semidominant: the heterozygote effect is s).",
-    "The scaled selection coefficient is S = 4\u00b7Ne\u00b7s; deleterious mutations have "
-    "S < 0. The fixation probability of a new mutation relative to a neutral one is "
-    "about S/(1 \u2212 e^(\u2212S)) (Kimura 1962).",
-    "Band edges are on |Ne\u00b7s| (= |S|/4); the first band, |Ne\u00b7s| < 1 "
-    "(|S| < 4), is the effectively neutral one: there drift outweighs selection.",
-    "Shares are of new mutations at selected-class sites, not of polymorphisms or "
-    "substitutions; they sum to 1 over the bands.",
-    "Intervals are percentile intervals of a block bootstrap over genomic blocks "
-    "(blocks resampled with replacement, every model refitted).",
-    "Expected spectra come from Poisson random field theory (Sawyer & Hartl 1992) with "
-    "demographic nuisance factors r_i shared by both classes (Eyre-Walker, Woolfit & "
-    "Phelps 2006); Pearson residuals are (observed \u2212 expected)/\u221aexpected.",
-    "Models are ranked by AIC; Akaike weights are exp(\u2212\u0394AIC/2), normalised.",
-]
+def conventions(effect: str = DEFAULT_EFFECT) -> list[str]:
+    """The report's list of conventions, for the effect convention ``effect`` of the bands."""
+    k = S_PER_NES[effect]
+    if effect == "homozygote":
+        fitness = (
+            "Genotype fitnesses are 1 : 1+s/2 : 1+s (semidominant; s is the homozygote "
+            "effect, as in some published tables), so S = 2\u00b7Ne\u00b7s."
+        )
+    else:
+        fitness = (
+            "Genotype fitnesses are 1 : 1+s : 1+2s (semidominant: the heterozygote effect "
+            "is s), so S = 4\u00b7Ne\u00b7s."
+        )
+    return [
+        fitness,
+        "S is the scaled selection coefficient of Poisson random field theory (4\u00b7Ne "
+        "times the heterozygote effect); deleterious mutations have S < 0. The fixation "
+        "probability of a new mutation relative to a neutral one is about "
+        "S/(1 \u2212 e^(\u2212S)) (Kimura 1962).",
+        f"Band edges are on |Ne\u00b7s| (= |S|/{k:g}); the first band, |Ne\u00b7s| < 1 "
+        f"(|S| < {k:g}) with the default edges, is the effectively neutral one: there drift "
+        "outweighs selection.",
+        "Shares are of new mutations at selected-class sites, not of polymorphisms or "
+        "substitutions; they sum to 1 over the bands.",
+        "Intervals are percentile intervals of a block bootstrap over genomic blocks "
+        "(blocks resampled with replacement, every model refitted).",
+        "Expected spectra come from Poisson random field theory (Sawyer & Hartl 1992) with "
+        "demographic nuisance factors r_i shared by both classes (Eyre-Walker, Woolfit & "
+        "Phelps 2006); Pearson residuals are (observed \u2212 expected)/\u221aexpected.",
+        "Models are ranked by AIC; Akaike weights are exp(\u2212\u0394AIC/2), normalised.",
+    ]
+
 
 #: When folded spectra are the right choice and what they lose (the README's "Folded or
 #: unfolded?" says the same).
@@ -237,3 +255,61 @@ def param_label(name: str, edges: list[float] | None = None) -> str:
         if k + 1 < len(e):
             return f"mass in |Ne\u00b7s| band {band_label(e[k], e[k + 1])}"
     return name
+
+
+#: Why the classic α of the McDonald–Kreitman table can be negative (shown beside α).
+ALPHA_NEGATIVE_NOTE = (
+    "The classic \u03b1 = 1 \u2212 D_S\u00b7P_N/(D_N\u00b7P_S) is negative when the "
+    "selected class holds more polymorphism, relative to its divergence, than the neutral "
+    "class. Slightly deleterious mutations do that: they segregate but rarely fix, so they "
+    "inflate P_N without adding to D_N. A negative value is a downward-biased estimate, not "
+    "a negative rate of adaptation; the asymptotic and the DFE-corrected \u03b1 remove most "
+    "of that bias (Fay, Wyckoff & Wu 2001; Eyre-Walker & Keightley 2009)."
+)
+
+#: Full citations of the methods the tool uses (one home: the report and the README list
+#: the same; tests/test_repo.py checks that the README holds every entry). From memory.
+REFERENCES: list[str] = [
+    "Akaike H (1974) A new look at the statistical model identification. IEEE Transactions "
+    "on Automatic Control 19: 716\u2013723.",
+    "Burnham KP, Anderson DR (2002) Model Selection and Multimodel Inference, 2nd edn. "
+    "Springer, New York.",
+    "Coffman AJ, Hsieh PH, Gravel S, Gutenkunst RN (2016) Computationally efficient "
+    "composite likelihood statistics for demographic inference. Molecular Biology and "
+    "Evolution 33: 591\u2013593.",
+    "Efron B, Tibshirani RJ (1993) An Introduction to the Bootstrap. Chapman & Hall, New York.",
+    "Eyre-Walker A, Keightley PD (2009) Estimating the rate of adaptive molecular evolution "
+    "in the presence of slightly deleterious mutations and population size change. "
+    "Molecular Biology and Evolution 26: 2097\u20132108.",
+    "Eyre-Walker A, Woolfit M, Phelps T (2006) The distribution of fitness effects of new "
+    "deleterious amino acid mutations in humans. Genetics 173: 891\u2013900.",
+    "Fay JC, Wyckoff GJ, Wu C-I (2001) Positive and negative selection on the human genome. "
+    "Genetics 158: 1227\u20131234.",
+    "Hernandez RD, Williamson SH, Bustamante CD (2007) Context dependence, ancestral "
+    "misidentification, and spurious signatures of natural selection. Molecular Biology "
+    "and Evolution 24: 1792\u20131800.",
+    "Holm S (1979) A simple sequentially rejective multiple test procedure. Scandinavian "
+    "Journal of Statistics 6: 65\u201370.",
+    "Kimura M (1962) On the probability of fixation of mutant genes in a population. "
+    "Genetics 47: 713\u2013719.",
+    "K\u00fcnsch HR (1989) The jackknife and the bootstrap for general stationary "
+    "observations. Annals of Statistics 17: 1217\u20131241.",
+    "Marth GT, Czabarka E, Murvai J, Sherry ST (2004) The allele frequency spectrum in "
+    "genome-wide human variation data reveals signals of differential demographic history "
+    "in three large world populations. Genetics 166: 351\u2013372.",
+    "McDonald JH, Kreitman M (1991) Adaptive protein evolution at the Adh locus in "
+    "Drosophila. Nature 351: 652\u2013654.",
+    "Messer PW, Petrov DA (2013) Frequent adaptation and the McDonald\u2013Kreitman test. "
+    "Proceedings of the National Academy of Sciences USA 110: 8615\u20138620.",
+    "Sawyer SA, Hartl DL (1992) Population genetics of polymorphism and divergence. "
+    "Genetics 132: 1161\u20131176.",
+    "Self SG, Liang K-Y (1987) Asymptotic properties of maximum likelihood estimators and "
+    "likelihood ratio tests under nonstandard conditions. Journal of the American "
+    "Statistical Association 82: 605\u2013610.",
+    "Smith NGC, Eyre-Walker A (2002) Adaptive protein evolution in Drosophila. Nature 415: "
+    "1022\u20131024.",
+    "Tajima F (1989) Statistical method for testing the neutral mutation hypothesis by DNA "
+    "polymorphism. Genetics 123: 585\u2013595.",
+    "Varin C, Reid N, Firth D (2011) An overview of composite likelihood methods. "
+    "Statistica Sinica 21: 5\u201342.",
+]

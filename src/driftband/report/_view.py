@@ -13,6 +13,7 @@ import re
 from dataclasses import dataclass, field
 from typing import Any
 
+from ..effect import DEFAULT_EFFECT, S_PER_NES, shown_edges
 from ..exceptions import InputError
 from ._inputs import check_compare_rows, check_fit_doc, check_spectra_doc
 from ._text import (
@@ -50,16 +51,23 @@ class Band:
     share: float | None
     ci_low: float | None
     ci_high: float | None
+    #: |S| per unit of |Ne·s| under the fit's effect convention (:mod:`driftband.effect`)
+    s_per_nes: float = 4.0
 
     @property
     def label(self) -> str:
-        """Band on |Ne·s|, e.g. ``0–1``."""
+        """Band on |Ne·s| (in the fit's effect convention), e.g. ``0–1``."""
         return band_label(self.lo, self.hi)
 
     @property
     def label_s(self) -> str:
-        """The same band on |S| = 4|Ne·s|, e.g. ``0–4``."""
-        return band_label(self.lo, self.hi, 4.0)
+        """The same band on |S|, e.g. ``0–4``."""
+        return band_label(self.lo, self.hi, self.s_per_nes)
+
+    @property
+    def hi_s(self) -> float:
+        """The upper edge on |S|."""
+        return self.hi * self.s_per_nes
 
 
 @dataclass
@@ -140,6 +148,11 @@ class ReportView:
     adjust_known: bool
 
     @property
+    def effect(self) -> str:
+        """The effect convention of the band edges (:mod:`driftband.effect`)."""
+        return str(self.options.get("effect", DEFAULT_EFFECT))
+
+    @property
     def edges(self) -> list[float]:
         """Band edges of the first population (lower edges and the open top)."""
         return [b.lo for b in self.populations[0].bands] + [math.inf]
@@ -159,12 +172,12 @@ def headline_model(p: dict[str, Any]) -> str:
     return str((p.get("headline") or {}).get("model") or p["best_model"])
 
 
-def _bands(p: dict[str, Any]) -> list[Band]:
+def _bands(p: dict[str, Any], effect: str) -> list[Band]:
     """The headline bands: the model-averaged shares where the fit file has them (schema
-    2), else the AIC-best model's."""
+    2), else the AIC-best model's; edges on |Ne·s| under the convention ``effect``."""
     best = p["best_model"]
     f = p["models"][best]
-    edges = [float(e) for e in f["band_edges"]] + [math.inf]
+    edges = list(shown_edges([float(e) for e in f["band_edges"]], effect)) + [math.inf]
     head = p.get("headline") or {}
     if head:
         shares, ci = head.get("shares") or [], head.get("shares_ci")
@@ -185,6 +198,7 @@ def _bands(p: dict[str, Any]) -> list[Band]:
                 s if is_num(s) else None,
                 lo if is_num(lo) else None,
                 hi if is_num(hi) else None,
+                S_PER_NES[effect],
             )
         )
     return out
@@ -628,6 +642,7 @@ def collect(
     if compare_rows is not None:
         check_compare_rows(compare_rows, fit_doc)
     options = fit_doc.get("options") or {}
+    effect = str(options.get("effect", DEFAULT_EFFECT))
     views = []
     for k, (name, p) in enumerate(fit_doc["populations"].items()):
         boot = p.get("bootstrap") or {}
@@ -639,7 +654,7 @@ def collect(
                 anchor=_anchor(k, name),
                 record=p,
                 best=p["best_model"],
-                bands=_bands(p),
+                bands=_bands(p, effect),
                 level=level if is_num(level) else 0.95,
                 replicates=boot.get("replicates") if boot else None,
                 blocks=blocks if is_num(blocks) else None,
@@ -701,6 +716,6 @@ def answer_sentence(v: PopulationView, selected: str) -> str:
     status += f" \u2014 {flag}, see the flags" if flag else ""
     return (
         f"{v.name}: a share of {fnum(b.share, 2)}{ci} of new {selected} mutations is "
-        f"effectively neutral (|Ne\u00b7s| < {b.hi:g}, |S| < {4 * b.hi:g}){under}"
+        f"effectively neutral (|Ne\u00b7s| < {b.hi:g}, |S| < {b.hi_s:g}){under}"
         f"{status}."
     )

@@ -15,6 +15,7 @@ from typing import Any
 
 from .._io import atomic_output, file_record, provenance
 from .._options import COMMAND_LINE, OptionSource
+from ..compare.api import study_model
 from ..exceptions import InputError
 from .study import BootstrapSettings, CompareSettings, Dataset, Study
 
@@ -52,6 +53,7 @@ def fit_options(study: Study) -> Any:
     InputError or OptionError
         A bad ``[fit]`` key (or command-line flag).
     """
+    from ..effect import EFFECTS, core_edges
     from ..exceptions import OptionError
     from ..fit.models import parse_models
     from ..fit.options import FitOptions, check_edges, parse_misorientation
@@ -62,8 +64,10 @@ def fit_options(study: Study) -> Any:
     def fail(key: str, err: Exception) -> Exception:
         return src.error(key, str(err).split(": ", 1)[-1])
 
+    if fs.effect not in EFFECTS:
+        raise fail("effect", OptionError(f"--effect {fs.effect!r}: choose {' or '.join(EFFECTS)}"))
     try:
-        edges = check_edges(tuple(fs.bands))
+        edges = core_edges(check_edges(tuple(fs.bands)), fs.effect)
     except OptionError as err:
         raise fail("bands", err) from None
     try:
@@ -78,7 +82,9 @@ def fit_options(study: Study) -> Any:
     if len(set(names)) != len(names):
         raise fail("dfe", OptionError("a model is named twice"))
     try:
-        return FitOptions(fs.neutral, fs.selected, models, eps, fs.equilibrium, edges, fs.headline)
+        return FitOptions(
+            fs.neutral, fs.selected, models, eps, fs.equilibrium, edges, fs.headline, fs.effect
+        )
     except OptionError as err:
         raise fail("headline", err) from None
 
@@ -219,29 +225,6 @@ def stage_fit(
     return fits
 
 
-def study_model(fits: list[Any], order: list[str] | None = None) -> str:
-    """The model compared between populations: lowest AIC summed over all populations.
-
-    Among the models fitted to every population, those that converged everywhere are
-    preferred. The sum of AICs of separate fits is the AIC of the joint model.
-
-    Parameters
-    ----------
-    fits : list of PopulationFit
-    order : list of str, optional
-        Tie-break order (the study's model order).
-
-    Returns
-    -------
-    str
-    """
-    common = [m for m in (order or list(fits[0].fits)) if all(m in pf.fits for pf in fits)]
-    if not common:
-        raise InputError("no DFE model is fitted to every population")
-    ok = [m for m in common if all(pf.fits[m].success for pf in fits)] or common
-    return min(ok, key=lambda m: (sum(pf.fits[m].aic for pf in fits), ok.index(m)))
-
-
 def stage_bootstrap(
     point_json: str | os.PathLike[str],
     spectra: list[SpectraFile],
@@ -325,7 +308,7 @@ def stage_bootstrap(
     prov["seed"] = settings.seed
     out = fit_document(fits, opts, prov)
     write_fit_json(out, out_json, force=True)
-    write_bands_tsv(fits, out_bands, force=True)
+    write_bands_tsv(fits, out_bands, options.effect, force=True)
     for pf in fits:
         mb = pf.model_bootstrap(pf.best.model)
         ci = mb.shares_ci[0] if mb is not None else None
@@ -334,7 +317,7 @@ def stage_bootstrap(
             "bootstrap: %s: %s, share with |Ne*s| < %g: %.3f%s",
             pf.population,
             pf.best.model,
-            options.edges_nes[1],
+            options.shown_edges[1],
             pf.best.shares[0],
             iv,
         )

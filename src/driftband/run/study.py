@@ -33,6 +33,7 @@ from ..defaults import (
     DEFAULT_SEED,
     format_edges,
 )
+from ..effect import DEFAULT_EFFECT
 from ..exceptions import DriftbandError, InputError, OptionError
 from ..fit.bootstrap import check_bootstrap_settings
 
@@ -117,6 +118,11 @@ STUDY_KEYS: dict[str, dict[str, tuple[str, str]]] = {
             "str",
             "'averaged' (default: shares averaged over the families by Akaike weight) or "
             "'best' (the AIC-best family alone)",
+        ),
+        "effect": (
+            "str",
+            "what s in the band edges' |Ne*s| is: 'heterozygote' (default; fitness "
+            "1:1+s:1+2s, S = 4Ne*s) or 'homozygote' (fitness 1:1+s/2:1+s, S = 2Ne*s)",
         ),
     },
     "bootstrap": {
@@ -228,6 +234,7 @@ class FitSettings:
     selected: str = "0fold"
     populations: list[str] | None = None
     headline: str = "averaged"
+    effect: str = DEFAULT_EFFECT
 
 
 @dataclass
