@@ -191,8 +191,14 @@ def test_signal_while_writing_leaves_nothing(
         return real(src, dst, *a, **k)
 
     monkeypatch.setattr(os, "replace", interrupted_replace)
+    # A shell starts background jobs with SIGINT ignored, and Python then keeps it ignored
+    # (as a program should); this test needs Ctrl-C's usual handler.
+    old_int = signal.signal(signal.SIGINT, signal.default_int_handler)
     before = snapshot(tmp_path)
-    rc, err = run(capfd, [*args, o1, "one.out", o2, "two.out"])
+    try:
+        rc, err = run(capfd, [*args, o1, "one.out", o2, "two.out"])
+    finally:
+        signal.signal(signal.SIGINT, old_int)
     monkeypatch.setattr(os, "replace", real)
     lines = err.splitlines()
     assert rc == 130, err
