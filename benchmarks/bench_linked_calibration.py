@@ -4,12 +4,12 @@ Needs fwdpy11, which is not a driftband dependency: ``pip install fwdpy11==0.24.
 (msprime and tskit come with it). The simulator is ``benchmarks/_linked_sim.py``.
 
 Each replicate study simulates four populations on the same kind of linked genome
-(1 Mb, 40 blocks of 25 kb, every bp one 0fold and one 4fold site, mu = 2e-6 per bp per
+(1 Mb, 40 blocks of 25 kb, every bp one 0fold and one 4fold site, mu = 1e-6 per bp per
 class, r = 5e-6 per bp; s of new 0fold mutations ~ -Gamma(shape 0.3, mean 0.1) shared by
 all populations, fitness 1 : 1+s : 1+2s; burn-in 10 N generations at each population's
 ancestral size; n = 20 gene copies):
 
-* ``A1``, ``A2``: N = 500 (theta = 4N*mu = 0.004, 4Nr = 0.01, mean S = 4Ns = 200), two
+* ``A1``, ``A2``: N = 500 (theta = 4N*mu = 0.002, 4Nr = 0.01, mean S = 4Ns = 200), two
   independent simulations with identical parameters;
 * ``H``: N = 250 at equilibrium (the same distribution of s, so S is halved);
 * ``D``: N = 500, halved to 250 at 0.1 N = 50 generations before the sample.
@@ -54,7 +54,7 @@ from driftband.cli import main as driftband_main
 from driftband.spectra._types import Block, ClassSpectrum, PopulationSpectra, SpectraSet
 from driftband.spectra.io import add_diversity, write_spectra_json
 
-N, LENGTH, BLOCKS, MU, R_BP, SHAPE, MEAN_S, N_COPIES = 500, 1_000_000, 40, 2e-6, 5e-6, 0.3, 0.1, 20
+N, LENGTH, BLOCKS, MU, R_BP, SHAPE, MEAN_S, N_COPIES = 500, 1_000_000, 40, 1e-6, 5e-6, 0.3, 0.1, 20
 POPS = {
     "A1": {"N": N},
     "A2": {"N": N},
