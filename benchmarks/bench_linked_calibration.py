@@ -235,8 +235,14 @@ def summary() -> None:
             lf = [r["tests"].get(f"{sc}:{t}", {}).get("linkage_factor") for r in recs]
             lf = [x for x in lf if x is not None]
             lfs = f"  linkage factor {np.mean(lf):.2f}" if lf else ""
+            est = [r["tests"].get(f"{sc}:{t}", {}).get("estimate") for r in recs]
+            est = [x for x in est if x is not None]
+            lfs += f", estimate {np.mean(est):.3f}" if est else ""
             print(f"    {labels[sc]:<32} {t:<26} {cells[0]:>22} {cells[1]:>22}{lfs}")
-    print("    target for the sizes: <= 0.06; binomial SE in parentheses")
+    print(
+        "    target for the sizes: <= 0.06; binomial SE in parentheses; estimate: mean of the "
+        "compare.tsv estimate (share difference, shared-DFE share, or Ne_B/Ne_A)"
+    )
 
 
 def main() -> None:
