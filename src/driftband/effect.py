@@ -35,6 +35,8 @@ S_PER_NES: dict[str, float] = {"heterozygote": 4.0, "homozygote": 2.0}
 #: The conventions, the default first.
 EFFECTS: tuple[str, ...] = tuple(S_PER_NES)
 DEFAULT_EFFECT = EFFECTS[0]
+#: Genotype fitnesses (AA : Aa : aa) under each convention.
+_FITNESS = {"heterozygote": "1 : 1+s : 1+2s", "homozygote": "1 : 1+s/2 : 1+s"}
 #: The heterozygote convention is the core's: its |Ne·s| is |S|/4.
 _CORE = S_PER_NES["heterozygote"]
 
@@ -99,11 +101,7 @@ def convention_text(effect: str) -> str:
     >>> convention_text("homozygote")
     'Bands on |Ne·s| with s the homozygote effect (fitness 1 : 1+s/2 : 1+s; |S| = 2·|Ne·s|)'
     """
-    if check_effect(effect) == "homozygote":
-        who, fitness = "homozygote", "1 : 1+s/2 : 1+s"
-    else:
-        who, fitness = "heterozygote", "1 : 1+s : 1+2s"
     return (
-        f"Bands on |Ne·s| with s the {who} effect (fitness {fitness}; "
-        f"|S| = {S_PER_NES[effect]:g}·|Ne·s|)"
+        f"Bands on |Ne·s| with s the {check_effect(effect)} effect (fitness "
+        f"{_FITNESS[effect]}; |S| = {S_PER_NES[effect]:g}·|Ne·s|)"
     )

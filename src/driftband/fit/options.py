@@ -12,7 +12,7 @@ from typing import Any
 import numpy as np
 
 from ..defaults import DEFAULT_EDGES_NES, HEADLINES
-from ..effect import DEFAULT_EFFECT, EFFECTS, shown_edges
+from ..effect import DEFAULT_EFFECT, check_effect, shown_edges
 from ..exceptions import OptionError
 from .models import DfeModel, parse_models
 
@@ -130,8 +130,10 @@ class FitOptions:
     def __post_init__(self) -> None:
         if self.headline not in HEADLINES:
             raise OptionError(f"--headline {self.headline!r}: choose {' or '.join(HEADLINES)}")
-        if self.effect not in EFFECTS:
-            raise OptionError(f"--effect {self.effect!r}: choose {' or '.join(EFFECTS)}")
+        try:
+            check_effect(self.effect)
+        except ValueError as err:
+            raise OptionError(f"--effect: {err}") from None
         if self.eps is not None and not 0.0 <= self.eps < 0.5:
             raise OptionError(
                 f"--misorientation {format_misorientation(self.eps)}: the rate must be in [0, 0.5)"

@@ -16,7 +16,7 @@ from typing import Any
 
 from .._io import load_json
 from ..compare.table import COLUMNS
-from ..effect import DEFAULT_EFFECT, EFFECTS
+from ..effect import DEFAULT_EFFECT, check_effect
 from ..exceptions import InputError
 from ..fit.io import check_fit_schema, fits_from_doc, read_fit_json
 from ..spectra.io import check_spectra_schema
@@ -65,13 +65,10 @@ def check_fit_doc(doc: Any, path: str | os.PathLike | None = None) -> None:
         render (the message names the population and the model).
     """
     check_fit_schema(doc, path)
-    effect = (doc.get("options") or {}).get("effect", DEFAULT_EFFECT)
-    if effect not in EFFECTS:
-        raise InputError(
-            f"options: effect {effect!r} is not an effect convention "
-            f"({' or '.join(EFFECTS)}); the file is damaged",
-            path,
-        )
+    try:
+        check_effect((doc.get("options") or {}).get("effect", DEFAULT_EFFECT))
+    except ValueError as err:
+        raise InputError(f"options: effect {err}; the file is damaged", path) from None
     pops = doc.get("populations")
     if not isinstance(pops, dict) or not pops:
         raise InputError("the fit file holds no populations; rerun 'driftband fit'", path)

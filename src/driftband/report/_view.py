@@ -52,7 +52,7 @@ class Band:
     ci_low: float | None
     ci_high: float | None
     #: |S| per unit of |Ne·s| under the fit's effect convention (:mod:`driftband.effect`)
-    s_per_nes: float = 4.0
+    s_per_nes: float = S_PER_NES[DEFAULT_EFFECT]
 
     @property
     def label(self) -> str:

@@ -53,7 +53,7 @@ def fit_options(study: Study) -> Any:
     InputError or OptionError
         A bad ``[fit]`` key (or command-line flag).
     """
-    from ..effect import EFFECTS, core_edges
+    from ..effect import check_effect, core_edges
     from ..exceptions import OptionError
     from ..fit.models import parse_models
     from ..fit.options import FitOptions, check_edges, parse_misorientation
@@ -64,8 +64,10 @@ def fit_options(study: Study) -> Any:
     def fail(key: str, err: Exception) -> Exception:
         return src.error(key, str(err).split(": ", 1)[-1])
 
-    if fs.effect not in EFFECTS:
-        raise fail("effect", OptionError(f"--effect {fs.effect!r}: choose {' or '.join(EFFECTS)}"))
+    try:
+        check_effect(fs.effect)
+    except ValueError as err:
+        raise fail("effect", err) from None
     try:
         edges = core_edges(check_edges(tuple(fs.bands)), fs.effect)
     except OptionError as err:
