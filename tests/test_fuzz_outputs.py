@@ -17,7 +17,7 @@ from pathlib import Path
 import pytest
 
 from fuzz_helpers import expect_refusal, run, snapshot
-from test_fuzz_vcf import POPMAP, SITES, vcf_text
+from test_fuzz_vcf import SAMPLE_TABLE, SITES, vcf_text
 from vcf_fixtures import write_vcf
 
 DATA = Path(__file__).parent / "data" / "report"
@@ -32,7 +32,7 @@ def inputs(tmp_path_factory):
     d = tmp_path_factory.mktemp("outputs")
     write_vcf(d / "v.vcf", vcf_text(), "bgzf")
     (d / "v.vcf").unlink()
-    (d / "pm.tsv").write_text(POPMAP)
+    (d / "pm.tsv").write_text(SAMPLE_TABLE)
     (d / "s.bed").write_text(SITES)
     sim = ["simulate", "--population", "A:N=50,n=4", "--sites", "300", "--seed", "1"]
     assert main([*sim, "--vcf", str(d / "g"), "--genome", "-q", "-o", str(d / "g.json")]) == 0
@@ -48,7 +48,7 @@ def _copy(src: Path, dst: Path) -> None:
 
 # command -> (argument list before the outputs, first output option, second output option)
 COMMANDS = {
-    "spectra": (["spectra", "v.vcf.gz", "--popmap", "pm.tsv", "--sites", "s.bed",
+    "spectra": (["spectra", "v.vcf.gz", "--samples", "pm.tsv", "--sites", "s.bed",
                  "--all-sites-callable"], "-o", "--tsv"),
     "classify": (["classify", "--fasta", "g.fa", "--gff", "g.gff3"], "-o", "--summary"),
     "fit": (["fit", "spectra.json", "--dfe", "gamma"], "-o", "--bands-tsv"),

@@ -432,7 +432,7 @@ def test_infinite_sites_guard_and_short_burn_in_warning():
 
 
 # --------------------------------------------------------------------------------------
-# Layout, VCF, BED, popmap
+# Layout, VCF, BED, sample table
 # --------------------------------------------------------------------------------------
 
 
@@ -482,7 +482,7 @@ def _spectra_from_vcf(paths):
     """Recount derived alleles per population and class straight from the VCF (pysam)."""
     pysam = pytest.importorskip("pysam")
     classes = read_site_classes(paths["bed"])
-    popmap = dict(line.split("\t") for line in open(paths["popmap"]).read().splitlines())
+    sample_table = dict(line.split("\t") for line in open(paths["samples"]).read().splitlines()[1:])
     counts: dict = {}
     outgroup_ok = True
     with pysam.VariantFile(paths["vcf"]) as vf:
@@ -499,10 +499,10 @@ def _spectra_from_vcf(paths):
             per_pop = Counter()
             for name, smp in rec.samples.items():
                 gt = smp["GT"]
-                if popmap[name] == "sister":
+                if sample_table[name] == "sister":
                     outgroup_ok &= all(g == 1 - der for g in gt)
                     continue
-                per_pop[popmap[name]] += sum(g == der for g in gt)
+                per_pop[sample_table[name]] += sum(g == der for g in gt)
             for pop, k in per_pop.items():
                 if k:
                     counts[(pop, cls[0], k)] = counts.get((pop, cls[0], k), 0) + 1
@@ -545,12 +545,14 @@ def test_vcf_is_valid_for_bcftools_and_indexed(vcf_study):
     assert rows and all(r[0] == "chr2" for r in rows)
     flipped = sum(r[3] == r[2] for r in rows) / len(rows)
     assert 0.15 < flipped < 0.45  # --ref-derived 0.3
-    # Every sample is in the popmap, diploid, with GT:DP:GQ.
+    # Every sample is in the sample table, diploid, with GT:DP:GQ.
     samples = subprocess.run(
         [bcftools, "query", "-l", paths["vcf"]], capture_output=True, text=True, check=True
     ).stdout.split()
-    popmap = [ln.split("\t")[0] for ln in open(paths["popmap"]).read().splitlines()]
-    assert samples == popmap and len(samples) == 6 + 4 + 2
+    rows = open(paths["samples"]).read().splitlines()
+    assert rows[0] == "sample\tpopulation"
+    sample_table = [ln.split("\t")[0] for ln in rows[1:]]
+    assert samples == sample_table and len(samples) == 6 + 4 + 2
     bed = read_site_classes(paths["bed"])
     assert bed.classes["0fold"].length() == 12_000 and bed.classes["4fold"].length() == 6000
 
@@ -622,7 +624,7 @@ def test_cli_writes_spectra_and_vcf(tmp_path, capsys):
     assert set(ss.populations) == {"lake", "spring"}
     assert len(ss.blocks) == 5
     assert ss.provenance["simulation"]["dfe"]["family"] == "lognormal"
-    for suffix in (".vcf.gz", ".vcf.gz.tbi", ".sites.bed", ".popmap.tsv"):
+    for suffix in (".vcf.gz", ".vcf.gz.tbi", ".sites.bed", ".samples.tsv"):
         assert (tmp_path / f"cli{suffix}").exists()
     # Layout options: 3000 + 1500 sites in genes of <= 50 codons with 2 kb before each.
     blocks = ss.blocks

@@ -25,7 +25,7 @@ After a burn-in at the ancestral size (default 10N generations) and an optional 
 history, n gene copies are sampled per population and their spectra written (entry 0:
 monomorphic ancestral sites; entry n: sites fixed in the sample, plus substitutions of the
 last --divergence-generations generations). With --vcf the study is also written as a
-VCF on synthetic chromosomes, with its sites BED and popmap, and with --genome also
+VCF on synthetic chromosomes, with its sites BED and sample table, and with --genome also
 as a reference FASTA and GFF3 of real codons whose classification gives back that BED.
 
 Conventions:
@@ -172,7 +172,7 @@ def add_parser(subparsers: Subparsers) -> None:
         "--vcf",
         default=None,
         metavar="PREFIX",
-        help="also write PREFIX.vcf.gz (+ .tbi), PREFIX.sites.bed, PREFIX.popmap.tsv",
+        help="also write PREFIX.vcf.gz (+ .tbi), PREFIX.sites.bed, PREFIX.samples.tsv",
     )
     o.add_argument(
         "--genome",

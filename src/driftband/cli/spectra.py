@@ -1,4 +1,4 @@
-"""``driftband spectra``: VCF + popmap + site classes -> spectra file (JSON) and TSV."""
+"""``driftband spectra``: VCF + sample table + site classes -> spectra file (JSON) and TSV."""
 
 from __future__ import annotations
 
@@ -26,19 +26,19 @@ all gene copies). Skipped records are counted by reason. A summary (skip counts,
 sites, segregating sites, pi, Watterson's theta, Tajima's D, piN/piS) goes to stderr."""
 
 EXAMPLES = """\
-driftband spectra calls.vcf.gz --popmap pops.tsv --sites classes.bed -o spectra.json
-driftband spectra calls.bcf --popmap pops.tsv --sites classes.bed --callable mask.bed \\
+driftband spectra calls.vcf.gz --samples pops.tsv --sites classes.bed -o spectra.json
+driftband spectra calls.bcf --samples pops.tsv --sites classes.bed --callable mask.bed \\
     --ancestral outgroup:snail_out --project 20 --tsv spectra.tsv -o spectra.json
-driftband spectra calls.vcf.gz --popmap pops.tsv --sites classes.bed --ancestral fold \\
+driftband spectra calls.vcf.gz --samples pops.tsv --sites classes.bed --ancestral fold \\
     --blocks genes.bed --min-dp 8 --min-gq 20 --pass-only --regions chr1 chr2:1-5000000 \\
     -o spectra.json
-driftband spectra calls.vcf.gz --popmap pops.tsv --sites classes.bed \\
+driftband spectra calls.vcf.gz --samples pops.tsv --sites classes.bed \\
     --ancestral fasta:ancestor.fa.gz --exclude-lowercase-ancestral -o spectra.json
-bcftools view -s A1,A2,B1,B2 calls.vcf.gz | driftband spectra - --popmap pops.tsv \\
+bcftools view -s A1,A2,B1,B2 calls.vcf.gz | driftband spectra - --samples pops.tsv \\
     --sites classes.bed -o spectra.json
-driftband spectra calls.vcf.gz --popmap pops.tsv --sites classes.bed --workers 8 \\
+driftband spectra calls.vcf.gz --samples pops.tsv --sites classes.bed --workers 8 \\
     --region-size 2000000 -o spectra.json
-driftband spectra calls.vcf.gz --popmap pops.tsv --sites classes.bed \\
+driftband spectra calls.vcf.gz --samples pops.tsv --sites classes.bed \\
     --scheduler tcp://node01:8786 -o spectra.json
 """
 
@@ -58,10 +58,10 @@ def add_parser(subparsers: Subparsers) -> argparse.ArgumentParser:
         help="VCF (bgzipped + indexed, bgzipped, gzipped or plain), BCF, or - for standard input",
     )
     p.add_argument(
-        "--popmap",
+        "--samples",
         required=True,
-        metavar="FILE",
-        help="TSV sample<TAB>population (header optional)",
+        metavar="TABLE.tsv",
+        help="sample table: TSV of sample and population columns (a header naming them optional)",
     )
     p.add_argument(
         "--sites",
@@ -86,7 +86,7 @@ def add_parser(subparsers: Subparsers) -> argparse.ArgumentParser:
         default="aa",
         metavar="aa|fold|outgroup:POP|fasta:FILE",
         help="polarisation: INFO/AA (default), fold (minor-allele spectra), "
-        "the alleles of outgroup population POP of the popmap, or the bases of an "
+        "the alleles of outgroup population POP of the sample table, or the bases of an "
         "ancestral sequence FILE (FASTA aligned to the reference)",
     )
     p.add_argument(
@@ -226,7 +226,7 @@ def run(args: argparse.Namespace) -> int:
     try:
         ss = build_spectra(
             args.vcf,
-            args.popmap,
+            args.samples,
             args.sites,
             callable_mask=args.callable_mask,
             ancestral=args.ancestral,
