@@ -34,7 +34,7 @@ def inputs(tmp_path_factory):
     (d / "v.vcf").unlink()
     (d / "pm.tsv").write_text(SAMPLE_TABLE)
     (d / "s.bed").write_text(SITES)
-    sim = ["simulate", "--population", "A:N=50,n=4", "--sites", "300", "--seed", "1"]
+    sim = ["simulate", "--population", "A:N=50,n=4", "--class-sites", "300", "--seed", "1"]
     assert main([*sim, "--vcf", str(d / "g"), "--genome", "-q", "-o", str(d / "g.json")]) == 0
     for name in ("fit.json", "spectra.json", "compare.tsv"):
         (d / name).write_bytes((DATA / name).read_bytes())
@@ -54,7 +54,7 @@ COMMANDS = {
     "fit": (["fit", "spectra.json", "--dfe", "gamma"], "-o", "--bands-tsv"),
     "compare": (["compare", "fit.json"], "-o", None),
     "report": (["report", "fit.json", "--compare", "compare.tsv"], "-o", "--summary"),
-    "simulate": (["simulate", "--population", "A:N=50,n=4", "--sites", "200", "--seed", "2"],
+    "simulate": (["simulate", "--population", "A:N=50,n=4", "--class-sites", "200", "--seed", "2"],
                  "-o", "--tsv"),
 }  # fmt: skip
 INPUTS = {
@@ -213,7 +213,7 @@ BAD_OPTIONS = {
     "fit": [["--dfe", "nosuch"], ["--bands", "5,1"], ["--misorientation", "fixed:2"],
             ["--bootstrap", "-3"]],
     "compare": [["--model", "nosuch"], ["--tests", "nosuch"], ["--pairs", "a:a"]],
-    "simulate": [["--theta", "-1"], ["--sites", "0"], ["--dfe", "nosuch"]],
+    "simulate": [["--theta", "-1"], ["--class-sites", "0"], ["--true-dfe", "nosuch"]],
 }  # fmt: skip
 OPTION_CASES = [(c, o) for c, opts in BAD_OPTIONS.items() for o in opts]
 

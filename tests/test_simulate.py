@@ -591,11 +591,11 @@ def test_cli_writes_spectra_and_vcf(tmp_path, capsys):
             "lake:N=100,n=8",
             "--population",
             "spring:N=30,n=6",
-            "--sites-0fold",
+            "--class-sites-0fold",
             "3000",
-            "--sites-4fold",
+            "--class-sites-4fold",
             "1500",
-            "--blocks",
+            "--block-count",
             "5",
             "--gene-codons",
             "50",
@@ -605,9 +605,9 @@ def test_cli_writes_spectra_and_vcf(tmp_path, capsys):
             "4",
             "--divergence-generations",
             "100",
-            "--dfe",
+            "--true-dfe",
             "lognormal:mu=3,sigma=1",
-            "--beneficial",
+            "--true-beneficial",
             "p=0.01,S=20",
             "--vcf",
             str(tmp_path / "cli"),
@@ -638,20 +638,23 @@ def test_cli_writes_spectra_and_vcf(tmp_path, capsys):
     "argv, msg",
     [
         (["--population", "lake:N=100,n=9", "--vcf", "V"], "odd"),
-        (["--population", "lake:N=100,n=8", "--dfe", "gamma:shape=0.3"], "mean"),
+        (["--population", "lake:N=100,n=8", "--true-dfe", "gamma:shape=0.3"], "mean"),
         (["--population", "lake:N=100,n=8", "--history", "other=0:10"], "other"),
         (["--population", "lake:N=100,n=8", "--vcf", "V", "--missing", "1.5"], "--missing"),
         (["--population", "lake:N=100,n=8", "--vcf", "V", "--outgroup", "sis"], "--outgroup"),
-        (["--population", "lake:N=100,n=8", "--blocks", "0"], "--blocks"),
-        (["--population", "lake:N=100,n=8", "--sites", "10", "--blocks", "20"], "blocks"),
+        (["--population", "lake:N=100,n=8", "--block-count", "0"], "--block-count"),
+        (
+            ["--population", "lake:N=100,n=8", "--class-sites", "10", "--block-count", "20"],
+            "blocks",
+        ),
         ([], "--population"),
     ],
 )
 def test_cli_bad_options_exit_2_with_one_line_and_write_nothing(tmp_path, capsys, argv, msg):
     argv = [a.replace("V", str(tmp_path / "v")) if a == "V" else a for a in argv]
     rc = main(
-        ["simulate", *argv, "--sites", "200", "-o", str(tmp_path / "x.json")]
-        if "--sites" not in argv
+        ["simulate", *argv, "--class-sites", "200", "-o", str(tmp_path / "x.json")]
+        if "--class-sites" not in argv
         else ["simulate", *argv, "-o", str(tmp_path / "x.json")]
     )
     err = capsys.readouterr().err
@@ -718,11 +721,11 @@ def test_genome_needs_more_0fold_than_4fold_sites(tmp_path, capsys):
             "simulate",
             "--population",
             "a:N=50,n=4",
-            "--sites-0fold",
+            "--class-sites-0fold",
             "100",
-            "--sites-4fold",
+            "--class-sites-4fold",
             "200",
-            "--blocks",
+            "--block-count",
             "2",
             "--vcf",
             str(tmp_path / "g"),
@@ -741,9 +744,9 @@ def test_cli_short_burn_in_warns_in_one_line(tmp_path, capsys):
             "simulate",
             "--population",
             "a:N=50,n=4",
-            "--sites",
+            "--class-sites",
             "100",
-            "--blocks",
+            "--block-count",
             "2",
             "--burn-in",
             "10",

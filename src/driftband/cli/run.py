@@ -9,7 +9,7 @@ from typing import TYPE_CHECKING
 from ..defaults import HEADLINES
 from ..effect import EFFECTS
 from ..exceptions import OptionError
-from ._common import Subparsers, add_common_arguments, add_subcommand, progress_on_stderr
+from ._common import CommaList, Subparsers, add_common_arguments, add_subcommand, progress_on_stderr
 
 if TYPE_CHECKING:
     from ..run import Study
@@ -145,9 +145,9 @@ def add_study_arguments(p: argparse.ArgumentParser) -> None:
     )
     d.add_argument(
         "--project",
-        action="append",
-        metavar="N|POP=N",
-        help="project to N gene copies (all populations, or POP=N; repeatable)",
+        action=CommaList,
+        metavar="N|POP=N,...",
+        help="project to N gene copies: all populations (N) and/or single ones (POP=N)",
     )
     g = d.add_mutually_exclusive_group()
     g.add_argument(
@@ -156,9 +156,9 @@ def add_study_arguments(p: argparse.ArgumentParser) -> None:
     g.add_argument("--blocks", metavar="BED", help="BED of bootstrap blocks instead")
     d.add_argument(
         "--regions",
-        nargs="+",
-        metavar="REGION",
-        help="only these regions: CHROM, CHROM:START-END or BED files",
+        action=CommaList,
+        metavar="REGION,...",
+        help="only these regions, comma-separated: CHROM, CHROM:START-END or BED files",
     )
     d.add_argument("--min-gq", type=int, metavar="Q", help="genotypes with GQ < Q missing")
     d.add_argument("--min-dp", type=int, metavar="D", help="genotypes with DP < D missing")

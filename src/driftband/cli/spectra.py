@@ -8,7 +8,7 @@ import time
 
 from .._io import after_commit, check_outputs
 from ..exceptions import OptionError
-from ._common import Subparsers, add_common_arguments, add_subcommand
+from ._common import CommaList, Subparsers, add_common_arguments, add_subcommand
 
 __all__ = ["add_parser", "parse_project", "run"]
 
@@ -30,7 +30,7 @@ driftband spectra calls.vcf.gz --samples pops.tsv --sites classes.bed -o spectra
 driftband spectra calls.bcf --samples pops.tsv --sites classes.bed --callable mask.bed \\
     --ancestral outgroup:snail_out --project 20 --tsv spectra.tsv -o spectra.json
 driftband spectra calls.vcf.gz --samples pops.tsv --sites classes.bed --ancestral fold \\
-    --blocks genes.bed --min-dp 8 --min-gq 20 --pass-only --regions chr1 chr2:1-5000000 \\
+    --blocks genes.bed --min-dp 8 --min-gq 20 --pass-only --regions chr1,chr2:1-5000000 \\
     -o spectra.json
 driftband spectra calls.vcf.gz --samples pops.tsv --sites classes.bed \\
     --ancestral fasta:ancestor.fa.gz --exclude-lowercase-ancestral -o spectra.json
@@ -96,10 +96,11 @@ def add_parser(subparsers: Subparsers) -> argparse.ArgumentParser:
     )
     p.add_argument(
         "--project",
-        action="append",
-        metavar="N|POP=N",
-        help="project every population (N) or one (POP=N, repeatable) to N gene "
-        "copies (default: the largest N called at >= 90%% of usable records)",
+        action=CommaList,
+        metavar="N|POP=N,...",
+        help="project every population (N) and/or single ones (POP=N) to N gene "
+        "copies, e.g. 20,spring=16 (default: the largest N called at >= 90%% of usable "
+        "records)",
     )
     g = p.add_mutually_exclusive_group()
     g.add_argument(
@@ -112,9 +113,10 @@ def add_parser(subparsers: Subparsers) -> argparse.ArgumentParser:
     g.add_argument("--blocks", metavar="BED", help="BED of blocks (e.g. genes) instead")
     p.add_argument(
         "--regions",
-        nargs="+",
-        metavar="REGION",
-        help="only these regions: CHROM, CHROM:START-END (1-based, inclusive) or BED files",
+        action=CommaList,
+        metavar="REGION,...",
+        help="only these regions, comma-separated: CHROM, CHROM:START-END (1-based, "
+        "inclusive) or BED files",
     )
     p.add_argument(
         "--min-gq", type=int, metavar="Q", help="set genotypes with GQ < Q (or no GQ) to missing"

@@ -271,7 +271,7 @@ def check_genome_option(class_sites: np.ndarray) -> None:
     if int(class_sites[0]) < int(class_sites[1]):
         raise OptionError(
             "--genome needs at least as many 0fold as 4fold sites (every "
-            "codon's second position is 0-fold); raise --sites-0fold"
+            "codon's second position is 0-fold); raise --class-sites-0fold"
         )
 
 
