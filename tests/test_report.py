@@ -622,3 +622,24 @@ def test_report_renders_in_headless_chromium(tmp_path, html_text):
     bad = tmp_path / "bad.html"
     bad.write_text("<!DOCTYPE html><p>x</p><script>undefined_function()</script>", encoding="utf-8")
     assert _console_errors(_chromium(bad.as_uri(), tmp_path, "--dump-dom").stderr)
+
+
+def test_old_fit_schema_is_read_with_its_keys_translated(tmp_path, capsys):
+    """fit.v1.json is this fixture as written before schema version 3 (keys eps, p_b,
+    mean_S, log_sd, x, ...). Read through the one fit reader it gives the same summary as
+    the current file, with one warning naming the file and the translation."""
+    summaries = []
+    for name in ("fit.json", "fit.v1.json"):
+        summ = tmp_path / f"{name}.md"
+        argv = ["report", str(DATA / name), "-o", str(tmp_path / f"{name}.html")]
+        code, _out, err = _run([*argv, "--summary", str(summ)], capsys)
+        assert code == 0, err
+        text = summ.read_text(encoding="utf-8").replace(name, "FIT")
+        summaries.append(re.sub(r"\d{4}-\d\d-\d\dT[\d:+]+", "DATE", text))
+        if name == "fit.v1.json":
+            lines = [ln for ln in err.splitlines() if "schema version" in ln]
+            assert len(lines) == 1 and "fit.v1.json" in lines[0]
+            assert "eps -> misorientation_rate" in lines[0]
+        else:
+            assert "schema version" not in err
+    assert summaries[0] == summaries[1]

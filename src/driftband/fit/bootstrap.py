@@ -209,7 +209,7 @@ def _replicate_task(args: _ReplicateBatch) -> list[dict[str, Any]]:
                 )
             rep[m.name] = {
                 "params": f.params,
-                "eps": f.eps,
+                "misorientation_rate": f.eps,
                 "shares": f.shares.tolist(),
                 "fixation_ratio": f.fixation_ratio,
                 "theta": f.theta,
@@ -427,7 +427,7 @@ def _summarise(f: Any, reps: list[dict[str, Any] | None], level: float) -> Model
     shares = shares.reshape(B, len(f.shares))
     converged = np.array([bool(r and r["success"]) for r in reps], dtype=bool)
     params = {p: col(lambda r, p=p: r["params"][p]) for p in f.params}
-    params["eps"] = col(lambda r: r["eps"])
+    params["misorientation_rate"] = col(lambda r: r["misorientation_rate"])
     params["fixation_ratio"] = col(lambda r: r["fixation_ratio"])
     for key in ALPHA_KEYS:
         if any(r and key in r for r in reps):

@@ -393,11 +393,11 @@ def _params_table(v: PopulationView) -> str:
         se = f.get("stderr") or {}
         ci = v.model_ci(m).get("params_ci") or {}
         items = list((f.get("params") or {}).items())
-        if f.get("eps_free"):
-            items.append(("eps", f.get("eps")))
+        if f.get("misorientation_free"):
+            items.append(("misorientation_rate", f.get("misorientation_rate")))
         items.append(("theta", f.get("theta")))
         items.append(("fixation_ratio", f.get("fixation_ratio")))
-        if "p_b" in (f.get("params") or {}) and "fixation_ratio_deleterious" in f:
+        if "beneficial_fraction" in (f.get("params") or {}) and "fixation_ratio_deleterious" in f:
             items.append(("fixation_ratio_deleterious", f.get("fixation_ratio_deleterious")))
         bound = set(f.get("at_bounds") or [])
         for name, val in items:
@@ -523,16 +523,16 @@ def _adaptive(v: PopulationView, view: ReportView) -> str:
                 (
                     [
                         f"{view.selected} (selected)",
-                        _num(fint(mk.get("D_N"))),
-                        _num(fint(mk.get("P_N"))),
+                        _num(fint(mk.get("divergent_selected"))),
+                        _num(fint(mk.get("polymorphic_selected"))),
                     ],
                     "",
                 ),
                 (
                     [
                         f"{view.neutral} (neutral)",
-                        _num(fint(mk.get("D_S"))),
-                        _num(fint(mk.get("P_S"))),
+                        _num(fint(mk.get("divergent_neutral"))),
+                        _num(fint(mk.get("polymorphic_neutral"))),
                     ],
                     "",
                 ),

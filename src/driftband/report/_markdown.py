@@ -42,10 +42,10 @@ def _row(cells: list[str]) -> str:
 
 
 def _at_bounds_text(record: dict[str, Any]) -> str:
-    """``lognormal: log_sd at bound (0.01); gamma: eps at bound (1.016e−6)`` or empty."""
+    """``lognormal: sd_log_abs_S at bound (0.01); gamma: misorientation_rate at bound (1e−6)`` or empty."""
     parts = []
     for m, f in (record.get("models") or {}).items():
-        params = dict(f.get("params") or {}, eps=f.get("eps"))
+        params = dict(f.get("params") or {}, misorientation_rate=f.get("misorientation_rate"))
         names = f.get("at_bounds") or []
         if names:
             parts.append(

@@ -275,18 +275,18 @@ def _flags(name: str, p: dict[str, Any], blocks: float | None) -> list[str]:
 
 def dfe_at_bounds(fit: dict[str, Any]) -> list[str]:
     """The DFE parameters of a model record that lie at a bound (``eps`` left out)."""
-    return [str(n) for n in fit.get("at_bounds") or [] if n != "eps"]
+    return [str(n) for n in fit.get("at_bounds") or [] if n != "misorientation_rate"]
 
 
 def _no_wald(fit: dict[str, Any]) -> set[str]:
     """Parameters of a model record without a Wald s.e. by design: at a bound, and
-    ``S_b`` when ``p_b`` is at its bound (not identified)."""
+    ``beneficial_S`` when ``beneficial_fraction`` is at its bound (not identified)."""
     names = {str(n) for n in fit.get("at_bounds") or []}
-    return names | ({"S_b"} if "p_b" in names else set())
+    return names | ({"beneficial_S"} if "beneficial_fraction" in names else set())
 
 
 def _bound_values(fit: dict[str, Any], names: list[str]) -> str:
-    params = dict(fit.get("params") or {}, eps=fit.get("eps"))
+    params = dict(fit.get("params") or {}, misorientation_rate=fit.get("misorientation_rate"))
     return ", ".join(f"{n} = {fsig(params.get(n))}" for n in names)
 
 
@@ -301,7 +301,7 @@ def bound_flag(fit: dict[str, Any]) -> str:
     Returns
     -------
     str
-        E.g. ``"log_sd at bound: the share rests on a limit of the fit"``; empty when
+        E.g. ``"sd_log_abs_S at bound: the share rests on a limit of the fit"``; empty when
         no DFE parameter of the model is at a bound (``eps`` at its bound is not
         flagged: it does not enter the DFE).
     """

@@ -26,6 +26,8 @@ from pathlib import Path
 import numpy as np
 from scipy import stats
 
+from driftband.fit.io import FIT_SCHEMA_VERSION
+
 HERE = Path(__file__).resolve().parent
 EDGES = [0.0, 1.0, 10.0, 100.0]
 LEVEL = 0.95
@@ -91,10 +93,10 @@ def model_entry(
         "model": name,
         "params": params,
         "stderr": stderr,
-        "eps": eps,
-        "eps_free": eps_free,
+        "misorientation_rate": eps,
+        "misorientation_free": eps_free,
         "theta": theta,
-        "nuisance": [1.0] * len(en),
+        "nuisance_factors": [1.0] * len(en),
         "equilibrium": False,
         "loglik": ll,
         "n_params": k,
@@ -109,7 +111,7 @@ def model_entry(
         "observed": {"neutral": on.tolist(), "selected": os_.tolist()},
         "expected": {"neutral": en.tolist(), "selected": es.tolist()},
         "pearson_residuals": {"neutral": residuals(on, en), "selected": residuals(os_, es)},
-        "x": [0.0] * 3,
+        "unconstrained_params": [0.0] * 3,
         "optimizer": {"starts": 9, "evaluations": 2113},
     }
 
@@ -172,8 +174,12 @@ def population(rng, pop, n, folded, theta, ln, ls, g, lg, disc, fixed=None, disc
         "gamma": model_entry(
             pop,
             "gamma",
-            {"shape": g[0], "mean_S": g[1]},
-            {"shape": g[0] * 0.11, "mean_S": g[1] * 0.4, **({"eps": 0.004} if eps_free else {})},
+            {"shape": g[0], "mean_abs_S": g[1]},
+            {
+                "shape": g[0] * 0.11,
+                "mean_abs_S": g[1] * 0.4,
+                **({"misorientation_rate": 0.004} if eps_free else {}),
+            },
             gamma_shares(g[0], g[1]),
             g[2],
             2 + m + ke,
@@ -189,8 +195,12 @@ def population(rng, pop, n, folded, theta, ln, ls, g, lg, disc, fixed=None, disc
         "lognormal": model_entry(
             pop,
             "lognormal",
-            {"log_mean": lg[0], "log_sd": lg[1]},
-            {"log_mean": 0.6, "log_sd": None, **({"eps": 0.005} if eps_free else {})},
+            {"mean_log_abs_S": lg[0], "sd_log_abs_S": lg[1]},
+            {
+                "mean_log_abs_S": 0.6,
+                "sd_log_abs_S": None,
+                **({"misorientation_rate": 0.005} if eps_free else {}),
+            },
             lognormal_shares(lg[0], lg[1]),
             lg[2],
             2 + m + ke,
@@ -231,7 +241,7 @@ def population(rng, pop, n, folded, theta, ln, ls, g, lg, disc, fixed=None, disc
     best = ok[0]["model"]
     b = {"replicates": REPS, "blocks": BLOCKS, "seed": SEED, "level": LEVEL, "models": {}}
     for name, f in models.items():
-        extra = {"eps": eps, "fixation_ratio": f["fixation_ratio"]}
+        extra = {"misorientation_rate": eps, "fixation_ratio": f["fixation_ratio"]}
         if fixed is not None:
             dn, ds = fixed[1], fixed[0]
             d_n, d_s = dn / ls, ds / ln
@@ -263,10 +273,10 @@ def population(rng, pop, n, folded, theta, ln, ls, g, lg, disc, fixed=None, disc
         d_n, d_s = dn / ls, ds / ln
         adaptive[name] = {
             "mk": {
-                "P_N": pn,
-                "P_S": ps,
-                "D_N": dn,
-                "D_S": ds,
+                "polymorphic_selected": pn,
+                "polymorphic_neutral": ps,
+                "divergent_selected": dn,
+                "divergent_neutral": ds,
                 "fisher_odds_ratio": float(odds),
                 "fisher_p": float(p),
             },
@@ -343,7 +353,7 @@ def main() -> None:
     )
     fit = {
         "schema": "driftband-fit",
-        "schema_version": 1,
+        "schema_version": FIT_SCHEMA_VERSION,
         "options": {
             "neutral": "4fold",
             "selected": "0fold",
