@@ -17,6 +17,7 @@ from collections.abc import Sequence
 
 from .._io import output_set
 from .._parallel import interruptible, single_blas_thread
+from .._progress import console_filter, set_live
 from .._version import __version__
 from .._warnings import plain_warnings
 from ..exceptions import DriftbandError
@@ -67,11 +68,26 @@ def get_parser() -> argparse.ArgumentParser:
     return parser
 
 
+class _ConsoleFormatter(logging.Formatter):
+    """``driftband: MESSAGE``, and ``driftband: warning: MESSAGE`` for warnings."""
+
+    def __init__(self) -> None:
+        super().__init__("driftband: %(message)s")
+
+    def format(self, record: logging.LogRecord) -> str:
+        text = super().format(record)
+        if record.levelno == logging.WARNING and not record.getMessage().startswith("warning:"):
+            text = text.replace("driftband: ", "driftband: warning: ", 1)
+        return text
+
+
 def _setup_logging(verbosity: int) -> None:
     level = logging.WARNING - 10 * min(verbosity, 2) + (10 if verbosity < 0 else 0)
     level = max(logging.DEBUG, min(logging.WARNING, level)) if verbosity >= 0 else logging.ERROR
     handler = logging.StreamHandler(sys.stderr)
-    handler.setFormatter(logging.Formatter("driftband: %(message)s"))
+    handler.setFormatter(_ConsoleFormatter())
+    handler.addFilter(console_filter)
+    set_live(verbosity >= 0 and sys.stderr.isatty())
     log.handlers[:] = [handler]
     log.setLevel(level)
     log.propagate = False

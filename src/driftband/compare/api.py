@@ -18,6 +18,7 @@ import numpy as np
 
 from .._options import COMMAND_LINE, OptionSource
 from .._parallel import parallel_map
+from .._progress import Progress
 from ..defaults import COMPARE_TESTS
 from ..exceptions import InputError
 from ..fit.options import FitOptions
@@ -246,11 +247,21 @@ def compare_fits(
     for a, b in chosen:
         log.info("compare: %s and %s (%s model; %s)", a, b, dfe.name, ", ".join(wanted))
     tasks = [(by_name[a], by_name[b], dfe, options, mu, (t,)) for a, b in chosen for t in wanted]
-    if len(tasks) > 1 and (workers is None or workers > 1):
-        parts = parallel_map(_compare_task, tasks, workers=workers, name="compare")
-    else:
-        cache: dict[int, DfeExpectation] = {}
-        parts = [compare_pair(*t, cache) for t in tasks]
+    with Progress("compare", len(tasks), "tests") as prog:
+        if len(tasks) > 1 and (workers is None or workers > 1):
+            parts = parallel_map(
+                _compare_task,
+                tasks,
+                workers=workers,
+                name="compare",
+                on_result=lambda _i, _r: prog.advance(),
+            )
+        else:
+            cache: dict[int, DfeExpectation] = {}
+            parts = []
+            for t in tasks:
+                parts.append(compare_pair(*t, cache))
+                prog.advance()
     rows = [r for part in parts for r in part]
     adjust_pvalues(rows, adjust)
     _warn_floor(rows, adjust)

@@ -19,6 +19,7 @@ import numpy as np
 
 from .._options import COMMAND_LINE, OptionSource
 from .._parallel import parallel_map, resolve_workers
+from .._progress import Progress
 from ..defaults import MIN_BLOCKS
 from ..exceptions import DriftbandWarning, InputError
 from ..prf.dfe import DfeExpectation
@@ -343,9 +344,16 @@ def bootstrap_fits(
     log.info("bootstrap: %d replicates x %d populations", replicates, len(fits))
     if scheduler is None and len(tasks) <= 1:
         workers = 1
-    results = parallel_map(
-        _replicate_task, tasks, workers=workers, scheduler=scheduler, name="bootstrap"
-    )
+    sizes = [len(t[6]) * len(t[7].models) for t in tasks]
+    with Progress("bootstrap", sum(sizes), "refits") as prog:
+        results = parallel_map(
+            _replicate_task,
+            tasks,
+            workers=workers,
+            scheduler=scheduler,
+            name="bootstrap",
+            on_result=lambda i, _r: prog.advance(sizes[i]),
+        )
     per_pop: dict[int, list[dict[str, Any]]] = {}
     for k, res in zip(owners, results):
         per_pop.setdefault(k, []).extend(res)

@@ -273,8 +273,9 @@ def params_at_bounds(obj: Objective, x: np.ndarray) -> list[tuple[str, str, floa
     Returns
     -------
     list of (str, str, float)
-        Natural-scale name (``shape``, ``sd_log_abs_S``, ``beneficial_fraction``, ``mass_2``, ``misorientation_rate``, ...),
-        ``"lower"`` or ``"upper"``, and the bound on the natural scale.
+        Natural-scale name (``shape``, ``sd_log_abs_S``, ``beneficial_fraction``,
+        ``mass_2``, ``misorientation_rate``, ...), ``"lower"`` or ``"upper"``, and the
+        bound on the natural scale.
     """
     xd, _e = obj.split(x)
     out = obj.model.at_bounds(xd)

@@ -42,7 +42,8 @@ def _row(cells: list[str]) -> str:
 
 
 def _at_bounds_text(record: dict[str, Any]) -> str:
-    """``lognormal: sd_log_abs_S at bound (0.01); gamma: misorientation_rate at bound (1e−6)`` or empty."""
+    """``lognormal: sd_log_abs_S at bound (0.01); gamma: misorientation_rate at bound
+    (1e−6)`` or empty."""
     parts = []
     for m, f in (record.get("models") or {}).items():
         params = dict(f.get("params") or {}, misorientation_rate=f.get("misorientation_rate"))
