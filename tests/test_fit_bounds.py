@@ -144,7 +144,7 @@ def test_folded_spectra_refuse_a_beneficial_class(tmp_path, capsys):
     # Folding maps derived frequency x and 1 − x to one class, so the sign of S (and with
     # it a beneficial class) cannot be told from a folded spectrum (common practice).
     t = tmp_path / "folded.tsv"
-    rows = ["population\tclass\tn\tfolded\tcount\tsites"]
+    rows = ["population\tclass\tn\tfolded\tderived_copies\tsite_count"]
     for cls, v in (("4fold", [2000, 1000, 660, 500, 400]), ("0fold", [600, 250, 150, 100, 80])):
         rows.append(f"lake\t{cls}\t10\ttrue\t0\t{200000 - sum(v)}")
         rows += [f"lake\t{cls}\t10\ttrue\t{i}\t{x}" for i, x in enumerate(v, start=1)]

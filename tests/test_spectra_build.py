@@ -440,5 +440,5 @@ def test_cli_writes_tsv_and_outgroup(tmp_path):
     ss = read_spectra_json(out)
     assert {p: v.n for p, v in ss.populations.items()} == {"lowvale": 12, "highvale": 10}
     rows = tsv.read_text().splitlines()
-    assert rows[0] == "population\tclass\tn\tfolded\tcount\tsites"
+    assert rows[0] == "population\tclass\tn\tfolded\tderived_copies\tsite_count"
     assert len(rows) == 1 + 2 * 13 + 2 * 11

@@ -132,7 +132,7 @@ def add_parser(subparsers: Subparsers) -> argparse.ArgumentParser:
     p.add_argument(
         "--tsv",
         metavar="TSV",
-        help="also write the long table population, class, n, folded, count, sites",
+        help="also write the long table population, class, n, folded, derived_copies, site_count",
     )
     x = p.add_argument_group("parallel counting (indexed VCF/BCF; results do not depend on these)")
     x.add_argument(
