@@ -482,6 +482,12 @@ def test_cli_writes_report_and_summary(tmp_path, capsys):
     assert code == 0, err
     page = parse(out.read_text(encoding="utf-8"))
     assert "diversity-pop1-lake" in page.tables
+    made = {(Path(r[0]).name, r[1]): r[2] for r in page.tables["prov-spectra"][1:]}
+    # the fixture's spectra: 24 called copies projected to 16 (lake) and 12 (spring)
+    assert made[("spectra.json", "projection")].startswith("lake: 24 → 16 gene copies")
+    assert "DP < 8" in made[("spectra.json", "filters")]
+    assert made[("spectra.json", "records skipped")] == "multiallelic 12, filtered 40"
+    assert made[("spectra.json", "blocks")] == "4 blocks of 100,000 bp"
     files = page.tables["files"]
     fit_row = next(r for r in files if r[0] == "report" and r[1] == "fit")
     assert fit_row[4] == hashlib.sha256((DATA / "fit.json").read_bytes()).hexdigest()

@@ -17,6 +17,7 @@ from typing import Any
 from ..effect import convention_text
 from ..spectra.callable import CALLABLE_SOURCES
 from ._plots import bands_figure, spectra_figure
+from ._spectra_made import spectra_made_rows
 from ._text import (
     ALPHA_EXPLAINED,
     ALPHA_NEGATIVE_NOTE,
@@ -797,6 +798,19 @@ def _provenance(view: ReportView) -> str:
                 "Callable sites and polarisation (from the spectra files)",
                 ["Spectra", "Callable sites", "Polarisation", "Dropped sites"],
                 _sites_rows(view),
+            )
+        )
+        made = [
+            ([key, item, value], "")
+            for key, doc in view.spectra_docs.items()
+            for item, value in spectra_made_rows(doc)
+        ]
+        out.append(
+            _table(
+                "prov-spectra",
+                "How the spectra were made (options, projection, blocks, what was dropped)",
+                ["Spectra", "Item", "Value"],
+                made,
             )
         )
     files = _files(view.provenance, "report")

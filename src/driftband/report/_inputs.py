@@ -19,7 +19,7 @@ from ..compare.table import COLUMNS
 from ..effect import DEFAULT_EFFECT, check_effect
 from ..exceptions import InputError
 from ..fit.io import check_fit_schema, fits_from_doc, read_fit_json
-from ..spectra.io import check_spectra_schema
+from ..spectra.io import check_spectra_schema, upgrade_spectra_doc
 
 __all__ = [
     "NUMERIC_COMPARE_COLUMNS",
@@ -264,4 +264,4 @@ def read_spectra_doc(path: str | os.PathLike) -> dict[str, Any]:
     """
     doc = _load_json(path, "spectra")
     check_spectra_doc(doc, path)
-    return doc
+    return upgrade_spectra_doc(doc, path)

@@ -535,6 +535,11 @@ def _provenance(
         "samples": {p: int(c.size) for p, c in zip(design.populations, design.columns)},
         "outgroup": design.outgroup,
         "monomorphic_records": int(total.monomorphic),
+        # the most gene copies called at a usable site: what the projection started from
+        "called_copies_max": {
+            p: int(r[r[:, 4] > 0, 2].max()) if (r[:, 4] > 0).any() else 0
+            for p, r in total.rows.items()
+        },
     }
     return prov
 

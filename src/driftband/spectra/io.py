@@ -1,9 +1,9 @@
 """Reading and writing spectra files.
 
-The spectra file is JSON, schema ``driftband-spectra`` version 1::
+The spectra file is JSON, schema ``driftband-spectra`` version 2::
 
     {
-      "schema": "driftband-spectra", "schema_version": 1,
+      "schema": "driftband-spectra", "schema_version": 2,
       "blocks": [{"chrom": "1", "start": 0, "end": 100000, "name": ""}, ...],
       "populations": {
         "lake": {
@@ -32,6 +32,7 @@ from __future__ import annotations
 
 import csv
 import json
+import logging
 import os
 from typing import Any
 
@@ -49,22 +50,30 @@ from ._types import (
 )
 from .stats import diversity
 
+log = logging.getLogger("driftband")
+
 __all__ = [
     "SCHEMA",
     "LONG_TSV_COLUMNS",
     "SCHEMA_VERSION",
+    "SCHEMA_VERSIONS_READ",
     "add_diversity",
     "check_spectra_schema",
     "read_spectra",
     "read_spectra_json",
     "read_spectra_tsv",
     "spectra_to_dict",
+    "upgrade_spectra_doc",
     "write_spectra_json",
     "write_spectra_tsv",
 ]
 
 SCHEMA = "driftband-spectra"
-SCHEMA_VERSION = 1
+#: Version 2 names the sample table ``samples`` among the provenance's inputs (version 1:
+#: ``popmap``) and records the largest number of called gene copies per population
+#: (``provenance.counts.called_copies_max``). Version 1 files are read, translated.
+SCHEMA_VERSION = 2
+SCHEMA_VERSIONS_READ = (1, 2)
 
 
 def add_diversity(pop: PopulationSpectra, neutral: str = "4fold", selected: str = "0fold") -> None:
@@ -188,6 +197,7 @@ def read_spectra_json(path: str | os.PathLike) -> SpectraSet:
     """
     doc = load_json(path, "spectra JSON file")
     check_spectra_schema(doc, path)
+    doc = upgrade_spectra_doc(doc, path)
     popsd = doc.get("populations")
     if not isinstance(popsd, dict) or not popsd:
         raise _fail(path, '"populations" must be a non-empty object')
@@ -295,12 +305,50 @@ def check_spectra_schema(doc: Any, path: str | os.PathLike | None = None) -> Non
             "with 'driftband spectra')",
         )
     ver = doc.get("schema_version")
-    if ver != SCHEMA_VERSION:
+    if ver not in SCHEMA_VERSIONS_READ:
         raise _fail(
             path,
             f"spectra schema version {ver!r} is not supported "
-            f"(this driftband reads version {SCHEMA_VERSION})",
+            f"(this driftband reads versions {', '.join(map(str, SCHEMA_VERSIONS_READ))})",
         )
+
+
+def upgrade_spectra_doc(doc: dict[str, Any], path: str | os.PathLike | None = None) -> dict:
+    """A spectra document of an older schema version translated to this one.
+
+    Version 1 named the sample table ``popmap`` among the provenance's inputs; it is
+    renamed ``samples``, and a warning says that the file was translated. Documents of
+    the current version are returned as they are.
+
+    Parameters
+    ----------
+    doc : dict
+        A parsed spectra file whose schema has been checked (:func:`check_spectra_schema`).
+    path : path-like, optional
+        Its file, named in the warning.
+
+    Returns
+    -------
+    dict
+    """
+    if doc.get("schema_version") == SCHEMA_VERSION:
+        return doc
+    out = dict(doc)
+    prov = dict(out.get("provenance") or {})
+    inputs = prov.get("inputs")
+    if isinstance(inputs, dict) and "popmap" in inputs:
+        prov["inputs"] = {("samples" if k == "popmap" else k): v for k, v in inputs.items()}
+    out["provenance"] = prov
+    out["schema_version"] = SCHEMA_VERSION
+    log.warning(
+        "%s: spectra file of schema version %s (an older driftband), read as version %d "
+        "(the input 'popmap' is now 'samples'; no record of the called gene copies); "
+        "rerun 'driftband spectra' to write the current version",
+        os.fspath(path) if path is not None else "spectra document",
+        doc.get("schema_version"),
+        SCHEMA_VERSION,
+    )
+    return out
 
 
 def read_spectra_tsv(path: str | os.PathLike, folded: bool | None = None) -> SpectraSet:

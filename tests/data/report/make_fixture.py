@@ -27,6 +27,7 @@ import numpy as np
 from scipy import stats
 
 from driftband.fit.io import FIT_SCHEMA_VERSION
+from driftband.spectra.io import SCHEMA_VERSION as SPECTRA_SCHEMA_VERSION
 
 HERE = Path(__file__).resolve().parent
 EDGES = [0.0, 1.0, 10.0, 100.0]
@@ -432,7 +433,7 @@ def main() -> None:
         }
     spectra = {
         "schema": "driftband-spectra",
-        "schema_version": 1,
+        "schema_version": SPECTRA_SCHEMA_VERSION,
         "blocks": [
             {"chrom": "scf1", "start": k * 100000, "end": (k + 1) * 100000, "name": ""}
             for k in range(4)
@@ -444,9 +445,24 @@ def main() -> None:
             "version": "0.1.0.dev0",
             "date": DATE,
             "command": ["driftband", "spectra"],
-            "options": {"block_size": 100000},
+            "options": {
+                "block_size": 100000,
+                "blocks": None,
+                "regions": ["scf1"],
+                "min_gq": 20,
+                "min_dp": 8,
+                "pass_only": True,
+                "project": None,
+                "projection_rule": "largest n such that >= 90% of usable records have n or "
+                "more called gene copies",
+            },
             "inputs": {
                 "vcf": {"path": "/study/snails/calls.vcf.gz", "size": 2200000, "sha256": "ab" * 32}
+            },
+            "counts": {
+                "records_read": 52000,
+                "records_used": {"lake": 51200, "spring": 51100},
+                "called_copies_max": {"lake": 24, "spring": 24},
             },
             "environment": {"python": "3.11.2"},
         },
