@@ -135,6 +135,7 @@ def adjust_pvalues(rows: list[ComparisonRow], method: str = "holm") -> None:
         _rej, padj, _a, _b = multipletests([r.p_value for r in sel], method=method)
         for r, p in zip(sel, padj):
             r.p_adjusted = float(p)
+            r.adjust = method
 
 
 def _warn_floor(rows: list[ComparisonRow], adjust: str, alpha: float = 0.05) -> None:

@@ -35,7 +35,7 @@ __all__ = [
 NUMERIC_COMPARE_COLUMNS = tuple(
     c
     for c in COLUMNS
-    if c not in ("population_a", "population_b", "test", "model", "p_at_floor", "note")
+    if c not in ("population_a", "population_b", "test", "model", "p_at_floor", "adjust", "note")
 )
 _REQUIRED_COMPARE = ("population_a", "population_b", "test", "model")
 

@@ -231,6 +231,24 @@ ALPHA_EXPLAINED = (
     "counts.",
 )
 
+#: Names, as written in prose, of the statsmodels multiple-testing methods.
+ADJUST_NAMES = {
+    "holm": "Holm",
+    "bonferroni": "Bonferroni",
+    "sidak": "Šidák",
+    "holm-sidak": "Holm–Šidák",
+    "simes-hochberg": "Hochberg",
+    "hommel": "Hommel",
+    "fdr_bh": "Benjamini–Hochberg",
+    "fdr_by": "Benjamini–Yekutieli",
+}
+
+
+def adjust_name(method: str) -> str:
+    """The prose name of a multiple-testing method (``holm`` -> ``Holm``)."""
+    return ADJUST_NAMES.get(method.lower(), method)
+
+
 PARAM_LABELS = {
     "shape": "shape \u03b2 of the gamma distribution of \u2212S",
     "mean_abs_S": "mean of \u2212S (mean |S| of deleterious mutations)",

@@ -19,6 +19,7 @@ from ._inputs import check_compare_rows, check_fit_doc, check_spectra_doc
 from ._text import (
     ALPHA_LEVEL,
     VARIANTS_ONLY_FLAG,
+    adjust_name,
     band_label,
     digits_for,
     fnum,
@@ -673,7 +674,7 @@ def collect(
         )
     methods = {str(r.get("adjust") or "") for r in compare_rows or []} - {""}
     adjust_known = len(methods) == 1
-    method = methods.pop() if adjust_known else "Holm"
+    method = adjust_name(methods.pop()) if adjust_known else "Holm"
     pops = {v.name: v for v in views}
     pairs = _pairs(compare_rows or [], pops, method, views[0].level)
     return ReportView(

@@ -487,6 +487,7 @@ def main() -> None:
         "df_linkage",
         "p_value",
         "p_adjusted",
+        "adjust",
         "p_at_floor",
         "estimate",
         "ci_low",
@@ -511,6 +512,7 @@ def main() -> None:
             "df_linkage": df_adj,
             "p_value": p_adj,
             "p_adjusted": p_adj,
+            "adjust": "holm",
         }
 
     adj_note = "; p adjusted for linked sites: statistic / {:.3g} on {:.3g} df"
@@ -532,6 +534,7 @@ def main() -> None:
             "statistic": 4.1,
             "p_value": 0.0488,
             "p_adjusted": 0.0488,
+            "adjust": "holm",
             "estimate": diff,
             "ci_low": diff - 0.061,
             "ci_high": diff + 0.058,
