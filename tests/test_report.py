@@ -649,3 +649,25 @@ def test_old_fit_schema_is_read_with_its_keys_translated(tmp_path, capsys):
         else:
             assert "schema version" not in err
     assert summaries[0] == summaries[1]
+
+
+def test_compare_table_with_an_out_of_equilibrium_flag_is_rendered(tmp_path, capsys):
+    """compare.tsv writes the flag as True/False (csv of a Python bool); the report reads
+    it as a flag, not a number, and adds its caution to the 'only Ne differs' sentences.
+    (Before, any True made the report refuse the table.)"""
+    rows = (DATA / "compare.tsv").read_text(encoding="utf-8").splitlines()
+    cols = rows[0].split("\t")
+    k = cols.index("out_of_equilibrium")
+    out_rows = [rows[0]]
+    for line in rows[1:]:
+        f = line.split("\t")
+        if f[cols.index("test")].startswith("ne_only"):
+            f[k] = "True"
+        out_rows.append("\t".join(f))
+    tsv = tmp_path / "compare.tsv"
+    tsv.write_text("\n".join(out_rows) + "\n", encoding="utf-8")
+    summ = tmp_path / "s.md"
+    argv = ["report", str(DATA / "fit.json"), "--compare", str(tsv), "-o", str(tmp_path / "r.html")]
+    code, _out, err = _run([*argv, "--summary", str(summ)], capsys)
+    assert code == 0, err
+    assert summ.read_text(encoding="utf-8").count("looks out of equilibrium") == 2

@@ -32,11 +32,18 @@ __all__ = [
 ]
 
 #: Columns of compare.tsv read as numbers (empty or ``nan`` → None).
-NUMERIC_COMPARE_COLUMNS = tuple(
-    c
-    for c in COLUMNS
-    if c not in ("population_a", "population_b", "test", "model", "p_at_floor", "adjust", "note")
+#: Columns of compare.tsv that hold words or flags, not numbers.
+TEXT_COMPARE_COLUMNS = (
+    "population_a",
+    "population_b",
+    "test",
+    "model",
+    "adjust",
+    "p_at_floor",
+    "out_of_equilibrium",
+    "note",
 )
+NUMERIC_COMPARE_COLUMNS = tuple(c for c in COLUMNS if c not in TEXT_COMPARE_COLUMNS)
 _REQUIRED_COMPARE = ("population_a", "population_b", "test", "model")
 
 
