@@ -14,6 +14,7 @@ import logging
 import os
 import sys
 from collections.abc import Sequence
+from typing import NoReturn
 
 from .._io import output_set
 from .._parallel import interruptible, single_blas_thread
@@ -51,9 +52,17 @@ def _available_subcommands() -> list:
     return mods
 
 
+class _Parser(argparse.ArgumentParser):
+    """An argument parser whose errors are one line (and exit code 2), like the tool's."""
+
+    def error(self, message: str) -> NoReturn:
+        """Print ``PROG: error: MESSAGE (see 'PROG --help')`` on stderr and exit 2."""
+        self.exit(2, f"{self.prog}: error: {_one_line(message)} (see '{self.prog} --help')\n")
+
+
 def get_parser() -> argparse.ArgumentParser:
     """Build the argument parser of the ``driftband`` command (all subcommands)."""
-    parser = argparse.ArgumentParser(
+    parser = _Parser(
         prog="driftband",
         description=(
             "Distribution of fitness effects of new mutations per population, and the share "
