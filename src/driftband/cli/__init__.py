@@ -121,8 +121,13 @@ def _input_files(args: argparse.Namespace) -> list[str]:
         if dest in outs:
             continue
         for v in value if isinstance(value, list | tuple) else [value]:
-            if isinstance(v, str | os.PathLike) and os.fspath(v) != "-" and os.path.isfile(v):
-                found.append(os.fspath(v))
+            if not isinstance(v, str | os.PathLike) or os.fspath(v) == "-":
+                continue
+            v = os.fspath(v)
+            # LABEL=PATH values (report --spectra, fit --label) name a file after the '='
+            for cand in (v, v.partition("=")[2]) if "=" in v else (v,):
+                if cand and os.path.isfile(cand):
+                    found.append(cand)
     return found
 
 
