@@ -1,0 +1,451 @@
+"""VCF Zarr input: a ``.vcz`` store (a directory, or a zip file) read chunk by chunk.
+
+:class:`VczSource` offers what counting needs from :class:`.source.VcfSource` -- a header
+(:class:`.header.VcfHeader`: samples, contigs and their lengths, the fields present), the
+chromosomes, and :meth:`VczSource.fetch` of the records of one region -- so that site
+classes, filters, polarisation, projection and blocks are the same code for both inputs.
+Each variants chunk that a region needs (found from the store's ``region_index``, or
+else from ``variant_contig``/``variant_position``) becomes one :class:`VczBatch`, and
+its arrays are read only when counting asks for them: ``call_genotype`` (negative values
+are the missing calls and the padding of lower ploidy, as the mask
+``call_genotype_mask`` says), ``variant_allele``, ``variant_filter``, ``variant_AA`` and
+the per-call ``call_DP``/``call_GQ``. Memory is bounded by one chunk.
+
+Stores of VCF Zarr versions :data:`VCZ_VERSIONS` are read (as written by ``bio2zarr``).
+``zarr`` is an optional dependency (``pip install 'driftband[vcz]'``).
+
+A chunk absent from the store is what Zarr writes for a chunk holding only the fill
+value, so it is read as such; only the arrays that can never be all fill
+(``variant_position``, ``variant_allele``) must have every chunk that is read.
+"""
+
+from __future__ import annotations
+
+import os
+from collections.abc import Iterator, Sequence
+from typing import Any
+
+import numpy as np
+
+from ..exceptions import InputError, VcfFormatError
+from .batches import GenotypeData, VariantBatch
+from .decode import upper_codes
+from .header import VcfHeader
+
+__all__ = ["VCZ_VERSIONS", "VczBatch", "VczSource", "is_vcz"]
+
+#: The ``vcf_zarr_version`` values read.
+VCZ_VERSIONS = ("0.4", "0.5")
+_REQUIRED = ("variant_position", "variant_contig", "variant_allele", "sample_id", "contig_id")
+_NEVER_FILL = ("variant_position", "variant_allele")
+
+
+def is_vcz(path: str | os.PathLike) -> bool:
+    """Whether ``path`` is to be read as a VCF Zarr store: a directory, or a zip file."""
+    p = os.fspath(path)
+    if os.path.isdir(p):
+        return True
+    if p.endswith((".vcz", ".vcz.zip", ".zip")) and os.path.isfile(p):
+        with open(p, "rb") as fh:
+            return fh.read(4) == b"PK\x03\x04"
+    return False
+
+
+def _zarr() -> Any:
+    try:
+        import zarr
+    except ImportError:
+        raise InputError(
+            "reading VCF Zarr needs the zarr package: pip install 'driftband[vcz]' "
+            "(or pip install zarr)"
+        ) from None
+    return zarr
+
+
+def _strings(a: Any) -> np.ndarray:
+    """A string array that :func:`numpy.char.str_len` takes (object arrays, as older
+    numpy reads them, as fixed-width unicode)."""
+    a = np.asarray(a)
+    return a.astype("U") if a.dtype.kind == "O" else a
+
+
+class VczSource:
+    """An open VCF Zarr store (see the module docstring).
+
+    Parameters
+    ----------
+    path : str or path-like
+        A store directory, or a zip file of one.
+
+    Attributes
+    ----------
+    path : str
+    kind : str
+        ``"vcz"``.
+    header : VcfHeader
+        Samples, contigs and lengths; ``info`` holds ``AA`` when the store has
+        ``variant_AA``, ``formats`` holds ``GT``, ``DP``, ``GQ`` for ``call_genotype``,
+        ``call_DP``, ``call_GQ``.
+    version : str
+        The store's ``vcf_zarr_version``.
+
+    Raises
+    ------
+    InputError
+        zarr not installed, not a Zarr store, another format version, or a required array
+        missing (``call_genotype``, ``contig_id``, ...).
+    """
+
+    kind = "vcz"
+    stdin = False
+    indexed = True
+    index_path = None
+
+    def __init__(self, path: str | os.PathLike) -> None:
+        self.path = os.fspath(path)
+        zarr = _zarr()
+        if not os.path.exists(self.path):
+            raise InputError("VCF Zarr store not found", self.path)
+        self._zip = None
+        try:
+            if os.path.isdir(self.path):
+                store: Any = zarr.storage.LocalStore(self.path, read_only=True)
+            else:
+                store = self._zip = zarr.storage.ZipStore(self.path, mode="r")
+            self._root = zarr.open_group(store=store, mode="r")
+        except Exception as err:  # zarr's own errors for a folder that is not a store
+            self.close()
+            raise InputError(
+                f"not a Zarr store ({type(err).__name__}: {err}); convert the VCF with "
+                "vcf2zarr convert (bio2zarr)",
+                self.path,
+            ) from None
+        self.version = str(self._root.attrs.get("vcf_zarr_version", ""))
+        if not self.version:
+            raise InputError(
+                "not a VCF Zarr store (its attributes have no vcf_zarr_version); "
+                "convert the VCF with vcf2zarr convert (bio2zarr)",
+                self.path,
+            )
+        if self.version not in VCZ_VERSIONS:
+            raise InputError(
+                f"VCF Zarr version {self.version} is not read (versions "
+                f"{', '.join(VCZ_VERSIONS)} are); convert the VCF again with bio2zarr",
+                self.path,
+            )
+        names = set(self._root.array_keys())
+        if "call_genotype" not in names:
+            raise InputError(
+                "the store has no call_genotype array; spectra need genotypes "
+                "(convert a VCF with FORMAT/GT)",
+                self.path,
+            )
+        for key in _REQUIRED:
+            if key not in names:
+                raise InputError(
+                    f"the store has no {key} array; convert the VCF again with bio2zarr",
+                    self.path,
+                )
+        self._names = names
+        self._gt = self._root["call_genotype"]
+        self._pos = self._root["variant_position"]
+        self.chunk = int(self._pos.chunks[0])
+        self.n_variants = int(self._pos.shape[0])
+        if (
+            self._gt.shape[0] != self.n_variants
+            or self._root["variant_allele"].shape[0] != self.n_variants
+        ):
+            raise InputError(
+                "call_genotype, variant_allele and variant_position have different numbers "
+                "of variants; the store is damaged: convert the VCF again",
+                self.path,
+            )
+        samples = [str(s) for s in self._read_all("sample_id")]
+        contigs = [str(c) for c in self._read_all("contig_id")]
+        if not contigs:
+            raise InputError("the store's contig_id array is empty", self.path)
+        lengths: dict[str, int] = {}
+        if "contig_length" in names:
+            ln = self._read_all("contig_length")
+            lengths = {c: int(x) for c, x in zip(contigs, ln.tolist()) if int(x) > 0}
+        fields = {"GT"} | {k for k in ("DP", "GQ") if f"call_{k}" in names}
+        info = {"AA"} if "variant_AA" in names else set()
+        self.header = VcfHeader(samples, contigs, lengths, info, fields, "", 0)
+        self._filters = (
+            [str(f) for f in self._read_all("filter_id")] if "filter_id" in names else []
+        )
+        self._table = self._chunk_table()
+
+    # -- opening
+    def _read_all(self, name: str) -> np.ndarray:
+        a = self._root[name]
+        return self._read(name, a, slice(None), chunk=None)
+
+    def _read(self, name: str, arr: Any, sel: Any, chunk: int | None) -> np.ndarray:
+        """``arr[sel]``, with a missing (``_NEVER_FILL``) or unreadable chunk reported."""
+        where = "" if chunk is None else f", variants chunk {chunk}"
+        if chunk is not None and name in _NEVER_FILL:
+            coords = (chunk,) + (0,) * (arr.ndim - 1)
+            key = arr.metadata.encode_chunk_key(coords)
+            from zarr.core.sync import sync
+
+            if not sync(arr.store.exists(f"{arr.path}/{key}")):
+                raise VcfFormatError(
+                    f"array {name}{where}: the chunk is missing from the store; "
+                    "convert the VCF again",
+                    self.path,
+                )
+        try:
+            return np.asarray(arr[sel])
+        except Exception as err:  # a corrupt chunk: codec errors of any kind
+            raise VcfFormatError(
+                f"array {name}{where} cannot be read ({type(err).__name__}: {err}); the "
+                "store is corrupt: convert the VCF again",
+                self.path,
+            ) from None
+
+    def _chunk_table(self) -> np.ndarray:
+        """Rows ``chunk, contig, first POS, last POS`` per chunk and contig (int64)."""
+        ri = self._root["region_index"] if "region_index" in self._names else None
+        if ri is not None and ri.ndim == 2 and ri.shape[1] >= 4:
+            t = self._read("region_index", ri, slice(None), None).astype(np.int64)[:, :4]
+        else:  # no region index: from the positions, one chunk at a time
+            rows = []
+            vc = self._root["variant_contig"]
+            for k in range(-(-self.n_variants // self.chunk)):
+                sl = slice(k * self.chunk, min((k + 1) * self.chunk, self.n_variants))
+                c = self._read("variant_contig", vc, sl, k).astype(np.int64)
+                p = self._read("variant_position", self._pos, sl, k).astype(np.int64)
+                cut = np.flatnonzero(np.diff(c)) + 1
+                for a, z in zip(np.r_[0, cut].tolist(), np.r_[cut, c.size].tolist()):
+                    rows.append((k, c[a], p[a:z].min(), p[a:z].max()))
+            t = np.array(rows, np.int64).reshape(-1, 4)
+        bad = (t[:, 1] < 0) | (t[:, 1] >= len(self.header.contigs))
+        if bad.any():
+            raise InputError(
+                f"variants chunk {int(t[bad][0, 0])} refers to contig #{int(t[bad][0, 1])}, "
+                f"but contig_id lists {len(self.header.contigs)} contig(s); the store is "
+                "damaged: convert the VCF again",
+                self.path,
+            )
+        return t
+
+    @property
+    def chroms(self) -> list[str]:
+        """Contigs of the store (``contig_id``), in order."""
+        return list(self.header.contigs)
+
+    @property
+    def filters(self) -> list[str]:
+        """The FILTER IDs of ``variant_filter``'s columns (``filter_id``)."""
+        return list(self._filters)
+
+    def close(self) -> None:
+        """Close the store (a zip file)."""
+        if self._zip is not None:
+            self._zip.close()
+            self._zip = None
+
+    def __enter__(self) -> VczSource:
+        return self
+
+    def __exit__(self, *exc: object) -> None:
+        self.close()
+
+    # -- reading
+    def fetch(self, chrom: str, start: int, end: int, batch_bytes: int = 0) -> Iterator[VczBatch]:
+        """Records with ``start <= POS - 1 < end`` (0-based, half-open) on ``chrom``, one
+        batch per variants chunk (``batch_bytes`` has no effect: a chunk is the unit)."""
+        if chrom not in self.header.contigs:
+            return
+        cid = self.header.contigs.index(chrom)
+        t = self._table
+        hit = (t[:, 1] == cid) & (t[:, 2] <= end) & (t[:, 3] >= start + 1)
+        vc = self._root["variant_contig"]
+        last = -1
+        for k in np.unique(t[hit, 0]).tolist():
+            a0 = k * self.chunk
+            sl = slice(a0, min(a0 + self.chunk, self.n_variants))
+            c = self._read("variant_contig", vc, sl, k)
+            p = self._read("variant_position", self._pos, sl, k).astype(np.int64)
+            sel = np.flatnonzero((c == cid) & (p - 1 >= start) & (p - 1 < end))
+            if not sel.size:
+                continue
+            a, z = int(sel[0]), int(sel[-1]) + 1
+            pos = p[a:z]
+            if sel.size != z - a or np.any(np.diff(np.r_[last, pos]) < 0):
+                raise VcfFormatError(
+                    f"variants chunk {k}: the records of {chrom} are not sorted by position; "
+                    "convert a sorted, indexed VCF (bcftools sort)",
+                    self.path,
+                )
+            last = int(pos[-1])
+            yield VczBatch(self, k, a0 + a, a0 + z, chrom, pos)
+
+    def read(self, name: str, rows: slice, cols: slice | None = None) -> np.ndarray:
+        """Rows (variants) of array ``name``, and for per-call arrays some sample columns;
+        ``rows`` lie in one variants chunk."""
+        arr = self._root[name]
+        sel: Any = rows if cols is None else (rows, cols)
+        return self._read(name, arr, sel, rows.start // self.chunk)
+
+    def shape(self, name: str) -> tuple[int, ...]:
+        """The shape of array ``name``."""
+        return tuple(self._root[name].shape)
+
+    def has(self, name: str) -> bool:
+        """Whether the store holds array ``name``."""
+        return name in self._names
+
+
+class VczBatch(VariantBatch):
+    """The records of one region in one variants chunk of a store; arrays are read when
+    first asked for.
+
+    Parameters
+    ----------
+    src : VczSource
+    chunk : int
+        The variants chunk.
+    a, z : int
+        The records (global variant indices ``a`` to ``z - 1``).
+    chrom : str
+    pos : ndarray of int64
+        Their positions.
+    """
+
+    def __init__(
+        self, src: VczSource, chunk: int, a: int, z: int, chrom: str, pos: np.ndarray
+    ) -> None:
+        self._src, self._chunk, self._a, self._z = src, chunk, a, z
+        self.chrom = chrom
+        self.pos = pos
+        self.lineno = None
+        self.path = src.path
+        self._cache: dict[Any, np.ndarray] = {}
+
+    def _get(self, name: str, cols: tuple[int, int] | None = None) -> np.ndarray:
+        key = (name, cols)
+        if key not in self._cache:
+            sl = None if cols is None else slice(*cols)
+            self._cache[key] = self._src.read(name, slice(self._a, self._z), sl)
+        return self._cache[key]
+
+    def where(self, i: int) -> tuple[str, int | None]:
+        """A name for record ``i`` in messages (the store has no line numbers)."""
+        return f"record {self.chrom}:{int(self.pos[i])} (variant {self._a + i})", None
+
+    def slice(self, a: int, z: int) -> VczBatch:
+        """Records ``a`` to ``z - 1`` as a batch of their own."""
+        return VczBatch(self._src, self._chunk, self._a + a, self._a + z, self.chrom, self.pos[a:z])
+
+    def __getattr__(self, name: str) -> list[bytes]:  # the columns as bytes, when asked for
+        if name not in ("ref", "alt", "filt", "fmt"):
+            raise AttributeError(name)
+        al = _strings(self._get("variant_allele"))
+        self.__dict__["ref"] = [s.encode() for s in al[:, 0].tolist()]
+        self.__dict__["alt"] = [
+            b",".join(x.encode() for x in row if x) or b"." for row in al[:, 1:].tolist()
+        ]
+        ok = self._pass()
+        self.__dict__["filt"] = [b"PASS" if x else b"FILTERED" for x in ok.tolist()]
+        self.__dict__["fmt"] = [b"GT"] * len(self)
+        return self.__dict__[name]
+
+    def _pass(self) -> np.ndarray:
+        """FILTER is PASS or missing (no filter set)."""
+        if not self._src.has("variant_filter"):
+            return np.ones(len(self), bool)
+        f = self._get("variant_filter").astype(bool).reshape(len(self), -1)
+        n = f.sum(axis=1)
+        ids = self._src.filters
+        if "PASS" in ids:
+            return (n == 0) | ((n == 1) & f[:, ids.index("PASS")])
+        return n == 0
+
+    def codes(self) -> dict[str, np.ndarray]:
+        """Vectorised view of the common cases (see :meth:`VariantBatch.codes`)."""
+        al = _strings(self._get("variant_allele"))
+        r = len(self)
+        length = np.char.str_len(al)
+        first = np.zeros(al.shape, np.uint8)
+        one = length == 1
+        if one.any():
+            first[one] = np.frombuffer("".join(al[one].tolist()).encode("latin-1"), np.uint8)
+        ref1 = np.where(length[:, 0] == 1, first[:, 0], 0).astype(np.uint8)
+        n_alt = (length[:, 1:] > 0).sum(axis=1)
+        if al.shape[1] > 1:
+            alt1 = np.where(n_alt == 0, 46, np.where((n_alt == 1) & one[:, 1], first[:, 1], 0))
+        else:
+            alt1 = np.full(r, 46)
+        aa1 = np.zeros(r, np.uint8)
+        if self._src.has("variant_AA"):
+            aa = _strings(self._get("variant_AA")).reshape(r, -1)[:, 0]
+            sel = np.char.str_len(aa) == 1
+            if sel.any():
+                aa1[sel] = np.frombuffer("".join(aa[sel].tolist()).encode("latin-1"), np.uint8)
+        return {
+            "ref1": upper_codes(ref1),
+            "alt1": upper_codes(alt1.astype(np.uint8)),
+            "pass": self._pass().astype(np.int8),
+            "aa1": upper_codes(aa1),
+        }
+
+    def info(self, rows: Sequence[int], key: str) -> list[bytes | None]:
+        """Values of ``variant_KEY`` (bytes, the first when several) for some records;
+        None where absent or empty."""
+        name = f"variant_{key}"
+        if not self._src.has(name):
+            return [None] * len(rows)
+        v = np.asarray(self._get(name)).reshape(len(self), -1)[:, 0]
+        out: list[bytes | None] = []
+        for i in rows:
+            x = str(v[i])
+            out.append(x.encode() if x else None)
+        return out
+
+    def _calls(self, name: str, cols: np.ndarray) -> np.ndarray:
+        """Per-call array ``name`` of the records at sample columns ``cols``."""
+        if not cols.size:
+            return np.zeros((len(self), 0, *self._src.shape(name)[2:]), np.int8)
+        lo, hi = int(cols[0]), int(cols[-1]) + 1
+        block = self._get(name, (lo, hi))
+        if cols.size == hi - lo:
+            return block
+        return block[:, cols - lo]
+
+    def genotypes(
+        self, rows: np.ndarray, cols: np.ndarray, fields: Sequence[str] = (), fast: bool = True
+    ) -> GenotypeData:
+        """Decode the genotypes of some records (see :meth:`VariantBatch.genotypes`):
+        ``call_genotype``, padded to ploidy 2, and ``call_DP``/``call_GQ``."""
+        rows = np.asarray(rows, dtype=np.int64)
+        cols = np.asarray(cols, dtype=np.int64)
+        g = self._calls("call_genotype", cols)[rows].astype(np.int8)
+        if g.shape[2] < 2:
+            pad = np.full(g.shape[:2] + (2 - g.shape[2],), -2, np.int8)
+            g = np.concatenate([g, pad], axis=2)
+        vals = {}
+        for f in fields:
+            if self._src.has(f"call_{f}"):
+                v = self._calls(f"call_{f}", cols)[rows].reshape(rows.size, cols.size, -1)[..., 0]
+                vals[f] = np.where(v < 0, -1, v).astype(np.int32)
+            else:
+                vals[f] = np.full((rows.size, cols.size), -1, np.int32)
+        return GenotypeData(g, vals, np.ones(rows.size, bool))
+
+    def allele_counts(
+        self, rows: np.ndarray, cols: np.ndarray
+    ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """Per-sample copies of allele 1 and called copies (alleles 0 or 1), as
+        :meth:`.textbatch.TextBatch.allele_counts`; ``ok`` is False for records with
+        another allele index."""
+        rows = np.asarray(rows, dtype=np.int64)
+        g = self._calls("call_genotype", np.asarray(cols, dtype=np.int64))
+        if rows.size != len(self) or (rows.size and rows[-1] != rows.size - 1):
+            g = g[rows]
+        one = g == 1
+        alt = one.sum(axis=2, dtype=np.int8)
+        called = alt + (g == 0).sum(axis=2, dtype=np.int8)
+        ok = ~np.any(g > 1, axis=(1, 2))
+        return alt, called, ok
