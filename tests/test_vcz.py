@@ -174,3 +174,29 @@ def test_store_without_region_index_reads_positions(beetles, tmp_path):
     _, from_vcf = run_spectra(beetles["vcf"], tmp_path / "v.json", args)
     _, from_vcz = run_spectra(store, tmp_path / "z.json", args)
     assert from_vcz == from_vcf  # source: the VCF route
+
+
+def test_readme_vcz_example_runs(tmp_path):
+    # The README's "VCF Zarr input" commands run as written (the install line left out, its
+    # /tmp paths moved to a temporary folder) and give the VCF route's spectra (source).
+    import subprocess
+    import sys
+
+    from vcz_helpers import spectra_body
+
+    text = (ROOT / "README.md").read_text(encoding="utf-8")
+    block = text.split("### VCF Zarr input", 1)[1].split("```bash", 1)[1].split("```")[0]
+    lines = block.strip().splitlines()
+    assert lines[0].startswith("pip install '.[vcz]'")
+    script = "\n".join(lines[1:]).replace("/tmp/", f"{tmp_path}/")
+    shim = (
+        f'driftband() {{ "{sys.executable}" -m driftband "$@"; }}\n'
+        f'vcf2zarr() {{ "{sys.executable}" -m bio2zarr vcf2zarr "$@"; }}\nset -euo pipefail\n'
+    )
+    r = subprocess.run(
+        ["bash", "-c", shim + script], cwd=ROOT, capture_output=True, text=True, timeout=300
+    )
+    assert r.returncode == 0, r.stderr
+    args = ["--popmap", str(TINY / "tiny.popmap.tsv"), "--sites", str(TINY / "tiny.sites.bed")]
+    _, from_vcf = run_spectra(TINY / "tiny.vcf.gz", tmp_path / "vcf.json", args)
+    assert spectra_body(tmp_path / "tiny.vcz.spectra.json") == from_vcf
