@@ -2,7 +2,7 @@
 
 Two studies of the same size from ``driftband simulate`` (two populations N = 300,
 n = 20, 1e5 sites per class, 50 blocks, θ = 0.02): one whose 0-fold mutations are all
-neutral (``--dfe neutral``: the true share is 1), one with the default gamma DFE (the
+neutral (``--true-dfe neutral``: the true share is 1), one with the default gamma DFE (the
 reference in the same run). Both are fitted with the default families, misorientation
 estimated, and bootstrapped with B replicates in one process; the script prints the CPU
 time of each, their ratio (target: <= 1.5), the failed/non-converged replicate counts
@@ -64,7 +64,7 @@ def main() -> None:
     print(f"fit + bootstrap (B = {B}, 2 populations, 3 families, one process), CPU seconds")
     print(f"  selected (gamma shape 0.3, mean |S| 200): {ref:7.1f} s")
     print("\n".join(ref_lines))
-    print(f"  neutral-only (--dfe neutral):             {neu:7.1f} s")
+    print(f"  neutral-only (--true-dfe neutral):             {neu:7.1f} s")
     print("\n".join(neu_lines))
     print(f"  ratio neutral-only / selected: {neu / ref:.2f} (target <= 1.5)")
 

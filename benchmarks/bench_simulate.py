@@ -64,7 +64,7 @@ def main() -> None:
         secs = time.perf_counter() - t0
         size = sum(f.stat().st_size for f in Path(d).iterdir())
         print(
-            f"  writing spectra + VCF + BED + popmap (2 populations, 20 samples): "
+            f"  writing spectra + VCF + BED + sample table (2 populations, 20 samples): "
             f"{secs:.2f} s, {size / 1e6:.1f} MB"
         )
 

@@ -37,12 +37,12 @@ CHROM_LEN = 20_000_000
 
 
 def make_study(n_samples: int, n_snps: int, seed: int = 1) -> dict[str, Path]:
-    """Write the synthetic VCF (+ .tbi), popmap and site BED; return their paths."""
+    """Write the synthetic VCF (+ .tbi), sample table and site BED; return their paths."""
     DATA.mkdir(parents=True, exist_ok=True)
     stem = DATA / f"bench_{n_samples}x{n_snps}"
     paths = {
         "vcf": Path(f"{stem}.vcf.gz"),
-        "popmap": Path(f"{stem}.popmap.tsv"),
+        "samples": Path(f"{stem}.samples.tsv"),
         "sites": Path(f"{stem}.sites.bed"),
     }
     if all(p.exists() for p in paths.values()) and Path(f"{stem}.vcf.gz.tbi").exists():
@@ -104,7 +104,7 @@ def make_study(n_samples: int, n_snps: int, seed: int = 1) -> dict[str, Path]:
     import pysam
 
     pysam.tabix_index(str(paths["vcf"]), preset="vcf", force=True)
-    with open(paths["popmap"], "w") as fh:
+    with open(paths["samples"], "w") as fh:
         for i, s in enumerate(samples):
             fh.write(f"{s}\t{'north' if i < n_samples // 2 else 'south'}\n")
     with open(paths["sites"], "w") as fh:  # alternating 1 kb of 0-fold and 4-fold sites
@@ -151,8 +151,8 @@ def bench(paths: dict[str, Path], repeats: int) -> None:
         "driftband",
         "spectra",
         str(paths["vcf"]),
-        "--popmap",
-        str(paths["popmap"]),
+        "--samples",
+        str(paths["samples"]),
         "--sites",
         str(paths["sites"]),
         "-o",

@@ -16,8 +16,8 @@ cd "$(dirname "$0")"
 
 driftband simulate \
     --population lake:N=2000,n=32 --population spring:N=300,n=28 \
-    --dfe gamma:shape=0.3,mean=400 --theta 0.02 \
-    --sites-0fold 300000 --sites-4fold 150000 --blocks 60 \
+    --true-dfe gamma:shape=0.3,mean=400 --theta 0.02 \
+    --class-sites-0fold 300000 --class-sites-4fold 150000 --block-count 60 \
     --chromosomes 3 --gene-codons 400 --intergenic 4000 \
     --burn-in 20000 --divergence-generations 4000 \
     --outgroup sister:n=8 --missing 0.02 --ref-derived 0.03 \

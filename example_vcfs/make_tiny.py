@@ -13,7 +13,7 @@ Usage (from the repository root)::
 
     python example_vcfs/make_tiny.py
 
-writes ``tiny.vcf.gz`` (+ ``.tbi``), ``tiny.popmap.tsv`` and ``tiny.sites.bed`` next to
+writes ``tiny.vcf.gz`` (+ ``.tbi``), ``tiny.samples.tsv`` and ``tiny.sites.bed`` next to
 this script. The output is the same on every run.
 """
 
@@ -153,7 +153,7 @@ def main() -> None:
     pysam.tabix_compress(str(plain), str(gz), force=True)
     os.unlink(plain)
     pysam.tabix_index(str(gz), preset="vcf", force=True)
-    with open(HERE / "tiny.popmap.tsv", "w", encoding="utf-8") as fh:
+    with open(HERE / "tiny.samples.tsv", "w", encoding="utf-8") as fh:
         fh.write("sample\tpopulation\n")
         for s, p in zip(samples, pop_of):
             fh.write(f"{s}\t{p}\n")

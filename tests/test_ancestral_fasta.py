@@ -18,7 +18,7 @@ from driftband.spectra.build import build_spectra
 from vcf_fixtures import header, random_study, rec, write_text, write_vcf
 
 SAMPLES = ["p1a", "p1b", "p2a", "p2b"]
-POPMAP = "p1a\tone\np1b\tone\np2a\ttwo\np2b\ttwo\n"
+SAMPLE_TABLE = "p1a\tone\np1b\tone\np2a\ttwo\np2b\ttwo\n"
 
 
 def write_fasta(path, seqs: dict[str, str]):
@@ -103,7 +103,7 @@ def _hand_case(tmp_path):
         rec(1, 14, "A", "G", ["1/1", "0/1", "0/0", "0/0"]),
     ]
     vcf = write_vcf(tmp_path / "h.vcf", header(SAMPLES, [("1", 30)]) + "\n".join(r) + "\n")
-    pm = write_text(tmp_path / "pm.tsv", POPMAP)
+    pm = write_text(tmp_path / "pm.tsv", SAMPLE_TABLE)
     bed = write_text(tmp_path / "s.bed", "1\t0\t10\t4fold\n1\t10\t20\t0fold\n")
     #         position 1234567890 1234567890 1234567890
     seq = "AAaNAAAAAa" + "AaAGNNaAAA" + "AAAAAAAAAA"
@@ -149,7 +149,7 @@ def _run(args, capsys):
 def test_cli_fasta_route_and_refusals(tmp_path, capsys):
     vcf, pm, bed, fa = _hand_case(tmp_path)
     out = tmp_path / "o.json"
-    base = ["spectra", str(vcf), "--popmap", str(pm), "--sites", str(bed), "-o", str(out)]
+    base = ["spectra", str(vcf), "--samples", str(pm), "--sites", str(bed), "-o", str(out)]
     rc, err = _run([*base, "--ancestral", f"fasta:{fa}", "--exclude-lowercase-ancestral"], capsys)
     assert rc == 0, err
     doc = json.loads(out.read_text())
@@ -178,7 +178,7 @@ def test_blocks_without_ancestral_bases_are_not_listed(tmp_path):
     # not listed; a block whose every site lacks an ancestral base has none left.
     r = [rec(1, 2, "A", "G", ["0/1", "0/0", "1/1", "0/1"]), rec(1, 25, "A", "G", ["0/1"] * 4)]
     vcf = write_vcf(tmp_path / "b.vcf", header(SAMPLES, [("1", 40)]) + "\n".join(r) + "\n")
-    pm = write_text(tmp_path / "pm.tsv", POPMAP)
+    pm = write_text(tmp_path / "pm.tsv", SAMPLE_TABLE)
     bed = write_text(tmp_path / "s.bed", "1\t0\t10\t4fold\n1\t10\t20\t0fold\n1\t20\t30\t4fold\n")
     fa = write_fasta(tmp_path / "a.fa", {"1": "A" * 20 + "N" * 10 + "A" * 10})
     ss = build_spectra(vcf, pm, bed, ancestral=f"fasta:{fa}", block_size=10)

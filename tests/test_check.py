@@ -19,7 +19,7 @@ from driftband.spectra.plan import parse_regions
 
 ROOT = Path(__file__).resolve().parents[1]
 EX = ROOT / "example_vcfs"
-TINY = ["--popmap", str(EX / "tiny.popmap.tsv"), "--sites", str(EX / "tiny.sites.bed")]
+TINY = ["--samples", str(EX / "tiny.samples.tsv"), "--sites", str(EX / "tiny.sites.bed")]
 
 
 def _check(capsys, *args):
@@ -43,7 +43,7 @@ def test_check_predicts_the_spectra(capsys):
     rc, out, err = _check(capsys, "--vcf", EX / "tiny.vcf.gz", *TINY)
     assert rc == 0, err
     assert "would succeed" in err
-    ss = build_spectra(EX / "tiny.vcf.gz", EX / "tiny.popmap.tsv", EX / "tiny.sites.bed")
+    ss = build_spectra(EX / "tiny.vcf.gz", EX / "tiny.samples.tsv", EX / "tiny.sites.bed")
     for pop in ("lowvale", "highvale"):
         n = ss.populations[pop].n
         starred = re.search(r"\*\s+(\d+) .*", out.split(f"sample sizes of {pop} ")[1])
@@ -66,13 +66,13 @@ def test_check_predicts_the_spectra(capsys):
 
 def test_check_reports_problems_and_exits_2(tmp_path, capsys):
     pm = tmp_path / "pm.tsv"
-    pm.write_text((EX / "tiny.popmap.tsv").read_text() + "ghost01\tlowvale\n")
+    pm.write_text((EX / "tiny.samples.tsv").read_text() + "ghost01\tlowvale\n")
     bed = tmp_path / "chr.bed"
     bed.write_text(
         "".join("chr" + ln for ln in (EX / "tiny.sites.bed").read_text().splitlines(True))
     )
     rc, out, err = _check(
-        capsys, "--vcf", EX / "tiny.vcf.gz", "--popmap", pm, "--sites", bed, "--ancestral", "aa"
+        capsys, "--vcf", EX / "tiny.vcf.gz", "--samples", pm, "--sites", bed, "--ancestral", "aa"
     )
     assert rc == 2
     assert "lowvale: 8 found, missing 1: ghost01" in out
@@ -94,9 +94,9 @@ def test_check_names_a_missing_aa_field(tmp_path, capsys):
 
 def test_run_refuses_before_any_work(tmp_path, capsys):
     pm = tmp_path / "pm.tsv"
-    pm.write_text((EX / "tiny.popmap.tsv").read_text() + "ghost01\tlowvale\n")
+    pm.write_text((EX / "tiny.samples.tsv").read_text() + "ghost01\tlowvale\n")
     out = tmp_path / "results"
-    args = ["run", "--vcf", EX / "tiny.vcf.gz", "--popmap", pm, "--sites", EX / "tiny.sites.bed"]
+    args = ["run", "--vcf", EX / "tiny.vcf.gz", "--samples", pm, "--sites", EX / "tiny.sites.bed"]
     assert main([*map(str, args), "--out-dir", str(out), "-q"]) == 2
     err = capsys.readouterr().err.strip().splitlines()
     assert len(err) == 1 and err[0].startswith("driftband run: error: preflight: ")
@@ -112,7 +112,7 @@ def test_check_of_a_study_file_with_an_ancestral_fasta(tmp_path, capsys):
     study = tmp_path / "s.toml"
     study.write_text(
         "[[dataset]]\n"
-        f'vcf = "{EX / "tiny.vcf.gz"}"\npopmap = "{EX / "tiny.popmap.tsv"}"\n'
+        f'vcf = "{EX / "tiny.vcf.gz"}"\nsamples = "{EX / "tiny.samples.tsv"}"\n'
         f'sites = "{EX / "tiny.sites.bed"}"\nancestral = "fasta:anc.fa"\n'
         "exclude_lowercase_ancestral = true\n"
     )

@@ -57,8 +57,8 @@ def test_convention_line_names_the_fitness_scheme():
 def spectra(tmp_path_factory):
     d = tmp_path_factory.mktemp("effect")
     out = d / "spectra.json"
-    args = ["simulate", "--population", "p:N=200,n=12", "--sites", "40000"]
-    args += ["--theta", "0.02", "--dfe", "gamma:shape=0.3,mean=100", "--seed", "3"]
+    args = ["simulate", "--population", "p:N=200,n=12", "--class-sites", "40000"]
+    args += ["--theta", "0.02", "--true-dfe", "gamma:shape=0.3,mean=100", "--seed", "3"]
     assert main(args + ["-o", str(out), "-q"]) == 0
     return out
 

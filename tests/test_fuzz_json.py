@@ -18,7 +18,7 @@ from pathlib import Path
 import pytest
 
 from fuzz_helpers import expect_refusal, run
-from test_fuzz_vcf import POPMAP, SITES, vcf_text
+from test_fuzz_vcf import SAMPLE_TABLE, SITES, vcf_text
 from vcf_fixtures import write_vcf
 
 DATA = Path(__file__).parent / "data" / "report"
@@ -213,7 +213,7 @@ name = "fuzz"
 [[dataset]]
 name = "d"
 vcf = "v.vcf.gz"
-popmap = "pm.tsv"
+samples = "pm.tsv"
 sites = "s.bed"
 all_sites_callable = true
 
@@ -229,7 +229,7 @@ replicates = 0
 def study_dir(tmp_path_factory):
     d = tmp_path_factory.mktemp("study")
     write_vcf(d / "v.vcf", vcf_text(), "bgzf")
-    (d / "pm.tsv").write_text(POPMAP)
+    (d / "pm.tsv").write_text(SAMPLE_TABLE)
     (d / "s.bed").write_text(SITES)
     return d
 

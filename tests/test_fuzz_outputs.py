@@ -17,7 +17,7 @@ from pathlib import Path
 import pytest
 
 from fuzz_helpers import expect_refusal, run, snapshot
-from test_fuzz_vcf import POPMAP, SITES, vcf_text
+from test_fuzz_vcf import SAMPLE_TABLE, SITES, vcf_text
 from vcf_fixtures import write_vcf
 
 DATA = Path(__file__).parent / "data" / "report"
@@ -32,9 +32,9 @@ def inputs(tmp_path_factory):
     d = tmp_path_factory.mktemp("outputs")
     write_vcf(d / "v.vcf", vcf_text(), "bgzf")
     (d / "v.vcf").unlink()
-    (d / "pm.tsv").write_text(POPMAP)
+    (d / "pm.tsv").write_text(SAMPLE_TABLE)
     (d / "s.bed").write_text(SITES)
-    sim = ["simulate", "--population", "A:N=50,n=4", "--sites", "300", "--seed", "1"]
+    sim = ["simulate", "--population", "A:N=50,n=4", "--class-sites", "300", "--seed", "1"]
     assert main([*sim, "--vcf", str(d / "g"), "--genome", "-q", "-o", str(d / "g.json")]) == 0
     for name in ("fit.json", "spectra.json", "compare.tsv"):
         (d / name).write_bytes((DATA / name).read_bytes())
@@ -48,13 +48,13 @@ def _copy(src: Path, dst: Path) -> None:
 
 # command -> (argument list before the outputs, first output option, second output option)
 COMMANDS = {
-    "spectra": (["spectra", "v.vcf.gz", "--popmap", "pm.tsv", "--sites", "s.bed",
+    "spectra": (["spectra", "v.vcf.gz", "--samples", "pm.tsv", "--sites", "s.bed",
                  "--all-sites-callable"], "-o", "--tsv"),
     "classify": (["classify", "--fasta", "g.fa", "--gff", "g.gff3"], "-o", "--summary"),
     "fit": (["fit", "spectra.json", "--dfe", "gamma"], "-o", "--bands-tsv"),
     "compare": (["compare", "fit.json"], "-o", None),
     "report": (["report", "fit.json", "--compare", "compare.tsv"], "-o", "--summary"),
-    "simulate": (["simulate", "--population", "A:N=50,n=4", "--sites", "200", "--seed", "2"],
+    "simulate": (["simulate", "--population", "A:N=50,n=4", "--class-sites", "200", "--seed", "2"],
                  "-o", "--tsv"),
 }  # fmt: skip
 INPUTS = {
@@ -213,7 +213,7 @@ BAD_OPTIONS = {
     "fit": [["--dfe", "nosuch"], ["--bands", "5,1"], ["--misorientation", "fixed:2"],
             ["--bootstrap", "-3"]],
     "compare": [["--model", "nosuch"], ["--tests", "nosuch"], ["--pairs", "a:a"]],
-    "simulate": [["--theta", "-1"], ["--sites", "0"], ["--dfe", "nosuch"]],
+    "simulate": [["--theta", "-1"], ["--class-sites", "0"], ["--true-dfe", "nosuch"]],
 }  # fmt: skip
 OPTION_CASES = [(c, o) for c, opts in BAD_OPTIONS.items() for o in opts]
 

@@ -1,4 +1,4 @@
-"""Fuzzing the table and annotation readers: the sample table (popmap), BED files, FASTA
+"""Fuzzing the table and annotation readers: the sample table (sample_table), BED files, FASTA
 and GFF3. Bad input is refused with one line naming the file and line; odd-but-valid
 spellings give the canonical result.
 
@@ -16,7 +16,7 @@ from pathlib import Path
 import pytest
 
 from fuzz_helpers import expect_refusal, expect_success, spectra_content
-from test_fuzz_vcf import POPMAP, SITES, vcf_text
+from test_fuzz_vcf import SAMPLE_TABLE, SITES, vcf_text
 from vcf_fixtures import write_vcf
 
 
@@ -26,28 +26,29 @@ def vcf(tmp_path_factory):
     return write_vcf(d / "v.vcf", vcf_text(), "bgzf")
 
 
-def spectra_args(vcf, popmap, sites, out) -> list:
+def spectra_args(vcf, sample_table, sites, out) -> list:
     return [
-        "spectra", vcf, "--popmap", popmap, "--sites", sites, "--all-sites-callable",
+        "spectra", vcf, "--samples", sample_table, "--sites", sites, "--all-sites-callable",
         "-o", out, "-q",
     ]  # fmt: skip
 
 
-# ----------------------------------------------------------------- popmap
-BAD_POPMAPS = [
-    ("duplicate-sample", POPMAP + "a1\tB\n", ":5", ["a1"]),
-    ("unknown-sample", POPMAP + "zz\tB\n", "", ["zz"]),
+# ----------------------------------------------------------------- sample_table
+BAD_SAMPLE_TABLES = [
+    ("duplicate-sample", SAMPLE_TABLE + "a1\tB\n", ":5", ["a1"]),
+    ("unknown-sample", SAMPLE_TABLE + "zz\tB\n", "", ["zz"]),
     ("one-column", "a1\na2\nb1\nb2\n", ":1", []),
     ("empty", "", "", []),
     ("only-comments", "# sample\tpop\n", "", []),
     ("one-sample-pop", "a1\tA\na2\tA\nb1\tB\n", "", ["B"]),
     ("binary", "\x00\x01\x02garbage\n", "", []),
     ("empty-population", "a1\t\na2\tA\nb1\tB\nb2\tB\n", ":1", []),
+    ("row-without-a-header-column", "population\tdepth\tsample\nA\t30\ta1\nA\t30\n", ":3", []),
 ]
 
 
-@pytest.mark.parametrize("case", BAD_POPMAPS, ids=[c[0] for c in BAD_POPMAPS])
-def test_bad_popmap(capfd, vcf, tmp_path, case):
+@pytest.mark.parametrize("case", BAD_SAMPLE_TABLES, ids=[c[0] for c in BAD_SAMPLE_TABLES])
+def test_bad_sample_table(capfd, vcf, tmp_path, case):
     _id, text, line, names = case
     pm = tmp_path / "pm.tsv"
     pm.write_text(text)
@@ -62,25 +63,29 @@ def canonical(vcf, tmp_path_factory):
     from driftband.cli import main
 
     d = tmp_path_factory.mktemp("tcanon")
-    (d / "pm.tsv").write_text(POPMAP)
+    (d / "pm.tsv").write_text(SAMPLE_TABLE)
     (d / "s.bed").write_text(SITES)
     out = d / "c.json"
     assert main([str(a) for a in spectra_args(vcf, d / "pm.tsv", d / "s.bed", out)]) == 0
     return spectra_content(out)
 
 
-ODD_POPMAPS = {
-    "crlf": POPMAP.replace("\n", "\r\n"),
-    "comments-and-blank-lines": "# sample\tpopulation\n\n" + POPMAP + "\n",
+ODD_SAMPLE_TABLES = {
+    "crlf": SAMPLE_TABLE.replace("\n", "\r\n"),
+    "comments-and-blank-lines": "# sample\tpopulation\n\n" + SAMPLE_TABLE + "\n",
     "shuffled": "b2\tB\na1\tA\nb1\tB\na2\tA\n",
-    "no-final-newline": POPMAP.rstrip("\n"),
+    "no-final-newline": SAMPLE_TABLE.rstrip("\n"),
+    # a header names the columns: any order, other columns ignored
+    "header-reordered-extra-columns": "population\tdepth\tSample\n"
+    + "".join(f"{p}\t30\t{s}\n" for s, p in (ln.split("\t") for ln in SAMPLE_TABLE.splitlines())),
+    "header-short-names": "id\tpop\n" + SAMPLE_TABLE,
 }
 
 
-@pytest.mark.parametrize("name", sorted(ODD_POPMAPS))
-def test_odd_popmap(capfd, vcf, tmp_path, canonical, name):
+@pytest.mark.parametrize("name", sorted(ODD_SAMPLE_TABLES))
+def test_odd_sample_table(capfd, vcf, tmp_path, canonical, name):
     pm = tmp_path / "pm.tsv"
-    pm.write_text(ODD_POPMAPS[name])
+    pm.write_text(ODD_SAMPLE_TABLES[name])
     (tmp_path / "s.bed").write_text(SITES)
     out = tmp_path / "o.json"
     expect_success(capfd, spectra_args(vcf, pm, tmp_path / "s.bed", out))
@@ -106,7 +111,7 @@ BAD_BEDS = [
 @pytest.mark.parametrize("case", BAD_BEDS, ids=[c[0] for c in BAD_BEDS])
 def test_bad_sites_bed(capfd, vcf, tmp_path, case):
     _id, text, line = case
-    (tmp_path / "pm.tsv").write_text(POPMAP)
+    (tmp_path / "pm.tsv").write_text(SAMPLE_TABLE)
     bed = tmp_path / "s.bed"
     bed.write_bytes(text.encode("latin-1"))
     out = tmp_path / "o.json"
@@ -126,7 +131,7 @@ ODD_BEDS = {
 
 @pytest.mark.parametrize("name", sorted(ODD_BEDS))
 def test_odd_sites_bed(capfd, vcf, tmp_path, canonical, name):
-    (tmp_path / "pm.tsv").write_text(POPMAP)
+    (tmp_path / "pm.tsv").write_text(SAMPLE_TABLE)
     bed = tmp_path / "s.bed"
     text = ODD_BEDS[name]
     if text is None:
@@ -146,7 +151,7 @@ def genome(tmp_path_factory):
     from driftband.cli import main
 
     d = tmp_path_factory.mktemp("genome")
-    args = ["simulate", "--population", "A:N=50,n=4", "--sites", "300", "--seed", "1"]
+    args = ["simulate", "--population", "A:N=50,n=4", "--class-sites", "300", "--seed", "1"]
     assert main([*args, "--vcf", str(d / "sim"), "--genome", "-q", "-o", str(d / "s.json")]) == 0
     return d
 

@@ -22,7 +22,7 @@ from fuzz_helpers import expect_refusal, expect_success, spectra_content
 from vcf_fixtures import header, rec, write_vcf
 
 SAMPLES = ["a1", "a2", "b1", "b2"]
-POPMAP = "a1\tA\na2\tA\nb1\tB\nb2\tB\n"
+SAMPLE_TABLE = "a1\tA\na2\tA\nb1\tB\nb2\tB\n"
 SITES = "1\t0\t500\t4fold\n1\t500\t1000\t0fold\n2\t0\t1000\t4fold\n"
 CONTIGS = [("1", 1000), ("2", 1000)]
 GTS = [
@@ -69,7 +69,7 @@ def gt_record(k: int, first_gt: str) -> str:
 @pytest.fixture(scope="module")
 def base(tmp_path_factory):
     d = tmp_path_factory.mktemp("vcfbase")
-    (d / "pm.tsv").write_text(POPMAP)
+    (d / "pm.tsv").write_text(SAMPLE_TABLE)
     (d / "s.bed").write_text(SITES)
     return d
 
@@ -78,7 +78,7 @@ def spectra_args(base: Path, vcf, out: Path, *extra) -> list:
     return [
         "spectra",
         vcf,
-        "--popmap",
+        "--samples",
         base / "pm.tsv",
         "--sites",
         base / "s.bed",
@@ -211,11 +211,11 @@ def test_corrupt_index(capfd, base, tmp_path, junk):
 
 
 # ----------------------------------------------------------------- odd but valid
-def _spectra(capfd, base, tmp_path, vcf, *extra, popmap=None) -> dict:
+def _spectra(capfd, base, tmp_path, vcf, *extra, sample_table=None) -> dict:
     out = tmp_path / f"o{len(list(tmp_path.glob('o*.json')))}.json"
     args = spectra_args(base, vcf, out, *extra)
-    if popmap is not None:
-        args[args.index("--popmap") + 1] = popmap
+    if sample_table is not None:
+        args[args.index("--samples") + 1] = sample_table
     expect_success(capfd, args)
     return spectra_content(out)
 
@@ -270,7 +270,7 @@ def test_haploid_calls_equal_the_same_copies_as_diploid(capfd, base, tmp_path, c
     p.write_text(header(hap, CONTIGS) + "\n".join(recs) + "\n")
     pm = tmp_path / "hpm.tsv"
     pm.write_text("".join(f"{s}\t{s[0].upper()}\n" for s in hap))
-    assert _spectra(capfd, base, tmp_path, p, popmap=pm) == canonical
+    assert _spectra(capfd, base, tmp_path, p, sample_table=pm) == canonical
 
 
 def test_stdin_equals_file(base, tmp_path, canonical):

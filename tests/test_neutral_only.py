@@ -12,8 +12,16 @@ from driftband.cli import main
 
 def test_neutral_only_population_is_fitted_and_bootstrapped(tmp_path):
     spectra, fit = tmp_path / "s.json", tmp_path / "fit.json"
-    args = ["simulate", "--population", "p:N=200,n=10", "--dfe", "neutral", "--sites", "20000"]
-    args += ["--theta", "0.02", "--blocks", "20", "--seed", "4", "-o", str(spectra), "-q"]
+    args = [
+        "simulate",
+        "--population",
+        "p:N=200,n=10",
+        "--true-dfe",
+        "neutral",
+        "--class-sites",
+        "20000",
+    ]
+    args += ["--theta", "0.02", "--block-count", "20", "--seed", "4", "-o", str(spectra), "-q"]
     assert main(args) == 0
     args = ["fit", str(spectra), "--bootstrap", "4", "--workers", "1", "-o", str(fit), "-q"]
     assert main(args) == 0

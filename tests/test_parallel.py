@@ -35,7 +35,7 @@ from driftband.spectra.io import spectra_to_dict, write_spectra_json
 from driftband.spectra.parallel import _count_task
 from driftband.spectra.plan import make_plan
 from driftband.spectra.projection import spectra_from_counts
-from driftband.variants.popmap import assign_samples, read_popmap
+from driftband.variants.samples import assign_samples, read_sample_table
 from driftband.variants.source import VcfSource
 from vcf_fixtures import header, random_study, rec, write_text, write_vcf
 
@@ -50,7 +50,7 @@ REGION = 10_000  # bases per task: about 13 tasks on the simulated study
 @pytest.fixture(scope="module")
 def study(tmp_path_factory):
     """A study written by ``driftband simulate --vcf``: 3 chromosomes of 41.1 kb, two
-    populations, bgzipped + indexed VCF, sites BED and popmap."""
+    populations, bgzipped + indexed VCF, sites BED and sample table."""
     d = tmp_path_factory.mktemp("pstudy")
     rc = main(
         [
@@ -59,11 +59,11 @@ def study(tmp_path_factory):
             "lake:N=200,n=12",
             "--population",
             "pond:N=100,n=8",
-            "--sites",
+            "--class-sites",
             "30000",
             "--theta",
             "0.02",
-            "--blocks",
+            "--block-count",
             "12",
             "--chromosomes",
             "3",
@@ -79,7 +79,7 @@ def study(tmp_path_factory):
     assert rc == 0
     return {
         "vcf": d / "study.vcf.gz",
-        "popmap": d / "study.popmap.tsv",
+        "samples": d / "study.samples.tsv",
         "sites": d / "study.sites.bed",
         "dir": d,
     }
@@ -96,7 +96,7 @@ def missing_study(tmp_path_factory):
     bed = write_text(
         d / "s.bed", "1\t0\t60000\t4fold\n2\t0\t25000\t0fold\n2\t25000\t60000\t4fold\n"
     )
-    return {"vcf": vcf, "popmap": pm, "sites": bed, "dir": d, "text": text}
+    return {"vcf": vcf, "samples": pm, "sites": bed, "dir": d, "text": text}
 
 
 @pytest.fixture(scope="module")
@@ -181,7 +181,7 @@ def test_worker_count_checks():
 
 
 def test_spectra_same_for_1_and_2_workers_and_match_scikit_allel(study, tmp_path):
-    args = (study["vcf"], study["popmap"], study["sites"])
+    args = (study["vcf"], study["samples"], study["sites"])
     one = build_spectra(*args, region_size=REGION, workers=1)
     two = build_spectra(*args, region_size=REGION, workers=2)
     big = build_spectra(*args, workers=2)  # default region size: one task per chromosome
@@ -216,7 +216,7 @@ def test_spectra_same_for_1_and_2_workers_and_match_scikit_allel(study, tmp_path
     )
     ref_is_anc = cs["variants/AA"] == cs["variants/REF"]
     sample_pop = dict(
-        line.split("\t") for line in Path(study["popmap"]).read_text().splitlines() if line
+        line.split("\t") for line in Path(study["samples"]).read_text().splitlines() if line
     )
     for p, pop in two.populations.items():
         idx = [i for i, s in enumerate(cs["samples"]) if sample_pop[s] == p]
@@ -231,7 +231,7 @@ def test_spectra_same_for_1_and_2_workers_and_match_scikit_allel(study, tmp_path
 
 
 def test_projected_spectra_byte_identical_for_1_2_and_3_workers(missing_study, tmp_path):
-    args = (missing_study["vcf"], missing_study["popmap"], missing_study["sites"])
+    args = (missing_study["vcf"], missing_study["samples"], missing_study["sites"])
     runs = {w: build_spectra(*args, region_size=7_000, workers=w) for w in (1, 2, 3)}
     assert runs[1].populations["A"].classes["4fold"].block_sfs.dtype == np.float64
     for w, ss in runs.items():
@@ -249,7 +249,7 @@ def test_projected_spectra_byte_identical_for_1_2_and_3_workers(missing_study, t
 def test_cluster_matches_local(study, missing_study, cluster, tmp_path):
     addr = cluster.scheduler_address
     for s in (study, missing_study):
-        args = (s["vcf"], s["popmap"], s["sites"])
+        args = (s["vcf"], s["samples"], s["sites"])
         local = build_spectra(*args, region_size=REGION, workers=2)
         remote = build_spectra(*args, region_size=REGION, scheduler=addr)
         assert remote.provenance["execution"]["scheduler"] == addr
@@ -258,8 +258,8 @@ def test_cluster_matches_local(study, missing_study, cluster, tmp_path):
     base = [
         "spectra",
         str(study["vcf"]),
-        "--popmap",
-        str(study["popmap"]),
+        "--samples",
+        str(study["samples"]),
         "--sites",
         str(study["sites"]),
         "--region-size",
@@ -275,7 +275,7 @@ def test_cluster_matches_local(study, missing_study, cluster, tmp_path):
 
 
 def _region_tasks(s, region_size=REGION):
-    pm = read_popmap(s["popmap"])
+    pm = read_sample_table(s["samples"])
     sc = read_site_classes(s["sites"])
     with VcfSource(s["vcf"]) as src:
         design = make_design(assign_samples(pm, src.header.samples), sorted(sc.classes))
@@ -383,8 +383,8 @@ def test_unreachable_scheduler_is_one_line_and_exit_2(study, tmp_path):
         [
             "spectra",
             str(study["vcf"]),
-            "--popmap",
-            str(study["popmap"]),
+            "--samples",
+            str(study["samples"]),
             "--sites",
             str(study["sites"]),
             "-o",
@@ -445,8 +445,8 @@ def test_silent_listener_and_bad_address_are_one_line(study, tmp_path, capsys):
     base = [
         "spectra",
         str(study["vcf"]),
-        "--popmap",
-        str(study["popmap"]),
+        "--samples",
+        str(study["samples"]),
         "--sites",
         str(study["sites"]),
         "-o",
@@ -479,7 +479,7 @@ def test_user_error_in_a_worker_is_one_line(tmp_path, capsys):
         [
             "spectra",
             str(vcf),
-            "--popmap",
+            "--samples",
             str(pm),
             "--sites",
             str(bed),
@@ -515,11 +515,11 @@ def fitted(tmp_path_factory):
                 "simulate",
                 "--population",
                 "big:N=300,n=12",
-                "--sites",
+                "--class-sites",
                 "30000",
                 "--theta",
                 "0.02",
-                "--blocks",
+                "--block-count",
                 "24",
                 "--seed",
                 "17",

@@ -251,7 +251,7 @@ name = "two datasets"
 [[dataset]]
 name = "north"
 vcf = "{EX / "snail.vcf.gz"}"
-popmap = "{EX / "snail.popmap.tsv"}"
+samples = "{EX / "snail.samples.tsv"}"
 fasta = "{EX / "snail.fa.gz"}"
 gff = "{EX / "snail.gff3"}"
 ancestral = "outgroup:sister"
@@ -261,7 +261,7 @@ project = 10
 [[dataset]]
 name = "south"
 vcf = "{EX / "snail.vcf.gz"}"
-popmap = "{EX / "snail.popmap.tsv"}"
+samples = "{EX / "snail.samples.tsv"}"
 sites = "classes.bed"
 ancestral = "outgroup:sister"
 regions = ["chr2"]
@@ -383,7 +383,7 @@ name = "x"
 
 [[dataset]]
 vcf = "{EX / "snail.vcf.gz"}"
-popmap = "{EX / "snail.popmap.tsv"}"
+samples = "{EX / "snail.samples.tsv"}"
 fasta = "{EX / "snail.fa.gz"}"
 gff = "{EX / "snail.gff3"}"
 """
@@ -466,8 +466,8 @@ def test_flags_mode_errors(tmp_path, capsys):
                 "run",
                 "--vcf",
                 str(EX / "snail.vcf.gz"),
-                "--popmap",
-                str(EX / "snail.popmap.tsv"),
+                "--samples",
+                str(EX / "snail.samples.tsv"),
                 "--sites",
                 str(tmp_path / "no.bed"),
                 "--out-dir",
@@ -484,8 +484,8 @@ def test_flags_mode_errors(tmp_path, capsys):
                 "run",
                 "--vcf",
                 str(EX / "snail.vcf.gz"),
-                "--popmap",
-                str(EX / "snail.popmap.tsv"),
+                "--samples",
+                str(EX / "snail.samples.tsv"),
                 "--fasta",
                 str(EX / "snail.fa.gz"),
                 "--out-dir",
@@ -528,8 +528,8 @@ def test_flags_make_the_same_kind_of_study(tmp_path):
             "run",
             "--vcf",
             str(EX / "snail.vcf.gz"),
-            "--popmap",
-            str(EX / "snail.popmap.tsv"),
+            "--samples",
+            str(EX / "snail.samples.tsv"),
             "--fasta",
             str(EX / "snail.fa.gz"),
             "--gff",
@@ -537,9 +537,7 @@ def test_flags_make_the_same_kind_of_study(tmp_path):
             "--ancestral",
             "outgroup:sister",
             "--project",
-            "lake=20",
-            "--project",
-            "spring=18",
+            "lake=20,spring=18",
             "--block-size",
             "50000",
             "--regions",

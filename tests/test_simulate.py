@@ -432,7 +432,7 @@ def test_infinite_sites_guard_and_short_burn_in_warning():
 
 
 # --------------------------------------------------------------------------------------
-# Layout, VCF, BED, popmap
+# Layout, VCF, BED, sample table
 # --------------------------------------------------------------------------------------
 
 
@@ -482,7 +482,7 @@ def _spectra_from_vcf(paths):
     """Recount derived alleles per population and class straight from the VCF (pysam)."""
     pysam = pytest.importorskip("pysam")
     classes = read_site_classes(paths["bed"])
-    popmap = dict(line.split("\t") for line in open(paths["popmap"]).read().splitlines())
+    sample_table = dict(line.split("\t") for line in open(paths["samples"]).read().splitlines()[1:])
     counts: dict = {}
     outgroup_ok = True
     with pysam.VariantFile(paths["vcf"]) as vf:
@@ -499,10 +499,10 @@ def _spectra_from_vcf(paths):
             per_pop = Counter()
             for name, smp in rec.samples.items():
                 gt = smp["GT"]
-                if popmap[name] == "sister":
+                if sample_table[name] == "sister":
                     outgroup_ok &= all(g == 1 - der for g in gt)
                     continue
-                per_pop[popmap[name]] += sum(g == der for g in gt)
+                per_pop[sample_table[name]] += sum(g == der for g in gt)
             for pop, k in per_pop.items():
                 if k:
                     counts[(pop, cls[0], k)] = counts.get((pop, cls[0], k), 0) + 1
@@ -545,12 +545,14 @@ def test_vcf_is_valid_for_bcftools_and_indexed(vcf_study):
     assert rows and all(r[0] == "chr2" for r in rows)
     flipped = sum(r[3] == r[2] for r in rows) / len(rows)
     assert 0.15 < flipped < 0.45  # --ref-derived 0.3
-    # Every sample is in the popmap, diploid, with GT:DP:GQ.
+    # Every sample is in the sample table, diploid, with GT:DP:GQ.
     samples = subprocess.run(
         [bcftools, "query", "-l", paths["vcf"]], capture_output=True, text=True, check=True
     ).stdout.split()
-    popmap = [ln.split("\t")[0] for ln in open(paths["popmap"]).read().splitlines()]
-    assert samples == popmap and len(samples) == 6 + 4 + 2
+    rows = open(paths["samples"]).read().splitlines()
+    assert rows[0] == "sample\tpopulation"
+    sample_table = [ln.split("\t")[0] for ln in rows[1:]]
+    assert samples == sample_table and len(samples) == 6 + 4 + 2
     bed = read_site_classes(paths["bed"])
     assert bed.classes["0fold"].length() == 12_000 and bed.classes["4fold"].length() == 6000
 
@@ -589,11 +591,11 @@ def test_cli_writes_spectra_and_vcf(tmp_path, capsys):
             "lake:N=100,n=8",
             "--population",
             "spring:N=30,n=6",
-            "--sites-0fold",
+            "--class-sites-0fold",
             "3000",
-            "--sites-4fold",
+            "--class-sites-4fold",
             "1500",
-            "--blocks",
+            "--block-count",
             "5",
             "--gene-codons",
             "50",
@@ -603,9 +605,9 @@ def test_cli_writes_spectra_and_vcf(tmp_path, capsys):
             "4",
             "--divergence-generations",
             "100",
-            "--dfe",
+            "--true-dfe",
             "lognormal:mu=3,sigma=1",
-            "--beneficial",
+            "--true-beneficial",
             "p=0.01,S=20",
             "--vcf",
             str(tmp_path / "cli"),
@@ -622,7 +624,7 @@ def test_cli_writes_spectra_and_vcf(tmp_path, capsys):
     assert set(ss.populations) == {"lake", "spring"}
     assert len(ss.blocks) == 5
     assert ss.provenance["simulation"]["dfe"]["family"] == "lognormal"
-    for suffix in (".vcf.gz", ".vcf.gz.tbi", ".sites.bed", ".popmap.tsv"):
+    for suffix in (".vcf.gz", ".vcf.gz.tbi", ".sites.bed", ".samples.tsv"):
         assert (tmp_path / f"cli{suffix}").exists()
     # Layout options: 3000 + 1500 sites in genes of <= 50 codons with 2 kb before each.
     blocks = ss.blocks
@@ -636,20 +638,23 @@ def test_cli_writes_spectra_and_vcf(tmp_path, capsys):
     "argv, msg",
     [
         (["--population", "lake:N=100,n=9", "--vcf", "V"], "odd"),
-        (["--population", "lake:N=100,n=8", "--dfe", "gamma:shape=0.3"], "mean"),
+        (["--population", "lake:N=100,n=8", "--true-dfe", "gamma:shape=0.3"], "mean"),
         (["--population", "lake:N=100,n=8", "--history", "other=0:10"], "other"),
         (["--population", "lake:N=100,n=8", "--vcf", "V", "--missing", "1.5"], "--missing"),
         (["--population", "lake:N=100,n=8", "--vcf", "V", "--outgroup", "sis"], "--outgroup"),
-        (["--population", "lake:N=100,n=8", "--blocks", "0"], "--blocks"),
-        (["--population", "lake:N=100,n=8", "--sites", "10", "--blocks", "20"], "blocks"),
+        (["--population", "lake:N=100,n=8", "--block-count", "0"], "--block-count"),
+        (
+            ["--population", "lake:N=100,n=8", "--class-sites", "10", "--block-count", "20"],
+            "blocks",
+        ),
         ([], "--population"),
     ],
 )
 def test_cli_bad_options_exit_2_with_one_line_and_write_nothing(tmp_path, capsys, argv, msg):
     argv = [a.replace("V", str(tmp_path / "v")) if a == "V" else a for a in argv]
     rc = main(
-        ["simulate", *argv, "--sites", "200", "-o", str(tmp_path / "x.json")]
-        if "--sites" not in argv
+        ["simulate", *argv, "--class-sites", "200", "-o", str(tmp_path / "x.json")]
+        if "--class-sites" not in argv
         else ["simulate", *argv, "-o", str(tmp_path / "x.json")]
     )
     err = capsys.readouterr().err
@@ -716,11 +721,11 @@ def test_genome_needs_more_0fold_than_4fold_sites(tmp_path, capsys):
             "simulate",
             "--population",
             "a:N=50,n=4",
-            "--sites-0fold",
+            "--class-sites-0fold",
             "100",
-            "--sites-4fold",
+            "--class-sites-4fold",
             "200",
-            "--blocks",
+            "--block-count",
             "2",
             "--vcf",
             str(tmp_path / "g"),
@@ -739,9 +744,9 @@ def test_cli_short_burn_in_warns_in_one_line(tmp_path, capsys):
             "simulate",
             "--population",
             "a:N=50,n=4",
-            "--sites",
+            "--class-sites",
             "100",
-            "--blocks",
+            "--block-count",
             "2",
             "--burn-in",
             "10",

@@ -24,13 +24,13 @@ from driftband.spectra.projection import (
     projection_matrix,
     spectra_from_counts,
 )
-from driftband.variants.popmap import assign_samples, read_popmap
+from driftband.variants.samples import assign_samples, read_sample_table
 from driftband.variants.source import VcfSource
 from vcf_fixtures import header, random_study, rec, write_text, write_vcf
 
 ROOT = Path(__file__).resolve().parents[1]
 SAMPLES = ["p1a", "p1b", "p2a", "p2b"]
-POPMAP = "sample\tpopulation\np1a\tone\np1b\tone\np2a\ttwo\np2b\ttwo\n"
+SAMPLE_TABLE = "sample\tpopulation\np1a\tone\np1b\tone\np2a\ttwo\np2b\ttwo\n"
 SITES = "1\t0\t100\t4fold\n1\t100\t200\t0fold\n"
 
 
@@ -54,7 +54,11 @@ def _case_a() -> str:
 @pytest.fixture
 def case_a(tmp_path):
     vcf = write_vcf(tmp_path / "a.vcf", _case_a(), "bgzf")
-    return (vcf, write_text(tmp_path / "pm.tsv", POPMAP), write_text(tmp_path / "s.bed", SITES))
+    return (
+        vcf,
+        write_text(tmp_path / "pm.tsv", SAMPLE_TABLE),
+        write_text(tmp_path / "s.bed", SITES),
+    )
 
 
 def _sfs(ss, pop, cls):
@@ -336,7 +340,7 @@ def test_region_tasks_sum_in_any_order(tmp_path):
     rng = np.random.default_rng(8)
     text, samples, _ = random_study(rng, 10, 500, chroms=("1", "2"), length=40_000, missing=0.02)
     vcf = write_vcf(tmp_path / "t.vcf", text, "bgzf")
-    pm = read_popmap(
+    pm = read_sample_table(
         write_text(
             tmp_path / "pm.tsv", "".join(f"{s}\t{'AB'[i % 2]}\n" for i, s in enumerate(samples))
         )
@@ -417,8 +421,8 @@ def test_cli_writes_tsv_and_outgroup(tmp_path):
         [
             "spectra",
             str(ex / "tiny.vcf.gz"),
-            "--popmap",
-            str(ex / "tiny.popmap.tsv"),
+            "--samples",
+            str(ex / "tiny.samples.tsv"),
             "--sites",
             str(ex / "tiny.sites.bed"),
             "--ancestral",

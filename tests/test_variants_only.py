@@ -15,7 +15,7 @@ from driftband.spectra.build import build_spectra
 from vcf_fixtures import header, rec, write_text, write_vcf
 
 SAMPLES = ["p1a", "p1b", "p2a", "p2b"]
-POPMAP = "p1a\tone\np1b\tone\np2a\ttwo\np2b\ttwo\n"
+SAMPLE_TABLE = "p1a\tone\np1b\tone\np2a\ttwo\np2b\ttwo\n"
 SITES = "1\t0\t100\t4fold\n1\t100\t200\t0fold\n"
 SNPS = [
     rec(1, 11, "A", "G", ["0/1", "0/0", "1/1", "0/1"]),
@@ -28,7 +28,7 @@ def _files(tmp_path, records):
     vcf = write_vcf(
         tmp_path / "v.vcf", header(SAMPLES, [("1", 1000)]) + "\n".join(records) + "\n", "bgzf"
     )
-    return vcf, write_text(tmp_path / "pm.tsv", POPMAP), write_text(tmp_path / "s.bed", SITES)
+    return vcf, write_text(tmp_path / "pm.tsv", SAMPLE_TABLE), write_text(tmp_path / "s.bed", SITES)
 
 
 def test_variants_only_vcf_is_flagged(tmp_path, caplog):
@@ -86,7 +86,7 @@ def test_the_two_ways_out(tmp_path, caplog):
 def test_cli_warns_loudly_and_the_statement_silences_it(tmp_path, capsys):
     vcf, pm, bed = _files(tmp_path, SNPS)
     out = tmp_path / "o.json"
-    args = ["spectra", str(vcf), "--popmap", str(pm), "--sites", str(bed), "-o", str(out)]
+    args = ["spectra", str(vcf), "--samples", str(pm), "--sites", str(bed), "-o", str(out)]
     assert main(args) == 0
     err = capsys.readouterr().err
     assert "WARNING" in err and "variants-only" in err

@@ -11,7 +11,7 @@ from driftband.cli import main
 from vcf_fixtures import header, rec, write_text, write_vcf
 
 SAMPLES = ["a1", "a2", "b1", "b2"]
-POPMAP = "a1\tA\na2\tA\nb1\tB\nb2\tB\n"
+SAMPLE_TABLE = "a1\tA\na2\tA\nb1\tB\nb2\tB\n"
 GOOD = [
     rec(1, 5, "A", "G", ["0/1", "0/0", "1/1", "0/1"]),
     rec(1, 9, "C", "T", ["0/0", "0/1", "0/0", "0/0"], info="AA=C"),
@@ -36,7 +36,7 @@ def study(tmp_path):
     return {
         "dir": tmp_path,
         "vcf": write_vcf(tmp_path / "in.vcf", _vcf_text(), "bgzf"),
-        "popmap": write_text(tmp_path / "pm.tsv", POPMAP),
+        "samples": write_text(tmp_path / "pm.tsv", SAMPLE_TABLE),
         "sites": write_text(
             tmp_path / "s.bed", "1\t0\t500\t4fold\n1\t500\t1000\t0fold\n2\t0\t1000\t4fold\n"
         ),
@@ -44,12 +44,12 @@ def study(tmp_path):
     }
 
 
-def run(capfd, st, *extra, vcf=None, popmap=None, sites=None):
+def run(capfd, st, *extra, vcf=None, sample_table=None, sites=None):
     args = [
         "spectra",
         str(vcf or st["vcf"]),
-        "--popmap",
-        str(popmap or st["popmap"]),
+        "--samples",
+        str(sample_table or st["samples"]),
         "--sites",
         str(sites or st["sites"]),
         "-o",
@@ -174,19 +174,19 @@ def test_index_older_than_file(capfd, study):
     expect_error(capfd, study, names=["in.vcf.gz", "older", "tabix"])
 
 
-def test_popmap_duplicate_sample(capfd, study):
-    pm = write_text(study["dir"] / "dup.tsv", POPMAP + "a1\tB\n")
-    expect_error(capfd, study, popmap=pm, names=["dup.tsv:5", "'a1'", "twice"])
+def test_sample_table_duplicate_sample(capfd, study):
+    pm = write_text(study["dir"] / "dup.tsv", SAMPLE_TABLE + "a1\tB\n")
+    expect_error(capfd, study, sample_table=pm, names=["dup.tsv:5", "'a1'", "twice"])
 
 
-def test_popmap_unknown_sample(capfd, study):
-    pm = write_text(study["dir"] / "unk.tsv", "sample\tpopulation\n" + POPMAP + "zz\tB\n")
-    expect_error(capfd, study, popmap=pm, names=["unk.tsv:6", "'zz'", "not among"])
+def test_sample_table_unknown_sample(capfd, study):
+    pm = write_text(study["dir"] / "unk.tsv", "sample\tpopulation\n" + SAMPLE_TABLE + "zz\tB\n")
+    expect_error(capfd, study, sample_table=pm, names=["unk.tsv:6", "'zz'", "not among"])
 
 
 def test_population_with_one_sample(capfd, study):
     pm = write_text(study["dir"] / "one.tsv", "a1\tA\na2\tA\nb1\tB\n")
-    expect_error(capfd, study, popmap=pm, names=["one.tsv:3", "'B'", "at least 2"])
+    expect_error(capfd, study, sample_table=pm, names=["one.tsv:3", "'B'", "at least 2"])
 
 
 def test_chr_prefix_mismatch(capfd, study):

@@ -43,15 +43,15 @@ BEETLE_OPTIONS = {
     "fold": ["--ancestral", "fold"],
     "outgroup": ["--ancestral", "outgroup:outer"],
     "filters": ["--pass-only", "--min-dp", "4", "--min-gq", "8", "--project", "outer=2"],
-    "project": ["--project", "4", "--project", "birch=5"],
+    "project": ["--project", "4,birch=5"],
     "blocks": ["--blocks", "BLOCKS", "--ancestral", "fold", "--min-dp", "3"],
-    "regions": ["--regions", "c1:2000-31000", "c2", "--region-size", "3000"],
+    "regions": ["--regions", "c1:2000-31000,c2", "--region-size", "3000"],
 }
 
 
 @pytest.mark.parametrize("name", sorted(BEETLE_OPTIONS))
 def test_synthetic_store_gives_the_vcf_spectra(beetles, tmp_path, name):
-    args = ["--popmap", str(beetles["popmap"]), "--sites", str(beetles["sites"])]
+    args = ["--samples", str(beetles["samples"]), "--sites", str(beetles["sites"])]
     args += [str(beetles["blocks"]) if a == "BLOCKS" else a for a in BEETLE_OPTIONS[name]]
     args += ["--workers", "1", "--region-size", "4000"] if name != "regions" else []
     rc_v, from_vcf = run_spectra(beetles["vcf"], tmp_path / "vcf.json", args)
@@ -70,7 +70,7 @@ def test_synthetic_store_gives_the_vcf_spectra(beetles, tmp_path, name):
 
 
 def test_two_workers_and_a_zip_store_give_the_same_bytes(beetles, tmp_path):
-    args = ["--popmap", str(beetles["popmap"]), "--sites", str(beetles["sites"])]
+    args = ["--samples", str(beetles["samples"]), "--sites", str(beetles["sites"])]
     args += ["--region-size", "5000"]
     _, one = run_spectra(beetles["vcf"], tmp_path / "one.json", [*args, "--workers", "1"])
     _, two = run_spectra(beetles["vcz"], tmp_path / "two.json", [*args, "--workers", "2"])
@@ -86,7 +86,7 @@ def test_two_workers_and_a_zip_store_give_the_same_bytes(beetles, tmp_path):
 
 @pytest.mark.parametrize("extra", [[], ["--pass-only", "--min-gq", "30"], ["--ancestral", "fold"]])
 def test_tiny_example_store(tiny, tmp_path, extra):
-    args = ["--popmap", str(TINY / "tiny.popmap.tsv"), "--sites", str(TINY / "tiny.sites.bed")]
+    args = ["--samples", str(TINY / "tiny.samples.tsv"), "--sites", str(TINY / "tiny.sites.bed")]
     args += [*extra, "--workers", "1"]
     _, from_vcf = run_spectra(tiny["vcf"], tmp_path / "vcf.json", args)
     _, from_vcz = run_spectra(tiny["vcz"], tmp_path / "vcz.json", args)
@@ -110,7 +110,7 @@ def demo(tmp_path_factory):
 @pytest.mark.parametrize("anc", ["outgroup:sister", "fasta"])
 def test_demo_store(demo, tmp_path, anc):
     anc = f"fasta:{demo['fasta']}" if anc == "fasta" else anc
-    args = ["--popmap", str(DEMO / "snail.popmap.tsv"), "--sites", str(demo["sites"])]
+    args = ["--samples", str(DEMO / "snail.samples.tsv"), "--sites", str(demo["sites"])]
     args += ["--ancestral", anc, "--block-size", "50000", "--all-sites-callable"]
     _, from_vcf = run_spectra(demo["vcf"], tmp_path / "vcf.json", [*args, "--workers", "1"])
     _, from_vcz = run_spectra(demo["vcz"], tmp_path / "vcz.json", [*args, "--workers", "2"])
@@ -129,7 +129,7 @@ def test_run_spectra_stage_reads_a_store(tiny, tmp_path):
             "dataset": [
                 {
                     "vcf": str(vcf),
-                    "popmap": str(TINY / "tiny.popmap.tsv"),
+                    "samples": str(TINY / "tiny.samples.tsv"),
                     "sites": str(TINY / "tiny.sites.bed"),
                 }
             ]
@@ -169,7 +169,7 @@ def test_store_without_region_index_reads_positions(beetles, tmp_path):
     store = tmp_path / "noindex.vcz"
     shutil.copytree(beetles["vcz"], store)
     shutil.rmtree(store / "region_index")
-    args = ["--popmap", str(beetles["popmap"]), "--sites", str(beetles["sites"])]
+    args = ["--samples", str(beetles["samples"]), "--sites", str(beetles["sites"])]
     args += ["--workers", "1", "--region-size", "4000"]
     _, from_vcf = run_spectra(beetles["vcf"], tmp_path / "v.json", args)
     _, from_vcz = run_spectra(store, tmp_path / "z.json", args)
@@ -197,6 +197,6 @@ def test_readme_vcz_example_runs(tmp_path):
         ["bash", "-c", shim + script], cwd=ROOT, capture_output=True, text=True, timeout=300
     )
     assert r.returncode == 0, r.stderr
-    args = ["--popmap", str(TINY / "tiny.popmap.tsv"), "--sites", str(TINY / "tiny.sites.bed")]
+    args = ["--samples", str(TINY / "tiny.samples.tsv"), "--sites", str(TINY / "tiny.sites.bed")]
     _, from_vcf = run_spectra(TINY / "tiny.vcf.gz", tmp_path / "vcf.json", args)
     assert spectra_body(tmp_path / "tiny.vcz.spectra.json") == from_vcf

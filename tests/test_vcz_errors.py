@@ -42,7 +42,7 @@ def run_bad(capfd, good, store, *extra, sites=None):
     was; return the message."""
     out = store.parent / "out" / "spectra.json"
     before = _snapshot(store) if store.is_dir() else None
-    args = ["spectra", str(store), "--popmap", str(good["popmap"])]
+    args = ["spectra", str(store), "--samples", str(good["samples"])]
     args += ["--sites", str(sites or good["sites"]), "-o", str(out), "--workers", "1", *extra]
     rc = main(args)
     err = capfd.readouterr().err.strip()
@@ -61,7 +61,7 @@ def run_bad(capfd, good, store, *extra, sites=None):
 def test_the_good_store_is_read(good, store, tmp_path):
     # the damaged copies below fail because of the damage alone
     out = tmp_path / "ok.json"
-    args = ["spectra", str(store), "--popmap", str(good["popmap"]), "--sites", str(good["sites"])]
+    args = ["spectra", str(store), "--samples", str(good["samples"]), "--sites", str(good["sites"])]
     assert main([*args, "-o", str(out), "--workers", "1", "-q"]) == 0
     assert json.loads(out.read_text())["populations"]
 

@@ -67,7 +67,7 @@ def run_spectra(inp: Path, out: Path, args: list[str]) -> tuple[int, bytes]:
 
 
 SAMPLES = ["a1", "a2", "a3", "a4", "a5", "b1", "b2", "b3", "b4", "h1", "o1", "o2"]
-POPMAP = "".join(
+SAMPLE_TABLE = "".join(
     f"{s}\t{'alder' if s[0] == 'a' else 'birch' if s[0] in 'bh' else 'outer'}\n" for s in SAMPLES
 )
 CONTIGS = (("c1", 60_000), ("c2", 40_000), ("c3", 5_000))
@@ -75,7 +75,7 @@ CONTIGS = (("c1", 60_000), ("c2", 40_000), ("c3", 5_000))
 
 def synthetic_vcf(folder: Path, n: int = 400, seed: int = 3) -> dict[str, Path]:
     """An invented study (three woodland beetle populations: alder, birch and an outgroup)
-    as a bgzipped, indexed VCF with its popmap and site classes.
+    as a bgzipped, indexed VCF with its sample table and site classes.
 
     The records cover: missing calls, a haploid sample (h1, in birch), multi-allelic
     records, ``<*>`` placeholders, indels, monomorphic records (some fixed for another
@@ -125,8 +125,8 @@ def synthetic_vcf(folder: Path, n: int = 400, seed: int = 3) -> dict[str, Path]:
             lines.append(rec(chrom, p, ref, alts, gts, info=f"AA={aa}", filt=filt, fmt="GT:DP:GQ"))
     text = header(SAMPLES, contigs=CONTIGS) + "\n".join(lines) + "\n"
     vcf = write_vcf(folder / "beetles.vcf", text, kind="bgzf")
-    popmap = folder / "beetles.popmap.tsv"
-    popmap.write_text(POPMAP)
+    table = folder / "beetles.samples.tsv"
+    table.write_text("sample\tpopulation\n" + SAMPLE_TABLE)
     sites = folder / "beetles.sites.bed"
     rows = []
     for chrom, length in CONTIGS:
@@ -135,4 +135,4 @@ def synthetic_vcf(folder: Path, n: int = 400, seed: int = 3) -> dict[str, Path]:
     sites.write_text("\n".join(rows) + "\n")
     blocks = folder / "beetles.blocks.bed"
     blocks.write_text("c1\t100\t20000\tg1\nc1\t25000\t59000\tg2\nc2\t0\t39000\tg3\n")
-    return {"vcf": vcf, "popmap": popmap, "sites": sites, "blocks": blocks}
+    return {"vcf": vcf, "samples": table, "sites": sites, "blocks": blocks}

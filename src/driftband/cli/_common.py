@@ -8,7 +8,18 @@ import textwrap
 from collections.abc import Callable
 from typing import Any, TypeVar, overload
 
-__all__ = ["Subparsers", "add_common_arguments", "add_subcommand", "parse_kv", "progress_on_stderr"]
+__all__ = [
+    "LIST_RULE",
+    "CommaList",
+    "Subparsers",
+    "add_common_arguments",
+    "add_subcommand",
+    "parse_kv",
+    "progress_on_stderr",
+]
+
+#: How every list option is written (the README's "Writing lists" says the same).
+LIST_RULE = "one comma-separated list"
 
 #: What ``ArgumentParser.add_subparsers()`` returns (an action class that argparse keeps
 #: private), handed to each subcommand's ``add_parser``.
@@ -30,6 +41,36 @@ def add_subcommand(
     )
     p.set_defaults(subcommand=name)
     return p
+
+
+class CommaList(argparse.Action):
+    """A list option: one comma-separated value, stored as a list of its items.
+
+    Every list option of the command line is written this way (``--dfe gamma,lognormal``,
+    ``--regions chr1,chr2:1-5000``, ``--project 20,spring=16``). Giving the option twice,
+    or an empty item, is refused with a message that shows the form.
+    """
+
+    def __call__(
+        self,
+        parser: argparse.ArgumentParser,
+        namespace: argparse.Namespace,
+        values: Any,
+        option_string: str | None = None,
+    ) -> None:
+        given: set[str] = getattr(namespace, "_lists_given", set())
+        if self.dest in given:
+            raise argparse.ArgumentError(
+                self, f"give it once, as {LIST_RULE} (e.g. {self.metavar or 'A,B'})"
+            )
+        items = [v.strip() for v in str(values).split(",")]
+        if not all(items):
+            raise argparse.ArgumentError(
+                self, f"{values!r} has an empty item; write {LIST_RULE} without spaces or ',,'"
+            )
+        given.add(self.dest)
+        namespace._lists_given = given
+        setattr(namespace, self.dest, items)
 
 
 def add_common_arguments(p: argparse.ArgumentParser, output: bool = True) -> None:
@@ -56,7 +97,7 @@ def parse_kv(
 def parse_kv(
     items: list[str] | None, option: str, convert: Callable[[str], Any] = str
 ) -> dict[str, Any]:
-    """Parse ``KEY=VALUE`` items of a repeated option into a dict (errors name the option)."""
+    """Parse the ``KEY=VALUE`` items of a list option into a dict (errors name the option)."""
     from ..exceptions import OptionError
 
     out: dict[str, Any] = {}

@@ -28,8 +28,8 @@ Writes nothing. Exit code 0 when the run would succeed, 2 with the reasons when 
 
 EXAMPLES = r"""
 driftband check study.toml
-driftband check --vcf calls.vcf.gz --popmap pops.tsv --sites classes.bed --callable mask.bed
-driftband check --vcf calls.vcf.gz --popmap pops.tsv --sites classes.bed \
+driftband check --vcf calls.vcf.gz --samples pops.tsv --sites classes.bed --callable mask.bed
+driftband check --vcf calls.vcf.gz --samples pops.tsv --sites classes.bed \
     --ancestral fasta:ancestor.fa.gz --exclude-lowercase-ancestral
 """
 

@@ -8,7 +8,7 @@ import logging
 from .._io import check_outputs
 from ..defaults import COMPARE_TESTS
 from ..exceptions import OptionError
-from ._common import Subparsers, add_common_arguments, add_subcommand, parse_kv
+from ._common import CommaList, Subparsers, add_common_arguments, add_subcommand, parse_kv
 
 log = logging.getLogger("driftband")
 
@@ -47,9 +47,9 @@ def add_parser(subparsers: Subparsers) -> None:
     )
     p.add_argument(
         "--relative-mutation-rate",
-        action="append",
-        metavar="POP=R",
-        help="mutation rate of POP relative to the others (default 1; repeatable)",
+        action=CommaList,
+        metavar="POP=R,...",
+        help="mutation rate of each POP relative to the others (default 1)",
     )
     p.add_argument(
         "--tests",

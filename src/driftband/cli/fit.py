@@ -11,7 +11,7 @@ from .._io import after_commit, check_outputs, file_record, provenance
 from ..defaults import DEFAULT_MODELS, HEADLINES, format_edges
 from ..effect import DEFAULT_EFFECT, EFFECTS
 from ..exceptions import OptionError
-from ._common import Subparsers, add_common_arguments, add_subcommand, parse_kv
+from ._common import CommaList, Subparsers, add_common_arguments, add_subcommand, parse_kv
 
 log = logging.getLogger("driftband")
 
@@ -19,7 +19,7 @@ EXAMPLES = """
 driftband fit spectra.json -o fit.json --bands-tsv bands.tsv
 driftband fit spectra.json --dfe gamma --misorientation fixed:0 --equilibrium -o fit.json
 driftband fit published_table.tsv --dfe gamma,discrete --bands 0,1,10,100 -o fit.json
-driftband fit a.json b.json --label a.json=lakesnail --label b.json=pondsnail -o fit.json
+driftband fit a.json b.json --label a.json=lakesnail,b.json=pondsnail -o fit.json
 """
 
 
@@ -109,9 +109,9 @@ def add_parser(subparsers: Subparsers) -> None:
     )
     p.add_argument(
         "--label",
-        action="append",
-        metavar="FILE=NAME",
-        help="prefix the populations of FILE with NAME/ (repeatable)",
+        action=CommaList,
+        metavar="FILE=NAME,...",
+        help="prefix the populations of each FILE with NAME/",
     )
     p.add_argument("-o", "--output", required=True, help="fit file (JSON)")
     p.add_argument("--bands-tsv", help="band table (TSV) of the AIC-best models")

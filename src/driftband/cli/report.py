@@ -10,7 +10,7 @@ from typing import Any
 
 from .._io import after_commit, atomic_output, check_outputs, file_record, provenance
 from ..exceptions import OptionError
-from ._common import Subparsers, add_common_arguments, add_subcommand
+from ._common import CommaList, Subparsers, add_common_arguments, add_subcommand
 
 log = logging.getLogger("driftband")
 
@@ -43,10 +43,10 @@ def add_parser(subparsers: Subparsers) -> None:
     p.add_argument("--compare", metavar="TSV", help="comparison table from 'driftband compare'")
     p.add_argument(
         "--spectra",
-        action="extend",
-        nargs="+",
-        metavar="[LABEL=]FILE",
-        help="spectra file(s) from 'driftband spectra', for diversity statistics; "
+        action=CommaList,
+        metavar="[LABEL=]FILE,...",
+        help="spectra file(s) from 'driftband spectra', comma-separated, for diversity "
+        "statistics; "
         "LABEL= as given to 'driftband fit --label' when the fit pooled "
         "several files",
     )

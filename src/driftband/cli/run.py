@@ -9,7 +9,7 @@ from typing import TYPE_CHECKING
 from ..defaults import HEADLINES
 from ..effect import EFFECTS
 from ..exceptions import OptionError
-from ._common import Subparsers, add_common_arguments, add_subcommand, progress_on_stderr
+from ._common import CommaList, Subparsers, add_common_arguments, add_subcommand, progress_on_stderr
 
 if TYPE_CHECKING:
     from ..run import Study
@@ -29,7 +29,7 @@ compare every pair of populations and write the report, all into one output fold
 
 The study comes from a study file (TOML; its keys are listed in the README, section
 "Study files") or, for one dataset, from the flags below. A study file may hold several
-datasets (e.g. two species, each with its own VCF, genome or sites BED, popmap and
+datasets (e.g. two species, each with its own VCF, genome or sites BED, sample table and
 polarisation); their populations are named DATASET/POP and all meet in one comparison.
 
 A rerun reuses every stage whose inputs (by SHA-256) and options are unchanged and whose
@@ -38,9 +38,9 @@ An output folder holding another study is refused without --force."""
 
 EXAMPLES = r"""
 driftband run study.toml --out-dir results
-driftband run --vcf calls.vcf.gz --popmap pops.tsv --fasta ref.fa.gz --gff genes.gff3 \
+driftband run --vcf calls.vcf.gz --samples pops.tsv --fasta ref.fa.gz --gff genes.gff3 \
     --ancestral outgroup:sister --out-dir results
-driftband run --vcf calls.bcf --popmap pops.tsv --sites classes.bed --callable mask.bed \
+driftband run --vcf calls.bcf --samples pops.tsv --sites classes.bed --callable mask.bed \
     --bootstrap 200 --workers 4 --out-dir results
 driftband run study.toml --out-dir results --bootstrap 500 --seed 7   # same study, more reps
 """
@@ -48,7 +48,7 @@ driftband run study.toml --out-dir results --bootstrap 500 --seed 7   # same stu
 #: Flags of the dataset and the fit (only without a study file), by study-file key.
 _DATASET_FLAGS = {
     "vcf": "--vcf",
-    "popmap": "--popmap",
+    "samples": "--samples",
     "sites": "--sites",
     "fasta": "--fasta",
     "gff": "--gff",
@@ -117,7 +117,9 @@ def add_study_arguments(p: argparse.ArgumentParser) -> None:
     )
     d = p.add_argument_group("one dataset from flags (instead of a study file)")
     d.add_argument("--vcf", metavar="VCF", help="VCF/BCF of all samples")
-    d.add_argument("--popmap", metavar="FILE", help="TSV sample<TAB>population")
+    d.add_argument(
+        "--samples", metavar="TABLE.tsv", help="sample table: TSV of sample and population"
+    )
     d.add_argument("--sites", metavar="BED", help="BED4 of site classes (0fold, 4fold)")
     d.add_argument("--fasta", metavar="REF.fa", help="reference FASTA, with --gff")
     d.add_argument("--gff", metavar="GENES.gff3", help="GFF3 annotation of that reference")
@@ -143,9 +145,9 @@ def add_study_arguments(p: argparse.ArgumentParser) -> None:
     )
     d.add_argument(
         "--project",
-        action="append",
-        metavar="N|POP=N",
-        help="project to N gene copies (all populations, or POP=N; repeatable)",
+        action=CommaList,
+        metavar="N|POP=N,...",
+        help="project to N gene copies: all populations (N) and/or single ones (POP=N)",
     )
     g = d.add_mutually_exclusive_group()
     g.add_argument(
@@ -154,9 +156,9 @@ def add_study_arguments(p: argparse.ArgumentParser) -> None:
     g.add_argument("--blocks", metavar="BED", help="BED of bootstrap blocks instead")
     d.add_argument(
         "--regions",
-        nargs="+",
-        metavar="REGION",
-        help="only these regions: CHROM, CHROM:START-END or BED files",
+        action=CommaList,
+        metavar="REGION,...",
+        help="only these regions, comma-separated: CHROM, CHROM:START-END or BED files",
     )
     d.add_argument("--min-gq", type=int, metavar="Q", help="genotypes with GQ < Q missing")
     d.add_argument("--min-dp", type=int, metavar="D", help="genotypes with DP < D missing")
@@ -218,9 +220,9 @@ def study_from_args(args: argparse.Namespace) -> Study:
                 f"options in the file ({args.study})"
             )
         return read_study(args.study)
-    if args.vcf is None or args.popmap is None:
+    if args.vcf is None or args.samples is None:
         raise OptionError(
-            "give a study file, or --vcf and --popmap with --sites or "
+            "give a study file, or --vcf and --samples with --sites or "
             "--fasta and --gff (see 'driftband run --help')"
         )
     from .fit import parse_bands

@@ -25,7 +25,7 @@ After a burn-in at the ancestral size (default 10N generations) and an optional 
 history, n gene copies are sampled per population and their spectra written (entry 0:
 monomorphic ancestral sites; entry n: sites fixed in the sample, plus substitutions of the
 last --divergence-generations generations). With --vcf the study is also written as a
-VCF on synthetic chromosomes, with its sites BED and popmap, and with --genome also
+VCF on synthetic chromosomes, with its sites BED and sample table, and with --genome also
 as a reference FASTA and GFF3 of real codons whose classification gives back that BED.
 
 Conventions:
@@ -36,7 +36,7 @@ Conventions:
       from AGO generations ago back to the next older change; the oldest size is the
       ancestral size (burn-in). 0:4000,200:1000 = four-fold expansion 200 generations
       ago. Without NAME= it applies to every population.
-  --dfe on S = 4*Nref*s for the reference size Nref (--reference-size, default the
+  --true-dfe on S = 4*Nref*s for the reference size Nref (--reference-size, default the
       first population's ancestral size); all populations share the distribution of s,
       so their S scale with their own N. s is clipped at -0.5 (homozygote fitness >= 0).
   --theta is per site at Nref; the mutation rate mu = theta/(4*Nref) is shared by every
@@ -46,18 +46,18 @@ tests and demonstrations."""
 
 EXAMPLES = """\
 # one population at equilibrium, gamma DFE, 10^5 sites per class
-driftband simulate --population lake:N=1000,n=20 --dfe gamma:shape=0.3,mean=200 \\
-    --sites 100000 --seed 1 -o lake.spectra.json
+driftband simulate --population lake:N=1000,n=20 --true-dfe gamma:shape=0.3,mean=200 \\
+    --class-sites 100000 --seed 1 -o lake.spectra.json
 
 # "only Ne differs": a large and a small population, with divergence and a VCF
 driftband simulate --population lake:N=2000,n=20 --population spring:N=200,n=16 \\
-    --dfe gamma:shape=0.3,mean=400 --divergence-generations 4000 \\
-    --sites-0fold 200000 --sites-4fold 80000 --vcf study --genome \\
+    --true-dfe gamma:shape=0.3,mean=400 --divergence-generations 4000 \\
+    --class-sites-0fold 200000 --class-sites-4fold 80000 --vcf study --genome \\
     --outgroup sister:n=4 --missing 0.02 --ref-derived 0.05 --seed 7 -o study.spectra.json
 
 # a four-fold expansion 500 generations ago, beneficial mutations 1 %
 driftband simulate --population pop:N=4000,n=30 --history 0:4000,500:1000 \\
-    --dfe gamma:shape=0.2,mean=1000 --beneficial p=0.01,S=50 --seed 3 -o exp.json"""
+    --true-dfe gamma:shape=0.2,mean=1000 --true-beneficial p=0.01,S=50 --seed 3 -o exp.json"""
 
 
 def add_parser(subparsers: Subparsers) -> None:
@@ -87,22 +87,37 @@ def add_parser(subparsers: Subparsers) -> None:
     g.add_argument(
         "--theta", type=float, default=0.01, help="per-site theta = 4*Nref*mu (default: 0.01)"
     )
-    g.add_argument("--sites", type=int, default=100_000, help="sites per class (default: 100000)")
     g.add_argument(
-        "--sites-0fold", type=int, default=None, metavar="L", help="0fold sites (default: --sites)"
+        "--class-sites",
+        type=int,
+        default=100_000,
+        metavar="L",
+        help="sites per class (default: 100000)",
     )
     g.add_argument(
-        "--sites-4fold", type=int, default=None, metavar="L", help="4fold sites (default: --sites)"
+        "--class-sites-0fold",
+        type=int,
+        default=None,
+        metavar="L",
+        help="0fold sites (default: --class-sites)",
     )
     g.add_argument(
-        "--dfe",
+        "--class-sites-4fold",
+        type=int,
+        default=None,
+        metavar="L",
+        help="4fold sites (default: --class-sites)",
+    )
+    g.add_argument(
+        "--true-dfe",
         default="gamma:shape=0.3,mean=200",
+        metavar="DFE",
         help="DFE of 0fold mutations on S = 4*Nref*s: gamma:shape=B,mean=M (M = "
         "mean of -S), lognormal:mu=M,sigma=SD (of ln(-S)), fixed:S=X, or "
         "neutral (default: gamma:shape=0.3,mean=200)",
     )
     g.add_argument(
-        "--beneficial",
+        "--true-beneficial",
         default=None,
         metavar="p=P,S=S",
         help="a share P of 0fold mutations is beneficial with S > 0",
@@ -132,7 +147,7 @@ def add_parser(subparsers: Subparsers) -> None:
         "(time since the split from the outgroup; default: 0)",
     )
     g.add_argument(
-        "--blocks",
+        "--block-count",
         type=int,
         default=100,
         help="equal blocks per class, the bootstrap units (default: 100)",
@@ -172,7 +187,7 @@ def add_parser(subparsers: Subparsers) -> None:
         "--vcf",
         default=None,
         metavar="PREFIX",
-        help="also write PREFIX.vcf.gz (+ .tbi), PREFIX.sites.bed, PREFIX.popmap.tsv",
+        help="also write PREFIX.vcf.gz (+ .tbi), PREFIX.sites.bed, PREFIX.samples.tsv",
     )
     o.add_argument(
         "--genome",
@@ -244,14 +259,14 @@ def run(args: argparse.Namespace) -> int:
     if args.output is None and args.vcf is None:
         raise OptionError("nothing to write: give -o SPECTRA.json and/or --vcf PREFIX")
     pops = sim.build_populations(args.population, args.history)
-    dfe = sim.parse_dfe(args.dfe, args.beneficial)
+    dfe = sim.parse_dfe(args.true_dfe, args.true_beneficial)
     sites = {
-        "0fold": args.sites_0fold if args.sites_0fold is not None else args.sites,
-        "4fold": args.sites_4fold if args.sites_4fold is not None else args.sites,
+        "0fold": args.class_sites_0fold if args.class_sites_0fold is not None else args.class_sites,
+        "4fold": args.class_sites_4fold if args.class_sites_4fold is not None else args.class_sites,
     }
     for c, L in sites.items():
         if L < 1:
-            raise OptionError(f"--sites for {c}: {L} must be >= 1")
+            raise OptionError(f"--class-sites for {c}: {L} must be >= 1")
     outgroup = _parse_outgroup(args.outgroup)
     if args.genome and args.vcf is None:
         raise OptionError("--genome needs --vcf PREFIX (the genome is written beside it)")
@@ -283,7 +298,7 @@ def run(args: argparse.Namespace) -> int:
             dfe,
             theta=args.theta,
             sites=sites,
-            blocks=args.blocks,
+            blocks=args.block_count,
             reference_size=args.reference_size,
             burn_in=args.burn_in,
             divergence_generations=args.divergence_generations,

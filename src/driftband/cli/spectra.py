@@ -1,4 +1,4 @@
-"""``driftband spectra``: VCF + popmap + site classes -> spectra file (JSON) and TSV."""
+"""``driftband spectra``: VCF + sample table + site classes -> spectra file (JSON) and TSV."""
 
 from __future__ import annotations
 
@@ -8,7 +8,7 @@ import time
 
 from .._io import after_commit, check_outputs
 from ..exceptions import OptionError
-from ._common import Subparsers, add_common_arguments, add_subcommand
+from ._common import CommaList, Subparsers, add_common_arguments, add_subcommand
 
 __all__ = ["add_parser", "parse_project", "run"]
 
@@ -26,20 +26,20 @@ all gene copies). Skipped records are counted by reason. A summary (skip counts,
 sites, segregating sites, pi, Watterson's theta, Tajima's D, piN/piS) goes to stderr."""
 
 EXAMPLES = """\
-driftband spectra calls.vcf.gz --popmap pops.tsv --sites classes.bed -o spectra.json
-driftband spectra calls.bcf --popmap pops.tsv --sites classes.bed --callable mask.bed \\
+driftband spectra calls.vcf.gz --samples pops.tsv --sites classes.bed -o spectra.json
+driftband spectra calls.bcf --samples pops.tsv --sites classes.bed --callable mask.bed \\
     --ancestral outgroup:snail_out --project 20 --tsv spectra.tsv -o spectra.json
-driftband spectra calls.vcf.gz --popmap pops.tsv --sites classes.bed --ancestral fold \\
-    --blocks genes.bed --min-dp 8 --min-gq 20 --pass-only --regions chr1 chr2:1-5000000 \\
+driftband spectra calls.vcf.gz --samples pops.tsv --sites classes.bed --ancestral fold \\
+    --blocks genes.bed --min-dp 8 --min-gq 20 --pass-only --regions chr1,chr2:1-5000000 \\
     -o spectra.json
-driftband spectra calls.vcf.gz --popmap pops.tsv --sites classes.bed \\
+driftband spectra calls.vcf.gz --samples pops.tsv --sites classes.bed \\
     --ancestral fasta:ancestor.fa.gz --exclude-lowercase-ancestral -o spectra.json
-bcftools view -s A1,A2,B1,B2 calls.vcf.gz | driftband spectra - --popmap pops.tsv \\
+bcftools view -s A1,A2,B1,B2 calls.vcf.gz | driftband spectra - --samples pops.tsv \\
     --sites classes.bed -o spectra.json
-driftband spectra calls.vcz --popmap pops.tsv --sites classes.bed -o spectra.json
-driftband spectra calls.vcf.gz --popmap pops.tsv --sites classes.bed --workers 8 \\
+driftband spectra calls.vcz --samples pops.tsv --sites classes.bed -o spectra.json
+driftband spectra calls.vcf.gz --samples pops.tsv --sites classes.bed --workers 8 \\
     --region-size 2000000 -o spectra.json
-driftband spectra calls.vcf.gz --popmap pops.tsv --sites classes.bed \\
+driftband spectra calls.vcf.gz --samples pops.tsv --sites classes.bed \\
     --scheduler tcp://node01:8786 -o spectra.json
 """
 
@@ -60,10 +60,10 @@ def add_parser(subparsers: Subparsers) -> argparse.ArgumentParser:
         "input, or a VCF Zarr store (.vcz folder or zip; needs driftband[vcz])",
     )
     p.add_argument(
-        "--popmap",
+        "--samples",
         required=True,
-        metavar="FILE",
-        help="TSV sample<TAB>population (header optional)",
+        metavar="TABLE.tsv",
+        help="sample table: TSV of sample and population columns (a header naming them optional)",
     )
     p.add_argument(
         "--sites",
@@ -88,7 +88,7 @@ def add_parser(subparsers: Subparsers) -> argparse.ArgumentParser:
         default="aa",
         metavar="aa|fold|outgroup:POP|fasta:FILE",
         help="polarisation: INFO/AA (default), fold (minor-allele spectra), "
-        "the alleles of outgroup population POP of the popmap, or the bases of an "
+        "the alleles of outgroup population POP of the sample table, or the bases of an "
         "ancestral sequence FILE (FASTA aligned to the reference)",
     )
     p.add_argument(
@@ -98,10 +98,11 @@ def add_parser(subparsers: Subparsers) -> argparse.ArgumentParser:
     )
     p.add_argument(
         "--project",
-        action="append",
-        metavar="N|POP=N",
-        help="project every population (N) or one (POP=N, repeatable) to N gene "
-        "copies (default: the largest N called at >= 90%% of usable records)",
+        action=CommaList,
+        metavar="N|POP=N,...",
+        help="project every population (N) and/or single ones (POP=N) to N gene "
+        "copies, e.g. 20,spring=16 (default: the largest N called at >= 90%% of usable "
+        "records)",
     )
     g = p.add_mutually_exclusive_group()
     g.add_argument(
@@ -114,9 +115,10 @@ def add_parser(subparsers: Subparsers) -> argparse.ArgumentParser:
     g.add_argument("--blocks", metavar="BED", help="BED of blocks (e.g. genes) instead")
     p.add_argument(
         "--regions",
-        nargs="+",
-        metavar="REGION",
-        help="only these regions: CHROM, CHROM:START-END (1-based, inclusive) or BED files",
+        action=CommaList,
+        metavar="REGION,...",
+        help="only these regions, comma-separated: CHROM, CHROM:START-END (1-based, "
+        "inclusive) or BED files",
     )
     p.add_argument(
         "--min-gq", type=int, metavar="Q", help="set genotypes with GQ < Q (or no GQ) to missing"
@@ -230,7 +232,7 @@ def run(args: argparse.Namespace) -> int:
     try:
         ss = build_spectra(
             args.vcf,
-            args.popmap,
+            args.samples,
             args.sites,
             callable_mask=args.callable_mask,
             ancestral=args.ancestral,

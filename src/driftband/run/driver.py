@@ -357,7 +357,7 @@ def _run_stages(
             )
         inputs = {
             "vcf": d.vcf,
-            "popmap": d.popmap,
+            "samples": d.samples,
             "sites": dp["sites"],
             "callable": d.callable,
             "blocks": d.blocks,

@@ -150,7 +150,7 @@ def _chroms_fact(label: str, wanted: list[str], vcf_chroms: list[str], out: Data
 def _static(d: Dataset, src: Any, out: DatasetCheck) -> None:
     """The checks that need no record: header, samples, polarisation source, chromosomes."""
     from ..sites.bed import read_site_classes
-    from ..variants.popmap import assign_samples, read_popmap
+    from ..variants.samples import assign_samples, read_sample_table
 
     h = src.header
     kind = "indexed" if src.indexed else "not indexed (read as one stream)"
@@ -158,7 +158,7 @@ def _static(d: Dataset, src: Any, out: DatasetCheck) -> None:
         kind = f"VCF Zarr store, version {getattr(src, 'version', '?')}"
     out.facts.append(("VCF", f"{d.vcf}: {kind}, {len(h.samples)} samples"))
     try:
-        pm = read_popmap(d.popmap)
+        pm = read_sample_table(d.samples)
     except DriftbandError as err:
         out.problems.append(str(err))
         return
@@ -279,7 +279,7 @@ def _counted(d: Dataset, study: Study, src: Any, out: DatasetCheck, workers: int
     with tempfile.TemporaryDirectory(prefix="driftband-check-") as tmp:
         try:
             sites = d.sites if d.sites is not None else _classify(d, tmp)
-            prep = prepare_counting(src, d.popmap, sites, d.callable, opts)
+            prep = prepare_counting(src, d.samples, sites, d.callable, opts)
             total, plan = count_prepared(src, prep, opts)
             ss = spectra_from_counts(total, prep.design, plan.blocks, d.project)
         except DriftbandError as err:

@@ -17,7 +17,7 @@ from .._io import atomic_output, file_record, provenance
 from .._options import COMMAND_LINE, OptionSource
 from ..compare.api import study_model
 from ..exceptions import InputError
-from .study import BootstrapSettings, CompareSettings, Dataset, Study
+from .study import FILE_KEYS, BootstrapSettings, CompareSettings, Dataset, Study
 
 __all__ = [
     "SpectraFile",
@@ -155,7 +155,7 @@ def stage_spectra(
 
     ss = build_spectra(
         dataset.vcf,
-        dataset.popmap,
+        dataset.samples,
         sites,
         callable_mask=dataset.callable,
         ancestral=dataset.ancestral,
@@ -413,7 +413,7 @@ def stage_report(
     if study.source:
         inputs["study file"] = file_record(study.source)
     for d in study.datasets:
-        for key in ("vcf", "popmap", "sites", "fasta", "gff", "callable", "blocks"):
+        for key in FILE_KEYS:
             if getattr(d, key) is not None:
                 inputs[f"{d.name} {key}"] = file_record(getattr(d, key))
     opts = {"study": study.name}

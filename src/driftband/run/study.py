@@ -1,6 +1,6 @@
 """Study files of ``driftband run``: what a study is, read from TOML or from flags.
 
-A study is one or more datasets (each a VCF, a popmap and the site classes: a sites BED
+A study is one or more datasets (each a VCF, a sample table and the site classes: a sites BED
 or a reference FASTA + GFF3 annotation, with its own polarisation) and the options of the
 fit, the bootstrap and the comparisons. Every key is listed in :data:`STUDY_KEYS` (the
 README's "Study files" section documents them); an unknown key is an error naming the
@@ -38,6 +38,7 @@ from ..exceptions import DriftbandError, InputError, OptionError
 from ..fit.bootstrap import check_bootstrap_settings
 
 __all__ = [
+    "FILE_KEYS",
     "STUDY_KEYS",
     "BootstrapSettings",
     "CompareSettings",
@@ -68,7 +69,7 @@ STUDY_KEYS: dict[str, dict[str, tuple[str, str]]] = {
             "VCF/BCF of all samples (bgzipped + indexed, bgzipped or plain), or a VCF Zarr "
             "store (.vcz)",
         ),
-        "popmap": ("file", "TSV sample<TAB>population (header optional)"),
+        "samples": ("file", "the sample table: TSV of sample and population columns"),
         "sites": ("file", "BED4 of site classes (0fold, 4fold); or give fasta + gff"),
         "fasta": ("file", "reference FASTA (plain or bgzipped) to classify sites from"),
         "gff": ("file", "GFF3 gene annotation of that reference"),
@@ -160,7 +161,8 @@ STUDY_KEYS: dict[str, dict[str, tuple[str, str]]] = {
 }
 
 _NAME_RE = re.compile(r"^[A-Za-z0-9][A-Za-z0-9_.-]*$")
-_FILE_KEYS = ("vcf", "popmap", "sites", "fasta", "gff", "callable", "blocks")
+#: Keys of a dataset that name input files (resolved against the study file's folder).
+FILE_KEYS = ("vcf", "samples", "sites", "fasta", "gff", "callable", "blocks")
 
 
 @dataclass
@@ -172,7 +174,7 @@ class Dataset:
 
     name: str
     vcf: str
-    popmap: str
+    samples: str
     sites: str | None = None
     fasta: str | None = None
     gff: str | None = None
@@ -315,7 +317,7 @@ class Study:
                     "name": d.name,
                     **{
                         k: os.path.basename(getattr(d, k))
-                        for k in _FILE_KEYS
+                        for k in FILE_KEYS
                         if getattr(d, k) is not None
                     },
                 }
@@ -503,7 +505,7 @@ def _dataset(where: _Where, section: str, vals: dict[str, Any], base: Path) -> D
         if where.path is not None
         else "the dataset"
     )
-    for key in ("vcf", "popmap"):
+    for key in ("vcf", "samples"):
         if key not in vals:
             raise where.error(section, None, f"{who}: {where.name(section, key)} is required")
     has_sites, has_genome = "sites" in vals, ("fasta" in vals or "gff" in vals)
@@ -552,7 +554,7 @@ def _dataset(where: _Where, section: str, vals: dict[str, Any], base: Path) -> D
         )
     if "blocks" in vals and "block_size" in vals:
         raise where.error(section, "blocks", f"{who}: give blocks or block_size, not both")
-    d: dict[str, Any] = {k: (_resolve(base, v) if k in _FILE_KEYS else v) for k, v in vals.items()}
+    d: dict[str, Any] = {k: (_resolve(base, v) if k in FILE_KEYS else v) for k, v in vals.items()}
     regions = d.get("regions")
     if regions:  # BED files among the regions are paths too
         d["regions"] = [
@@ -623,7 +625,7 @@ def study_from_dict(
             "",
             None,
             "the study has no dataset (add a [[dataset]] table with "
-            "vcf, popmap and sites or fasta + gff)",
+            "vcf, sample table and sites or fasta + gff)",
         )
     tables = raw if isinstance(raw, list) else [raw]
     datasets = [
@@ -739,7 +741,7 @@ def check_files(study: Study) -> None:
     """
     lines = _key_lines(study.text) if study.text else {}
     for i, d in enumerate(study.datasets):
-        for key in _FILE_KEYS:
+        for key in FILE_KEYS:
             p = getattr(d, key)
             if p is None:
                 continue

@@ -55,7 +55,7 @@ class SimDFE:
     def __post_init__(self) -> None:
         if self.family not in _FAMILIES:
             raise OptionError(
-                f"--dfe: unknown family {self.family!r} (use one of {', '.join(_FAMILIES)})"
+                f"--true-dfe: unknown family {self.family!r} (use one of {', '.join(_FAMILIES)})"
             )
         need = set(_FAMILIES[self.family])
         have = set(self.params)
@@ -67,21 +67,23 @@ class SimDFE:
                 + (f"unknown {', '.join(extra)}" if extra else "")
             )
             expected = ", ".join(k + "=" for k in _FAMILIES[self.family]) or "no parameters"
-            raise OptionError(f"--dfe {self.family}: {what} (expected {expected})")
+            raise OptionError(f"--true-dfe {self.family}: {what} (expected {expected})")
         p = self.params
         for k, v in p.items():
             if not math.isfinite(v):
-                raise OptionError(f"--dfe {self.family}: {k}={v} is not a finite number")
+                raise OptionError(f"--true-dfe {self.family}: {k}={v} is not a finite number")
         if self.family == "gamma" and (p["shape"] <= 0 or p["mean"] <= 0):
-            raise OptionError("--dfe gamma: shape and mean (of -S) must be > 0")
+            raise OptionError("--true-dfe gamma: shape and mean (of -S) must be > 0")
         if self.family == "lognormal" and p["sigma"] < 0:
-            raise OptionError("--dfe lognormal: sigma must be >= 0")
+            raise OptionError("--true-dfe lognormal: sigma must be >= 0")
         if not 0.0 <= self.beneficial_p <= 1.0:
-            raise OptionError(f"--beneficial: p={self.beneficial_p} must be in [0, 1]")
+            raise OptionError(f"--true-beneficial: p={self.beneficial_p} must be in [0, 1]")
         if self.beneficial_p > 0 and not (
             self.beneficial_S > 0 and math.isfinite(self.beneficial_S)
         ):
-            raise OptionError(f"--beneficial: S={self.beneficial_S} must be a finite number > 0")
+            raise OptionError(
+                f"--true-beneficial: S={self.beneficial_S} must be a finite number > 0"
+            )
 
     def sample_S(self, size: int, rng: np.random.Generator) -> np.ndarray:
         """Draw scaled coefficients S on the reference scale.
@@ -166,7 +168,7 @@ def _parse_params(text: str, option: str) -> dict[str, float]:
 
 
 def parse_dfe(text: str, beneficial: str | None = None) -> SimDFE:
-    """Parse ``--dfe FAMILY:KEY=VALUE,...`` (and ``--beneficial p=P,S=S``).
+    """Parse ``--true-dfe FAMILY:KEY=VALUE,...`` (and ``--true-beneficial p=P,S=S``).
 
     Examples
     --------
@@ -177,16 +179,18 @@ def parse_dfe(text: str, beneficial: str | None = None) -> SimDFE:
     """
     fam, _, rest = text.partition(":")
     fam = fam.strip().lower()
-    params = _parse_params(rest, f"--dfe {fam}")
+    params = _parse_params(rest, f"--true-dfe {fam}")
     bp, bS = parse_beneficial(beneficial) if beneficial else (0.0, 0.0)
     return SimDFE(fam, params, bp, bS)
 
 
 def parse_beneficial(text: str) -> tuple[float, float]:
-    """Parse ``--beneficial p=P,S=S`` into ``(p, S)``."""
-    d = _parse_params(text, "--beneficial")
+    """Parse ``--true-beneficial p=P,S=S`` into ``(p, S)``."""
+    d = _parse_params(text, "--true-beneficial")
     if set(d) != {"p", "S"}:
-        raise OptionError(f"--beneficial expects p=PROBABILITY,S=SCALED_COEFFICIENT, got {text!r}")
+        raise OptionError(
+            f"--true-beneficial expects p=PROBABILITY,S=SCALED_COEFFICIENT, got {text!r}"
+        )
     return d["p"], d["S"]
 
 

@@ -1,4 +1,5 @@
-"""Files of a simulated study: spectra, and a VCF + sites BED + popmap on synthetic chromosomes.
+"""Files of a simulated study: spectra, and a VCF + sites BED + sample table on synthetic
+chromosomes.
 
 VCF layout (``PREFIX.vcf.gz`` with a tabix index ``PREFIX.vcf.gz.tbi``):
 
@@ -15,9 +16,10 @@ VCF layout (``PREFIX.vcf.gz`` with a tabix index ``PREFIX.vcf.gz.tbi``):
   that at a substitution it differs from the population that fixed the derived base.
 
 ``PREFIX.sites.bed`` is the BED4 of every callable site with its class (all simulated
-sites are callable) and ``PREFIX.popmap.tsv`` maps each sample to its population (no
-header). The spectra written beside them are the complete-data truth: with missing
-genotypes, spectra recounted from the VCF differ by the projection to a common n.
+sites are callable) and ``PREFIX.samples.tsv`` maps each sample to its population (with
+the header line ``sample<TAB>population``). The spectra written beside them are the
+complete-data truth: with missing genotypes, spectra recounted from the VCF differ by
+the projection to a common n.
 """
 
 from __future__ import annotations
@@ -55,14 +57,14 @@ _GT = np.array(["0/0", "0/1", "1/1"])
 
 
 def study_paths(vcf_prefix: str | os.PathLike, genome: bool = False) -> dict[str, str]:
-    """Output paths of the VCF set for a prefix: ``vcf``, ``tbi``, ``bed``, ``popmap``
+    """Output paths of the VCF set for a prefix: ``vcf``, ``tbi``, ``bed``, ``samples``
     and, with ``genome``, ``fasta``, ``fai``, ``gff``."""
     p = os.fspath(vcf_prefix)
     out = {
         "vcf": p + ".vcf.gz",
         "tbi": p + ".vcf.gz.tbi",
         "bed": p + ".sites.bed",
-        "popmap": p + ".popmap.tsv",
+        "samples": p + ".samples.tsv",
     }
     if genome:
         out.update({"fasta": p + ".fa", "fai": p + ".fa.fai", "gff": p + ".gff3"})
@@ -85,7 +87,7 @@ def write_study_vcf(
     force: bool = False,
     command: str | None = None,
 ) -> dict[str, str]:
-    """Write ``PREFIX.vcf.gz`` (+ ``.tbi``), ``PREFIX.sites.bed`` and ``PREFIX.popmap.tsv``.
+    """Write ``PREFIX.vcf.gz`` (+ ``.tbi``), ``PREFIX.sites.bed`` and ``PREFIX.samples.tsv``.
 
     Parameters
     ----------
@@ -193,7 +195,8 @@ def write_study_vcf(
             fasta_index(tmp)
         with atomic_output(paths["gff"], force=force, newline="") as fh:
             write_gff3(fh, lay.chrom_names, lay.chrom_lengths.tolist(), genome_ref)
-    with atomic_output(paths["popmap"], force=force, newline="") as fh:
+    with atomic_output(paths["samples"], force=force, newline="") as fh:
+        fh.write("sample\tpopulation\n")
         for p in pops:
             for s in _sample_names(p.name, p.n // 2):
                 fh.write(f"{s}\t{p.name}\n")
@@ -268,7 +271,7 @@ def check_genome_option(class_sites: np.ndarray) -> None:
     if int(class_sites[0]) < int(class_sites[1]):
         raise OptionError(
             "--genome needs at least as many 0fold as 4fold sites (every "
-            "codon's second position is 0-fold); raise --sites-0fold"
+            "codon's second position is 0-fold); raise --class-sites-0fold"
         )
 
 
@@ -364,7 +367,7 @@ def write_study(
     Returns
     -------
     dict of str to str
-        Paths written, by kind (``spectra``, ``tsv``, ``vcf``, ``tbi``, ``bed``, ``popmap``).
+        Paths written, by kind (``spectra``, ``tsv``, ``vcf``, ``tbi``, ``bed``, ``samples``).
     """
     out: dict[str, str] = {}
     planned = [output, tsv]

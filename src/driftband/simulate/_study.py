@@ -352,12 +352,12 @@ def simulate_study(
     sites = {c: int(sites[c]) for c in CLASSES}
     K = int(blocks)
     if K < 1:
-        raise OptionError(f"--blocks {K}: need at least one block")
+        raise OptionError(f"--block-count {K}: need at least one block")
     for c, L in sites.items():
         if L < K:
             raise OptionError(
-                f"--sites for {c}: {L} sites cannot fill {K} blocks "
-                "(lower --blocks or raise --sites)"
+                f"--class-sites for {c}: {L} sites cannot fill {K} blocks "
+                "(lower --block-count or raise --class-sites)"
             )
     if chromosomes < 1 or gene_codons < 1 or intergenic < 3:
         raise OptionError(
@@ -451,7 +451,7 @@ def simulate_study(
         if m > sites[c]:
             raise OptionError(
                 f"{m} variable {c} sites do not fit in {sites[c]} sites "
-                "(infinite sites; lower --theta or raise --sites)"
+                "(infinite sites; lower --theta or raise --class-sites)"
             )
         idx = srng.choice(sites[c], size=m, replace=False).astype(np.int64)
         site_index[c] = np.split(idx, np.cumsum(counts)[:-1])

@@ -3,7 +3,7 @@
 The work is split so that it scales:
 
 1. :func:`~driftband.spectra.counting.make_design` and
-   :func:`~driftband.spectra.plan.make_plan` fix, from the popmap, the options and the
+   :func:`~driftband.spectra.plan.make_plan` fix, from the sample_table, the options and the
    BED files alone, who is counted and where the callable sites are.
 2. :func:`~driftband.spectra.counting.count_region` counts one region of an indexed VCF
    into summable :class:`~driftband.spectra.counting.RegionCounts`; the region tasks run
@@ -32,7 +32,7 @@ import numpy as np
 from .._io import file_record, provenance
 from ..exceptions import InputError, OptionError
 from ..sites.bed import IntervalSet, SiteClasses, read_mask, read_site_classes
-from ..variants.popmap import Popmap, SampleAssignment, assign_samples, read_popmap
+from ..variants.samples import SampleAssignment, SampleTable, assign_samples, read_sample_table
 from ..variants.source import VariantSource, VcfSource, open_variants
 from ._types import Block, SpectraSet
 from .callable import callable_status, sites_with_records, variants_only_message
@@ -106,7 +106,7 @@ class SpectraOptions:
 
 def build_spectra(
     vcf: str | os.PathLike,
-    popmap: Popmap | str | os.PathLike,
+    sample_table: SampleTable | str | os.PathLike,
     sites: SiteClasses | str | os.PathLike,
     *,
     callable_mask: IntervalSet | str | os.PathLike | None = None,
@@ -133,7 +133,7 @@ def build_spectra(
     ----------
     vcf : path-like
         VCF (bgzipped + indexed, bgzipped, gzipped or plain), BCF, or ``-`` for stdin.
-    popmap : Popmap or path-like
+    sample_table : SampleTable or path-like
         ``sample<TAB>population``.
     sites : SiteClasses or path-like
         BED4 of site classes (e.g. ``0fold``, ``4fold``).
@@ -206,7 +206,7 @@ def build_spectra(
     src = None
     try:
         src = open_variants(vcf)
-        ss = _build(src, vcf, popmap, sites, callable_mask, opts, progress, client)
+        ss = _build(src, vcf, sample_table, sites, callable_mask, opts, progress, client)
     finally:
         if src is not None:
             src.close()
@@ -221,8 +221,8 @@ def build_spectra(
     return ss
 
 
-def _as_popmap(x: Popmap | str | os.PathLike) -> Popmap:
-    return x if isinstance(x, Popmap) else read_popmap(x)
+def _as_sample_table(x: SampleTable | str | os.PathLike) -> SampleTable:
+    return x if isinstance(x, SampleTable) else read_sample_table(x)
 
 
 def _as_classes(x: SiteClasses | str | os.PathLike) -> SiteClasses:
@@ -235,7 +235,7 @@ class Prepared:
 
     Attributes
     ----------
-    popmap : Popmap
+    sample_table : SampleTable
     assign : SampleAssignment
     classes : SiteClasses
     design : CountDesign
@@ -250,7 +250,7 @@ class Prepared:
         Whether the VCF's chromosomes are known before reading records (index or header).
     """
 
-    popmap: Popmap
+    sample_table: SampleTable
     assign: SampleAssignment
     classes: SiteClasses
     design: CountDesign
@@ -262,7 +262,7 @@ class Prepared:
 
 def prepare_counting(
     src: VariantSource,
-    popmap: Popmap | str | os.PathLike,
+    sample_table: SampleTable | str | os.PathLike,
     sites: SiteClasses | str | os.PathLike,
     callable_mask: IntervalSet | str | os.PathLike | None,
     opts: SpectraOptions,
@@ -273,7 +273,7 @@ def prepare_counting(
     ----------
     src : VcfSource or VczSource
         The open VCF/BCF or VCF Zarr store.
-    popmap, sites, callable_mask
+    sample_table, sites, callable_mask
         As for :func:`build_spectra`.
     opts : SpectraOptions
 
@@ -286,13 +286,13 @@ def prepare_counting(
     InputError, OptionError
         The checks of :func:`build_spectra` that need no VCF record.
     """
-    pm = _as_popmap(popmap)
+    pm = _as_sample_table(sample_table)
     og = _check_header(src, opts)
     assign = assign_samples(pm, src.header.samples, src.path, og or None)
     if assign.ignored:
         shown = ", ".join(assign.ignored[:10]) + (" ..." if len(assign.ignored) > 10 else "")
         log.warning(
-            "%d VCF sample(s) not in the popmap are ignored: %s", len(assign.ignored), shown
+            "%d VCF sample(s) not in the sample table are ignored: %s", len(assign.ignored), shown
         )
     sc = _as_classes(sites)
     mask = None
@@ -370,7 +370,7 @@ def count_prepared(
 def _build(
     src: VariantSource,
     vcf: str | os.PathLike,
-    popmap: Popmap | str | os.PathLike,
+    sample_table: SampleTable | str | os.PathLike,
     sites: SiteClasses | str | os.PathLike,
     callable_mask: IntervalSet | str | os.PathLike | None,
     opts: SpectraOptions,
@@ -379,7 +379,7 @@ def _build(
 ) -> SpectraSet:
     """:func:`build_spectra` on an open VCF; ``provenance`` without ``execution``."""
     digest = _Checksum(vcf if opts.checksums else None)  # hashed while counting runs
-    prep = prepare_counting(src, popmap, sites, callable_mask, opts)
+    prep = prepare_counting(src, sample_table, sites, callable_mask, opts)
     total, plan = count_prepared(src, prep, opts, progress, scheduler)
     status = callable_status(
         total, callable_mask is not None, opts.all_sites_callable, sum(plan.sites().values())
@@ -392,7 +392,7 @@ def _build(
         opts,
         digest,
         vcf,
-        prep.popmap,
+        prep.sample_table,
         prep.classes,
         callable_mask,
         total,
@@ -490,7 +490,7 @@ def _provenance(
     opts: SpectraOptions,
     digest: _Checksum,
     vcf: str | os.PathLike,
-    pm: Popmap,
+    pm: SampleTable,
     sc: SiteClasses,
     callable_mask: IntervalSet | str | os.PathLike | None,
     total: RegionCounts,
@@ -508,7 +508,7 @@ def _provenance(
 
     inputs = {
         "vcf": digest.result() or rec(vcf),
-        "popmap": rec(pm.path),
+        "samples": rec(pm.path),
         "sites": rec(sc.path),
         "callable": rec(callable_mask) if isinstance(callable_mask, str | os.PathLike) else None,
         "blocks": rec(opts.blocks),

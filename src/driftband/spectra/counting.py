@@ -48,7 +48,7 @@ import numpy as np
 
 from ..exceptions import InputError, OptionError
 from ..variants.batches import VariantBatch
-from ..variants.popmap import SampleAssignment
+from ..variants.samples import SampleAssignment
 from ..variants.source import BATCH_BYTES, VariantSource, VcfSource, open_variants
 from ..variants.vcz import VczSource
 from .ancestral import DROP_REASONS as _DROP_REASONS
