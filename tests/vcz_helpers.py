@@ -16,7 +16,9 @@ pytest.importorskip("zarr")
 b2z = pytest.importorskip("bio2zarr.vcf")
 
 
-def to_vcz(vcf: Path, out: Path, chunk: int = 10_000, samples_chunk: int = 10_000) -> Path:
+def to_vcz(
+    vcf: Path, out: Path, chunk: int = 10_000, samples_chunk: int = 10_000, zarr_format: int = 2
+) -> Path:
     """Convert an indexed VCF to a VCF Zarr store with bio2zarr (in this process)."""
     b2z.convert(
         [str(vcf)],
@@ -25,6 +27,7 @@ def to_vcz(vcf: Path, out: Path, chunk: int = 10_000, samples_chunk: int = 10_00
         samples_chunk_size=samples_chunk,
         worker_processes=0,
         show_progress=False,
+        zarr_format=zarr_format,
     )
     return out
 

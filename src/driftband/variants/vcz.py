@@ -22,6 +22,7 @@ value, so it is read as such; only the arrays that can never be all fill
 from __future__ import annotations
 
 import os
+import zipfile
 from collections.abc import Iterator, Sequence
 from typing import Any
 
@@ -31,6 +32,7 @@ from ..exceptions import InputError, VcfFormatError
 from .batches import GenotypeData, VariantBatch
 from .decode import upper_codes
 from .header import VcfHeader
+from .vczchunks import ChunkReader, MissingChunk
 
 __all__ = ["VCZ_VERSIONS", "VczBatch", "VczSource", "is_vcz"]
 
@@ -106,12 +108,15 @@ class VczSource:
         zarr = _zarr()
         if not os.path.exists(self.path):
             raise InputError("VCF Zarr store not found", self.path)
-        self._zip = None
+        self._zip: Any = None
+        self._zf: zipfile.ZipFile | None = None
+        self._readers: dict[str, ChunkReader] = {}
         try:
             if os.path.isdir(self.path):
                 store: Any = zarr.storage.LocalStore(self.path, read_only=True)
             else:
                 store = self._zip = zarr.storage.ZipStore(self.path, mode="r")
+                self._zf = zipfile.ZipFile(self.path)
             self._root = zarr.open_group(store=store, mode="r")
         except Exception as err:  # zarr's own errors for a folder that is not a store
             self.close()
@@ -147,12 +152,11 @@ class VczSource:
                     self.path,
                 )
         self._names = names
-        self._gt = self._root["call_genotype"]
         self._pos = self._root["variant_position"]
         self.chunk = int(self._pos.chunks[0])
         self.n_variants = int(self._pos.shape[0])
         if (
-            self._gt.shape[0] != self.n_variants
+            self._root["call_genotype"].shape[0] != self.n_variants
             or self._root["variant_allele"].shape[0] != self.n_variants
         ):
             raise InputError(
@@ -177,45 +181,51 @@ class VczSource:
         self._table = self._chunk_table()
 
     # -- opening
+    def _reader(self, name: str) -> ChunkReader:
+        r = self._readers.get(name)
+        if r is None:
+            r = self._readers[name] = ChunkReader(self._root[name], self.path, self._zf)
+        return r
+
     def _read_all(self, name: str) -> np.ndarray:
-        a = self._root[name]
-        return self._read(name, a, slice(None), chunk=None)
-
-    def _read(self, name: str, arr: Any, sel: Any, chunk: int | None) -> np.ndarray:
-        """``arr[sel]``, with a missing (``_NEVER_FILL``) or unreadable chunk reported."""
-        where = "" if chunk is None else f", variants chunk {chunk}"
-        if chunk is not None and name in _NEVER_FILL:
-            coords = (chunk,) + (0,) * (arr.ndim - 1)
-            key = arr.metadata.encode_chunk_key(coords)
-            from zarr.core.sync import sync
-
-            if not sync(arr.store.exists(f"{arr.path}/{key}")):
-                raise VcfFormatError(
-                    f"array {name}{where}: the chunk is missing from the store; "
-                    "convert the VCF again",
-                    self.path,
-                )
+        """A small array (samples, contigs, filters, the region index) whole."""
         try:
-            return np.asarray(arr[sel])
+            return np.asarray(self._root[name][...])
         except Exception as err:  # a corrupt chunk: codec errors of any kind
+            raise self._corrupt(name, None, err) from None
+
+    def _corrupt(self, name: str, chunk: int | None, err: Exception) -> VcfFormatError:
+        where = "" if chunk is None else f", variants chunk {chunk}"
+        return VcfFormatError(
+            f"array {name}{where} cannot be read ({type(err).__name__}: {err}); the "
+            "store is corrupt: convert the VCF again",
+            self.path,
+        )
+
+    def _chunk(self, name: str, k: int, cols: tuple[int, int] | None = None) -> np.ndarray:
+        """Variants chunk ``k`` of array ``name`` (sample columns ``cols``); a missing chunk
+        of an array in ``_NEVER_FILL`` or an unreadable one reported."""
+        try:
+            return self._reader(name).read(k, cols, missing_ok=name not in _NEVER_FILL)
+        except MissingChunk:
             raise VcfFormatError(
-                f"array {name}{where} cannot be read ({type(err).__name__}: {err}); the "
-                "store is corrupt: convert the VCF again",
+                f"array {name}, variants chunk {k}: the chunk is missing from the store; "
+                "convert the VCF again",
                 self.path,
             ) from None
+        except Exception as err:  # a corrupt chunk: codec errors of any kind
+            raise self._corrupt(name, k, err) from None
 
     def _chunk_table(self) -> np.ndarray:
         """Rows ``chunk, contig, first POS, last POS`` per chunk and contig (int64)."""
         ri = self._root["region_index"] if "region_index" in self._names else None
         if ri is not None and ri.ndim == 2 and ri.shape[1] >= 4:
-            t = self._read("region_index", ri, slice(None), None).astype(np.int64)[:, :4]
+            t = self._read_all("region_index").astype(np.int64)[:, :4]
         else:  # no region index: from the positions, one chunk at a time
             rows = []
-            vc = self._root["variant_contig"]
             for k in range(-(-self.n_variants // self.chunk)):
-                sl = slice(k * self.chunk, min((k + 1) * self.chunk, self.n_variants))
-                c = self._read("variant_contig", vc, sl, k).astype(np.int64)
-                p = self._read("variant_position", self._pos, sl, k).astype(np.int64)
+                c = self._chunk("variant_contig", k).astype(np.int64)
+                p = self._chunk("variant_position", k).astype(np.int64)
                 cut = np.flatnonzero(np.diff(c)) + 1
                 for a, z in zip(np.r_[0, cut].tolist(), np.r_[cut, c.size].tolist()):
                     rows.append((k, c[a], p[a:z].min(), p[a:z].max()))
@@ -242,9 +252,10 @@ class VczSource:
 
     def close(self) -> None:
         """Close the store (a zip file)."""
-        if self._zip is not None:
-            self._zip.close()
-            self._zip = None
+        for h in (self._zip, self._zf):
+            if h is not None:
+                h.close()
+        self._zip = self._zf = None
 
     def __enter__(self) -> VczSource:
         return self
@@ -261,13 +272,11 @@ class VczSource:
         cid = self.header.contigs.index(chrom)
         t = self._table
         hit = (t[:, 1] == cid) & (t[:, 2] <= end) & (t[:, 3] >= start + 1)
-        vc = self._root["variant_contig"]
         last = -1
         for k in np.unique(t[hit, 0]).tolist():
             a0 = k * self.chunk
-            sl = slice(a0, min(a0 + self.chunk, self.n_variants))
-            c = self._read("variant_contig", vc, sl, k)
-            p = self._read("variant_position", self._pos, sl, k).astype(np.int64)
+            c = self._chunk("variant_contig", k)
+            p = self._chunk("variant_position", k).astype(np.int64)
             sel = np.flatnonzero((c == cid) & (p - 1 >= start) & (p - 1 < end))
             if not sel.size:
                 continue
@@ -285,13 +294,20 @@ class VczSource:
     def read(self, name: str, rows: slice, cols: slice | None = None) -> np.ndarray:
         """Rows (variants) of array ``name``, and for per-call arrays some sample columns;
         ``rows`` lie in one variants chunk."""
-        arr = self._root[name]
-        sel: Any = rows if cols is None else (rows, cols)
-        return self._read(name, arr, sel, rows.start // self.chunk)
+        k = rows.start // self.chunk
+        arr = self._reader(name).arr
+        if int(arr.chunks[0]) != self.chunk:  # chunked unlike the positions
+            try:
+                return np.asarray(arr[rows] if cols is None else arr[rows, cols])
+            except Exception as err:  # a corrupt chunk: codec errors of any kind
+                raise self._corrupt(name, k, err) from None
+        c = None if cols is None else (int(cols.start), int(cols.stop))
+        a = k * self.chunk
+        return self._chunk(name, k, c)[rows.start - a : rows.stop - a]
 
     def shape(self, name: str) -> tuple[int, ...]:
         """The shape of array ``name``."""
-        return tuple(self._root[name].shape)
+        return self._reader(name).shape
 
     def has(self, name: str) -> bool:
         """Whether the store holds array ``name``."""
@@ -444,8 +460,11 @@ class VczBatch(VariantBatch):
         g = self._calls("call_genotype", np.asarray(cols, dtype=np.int64))
         if rows.size != len(self) or (rows.size and rows[-1] != rows.size - 1):
             g = g[rows]
-        one = g == 1
-        alt = one.sum(axis=2, dtype=np.int8)
-        called = alt + (g == 0).sum(axis=2, dtype=np.int8)
-        ok = ~np.any(g > 1, axis=(1, 2))
+        alt = (g[..., 0] == 1).view(np.int8).copy()
+        called = (g[..., 0] == 0).view(np.int8).copy()  # REF copies, then ALT ones added
+        for j in range(1, g.shape[2]):  # elementwise: much faster than sums over the ploidy
+            alt += (g[..., j] == 1).view(np.int8)
+            called += (g[..., j] == 0).view(np.int8)
+        called += alt
+        ok = g.reshape(g.shape[0], -1).max(axis=1, initial=-2) <= 1
         return alt, called, ok
