@@ -42,6 +42,17 @@ _REQUIRED = ("variant_position", "variant_contig", "variant_allele", "sample_id"
 _NEVER_FILL = ("variant_position", "variant_allele")
 
 
+def _pair_tables() -> tuple[np.ndarray, np.ndarray]:
+    """ALT copies and called copies (alleles 0 or 1) of a diploid call, indexed by its two
+    int8 allele indices read together as one native uint16."""
+    both = np.arange(1 << 16, dtype=np.uint16).view(np.int8).reshape(-1, 2)
+    alt = (both == 1).sum(axis=1).astype(np.int8)
+    return alt, (alt + (both == 0).sum(axis=1)).astype(np.int8)
+
+
+_ALT2, _CALLED2 = _pair_tables()
+
+
 def is_vcz(path: str | os.PathLike) -> bool:
     """Whether ``path`` is to be read as a VCF Zarr store: a directory, or a zip file."""
     p = os.fspath(path)
@@ -460,11 +471,16 @@ class VczBatch(VariantBatch):
         g = self._calls("call_genotype", np.asarray(cols, dtype=np.int64))
         if rows.size != len(self) or (rows.size and rows[-1] != rows.size - 1):
             g = g[rows]
-        alt = (g[..., 0] == 1).view(np.int8).copy()
-        called = (g[..., 0] == 0).view(np.int8).copy()  # REF copies, then ALT ones added
-        for j in range(1, g.shape[2]):  # elementwise: much faster than sums over the ploidy
-            alt += (g[..., j] == 1).view(np.int8)
-            called += (g[..., j] == 0).view(np.int8)
-        called += alt
-        ok = g.reshape(g.shape[0], -1).max(axis=1, initial=-2) <= 1
-        return alt, called, ok
+        if g.dtype == np.int8 and g.ndim == 3 and g.shape[2] == 2 and g.strides[2] == 1:
+            pair = g.view(np.uint16)[..., 0]  # both copies of a call as one number
+            alt, called = _ALT2.take(pair), _CALLED2.take(pair)
+        else:
+            alt = (g[..., 0] == 1).view(np.int8).copy()
+            called = (g[..., 0] == 0).view(np.int8).copy()  # REF copies, ALT ones added
+            for j in range(1, g.shape[2]):
+                alt += (g[..., j] == 1).view(np.int8)
+                called += (g[..., j] == 0).view(np.int8)
+            called += alt
+        if not g.size or g.max() <= 1:
+            return alt, called, np.ones(g.shape[0], bool)
+        return alt, called, g.reshape(g.shape[0], -1).max(axis=1) <= 1
