@@ -84,6 +84,24 @@ def test_two_workers_and_a_zip_store_give_the_same_bytes(beetles, tmp_path):
     assert len(prov["inputs"]["vcf"]["sha256"]) == 64
 
 
+def test_dask_cluster_counts_a_store(beetles, tmp_path):
+    # region tasks on a local dask cluster open the store themselves (source: the VCF
+    # route on one worker)
+    distributed = pytest.importorskip("distributed")
+    args = ["--samples", str(beetles["samples"]), "--sites", str(beetles["sites"])]
+    args += ["--region-size", "6000"]
+    _, local = run_spectra(beetles["vcf"], tmp_path / "v.json", [*args, "--workers", "1"])
+    with distributed.LocalCluster(
+        n_workers=2, threads_per_worker=1, processes=True, dashboard_address=":0"
+    ) as cl:
+        _, dask = run_spectra(
+            beetles["vcz"], tmp_path / "d.json", [*args, "--scheduler", cl.scheduler_address]
+        )
+    assert dask == local
+    prov = json.loads((tmp_path / "d.json").read_text())["provenance"]
+    assert prov["execution"]["scheduler"] == cl.scheduler_address
+
+
 @pytest.mark.parametrize("extra", [[], ["--pass-only", "--min-gq", "30"], ["--ancestral", "fold"]])
 def test_tiny_example_store(tiny, tmp_path, extra):
     args = ["--samples", str(TINY / "tiny.samples.tsv"), "--sites", str(TINY / "tiny.sites.bed")]
