@@ -149,10 +149,16 @@ def test_without_zarr_the_error_says_what_to_install(capfd, good, store, monkeyp
     real = builtins.__import__
 
     def no_zarr(name, *args, **kwargs):
-        if name == "zarr" or name.startswith("zarr."):
+        if name.split(".")[0] in ("zarr", "numcodecs"):
             raise ImportError(name)
         return real(name, *args, **kwargs)
 
     monkeypatch.setattr(builtins, "__import__", no_zarr)
     err = run_bad(capfd, good, store)
     assert "pip install 'driftband[vcz]'" in err
+
+
+def test_unreadable_array_metadata(capfd, good, store):
+    (store / "call_genotype" / ".zarray").write_text("{not json")
+    err = run_bad(capfd, good, store)
+    assert "array call_genotype" in err and ".zarray" in err

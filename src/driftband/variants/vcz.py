@@ -11,8 +11,9 @@ are the missing calls and the padding of lower ploidy, as the mask
 ``call_genotype_mask`` says), ``variant_allele``, ``variant_filter``, ``variant_AA`` and
 the per-call ``call_DP``/``call_GQ``. Memory is bounded by one chunk.
 
-Stores of VCF Zarr versions :data:`VCZ_VERSIONS` are read (as written by ``bio2zarr``).
-``zarr`` is an optional dependency (``pip install 'driftband[vcz]'``).
+Stores of VCF Zarr versions :data:`VCZ_VERSIONS` are read (as written by ``bio2zarr``),
+in Zarr format 2 by :mod:`.vczchunks` with numcodecs, in format 3 through zarr; both are
+in the optional extra ``vcz`` (``pip install 'driftband[vcz]'``).
 
 A chunk absent from the store is what Zarr writes for a chunk holding only the fill
 value, so it is read as such; only the arrays that can never be all fill
@@ -32,7 +33,7 @@ from ..exceptions import InputError, VcfFormatError
 from .batches import GenotypeData, VariantBatch
 from .decode import upper_codes
 from .header import VcfHeader
-from .vczchunks import ChunkReader, MissingChunk
+from .vczchunks import ChunkReader, Format2Store, MissingChunk, StoreLayoutError, ZarrArrays
 
 __all__ = ["VCZ_VERSIONS", "VczBatch", "VczSource", "is_vcz"]
 
@@ -64,15 +65,43 @@ def is_vcz(path: str | os.PathLike) -> bool:
     return False
 
 
-def _zarr() -> Any:
+_EXTRA = "pip install 'driftband[vcz]' (or pip install zarr)"
+
+
+def _open_store(path: str) -> Format2Store | ZarrArrays:
+    """The store at ``path``: Zarr format 2 read directly, format 3 through zarr."""
     try:
-        import zarr
-    except ImportError:
+        if Format2Store.is_format2(path):
+            try:
+                import numcodecs  # noqa: F401  (the codecs of the chunks)
+            except ImportError:
+                raise InputError(f"reading VCF Zarr needs numcodecs: {_EXTRA}", path) from None
+            return Format2Store(path)
+        if os.path.isdir(path):
+            three = os.path.isfile(os.path.join(path, "zarr.json"))
+        else:
+            with zipfile.ZipFile(path) as zf:
+                three = "zarr.json" in zf.namelist()
+    except StoreLayoutError as err:
+        raise InputError(f"the store's metadata cannot be read: {err}", path) from None
+    except (OSError, zipfile.BadZipFile) as err:
+        raise InputError(f"cannot read the store ({err})", path) from None
+    if not three:
         raise InputError(
-            "reading VCF Zarr needs the zarr package: pip install 'driftband[vcz]' "
-            "(or pip install zarr)"
+            "not a Zarr store (no .zgroup or zarr.json at its top); convert the VCF with "
+            "vcf2zarr convert (bio2zarr)",
+            path,
+        )
+    try:
+        import zarr  # noqa: F401
+    except ImportError:
+        raise InputError(f"reading a Zarr format 3 store needs zarr: {_EXTRA}", path) from None
+    try:
+        return ZarrArrays(path)
+    except Exception as err:  # zarr's own errors for a store it cannot open
+        raise InputError(
+            f"zarr cannot open the store ({type(err).__name__}: {err})", path
         ) from None
-    return zarr
 
 
 def _strings(a: Any) -> np.ndarray:
@@ -80,6 +109,17 @@ def _strings(a: Any) -> np.ndarray:
     numpy reads them, as fixed-width unicode)."""
     a = np.asarray(a)
     return a.astype("U") if a.dtype.kind == "O" else a
+
+
+def _stop_zarr_threads() -> None:
+    """Stop the I/O thread (and pool) zarr starts on first use; zarr starts them again
+    when it is used next. Format 2 chunks are read without them, and a process with no
+    other threads can start its local workers by fork (at once) rather than spawn."""
+    try:
+        from zarr.core.sync import cleanup_resources
+    except ImportError:  # another zarr: its threads stay, and workers are spawned
+        return
+    cleanup_resources()
 
 
 class VczSource:
@@ -116,27 +156,18 @@ class VczSource:
 
     def __init__(self, path: str | os.PathLike) -> None:
         self.path = os.fspath(path)
-        zarr = _zarr()
         if not os.path.exists(self.path):
             raise InputError("VCF Zarr store not found", self.path)
-        self._zip: Any = None
-        self._zf: zipfile.ZipFile | None = None
         self._readers: dict[str, ChunkReader] = {}
+        self._store = _open_store(self.path)
         try:
-            if os.path.isdir(self.path):
-                store: Any = zarr.storage.LocalStore(self.path, read_only=True)
-            else:
-                store = self._zip = zarr.storage.ZipStore(self.path, mode="r")
-                self._zf = zipfile.ZipFile(self.path)
-            self._root = zarr.open_group(store=store, mode="r")
-        except Exception as err:  # zarr's own errors for a folder that is not a store
+            self._setup()
+        except BaseException:
             self.close()
-            raise InputError(
-                f"not a Zarr store ({type(err).__name__}: {err}); convert the VCF with "
-                "vcf2zarr convert (bio2zarr)",
-                self.path,
-            ) from None
-        self.version = str(self._root.attrs.get("vcf_zarr_version", ""))
+            raise
+
+    def _setup(self) -> None:
+        self.version = str(self._store.attrs.get("vcf_zarr_version", ""))
         if not self.version:
             raise InputError(
                 "not a VCF Zarr store (its attributes have no vcf_zarr_version); "
@@ -149,7 +180,7 @@ class VczSource:
                 f"{', '.join(VCZ_VERSIONS)} are); convert the VCF again with bio2zarr",
                 self.path,
             )
-        names = set(self._root.array_keys())
+        names = set(self._store.arrays)
         if "call_genotype" not in names:
             raise InputError(
                 "the store has no call_genotype array; spectra need genotypes "
@@ -163,16 +194,15 @@ class VczSource:
                     self.path,
                 )
         self._names = names
-        self._pos = self._root["variant_position"]
-        self.chunk = int(self._pos.chunks[0])
-        self.n_variants = int(self._pos.shape[0])
-        if (
-            self._root["call_genotype"].shape[0] != self.n_variants
-            or self._root["variant_allele"].shape[0] != self.n_variants
+        pos = self._reader("variant_position")
+        self.chunk = pos.chunks[0]
+        self.n_variants = pos.shape[0]
+        if any(self._reader(a).shape[0] != self.n_variants for a in _REQUIRED[1:3]) or (
+            self._reader("call_genotype").shape[0] != self.n_variants
         ):
             raise InputError(
-                "call_genotype, variant_allele and variant_position have different numbers "
-                "of variants; the store is damaged: convert the VCF again",
+                "call_genotype, variant_allele, variant_contig and variant_position have "
+                "different numbers of variants; the store is damaged: convert the VCF again",
                 self.path,
             )
         samples = [str(s) for s in self._read_all("sample_id")]
@@ -190,18 +220,28 @@ class VczSource:
             [str(f) for f in self._read_all("filter_id")] if "filter_id" in names else []
         )
         self._table = self._chunk_table()
+        if isinstance(self._store, ZarrArrays):
+            _stop_zarr_threads()
 
     # -- opening
     def _reader(self, name: str) -> ChunkReader:
         r = self._readers.get(name)
         if r is None:
-            r = self._readers[name] = ChunkReader(self._root[name], self.path, self._zf)
+            try:
+                r = self._readers[name] = ChunkReader(self._store, name)
+            except StoreLayoutError as err:
+                raise InputError(
+                    f"array {name}: its metadata cannot be read ({err}); the store is "
+                    "damaged: convert the VCF again",
+                    self.path,
+                ) from None
         return r
 
     def _read_all(self, name: str) -> np.ndarray:
         """A small array (samples, contigs, filters, the region index) whole."""
+        r = self._reader(name)
         try:
-            return np.asarray(self._root[name][...])
+            return r.read_all()
         except Exception as err:  # a corrupt chunk: codec errors of any kind
             raise self._corrupt(name, None, err) from None
 
@@ -229,8 +269,8 @@ class VczSource:
 
     def _chunk_table(self) -> np.ndarray:
         """Rows ``chunk, contig, first POS, last POS`` per chunk and contig (int64)."""
-        ri = self._root["region_index"] if "region_index" in self._names else None
-        if ri is not None and ri.ndim == 2 and ri.shape[1] >= 4:
+        ri = self._reader("region_index") if "region_index" in self._names else None
+        if ri is not None and len(ri.shape) == 2 and ri.shape[1] >= 4:
             t = self._read_all("region_index").astype(np.int64)[:, :4]
         else:  # no region index: from the positions, one chunk at a time
             rows = []
@@ -263,10 +303,7 @@ class VczSource:
 
     def close(self) -> None:
         """Close the store (a zip file)."""
-        for h in (self._zip, self._zf):
-            if h is not None:
-                h.close()
-        self._zip = self._zf = None
+        self._store.close()
 
     def __enter__(self) -> VczSource:
         return self
@@ -303,18 +340,17 @@ class VczSource:
             yield VczBatch(self, k, a0 + a, a0 + z, chrom, pos)
 
     def read(self, name: str, rows: slice, cols: slice | None = None) -> np.ndarray:
-        """Rows (variants) of array ``name``, and for per-call arrays some sample columns;
-        ``rows`` lie in one variants chunk."""
-        k = rows.start // self.chunk
-        arr = self._reader(name).arr
-        if int(arr.chunks[0]) != self.chunk:  # chunked unlike the positions
-            try:
-                return np.asarray(arr[rows] if cols is None else arr[rows, cols])
-            except Exception as err:  # a corrupt chunk: codec errors of any kind
-                raise self._corrupt(name, k, err) from None
+        """Rows (variants) ``rows`` of array ``name``, and for per-call arrays the sample
+        columns ``cols``; one chunk at a time (one, when the array is chunked like
+        ``variant_position``)."""
+        c0 = self._reader(name).chunks[0]
         c = None if cols is None else (int(cols.start), int(cols.stop))
-        a = k * self.chunk
-        return self._chunk(name, k, c)[rows.start - a : rows.stop - a]
+        a, z = int(rows.start), int(rows.stop)
+        parts = [
+            self._chunk(name, k, c)[max(a - k * c0, 0) : z - k * c0]
+            for k in range(a // c0, -(-z // c0))
+        ]
+        return parts[0] if len(parts) == 1 else np.concatenate(parts)
 
     def shape(self, name: str) -> tuple[int, ...]:
         """The shape of array ``name``."""

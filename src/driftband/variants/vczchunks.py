@@ -1,23 +1,28 @@
-"""Whole chunks of the arrays of a VCF Zarr store, decoded straight from their bytes.
+"""The arrays of a VCF Zarr store, read chunk by chunk.
 
-Zarr's own reader costs about a millisecond per call on top of the decoding, as much as
-decoding a chunk of genotypes; counting reads half a dozen arrays per variants chunk. For
-arrays of Zarr format 2 in C order (what bio2zarr writes by default), :class:`ChunkReader`
-reads the bytes of a chunk from the folder or the zip file and decodes them with the
-array's numcodecs compressor and filters; every other layout (Zarr format 3, sharding,
-Fortran order, chunked beyond the first two dimensions) goes through zarr. Both give the
-same arrays; the tests read stores of both formats.
+Zarr's own reader costs about a millisecond per call on top of the decoding (as much as
+decoding a chunk of genotypes), takes a quarter of a second to import, and runs an I/O
+thread, which makes local worker processes start by ``spawn`` instead of ``fork``.
+Counting reads half a dozen arrays per variants chunk, so a store of **Zarr format 2**
+(what bio2zarr writes by default) is read here without zarr, as that format's
+specification says: the group's ``.zattrs``, each array's ``.zarray`` (shape, chunks,
+dtype, fill value, order, dimension separator, numcodecs compressor and filters), and
+the bytes of each chunk, from the folder or the zip file, decoded by numcodecs. A store
+of **Zarr format 3** is read through zarr (:class:`ZarrArrays`). Both give the same
+arrays; the tests read stores of both formats.
 """
 
 from __future__ import annotations
 
+import json
 import os
 import zipfile
+from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
 
-__all__ = ["ChunkReader", "MissingChunk"]
+__all__ = ["ChunkReader", "Format2Store", "MissingChunk", "StoreLayoutError", "ZarrArrays"]
 
 
 class MissingChunk(Exception):
@@ -28,76 +33,210 @@ class MissingChunk(Exception):
         self.key = key
 
 
-def _native(dtype: Any) -> np.dtype:
-    return dtype.to_native_dtype() if hasattr(dtype, "to_native_dtype") else np.dtype(dtype)
+class StoreLayoutError(Exception):
+    """Metadata that cannot be read (the message says which file and why)."""
 
 
-class ChunkReader:
-    """Reads variants chunks of one array, for a range of sample columns.
+@dataclass
+class _Meta:
+    """What reading the chunks of one Zarr format 2 array needs."""
+
+    name: str
+    shape: tuple[int, ...]
+    chunks: tuple[int, ...]
+    dtype: np.dtype
+    codecs: list[Any]  # filters then compressor; decoded in reverse
+    fill: Any
+    order: str
+    sep: str
+
+
+class Format2Store:
+    """A Zarr format 2 store (a folder or a zip file) read without zarr.
 
     Parameters
     ----------
-    arr : zarr.Array
-        The array (variants first).
-    root : str
-        The store: a folder, or a zip file.
-    zf : zipfile.ZipFile or None
-        The open zip file, for a zip store.
+    path : str
+        The folder, or the zip file.
+
+    Attributes
+    ----------
+    attrs : dict
+        The group's attributes (``.zattrs``).
+    arrays : set of str
+        The arrays at the top of the group (those with a ``.zarray``).
     """
 
-    def __init__(self, arr: Any, root: str, zf: zipfile.ZipFile | None) -> None:
-        self.arr = arr
-        self.root, self.zf = root, zf
-        self.shape = tuple(int(x) for x in arr.shape)
-        md = arr.metadata
-        self.direct = (
-            getattr(md, "zarr_format", None) == 2
-            and getattr(md, "order", "C") == "C"
-            and all(int(c) >= s for c, s in zip(md.chunks[2:], self.shape[2:]))
-        )
-        if self.direct:
-            self.chunks = tuple(int(c) for c in md.chunks)
-            self.codecs = [*(md.filters or ()), *([md.compressor] if md.compressor else [])]
-            self.dtype = _native(md.dtype)
-            self.fill = md.fill_value
+    def __init__(self, path: str) -> None:
+        self.path = path
+        self.zf = None if os.path.isdir(path) else zipfile.ZipFile(path)
+        if self.zf is not None:
+            names = self.zf.namelist()
+            self.arrays = {n[: -len("/.zarray")] for n in names if n.count("/") == 1}
+            self.arrays = {a for a in self.arrays if f"{a}/.zarray" in set(names)}
+        else:
+            self.arrays = {
+                d for d in os.listdir(path) if os.path.isfile(os.path.join(path, d, ".zarray"))
+            }
+        self.attrs = self._json(".zattrs") if self.has(".zattrs") else {}
 
-    def _key(self, coords: tuple[int, ...]) -> str:
-        return f"{self.arr.path}/{self.arr.metadata.encode_chunk_key(coords)}"
+    @staticmethod
+    def is_format2(path: str) -> bool:
+        """Whether ``path`` (folder or zip file) holds a Zarr format 2 group."""
+        if os.path.isdir(path):
+            return os.path.isfile(os.path.join(path, ".zgroup"))
+        with zipfile.ZipFile(path) as zf:
+            return ".zgroup" in set(zf.namelist())
 
-    def _bytes(self, key: str) -> bytes:
+    def has(self, key: str) -> bool:
+        """Whether the store holds the file ``key`` (a path from the store's root)."""
+        if self.zf is not None:
+            try:
+                self.zf.getinfo(key)
+            except KeyError:
+                return False
+            return True
+        return os.path.isfile(os.path.join(self.path, *key.split("/")))
+
+    def get(self, key: str) -> bytes:
+        """The bytes of ``key``; :class:`MissingChunk` when absent."""
         try:
             if self.zf is not None:
                 return self.zf.read(key)
-            with open(os.path.join(self.root, *key.split("/")), "rb") as fh:
+            with open(os.path.join(self.path, *key.split("/")), "rb") as fh:
                 return fh.read()
         except (KeyError, FileNotFoundError):
             raise MissingChunk(key) from None
 
-    def _decode(self, coords: tuple[int, ...], missing_ok: bool) -> np.ndarray:
+    def _json(self, key: str) -> dict[str, Any]:
         try:
-            b: Any = self._bytes(self._key(coords))
+            doc = json.loads(self.get(key))
+        except (MissingChunk, ValueError, UnicodeDecodeError) as err:
+            raise StoreLayoutError(f"{key} cannot be read as JSON ({err})") from None
+        if not isinstance(doc, dict):
+            raise StoreLayoutError(f"{key} is not a JSON object")
+        return doc
+
+    def meta(self, name: str) -> _Meta:
+        """The metadata of array ``name`` (its ``.zarray``)."""
+        import numcodecs
+
+        key = f"{name}/.zarray"
+        m = self._json(key)
+        try:
+            codecs = [numcodecs.get_codec(f) for f in (m.get("filters") or [])]
+            if m.get("compressor"):
+                codecs.append(numcodecs.get_codec(m["compressor"]))
+            meta = _Meta(
+                name,
+                tuple(int(x) for x in m["shape"]),
+                tuple(int(x) for x in m["chunks"]),
+                np.dtype(m["dtype"]),
+                codecs,
+                m.get("fill_value"),
+                str(m.get("order", "C")),
+                str(m.get("dimension_separator", ".")),
+            )
+        except (KeyError, TypeError, ValueError) as err:
+            raise StoreLayoutError(f"{key}: {type(err).__name__}: {err}") from None
+        if len(meta.chunks) != len(meta.shape) or min(meta.chunks, default=1) < 1:
+            raise StoreLayoutError(f"{key}: chunks {meta.chunks} do not fit shape {meta.shape}")
+        return meta
+
+    def close(self) -> None:
+        """Close the zip file."""
+        if self.zf is not None:
+            self.zf.close()
+
+
+class ZarrArrays:
+    """A store read through zarr (Zarr format 3): attributes, arrays and the opened
+    arrays (:meth:`array`)."""
+
+    def __init__(self, path: str) -> None:
+        import zarr
+
+        self._zip: Any = None
+        if os.path.isdir(path):
+            store: Any = zarr.storage.LocalStore(path, read_only=True)
+        else:
+            store = self._zip = zarr.storage.ZipStore(path, mode="r")
+        self.root = zarr.open_group(store=store, mode="r")
+        self.attrs = dict(self.root.attrs)
+        self.arrays = set(self.root.array_keys())
+
+    def array(self, name: str) -> Any:
+        """The zarr array ``name``."""
+        return self.root[name]
+
+    def close(self) -> None:
+        """Close the zip file."""
+        if self._zip is not None:
+            self._zip.close()
+
+
+class ChunkReader:
+    """Reads variants chunks of one array, for a range of columns of its second dimension.
+
+    Parameters
+    ----------
+    store : Format2Store or ZarrArrays
+    name : str
+        The array (variants first).
+    """
+
+    def __init__(self, store: Format2Store | ZarrArrays, name: str) -> None:
+        self.name = name
+        self.f2 = store if isinstance(store, Format2Store) else None
+        if self.f2 is not None:
+            self.m: _Meta | None = self.f2.meta(name)
+            self.shape, self.chunks = self.m.shape, self.m.chunks
+        else:
+            assert isinstance(store, ZarrArrays)
+            self.m = None
+            self.arr = store.array(name)
+            self.shape = tuple(int(x) for x in self.arr.shape)
+            self.chunks = tuple(int(x) for x in self.arr.chunks)
+
+    def _key(self, coords: tuple[int, ...]) -> str:
+        assert self.m is not None
+        return f"{self.name}/{self.m.sep.join(str(c) for c in coords)}"
+
+    def _decode(self, coords: tuple[int, ...], missing_ok: bool) -> np.ndarray:
+        m, f2 = self.m, self.f2
+        assert m is not None and f2 is not None
+        try:
+            b: Any = f2.get(self._key(coords))
         except MissingChunk:
             if not missing_ok:
                 raise
-            return self._filled()
-        for codec in reversed(self.codecs):
+            obj = m.dtype.kind == "O"
+            fill = m.fill if m.fill is not None else ("" if obj else 0)
+            return np.full(m.chunks, fill, object if obj else m.dtype)
+        for codec in reversed(m.codecs):
             b = codec.decode(b)
-        if self.dtype.kind in "OT" or (isinstance(b, np.ndarray) and b.dtype == object):
-            return np.asarray(b, dtype=object).reshape(self.chunks)
-        return np.frombuffer(b, self.dtype).reshape(self.chunks)
-
-    def _filled(self) -> np.ndarray:
-        if self.dtype.kind in "OT":
-            return np.full(self.chunks, self.fill if self.fill is not None else "", object)
-        return np.full(self.chunks, self.fill if self.fill is not None else 0, self.dtype)
+        if m.dtype.kind == "O":
+            return np.asarray(b, dtype=object).reshape(m.chunks, order=m.order)  # type: ignore[call-overload]
+        return np.frombuffer(b, m.dtype).reshape(m.chunks, order=m.order)  # type: ignore[call-overload]
 
     def exists(self, k: int) -> bool:
         """Whether the store holds the first chunk of variants chunk ``k``."""
-        try:
-            self._bytes(self._key((k,) + (0,) * (len(self.shape) - 1)))
-        except MissingChunk:
-            return False
-        return True
+        if self.f2 is not None:
+            return self.f2.has(self._key((k,) + (0,) * (len(self.shape) - 1)))
+        from zarr.core.sync import sync
+
+        key = self.arr.metadata.encode_chunk_key((k,) + (0,) * (len(self.shape) - 1))
+        return bool(sync(self.arr.store.exists(f"{self.arr.path}/{key}")))
+
+    def read_all(self) -> np.ndarray:
+        """The whole array (for the small ones: samples, contigs, the region index)."""
+        if self.f2 is None:
+            return np.asarray(self.arr[...])
+        n = -(-self.shape[0] // self.chunks[0]) if self.shape and self.shape[0] else 0
+        parts = [self.read(k, None, True) for k in range(n)]
+        if not parts:
+            return np.zeros(self.shape, object if self.m and self.m.dtype.kind == "O" else None)
+        return np.concatenate(parts)
 
     def read(self, k: int, cols: tuple[int, int] | None, missing_ok: bool) -> np.ndarray:
         """Variants chunk ``k`` (its variants in the array), columns ``cols`` of the second
@@ -111,23 +250,43 @@ class ChunkReader:
             Whatever the codecs raise on a corrupt chunk.
         """
         n = self.shape[0]
-        c0 = self.chunks[0] if self.direct else int(self.arr.chunks[0])
-        rows = slice(k * c0, min((k + 1) * c0, n))
-        if not self.direct:
+        rows = slice(k * self.chunks[0], min((k + 1) * self.chunks[0], n))
+        if self.f2 is None:
             if not missing_ok and not self.exists(k):
-                raise MissingChunk(self._key((k,) + (0,) * (len(self.shape) - 1)))
+                raise MissingChunk(f"{self.name} chunk {k}")
             sel: Any = rows if cols is None or len(self.shape) < 2 else (rows, slice(*cols))
             return np.asarray(self.arr[sel])
-        rest = (0,) * max(len(self.shape) - 2, 0)
         if len(self.shape) == 1:
             out = self._decode((k,), missing_ok)
         else:
             lo, hi = (0, self.shape[1]) if cols is None else cols
             c1 = self.chunks[1]
-            parts = [self._decode((k, j, *rest), missing_ok) for j in range(lo // c1, -(-hi // c1))]
+            grid = [range(-(-s // c)) for s, c in zip(self.shape[2:], self.chunks[2:])]
+            parts = []
+            for j in range(lo // c1, -(-hi // c1)):
+                parts.append(self._assemble((k, j), grid, missing_ok))
             whole = parts[0] if len(parts) == 1 else np.concatenate(parts, axis=1)
             a = (lo // c1) * c1
             out = whole[:, lo - a : hi - a]
         out = out[: rows.stop - rows.start]
         trim = tuple(slice(0, s) for s in self.shape[2:])
         return out[(slice(None), slice(None)) + trim] if trim else out
+
+    def _assemble(self, head: tuple[int, int], grid: list[range], missing_ok: bool) -> np.ndarray:
+        """The chunks ``head + (i, ...)`` over the dimensions past the second, joined."""
+        if not grid:
+            return self._decode(head, missing_ok)
+        if all(len(g) == 1 for g in grid):
+            return self._decode(head + (0,) * len(grid), missing_ok)
+        import itertools
+
+        blocks = {idx: self._decode(head + idx, missing_ok) for idx in itertools.product(*grid)}
+
+        def join(prefix: tuple[int, ...], axis: int) -> np.ndarray:
+            if axis == len(grid):
+                return blocks[prefix]
+            return np.concatenate(
+                [join(prefix + (i,), axis + 1) for i in grid[axis]], axis=axis + 2
+            )
+
+        return join((), 0)
