@@ -71,9 +71,12 @@ class Format2Store:
         self.path = path
         self.zf = None if os.path.isdir(path) else zipfile.ZipFile(path)
         if self.zf is not None:
-            names = self.zf.namelist()
-            self.arrays = {n[: -len("/.zarray")] for n in names if n.count("/") == 1}
-            self.arrays = {a for a in self.arrays if f"{a}/.zarray" in set(names)}
+            tail = "/.zarray"
+            self.arrays = {
+                n[: -len(tail)]
+                for n in self.zf.namelist()
+                if n.endswith(tail) and n.count("/") == 1
+            }
         else:
             self.arrays = {
                 d for d in os.listdir(path) if os.path.isfile(os.path.join(path, d, ".zarray"))
