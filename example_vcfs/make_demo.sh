@@ -21,7 +21,7 @@ driftband simulate \
     --chromosomes 3 --gene-codons 400 --intergenic 4000 \
     --burn-in 20000 --divergence-generations 4000 \
     --outgroup sister:n=8 --missing 0.02 --ref-derived 0.03 \
-    --vcf snail --genome --seed 2024 -o snail.truth.spectra.json --force
+    --write-vcf snail --genome --seed 2024 -o snail.truth.spectra.json --force
 
 # The reference, bgzip-compressed with its indexes (.fai, .gzi), so that an installed,
 # read-only copy needs no indexing.

@@ -24,7 +24,12 @@ from driftband.prf.dfe import mean_fixation_ratio
 
 # McDonald & Kreitman (1991), Drosophila Adh: fixed replacement 7, fixed synonymous 17,
 # polymorphic replacement 2, polymorphic synonymous 42 (counts from memory).
-ADH = {"D_N": 7, "D_S": 17, "P_N": 2, "P_S": 42}
+ADH = {
+    "divergent_selected": 7,
+    "divergent_neutral": 17,
+    "polymorphic_selected": 2,
+    "polymorphic_neutral": 42,
+}
 
 
 def _pair_with(pn, ps, dn, ds, n=10):
@@ -35,7 +40,14 @@ def _pair_with(pn, ps, dn, ds, n=10):
 
 
 def test_mk_table_fisher_matches_scipy():
-    mk = mk_table(_pair_with(ADH["P_N"], ADH["P_S"], ADH["D_N"], ADH["D_S"]))
+    mk = mk_table(
+        _pair_with(
+            ADH["polymorphic_selected"],
+            ADH["polymorphic_neutral"],
+            ADH["divergent_selected"],
+            ADH["divergent_neutral"],
+        )
+    )
     odds, p = stats.fisher_exact([[7, 17], [2, 42]])  # scipy.stats.fisher_exact
     assert mk["fisher_p"] == pytest.approx(p, rel=1e-12)
     assert mk["fisher_odds_ratio"] == pytest.approx(odds)
@@ -168,9 +180,9 @@ def test_fit_carries_deleterious_ratio_and_alpha_uses_it():
     # a fit file written before r_del was stored gives it back from
     # r = (1 - p_b) r_del + p_b u(S_b) (the identity of the worked case above).
     data, f = _beneficial_fit()
-    p_b, s_b = f.params["p_b"], f.params["S_b"]
+    p_b, s_b = f.params["beneficial_fraction"], f.params["beneficial_S"]
     want = mean_fixation_ratio(
-        WithBeneficial(GammaDfe(f.params["shape"], f.params["mean_S"]), p_b, s_b), "deleterious"
+        WithBeneficial(GammaDfe(f.params["shape"], f.params["mean_abs_S"]), p_b, s_b), "deleterious"
     )
     assert f.fixation_ratio_deleterious == pytest.approx(want, rel=1e-12)
     assert f.fixation_ratio > f.fixation_ratio_deleterious

@@ -16,7 +16,7 @@ from driftband.fit.results import akaike_weights
 def _rep(share0: float, loglik: float, success: bool = True) -> dict:
     return {
         "params": {"shape": 0.3},
-        "eps": 0.0,
+        "misorientation_rate": 0.0,
         "shares": [share0, 1 - share0],
         "fixation_ratio": 0.1,
         "theta": 0.01,

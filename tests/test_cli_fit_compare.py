@@ -188,14 +188,14 @@ def test_fit_bad_spectra_files(tmp_path, capsys):
     # An all-zero selected spectrum, and n < 4, in reviewer-mode tables.
     t = tmp_path / "t.tsv"
     t.write_text(
-        "population\tclass\tsites\tc0\tc1\tc2\tc3\tc4\tc5\tc6\n"
+        "population\tclass\tcallable_sites\tc0\tc1\tc2\tc3\tc4\tc5\tc6\n"
         "p\t4fold\t1000\t\t30\t12\t9\t6\t4\t0\n"
         "p\t0fold\t1000\t\t0\t0\t0\t0\t0\t0\n"
     )
     assert main(["fit", str(t), "-o", str(tmp_path / "f.json")]) == 2
     assert "no polymorphic sites" in capsys.readouterr().err
     t.write_text(
-        "population\tclass\tsites\tc0\tc1\tc2\tc3\n"
+        "population\tclass\tcallable_sites\tc0\tc1\tc2\tc3\n"
         "p\t4fold\t1000\t\t30\t12\t0\n"
         "p\t0fold\t1000\t\t10\t2\t0\n"
     )
@@ -211,7 +211,9 @@ def test_reviewer_table_fit(tmp_path):
     selected = np.round(600 / i**1.3).astype(int)
     t = tmp_path / "table.tsv"
     with open(t, "w") as fh:
-        fh.write("population\tclass\tsites\t" + "\t".join(f"c{k}" for k in range(n + 1)) + "\n")
+        fh.write(
+            "population\tclass\tcallable_sites\t" + "\t".join(f"c{k}" for k in range(n + 1)) + "\n"
+        )
         for cls, v in (("4fold", neutral), ("0fold", selected)):
             fh.write(f"pond\t{cls}\t200000\t\t" + "\t".join(map(str, v)) + "\t0\n")
     bands = tmp_path / "bands.tsv"

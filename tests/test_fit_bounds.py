@@ -66,9 +66,9 @@ def test_beneficial_mass_on_data_without_it_is_at_its_bound(no_beneficial):
     # likelihood (λ = x is its maximiser, Gibbs' inequality): the estimate of p_b goes to
     # its lower bound (1e-6 stands in for 0), and S_b is then not identified.
     data, f, caught = no_beneficial
-    assert "p_b" in f.at_bounds
-    assert f.params["p_b"] == pytest.approx(1e-6, rel=1e-2)
-    assert np.isnan(f.stderr["p_b"]) and np.isnan(f.stderr["S_b"])
+    assert "beneficial_fraction" in f.at_bounds
+    assert f.params["beneficial_fraction"] == pytest.approx(1e-6, rel=1e-2)
+    assert np.isnan(f.stderr["beneficial_fraction"]) and np.isnan(f.stderr["beneficial_S"])
     assert np.isfinite(f.stderr["shape"])  # interior parameters keep theirs
     # the objective at the estimate is no worse than at the truth (p_b at its bound)
     obj = Objective(data, DfeModel("gamma", beneficial=True), eps=0.0)
@@ -76,7 +76,9 @@ def test_beneficial_mass_on_data_without_it_is_at_its_bound(no_beneficial):
     assert f.loglik >= -obj(truth) - 1e-6
     bound = [w for w in caught if issubclass(w.category, BoundWarning)]
     assert len(bound) == 1  # once per fit
-    assert str(bound[0].message).startswith("lake / gamma+beneficial: p_b is at its lower bound")
+    assert str(bound[0].message).startswith(
+        "lake / gamma+beneficial: beneficial_fraction is at its lower bound"
+    )
 
 
 def test_lognormal_on_a_tiny_spectrum_has_log_sd_at_bound():
@@ -89,10 +91,10 @@ def test_lognormal_on_a_tiny_spectrum_has_log_sd_at_bound():
         warnings.simplefilter("always")
         ln = fit_model(data, DfeModel("lognormal"), population="pond", eps=0.0)
         ga = fit_model(data, DfeModel("gamma"), population="pond", eps=0.0)
-    assert ln.at_bounds == ("log_sd",) and np.isnan(ln.stderr["log_sd"])
+    assert ln.at_bounds == ("sd_log_abs_S",) and np.isnan(ln.stderr["sd_log_abs_S"])
     assert ga.at_bounds == ("shape",) and np.isnan(ga.stderr["shape"])
     msgs = [str(w.message) for w in caught if issubclass(w.category, BoundWarning)]
-    assert msgs[0].startswith("pond / lognormal: log_sd is at its lower bound (0.01)")
+    assert msgs[0].startswith("pond / lognormal: sd_log_abs_S is at its lower bound (0.01)")
     assert msgs[1].startswith("pond / gamma: shape is at its upper bound (100)")
 
 
@@ -116,10 +118,12 @@ def test_misorientation_free_vs_fixed_zero_without_misorientation():
         warnings.simplefilter("ignore", BoundWarning)
         free = fit_model(data, DfeModel("gamma"), eps=None)
         fixed = fit_model(data, DfeModel("gamma"), eps=0.0)
-    assert "eps" in free.at_bounds
+    assert "misorientation_rate" in free.at_bounds
     assert free.eps == pytest.approx(1.0 / (1.0 + np.exp(13.8)), rel=1e-2)
-    assert np.isnan(free.stderr["eps"])
-    assert "eps" not in fixed.at_bounds and "eps" not in fixed.stderr
+    assert np.isnan(free.stderr["misorientation_rate"])
+    assert (
+        "misorientation_rate" not in fixed.at_bounds and "misorientation_rate" not in fixed.stderr
+    )
     assert free.loglik == pytest.approx(fixed.loglik, abs=1e-2)
 
 
@@ -128,7 +132,10 @@ def test_at_bounds_round_trip_and_old_files(no_beneficial):
     d = json.loads(json.dumps(f.to_dict()))
     assert d["at_bounds"] == list(f.at_bounds)
     assert FitResult.from_dict(d).at_bounds == f.at_bounds
-    assert FitResult.from_dict(d).stderr["p_b"] != FitResult.from_dict(d).stderr["p_b"]  # NaN
+    assert (
+        FitResult.from_dict(d).stderr["beneficial_fraction"]
+        != FitResult.from_dict(d).stderr["beneficial_fraction"]
+    )  # NaN
     del d["at_bounds"]  # a file written before the key existed
     assert FitResult.from_dict(d).at_bounds == ()
 
@@ -137,7 +144,7 @@ def test_folded_spectra_refuse_a_beneficial_class(tmp_path, capsys):
     # Folding maps derived frequency x and 1 − x to one class, so the sign of S (and with
     # it a beneficial class) cannot be told from a folded spectrum (common practice).
     t = tmp_path / "folded.tsv"
-    rows = ["population\tclass\tn\tfolded\tcount\tsites"]
+    rows = ["population\tclass\tn\tfolded\tderived_copies\tsite_count"]
     for cls, v in (("4fold", [2000, 1000, 660, 500, 400]), ("0fold", [600, 250, 150, 100, 80])):
         rows.append(f"lake\t{cls}\t10\ttrue\t0\t{200000 - sum(v)}")
         rows += [f"lake\t{cls}\t10\ttrue\t{i}\t{x}" for i, x in enumerate(v, start=1)]
@@ -193,9 +200,9 @@ def test_shared_dfe_lrt_uses_the_mixture_when_p_b_is_at_zero(no_beneficial):
     )
     opts = FitOptions(models=(model,), eps=0.0)
     (row,) = compare_pair(pa, pb, model, opts, tests=("shared_dfe_lrt",))
-    assert "Self & Liang 1987" in row.note and "p_b" in row.note
+    assert "Self & Liang 1987" in row.note and "beneficial_fraction" in row.note
     assert row.p_value == pytest.approx(chibar2_sf(row.statistic, 4, 1))
-    assert boundary_parameters(model, fa.x[:4]) == ["p_b"]
+    assert boundary_parameters(model, fa.x[:4]) == ["beneficial_fraction"]
     # no boundary: plain χ²
     assert boundary_parameters(DfeModel("gamma"), np.log([0.3, 500.0])) == []
 

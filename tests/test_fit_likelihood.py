@@ -90,7 +90,7 @@ def test_exact_expectations_give_truth_no_worse():
     ll_true = poisson_loglik(data.neutral, ln) + poisson_loglik(data.selected, ls)
     assert f.loglik >= ll_true - 1e-6
     assert f.params["shape"] == pytest.approx(0.3, rel=1e-3)
-    assert f.params["mean_S"] == pytest.approx(800.0, rel=1e-2)
+    assert f.params["mean_abs_S"] == pytest.approx(800.0, rel=1e-2)
     np.testing.assert_allclose(f.nuisance, r / r[0], rtol=1e-3)
     np.testing.assert_allclose(f.shares, band_shares(true, f.band_edges), atol=1e-4)
 
@@ -105,7 +105,7 @@ def test_parameter_recovery_within_three_standard_errors():
     en, es = _model_spectra(n, true, 0.01, 5e5, 5e5, r)
     rng = np.random.default_rng(2024)
     ex = DfeExpectation(n)
-    z = {"shape": [], "mean_S": []}
+    z = {"shape": [], "mean_abs_S": []}
     for _ in range(50):
         data = _pair(n, rng.poisson(en).astype(float), rng.poisson(es).astype(float), 5e5, 5e5)
         f = fit_model(
@@ -115,7 +115,7 @@ def test_parameter_recovery_within_three_standard_errors():
             expectation=ex,
             starts=[np.log([0.5, 200.0]), np.log([0.2, 2000.0])],
         )
-        for k, tv in (("shape", 0.35), ("mean_S", 400.0)):
+        for k, tv in (("shape", 0.35), ("mean_abs_S", 400.0)):
             z[k].append((f.params[k] - tv) / f.stderr[k])
     for k, v in z.items():
         v = np.asarray(v)

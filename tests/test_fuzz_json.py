@@ -161,7 +161,7 @@ FIT_LEAVES = {
     "loglik": (M + ("loglik",), ["nan", "inf", "string", "null", "list"]),
     "aic": (M + ("aic",), ["nan", "-inf", "null"]),
     "share": (M + ("shares", 0), ["nan", "negative", "string", "null", "1e400"]),
-    "eps": (M + ("eps",), ["inf", "string", "list"]),
+    "misorientation_rate": (M + ("misorientation_rate",), ["inf", "string", "list"]),
     "neutral": (("populations", "lake", "data", "neutral", 0), ["nan", "negative", "string"]),
     "sites": (("populations", "lake", "data", "sites_neutral"), ["negative", "null", "string"]),
     "boot-share": (("populations", "lake", "bootstrap", "models", "gamma", "shares", 0, 0),
@@ -172,7 +172,7 @@ FIT_CASES = [
 ] + [
     ("share=-0.5", M + ("shares", 0), "-0.5"),
     ("share=1.5", M + ("shares", 1), "1.5"),
-    ("eps=2", M + ("eps",), "2"),
+    ("eps=2", M + ("misorientation_rate",), "2"),
 ]
 
 

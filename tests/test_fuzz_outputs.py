@@ -35,7 +35,7 @@ def inputs(tmp_path_factory):
     (d / "pm.tsv").write_text(SAMPLE_TABLE)
     (d / "s.bed").write_text(SITES)
     sim = ["simulate", "--population", "A:N=50,n=4", "--class-sites", "300", "--seed", "1"]
-    assert main([*sim, "--vcf", str(d / "g"), "--genome", "-q", "-o", str(d / "g.json")]) == 0
+    assert main([*sim, "--write-vcf", str(d / "g"), "--genome", "-q", "-o", str(d / "g.json")]) == 0
     for name in ("fit.json", "spectra.json", "compare.tsv"):
         (d / name).write_bytes((DATA / name).read_bytes())
     return d

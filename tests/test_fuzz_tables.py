@@ -152,7 +152,9 @@ def genome(tmp_path_factory):
 
     d = tmp_path_factory.mktemp("genome")
     args = ["simulate", "--population", "A:N=50,n=4", "--class-sites", "300", "--seed", "1"]
-    assert main([*args, "--vcf", str(d / "sim"), "--genome", "-q", "-o", str(d / "s.json")]) == 0
+    assert (
+        main([*args, "--write-vcf", str(d / "sim"), "--genome", "-q", "-o", str(d / "s.json")]) == 0
+    )
     return d
 
 

@@ -65,7 +65,9 @@ def test_bounds_are_left_out():
     x = d.from_natural({"mass_0": 0.2, "mass_1": 0.0, "mass_2": 0.3, "mass_3": 0.5})
     assert interior_coordinates(d, x) == [1, 2]  # mass_1 = 0: its log ratio is dropped
     b = DfeModel("gamma", beneficial=True)
-    x = b.from_natural({"shape": 0.3, "mean_S": 200.0, "p_b": 1e-6, "S_b": 10.0})
+    x = b.from_natural(
+        {"shape": 0.3, "mean_abs_S": 200.0, "beneficial_fraction": 1e-6, "beneficial_S": 10.0}
+    )
     assert interior_coordinates(b, x) == [0, 1, 3]
 
 
@@ -95,7 +97,7 @@ def test_naive_covariance_is_the_inverse_fisher_information():
 
 def test_replicate_vectors_invert_the_natural_parameters():
     m = DfeModel("lognormal")
-    params = {"log_mean": np.array([3.0, np.nan]), "log_sd": np.array([1.5, np.nan])}
+    params = {"mean_log_abs_S": np.array([3.0, np.nan]), "sd_log_abs_S": np.array([1.5, np.nan])}
     mb = ModelBootstrap(1, 1, params, np.array([[0.2, 0.8], [np.nan, np.nan]]), {}, [])
     v = replicate_vectors(mb, m)
     assert v[0] == pytest.approx([3.0, np.log(1.5)])
@@ -248,15 +250,15 @@ def test_replicate_pi_matches_the_spectrum_pair():
 @pytest.mark.parametrize(
     "model, values",
     [
-        (DfeModel("gamma"), {"shape": 0.3, "mean_S": 250.0}),
-        (DfeModel("lognormal"), {"log_mean": 2.5, "log_sd": 1.7}),
+        (DfeModel("gamma"), {"shape": 0.3, "mean_abs_S": 250.0}),
+        (DfeModel("lognormal"), {"mean_log_abs_S": 2.5, "sd_log_abs_S": 1.7}),
         (
             DfeModel("discrete"),
             {"mass_0": 0.25, "mass_1": 0.15, "mass_2": 0.1, "mass_3": 0.5},
         ),
         (
             DfeModel("gamma", beneficial=True),
-            {"shape": 0.4, "mean_S": 90.0, "p_b": 0.02, "S_b": 30.0},
+            {"shape": 0.4, "mean_abs_S": 90.0, "beneficial_fraction": 0.02, "beneficial_S": 30.0},
         ),
     ],
 )

@@ -69,7 +69,7 @@ def study(tmp_path_factory):
             "3",
             "--seed",
             "5",
-            "--vcf",
+            "--write-vcf",
             str(d / "study"),
             "-o",
             str(d / "truth.json"),

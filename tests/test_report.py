@@ -482,6 +482,12 @@ def test_cli_writes_report_and_summary(tmp_path, capsys):
     assert code == 0, err
     page = parse(out.read_text(encoding="utf-8"))
     assert "diversity-pop1-lake" in page.tables
+    made = {(Path(r[0]).name, r[1]): r[2] for r in page.tables["prov-spectra"][1:]}
+    # the fixture's spectra: 24 called copies projected to 16 (lake) and 12 (spring)
+    assert made[("spectra.json", "projection")].startswith("lake: 24 → 16 gene copies")
+    assert "DP < 8" in made[("spectra.json", "filters")]
+    assert made[("spectra.json", "records skipped")] == "multiallelic 12, filtered 40"
+    assert made[("spectra.json", "blocks")] == "4 blocks of 100,000 bp"
     files = page.tables["files"]
     fit_row = next(r for r in files if r[0] == "report" and r[1] == "fit")
     assert fit_row[4] == hashlib.sha256((DATA / "fit.json").read_bytes()).hexdigest()
@@ -622,3 +628,46 @@ def test_report_renders_in_headless_chromium(tmp_path, html_text):
     bad = tmp_path / "bad.html"
     bad.write_text("<!DOCTYPE html><p>x</p><script>undefined_function()</script>", encoding="utf-8")
     assert _console_errors(_chromium(bad.as_uri(), tmp_path, "--dump-dom").stderr)
+
+
+def test_old_fit_schema_is_read_with_its_keys_translated(tmp_path, capsys):
+    """fit.v1.json is this fixture as written before schema version 3 (keys eps, p_b,
+    mean_S, log_sd, x, ...). Read through the one fit reader it gives the same summary as
+    the current file, with one warning naming the file and the translation."""
+    summaries = []
+    for name in ("fit.json", "fit.v1.json"):
+        summ = tmp_path / f"{name}.md"
+        argv = ["report", str(DATA / name), "-o", str(tmp_path / f"{name}.html")]
+        code, _out, err = _run([*argv, "--summary", str(summ)], capsys)
+        assert code == 0, err
+        text = summ.read_text(encoding="utf-8").replace(name, "FIT")
+        summaries.append(re.sub(r"\d{4}-\d\d-\d\dT[\d:+]+", "DATE", text))
+        if name == "fit.v1.json":
+            lines = [ln for ln in err.splitlines() if "schema version" in ln]
+            assert len(lines) == 1 and "fit.v1.json" in lines[0]
+            assert "eps -> misorientation_rate" in lines[0]
+        else:
+            assert "schema version" not in err
+    assert summaries[0] == summaries[1]
+
+
+def test_compare_table_with_an_out_of_equilibrium_flag_is_rendered(tmp_path, capsys):
+    """compare.tsv writes the flag as True/False (csv of a Python bool); the report reads
+    it as a flag, not a number, and adds its caution to the 'only Ne differs' sentences.
+    (Before, any True made the report refuse the table.)"""
+    rows = (DATA / "compare.tsv").read_text(encoding="utf-8").splitlines()
+    cols = rows[0].split("\t")
+    k = cols.index("out_of_equilibrium")
+    out_rows = [rows[0]]
+    for line in rows[1:]:
+        f = line.split("\t")
+        if f[cols.index("test")].startswith("ne_only"):
+            f[k] = "True"
+        out_rows.append("\t".join(f))
+    tsv = tmp_path / "compare.tsv"
+    tsv.write_text("\n".join(out_rows) + "\n", encoding="utf-8")
+    summ = tmp_path / "s.md"
+    argv = ["report", str(DATA / "fit.json"), "--compare", str(tsv), "-o", str(tmp_path / "r.html")]
+    code, _out, err = _run([*argv, "--summary", str(summ)], capsys)
+    assert code == 0, err
+    assert summ.read_text(encoding="utf-8").count("looks out of equilibrium") == 2

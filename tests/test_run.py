@@ -560,3 +560,23 @@ def test_flags_make_the_same_kind_of_study(tmp_path):
     assert st.bootstrap.replicates == 200 and st.compare.model == "auto"  # the run defaults
     assert st.bootstrap.models == "all" and st.fit.headline == "averaged"
     runmod.check_files(st)
+
+
+def test_compare_with_its_defaults_repeats_the_run_s_comparisons(demo_run, tmp_path):
+    """`driftband compare fit.json` with its defaults gives run's compare.tsv: the same
+    model (auto), tests, adjustment and pairs in the same order (A:B orientation kept)."""
+    out = tmp_path / "c.tsv"
+    assert main(["compare", str(demo_run / "fit.json"), "-o", str(out), "-q"]) == 0
+    ours, runs = _tsv(out), _tsv(demo_run / "compare.tsv")
+    key = ("population_a", "population_b", "test", "model", "adjust")
+    assert [tuple(r[k] for k in key) for r in ours] == [tuple(r[k] for k in key) for r in runs]
+    for a, b in zip(ours, runs):
+        for col in ("statistic", "p_raw", "p_value", "estimate"):
+            if a[col] or b[col]:
+                assert float(a[col]) == pytest.approx(float(b[col]), rel=1e-6), col
+
+
+def test_run_log_has_the_progress_of_each_stage(demo_run):
+    log = (demo_run / "run.log").read_text(encoding="utf-8")
+    for stage in ("classify", "spectra", "fit", "bootstrap", "compare"):
+        assert f"INFO {stage}: " in log and " done in " in log, stage

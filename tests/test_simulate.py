@@ -609,7 +609,7 @@ def test_cli_writes_spectra_and_vcf(tmp_path, capsys):
             "lognormal:mu=3,sigma=1",
             "--true-beneficial",
             "p=0.01,S=20",
-            "--vcf",
+            "--write-vcf",
             str(tmp_path / "cli"),
             "--outgroup",
             "sis:n=2",
@@ -637,11 +637,11 @@ def test_cli_writes_spectra_and_vcf(tmp_path, capsys):
 @pytest.mark.parametrize(
     "argv, msg",
     [
-        (["--population", "lake:N=100,n=9", "--vcf", "V"], "odd"),
+        (["--population", "lake:N=100,n=9", "--write-vcf", "V"], "odd"),
         (["--population", "lake:N=100,n=8", "--true-dfe", "gamma:shape=0.3"], "mean"),
         (["--population", "lake:N=100,n=8", "--history", "other=0:10"], "other"),
-        (["--population", "lake:N=100,n=8", "--vcf", "V", "--missing", "1.5"], "--missing"),
-        (["--population", "lake:N=100,n=8", "--vcf", "V", "--outgroup", "sis"], "--outgroup"),
+        (["--population", "lake:N=100,n=8", "--write-vcf", "V", "--missing", "1.5"], "--missing"),
+        (["--population", "lake:N=100,n=8", "--write-vcf", "V", "--outgroup", "sis"], "--outgroup"),
         (["--population", "lake:N=100,n=8", "--block-count", "0"], "--block-count"),
         (
             ["--population", "lake:N=100,n=8", "--class-sites", "10", "--block-count", "20"],
@@ -727,7 +727,7 @@ def test_genome_needs_more_0fold_than_4fold_sites(tmp_path, capsys):
             "200",
             "--block-count",
             "2",
-            "--vcf",
+            "--write-vcf",
             str(tmp_path / "g"),
             "--genome",
             "-o",

@@ -428,9 +428,7 @@ def test_cli_writes_tsv_and_outgroup(tmp_path):
             "--ancestral",
             "outgroup:islet",
             "--project",
-            "12",
-            "--project",
-            "highvale=10",
+            "12,highvale=10",
             "-o",
             str(out),
             "--tsv",
@@ -442,5 +440,53 @@ def test_cli_writes_tsv_and_outgroup(tmp_path):
     ss = read_spectra_json(out)
     assert {p: v.n for p, v in ss.populations.items()} == {"lowvale": 12, "highvale": 10}
     rows = tsv.read_text().splitlines()
-    assert rows[0] == "population\tclass\tn\tfolded\tcount\tsites"
+    assert rows[0] == "population\tclass\tn\tfolded\tderived_copies\tsite_count"
     assert len(rows) == 1 + 2 * 13 + 2 * 11
+
+
+def test_provenance_records_called_copies_and_reads_version_1(tmp_path, caplog):
+    """provenance.counts.called_copies_max is the most gene copies called at a usable
+    class site, recounted here with pysam (htslib) from the same VCF; a version-1 file
+    (input named 'popmap') is read with a warning and its input renamed."""
+    import pysam
+
+    ex = ROOT / "example_vcfs"
+    out = tmp_path / "s.json"
+    ss = build_spectra(ex / "tiny.vcf.gz", ex / "tiny.samples.tsv", ex / "tiny.sites.bed")
+    from driftband.spectra.io import write_spectra_json
+
+    write_spectra_json(ss, out)
+    pops = {}
+    for line in (ex / "tiny.samples.tsv").read_text().splitlines()[1:]:
+        s, p = line.split("\t")
+        pops.setdefault(p, []).append(s)
+    sites = set()
+    for line in (ex / "tiny.sites.bed").read_text().splitlines():
+        c, a, b, _k = line.split("\t")
+        sites.update((c, i) for i in range(int(a), int(b)))
+    best = dict.fromkeys(pops, 0)
+    with pysam.VariantFile(str(ex / "tiny.vcf.gz")) as vf:
+        for r in vf:
+            if (r.chrom, r.pos - 1) not in sites or len(r.alts or ()) > 1:
+                continue
+            if any(len(a) != 1 for a in (r.ref, *(r.alts or ()))):
+                continue
+            for p, members in pops.items():
+                k = sum(a is not None for s in members for a in r.samples[s]["GT"])
+                best[p] = max(best[p], k)
+    got = json.loads(out.read_text())["provenance"]["counts"]["called_copies_max"]
+    assert got == {p: best[p] for p in got} and set(got) == set(ss.populations)
+    doc = json.loads(out.read_text())
+    doc["schema_version"] = 1
+    doc["provenance"]["inputs"]["popmap"] = doc["provenance"]["inputs"].pop("samples")
+    old = tmp_path / "old.json"
+    old.write_text(json.dumps(doc))
+    with caplog.at_level("WARNING", logger="driftband"):
+        back = read_spectra_json(old)
+    assert "samples" in back.provenance["inputs"] and "popmap" not in back.provenance["inputs"]
+    assert any(
+        "old.json" in r.getMessage() and "version 1" in r.getMessage() for r in caplog.records
+    )
+    for name, pop in ss.populations.items():
+        for c, cs in pop.classes.items():
+            np.testing.assert_array_equal(back.populations[name].classes[c].sfs, cs.sfs)

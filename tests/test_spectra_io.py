@@ -74,7 +74,7 @@ def test_tsv_long_round_trip(tmp_path):
 def test_tsv_wide_fills_entry_zero(tmp_path):
     p = tmp_path / "w.tsv"
     p.write_text(
-        "population\tclass\tsites\tc0\tc1\tc2\tc3\tc4\n"
+        "population\tclass\tcallable_sites\tc0\tc1\tc2\tc3\tc4\n"
         "spring\t0fold\t1000\t\t10\t5\t3\t1\n"
         "spring\t4fold\t500\t\t20\t9\t6\t2\n"
     )
@@ -87,9 +87,26 @@ def test_tsv_wide_fills_entry_zero(tmp_path):
 
 def test_tsv_bad_number_names_line(tmp_path):
     p = tmp_path / "w.tsv"
-    p.write_text("population\tclass\tsites\tc0\tc1\na\t0fold\tx\t1\t2\n")
+    p.write_text("population\tclass\tcallable_sites\tc0\tc1\na\t0fold\tx\t1\t2\n")
     with pytest.raises(InputError, match=r"w.tsv:2"):
         read_spectra(p)
+
+
+@pytest.mark.parametrize(
+    "header, names",
+    [
+        ("population\tclass\tsites\tc0\tc1", ["'sites'", "callable_sites", "site_count"]),
+        ("population\tclass\tcount\tsites", ["'sites'"]),
+        ("population\tclass\tcount_index\tsite_count", ["'count_index'", "derived_copies"]),
+        ("population\tclass\tpi\tc0", ["wide layout", "long one"]),
+    ],
+)
+def test_tsv_with_old_or_unknown_columns_is_refused_naming_the_new_ones(tmp_path, header, names):
+    p = tmp_path / "old.tsv"
+    p.write_text(header + "\na\t0fold\t10\t1\n")
+    with pytest.raises(InputError, match=r"old.tsv:1") as err:
+        read_spectra(p)
+    assert all(n in str(err.value) for n in names)
 
 
 def test_projected_float_spectra_round_trip(tmp_path):

@@ -14,9 +14,11 @@ import logging
 import os
 import sys
 from collections.abc import Sequence
+from typing import NoReturn
 
 from .._io import output_set
 from .._parallel import interruptible, single_blas_thread
+from .._progress import console_filter, set_live
 from .._version import __version__
 from .._warnings import plain_warnings
 from ..exceptions import DriftbandError
@@ -50,9 +52,17 @@ def _available_subcommands() -> list:
     return mods
 
 
+class _Parser(argparse.ArgumentParser):
+    """An argument parser whose errors are one line (and exit code 2), like the tool's."""
+
+    def error(self, message: str) -> NoReturn:
+        """Print ``PROG: error: MESSAGE (see 'PROG --help')`` on stderr and exit 2."""
+        self.exit(2, f"{self.prog}: error: {_one_line(message)} (see '{self.prog} --help')\n")
+
+
 def get_parser() -> argparse.ArgumentParser:
     """Build the argument parser of the ``driftband`` command (all subcommands)."""
-    parser = argparse.ArgumentParser(
+    parser = _Parser(
         prog="driftband",
         description=(
             "Distribution of fitness effects of new mutations per population, and the share "
@@ -67,11 +77,26 @@ def get_parser() -> argparse.ArgumentParser:
     return parser
 
 
+class _ConsoleFormatter(logging.Formatter):
+    """``driftband: MESSAGE``, and ``driftband: warning: MESSAGE`` for warnings."""
+
+    def __init__(self) -> None:
+        super().__init__("driftband: %(message)s")
+
+    def format(self, record: logging.LogRecord) -> str:
+        text = super().format(record)
+        if record.levelno == logging.WARNING and not record.getMessage().startswith("warning:"):
+            text = text.replace("driftband: ", "driftband: warning: ", 1)
+        return text
+
+
 def _setup_logging(verbosity: int) -> None:
     level = logging.WARNING - 10 * min(verbosity, 2) + (10 if verbosity < 0 else 0)
     level = max(logging.DEBUG, min(logging.WARNING, level)) if verbosity >= 0 else logging.ERROR
     handler = logging.StreamHandler(sys.stderr)
-    handler.setFormatter(logging.Formatter("driftband: %(message)s"))
+    handler.setFormatter(_ConsoleFormatter())
+    handler.addFilter(console_filter)
+    set_live(verbosity >= 0 and sys.stderr.isatty())
     log.handlers[:] = [handler]
     log.setLevel(level)
     log.propagate = False

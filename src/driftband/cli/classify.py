@@ -5,6 +5,7 @@ from __future__ import annotations
 import argparse
 import logging
 import os
+import sys
 
 from .._io import after_commit, check_outputs
 from ..exceptions import OptionError
@@ -99,13 +100,11 @@ def run(args: argparse.Namespace) -> int:
     n = write_bed4(args.output, result.rows(), force=args.force)
     if args.summary is not None:
         write_summary(result, args.summary, force=args.force)
-    after_commit(
-        lambda: log.info(
-            "wrote %d intervals: %d 0-fold and %d 4-fold sites to %s",
-            n,
-            result.total("0fold"),
-            result.total("4fold"),
-            args.output,
+    if not args.quiet:
+        for line in result.summary_lines():
+            print(line, file=sys.stderr)
+        what = f"wrote {args.output} ({n:,} intervals)" + (
+            f" and {args.summary}" if args.summary else ""
         )
-    )
+        after_commit(lambda: print(what, file=sys.stderr))
     return 0

@@ -69,7 +69,8 @@ def add_parser(subparsers: Subparsers) -> None:
     p.add_argument(
         "--beneficial",
         action="store_true",
-        help="add a beneficial point mass (p_b, S_b > 0) to every family",
+        help="add a beneficial point mass (beneficial_fraction at beneficial_S > 0) to "
+        "every family",
     )
     p.add_argument(
         "--misorientation",

@@ -5,7 +5,6 @@ from __future__ import annotations
 import argparse
 import logging
 import os
-import sys
 from typing import Any
 
 from .._io import after_commit, atomic_output, check_outputs, file_record, provenance
@@ -114,7 +113,6 @@ def run(args: argparse.Namespace) -> int:
     if md_text is not None:
         with atomic_output(args.summary, force=args.force) as fh:
             fh.write(md_text)
-    after_commit(
-        lambda: print(os.path.abspath(args.output), file=sys.stderr if args.quiet else sys.stdout)
-    )
+    if not args.quiet:
+        after_commit(lambda: print(os.path.abspath(args.output)))
     return 0

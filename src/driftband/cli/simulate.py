@@ -24,13 +24,13 @@ rate of 2N*mu per site (theta = 4N*mu) with s drawn from the DFE (0fold) or s = 
 After a burn-in at the ancestral size (default 10N generations) and an optional size
 history, n gene copies are sampled per population and their spectra written (entry 0:
 monomorphic ancestral sites; entry n: sites fixed in the sample, plus substitutions of the
-last --divergence-generations generations). With --vcf the study is also written as a
+last --divergence-generations generations). With --write-vcf the study is also written as a
 VCF on synthetic chromosomes, with its sites BED and sample table, and with --genome also
 as a reference FASTA and GFF3 of real codons whose classification gives back that BED.
 
 Conventions:
   --population NAME:N=SIZE,n=COPIES[,theta=T]   N = present diploid size, n = sampled
-      gene copies (even for --vcf); theta overrides --theta for this population (taken
+      gene copies (even for --write-vcf); theta overrides --theta for this population (taken
       at its ancestral size).
   --history [NAME=]AGO:SIZE,...   sizes in generations BEFORE the sample: SIZE holds
       from AGO generations ago back to the next older change; the oldest size is the
@@ -52,7 +52,7 @@ driftband simulate --population lake:N=1000,n=20 --true-dfe gamma:shape=0.3,mean
 # "only Ne differs": a large and a small population, with divergence and a VCF
 driftband simulate --population lake:N=2000,n=20 --population spring:N=200,n=16 \\
     --true-dfe gamma:shape=0.3,mean=400 --divergence-generations 4000 \\
-    --class-sites-0fold 200000 --class-sites-4fold 80000 --vcf study --genome \\
+    --class-sites-0fold 200000 --class-sites-4fold 80000 --write-vcf study --genome \\
     --outgroup sister:n=4 --missing 0.02 --ref-derived 0.05 --seed 7 -o study.spectra.json
 
 # a four-fold expansion 500 generations ago, beneficial mutations 1 %
@@ -184,7 +184,7 @@ def add_parser(subparsers: Subparsers) -> None:
         "--tsv", default=None, metavar="SPECTRA.tsv", help="also write the long spectra table"
     )
     o.add_argument(
-        "--vcf",
+        "--write-vcf",
         default=None,
         metavar="PREFIX",
         help="also write PREFIX.vcf.gz (+ .tbi), PREFIX.sites.bed, PREFIX.samples.tsv",
@@ -192,7 +192,7 @@ def add_parser(subparsers: Subparsers) -> None:
     o.add_argument(
         "--genome",
         action="store_true",
-        help="with --vcf, also write the reference PREFIX.fa (+ .fai) and its "
+        help="with --write-vcf, also write the reference PREFIX.fa (+ .fai) and its "
         "genes PREFIX.gff3 (real codons: classifying them gives back "
         "PREFIX.sites.bed); needs at least as many 0fold as 4fold sites",
     )
@@ -224,7 +224,7 @@ def add_parser(subparsers: Subparsers) -> None:
         help="mean read depth of the VCF genotypes (default: 20)",
     )
     add_common_arguments(p)
-    p.set_defaults(runner=run, output_dests=("vcf",))
+    p.set_defaults(runner=run, output_dests=("write_vcf",))
 
 
 def _parse_outgroup(text: str | None) -> tuple[str, int] | None:
@@ -256,8 +256,8 @@ def run(args: argparse.Namespace) -> int:
     """Run ``driftband simulate`` from parsed arguments; returns the exit code."""
     from .. import simulate as sim
 
-    if args.output is None and args.vcf is None:
-        raise OptionError("nothing to write: give -o SPECTRA.json and/or --vcf PREFIX")
+    if args.output is None and args.write_vcf is None:
+        raise OptionError("nothing to write: give -o SPECTRA.json and/or --write-vcf PREFIX")
     pops = sim.build_populations(args.population, args.history)
     dfe = sim.parse_dfe(args.true_dfe, args.true_beneficial)
     sites = {
@@ -268,8 +268,8 @@ def run(args: argparse.Namespace) -> int:
         if L < 1:
             raise OptionError(f"--class-sites for {c}: {L} must be >= 1")
     outgroup = _parse_outgroup(args.outgroup)
-    if args.genome and args.vcf is None:
-        raise OptionError("--genome needs --vcf PREFIX (the genome is written beside it)")
+    if args.genome and args.write_vcf is None:
+        raise OptionError("--genome needs --write-vcf PREFIX (the genome is written beside it)")
     vcf_opts = {
         "missing": args.missing,
         "outgroup": outgroup,
@@ -280,8 +280,8 @@ def run(args: argparse.Namespace) -> int:
     }
     # Check every output (and the VCF options) before the simulation runs.
     outputs = [args.output, args.tsv]
-    if args.vcf is not None:
-        outputs += list(sim.study_paths(args.vcf, args.genome).values())
+    if args.write_vcf is not None:
+        outputs += list(sim.study_paths(args.write_vcf, args.genome).values())
         sim.check_vcf_options(pops, args.missing, outgroup, args.ref_derived, args.depth)
         if args.genome:
             import numpy as np
@@ -315,9 +315,9 @@ def run(args: argparse.Namespace) -> int:
         study,
         args.output,
         args.tsv,
-        args.vcf,
+        args.write_vcf,
         force=args.force,
-        **(vcf_opts if args.vcf is not None else {}),
+        **(vcf_opts if args.write_vcf is not None else {}),
     )
     after_commit(lambda: log.info("seed %d; wrote %s", study.seed, ", ".join(written.values())))
     return 0

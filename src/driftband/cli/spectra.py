@@ -4,7 +4,6 @@ from __future__ import annotations
 
 import argparse
 import sys
-import time
 
 from .._io import after_commit, check_outputs
 from ..exceptions import OptionError
@@ -135,7 +134,7 @@ def add_parser(subparsers: Subparsers) -> argparse.ArgumentParser:
     p.add_argument(
         "--tsv",
         metavar="TSV",
-        help="also write the long table population, class, n, folded, count, sites",
+        help="also write the long table population, class, n, folded, derived_copies, site_count",
     )
     x = p.add_argument_group(
         "parallel counting (indexed VCF/BCF or VCF Zarr; results do not depend on these)"
@@ -187,35 +186,6 @@ def parse_project(items: list[str] | None) -> int | dict[str, int] | None:
     return out
 
 
-class _Progress:
-    """A progress line on stderr, only when it is a terminal."""
-
-    def __init__(self, enabled: bool) -> None:
-        self.enabled = enabled and sys.stderr.isatty()
-        self.t0 = time.monotonic()
-        self.last = 0.0
-
-    def __call__(self, done: int, total: int, records: int) -> None:
-        if not self.enabled:
-            return
-        now = time.monotonic()
-        if now - self.last < 0.2 and done != total:
-            return
-        self.last = now
-        if total:
-            w = 30
-            k = int(w * done / total)
-            bar = f"[{'#' * k}{'.' * (w - k)}] {done}/{total} regions"
-        else:
-            bar = "[streaming]"
-        sys.stderr.write(f"\rdriftband spectra: {bar} {records:,} records {now - self.t0:.0f}s ")
-        sys.stderr.flush()
-
-    def close(self) -> None:
-        if self.enabled:
-            sys.stderr.write("\n")
-
-
 def run(args: argparse.Namespace) -> int:
     """Run ``driftband spectra``."""
     from ..spectra.build import build_spectra
@@ -228,30 +198,25 @@ def run(args: argparse.Namespace) -> int:
         raise OptionError("-o and --tsv must be different files")
     check_outputs(outs, args.force)
     project = parse_project(args.project)
-    bar = _Progress(not args.quiet)
-    try:
-        ss = build_spectra(
-            args.vcf,
-            args.samples,
-            args.sites,
-            callable_mask=args.callable_mask,
-            ancestral=args.ancestral,
-            project=project,
-            block_size=args.block_size,
-            blocks=args.blocks,
-            regions=args.regions,
-            min_gq=args.min_gq,
-            min_dp=args.min_dp,
-            pass_only=args.pass_only,
-            progress=bar,
-            region_size=(DEFAULT_REGION_SIZE if args.region_size is None else args.region_size),
-            workers=args.workers,
-            scheduler=args.scheduler,
-            exclude_lowercase_ancestral=args.exclude_lowercase_ancestral,
-            all_sites_callable=args.all_sites_callable,
-        )
-    finally:
-        bar.close()
+    ss = build_spectra(
+        args.vcf,
+        args.samples,
+        args.sites,
+        callable_mask=args.callable_mask,
+        ancestral=args.ancestral,
+        project=project,
+        block_size=args.block_size,
+        blocks=args.blocks,
+        regions=args.regions,
+        min_gq=args.min_gq,
+        min_dp=args.min_dp,
+        pass_only=args.pass_only,
+        region_size=(DEFAULT_REGION_SIZE if args.region_size is None else args.region_size),
+        workers=args.workers,
+        scheduler=args.scheduler,
+        exclude_lowercase_ancestral=args.exclude_lowercase_ancestral,
+        all_sites_callable=args.all_sites_callable,
+    )
     write_spectra_json(ss, args.output, force=args.force)
     if args.tsv:
         write_spectra_tsv(ss, args.tsv, force=args.force)

@@ -18,6 +18,7 @@ import numpy as np
 
 from .._options import COMMAND_LINE, OptionSource
 from .._parallel import parallel_map
+from .._progress import Progress
 from ..defaults import COMPARE_TESTS
 from ..exceptions import InputError
 from ..fit.options import FitOptions
@@ -134,6 +135,7 @@ def adjust_pvalues(rows: list[ComparisonRow], method: str = "holm") -> None:
         _rej, padj, _a, _b = multipletests([r.p_value for r in sel], method=method)
         for r, p in zip(sel, padj):
             r.p_adjusted = float(p)
+            r.adjust = method
 
 
 def _warn_floor(rows: list[ComparisonRow], adjust: str, alpha: float = 0.05) -> None:
@@ -246,11 +248,21 @@ def compare_fits(
     for a, b in chosen:
         log.info("compare: %s and %s (%s model; %s)", a, b, dfe.name, ", ".join(wanted))
     tasks = [(by_name[a], by_name[b], dfe, options, mu, (t,)) for a, b in chosen for t in wanted]
-    if len(tasks) > 1 and (workers is None or workers > 1):
-        parts = parallel_map(_compare_task, tasks, workers=workers, name="compare")
-    else:
-        cache: dict[int, DfeExpectation] = {}
-        parts = [compare_pair(*t, cache) for t in tasks]
+    with Progress("compare", len(tasks), "tests") as prog:
+        if len(tasks) > 1 and (workers is None or workers > 1):
+            parts = parallel_map(
+                _compare_task,
+                tasks,
+                workers=workers,
+                name="compare",
+                on_result=lambda _i, _r: prog.advance(),
+            )
+        else:
+            cache: dict[int, DfeExpectation] = {}
+            parts = []
+            for t in tasks:
+                parts.append(compare_pair(*t, cache))
+                prog.advance()
     rows = [r for part in parts for r in part]
     adjust_pvalues(rows, adjust)
     _warn_floor(rows, adjust)

@@ -77,7 +77,7 @@ def boundary_parameters(model: DfeModel, x: np.ndarray) -> list[str]:
     return [
         n
         for n, side, _v in model.at_bounds(x)
-        if side == "lower" and (n == "p_b" or n.startswith("mass_"))
+        if side == "lower" and (n == "beneficial_fraction" or n.startswith("mass_"))
     ]
 
 

@@ -24,6 +24,7 @@ class ComparisonRow:
     df: float = float("nan")
     p_value: float = float("nan")
     p_adjusted: float = float("nan")
+    adjust: str = ""
     estimate: float = float("nan")
     ci_low: float = float("nan")
     ci_high: float = float("nan")
@@ -45,6 +46,7 @@ COLUMNS = [
     "df_linkage",
     "p_value",
     "p_adjusted",
+    "adjust",
     "p_at_floor",
     "estimate",
     "ci_low",

@@ -70,10 +70,10 @@ def mk_table(data: SpectrumPair) -> dict[str, float]:
     table = np.rint([[dn, ds], [pn, ps]]).astype(int)
     odds, p = stats.fisher_exact(table)
     return {
-        "P_N": pn,
-        "P_S": ps,
-        "D_N": dn,
-        "D_S": ds,
+        "polymorphic_selected": pn,
+        "polymorphic_neutral": ps,
+        "divergent_selected": dn,
+        "divergent_neutral": ds,
         "fisher_odds_ratio": float(odds),
         "fisher_p": float(p),
     }
@@ -261,10 +261,15 @@ def adaptive_summary(data: SpectrumPair, fit: FitResult) -> dict[str, Any] | Non
     mk = mk_table(data)
     return {
         "mk": mk,
-        "alpha_classic": alpha_classic(mk["P_N"], mk["P_S"], mk["D_N"], mk["D_S"]),
+        "alpha_classic": alpha_classic(
+            mk["polymorphic_selected"],
+            mk["polymorphic_neutral"],
+            mk["divergent_selected"],
+            mk["divergent_neutral"],
+        ),
         "alpha_asymptotic": alpha_asymptotic(data),
         "alpha_dfe": _dfe_alpha(data, fit),
-        "caveat": small_count_caveat(mk["D_N"], mk["D_S"]),
+        "caveat": small_count_caveat(mk["divergent_selected"], mk["divergent_neutral"]),
     }
 
 

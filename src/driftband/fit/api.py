@@ -18,6 +18,7 @@ from typing import Any
 
 from .._options import COMMAND_LINE, OptionSource
 from .._parallel import parallel_map
+from .._progress import Progress
 from ..exceptions import InputError
 from ..prf.dfe import DfeExpectation
 from .likelihood import SpectrumPair
@@ -280,7 +281,16 @@ def fit_spectra(
         log.info("fit: %s (n = %d): %s", name, data.n, ", ".join(m.name for m in options.models))
     if scheduler is None and len(tasks) <= 1:
         workers = 1
-    done = iter(parallel_map(_fit_task, tasks, workers=workers, scheduler=scheduler, name="fit"))
+    with Progress("fit", len(tasks), "models fitted") as prog:
+        results = parallel_map(
+            _fit_task,
+            tasks,
+            workers=workers,
+            scheduler=scheduler,
+            name="fit",
+            on_result=lambda _i, _r: prog.advance(),
+        )
+    done = iter(results)
     fits = []
     for name, dataset, data in pooled:
         pf = PopulationFit(name, data, {}, dataset=dataset, headline_method=options.headline)

@@ -19,6 +19,7 @@ import numpy as np
 
 from .._options import COMMAND_LINE, OptionSource
 from .._parallel import parallel_map, resolve_workers
+from .._progress import Progress
 from ..defaults import MIN_BLOCKS
 from ..exceptions import DriftbandWarning, InputError
 from ..prf.dfe import DfeExpectation
@@ -209,7 +210,7 @@ def _replicate_task(args: _ReplicateBatch) -> list[dict[str, Any]]:
                 )
             rep[m.name] = {
                 "params": f.params,
-                "eps": f.eps,
+                "misorientation_rate": f.eps,
                 "shares": f.shares.tolist(),
                 "fixation_ratio": f.fixation_ratio,
                 "theta": f.theta,
@@ -343,9 +344,16 @@ def bootstrap_fits(
     log.info("bootstrap: %d replicates x %d populations", replicates, len(fits))
     if scheduler is None and len(tasks) <= 1:
         workers = 1
-    results = parallel_map(
-        _replicate_task, tasks, workers=workers, scheduler=scheduler, name="bootstrap"
-    )
+    sizes = [len(t[6]) * len(t[7].models) for t in tasks]
+    with Progress("bootstrap", sum(sizes), "refits") as prog:
+        results = parallel_map(
+            _replicate_task,
+            tasks,
+            workers=workers,
+            scheduler=scheduler,
+            name="bootstrap",
+            on_result=lambda i, _r: prog.advance(sizes[i]),
+        )
     per_pop: dict[int, list[dict[str, Any]]] = {}
     for k, res in zip(owners, results):
         per_pop.setdefault(k, []).extend(res)
@@ -427,7 +435,7 @@ def _summarise(f: Any, reps: list[dict[str, Any] | None], level: float) -> Model
     shares = shares.reshape(B, len(f.shares))
     converged = np.array([bool(r and r["success"]) for r in reps], dtype=bool)
     params = {p: col(lambda r, p=p: r["params"][p]) for p in f.params}
-    params["eps"] = col(lambda r: r["eps"])
+    params["misorientation_rate"] = col(lambda r: r["misorientation_rate"])
     params["fixation_ratio"] = col(lambda r: r["fixation_ratio"])
     for key in ALPHA_KEYS:
         if any(r and key in r for r in reps):

@@ -1,8 +1,8 @@
 """Fit files (JSON) and the band table (TSV).
 
-The fit file, schema ``driftband-fit`` version 1::
+The fit file, schema ``driftband-fit`` version 3::
 
-    {"schema": "driftband-fit", "schema_version": 1,
+    {"schema": "driftband-fit", "schema_version": 3,
      "options": {...FitOptions...},
      "populations": {
         "lake": {"dataset": "", "best_model": "gamma",
@@ -10,7 +10,8 @@ The fit file, schema ``driftband-fit`` version 1::
                           "sites_neutral": ..., "sites_selected": ...,
                           "fixed_neutral": ..., "fixed_selected": ...},
                  "aic_table": [...],
-                 "models": {"gamma": {...FitResult.to_dict()...}, ...},
+                 "models": {"gamma": {"params": {"shape": ..., "mean_abs_S": ...},
+                                      "misorientation_rate": ..., ...}, ...},
                  "bootstrap": {...}}},
      "provenance": {...}}
 
@@ -25,6 +26,7 @@ from __future__ import annotations
 
 import csv
 import json
+import logging
 import os
 from dataclasses import dataclass, field
 from typing import Any
@@ -37,9 +39,12 @@ from ..exceptions import InputError
 from .options import FitOptions
 from .results import PopulationFit
 
+log = logging.getLogger("driftband")
+
 __all__ = [
     "BANDS_COLUMNS",
     "FIT_SCHEMA",
+    "RENAMED_KEYS",
     "FitFile",
     "band_label",
     "band_rows",
@@ -50,16 +55,34 @@ __all__ = [
     "read_fit_files",
     "read_fit_json",
     "read_fits",
+    "upgrade_fit_doc",
     "write_bands_tsv",
     "write_fit_json",
 ]
 
 FIT_SCHEMA = "driftband-fit"
 #: Version 2 keeps every bootstrap replicate in its place (failed ones as null, with a
-#: ``converged`` mask), adds the model-averaged shares and the ``headline``; version 1
-#: files are still read.
-FIT_SCHEMA_VERSION = 2
-FIT_SCHEMA_VERSIONS_READ = (1, 2)
+#: ``converged`` mask), adds the model-averaged shares and the ``headline``. Version 3
+#: names the parameters and counts in words (:data:`RENAMED_KEYS`). Versions 1 and 2
+#: are still read, their keys translated.
+FIT_SCHEMA_VERSION = 3
+FIT_SCHEMA_VERSIONS_READ = (1, 2, 3)
+#: Keys (and parameter names in ``at_bounds``) of fit files before version 3 -> now.
+RENAMED_KEYS = {
+    "eps": "misorientation_rate",
+    "eps_free": "misorientation_free",
+    "p_b": "beneficial_fraction",
+    "S_b": "beneficial_S",
+    "mean_S": "mean_abs_S",
+    "log_mean": "mean_log_abs_S",
+    "log_sd": "sd_log_abs_S",
+    "nuisance": "nuisance_factors",
+    "x": "unconstrained_params",
+    "P_N": "polymorphic_selected",
+    "P_S": "polymorphic_neutral",
+    "D_N": "divergent_selected",
+    "D_S": "divergent_neutral",
+}
 #: Columns of ``bands.tsv``.
 BANDS_COLUMNS = [
     "population",
@@ -127,7 +150,55 @@ def read_fit_json(path: str | os.PathLike) -> dict[str, Any]:
     """
     doc = load_json(path, "fit JSON file")
     check_fit_schema(doc, path)
-    return doc
+    return upgrade_fit_doc(doc, path)
+
+
+def upgrade_fit_doc(doc: dict[str, Any], path: str | os.PathLike | None = None) -> dict[str, Any]:
+    """A fit document of an older schema version with its keys translated to this one.
+
+    Keys of :data:`RENAMED_KEYS` are renamed wherever they occur (the provenance
+    excepted), and so are the parameter names listed under ``at_bounds``; a warning says
+    that the file was translated. Documents of the current version are returned as they
+    are.
+
+    Parameters
+    ----------
+    doc : dict
+        A parsed fit file whose schema has been checked (:func:`check_fit_schema`).
+    path : path-like, optional
+        Its file, named in the warning.
+
+    Returns
+    -------
+    dict
+    """
+    version = doc.get("schema_version")
+    if version == FIT_SCHEMA_VERSION:
+        return doc
+
+    def walk(o: Any, key: str = "") -> Any:
+        if isinstance(o, dict):
+            return {
+                RENAMED_KEYS.get(k, k): (v if k == "provenance" else walk(v, k))
+                for k, v in o.items()
+            }
+        if isinstance(o, list):
+            if key == "at_bounds":
+                return [RENAMED_KEYS.get(v, v) if isinstance(v, str) else v for v in o]
+            return [walk(v) for v in o]
+        return o
+
+    out = walk(doc)
+    out["schema_version"] = FIT_SCHEMA_VERSION
+    log.warning(
+        "%s: fit file of schema version %s (an older driftband), read with its keys "
+        "translated to version %d (e.g. eps -> misorientation_rate, p_b -> "
+        "beneficial_fraction); rerun 'driftband fit' to write the current version",
+        os.fspath(path) if path is not None else "fit document",
+        version,
+        FIT_SCHEMA_VERSION,
+    )
+    return out
 
 
 def check_fit_schema(doc: Any, path: str | os.PathLike | None = None) -> None:
@@ -290,7 +361,7 @@ def check_fit_values(pf: PopulationFit, path: str | os.PathLike) -> None:
         if fr.success and not np.all(np.isfinite(fr.shares)):
             raise InputError(f'{wm} "shares": a converged fit needs every share (no null)', path)
         if np.isfinite(fr.eps) and not 0 <= fr.eps <= 1:
-            raise InputError(f'{wm} "eps": {fr.eps:g} is not in [0, 1]', path)
+            raise InputError(f'{wm} "misorientation_rate": {fr.eps:g} is not in [0, 1]', path)
     b = pf.bootstrap
     if b is not None:
         for name, mb in b.models.items():

@@ -41,10 +41,10 @@ class FitResult:
     ----------
     population, model : str
     params : dict of str to float
-        DFE parameters on the natural scale (``shape``, ``mean_S`` = mean of −S, ...).
+        DFE parameters on the natural scale (``shape``, ``mean_abs_S`` = mean of −S, ...).
     stderr : dict of str to float
         Asymptotic standard errors (NaN where the Hessian is not usable, for a parameter
-        at a bound, and for ``S_b`` when ``p_b`` is at its bound).
+        at a bound, and for ``beneficial_S`` when ``beneficial_fraction`` is at its bound).
     eps : float
         Ancestral misidentification rate (estimated or fixed).
     theta : float
@@ -125,10 +125,10 @@ class FitResult:
             "model": self.model,
             "params": self.params,
             "stderr": self.stderr,
-            "eps": self.eps,
-            "eps_free": self.eps_free,
+            "misorientation_rate": self.eps,
+            "misorientation_free": self.eps_free,
             "theta": self.theta,
-            "nuisance": self.nuisance.tolist(),
+            "nuisance_factors": self.nuisance.tolist(),
             "equilibrium": self.equilibrium,
             "loglik": self.loglik,
             "n_params": self.n_params,
@@ -149,7 +149,7 @@ class FitResult:
                 "selected": self.expected_selected.tolist(),
             },
             "pearson_residuals": {k: v.tolist() for k, v in res.items()},
-            "x": None if self.x is None else np.asarray(self.x).tolist(),
+            "unconstrained_params": None if self.x is None else np.asarray(self.x).tolist(),
             "optimizer": {"starts": self.n_starts, "evaluations": self.n_eval},
         }
 
@@ -182,10 +182,10 @@ class FitResult:
             model=str(d["model"]),
             params={str(k): _nan(v) for k, v in (d.get("params") or {}).items()},
             stderr={str(k): _nan(v) for k, v in (d.get("stderr") or {}).items()},
-            eps=_nan(d["eps"]),
-            eps_free=bool(d["eps_free"]),
+            eps=_nan(d["misorientation_rate"]),
+            eps_free=bool(d["misorientation_free"]),
             theta=_nan(d["theta"]),
-            nuisance=arr(d["nuisance"]),
+            nuisance=arr(d["nuisance_factors"]),
             loglik=_nan(d["loglik"]),
             n_params=int(d["n_params"]),
             aic=_nan(d["aic"]),
@@ -198,7 +198,7 @@ class FitResult:
             observed_selected=arr(obs["selected"]),
             expected_neutral=arr(exp["neutral"]),
             expected_selected=arr(exp["selected"]),
-            x=None if d.get("x") is None else arr(d["x"]),
+            x=None if d.get("unconstrained_params") is None else arr(d["unconstrained_params"]),
             n_starts=int(opt.get("starts", 0)),
             n_eval=int(opt.get("evaluations", 0)),
             equilibrium=bool(d.get("equilibrium", False)),
@@ -209,7 +209,9 @@ class FitResult:
 
     def beneficial(self) -> tuple[float, float]:
         """(p_b, S_b) of the beneficial class; (0, NaN) without one."""
-        return self.params.get("p_b", 0.0), self.params.get("S_b", float("nan"))
+        return self.params.get("beneficial_fraction", 0.0), self.params.get(
+            "beneficial_S", float("nan")
+        )
 
 
 def _nan(v: Any) -> float:
@@ -223,9 +225,9 @@ def _deleterious_ratio(d: dict[str, Any]) -> float:
     if "fixation_ratio_deleterious" in d:
         return _nan(d["fixation_ratio_deleterious"])
     r, params = _nan(d["fixation_ratio"]), d.get("params") or {}
-    if "p_b" not in params:
+    if "beneficial_fraction" not in params:
         return r
-    p_b, s_b = _nan(params["p_b"]), _nan(params["S_b"])
+    p_b, s_b = _nan(params["beneficial_fraction"]), _nan(params["beneficial_S"])
     return (r - p_b * float(kimura_u(s_b))) / (1.0 - p_b)
 
 
@@ -238,7 +240,7 @@ def _natural_vector(obj: Objective, x: np.ndarray) -> np.ndarray:
 
 
 def _stderr(obj: Objective, x: np.ndarray) -> dict[str, float]:
-    names = list(obj.model.param_names) + (["eps"] if obj.free_eps else [])
+    names = list(obj.model.param_names) + (["misorientation_rate"] if obj.free_eps else [])
     nan = {k: float("nan") for k in names}
     try:
         H = central_hessian(obj, x)
@@ -271,8 +273,9 @@ def params_at_bounds(obj: Objective, x: np.ndarray) -> list[tuple[str, str, floa
     Returns
     -------
     list of (str, str, float)
-        Natural-scale name (``shape``, ``log_sd``, ``p_b``, ``mass_2``, ``eps``, ...),
-        ``"lower"`` or ``"upper"``, and the bound on the natural scale.
+        Natural-scale name (``shape``, ``sd_log_abs_S``, ``beneficial_fraction``,
+        ``mass_2``, ``misorientation_rate``, ...), ``"lower"`` or ``"upper"``, and the
+        bound on the natural scale.
     """
     xd, _e = obj.split(x)
     out = obj.model.at_bounds(xd)
@@ -281,7 +284,7 @@ def params_at_bounds(obj: Objective, x: np.ndarray) -> list[tuple[str, str, floa
         side = at_bound(float(x[-1]), b)
         if side is not None:
             v = b[0] if side == "lower" else b[1]
-            out.append(("eps", side, float(1.0 / (1.0 + np.exp(-v)))))
+            out.append(("misorientation_rate", side, float(1.0 / (1.0 + np.exp(-v)))))
     return out
 
 
@@ -294,8 +297,8 @@ def _bound_message(label: str, found: list[tuple[str, str, float]]) -> str:
         f"{'it' if len(names) == 1 else 'them'} inside the range the fit allows, so no "
         "standard error is reported (a Wald s.e. is not valid at a bound)"
     )
-    if "p_b" in names:
-        text += "; with p_b at its bound S_b is not identified either"
+    if "beneficial_fraction" in names:
+        text += "; with beneficial_fraction at its bound beneficial_S is not identified either"
     return text
 
 
@@ -377,7 +380,9 @@ def fit_model(
     se = _stderr(obj, xbest) if stderr else {}
     bound = params_at_bounds(obj, xbest)
     names = tuple(n for n, _s, _v in bound)
-    unset = names + (("S_b",) if "p_b" in names and "S_b" not in names else ())
+    unset = names + (
+        ("beneficial_S",) if "beneficial_fraction" in names and "beneficial_S" not in names else ()
+    )
     se = {k: float("nan") if k in unset else v for k, v in se.items()}
     if bound and stderr:
         # once per point fit; bootstrap refits (stderr=False) stay quiet

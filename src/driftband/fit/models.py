@@ -53,7 +53,7 @@ class DfeModel:
     ----------
     family : {"gamma", "lognormal", "discrete"}
     beneficial : bool
-        Add a fraction ``p_b`` of beneficial mutations at ``S = S_b > 0``.
+        Add a fraction ``beneficial_fraction`` of beneficial mutations at ``S = beneficial_S > 0``.
     edges_nes : tuple of float
         Band edges on |Ne·s| for the discrete family (first edge 0).
     """
@@ -77,12 +77,12 @@ class DfeModel:
     def param_names(self) -> tuple[str, ...]:
         """Names of the DFE parameters, in the order of the vector."""
         if self.family == "gamma":
-            base: tuple[str, ...] = ("shape", "mean_S")
+            base: tuple[str, ...] = ("shape", "mean_abs_S")
         elif self.family == "lognormal":
-            base = ("log_mean", "log_sd")
+            base = ("mean_log_abs_S", "sd_log_abs_S")
         else:
             base = tuple(f"mass_{k}" for k in range(len(self.edges_nes)))
-        return base + (("p_b", "S_b") if self.beneficial else ())
+        return base + (("beneficial_fraction", "beneficial_S") if self.beneficial else ())
 
     @property
     def n_free(self) -> int:
@@ -126,7 +126,7 @@ class DfeModel:
             masses = [n for n in self.param_names if n.startswith("mass_")]
             out += [(n, "lower", 0.0) for n in masses if nat[n] < MASS_TOL]
             coords = list(range(self.n_free - 2, self.n_free)) if self.beneficial else []
-            names = ["p_b", "S_b"] if self.beneficial else []
+            names = ["beneficial_fraction", "beneficial_S"] if self.beneficial else []
         else:
             coords = list(range(self.n_free))
             names = list(self.param_names)
@@ -192,9 +192,9 @@ class DfeModel:
         Examples
         --------
         >>> m = DfeModel("gamma")
-        >>> x = m.from_natural({"shape": 0.3, "mean_S": 200.0})
+        >>> x = m.from_natural({"shape": 0.3, "mean_abs_S": 200.0})
         >>> {k: round(v, 6) for k, v in m.natural(x).items()}
-        {'shape': 0.3, 'mean_S': 200.0}
+        {'shape': 0.3, 'mean_abs_S': 200.0}
         """
         nat = np.array([values.get(n, np.nan) for n in self.param_names], dtype=float)
         k = len(self.param_names) - (2 if self.beneficial else 0)

@@ -17,6 +17,7 @@ from typing import Any
 from ..effect import convention_text
 from ..spectra.callable import CALLABLE_SOURCES
 from ._plots import bands_figure, spectra_figure
+from ._spectra_made import spectra_made_rows
 from ._text import (
     ALPHA_EXPLAINED,
     ALPHA_NEGATIVE_NOTE,
@@ -393,11 +394,11 @@ def _params_table(v: PopulationView) -> str:
         se = f.get("stderr") or {}
         ci = v.model_ci(m).get("params_ci") or {}
         items = list((f.get("params") or {}).items())
-        if f.get("eps_free"):
-            items.append(("eps", f.get("eps")))
+        if f.get("misorientation_free"):
+            items.append(("misorientation_rate", f.get("misorientation_rate")))
         items.append(("theta", f.get("theta")))
         items.append(("fixation_ratio", f.get("fixation_ratio")))
-        if "p_b" in (f.get("params") or {}) and "fixation_ratio_deleterious" in f:
+        if "beneficial_fraction" in (f.get("params") or {}) and "fixation_ratio_deleterious" in f:
             items.append(("fixation_ratio_deleterious", f.get("fixation_ratio_deleterious")))
         bound = set(f.get("at_bounds") or [])
         for name, val in items:
@@ -523,16 +524,16 @@ def _adaptive(v: PopulationView, view: ReportView) -> str:
                 (
                     [
                         f"{view.selected} (selected)",
-                        _num(fint(mk.get("D_N"))),
-                        _num(fint(mk.get("P_N"))),
+                        _num(fint(mk.get("divergent_selected"))),
+                        _num(fint(mk.get("polymorphic_selected"))),
                     ],
                     "",
                 ),
                 (
                     [
                         f"{view.neutral} (neutral)",
-                        _num(fint(mk.get("D_S"))),
-                        _num(fint(mk.get("P_S"))),
+                        _num(fint(mk.get("divergent_neutral"))),
+                        _num(fint(mk.get("polymorphic_neutral"))),
                     ],
                     "",
                 ),
@@ -797,6 +798,19 @@ def _provenance(view: ReportView) -> str:
                 "Callable sites and polarisation (from the spectra files)",
                 ["Spectra", "Callable sites", "Polarisation", "Dropped sites"],
                 _sites_rows(view),
+            )
+        )
+        made = [
+            ([key, item, value], "")
+            for key, doc in view.spectra_docs.items()
+            for item, value in spectra_made_rows(doc)
+        ]
+        out.append(
+            _table(
+                "prov-spectra",
+                "How the spectra were made (options, projection, blocks, what was dropped)",
+                ["Spectra", "Item", "Value"],
+                made,
             )
         )
     files = _files(view.provenance, "report")

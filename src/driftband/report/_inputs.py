@@ -19,7 +19,7 @@ from ..compare.table import COLUMNS
 from ..effect import DEFAULT_EFFECT, check_effect
 from ..exceptions import InputError
 from ..fit.io import check_fit_schema, fits_from_doc, read_fit_json
-from ..spectra.io import check_spectra_schema
+from ..spectra.io import check_spectra_schema, upgrade_spectra_doc
 
 __all__ = [
     "NUMERIC_COMPARE_COLUMNS",
@@ -32,11 +32,18 @@ __all__ = [
 ]
 
 #: Columns of compare.tsv read as numbers (empty or ``nan`` → None).
-NUMERIC_COMPARE_COLUMNS = tuple(
-    c
-    for c in COLUMNS
-    if c not in ("population_a", "population_b", "test", "model", "p_at_floor", "note")
+#: Columns of compare.tsv that hold words or flags, not numbers.
+TEXT_COMPARE_COLUMNS = (
+    "population_a",
+    "population_b",
+    "test",
+    "model",
+    "adjust",
+    "p_at_floor",
+    "out_of_equilibrium",
+    "note",
 )
+NUMERIC_COMPARE_COLUMNS = tuple(c for c in COLUMNS if c not in TEXT_COMPARE_COLUMNS)
 _REQUIRED_COMPARE = ("population_a", "population_b", "test", "model")
 
 
@@ -264,4 +271,4 @@ def read_spectra_doc(path: str | os.PathLike) -> dict[str, Any]:
     """
     doc = _load_json(path, "spectra")
     check_spectra_doc(doc, path)
-    return doc
+    return upgrade_spectra_doc(doc, path)

@@ -6,6 +6,7 @@ import re
 from typing import Any
 
 from ..effect import convention_text
+from ._spectra_made import spectra_made_rows
 from ._text import (
     ALPHA_NEGATIVE_NOTE,
     CAUTIONS,
@@ -42,10 +43,11 @@ def _row(cells: list[str]) -> str:
 
 
 def _at_bounds_text(record: dict[str, Any]) -> str:
-    """``lognormal: log_sd at bound (0.01); gamma: eps at bound (1.016e−6)`` or empty."""
+    """``lognormal: sd_log_abs_S at bound (0.01); gamma: misorientation_rate at bound
+    (1e−6)`` or empty."""
     parts = []
     for m, f in (record.get("models") or {}).items():
-        params = dict(f.get("params") or {}, eps=f.get("eps"))
+        params = dict(f.get("params") or {}, misorientation_rate=f.get("misorientation_rate"))
         names = f.get("at_bounds") or []
         if names:
             parts.append(
@@ -180,6 +182,12 @@ def render_markdown(view: ReportView) -> str:
             classic = ad.get("alpha_classic")
             if is_num(classic) and classic < 0:
                 out.append(f"  - {md(ALPHA_NEGATIVE_NOTE)}")
+        out.append("")
+    if view.spectra_docs:
+        out += ["## How the spectra were made", ""]
+        for key, doc in view.spectra_docs.items():
+            out.append(f"- {md(key)}:")
+            out += [f"  - {md(item)}: {md(value)}" for item, value in spectra_made_rows(doc)]
         out.append("")
     out += ["## Conventions", ""] + [f"- {md(c)}" for c in conventions(view.effect)]
     out += ["", "## Cautions", ""] + [f"- **{md(t)}.** {md(x)}" for t, x in CAUTIONS]

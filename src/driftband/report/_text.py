@@ -231,14 +231,32 @@ ALPHA_EXPLAINED = (
     "counts.",
 )
 
+#: Names, as written in prose, of the statsmodels multiple-testing methods.
+ADJUST_NAMES = {
+    "holm": "Holm",
+    "bonferroni": "Bonferroni",
+    "sidak": "Šidák",
+    "holm-sidak": "Holm–Šidák",
+    "simes-hochberg": "Hochberg",
+    "hommel": "Hommel",
+    "fdr_bh": "Benjamini–Hochberg",
+    "fdr_by": "Benjamini–Yekutieli",
+}
+
+
+def adjust_name(method: str) -> str:
+    """The prose name of a multiple-testing method (``holm`` -> ``Holm``)."""
+    return ADJUST_NAMES.get(method.lower(), method)
+
+
 PARAM_LABELS = {
     "shape": "shape \u03b2 of the gamma distribution of \u2212S",
-    "mean_S": "mean of \u2212S (mean |S| of deleterious mutations)",
-    "log_mean": "mean of ln(\u2212S) (median \u2212S = e^mean)",
-    "log_sd": "standard deviation of ln(\u2212S)",
-    "p_b": "share of beneficial new mutations",
-    "S_b": "S of beneficial mutations",
-    "eps": "ancestral misidentification rate \u03b5",
+    "mean_abs_S": "mean of \u2212S (mean |S| of deleterious mutations)",
+    "mean_log_abs_S": "mean of ln(\u2212S) (median \u2212S = e^mean)",
+    "sd_log_abs_S": "standard deviation of ln(\u2212S)",
+    "beneficial_fraction": "share of beneficial new mutations",
+    "beneficial_S": "S of beneficial mutations",
+    "misorientation_rate": "ancestral misidentification rate \u03b5",
     "theta": "\u03b8 per site (neutral class, r\u2081 = 1)",
     "fixation_ratio": "mean fixation rate relative to neutral, r\u0304",
     "fixation_ratio_deleterious": "mean fixation rate of the deleterious part, r\u0304_del",

@@ -19,6 +19,7 @@ from ._inputs import check_compare_rows, check_fit_doc, check_spectra_doc
 from ._text import (
     ALPHA_LEVEL,
     VARIANTS_ONLY_FLAG,
+    adjust_name,
     band_label,
     digits_for,
     fnum,
@@ -275,18 +276,18 @@ def _flags(name: str, p: dict[str, Any], blocks: float | None) -> list[str]:
 
 def dfe_at_bounds(fit: dict[str, Any]) -> list[str]:
     """The DFE parameters of a model record that lie at a bound (``eps`` left out)."""
-    return [str(n) for n in fit.get("at_bounds") or [] if n != "eps"]
+    return [str(n) for n in fit.get("at_bounds") or [] if n != "misorientation_rate"]
 
 
 def _no_wald(fit: dict[str, Any]) -> set[str]:
     """Parameters of a model record without a Wald s.e. by design: at a bound, and
-    ``S_b`` when ``p_b`` is at its bound (not identified)."""
+    ``beneficial_S`` when ``beneficial_fraction`` is at its bound (not identified)."""
     names = {str(n) for n in fit.get("at_bounds") or []}
-    return names | ({"S_b"} if "p_b" in names else set())
+    return names | ({"beneficial_S"} if "beneficial_fraction" in names else set())
 
 
 def _bound_values(fit: dict[str, Any], names: list[str]) -> str:
-    params = dict(fit.get("params") or {}, eps=fit.get("eps"))
+    params = dict(fit.get("params") or {}, misorientation_rate=fit.get("misorientation_rate"))
     return ", ".join(f"{n} = {fsig(params.get(n))}" for n in names)
 
 
@@ -301,7 +302,7 @@ def bound_flag(fit: dict[str, Any]) -> str:
     Returns
     -------
     str
-        E.g. ``"log_sd at bound: the share rests on a limit of the fit"``; empty when
+        E.g. ``"sd_log_abs_S at bound: the share rests on a limit of the fit"``; empty when
         no DFE parameter of the model is at a bound (``eps`` at its bound is not
         flagged: it does not enter the DFE).
     """
@@ -673,7 +674,7 @@ def collect(
         )
     methods = {str(r.get("adjust") or "") for r in compare_rows or []} - {""}
     adjust_known = len(methods) == 1
-    method = methods.pop() if adjust_known else "Holm"
+    method = adjust_name(methods.pop()) if adjust_known else "Holm"
     pops = {v.name: v for v in views}
     pairs = _pairs(compare_rows or [], pops, method, views[0].level)
     return ReportView(

@@ -19,7 +19,7 @@ import time
 import warnings
 from collections.abc import Callable, Iterator
 from pathlib import Path
-from typing import Any
+from typing import Any, TextIO
 
 from .._io import atomic_output, output_set, sha256sum
 from .._version import __version__
@@ -122,19 +122,31 @@ class StageCache:
 
 
 class RunLog(logging.Handler):
-    """Keeps the formatted log records of a run (written to run.log at the end)."""
+    """Keeps the formatted log records of a run and writes each to run.log as it comes.
 
-    def __init__(self) -> None:
+    Parameters
+    ----------
+    stream : text file, optional
+        Where each line goes at once (run.log opened for appending, line-buffered), so
+        that the log of a running study can be watched; None keeps the lines only.
+    """
+
+    def __init__(self, stream: TextIO | None = None) -> None:
         super().__init__(logging.INFO)
         self.lines: list[str] = []
+        self.stream = stream
         self.setFormatter(
             logging.Formatter("%(asctime)s %(levelname)s %(message)s", "%Y-%m-%d %H:%M:%S")
         )
 
     def emit(self, record: logging.LogRecord) -> None:
-        """Keep ``record`` as one formatted line."""
+        """Keep ``record`` as one formatted line (and write it to run.log)."""
         try:
-            self.lines.append(self.format(record))
+            line = self.format(record)
+            self.lines.append(line)
+            if self.stream is not None:
+                self.stream.write(line + "\n")
+                self.stream.flush()
         except Exception:  # pragma: no cover - never let logging break a run
             self.handleError(record)
 
@@ -148,10 +160,15 @@ def run_log(path: Path) -> Iterator[RunLog]:
     """Collect the log of ``driftband`` (and warnings) at INFO for run.log.
 
     Console handlers keep their level; without any handler a stderr handler at WARNING
-    stands in for Python's last-resort one. run.log gets the earlier runs' log followed
-    by this run's, written atomically when the run ends (also on errors and interrupts).
+    stands in for Python's last-resort one. run.log keeps the earlier runs' log; this
+    run's lines are appended as they come (line-buffered, from the start of the run), so
+    ``tail -f run.log`` follows a run, also one that a pipeline runs without a terminal.
     """
-    col = RunLog()
+    try:
+        stream: TextIO | None = open(path, "a", encoding="utf-8", buffering=1)
+    except OSError:  # a log that cannot be written must not stop the run
+        stream = None
+    col = RunLog(stream)
     extra: list[tuple[logging.Logger, logging.Handler]] = []
     saved: list[tuple[logging.Logger, int]] = []
     fixed: list[logging.Handler] = []
@@ -184,12 +201,9 @@ def run_log(path: Path) -> Iterator[RunLog]:
             h.setLevel(logging.NOTSET)
         if not captured:
             logging.captureWarnings(False)
-        old = ""
-        with contextlib.suppress(OSError, UnicodeDecodeError):
-            old = path.read_text(encoding="utf-8")
-        with contextlib.suppress(OSError):
-            with atomic_output(path, force=True) as fh:
-                fh.write(old + "\n".join(col.lines) + "\n")
+        if stream is not None:
+            with contextlib.suppress(OSError):
+                stream.close()
 
 
 class StageRunner:

@@ -373,7 +373,7 @@ def write_study(
     planned = [output, tsv]
     genome = bool(vcf_options.get("genome", False))
     if genome and vcf_prefix is None:
-        raise OptionError("--genome needs --vcf PREFIX (the genome is written beside it)")
+        raise OptionError("--genome needs --write-vcf PREFIX (the genome is written beside it)")
     if vcf_prefix is not None:
         if genome:
             check_genome_option(study.layout.block_sites.sum(axis=0))

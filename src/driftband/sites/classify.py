@@ -39,6 +39,7 @@ from typing import TYPE_CHECKING
 import numpy as np
 
 from .._io import atomic_output, provenance
+from .._progress import Progress
 from ..exceptions import InputError, OptionError
 from .bed import IntervalSet, SiteClasses
 from .codes import DEGENERACY_NAMES, GeneticCode, genetic_code
@@ -199,6 +200,37 @@ class ClassifyResult:
             sum(c.transcripts_used for c in self.chroms),
             sum(c.coding_sites for c in self.chroms),
         )
+        return out
+
+    def summary_lines(self) -> list[str]:
+        """Human-readable summary for stderr: sites per class, exclusions, per chromosome.
+
+        Returns
+        -------
+        list of str
+            Totals of the written classes (0fold, 4fold) and of the classes not written
+            (2fold, 3fold), the excluded sites or codons by reason, the transcripts used,
+            and one line per chromosome.
+        """
+        written = ", ".join(f"{k} {self.total(k):,}" for k in WRITTEN_CLASSES)
+        other = ", ".join(
+            f"{k} {self.total(k):,}" for k in DEGENERACY_NAMES if k not in WRITTEN_CLASSES
+        )
+        used = sum(c.transcripts_used for c in self.chroms)
+        out = [
+            f"classified {len(self.chroms)} chromosome(s), {used:,} transcripts "
+            f"(code {self.code}, transcripts {self.transcripts}): {written} sites written "
+            f"({other} not written)"
+        ]
+        excl = [(r, self.total(r), unit) for r, unit in EXCLUSION_REASONS.items()]
+        if any(n for _r, n, _u in excl):
+            out.append("excluded: " + ", ".join(f"{r} {n:,} {u}" for r, n, u in excl if n))
+        for c in self.chroms:
+            out.append(
+                f"  {c.chrom}: "
+                + ", ".join(f"{k} {c.class_sites[k]:,}" for k in WRITTEN_CLASSES)
+                + f" from {c.transcripts_used:,} transcripts"
+            )
         return out
 
     def to_site_classes(self) -> SiteClasses:
@@ -538,6 +570,7 @@ def classify_sites(
         raise OptionError(f"--transcripts must be 'agree' or 'longest', got {transcripts!r}")
     ann, fa, by_chrom, order = _prepare(fasta, gff, chroms)
     out = []
+    prog = Progress("classify", len(order), "chromosomes")
     try:
         for chrom in order:
             length = fa.get_reference_length(chrom)
@@ -555,8 +588,10 @@ def classify_sites(
             )
             out.append(res)
             del seq
+            prog.advance()
     finally:
         fa.close()
+    prog.close()
     result = ClassifyResult(
         out,
         code=table.number,

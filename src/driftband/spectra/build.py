@@ -30,6 +30,7 @@ from typing import Any
 import numpy as np
 
 from .._io import file_record, provenance
+from .._progress import Progress
 from ..exceptions import InputError, OptionError
 from ..sites.bed import IntervalSet, SiteClasses, read_mask, read_site_classes
 from ..variants.samples import SampleAssignment, SampleTable, assign_samples, read_sample_table
@@ -380,14 +381,16 @@ def _build(
     """:func:`build_spectra` on an open VCF; ``provenance`` without ``execution``."""
     digest = _Checksum(vcf if opts.checksums else None)  # hashed while counting runs
     prep = prepare_counting(src, sample_table, sites, callable_mask, opts)
-    total, plan = count_prepared(src, prep, opts, progress, scheduler)
+    tracker = _CountingProgress(progress)
+    total, plan = count_prepared(src, prep, opts, tracker, scheduler)
+    tracker.close()
     status = callable_status(
         total, callable_mask is not None, opts.all_sites_callable, sum(plan.sites().values())
     )
     ss = spectra_from_counts(total, prep.design, plan.blocks, opts.project, opts.keep)
     if status["warn"]:
         absent = max(sum(plan.sites().values()) - sites_with_records(total), 0)
-        log.warning("WARNING: %s", variants_only_message(src.path, absent))
+        log.warning("%s", variants_only_message(src.path, absent))
     ss.provenance = _provenance(
         opts,
         digest,
@@ -444,6 +447,29 @@ def _check_header(src: VariantSource, opts: SpectraOptions) -> str:
             )
             raise InputError(f"{name} given but {where}", src.path)
     return og if kind == "outgroup" else ""
+
+
+class _CountingProgress:
+    """The counting's ``progress(done, total, records)`` calls fed to a :class:`Progress`
+    (regions of an indexed file; records of a stream), then to the caller's callback."""
+
+    def __init__(self, then: Callable[[int, int, int], None] | None) -> None:
+        self.then = then
+        self.prog: Progress | None = None
+        self.records = 0
+
+    def __call__(self, done: int, total: int, records: int) -> None:
+        if self.prog is None:
+            self.prog = Progress("spectra", total or None, "regions" if total else "records")
+        self.prog.advance((done if total else records) - self.prog.done)
+        self.records = records
+        if self.then is not None:
+            self.then(done, total, records)
+
+    def close(self) -> None:
+        if self.prog is not None:
+            self.prog.close()
+            log.info("spectra: %d records read", self.records)
 
 
 def _count_unindexed(
@@ -522,6 +548,11 @@ def _provenance(
         "samples": {p: int(c.size) for p, c in zip(design.populations, design.columns)},
         "outgroup": design.outgroup,
         "monomorphic_records": int(total.monomorphic),
+        # the most gene copies called at a usable site: what the projection started from
+        "called_copies_max": {
+            p: int(r[r[:, 4] > 0, 2].max()) if (r[:, 4] > 0).any() else 0
+            for p, r in total.rows.items()
+        },
     }
     return prov
 

@@ -1,9 +1,9 @@
 """Reading and writing spectra files.
 
-The spectra file is JSON, schema ``driftband-spectra`` version 1::
+The spectra file is JSON, schema ``driftband-spectra`` version 2::
 
     {
-      "schema": "driftband-spectra", "schema_version": 1,
+      "schema": "driftband-spectra", "schema_version": 2,
       "blocks": [{"chrom": "1", "start": 0, "end": 100000, "name": ""}, ...],
       "populations": {
         "lake": {
@@ -22,16 +22,17 @@ The spectra file is JSON, schema ``driftband-spectra`` version 1::
     }
 
 ``sfs`` and ``sites`` are the sums of the block arrays (checked on reading).
-A long TSV (columns ``population, class, n, folded, count, sites``: ``sites`` sites of
-the class carry ``count`` derived, or minor, copies) is written beside it for pipelines,
-and the same table, or a wide one, can be read back (reviewer mode, see
-:func:`read_spectra_tsv`).
+A long TSV (columns ``population, class, n, folded, derived_copies, site_count``:
+``site_count`` sites of the class carry ``derived_copies`` derived, or minor, copies)
+is written beside it for pipelines, and the same table, or a wide one, can be read back
+(reviewer mode, see :func:`read_spectra_tsv`).
 """
 
 from __future__ import annotations
 
 import csv
 import json
+import logging
 import os
 from typing import Any
 
@@ -49,21 +50,30 @@ from ._types import (
 )
 from .stats import diversity
 
+log = logging.getLogger("driftband")
+
 __all__ = [
     "SCHEMA",
+    "LONG_TSV_COLUMNS",
     "SCHEMA_VERSION",
+    "SCHEMA_VERSIONS_READ",
     "add_diversity",
     "check_spectra_schema",
     "read_spectra",
     "read_spectra_json",
     "read_spectra_tsv",
     "spectra_to_dict",
+    "upgrade_spectra_doc",
     "write_spectra_json",
     "write_spectra_tsv",
 ]
 
 SCHEMA = "driftband-spectra"
-SCHEMA_VERSION = 1
+#: Version 2 names the sample table ``samples`` among the provenance's inputs (version 1:
+#: ``popmap``) and records the largest number of called gene copies per population
+#: (``provenance.counts.called_copies_max``). Version 1 files are read, translated.
+SCHEMA_VERSION = 2
+SCHEMA_VERSIONS_READ = (1, 2)
 
 
 def add_diversity(pop: PopulationSpectra, neutral: str = "4fold", selected: str = "0fold") -> None:
@@ -120,11 +130,22 @@ def write_spectra_json(ss: SpectraSet, path: str | os.PathLike, force: bool = Fa
         fh.write("\n")
 
 
+#: Header of the long spectra table: one row per spectrum entry.
+LONG_TSV_COLUMNS = ["population", "class", "n", "folded", "derived_copies", "site_count"]
+#: Column names of spectra tables before this version, and what to write instead.
+_OLD_TSV_COLUMNS = {
+    "sites": "'callable_sites' (wide layout) or 'site_count' (long layout)",
+    "count": "'derived_copies'",
+    "count_index": "'derived_copies'",
+}
+
+
 def write_spectra_tsv(ss: SpectraSet, path: str | os.PathLike, force: bool = False) -> None:
-    """Write the long spectra table ``population, class, n, folded, count, sites``."""
+    """Write the long spectra table (:data:`LONG_TSV_COLUMNS`): ``site_count`` sites
+    with ``derived_copies`` derived copies, one row per entry."""
     with atomic_output(path, force=force, newline="") as fh:
         w = csv.writer(fh, delimiter="\t", lineterminator="\n")
-        w.writerow(["population", "class", "n", "folded", "count", "sites"])
+        w.writerow(LONG_TSV_COLUMNS)
         for name, pop in ss.populations.items():
             for c, cs in pop.classes.items():
                 for i, v in enumerate(cs.sfs.tolist()):
@@ -176,6 +197,7 @@ def read_spectra_json(path: str | os.PathLike) -> SpectraSet:
     """
     doc = load_json(path, "spectra JSON file")
     check_spectra_schema(doc, path)
+    doc = upgrade_spectra_doc(doc, path)
     popsd = doc.get("populations")
     if not isinstance(popsd, dict) or not popsd:
         raise _fail(path, '"populations" must be a non-empty object')
@@ -283,12 +305,50 @@ def check_spectra_schema(doc: Any, path: str | os.PathLike | None = None) -> Non
             "with 'driftband spectra')",
         )
     ver = doc.get("schema_version")
-    if ver != SCHEMA_VERSION:
+    if ver not in SCHEMA_VERSIONS_READ:
         raise _fail(
             path,
             f"spectra schema version {ver!r} is not supported "
-            f"(this driftband reads version {SCHEMA_VERSION})",
+            f"(this driftband reads versions {', '.join(map(str, SCHEMA_VERSIONS_READ))})",
         )
+
+
+def upgrade_spectra_doc(doc: dict[str, Any], path: str | os.PathLike | None = None) -> dict:
+    """A spectra document of an older schema version translated to this one.
+
+    Version 1 named the sample table ``popmap`` among the provenance's inputs; it is
+    renamed ``samples``, and a warning says that the file was translated. Documents of
+    the current version are returned as they are.
+
+    Parameters
+    ----------
+    doc : dict
+        A parsed spectra file whose schema has been checked (:func:`check_spectra_schema`).
+    path : path-like, optional
+        Its file, named in the warning.
+
+    Returns
+    -------
+    dict
+    """
+    if doc.get("schema_version") == SCHEMA_VERSION:
+        return doc
+    out = dict(doc)
+    prov = dict(out.get("provenance") or {})
+    inputs = prov.get("inputs")
+    if isinstance(inputs, dict) and "popmap" in inputs:
+        prov["inputs"] = {("samples" if k == "popmap" else k): v for k, v in inputs.items()}
+    out["provenance"] = prov
+    out["schema_version"] = SCHEMA_VERSION
+    log.warning(
+        "%s: spectra file of schema version %s (an older driftband), read as version %d "
+        "(the input 'popmap' is now 'samples'; no record of the called gene copies); "
+        "rerun 'driftband spectra' to write the current version",
+        os.fspath(path) if path is not None else "spectra document",
+        doc.get("schema_version"),
+        SCHEMA_VERSION,
+    )
+    return out
 
 
 def read_spectra_tsv(path: str | os.PathLike, folded: bool | None = None) -> SpectraSet:
@@ -296,13 +356,16 @@ def read_spectra_tsv(path: str | os.PathLike, folded: bool | None = None) -> Spe
 
     Two layouts are accepted (header line required; ``#`` lines are comments):
 
-    * **wide**: ``population, class, sites, c0, c1, ..., cn`` -- one row per population and
-      class, ``sites`` callable sites, then the site counts for 0..n derived copies (the
-      count columns may have any names; their number fixes n). If the ``c0`` entry is
-      empty, it is filled as ``sites`` minus the other entries.
-    * **long**: ``population, class, count, sites`` (``count_index`` is accepted for
-      ``count``), one row per entry: ``sites`` sites with ``count`` derived copies. Optional
-      columns ``n`` and ``folded``.
+    * **wide**: ``population, class, callable_sites, c0, c1, ..., cn`` -- one row per
+      population and class, its callable sites, then the site counts for 0..n derived
+      copies (the count columns may have any names; their number fixes n). If the ``c0``
+      entry is empty, it is filled as ``callable_sites`` minus the other entries.
+    * **long**: ``population, class, derived_copies, site_count``, one row per entry:
+      ``site_count`` sites with ``derived_copies`` derived copies. Optional columns ``n``
+      and ``folded``.
+
+    Tables with the column names of earlier versions (``sites``, ``count``,
+    ``count_index``) are refused with the names to use.
 
     Parameters
     ----------
@@ -320,9 +383,19 @@ def read_spectra_tsv(path: str | os.PathLike, folded: bool | None = None) -> Spe
     if len(rows) < 2:
         raise _fail(path, "empty spectra table (a header and at least one row are needed)")
     header = [h.strip().lower() for h in rows[0]]
-    long = ("count" in header or "count_index" in header) and "sites" in header
     if header[:2] != ["population", "class"]:
         raise InputError("the first two columns must be 'population' and 'class'", path, 1)
+    for old, new in _OLD_TSV_COLUMNS.items():
+        if old in header:
+            raise InputError(f"column {old!r} is now called {new}; rename it", path, 1)
+    long = "derived_copies" in header and "site_count" in header
+    if not long and (len(header) < 4 or header[2] != "callable_sites"):
+        raise InputError(
+            "expected the wide layout (population, class, callable_sites, c0, c1, ...) "
+            "or the long one (population, class, derived_copies, site_count)",
+            path,
+            1,
+        )
     data: dict[str, dict[str, dict[int, float]]] = {}
     sites: dict[tuple[str, str], int] = {}
     fold_of: dict[str, bool] = {}
@@ -335,13 +408,13 @@ def read_spectra_tsv(path: str | os.PathLike, folded: bool | None = None) -> Spe
         try:
             if long:
                 rec = dict(zip(header, r))
-                k = int(rec["count"] if "count" in rec else rec["count_index"])
-                v: float = float(rec["sites"])
+                k = int(rec["derived_copies"])
+                v: float = float(rec["site_count"])
                 v = int(v) if v == int(v) else v
                 if k < 0 or v < 0:
                     raise ValueError("negative value")
                 if k in data.setdefault(pop, {}).setdefault(cls, {}):
-                    raise ValueError(f"count {k} given twice")
+                    raise ValueError(f"derived_copies {k} given twice")
                 data[pop][cls][k] = v
                 if rec.get("folded"):
                     fold_of[pop] = rec["folded"].lower() in ("true", "1", "yes")
@@ -354,7 +427,7 @@ def read_spectra_tsv(path: str | os.PathLike, folded: bool | None = None) -> Spe
                 if 0 not in counts:
                     counts[0] = total - sum(counts.values())
                 if any(v < 0 for v in counts.values()):
-                    raise ValueError("negative count (or entries exceed 'sites')")
+                    raise ValueError("negative count (or entries exceed 'callable_sites')")
                 data.setdefault(pop, {})[cls] = counts
                 sites[(pop, cls)] = total
         except ValueError as err:
@@ -376,7 +449,7 @@ def read_spectra_tsv(path: str | os.PathLike, folded: bool | None = None) -> Spe
                 if k >= length:
                     raise _fail(
                         path,
-                        f"population {pop!r} class {cls!r}: count {k} beyond "
+                        f"population {pop!r} class {cls!r}: derived_copies {k} beyond "
                         f"the spectrum length {length}",
                     )
                 arr[k] = v
@@ -390,7 +463,7 @@ def read_spectra_tsv(path: str | os.PathLike, folded: bool | None = None) -> Spe
                 raise _fail(
                     path,
                     f"population {pop!r} class {cls!r}: entries add up to "
-                    f"{arr.sum()}, not to sites={sites[(pop, cls)]}",
+                    f"{arr.sum()}, not to callable_sites={sites[(pop, cls)]}",
                 )
             out[cls] = ClassSpectrum.from_total(_counts_array(arr))
         ps = PopulationSpectra(pop, n, is_folded, out, "fold" if is_folded else "given")

@@ -26,6 +26,9 @@ from pathlib import Path
 import numpy as np
 from scipy import stats
 
+from driftband.fit.io import FIT_SCHEMA_VERSION
+from driftband.spectra.io import SCHEMA_VERSION as SPECTRA_SCHEMA_VERSION
+
 HERE = Path(__file__).resolve().parent
 EDGES = [0.0, 1.0, 10.0, 100.0]
 LEVEL = 0.95
@@ -91,10 +94,10 @@ def model_entry(
         "model": name,
         "params": params,
         "stderr": stderr,
-        "eps": eps,
-        "eps_free": eps_free,
+        "misorientation_rate": eps,
+        "misorientation_free": eps_free,
         "theta": theta,
-        "nuisance": [1.0] * len(en),
+        "nuisance_factors": [1.0] * len(en),
         "equilibrium": False,
         "loglik": ll,
         "n_params": k,
@@ -109,7 +112,7 @@ def model_entry(
         "observed": {"neutral": on.tolist(), "selected": os_.tolist()},
         "expected": {"neutral": en.tolist(), "selected": es.tolist()},
         "pearson_residuals": {"neutral": residuals(on, en), "selected": residuals(os_, es)},
-        "x": [0.0] * 3,
+        "unconstrained_params": [0.0] * 3,
         "optimizer": {"starts": 9, "evaluations": 2113},
     }
 
@@ -172,8 +175,12 @@ def population(rng, pop, n, folded, theta, ln, ls, g, lg, disc, fixed=None, disc
         "gamma": model_entry(
             pop,
             "gamma",
-            {"shape": g[0], "mean_S": g[1]},
-            {"shape": g[0] * 0.11, "mean_S": g[1] * 0.4, **({"eps": 0.004} if eps_free else {})},
+            {"shape": g[0], "mean_abs_S": g[1]},
+            {
+                "shape": g[0] * 0.11,
+                "mean_abs_S": g[1] * 0.4,
+                **({"misorientation_rate": 0.004} if eps_free else {}),
+            },
             gamma_shares(g[0], g[1]),
             g[2],
             2 + m + ke,
@@ -189,8 +196,12 @@ def population(rng, pop, n, folded, theta, ln, ls, g, lg, disc, fixed=None, disc
         "lognormal": model_entry(
             pop,
             "lognormal",
-            {"log_mean": lg[0], "log_sd": lg[1]},
-            {"log_mean": 0.6, "log_sd": None, **({"eps": 0.005} if eps_free else {})},
+            {"mean_log_abs_S": lg[0], "sd_log_abs_S": lg[1]},
+            {
+                "mean_log_abs_S": 0.6,
+                "sd_log_abs_S": None,
+                **({"misorientation_rate": 0.005} if eps_free else {}),
+            },
             lognormal_shares(lg[0], lg[1]),
             lg[2],
             2 + m + ke,
@@ -231,7 +242,7 @@ def population(rng, pop, n, folded, theta, ln, ls, g, lg, disc, fixed=None, disc
     best = ok[0]["model"]
     b = {"replicates": REPS, "blocks": BLOCKS, "seed": SEED, "level": LEVEL, "models": {}}
     for name, f in models.items():
-        extra = {"eps": eps, "fixation_ratio": f["fixation_ratio"]}
+        extra = {"misorientation_rate": eps, "fixation_ratio": f["fixation_ratio"]}
         if fixed is not None:
             dn, ds = fixed[1], fixed[0]
             d_n, d_s = dn / ls, ds / ln
@@ -263,10 +274,10 @@ def population(rng, pop, n, folded, theta, ln, ls, g, lg, disc, fixed=None, disc
         d_n, d_s = dn / ls, ds / ln
         adaptive[name] = {
             "mk": {
-                "P_N": pn,
-                "P_S": ps,
-                "D_N": dn,
-                "D_S": ds,
+                "polymorphic_selected": pn,
+                "polymorphic_neutral": ps,
+                "divergent_selected": dn,
+                "divergent_neutral": ds,
                 "fisher_odds_ratio": float(odds),
                 "fisher_p": float(p),
             },
@@ -343,7 +354,7 @@ def main() -> None:
     )
     fit = {
         "schema": "driftband-fit",
-        "schema_version": 1,
+        "schema_version": FIT_SCHEMA_VERSION,
         "options": {
             "neutral": "4fold",
             "selected": "0fold",
@@ -422,7 +433,7 @@ def main() -> None:
         }
     spectra = {
         "schema": "driftband-spectra",
-        "schema_version": 1,
+        "schema_version": SPECTRA_SCHEMA_VERSION,
         "blocks": [
             {"chrom": "scf1", "start": k * 100000, "end": (k + 1) * 100000, "name": ""}
             for k in range(4)
@@ -434,9 +445,24 @@ def main() -> None:
             "version": "0.1.0.dev0",
             "date": DATE,
             "command": ["driftband", "spectra"],
-            "options": {"block_size": 100000},
+            "options": {
+                "block_size": 100000,
+                "blocks": None,
+                "regions": ["scf1"],
+                "min_gq": 20,
+                "min_dp": 8,
+                "pass_only": True,
+                "project": None,
+                "projection_rule": "largest n such that >= 90% of usable records have n or "
+                "more called gene copies",
+            },
             "inputs": {
                 "vcf": {"path": "/study/snails/calls.vcf.gz", "size": 2200000, "sha256": "ab" * 32}
+            },
+            "counts": {
+                "records_read": 52000,
+                "records_used": {"lake": 51200, "spring": 51100},
+                "called_copies_max": {"lake": 24, "spring": 24},
             },
             "environment": {"python": "3.11.2"},
         },
@@ -461,6 +487,7 @@ def main() -> None:
         "df_linkage",
         "p_value",
         "p_adjusted",
+        "adjust",
         "p_at_floor",
         "estimate",
         "ci_low",
@@ -485,6 +512,7 @@ def main() -> None:
             "df_linkage": df_adj,
             "p_value": p_adj,
             "p_adjusted": p_adj,
+            "adjust": "holm",
         }
 
     adj_note = "; p adjusted for linked sites: statistic / {:.3g} on {:.3g} df"
@@ -506,6 +534,7 @@ def main() -> None:
             "statistic": 4.1,
             "p_value": 0.0488,
             "p_adjusted": 0.0488,
+            "adjust": "holm",
             "estimate": diff,
             "ci_low": diff - 0.061,
             "ci_high": diff + 0.058,
