@@ -230,3 +230,20 @@ def test_readme_vcz_example_runs(tmp_path):
     args = ["--samples", str(TINY / "tiny.samples.tsv"), "--sites", str(TINY / "tiny.sites.bed")]
     _, from_vcf = run_spectra(TINY / "tiny.vcf.gz", tmp_path / "vcf.json", args)
     assert spectra_body(tmp_path / "tiny.vcz.spectra.json") == from_vcf
+
+
+@pytest.mark.slow
+def test_driftband_run_on_a_store(tiny, tmp_path):
+    # The whole job (spectra, fits, comparisons, report) with the store as the dataset's
+    # vcf: its spectra.json equals that of the same run on the VCF (source: the VCF route).
+    from driftband.cli import main
+    from vcz_helpers import spectra_body
+
+    def run(vcf: Path, out: Path) -> bytes:
+        args = ["run", "--vcf", str(vcf), "--samples", str(TINY / "tiny.samples.tsv")]
+        args += ["--sites", str(TINY / "tiny.sites.bed"), "--bootstrap", "0", "--dfe", "gamma"]
+        assert main([*args, "--out-dir", str(out), "--workers", "1", "-q"]) == 0
+        assert (out / "report.html").is_file()
+        return spectra_body(out / "spectra.json")
+
+    assert run(tiny["vcz"], tmp_path / "z") == run(tiny["vcf"], tmp_path / "v")
