@@ -105,16 +105,16 @@ def _open_store(path: str) -> Format2Store | ZarrArrays:
 
 
 def _strings(a: Any) -> np.ndarray:
-    """A string array that :func:`numpy.char.str_len` takes (object arrays, as older
-    numpy reads them, as fixed-width unicode)."""
+    """A string array that :func:`numpy.char.str_len` takes (object arrays, as numcodecs
+    decodes strings, as fixed-width unicode)."""
     a = np.asarray(a)
     return a.astype("U") if a.dtype.kind == "O" else a
 
 
 def _stop_zarr_threads() -> None:
-    """Stop the I/O thread (and pool) zarr starts on first use; zarr starts them again
-    when it is used next. Format 2 chunks are read without them, and a process with no
-    other threads can start its local workers by fork (at once) rather than spawn."""
+    """Stop the I/O thread (and pool) zarr starts on first use (a Zarr format 3 store);
+    zarr starts them again when it is used next. A process with no other threads starts
+    its local workers by fork (at once) rather than spawn."""
     try:
         from zarr.core.sync import cleanup_resources
     except ImportError:  # another zarr: its threads stay, and workers are spawned
@@ -145,7 +145,8 @@ class VczSource:
     Raises
     ------
     InputError
-        zarr not installed, not a Zarr store, another format version, or a required array
+        numcodecs (or zarr) not installed, not a Zarr store, another format version,
+        unreadable metadata, or a required array
         missing (``call_genotype``, ``contig_id``, ...).
     """
 
