@@ -162,3 +162,16 @@ def test_unreadable_array_metadata(capfd, good, store):
     (store / "call_genotype" / ".zarray").write_text("{not json")
     err = run_bad(capfd, good, store)
     assert "array call_genotype" in err and ".zarray" in err
+
+
+@pytest.mark.parametrize("inside", [".zattrs", "spectra.json"])
+def test_no_output_inside_the_store(capfd, good, store, inside):
+    # --force never writes into an input store: neither over its metadata nor beside it
+    before = _snapshot(store)
+    out = store / inside
+    args = ["spectra", str(store), "--samples", str(good["samples"])]
+    args += ["--sites", str(good["sites"]), "-o", str(out), "--force", "--workers", "1"]
+    assert main(args) == 2
+    err = capfd.readouterr().err.strip()
+    assert len(err.splitlines()) == 1 and "an input folder of this command" in err
+    assert _snapshot(store) == before

@@ -114,14 +114,21 @@ OUTPUT_DESTS = frozenset({"output", "tsv", "summary", "bands_tsv", "out_dir"})
 
 
 def _input_files(args: argparse.Namespace) -> list[str]:
-    """The existing files named by the arguments that are not outputs."""
+    """The existing files named by the arguments that are not outputs, and the folders
+    that are Zarr stores (a VCF Zarr input: ``.zgroup`` or ``zarr.json`` at its top), whose
+    files no output may replace either."""
     outs = OUTPUT_DESTS | frozenset(getattr(args, "output_dests", ()))
     found: list[str] = []
     for dest, value in vars(args).items():
         if dest in outs:
             continue
         for v in value if isinstance(value, list | tuple) else [value]:
-            if isinstance(v, str | os.PathLike) and os.fspath(v) != "-" and os.path.isfile(v):
+            if not isinstance(v, str | os.PathLike) or os.fspath(v) == "-":
+                continue
+            store = os.path.isdir(v) and any(
+                os.path.isfile(os.path.join(v, m)) for m in (".zgroup", "zarr.json")
+            )
+            if os.path.isfile(v) or store:
                 found.append(os.fspath(v))
     return found
 
