@@ -435,7 +435,9 @@ class VczBatch(VariantBatch):
         first = np.zeros(al.shape, np.uint8)
         one = length == 1
         if one.any():
-            first[one] = np.frombuffer("".join(al[one].tolist()).encode("latin-1"), np.uint8)
+            first[one] = np.frombuffer(
+                "".join(al[one].tolist()).encode("latin-1", "replace"), np.uint8
+            )
         ref1 = np.where(length[:, 0] == 1, first[:, 0], 0).astype(np.uint8)
         n_alt = (length[:, 1:] > 0).sum(axis=1)
         if al.shape[1] > 1:
@@ -447,7 +449,9 @@ class VczBatch(VariantBatch):
             aa = _strings(self._get("variant_AA")).reshape(r, -1)[:, 0]
             sel = np.char.str_len(aa) == 1
             if sel.any():
-                aa1[sel] = np.frombuffer("".join(aa[sel].tolist()).encode("latin-1"), np.uint8)
+                aa1[sel] = np.frombuffer(
+                    "".join(aa[sel].tolist()).encode("latin-1", "replace"), np.uint8
+                )
         return {
             "ref1": upper_codes(ref1),
             "alt1": upper_codes(alt1.astype(np.uint8)),
