@@ -53,7 +53,8 @@ COMMANDS = {
     "classify": (["classify", "--fasta", "g.fa", "--gff", "g.gff3"], "-o", "--summary"),
     "fit": (["fit", "spectra.json", "--dfe", "gamma"], "-o", "--bands-tsv"),
     "compare": (["compare", "fit.json"], "-o", None),
-    "report": (["report", "fit.json", "--compare", "compare.tsv"], "-o", "--summary"),
+    "report": (["report", "fit.json", "--compare", "compare.tsv", "--spectra",
+                "lake=spectra.json"], "-o", "--summary"),
     "simulate": (["simulate", "--population", "A:N=50,n=4", "--class-sites", "200", "--seed", "2"],
                  "-o", "--tsv"),
 }  # fmt: skip
@@ -62,7 +63,7 @@ INPUTS = {
     "classify": ["g.fa", "g.gff3"],
     "fit": ["spectra.json"],
     "compare": ["fit.json"],
-    "report": ["fit.json", "compare.tsv"],
+    "report": ["fit.json", "compare.tsv", "spectra.json"],  # spectra.json as LABEL=PATH
     "simulate": [],
 }
 

@@ -587,7 +587,7 @@ def test_readme_cluster_commands_use_real_options():
     lines = [ln for ln in lines if ln]
     parser = get_parser()
     ours = [ln.split()[1:] for ln in lines if ln.startswith("driftband ")]
-    assert {a[0] for a in ours} == {"spectra", "fit"}
+    assert {a[0] for a in ours} == {"spectra", "fit", "run"}
     for args in ours:
         ns = parser.parse_args(args)  # exits (SystemExit) on an unknown option
         assert ns.scheduler in (None, "tcp://HOST:8786")
@@ -604,3 +604,83 @@ def test_readme_cluster_commands_use_real_options():
     assert r.returncode == 0
     for opt in (w for w in worker.split() if w.startswith("--")):
         assert opt in r.stdout, opt
+
+
+@pytest.fixture(scope="module")
+def dask_processes(tmp_path_factory):
+    """A real ``dask scheduler`` and a ``dask worker`` (2 processes of 1 thread), started
+    as the README's cluster section does; yields the scheduler's address."""
+    d = tmp_path_factory.mktemp("dask")
+    sfile = d / "scheduler.json"
+    env = dict(os.environ, DASK_DISTRIBUTED__WORKER__DAEMON="False")
+    dask = [sys.executable, "-m", "dask"]
+    sched = subprocess.Popen(
+        [*dask, "scheduler", "--port", "0", "--dashboard-address", ":0",
+         "--scheduler-file", str(sfile)],
+        cwd=d, env=env, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL,
+    )  # fmt: skip
+    procs = [sched]
+    try:
+        for _ in range(300):
+            if sfile.is_file() and sfile.stat().st_size > 0:
+                break
+            time.sleep(0.1)
+        addr = json.loads(sfile.read_text())["address"]
+        procs.append(
+            subprocess.Popen(
+                [
+                    *dask,
+                    "worker",
+                    addr,
+                    "--nworkers",
+                    "2",
+                    "--nthreads",
+                    "1",
+                    "--dashboard-address",
+                    ":0",
+                ],
+                cwd=d,
+                env=env,
+                stdout=subprocess.DEVNULL,
+                stderr=subprocess.DEVNULL,
+            )  # fmt: skip
+        )
+        with distributed.Client(addr, set_as_default=False) as c:
+            c.wait_for_workers(2, timeout=120)
+        yield addr
+    finally:
+        for p in reversed(procs):
+            p.terminate()
+        for p in procs:
+            try:
+                p.wait(timeout=30)
+            except subprocess.TimeoutExpired:
+                p.kill()
+
+
+@pytest.mark.slow  # two runs and a cluster start: about 30 s on an idle 2-core machine
+def test_run_on_a_real_dask_cluster_gives_the_local_results(dask_processes, tmp_path):
+    """``driftband run --scheduler`` sends every stage to the cluster (dask scheduler and
+    dask worker processes) and writes the same tables as a local run; the report and
+    provenance/stages.json say where each stage ran."""
+    ex = Path(__file__).resolve().parents[1] / "example_vcfs"
+    base = [
+        "run", "--vcf", str(ex / "tiny.vcf.gz"), "--samples", str(ex / "tiny.samples.tsv"),
+        "--sites", str(ex / "tiny.sites.bed"), "--callable", str(ex / "tiny.callable.bed"),
+        "--ancestral", "outgroup:islet", "--dfe", "gamma", "--bootstrap", "2", "-q",
+    ]  # fmt: skip
+    local, remote = tmp_path / "local", tmp_path / "remote"
+    assert main([*base, "--workers", "2", "--out-dir", str(local)]) == 0
+    assert main([*base, "--scheduler", dask_processes, "--out-dir", str(remote)]) == 0
+    for name in ("bands.tsv", "compare.tsv"):
+        assert (local / name).read_bytes() == (remote / name).read_bytes(), name
+    assert _file_body(local / "spectra.json") == _file_body(remote / "spectra.json")
+    stages = json.loads((remote / "provenance" / "stages.json").read_text())["stages"]
+    assert {s: r["ran_on"] for s, r in stages.items() if s != "report"} == {
+        s: f"dask scheduler {dask_processes}" for s in stages if s != "report"
+    }
+    spectra = json.loads((remote / "spectra.json").read_text())
+    assert spectra["provenance"]["execution"]["scheduler"] == dask_processes
+    page = (remote / "report.html").read_text(encoding="utf-8")
+    assert f"fit: dask scheduler {dask_processes}" in page
+    assert "local worker processes" in (local / "report.html").read_text(encoding="utf-8")

@@ -42,6 +42,7 @@ def test_variants_only_vcf_is_flagged(tmp_path, caplog):
         "source": "assumed",
         "warning": True,
         "record_coverage": 3 / 200,  # 3 records at 200 class sites
+        "sparse": False,  # the variants-only warning covers it
     }
     msg = " ".join(r.getMessage() for r in caplog.records)
     assert "variants-only" in msg and "--callable" in msg and "--all-sites-callable" in msg
@@ -155,3 +156,34 @@ def test_readme_variants_only_example_runs(tmp_path):
         s = stated["populations"][pop]["classes"]["0fold"]["sites"]
         assert 0 < m < s
     assert "looks variants-only" not in r.stderr  # neither spectra run warns
+
+
+def test_all_sites_vcf_with_gaps_is_warned_about_and_flagged(tmp_path, caplog):
+    """Monomorphic records at some class sites only (4 records at 200 sites): the 196
+    sites without a record are still counted as callable, so it is warned about, the
+    spectra file records it and the report flags the populations; a complete all-sites
+    VCF (a record at every class site) is not."""
+    from driftband.report._view import spectra_flags
+
+    mono = rec(1, 31, "A", ".", ["0/0"] * 4)
+    vcf, pm, bed = _files(tmp_path, [*SNPS[:2], mono, SNPS[2]])
+    with caplog.at_level("WARNING", logger="driftband"):
+        ss = build_spectra(vcf, pm, bed)
+    cs = ss.provenance["callable_sites"]
+    assert cs["sparse"] is True and cs["warning"] is False
+    msg = " ".join(r.getMessage() for r in caplog.records)
+    assert "all-sites VCF" in msg and "2.0%" in msg and "196 class sites" in msg
+    flags = spectra_flags({"provenance": ss.provenance})
+    assert len(flags) == 1 and "not at every class site" in flags[0]
+    # a record at every class site (monomorphic where there is no SNP): no warning
+    taken = {11, 21, 111}
+    full = [*SNPS, *(rec(1, p, "A", ".", ["0/0"] * 4) for p in range(1, 201) if p not in taken)]
+    full.sort(key=lambda r: int(r.split("\t")[1]))
+    (tmp_path / "full").mkdir()
+    vcf2, pm2, bed2 = _files(tmp_path / "full", full)
+    caplog.clear()
+    with caplog.at_level("WARNING", logger="driftband"):
+        ss2 = build_spectra(vcf2, pm2, bed2)
+    assert ss2.provenance["callable_sites"]["sparse"] is False
+    assert not [r for r in caplog.records if "all-sites VCF" in r.getMessage()]
+    assert spectra_flags({"provenance": ss2.provenance}) == []

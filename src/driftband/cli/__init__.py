@@ -125,11 +125,14 @@ def _input_files(args: argparse.Namespace) -> list[str]:
         for v in value if isinstance(value, list | tuple) else [value]:
             if not isinstance(v, str | os.PathLike) or os.fspath(v) == "-":
                 continue
-            store = os.path.isdir(v) and any(
-                os.path.isfile(os.path.join(v, m)) for m in (".zgroup", "zarr.json")
-            )
-            if os.path.isfile(v) or store:
-                found.append(os.fspath(v))
+            v = os.fspath(v)
+            # LABEL=PATH values (report --spectra, fit --label) name a file after the '='
+            for cand in (v, v.partition("=")[2]) if "=" in v else (v,):
+                store = os.path.isdir(cand) and any(
+                    os.path.isfile(os.path.join(cand, m)) for m in (".zgroup", "zarr.json")
+                )
+                if cand and (os.path.isfile(cand) or store):
+                    found.append(cand)
     return found
 
 

@@ -102,6 +102,13 @@ def add_parser(subparsers: Subparsers) -> argparse.ArgumentParser:
     b.add_argument(
         "--workers", type=int, metavar="N", help="worker processes (default: the cores available)"
     )
+    b.add_argument(
+        "--scheduler",
+        metavar="ADDRESS",
+        help="run every stage's tasks on the dask.distributed scheduler at ADDRESS, e.g. "
+        "tcp://HOST:8786 (needs driftband[cluster]; same results; see the README, "
+        "'Running on a cluster')",
+    )
     add_common_arguments(p)
     p.set_defaults(runner=run, commit_at_end=False)
     return p
@@ -257,6 +264,7 @@ def run(args: argparse.Namespace) -> int:
         workers=args.workers,
         seed=args.seed,
         level=args.level,
+        scheduler=args.scheduler,
     )
     print(res.report, file=sys.stdout)
     return 0

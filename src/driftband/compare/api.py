@@ -180,6 +180,7 @@ def compare_fits(
     holder: str = "the fit files hold",
     require_bootstrap: bool = False,
     workers: int | None = 1,
+    scheduler: Any = None,
 ) -> list[ComparisonRow]:
     """Every requested test for every pair of populations, p-values adjusted across pairs.
 
@@ -208,6 +209,8 @@ def compare_fits(
         replicates (default: the row says that it has no interval and no p-value).
     workers : int, optional
         Worker processes, one task per pair and test (default 1: in this process).
+    scheduler : str or distributed.Client, optional
+        Run the tasks on this dask cluster instead of local workers.
 
     Returns
     -------
@@ -249,11 +252,12 @@ def compare_fits(
         log.info("compare: %s and %s (%s model; %s)", a, b, dfe.name, ", ".join(wanted))
     tasks = [(by_name[a], by_name[b], dfe, options, mu, (t,)) for a, b in chosen for t in wanted]
     with Progress("compare", len(tasks), "tests") as prog:
-        if len(tasks) > 1 and (workers is None or workers > 1):
+        if scheduler is not None or (len(tasks) > 1 and (workers is None or workers > 1)):
             parts = parallel_map(
                 _compare_task,
                 tasks,
                 workers=workers,
+                scheduler=scheduler,
                 name="compare",
                 on_result=lambda _i, _r: prog.advance(),
             )

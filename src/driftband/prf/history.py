@@ -15,6 +15,8 @@ Time runs backward from the sample in units of :math:`2N_{anc}` generations, whe
 - :class:`ExponentialChange` ``(nu, tau)`` -- from :math:`\tau` ago the size changes
   exponentially from :math:`N_{anc}` to :math:`\nu N_{anc}` at the sample,
   :math:`N(t) = N_{anc}\,\nu^{t/\tau}` with ``t`` the time since the onset.
+- :class:`Epochs` -- any sequence of constant or exponential epochs (a demes file,
+  :mod:`driftband.demography`).
 
 The same histories in the simulator's terms (:mod:`driftband.simulate`, whose histories are
 ``(generations_ago, diploid_size)`` epochs with the oldest size as burn-in): ``ancestral
@@ -92,7 +94,9 @@ from . import _history_solver as _hs
 from .expected import _check_n, _log_binom, kernel
 
 __all__ = [
+    "MAX_TOTAL_DURATION",
     "ConstantSize",
+    "Epochs",
     "ExponentialChange",
     "History",
     "HistorySfs",
@@ -276,9 +280,84 @@ class ExponentialChange(_RatioAndTime):
         return _sim_epochs(changes + [(gens / (2.0 * n_anc), 1.0)], n_anc)
 
 
-History = ConstantSize | OneChange | TwoChanges | ExponentialChange
+#: Longest total duration of an :class:`Epochs` history, in units of 2 N_anc generations
+#: (older changes have left no trace in the spectra: their epoch is the ancestral one).
+MAX_TOTAL_DURATION = 50.0
 
-_HISTORY_TYPES = (ConstantSize, OneChange, TwoChanges, ExponentialChange)
+
+@dataclass(frozen=True)
+class Epochs:
+    r"""A history given epoch by epoch (e.g. read from a demes file).
+
+    Parameters
+    ----------
+    parts : tuple of (float, float, float)
+        ``(duration, nu_start, nu_end)`` after the ancestral equilibrium, oldest first:
+        durations in units of :math:`2N_{anc}` generations (positive, at most
+        :data:`MAX_TOTAL_DURATION` in all), size ratios in [0.01, 100]; an epoch with
+        ``nu_start != nu_end`` changes exponentially between them.
+
+    Examples
+    --------
+    >>> h = Epochs(((0.5, 0.2, 0.2), (0.1, 0.2, 2.0)))
+    >>> h.nu_now
+    2.0
+    """
+
+    parts: tuple[tuple[float, float, float], ...]
+
+    def __post_init__(self) -> None:
+        out = []
+        for k, ep in enumerate(self.parts):
+            try:
+                d, a, b = (float(v) for v in ep)
+            except (TypeError, ValueError):
+                raise OptionError(
+                    f"size history: epoch {k + 1} must be (duration, nu_start, nu_end), got {ep!r}"
+                ) from None
+            if not (math.isfinite(d) and d > 0):
+                raise OptionError(
+                    f"size history: epoch {k + 1} must last a positive time, got {d!r}"
+                )
+            out.append((d, _nu(f"epoch {k + 1} nu_start", a), _nu(f"epoch {k + 1} nu_end", b)))
+        total = sum(d for d, _a, _b in out)
+        if total > MAX_TOTAL_DURATION:
+            raise OptionError(
+                f"size history: the epochs last {total:g} (units of 2 N_anc generations), "
+                f"more than {MAX_TOTAL_DURATION:g}; start the history at its last "
+                f"{MAX_TOTAL_DURATION:g} units (older changes leave no trace in the spectra)"
+            )
+        object.__setattr__(self, "parts", tuple(out))
+
+    @property
+    def nu_now(self) -> float:
+        """Current size over ancestral size."""
+        return self.parts[-1][2] if self.parts else 1.0
+
+    def epochs(self) -> list[tuple[float, float, float]]:
+        """``(duration, nu_start, nu_end)`` after the ancestral equilibrium, oldest first."""
+        return list(self.parts)
+
+    def simulator_epochs(self, ancestral_size: int) -> tuple[tuple[int, int], ...]:
+        """The history as the simulator's ``(generations_ago, diploid_size)`` epochs
+        (exponential epochs one generation at a time)."""
+        n_anc = int(ancestral_size)
+        changes: list[tuple[float, float]] = []
+        end = 0.0  # time before the sample at which the current epoch ends
+        for d, a, b in reversed(self.parts):
+            gens = max(1, int(round(2 * n_anc * d)))
+            if a == b:
+                changes.append((end, b))
+            else:
+                for g in range(gens):
+                    changes.append((end + g / (2.0 * n_anc), b * (a / b) ** (g / gens)))
+            end += gens / (2.0 * n_anc)
+        return _sim_epochs(changes + [(end, 1.0)], n_anc)
+
+
+History = ConstantSize | OneChange | TwoChanges | ExponentialChange | Epochs
+
+_HISTORY_TYPES = (ConstantSize, OneChange, TwoChanges, ExponentialChange, Epochs)
 
 
 @dataclass(frozen=True)

@@ -168,6 +168,15 @@ VARIANTS_ONLY_FLAG = (
     "site was in fact callable."
 )
 
+#: The flag of a population whose spectra came from an all-sites VCF with gaps (records
+#: at fewer than 90 % of the class sites) without a callable-sites BED.
+SPARSE_FLAG = (
+    "The VCF holds monomorphic records, but not at every class site, and no callable-sites "
+    "BED was given: the class sites without a record were counted as callable "
+    "monomorphic sites. If they were not callable, the callable sites are inflated and "
+    "\u03b8 and the DFE are biased; recount with a callable-sites BED (--callable)."
+)
+
 CAUTIONS = [
     (
         "Demographic misspecification",

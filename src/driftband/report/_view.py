@@ -18,6 +18,7 @@ from ..exceptions import InputError
 from ._inputs import check_compare_rows, check_fit_doc, check_spectra_doc
 from ._text import (
     ALPHA_LEVEL,
+    SPARSE_FLAG,
     VARIANTS_ONLY_FLAG,
     adjust_name,
     band_label,
@@ -367,10 +368,15 @@ def spectra_flags(doc: dict[str, Any]) -> list[str]:
     -------
     list of str
         The variants-only warning when its callable sites were assumed
-        (``provenance.callable_sites.warning``); empty otherwise.
+        (``provenance.callable_sites.warning``), the warning of an all-sites VCF with
+        gaps (``sparse``); empty otherwise.
     """
     cs = (doc.get("provenance") or {}).get("callable_sites") or {}
-    return [VARIANTS_ONLY_FLAG] if cs.get("warning") else []
+    if cs.get("warning"):
+        return [VARIANTS_ONLY_FLAG]
+    if cs.get("sparse") and cs.get("source") == "all_sites_vcf":
+        return [SPARSE_FLAG]
+    return []
 
 
 def _share(pops: dict[str, PopulationView], name: str, model: str) -> float | None:

@@ -109,6 +109,10 @@ class StageCache:
         self.records[sid] = rec
         self._write()
 
+    def ran_on(self) -> dict[str, str]:
+        """Where each recorded stage ran (``""`` for records of older versions)."""
+        return {sid: str(rec.get("ran_on") or "") for sid, rec in self.records.items()}
+
     def drop(self, sid: str) -> None:
         """Forget stage ``sid`` (the file is rewritten only when it had a record)."""
         if self.records.pop(sid, None) is not None:
@@ -209,10 +213,14 @@ def run_log(path: Path) -> Iterator[RunLog]:
 class StageRunner:
     """Runs stages through the cache; turns user errors into one StageError."""
 
-    def __init__(self, cache: StageCache, col: RunLog, stages: dict[str, str]) -> None:
+    def __init__(
+        self, cache: StageCache, col: RunLog, stages: dict[str, str], ran_on: str = ""
+    ) -> None:
         self.cache = cache
         self.col = col
         self.stages = stages
+        #: Where the stages of this run compute (recorded with each stage that runs).
+        self.ran_on = ran_on
 
     def run(
         self,
@@ -229,7 +237,7 @@ class StageRunner:
             log.info("stage %s: skipped (inputs and options unchanged)", sid)
             self.stages[sid] = "skipped"
             return False
-        log.info("stage %s: running", sid)
+        log.info("stage %s: running%s", sid, f" ({self.ran_on})" if self.ran_on else "")
         t0 = time.monotonic()
         try:
             with output_set():  # the outputs of a stage are committed together
@@ -260,6 +268,7 @@ class StageRunner:
                 "outputs": {p.name: sha256sum(p) for p in outputs},
                 "finished": _dt.datetime.now(_dt.timezone.utc).isoformat(timespec="seconds"),
                 "seconds": round(secs, 2),
+                "ran_on": self.ran_on,
             },
         )
         log.info("stage %s: done in %.1f s (%s)", sid, secs, ", ".join(p.name for p in outputs))

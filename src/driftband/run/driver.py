@@ -49,7 +49,7 @@ from pathlib import Path
 from typing import Any
 
 from .._io import atomic_output
-from .._parallel import available_cores, resolve_workers
+from .._parallel import available_cores, connect, resolve_workers, scheduler_address
 from .._version import __version__
 from ..exceptions import InputError, OptionError
 from .cache import StageCache, StageRunner, run_log
@@ -228,6 +228,7 @@ def run_study(
     workers: int | None = None,
     seed: int | None = None,
     level: float | None = None,
+    scheduler: Any = None,
 ) -> RunResult:
     """Run every stage of a study into one output folder (see the module docstring).
 
@@ -241,6 +242,10 @@ def run_study(
         Redo every stage, and write into a folder that holds another study.
     replicates, workers, seed, level : optional
         Override the study's bootstrap settings.
+    scheduler : str or distributed.Client, optional
+        Run every stage's tasks (spectra regions, fits, bootstrap refits, tests) on this
+        dask cluster instead of local worker processes; the results are the same. An
+        address is connected to before any work (an unreachable one fails at once).
 
     Returns
     -------
@@ -265,42 +270,54 @@ def run_study(
     check_files(study)
     options = fit_options(study)
     _preflight(study)
-    paths = output_paths(study, out)
-    _check_out_dir(out, study, paths["study"], force)
-    paths["provenance"].mkdir(parents=True, exist_ok=True)
-    result = RunResult(out, paths)
-    with run_log(paths["log"]) as col:
-        log.info(
-            "driftband %s: run of study %r (%s) into %s%s",
-            __version__,
-            study.name,
-            study.source or "command-line flags",
-            out,
-            " (--force)" if force else "",
-        )
-        _remove_stale_temporaries(paths)
-        with atomic_output(paths["study"], force=True) as fh:
-            json.dump(
-                {
-                    "schema": _STUDY_SCHEMA,
-                    "schema_version": 1,
-                    "identity": study.identity(),
-                    "study": study.to_dict(),
-                    "driftband": __version__,
-                    "updated": _dt.datetime.now(_dt.timezone.utc).isoformat(timespec="seconds"),
-                },
-                fh,
-                indent=1,
+    # connect before any output is written: an unreachable scheduler fails at once
+    client = connect(scheduler) if isinstance(scheduler, str) else scheduler
+    try:
+        paths = output_paths(study, out)
+        _check_out_dir(out, study, paths["study"], force)
+        paths["provenance"].mkdir(parents=True, exist_ok=True)
+        result = RunResult(out, paths)
+        with run_log(paths["log"]) as col:
+            log.info(
+                "driftband %s: run of study %r (%s) into %s%s",
+                __version__,
+                study.name,
+                study.source or "command-line flags",
+                out,
+                " (--force)" if force else "",
             )
-            fh.write("\n")
-        if study.text is not None:
-            with atomic_output(paths["study_toml"], force=True) as fh:
-                fh.write(study.text)
-        cache = StageCache(paths["stages"], force)
-        runner = StageRunner(cache, col, result.stages)
-        _run_stages(study, options, paths, runner, cache, workers)
-        result.seconds = time.monotonic() - t0
-        log.info("run finished in %.1f s: %s", result.seconds, paths["report"])
+            _remove_stale_temporaries(paths)
+            with atomic_output(paths["study"], force=True) as fh:
+                json.dump(
+                    {
+                        "schema": _STUDY_SCHEMA,
+                        "schema_version": 1,
+                        "identity": study.identity(),
+                        "study": study.to_dict(),
+                        "driftband": __version__,
+                        "updated": _dt.datetime.now(_dt.timezone.utc).isoformat(timespec="seconds"),
+                    },
+                    fh,
+                    indent=1,
+                )
+                fh.write("\n")
+            if study.text is not None:
+                with atomic_output(paths["study_toml"], force=True) as fh:
+                    fh.write(study.text)
+            cache = StageCache(paths["stages"], force)
+            nw = workers or study.bootstrap.workers or available_cores()
+            where = (
+                f"dask scheduler {scheduler_address(client)}"
+                if client is not None
+                else f"{nw} local worker process{'es' if nw != 1 else ''}"
+            )
+            runner = StageRunner(cache, col, result.stages, where)
+            _run_stages(study, options, paths, runner, cache, workers, client)
+            result.seconds = time.monotonic() - t0
+            log.info("run finished in %.1f s: %s", result.seconds, paths["report"])
+    finally:
+        if client is not None and client is not scheduler:
+            client.close()
     return result
 
 
@@ -343,6 +360,7 @@ def _run_stages(
     runner: StageRunner,
     cache: StageCache,
     workers: int | None,
+    client: Any = None,
 ) -> None:
     spectra = []
     for i, d in enumerate(study.datasets):
@@ -371,7 +389,7 @@ def _run_stages(
             inputs,
             d.spectra_options(),
             [dp["spectra"]],
-            _keys_of(study, i, stage_spectra, d, dp["sites"], dp["spectra"]),
+            _keys_of(study, i, stage_spectra, d, dp["sites"], dp["spectra"], workers, client),
         )
         spectra.append((d.name, d.name if study.several else "", dp["spectra"]))
     nworkers = workers or study.bootstrap.workers or available_cores()
@@ -384,7 +402,7 @@ def _run_stages(
         fit_opts,
         [paths["point_fits"]],
         lambda: stage_fit(
-            spectra, options, study.fit.populations, paths["point_fits"], nworkers, study
+            spectra, options, study.fit.populations, paths["point_fits"], nworkers, study, client
         ),
     )
     b = study.bootstrap
@@ -409,6 +427,7 @@ def _run_stages(
             paths["fit"],
             paths["bands"],
             workers,
+            client,
         ),
     )
     npop = len(json.loads(paths["fit"].read_text(encoding="utf-8"))["populations"])
@@ -426,7 +445,7 @@ def _run_stages(
                 "relative_mutation_rate": c.relative_mutation_rate,
             },
             [paths["compare"]],
-            lambda: stage_compare(paths["fit"], c, paths["compare"], nworkers, study),
+            lambda: stage_compare(paths["fit"], c, paths["compare"], nworkers, study, client),
         )
         compare = paths["compare"]
     else:
@@ -443,7 +462,13 @@ def _run_stages(
         {"study": study.name, "description": study.description, "identity": study.identity()},
         [paths["report"], paths["summary"]],
         lambda: stage_report(
-            study, paths["fit"], compare, spectra, paths["report"], paths["summary"]
+            study,
+            paths["fit"],
+            compare,
+            spectra,
+            paths["report"],
+            paths["summary"],
+            {k: v for k, v in cache.ran_on().items() if k in runner.stages},
         ),
     )
 

@@ -257,7 +257,13 @@ def _polarisation(d: Dataset, h: Any, vchroms: list[str], out: DatasetCheck) -> 
 def _counted(d: Dataset, study: Study, src: Any, out: DatasetCheck, workers: int | None) -> None:
     """The pass over the records: counts, candidate n, callable sites, the run's plan."""
     from ..spectra.build import SpectraOptions, count_prepared, prepare_counting
-    from ..spectra.callable import CALLABLE_SOURCES, callable_status, variants_only_message
+    from ..spectra.callable import (
+        CALLABLE_SOURCES,
+        callable_status,
+        sites_with_records,
+        sparse_message,
+        variants_only_message,
+    )
     from ..spectra.projection import DEFAULT_KEEP_FRACTION, spectra_from_counts
 
     opts = SpectraOptions(
@@ -309,6 +315,9 @@ def _counted(d: Dataset, study: Study, src: Any, out: DatasetCheck, workers: int
     out.facts.append(("callable from", CALLABLE_SOURCES[status["source"]]))
     if status["warn"]:
         out.warnings.append(variants_only_message(src.path))
+    elif status.get("sparse") and not d.all_sites_callable:
+        absent = max(sum(per.values()) - sites_with_records(total), 0)
+        out.warnings.append(sparse_message(src.path, status["record_coverage"], absent))
     for pop in out.populations:
         rows = total.rows.get(pop.name)
         if pop.role != "focal" or rows is None or not rows.size:

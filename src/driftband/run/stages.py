@@ -135,7 +135,11 @@ def stage_classify(
 
 
 def stage_spectra(
-    dataset: Dataset, sites: str | os.PathLike[str], out_json: str | os.PathLike[str]
+    dataset: Dataset,
+    sites: str | os.PathLike[str],
+    out_json: str | os.PathLike[str],
+    workers: int | None = None,
+    scheduler: Any = None,
 ) -> Any:
     """Spectra of a dataset (all populations, both classes, per block), written as JSON.
 
@@ -145,6 +149,10 @@ def stage_spectra(
     sites : path-like
         BED4 of the site classes (given, or made by :func:`stage_classify`).
     out_json : path-like
+    workers : int, optional
+        Local worker processes for the regions (default: the cores available).
+    scheduler : str or distributed.Client, optional
+        Count the regions on this dask cluster instead.
 
     Returns
     -------
@@ -168,6 +176,8 @@ def stage_spectra(
         pass_only=dataset.pass_only,
         exclude_lowercase_ancestral=dataset.exclude_lowercase_ancestral,
         all_sites_callable=dataset.all_sites_callable,
+        workers=workers,
+        scheduler=scheduler,
     )
     write_spectra_json(ss, out_json, force=True)
     for line in summary_lines(ss):
@@ -195,6 +205,7 @@ def stage_fit(
     out_json: str | os.PathLike[str],
     workers: int | None = None,
     study: Study | None = None,
+    scheduler: Any = None,
 ) -> list[Any]:
     """Point fits of every model of ``options`` to every population.
 
@@ -212,6 +223,8 @@ def stage_fit(
         Worker processes (one task per population and model; default 1).
     study : Study, optional
         The study the options came from (messages name its ``[fit]`` keys).
+    scheduler : str or distributed.Client, optional
+        Fit on this dask cluster instead of local workers.
 
     Returns
     -------
@@ -221,7 +234,14 @@ def stage_fit(
     from ..fit.io import fit_document, write_fit_json
 
     src = _source(study, "fit") if study is not None else COMMAND_LINE
-    fits = fit_spectra(_labelled(spectra), options, populations, workers=workers or 1, source=src)
+    fits = fit_spectra(
+        _labelled(spectra),
+        options,
+        populations,
+        workers=workers or 1,
+        scheduler=scheduler,
+        source=src,
+    )
     prov = provenance(options.to_dict(), {"spectra": _spectra_records(spectra)})
     write_fit_json(fit_document(fits, options.to_dict(), prov), out_json, force=True)
     return fits
@@ -236,6 +256,7 @@ def stage_bootstrap(
     out_json: str | os.PathLike[str],
     out_bands: str | os.PathLike[str],
     workers: int | None = None,
+    scheduler: Any = None,
 ) -> dict[str, Any]:
     """Block bootstrap of the point fits; writes the fit file and the band table.
 
@@ -256,6 +277,8 @@ def stage_bootstrap(
     workers : int, optional
         Worker processes (default ``settings.workers``, else the cores available); the
         results do not depend on it.
+    scheduler : str or distributed.Client, optional
+        Run the refits on this dask cluster instead (same results).
 
     Returns
     -------
@@ -294,6 +317,7 @@ def stage_bootstrap(
             seed=settings.seed,
             level=settings.level,
             workers=workers or settings.workers,
+            scheduler=scheduler,
             models=booted,
         )
     opts = options.to_dict() | {
@@ -332,6 +356,7 @@ def stage_compare(
     out_tsv: str | os.PathLike[str],
     workers: int | None = None,
     study: Study | None = None,
+    scheduler: Any = None,
 ) -> list[Any]:
     """Tests between pairs of populations (every pair unless ``settings.pairs``).
 
@@ -347,6 +372,8 @@ def stage_compare(
         Worker processes for the tests (one task per pair and test; default 1).
     study : Study, optional
         For messages naming the study file's keys.
+    scheduler : str or distributed.Client, optional
+        Run the tests on this dask cluster instead of local workers.
 
     Returns
     -------
@@ -369,6 +396,7 @@ def stage_compare(
         source=source,
         holder="the study has",
         workers=workers,
+        scheduler=scheduler,
     )
     write_compare_tsv(rows, out_tsv, force=True)
     return rows
@@ -381,6 +409,7 @@ def stage_report(
     spectra: list[SpectraFile],
     out_html: str | os.PathLike[str],
     out_md: str | os.PathLike[str],
+    ran_on: dict[str, str] | None = None,
 ) -> None:
     """The HTML report and the Markdown summary of a study.
 
@@ -392,6 +421,9 @@ def stage_report(
     compare_tsv : path-like or None
     spectra : list of (dataset, label, path)
     out_html, out_md : path-like
+    ran_on : dict of str to str, optional
+        Where each stage ran (stage id -> e.g. ``2 local worker processes``), shown in
+        the report's provenance.
     """
     import matplotlib
 
@@ -416,9 +448,11 @@ def stage_report(
         for key in FILE_KEYS:
             if getattr(d, key) is not None:
                 inputs[f"{d.name} {key}"] = file_record(getattr(d, key))
-    opts = {"study": study.name}
+    opts: dict[str, Any] = {"study": study.name}
     if study.description:
         opts["description"] = study.description
+    if ran_on:
+        opts["stages ran on"] = "; ".join(f"{k}: {v}" for k, v in ran_on.items() if v)
     prov = provenance(opts, inputs)
     prov["environment"]["matplotlib"] = matplotlib.__version__
     prov["seed"] = (fit_doc.get("options") or {}).get("seed", study.bootstrap.seed)

@@ -36,7 +36,12 @@ from ..sites.bed import IntervalSet, SiteClasses, read_mask, read_site_classes
 from ..variants.samples import SampleAssignment, SampleTable, assign_samples, read_sample_table
 from ..variants.source import VariantSource, VcfSource, open_variants
 from ._types import Block, SpectraSet
-from .callable import callable_status, sites_with_records, variants_only_message
+from .callable import (
+    callable_status,
+    sites_with_records,
+    sparse_message,
+    variants_only_message,
+)
 from .counting import CountDesign, RegionCounts, count_stream, make_design
 from .plan import (
     DEFAULT_REGION_SIZE,
@@ -388,9 +393,11 @@ def _build(
         total, callable_mask is not None, opts.all_sites_callable, sum(plan.sites().values())
     )
     ss = spectra_from_counts(total, prep.design, plan.blocks, opts.project, opts.keep)
+    absent = max(sum(plan.sites().values()) - sites_with_records(total), 0)
     if status["warn"]:
-        absent = max(sum(plan.sites().values()) - sites_with_records(total), 0)
         log.warning("%s", variants_only_message(src.path, absent))
+    elif status.get("sparse") and not opts.all_sites_callable:
+        log.warning("%s", sparse_message(src.path, status["record_coverage"], absent))
     ss.provenance = _provenance(
         opts,
         digest,

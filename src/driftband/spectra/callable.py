@@ -16,7 +16,19 @@ from typing import Any
 
 from .counting import RegionCounts
 
-__all__ = ["CALLABLE_SOURCES", "callable_status", "sites_with_records", "variants_only_message"]
+__all__ = [
+    "CALLABLE_SOURCES",
+    "SPARSE_COVERAGE",
+    "callable_status",
+    "sites_with_records",
+    "sparse_message",
+    "variants_only_message",
+]
+
+#: An all-sites VCF (one with monomorphic records) without a mask is called *sparse*
+#: when fewer than this share of the callable class sites hold a record: the sites
+#: without one are still counted as callable monomorphic sites.
+SPARSE_COVERAGE = 0.9
 
 #: Where the callable sites of a spectra file come from (``provenance.callable_sites.source``),
 #: in words for the summary and the report.
@@ -59,7 +71,9 @@ def callable_status(
         ``"all_sites_vcf"``, ``"stated"`` or ``"assumed"``) and ``warn`` (bool: a
         variants-only VCF whose absent sites are assumed callable); with
         ``callable_sites``, also ``record_coverage``: the share of the callable class
-        sites that hold a record (near 1 for an all-sites VCF without a mask).
+        sites that hold a record (near 1 for an all-sites VCF without a mask), and
+        ``sparse``: an all-sites VCF without a mask whose records cover fewer than
+        :data:`SPARSE_COVERAGE` of the callable class sites.
     """
     used = sites_with_records(total)
     variants_only = total.monomorphic == 0 and used > 0
@@ -79,6 +93,7 @@ def callable_status(
     }
     if callable_sites:
         out["record_coverage"] = round(used / callable_sites, 6)
+        out["sparse"] = source == "all_sites_vcf" and used < SPARSE_COVERAGE * callable_sites
     return out
 
 
@@ -99,4 +114,16 @@ def variants_only_message(vcf: str, absent_sites: int | None = None) -> str:
         "which inflates the callable sites and biases theta and the fit wherever coverage "
         "was patchy; give a callable-sites BED (--callable, e.g. from depth filters) or an "
         "all-sites VCF, or state --all-sites-callable if every class site was callable"
+    )
+
+
+def sparse_message(vcf: str, coverage: float, absent_sites: int) -> str:
+    """The warning for an all-sites VCF with gaps and no callable-sites BED (one line)."""
+    return (
+        f"{vcf} holds monomorphic records (an all-sites VCF) but they cover only "
+        f"{coverage:.1%} of the callable class sites: the {absent_sites:,} class sites "
+        "without a record are counted as callable and monomorphic (entry 0), which "
+        "inflates the callable sites and biases theta and the fit if they were not "
+        "callable; give a callable-sites BED (--callable) or state --all-sites-callable "
+        "if every class site was callable"
     )
