@@ -37,6 +37,7 @@ RUN_ELSEWHERE = {
     "Refitting published spectra": ("test_cli_fit_compare", "test_readme_reviewer_example"),
     "Variants-only VCFs": ("test_variants_only", "test_readme_variants_only_example_runs"),
     "Running on a cluster": ("test_parallel", "test_readme_cluster_commands_use_real_options"),
+    "VCF Zarr input": ("test_vcz", "test_readme_vcz_example_runs"),
 }
 
 

@@ -51,12 +51,30 @@ __all__ = [
 
 
 def sha256sum(path: str | os.PathLike, chunk: int = 1 << 20) -> str:
-    """Hex SHA-256 checksum of a file."""
+    """Hex SHA-256 checksum of a file; of a folder (a VCF Zarr store), of the relative
+    paths and contents of its files in path order."""
     h = hashlib.sha256()
-    with open(path, "rb") as fh:
-        while block := fh.read(chunk):
-            h.update(block)
+    for rel, full in _files(path):
+        if rel:
+            h.update(rel.encode() + b"\0")
+        with open(full, "rb") as fh:
+            while block := fh.read(chunk):
+                h.update(block)
     return h.hexdigest()
+
+
+def _files(path: str | os.PathLike) -> list[tuple[str, str]]:
+    """``[("", path)]`` for a file; for a folder, its files as (relative path, path)."""
+    p = os.fspath(path)
+    if not os.path.isdir(p):
+        return [("", p)]
+    out = []
+    for top, dirs, names in os.walk(p):
+        dirs.sort()
+        for n in names:
+            full = os.path.join(top, n)
+            out.append((os.path.relpath(full, p).replace(os.sep, "/"), full))
+    return sorted(out)
 
 
 @overload
@@ -66,13 +84,14 @@ def file_record(path: None) -> None: ...
 @overload
 def file_record(path: str | os.PathLike | None) -> dict[str, Any] | None: ...
 def file_record(path: str | os.PathLike | None) -> dict[str, Any] | None:
-    """Path, size and SHA-256 of an input file (``-`` for standard input)."""
+    """Path, size and SHA-256 of an input file or folder (``-`` for standard input)."""
     if path is None:
         return None
     p = os.fspath(path)
     if p == "-":
         return {"path": "-", "size": None, "sha256": None}
-    return {"path": os.path.abspath(p), "size": os.path.getsize(p), "sha256": sha256sum(p)}
+    size = sum(os.path.getsize(f) for _, f in _files(p))
+    return {"path": os.path.abspath(p), "size": size, "sha256": sha256sum(p)}
 
 
 def provenance(

@@ -40,8 +40,8 @@ class OutputSet:
     :func:`commit_output`) writes to a temporary file next to its final path; the renames
     happen together when the set closes without error, and on any error (or interruption)
     every temporary file is removed, so a command leaves either all its outputs or none.
-    The set also knows the command's input files, which no output may replace (even with
-    ``--force``).
+    The set also knows the command's input files (and input folders: a VCF Zarr store),
+    which no output may replace or lie in (even with ``--force``).
 
     Parameters
     ----------
@@ -148,6 +148,12 @@ def _same_file(a: str, b: str) -> bool:
         return os.path.abspath(a) == os.path.abspath(b)
 
 
+def _inside(path: str, folder: str) -> bool:
+    """Whether ``path`` lies inside ``folder`` (links resolved)."""
+    p, f = os.path.realpath(path), os.path.realpath(folder)
+    return os.path.commonpath([p, f]) == f and p != f
+
+
 def check_output_path(path: str | os.PathLike, force: bool = False) -> None:
     """Refuse an output path that cannot or must not be written.
 
@@ -173,6 +179,11 @@ def check_output_path(path: str | os.PathLike, force: bool = False) -> None:
                 raise OptionError(
                     f"{p}: is an input of this command; choose another output path "
                     "(--force never overwrites an input)"
+                )
+            if os.path.isdir(inp) and _inside(p, inp):
+                raise OptionError(
+                    f"{p}: lies inside {inp}, an input folder of this command; choose an "
+                    "output path outside it"
                 )
     if os.path.isdir(p):
         raise OptionError(f"{p}: is a folder; give a file name for this output")

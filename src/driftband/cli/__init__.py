@@ -114,7 +114,9 @@ OUTPUT_DESTS = frozenset({"output", "tsv", "summary", "bands_tsv", "out_dir"})
 
 
 def _input_files(args: argparse.Namespace) -> list[str]:
-    """The existing files named by the arguments that are not outputs."""
+    """The existing files named by the arguments that are not outputs, and the folders
+    that are Zarr stores (a VCF Zarr input: ``.zgroup`` or ``zarr.json`` at its top), whose
+    files no output may replace either."""
     outs = OUTPUT_DESTS | frozenset(getattr(args, "output_dests", ()))
     found: list[str] = []
     for dest, value in vars(args).items():
@@ -126,7 +128,10 @@ def _input_files(args: argparse.Namespace) -> list[str]:
             v = os.fspath(v)
             # LABEL=PATH values (report --spectra, fit --label) name a file after the '='
             for cand in (v, v.partition("=")[2]) if "=" in v else (v,):
-                if cand and os.path.isfile(cand):
+                store = os.path.isdir(cand) and any(
+                    os.path.isfile(os.path.join(cand, m)) for m in (".zgroup", "zarr.json")
+                )
+                if cand and (os.path.isfile(cand) or store):
                     found.append(cand)
     return found
 

@@ -12,8 +12,8 @@ from ._common import CommaList, Subparsers, add_common_arguments, add_subcommand
 __all__ = ["add_parser", "parse_project", "run"]
 
 DESCRIPTION = """\
-Count per-population, per-class site frequency spectra from a multi-sample VCF/BCF,
-kept per genomic block for the block bootstrap.
+Count per-population, per-class site frequency spectra from a multi-sample VCF/BCF or
+VCF Zarr store, kept per genomic block for the block bootstrap.
 
 Keeps biallelic SNPs at the sites of the class BED (intersected with --callable);
 callable sites absent from the VCF count as monomorphic ancestral (entry 0). A VCF with
@@ -35,6 +35,7 @@ driftband spectra calls.vcf.gz --samples pops.tsv --sites classes.bed \\
     --ancestral fasta:ancestor.fa.gz --exclude-lowercase-ancestral -o spectra.json
 bcftools view -s A1,A2,B1,B2 calls.vcf.gz | driftband spectra - --samples pops.tsv \\
     --sites classes.bed -o spectra.json
+driftband spectra calls.vcz --samples pops.tsv --sites classes.bed -o spectra.json
 driftband spectra calls.vcf.gz --samples pops.tsv --sites classes.bed --workers 8 \\
     --region-size 2000000 -o spectra.json
 driftband spectra calls.vcf.gz --samples pops.tsv --sites classes.bed \\
@@ -54,7 +55,8 @@ def add_parser(subparsers: Subparsers) -> argparse.ArgumentParser:
     p.add_argument(
         "vcf",
         metavar="VCF",
-        help="VCF (bgzipped + indexed, bgzipped, gzipped or plain), BCF, or - for standard input",
+        help="VCF (bgzipped + indexed, bgzipped, gzipped or plain), BCF, - for standard "
+        "input, or a VCF Zarr store (.vcz folder or zip; needs driftband[vcz])",
     )
     p.add_argument(
         "--samples",
@@ -134,7 +136,9 @@ def add_parser(subparsers: Subparsers) -> argparse.ArgumentParser:
         metavar="TSV",
         help="also write the long table population, class, n, folded, derived_copies, site_count",
     )
-    x = p.add_argument_group("parallel counting (indexed VCF/BCF; results do not depend on these)")
+    x = p.add_argument_group(
+        "parallel counting (indexed VCF/BCF or VCF Zarr; results do not depend on these)"
+    )
     x.add_argument(
         "--workers",
         type=int,

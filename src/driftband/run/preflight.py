@@ -109,11 +109,11 @@ def check_dataset(
     d: Dataset, study: Study, count: bool = True, workers: int | None = 1
 ) -> DatasetCheck:
     """Preflight checks of one dataset of ``study`` (see :func:`check_study`)."""
-    from ..variants.source import VcfSource
+    from ..variants.source import open_variants
 
     out = DatasetCheck(d.name)
     try:
-        src = VcfSource(d.vcf)
+        src = open_variants(d.vcf)
     except DriftbandError as err:
         out.problems.append(str(err))
         return out
@@ -154,6 +154,8 @@ def _static(d: Dataset, src: Any, out: DatasetCheck) -> None:
 
     h = src.header
     kind = "indexed" if src.indexed else "not indexed (read as one stream)"
+    if src.kind == "vcz":
+        kind = f"VCF Zarr store, version {getattr(src, 'version', '?')}"
     out.facts.append(("VCF", f"{d.vcf}: {kind}, {len(h.samples)} samples"))
     try:
         pm = read_sample_table(d.samples)

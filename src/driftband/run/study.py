@@ -64,7 +64,11 @@ STUDY_KEYS: dict[str, dict[str, tuple[str, str]]] = {
             "label of the dataset; population names become NAME/POP when "
             "the study has several datasets (default: the VCF's name)",
         ),
-        "vcf": ("file", "VCF/BCF of all samples (bgzipped + indexed, bgzipped or plain)"),
+        "vcf": (
+            "file",
+            "VCF/BCF of all samples (bgzipped + indexed, bgzipped or plain), or a VCF Zarr "
+            "store (.vcz)",
+        ),
         "samples": ("file", "the sample table: TSV of sample and population columns"),
         "sites": ("file", "BED4 of site classes (0fold, 4fold); or give fasta + gff"),
         "fasta": ("file", "reference FASTA (plain or bgzipped) to classify sites from"),
@@ -485,7 +489,7 @@ def _resolve(base: Path, p: str) -> str:
 
 def _default_name(vcf: str) -> str:
     name = os.path.basename(vcf)
-    for ext in (".gz", ".bgz", ".vcf", ".bcf"):
+    for ext in (".gz", ".bgz", ".zip", ".vcz", ".vcf", ".bcf"):
         if name.endswith(ext):
             name = name[: -len(ext)]
     name = re.sub(r"[^A-Za-z0-9_.-]", "_", name).strip("._-")
@@ -748,7 +752,7 @@ def check_files(study: Study) -> None:
                 raise InputError(
                     f"dataset {d.name!r}: {key} file {p} not found", study.source, line
                 )
-            if os.path.isdir(p):
+            if os.path.isdir(p) and key != "vcf":  # a VCF Zarr store may be a folder
                 where = (
                     f"--{key}"
                     if study.source is None

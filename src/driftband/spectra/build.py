@@ -34,7 +34,7 @@ from .._progress import Progress
 from ..exceptions import InputError, OptionError
 from ..sites.bed import IntervalSet, SiteClasses, read_mask, read_site_classes
 from ..variants.samples import SampleAssignment, SampleTable, assign_samples, read_sample_table
-from ..variants.source import VcfSource
+from ..variants.source import VariantSource, VcfSource, open_variants
 from ._types import Block, SpectraSet
 from .callable import (
     callable_status,
@@ -211,7 +211,7 @@ def build_spectra(
     client = connect(scheduler) if isinstance(scheduler, str) else scheduler  # fail fast
     src = None
     try:
-        src = VcfSource(vcf)
+        src = open_variants(vcf)
         ss = _build(src, vcf, sample_table, sites, callable_mask, opts, progress, client)
     finally:
         if src is not None:
@@ -267,7 +267,7 @@ class Prepared:
 
 
 def prepare_counting(
-    src: VcfSource,
+    src: VariantSource,
     sample_table: SampleTable | str | os.PathLike,
     sites: SiteClasses | str | os.PathLike,
     callable_mask: IntervalSet | str | os.PathLike | None,
@@ -277,8 +277,8 @@ def prepare_counting(
 
     Parameters
     ----------
-    src : VcfSource
-        The open VCF/BCF.
+    src : VcfSource or VczSource
+        The open VCF/BCF or VCF Zarr store.
     sample_table, sites, callable_mask
         As for :func:`build_spectra`.
     opts : SpectraOptions
@@ -341,7 +341,7 @@ def prepare_counting(
 
 
 def count_prepared(
-    src: VcfSource,
+    src: VariantSource,
     prep: Prepared,
     opts: SpectraOptions,
     progress: Callable[[int, int, int], None] | None = None,
@@ -363,6 +363,7 @@ def count_prepared(
             progress=progress,
         )
     else:
+        assert isinstance(src, VcfSource)  # a store is always read by region
         check = None if prep.chroms_known else (prep.classes, prep.bed_path)
         total, plan = _count_unindexed(
             src, prep.design, prep.plan, opts, progress, scheduler, check
@@ -373,7 +374,7 @@ def count_prepared(
 
 
 def _build(
-    src: VcfSource,
+    src: VariantSource,
     vcf: str | os.PathLike,
     sample_table: SampleTable | str | os.PathLike,
     sites: SiteClasses | str | os.PathLike,
@@ -416,8 +417,9 @@ def _build(
     return ss
 
 
-def _check_header(src: VcfSource, opts: SpectraOptions) -> str:
-    """Check that the VCF header has what the options need; the outgroup's name or ''."""
+def _check_header(src: VariantSource, opts: SpectraOptions) -> str:
+    """Check that the VCF header (or the store's arrays) has what the options need; the
+    outgroup's name or ''."""
     kind, _, og = opts.ancestral.partition(":")
     if kind == "outgroup" and not og:
         raise OptionError("--ancestral outgroup:POP needs the outgroup population's name")
@@ -426,10 +428,16 @@ def _check_header(src: VcfSource, opts: SpectraOptions) -> str:
             "--exclude-lowercase-ancestral applies only to --ancestral fasta:FILE "
             f"(not {opts.ancestral})"
         )
+    store = src.kind == "vcz"
     if kind == "aa" and "AA" not in src.header.info:
+        where = (
+            "the store has no variant_AA array"
+            if store
+            else "the header declares no ##INFO=<ID=AA> field"
+        )
         raise InputError(
-            "--ancestral aa needs INFO/AA, but the header declares no "
-            "##INFO=<ID=AA> field; use --ancestral fold or outgroup:POP",
+            f"--ancestral aa needs INFO/AA, but {where}; use --ancestral fold, "
+            "outgroup:POP or fasta:FILE",
             src.path,
         )
     if "GT" not in src.header.formats:
@@ -439,7 +447,12 @@ def _check_header(src: VcfSource, opts: SpectraOptions) -> str:
         )
     for name, v, key in (("--min-dp", opts.min_dp, "DP"), ("--min-gq", opts.min_gq, "GQ")):
         if v is not None and key not in src.header.formats:
-            raise InputError(f"{name} given but the header declares no FORMAT/{key}", src.path)
+            where = (
+                f"the store has no call_{key} array"
+                if store
+                else (f"the header declares no FORMAT/{key}")
+            )
+            raise InputError(f"{name} given but {where}", src.path)
     return og if kind == "outgroup" else ""
 
 

@@ -49,7 +49,8 @@ import numpy as np
 from ..exceptions import InputError, OptionError
 from ..variants.batches import VariantBatch
 from ..variants.samples import SampleAssignment
-from ..variants.source import BATCH_BYTES, VcfSource
+from ..variants.source import BATCH_BYTES, VariantSource, VcfSource, open_variants
+from ..variants.vcz import VczSource
 from .ancestral import DROP_REASONS as _DROP_REASONS
 from .plan import RegionSites, SitePlan, aggregate
 
@@ -598,19 +599,20 @@ class _RegionCounter:
 
 
 def count_region(
-    vcf: str | os.PathLike | VcfSource,
+    vcf: str | os.PathLike | VariantSource,
     chrom: str,
     start: int,
     end: int,
     design: CountDesign,
     sites: RegionSites,
 ) -> RegionCounts:
-    """Count the records of one region of an indexed VCF/BCF.
+    """Count the records of one region of an indexed VCF/BCF or a VCF Zarr store.
 
     Parameters
     ----------
-    vcf : path-like or VcfSource
-        A bgzipped, indexed VCF or an indexed BCF (opened and closed here when a path).
+    vcf : path-like, VcfSource or VczSource
+        A bgzipped, indexed VCF, an indexed BCF or a VCF Zarr store (opened and closed
+        here when a path).
     chrom : str
     start, end : int
         The region, 0-based, half-open; records are assigned to it by POS.
@@ -631,7 +633,7 @@ def count_region(
                     for c, s, e in plan.regions(region_size))
         spectra = spectra_from_counts(total, design, plan.blocks)
     """
-    src = vcf if isinstance(vcf, VcfSource) else VcfSource(vcf)
+    src = vcf if isinstance(vcf, VcfSource | VczSource) else open_variants(vcf)
     own = src is not vcf
     try:
         if not src.indexed:

@@ -24,7 +24,7 @@ from typing import Any
 
 from .. import _parallel
 from ..exceptions import InputError, OptionError
-from ..variants.source import VcfSource
+from ..variants.source import VariantSource
 from .counting import CountDesign, RegionCounts, count_region
 from .plan import DEFAULT_REGION_SIZE, SitePlan
 
@@ -38,7 +38,7 @@ def _count_task(task: tuple) -> RegionCounts:
     vcf, chrom, start, end, design, sites = task
     if isinstance(vcf, str) and not os.path.exists(vcf):
         raise InputError(
-            f"VCF file not found on worker host {socket.gethostname()}; on a "
+            f"variant file not found on worker host {socket.gethostname()}; on a "
             "cluster every worker must see the VCF and its index at the same "
             "path (e.g. a shared filesystem)",
             vcf,
@@ -54,7 +54,7 @@ def check_region_size(region_size: int) -> int:
 
 
 def count_regions(
-    src: VcfSource,
+    src: VariantSource,
     design: CountDesign,
     plan: SitePlan,
     region_size: int = DEFAULT_REGION_SIZE,
@@ -63,12 +63,13 @@ def count_regions(
     scheduler: Any = None,
     progress: Callable[[int, int, int], None] | None = None,
 ) -> RegionCounts:
-    """Count every region task of an indexed VCF/BCF and sum the counts.
+    """Count every region task of an indexed VCF/BCF or a VCF Zarr store and sum the
+    counts.
 
     Parameters
     ----------
-    src : VcfSource
-        The open, indexed VCF/BCF (used as is when the tasks run in this process; workers
+    src : VcfSource or VczSource
+        The open, indexed VCF/BCF or store (used as is when the tasks run in this process; workers
         open ``src.path`` themselves).
     design : CountDesign
     plan : SitePlan
@@ -92,7 +93,7 @@ def count_regions(
     if scheduler is None:
         workers = min(_parallel.resolve_workers(workers), max(1, len(windows)))
     here = scheduler is None and workers == 1
-    vcf: VcfSource | str = src if here else os.path.abspath(src.path)
+    vcf: VariantSource | str = src if here else os.path.abspath(src.path)
     where = (
         "this process"
         if here

@@ -5,7 +5,8 @@ Modules: :mod:`.samples` (sample to population), :mod:`.source` (opening a VCF/B
 regions or the whole stream), :mod:`.header`, :mod:`.bgzf` (BGZF blocks, libdeflate),
 :mod:`.streams` (line blocks of byte streams), :mod:`.textbatch` (VCF text in batches),
 :mod:`.decode` (vectorised GT/DP/GQ decoding), :mod:`.batches` (the batch interface, pysam
-records).
+records), :mod:`.vcz` (VCF Zarr stores), :mod:`.vczbatch` (their records in a chunk) and
+:mod:`.vczchunks` (their arrays, chunk by chunk).
 """
 
 from .batches import GenotypeData, VariantBatch

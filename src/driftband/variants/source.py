@@ -4,7 +4,8 @@ region by region or as one stream, in per-chromosome batches.
 Accepted inputs: bgzipped VCF with a tabix (``.tbi``) or CSI (``.csi``) index, read region
 by region; bgzipped or gzipped VCF without an index, plain VCF and ``-`` (standard input,
 plain or compressed), read as one stream; BCF (indexed or not, also on standard input)
-through pysam's record objects (:class:`.batches.RecordBatch`).
+through pysam's record objects (:class:`.batches.RecordBatch`). VCF Zarr stores are read
+by :mod:`.vcz`; :func:`open_variants` opens either kind.
 
 For bgzipped VCF, htslib (pysam's ``TabixFile``) reads the index and finds the first record
 of a region; the BGZF blocks are then read and inflated by :mod:`.bgzf` (with libdeflate
@@ -35,8 +36,9 @@ from .bgzf import DeflateBGZF, QuietBGZFile, check_bgzf_eof, open_bgzf
 from .header import header_from_pysam, read_header
 from .streams import ByteReader, Prefixed, line_blocks, quiet_htslib, read_bytes
 from .textbatch import split_text
+from .vcz import VczSource, is_vcz
 
-__all__ = ["BATCH_BYTES", "VcfSource", "open_vcf"]
+__all__ = ["BATCH_BYTES", "VariantSource", "VcfSource", "open_variants", "open_vcf"]
 
 BATCH_BYTES = 1 << 20
 """Bytes of VCF text read and decoded together (about; whole lines)."""
@@ -373,4 +375,16 @@ class VcfSource:
 
 def open_vcf(path: str | os.PathLike) -> VcfSource:
     """Open a VCF/BCF (see :class:`VcfSource`)."""
+    return VcfSource(path)
+
+
+VariantSource = VcfSource | VczSource
+"""An open input of variant calls: a VCF/BCF or a VCF Zarr store."""
+
+
+def open_variants(path: str | os.PathLike) -> VariantSource:
+    """Open variant calls: a VCF Zarr store (a directory or a zip file, see
+    :class:`.vcz.VczSource`), else a VCF/BCF (:class:`VcfSource`)."""
+    if os.fspath(path) != "-" and is_vcz(path):
+        return VczSource(path)
     return VcfSource(path)
