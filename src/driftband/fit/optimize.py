@@ -1,6 +1,7 @@
 """The optimiser set-up shared by every maximum-likelihood fit (no I/O).
 
-Multi-start L-BFGS-B on the unconstrained scale (bounded), optionally after screening a
+Multi-start L-BFGS-B on the unconstrained scale (bounded; with the objective's analytic
+gradient where the caller has one), optionally after screening a
 grid of starting points by one evaluation each, then a Nelder–Mead polish from the best
 point (robust to flat or kinked directions of a profile likelihood), bounded as well: the
 returned point lies within the bounds and the returned value is the objective there. The fits of one
@@ -70,6 +71,7 @@ def minimize_multistart(
     *,
     screen: int | None = None,
     polish: Literal["if_failed", "always"] = "if_failed",
+    value_and_grad: Callable[[np.ndarray], tuple[float, np.ndarray]] | None = None,
 ) -> Optimum:
     """Minimise ``f`` from several starting points within ``bounds``.
 
@@ -87,6 +89,9 @@ def minimize_multistart(
     polish : {"if_failed", "always"}
         Run the (bounded) Nelder–Mead polish only when the best L-BFGS-B run did not
         converge, or always (the polished point is kept when it is no worse).
+    value_and_grad : callable, optional
+        ``f`` and its gradient at a point, in one call: L-BFGS-B then uses this gradient
+        instead of its own finite differences (1 + k evaluations of ``f`` per gradient).
 
     Returns
     -------
@@ -98,10 +103,23 @@ def minimize_multistart(
     if screen is not None and len(pts) > screen:
         vals = np.array([f(s) for s in pts])
         pts = [pts[j] for j in np.argsort(vals, kind="stable")[:screen]]
-    runs = [
-        optimize.minimize(f, s, method="L-BFGS-B", bounds=bounds, options=LBFGSB_OPTIONS)
-        for s in pts
-    ]
+    if value_and_grad is None:
+        runs = [
+            optimize.minimize(f, s, method="L-BFGS-B", bounds=bounds, options=LBFGSB_OPTIONS)
+            for s in pts
+        ]
+    else:
+        runs = [
+            optimize.minimize(
+                value_and_grad,
+                s,
+                jac=True,
+                method="L-BFGS-B",
+                bounds=bounds,
+                options=LBFGSB_OPTIONS,
+            )
+            for s in pts
+        ]
     runs.sort(key=lambda r: r.fun)
     best = runs[0]
     xbest, fbest, converged = best.x, float(best.fun), bool(best.success)

@@ -170,6 +170,20 @@ class GammaDfe(_Deleterious):
         lt = np.log(t) if log_t is None else log_t
         return (b * math.log(lam) - math.lgamma(b)) + (b - 1.0) * lt - lam * t
 
+    def dlogpdf_t(self, t: ArrayLike, log_t: np.ndarray | None = None) -> np.ndarray:
+        r"""Derivatives of :meth:`logpdf_t` with respect to (shape, mean), shape (2, len(t)).
+
+        With :math:`\lambda = \beta/\bar S`,
+        :math:`\partial_\beta \ln f = \ln\lambda + 1 - \psi(\beta) + \ln t - t/\bar S`
+        and :math:`\partial_{\bar S} \ln f = (\lambda t - \beta)/\bar S`.
+        """
+        t = np.asarray(t, dtype=float)
+        lt = np.log(t) if log_t is None else log_t
+        b, m = self.shape, self.mean
+        lam = b / m
+        d_shape = (math.log(lam) + 1.0 - float(digamma(b))) + lt - t / m
+        return np.stack([d_shape, (lam * t - b) / m])
+
     def partial_mean_t(self, c: float) -> float:
         """E[T; T < c] (float)."""
         return float(self.mean * gammainc(self.shape + 1.0, self.rate * c))
@@ -233,6 +247,16 @@ class LognormalDfe(_Deleterious):
         lt = np.log(np.asarray(t, dtype=float)) if log_t is None else log_t
         z = (lt - self.mu) / self.sigma
         return -lt - (math.log(self.sigma) + 0.5 * math.log(2 * math.pi)) - 0.5 * z * z
+
+    def dlogpdf_t(self, t: ArrayLike, log_t: np.ndarray | None = None) -> np.ndarray:
+        r"""Derivatives of :meth:`logpdf_t` with respect to (mu, sigma), shape (2, len(t)).
+
+        With :math:`z = (\ln t - \mu)/\sigma`: :math:`\partial_\mu \ln f = z/\sigma`,
+        :math:`\partial_\sigma \ln f = (z^2 - 1)/\sigma`.
+        """
+        lt = np.log(np.asarray(t, dtype=float)) if log_t is None else log_t
+        z = (lt - self.mu) / self.sigma
+        return np.stack([z / self.sigma, (z * z - 1.0) / self.sigma])
 
     def is_narrow(self) -> bool:
         """Whether sd(ln t) < NARROW_SD (needs refined panels)."""
