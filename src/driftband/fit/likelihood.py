@@ -235,50 +235,67 @@ def _newton_pairs(xn, xs, a, b, eps, c0, tol=1e-11, max_iter=100):
     tiny = 1e-300
     scale = max(float(np.mean(c0)), tiny) * 1e-3
     floor = tol * scale
+    # (numpy calls on arrays of a few dozen entries: their count is the cost here)
+    ddu, ddv, duv = du * du, dv * dv, du * dv
+    tot = None
     for _ in range(max_iter):
         lam = du * u + dv * v
-        with np.errstate(divide="ignore", invalid="ignore"):
-            r = np.where(lam > 0, x / lam, 0.0)
-            w = np.where(lam > 0, x / lam**2, 0.0)
-        gu = np.sum((r - 1) * du, axis=0)
-        gv = np.sum((r - 1) * dv, axis=0)
-        huu = -np.sum(w * du * du, axis=0)
-        hvv = -np.sum(w * dv * dv, axis=0)
-        huv = -np.sum(w * du * dv, axis=0)
-        det = huu * hvv - huv**2
+        pos = lam > 0
+        r = np.divide(x, lam, out=np.zeros_like(lam), where=pos)
+        w = np.divide(r, lam, out=np.zeros_like(lam), where=pos)
+        r -= 1.0
+        gu = np.einsum("ij,ij->j", r, du)
+        gv = np.einsum("ij,ij->j", r, dv)
+        huu = -np.einsum("ij,ij->j", w, ddu)
+        hvv = -np.einsum("ij,ij->j", w, ddv)
+        huv = -np.einsum("ij,ij->j", w, duv)
+        det = huu * hvv - huv * huv
         ok = det > 0
-        su = np.where(ok, -(hvv * gu - huv * gv) / np.where(ok, det, 1.0), 0.0)
-        sv = np.where(ok, -(huu * gv - huv * gu) / np.where(ok, det, 1.0), 0.0)
-        # Degenerate pairs (no counts on one side): fall back to one EM-like update.
-        bad = ~ok
-        if np.any(bad):
-            tot = (du + dv).sum(axis=0)
-            su = np.where(bad, (x * du * u / np.maximum(lam, tiny)).sum(0) / tot - u, su)
-            sv = np.where(bad, (x * dv * v / np.maximum(lam, tiny)).sum(0) / tot - v, sv)
+        if ok.all():
+            su = (huv * gv - hvv * gu) / det
+            sv = (huv * gu - huu * gv) / det
+        else:
+            safe = np.where(ok, det, 1.0)
+            su = np.where(ok, (huv * gv - hvv * gu) / safe, 0.0)
+            sv = np.where(ok, (huv * gu - huu * gv) / safe, 0.0)
+            # Degenerate pairs (no counts on one side): fall back to one EM-like update.
+            bad = ~ok
+            if tot is None:
+                tot = (du + dv).sum(axis=0)
+            lam_t = np.maximum(lam, tiny)
+            su = np.where(bad, (x * du * u / lam_t).sum(0) / tot - u, su)
+            sv = np.where(bad, (x * dv * v / lam_t).sum(0) / tot - v, sv)
         # A coordinate at its bound 0 (below the absolute floor) whose score points out of
         # the domain is held at 0, and the other takes its one-dimensional Newton step;
         # otherwise the shared step length would stall it as the first one nears 0.
         hold_v = (v <= floor) & (gv <= 0)
         hold_u = (u <= floor) & (gu <= 0)
-        with np.errstate(divide="ignore", invalid="ignore"):
-            su = np.where(hold_v, np.where(huu < 0, -gu / huu, 0.0), su)
-            sv = np.where(hold_u, np.where(hvv < 0, -gv / hvv, 0.0), sv)
-        su = np.where(hold_u, 0.0, su)
-        sv = np.where(hold_v, 0.0, sv)
-        u, v = np.where(hold_u, 0.0, u), np.where(hold_v, 0.0, v)
+        if hold_v.any() or hold_u.any():
+            with np.errstate(divide="ignore", invalid="ignore"):
+                su = np.where(hold_v, np.where(huu < 0, -gu / huu, 0.0), su)
+                sv = np.where(hold_u, np.where(hvv < 0, -gv / hvv, 0.0), sv)
+            su = np.where(hold_u, 0.0, su)
+            sv = np.where(hold_v, 0.0, sv)
+            u, v = np.where(hold_u, 0.0, u), np.where(hold_v, 0.0, v)
         # Largest step in (0, 1] keeping u, v positive (at most 0.9 of the way to zero).
-        with np.errstate(divide="ignore", invalid="ignore"):
-            au = np.where(su < 0, -0.9 * u / su, np.inf)
-            av = np.where(sv < 0, -0.9 * v / sv, np.inf)
-        step = np.minimum(1.0, np.minimum(au, av))
-        nu, nv = u + step * su, v + step * sv
+        neg_u, neg_v = su < 0, sv < 0
+        if neg_u.any() or neg_v.any():
+            with np.errstate(divide="ignore", invalid="ignore"):
+                au = np.where(neg_u, -0.9 * u / su, np.inf)
+                av = np.where(neg_v, -0.9 * v / sv, np.inf)
+            step = np.minimum(1.0, np.minimum(au, av))
+            full = bool(np.all(step >= 1.0))
+            nu, nv = u + step * su, v + step * sv
+        else:
+            full = True
+            nu, nv = u + su, v + sv
         # Converged when the steps are negligible relative to the scale of c (an
         # absolute floor keeps pairs whose optimum is at u = 0 or v = 0 from iterating on)
         # and none was shortened by the bound (the next iteration holds that coordinate).
         done = (
-            np.all(np.abs(nu - u) <= tol * np.maximum(nu, scale))
-            and np.all(np.abs(nv - v) <= tol * np.maximum(nv, scale))
-            and bool(np.all(step >= 1.0))
+            full
+            and bool(np.all(np.abs(nu - u) <= tol * np.maximum(nu, scale)))
+            and bool(np.all(np.abs(nv - v) <= tol * np.maximum(nv, scale)))
         )
         u, v = np.maximum(nu, 0.0), np.maximum(nv, 0.0)
         if done:
