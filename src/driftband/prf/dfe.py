@@ -431,8 +431,9 @@ class DfeExpectation:
         :meth:`mean_g` computes, on the same nodes): :math:`\partial_\theta \bar g
         = \sum_j W_j f(t_j) t_j\, \partial_\theta \ln f(t_j)\, g(-t_j)` with the
         families' :meth:`~driftband.prf.families.GammaDfe.dlogpdf_t`, plus the derivatives
-        of the two moments of the mass below 1e-8 by central differences (relative step
-        ``rel_step``; scalar functions, no spectra). Exact for the masses of a
+        of the two moments of the mass below 1e-8 (``small_t_grad`` of the family: exact
+        but for the gamma shape, a central difference of relative step ``rel_step``).
+        Exact for the masses of a
         :class:`DiscreteDfe` (treated as free: the rows are the band means), for ``p_b``
         (:math:`g(s_b) - \bar g_{del}`) and for ``s_b``
         (:meth:`~driftband.prf.expected.SfsKernel.dg_beneficial`). The panel plan of a
@@ -481,14 +482,7 @@ class DfeExpectation:
             score = base.dlogpdf_t(nodes.t[live], nodes.log_t[live])
             out += (score * w[live]) @ G[live]
         # the mass below T_LO: P(T < T_LO) on row 0 of G, E[T; T < T_LO] on row 1
-        for k, name in enumerate(base.param_names):
-            v = base.params[name]
-            h = rel_step * max(abs(v), 1e-3)
-            hi = np.array(base.with_params(**{name: v + h})._small_t(T_LO))
-            lo = np.array(base.with_params(**{name: v - h})._small_t(T_LO))
-            d = (hi - lo) / (2.0 * h)
-            out[k] += d[0] * self.G[0] + d[1] * self.G[1]
-        return out
+        return out + base.small_t_grad(T_LO, rel_step) @ self.G[:2]
 
     def band_means(self, edges_nes: Iterable[float] = DEFAULT_EDGES_NES) -> np.ndarray:
         """Mean spectrum within each band of a :class:`DiscreteDfe`, shape (K, n - 1)."""
