@@ -200,15 +200,11 @@ class GammaDfe(_Deleterious):
         x = b * c / m
         h = rel_step * b
         up, dn = b + h, b - h
-        P = gammainc(
-            np.array([up, up + 1.0, dn, dn + 1.0]), np.array([up, up, dn, dn]) * (c / m)
-        )
+        P = gammainc(np.array([up, up + 1.0, dn, dn + 1.0]), np.array([up, up, dn, dn]) * (c / m))
         d_shape = np.array([P[0] - P[2], m * (P[1] - P[3])]) / (2.0 * h)
         # x^a e^{-x} / Gamma(a + 1), in logs
         dens1 = math.exp(b * math.log(x) - x - math.lgamma(b + 1.0)) if x > 0 else 0.0
-        d_mean = np.array(
-            [-dens1 * b / m, float(gammainc(b + 1.0, x)) - x * dens1]
-        )
+        d_mean = np.array([-dens1 * b / m, float(gammainc(b + 1.0, x)) - x * dens1])
         return np.stack([d_shape, d_mean])
 
     def _small_t(self, c: float) -> tuple[float, float]:
