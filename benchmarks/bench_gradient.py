@@ -20,6 +20,7 @@ from __future__ import annotations
 
 import argparse
 import os
+import resource
 import tempfile
 import time
 import warnings
@@ -43,8 +44,21 @@ def _load() -> float:
     return os.getloadavg()[0]
 
 
+def _cpu() -> float:
+    """CPU seconds of this process and of its finished children."""
+    return sum(
+        r.ru_utime + r.ru_stime
+        for r in (
+            resource.getrusage(resource.RUSAGE_SELF),
+            resource.getrusage(resource.RUSAGE_CHILDREN),
+        )
+    )
+
+
 def _timed_run(out: str, replicates: int, workers: int) -> tuple[float, dict[str, float]]:
-    """Wall time of the demo run and of its stages (from the run log)."""
+    """Wall time of the demo run and of its stages (from the run log; ``cpu``: CPU seconds
+    of the run and its workers)."""
+    c0 = _cpu()
     t0 = time.perf_counter()
     res = run_study(demo_study(), out, replicates=replicates, workers=workers)
     dt = time.perf_counter() - t0
@@ -54,6 +68,7 @@ def _timed_run(out: str, replicates: int, workers: int) -> tuple[float, dict[str
             if "INFO stage " in line and ": done in " in line:
                 name = line.split("INFO stage ")[1].split(":")[0]
                 stages[name] = float(line.split("done in ")[1].split(" s")[0])
+    stages["cpu"] = _cpu() - c0
     return dt, stages
 
 
@@ -120,14 +135,14 @@ def main() -> None:
     from driftband.fit.bootstrap import bootstrap_fits
 
     boot: dict[bool, tuple[float, float]] = {}
-    shares: dict[bool, dict[str, np.ndarray]] = {}
+    reps: dict[bool, dict[str, tuple[np.ndarray, np.ndarray]]] = {}
     for analytic in (False, True):
         _set(analytic)
         t0 = time.perf_counter()
         bootstrap_fits(fits, pops, options, args.replicates, seed=1, workers=args.workers)
         boot[analytic] = (time.perf_counter() - t0, _load())
-        shares[analytic] = {
-            f"{pf.population}/{m}": mb.shares
+        reps[analytic] = {
+            f"{pf.population}/{m}": (mb.shares.copy(), np.asarray(mb.loglik, dtype=float))
             for pf in fits
             for m, mb in pf.bootstrap.models.items()
         }
@@ -148,15 +163,22 @@ def main() -> None:
     for analytic, label in ((False, "finite differences"), (True, "analytic gradient ")):
         print(f"   {label} {boot[analytic][0]:7.1f} s (load average after {boot[analytic][1]:.1f})")
     print(f"   speed-up           {boot[False][0] / boot[True][0]:7.2f}x")
-    diffs = [
-        np.nanmax(np.abs(shares[True][k] - shares[False][k]))
-        for k in shares[True]
-        if k in shares[False]
-    ]
-    print(f"   largest change of a replicate's share between the paths: {max(diffs):.2e}")
+    print("   replicate by replicate, analytic against finite differences:")
+    for key, (sa, la) in reps[True].items():
+        sf, lf = reps[False][key]
+        d = la - lf
+        ds = np.nanmax(np.abs(sa - sf), axis=1)
+        lo, hi = (np.nanquantile(v[:, 0], [0.025, 0.975]) for v in (sf, sa))
+        print(
+            f"   {key:18s} log-lik higher by > 1e-6 in {int(np.sum(d > 1e-6)):3d}, lower in "
+            f"{int(np.sum(d < -1e-6)):2d} (min {np.nanmin(d):+.1e}); shares within 1e-4 in "
+            f"{int(np.sum(ds <= 1e-4)):3d}; 95 % interval of the first band "
+            f"{lo[0]:.4f}-{lo[1]:.4f} -> {hi[0]:.4f}-{hi[1]:.4f}"
+        )
     print()
     print(f"3. driftband run of the demo study (B = {B}, 2 workers)")
     for label, (t, st, load) in runs.items():
+        cpu = st.pop("cpu")
         parts = ", ".join(f"{k} {v:.1f} s" for k, v in st.items())
         verdict = "within" if t <= TARGET_RUN_S else f"{t - TARGET_RUN_S:.0f} s over"
         print(
@@ -164,6 +186,7 @@ def main() -> None:
             f"load {load:.1f})"
         )
         print(f"      stages: {parts}")
+        print(f"      CPU time of the run and its workers: {cpu:.0f} s ({cpu / 2:.0f} s per core)")
 
 
 if __name__ == "__main__":
