@@ -14,12 +14,14 @@ import numpy as np
 import pytest
 
 from driftband.cli import main
+from driftband.compare import compare_fits
 from driftband.compare.linkage import (
     interior_coordinates,
     linkage_adjustment,
     naive_covariance,
     replicate_vectors,
 )
+from driftband.fit.io import read_fit_files
 from driftband.fit.likelihood import Objective, SpectrumPair
 from driftband.fit.models import DfeModel
 from driftband.fit.results import ModelBootstrap
@@ -157,7 +159,18 @@ def doubled(tmp_path_factory):
         cmp = d / f"{name}.tsv"
         assert main(["compare", str(fit), "-o", str(cmp), "-q"]) == 0
         out[name] = _tsv(cmp)
+        # the same comparison through the API, for the eigenvalues before the floor
+        options, fits = read_fit_files([str(fit)])
+        rows = compare_fits(sorted(fits, key=lambda pf: pf.population), options, "gamma")
+        out[name + "_rows"] = {r.test: r for r in rows}
     return out
+
+
+def _raw(row):
+    """c, ν and W/c from the unfloored eigenvalues of a comparison row."""
+    lam = np.asarray(row.extra["linkage_eigenvalues_raw"])
+    c = float(np.sum(lam**2) / np.sum(lam))
+    return c, float(np.sum(lam) ** 2 / np.sum(lam**2)), row.statistic / c
 
 
 def test_every_site_counted_twice_is_undone_by_the_adjustment(doubled):
@@ -166,27 +179,70 @@ def test_every_site_counted_twice_is_undone_by_the_adjustment(doubled):
     # the raw statistic doubles, the naive information doubles, so λ doubles, and the
     # adjusted statistic and its df are those of the data counted once (the Godambe
     # information is invariant to such duplication; Varin, Reid & Firth 2011, sec. 2.3).
+    # The invariance holds for the estimated (unfloored) eigenvalues: the floor at 1 may
+    # raise those of the data counted once (about 1, up to sampling error), not those of
+    # the doubled data (about 2).
     one, two = doubled["one"], doubled["two"]
     for test in ("shared_dfe_lrt", "ne_only_free_lrt", "ne_only_lrt"):
         a, b = one[test], two[test]
         assert float(b["statistic"]) == pytest.approx(2 * float(a["statistic"]), rel=0.02, abs=0.02)
-        assert float(b["linkage_factor"]) == pytest.approx(2 * float(a["linkage_factor"]), rel=0.02)
-        assert float(b["statistic_linkage"]) == pytest.approx(
-            float(a["statistic_linkage"]), rel=0.03, abs=0.02
-        )
-        assert float(b["df_linkage"]) == pytest.approx(float(a["df_linkage"]), rel=0.02)
-        assert float(b["p_value"]) == pytest.approx(float(a["p_value"]), rel=0.05, abs=0.005)
+        ca, dfa, wa = _raw(doubled["one_rows"][test])
+        cb, dfb, wb = _raw(doubled["two_rows"][test])
+        assert cb == pytest.approx(2 * ca, rel=0.02)
+        assert wb == pytest.approx(wa, rel=0.03, abs=0.02)
+        assert dfb == pytest.approx(dfa, rel=0.02)
+        # the doubled data's eigenvalues (about 2) are not floored: its reported figures
+        # are the raw ones
+        assert min(doubled["two_rows"][test].extra["linkage_eigenvalues_raw"]) > 1.0
+        assert float(b["linkage_factor"]) == pytest.approx(cb, rel=1e-4)
+        assert float(b["statistic_linkage"]) == pytest.approx(wb, rel=1e-4)
         # the raw p of the doubled data is smaller: it reads twice the evidence
         assert float(b["p_raw"]) <= float(a["p_raw"]) + 1e-12
         assert "p adjusted for linked sites" in b["note"]
 
 
+def test_floored_factor_never_makes_the_p_value_smaller(doubled):
+    # Linked sites cannot carry more information than as many independent sites (Varin,
+    # Reid & Firth 2011, sec. 2.3): every reported λ ≥ 1, so c ≥ 1, and the adjusted p is
+    # at least the raw one (Σ λ_j χ²₁ with λ_j ≥ 1 is stochastically larger than χ²(q)).
+    n_floored = 0
+    for name in ("one", "two"):
+        for test, r in doubled[name + "_rows"].items():
+            if test == "neutral_share_difference":
+                continue
+            lam = np.asarray(r.extra["linkage_eigenvalues"])
+            raw = np.asarray(r.extra["linkage_eigenvalues_raw"])
+            assert np.all(lam >= 1.0) and lam == pytest.approx(np.maximum(raw, 1.0))
+            assert r.extra["linkage_factor"] >= 1.0
+            assert r.p_value >= r.extra["p_raw"]
+            n_floored += bool(np.any(raw < 1.0))
+    assert n_floored >= 1  # the unlinked data have some estimated λ below 1
+
+
+def test_floor_is_applied_eigenvalue_by_eigenvalue():
+    # Naive covariance I, true covariance diag(0.5, 3): estimated λ = 0.5 and 3 (as in the
+    # hand-worked case above); floored, λ = 1 and 3, c = (1 + 9)/4 = 2.5 and ν = 16/10
+    # (Satterthwaite's formulas, by hand).
+    rng = np.random.default_rng(11)
+    draws = rng.standard_normal((200_000, 2)) * np.sqrt([0.5, 3.0])
+    adj = linkage_adjustment(np.eye(2), draws, [0, 1])
+    assert sorted(adj.raw_eigenvalues) == pytest.approx([0.5, 3.0], rel=0.02)
+    assert sorted(adj.eigenvalues) == pytest.approx([1.0, 3.0], rel=0.02)
+    assert adj.factor == pytest.approx(2.5, rel=0.02)
+    assert adj.df == pytest.approx(1.6, rel=0.02)
+    assert adj.floored
+    raw = linkage_adjustment(np.eye(2), draws, [0, 1], floor=False)
+    assert raw.factor == pytest.approx(9.25 / 3.5, rel=0.02)  # (0.25 + 9)/(0.5 + 3)
+    assert not raw.floored
+
+
 def test_unlinked_sites_give_factors_near_one(doubled):
     # The simulator's sites are unlinked: every eigenvalue is about 1 (Wilks), up to the
     # sampling error of a covariance from 40 replicates (about sqrt(2/40) = 0.22 each).
-    for row in doubled["one"].values():
-        if row["test"] != "neutral_share_difference":
-            assert 0.5 < float(row["linkage_factor"]) < 1.8, row["test"]
+    for test, row in doubled["one_rows"].items():
+        if test != "neutral_share_difference":
+            assert 0.5 < _raw(row)[0] < 1.8, test
+            assert 1.0 <= row.extra["linkage_factor"] < 1.8, test
 
 
 def _neutral_pair(sfs: np.ndarray, n: int) -> SpectrumPair:

@@ -132,3 +132,24 @@ def test_a_pair_with_a_fit_that_did_not_converge_is_written_with_its_warning(pai
             pa, bad, DfeModel("gamma"), FitOptions(eps=0.0), tests=("shared_dfe_lrt",)
         )
     assert "did not converge: the tests that use it are unreliable" in rows[0].note
+
+
+def test_minimisation_runs_with_one_blas_thread():
+    # threadpoolctl's own report of the BLAS libraries, read inside the objective: one
+    # thread each during the minimisation, the caller's setting restored after it.
+    from threadpoolctl import threadpool_info, threadpool_limits
+
+    seen = []
+
+    def f(x):
+        seen.append({i["num_threads"] for i in threadpool_info() if i["user_api"] == "blas"})
+        return float((x[0] - 0.3) ** 2)
+
+    with threadpool_limits(limits=2, user_api="blas"):
+        before = {i["num_threads"] for i in threadpool_info() if i["user_api"] == "blas"}
+        minimize_multistart(f, [np.array([0.0])], [(-1.0, 1.0)])
+        after = {i["num_threads"] for i in threadpool_info() if i["user_api"] == "blas"}
+    if not before or before == {1}:
+        pytest.skip("no BLAS library with more than one thread here")
+    assert seen and all(s == {1} for s in seen)
+    assert after == before

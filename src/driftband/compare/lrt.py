@@ -189,7 +189,28 @@ def joint_fit(
                 return 1e300
         return tot
 
-    opt = minimize_multistart(f, starts, bounds, polish="always")
+    def f_and_grad(z: np.ndarray) -> tuple[float, np.ndarray]:
+        # the chain rule through v_k = (x + shift_k + t·extra_k, ε_k)
+        x = z[:k]
+        t = z[k] if n_free else 0.0
+        tot, grad, j = 0.0, np.zeros(z.size), k + n_free
+        for o, sh, ex, ne in zip(objs, shifts, extra, n_eps):
+            v = np.concatenate([x + sh + t * ex, z[j : j + ne]])
+            fv, gv = o.value_and_grad(v)
+            if fv >= 1e299:
+                return 1e300, np.zeros(z.size)
+            tot += fv
+            grad[:k] += gv[:k]
+            if n_free:
+                grad[k] += gv[:k] @ ex
+            grad[j : j + ne] = gv[k:]
+            j += ne
+        return tot, grad
+
+    analytic = all(o.analytic_gradient for o in objs)
+    opt = minimize_multistart(
+        f, starts, bounds, polish="always", value_and_grad=f_and_grad if analytic else None
+    )
     return -opt.fun, opt.x, opt.success
 
 

@@ -220,14 +220,18 @@ def _finish_lrt(
     stat_adj = row.statistic / adj.factor
     k_b = len(boundary_parameters(model, x_null))
     if k_b:
-        row.p_value = chibar2_sf(row.statistic / adj.mean, df, min(k_b, df))
+        p_adj = chibar2_sf(row.statistic / adj.mean, df, min(k_b, df))
     else:
-        row.p_value = float(stats.chi2.sf(stat_adj, adj.df))
+        p_adj = float(stats.chi2.sf(stat_adj, adj.df))
+    # With every λ_j ≥ 1 the limit Σ λ_j χ²₁ is stochastically larger than χ²(q), so its
+    # p is at least the raw one; the two-moment c·χ²(ν) can cross below it at small W.
+    row.p_value = max(p_adj, p_raw)
     row.extra.update(
         linkage_factor=adj.factor,
         statistic_linkage=stat_adj,
         df_linkage=adj.df,
         linkage_eigenvalues=adj.eigenvalues.tolist(),
+        linkage_eigenvalues_raw=adj.raw_eigenvalues.tolist(),
     )
     used = (
         ""
@@ -236,10 +240,15 @@ def _finish_lrt(
             f" from {len(adj.coordinates)} of {model.n_free} DFE coordinates, the others on a bound"
         )
     )
+    floored = (
+        ", eigenvalues estimated below 1 raised to 1 (linked sites cannot add information)"
+        if adj.floored
+        else ""
+    )
     row.note += (
         f"; p adjusted for linked sites: statistic / {adj.factor:.3g} on "
         f"{adj.df:.3g} df (composite likelihood, {adj.replicates} paired block-bootstrap "
-        f"replicates{used})"
+        f"replicates{used}{floored})"
     )
 
 

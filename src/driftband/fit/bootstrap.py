@@ -239,7 +239,9 @@ def _score(
     if x is None:
         return None
     obj = Objective(data, model, eps=options.eps, equilibrium=options.equilibrium, expectation=ex)
-    return central_gradient(obj, np.asarray(x, dtype=float)).tolist()
+    x = np.asarray(x, dtype=float)
+    g = obj.gradient(x) if obj.analytic_gradient else central_gradient(obj, x)
+    return g.tolist()
 
 
 def default_batch(replicates: int, workers: int) -> int:

@@ -25,7 +25,7 @@ of the polymorphisms in each class), by Newton steps over the independent pairs
 from __future__ import annotations
 
 from dataclasses import dataclass
-from typing import TYPE_CHECKING, Any
+from typing import TYPE_CHECKING, Any, ClassVar
 
 import numpy as np
 from numpy.typing import ArrayLike
@@ -215,7 +215,8 @@ def _newton_pairs(xn, xs, a, b, eps, c0, tol=1e-11, max_iter=100):
 
     True classes i and n−i share observations only with each other, so the profile splits
     into independent two-parameter problems (u = c_i, v = c_{n−i}). Each is concave in
-    (u, v) (the expectations are linear in them); damped Newton steps keep u, v > 0.
+    (u, v) (the expectations are linear in them); damped Newton steps keep u, v ≥ 0, and
+    a coordinate whose maximum lies on its bound 0 is held there (an active set).
     The middle class of an even n has the closed form (x^N + x^S)/(a + b).
     """
     m = a.size
@@ -233,42 +234,86 @@ def _newton_pairs(xn, xs, a, b, eps, c0, tol=1e-11, max_iter=100):
     u, v = c[lo].copy(), c[hi].copy()
     tiny = 1e-300
     scale = max(float(np.mean(c0)), tiny) * 1e-3
+    floor = tol * scale
+    # (numpy calls on arrays of a few dozen entries: their count is the cost here)
+    ddu, ddv, duv = du * du, dv * dv, du * dv
+    tot = None
     for _ in range(max_iter):
         lam = du * u + dv * v
-        with np.errstate(divide="ignore", invalid="ignore"):
-            r = np.where(lam > 0, x / lam, 0.0)
-            w = np.where(lam > 0, x / lam**2, 0.0)
-        gu = np.sum((r - 1) * du, axis=0)
-        gv = np.sum((r - 1) * dv, axis=0)
-        huu = -np.sum(w * du * du, axis=0)
-        hvv = -np.sum(w * dv * dv, axis=0)
-        huv = -np.sum(w * du * dv, axis=0)
-        det = huu * hvv - huv**2
+        pos = lam > 0
+        r = np.divide(x, lam, out=np.zeros_like(lam), where=pos)
+        w = np.divide(r, lam, out=np.zeros_like(lam), where=pos)
+        r -= 1.0
+        gu = np.einsum("ij,ij->j", r, du)
+        gv = np.einsum("ij,ij->j", r, dv)
+        huu = -np.einsum("ij,ij->j", w, ddu)
+        hvv = -np.einsum("ij,ij->j", w, ddv)
+        huv = -np.einsum("ij,ij->j", w, duv)
+        det = huu * hvv - huv * huv
         ok = det > 0
-        su = np.where(ok, -(hvv * gu - huv * gv) / np.where(ok, det, 1.0), 0.0)
-        sv = np.where(ok, -(huu * gv - huv * gu) / np.where(ok, det, 1.0), 0.0)
-        # Degenerate pairs (no counts on one side): fall back to one EM-like update.
-        bad = ~ok
-        if np.any(bad):
-            tot = (du + dv).sum(axis=0)
-            su = np.where(bad, (x * du * u / np.maximum(lam, tiny)).sum(0) / tot - u, su)
-            sv = np.where(bad, (x * dv * v / np.maximum(lam, tiny)).sum(0) / tot - v, sv)
+        if ok.all():
+            su = (huv * gv - hvv * gu) / det
+            sv = (huv * gu - huu * gv) / det
+        else:
+            safe = np.where(ok, det, 1.0)
+            su = np.where(ok, (huv * gv - hvv * gu) / safe, 0.0)
+            sv = np.where(ok, (huv * gu - huu * gv) / safe, 0.0)
+            # Degenerate pairs (no counts on one side): fall back to one EM-like update.
+            bad = ~ok
+            if tot is None:
+                tot = (du + dv).sum(axis=0)
+            lam_t = np.maximum(lam, tiny)
+            su = np.where(bad, (x * du * u / lam_t).sum(0) / tot - u, su)
+            sv = np.where(bad, (x * dv * v / lam_t).sum(0) / tot - v, sv)
+        # A coordinate at its bound 0 (below the absolute floor) whose score points out of
+        # the domain is held at 0, and the other takes its one-dimensional Newton step;
+        # otherwise the shared step length would stall it as the first one nears 0.
+        hold_v = (v <= floor) & (gv <= 0)
+        hold_u = (u <= floor) & (gu <= 0)
+        if hold_v.any() or hold_u.any():
+            with np.errstate(divide="ignore", invalid="ignore"):
+                su = np.where(hold_v, np.where(huu < 0, -gu / huu, 0.0), su)
+                sv = np.where(hold_u, np.where(hvv < 0, -gv / hvv, 0.0), sv)
+            su = np.where(hold_u, 0.0, su)
+            sv = np.where(hold_v, 0.0, sv)
+            u, v = np.where(hold_u, 0.0, u), np.where(hold_v, 0.0, v)
         # Largest step in (0, 1] keeping u, v positive (at most 0.9 of the way to zero).
-        with np.errstate(divide="ignore", invalid="ignore"):
-            au = np.where(su < 0, -0.9 * u / su, np.inf)
-            av = np.where(sv < 0, -0.9 * v / sv, np.inf)
-        step = np.minimum(1.0, np.minimum(au, av))
-        nu, nv = u + step * su, v + step * sv
+        neg_u, neg_v = su < 0, sv < 0
+        if neg_u.any() or neg_v.any():
+            with np.errstate(divide="ignore", invalid="ignore"):
+                au = np.where(neg_u, -0.9 * u / su, np.inf)
+                av = np.where(neg_v, -0.9 * v / sv, np.inf)
+            step = np.minimum(1.0, np.minimum(au, av))
+            full = bool(np.all(step >= 1.0))
+            nu, nv = u + step * su, v + step * sv
+        else:
+            full = True
+            nu, nv = u + su, v + sv
         # Converged when the steps are negligible relative to the scale of c (an
-        # absolute floor keeps pairs whose optimum is at u = 0 or v = 0 from iterating on).
-        done = np.all(np.abs(nu - u) <= tol * np.maximum(nu, scale)) and np.all(
-            np.abs(nv - v) <= tol * np.maximum(nv, scale)
+        # absolute floor keeps pairs whose optimum is at u = 0 or v = 0 from iterating on)
+        # and none was shortened by the bound (the next iteration holds that coordinate).
+        done = (
+            full
+            and bool(np.all(np.abs(nu - u) <= tol * np.maximum(nu, scale)))
+            and bool(np.all(np.abs(nv - v) <= tol * np.maximum(nv, scale)))
         )
         u, v = np.maximum(nu, 0.0), np.maximum(nv, 0.0)
         if done:
             break
     c[lo], c[hi] = u, v
     return c
+
+
+def _fold(data: SpectrumPair, v: np.ndarray) -> np.ndarray:
+    """Per-class rates of the unfolded classes i = 1..n−1 (last axis) on the data's classes:
+    unchanged, or folded (j and n−j summed; the middle class of an even n once)."""
+    if not data.folded:
+        return v
+    n, h = data.n, data.n // 2
+    out = v[..., :h] + v[..., ::-1][..., :h]
+    if n % 2 == 0:
+        out[..., -1] = v[..., h - 1]
+    return out
 
 
 def profile_counts(
@@ -300,18 +345,10 @@ def profile_counts(
         Expected observed counts.
     """
     n = data.n
-    i = np.arange(1, n)
-    a_full = data.sites_neutral / i
-    b_full = data.sites_selected * gbar
+    a = _fold(data, data.sites_neutral / np.arange(1, n))
+    b = _fold(data, data.sites_selected * gbar)
     if data.folded:
-        h = n // 2
-        a = a_full[:h] + a_full[::-1][:h]
-        b = b_full[:h] + b_full[::-1][:h]
-        if n % 2 == 0:
-            a[-1], b[-1] = a_full[h - 1], b_full[h - 1]
         eps = 0.0
-    else:
-        a, b = a_full, b_full
     xn, xs = data.neutral, data.selected
     if eps == 0.0:
         if equilibrium:
@@ -342,7 +379,17 @@ class Objective:
     eps : float or None
         Fixed misorientation rate, or None to estimate it (unfolded data only).
     equilibrium : bool
+    expectation : DfeExpectation, optional
+        Reuse a per-n table.
+
+    Attributes
+    ----------
+    analytic_gradient : bool
+        Fits use :meth:`value_and_grad` (default); ``False`` on the class falls back to
+        the optimiser's finite differences everywhere (kept for benchmarks and checks).
     """
+
+    analytic_gradient: ClassVar[bool] = True
 
     def __init__(
         self,
@@ -402,3 +449,81 @@ class Objective:
         except (FloatingPointError, ValueError, ZeroDivisionError):
             return 1e300
         return -ll if np.isfinite(ll) else 1e300
+
+    def value_and_grad(self, x: np.ndarray) -> tuple[float, np.ndarray]:
+        r"""The objective (as :meth:`__call__`) and its analytic gradient at ``x``.
+
+        By the envelope theorem the gradient of the profile log-likelihood is the partial
+        derivative of the full Poisson log-likelihood at the profiled counts c (their own
+        derivative multiplies a zero score): :math:`\sum (x/\lambda - 1)\,
+        \partial\lambda/\partial x` over the entries of both classes, with
+        :math:`\partial\lambda^S/\partial x` from the derivative of the DFE-averaged
+        spectrum (:meth:`~driftband.prf.dfe.DfeExpectation.mean_g_grad`, chained through
+        :meth:`~driftband.fit.models.DfeModel.dfe_jacobian`) and, for a free ε, the
+        derivatives of both classes' misoriented expectations. Infeasible points give
+        ``(1e300, 0)``.
+
+        Parameters
+        ----------
+        x : ndarray, shape (dim,)
+
+        Returns
+        -------
+        (float, ndarray of shape (dim,))
+        """
+        self.n_eval += 1
+        x = np.asarray(x, dtype=float)
+        bad = (1e300, np.zeros(x.size))
+        try:
+            ll, c, ln, ls, gbar = self.evaluate(x)
+            if not np.isfinite(ll):
+                return bad
+            grad = self._loglik_grad(x, c, ln, ls, gbar)
+        except (FloatingPointError, ValueError, ZeroDivisionError):
+            return bad
+        if not np.all(np.isfinite(grad)):
+            return bad
+        return -ll, -grad
+
+    def gradient(self, x: np.ndarray) -> np.ndarray:
+        """The analytic gradient of the objective at ``x`` (see :meth:`value_and_grad`).
+
+        Parameters
+        ----------
+        x : ndarray, shape (dim,)
+
+        Returns
+        -------
+        ndarray, shape (dim,)
+            NaN where the objective is infeasible.
+        """
+        f, g = self.value_and_grad(x)
+        return g if f < 1e299 else np.full(np.size(x), np.nan)
+
+    def _loglik_grad(
+        self, x: np.ndarray, c: np.ndarray, ln: np.ndarray, ls: np.ndarray, gbar: np.ndarray
+    ) -> np.ndarray:
+        """∂ log L/∂x at the profiled counts ``c`` (expectations ``ln``, ``ls``; ``gbar``
+        the DFE-averaged spectrum at ``x``)."""
+        xd, eps = self.split(x)
+        data = self.data
+        dfe = self.model.to_dfe(xd)
+        # d gbar / d x: (n_free, n−1), then on the data's classes, times L_S
+        dg = self.model.dfe_jacobian(xd).T @ self.expect.mean_g_grad(dfe)
+        db = _fold(data, data.sites_selected * dg)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            rs = np.where(ls > 0, data.selected / ls, 0.0) - 1.0
+        if eps:
+            dls = (1.0 - eps) * c * db + eps * c[::-1] * db[:, ::-1]
+        else:
+            dls = c * db
+        out = dls @ rs
+        if not self.free_eps:
+            return out
+        a = data.sites_neutral / np.arange(1, data.n)
+        b = data.sites_selected * gbar
+        with np.errstate(divide="ignore", invalid="ignore"):
+            rn = np.where(ln > 0, data.neutral / ln, 0.0) - 1.0
+        rc = c[::-1]
+        d_eps = (rn @ (rc * a[::-1] - c * a)) + (rs @ (rc * b[::-1] - c * b))
+        return np.append(out, d_eps * eps * (1.0 - eps))

@@ -366,7 +366,11 @@ def fit_model(
         vals = np.array([obj(g) for g in grid])
         starts = list(starts) + [grid[j] for j in np.argsort(vals, kind="stable")[:grid_starts]]
     opt = minimize_multistart(
-        obj, starts, obj.bounds(), screen=None if grid_starts > 0 else n_local
+        obj,
+        starts,
+        obj.bounds(),
+        screen=None if grid_starts > 0 else n_local,
+        value_and_grad=obj.value_and_grad if obj.analytic_gradient else None,
     )
     xbest, fbest = opt.x, opt.fun
     success = bool(np.isfinite(fbest) and fbest < 1e299 and opt.success)

@@ -158,6 +158,47 @@ class DfeModel:
             return base
         return WithBeneficial(base, p_b=_expit(ben_x[0]), s_b=float(np.exp(ben_x[1])))
 
+    def dfe_jacobian(self, x: np.ndarray) -> np.ndarray:
+        """Derivatives of the DFE object's parameters with respect to ``x``.
+
+        Rows follow ``to_dfe(x).param_names`` (``shape, mean``; ``mu, sigma``; every band
+        mass; then ``p_b, s_b``), columns the coordinates of ``x``: exp for the log
+        transforms, the softmax Jacobian m_k (δ_kj − m_j) for the masses (the first
+        mass's log ratio fixed at 0), p (1 − p) for the logit of ``p_b``.
+
+        Parameters
+        ----------
+        x : ndarray, shape (n_free,)
+
+        Returns
+        -------
+        ndarray, shape (len(to_dfe(x).param_names), n_free)
+
+        Examples
+        --------
+        >>> np.round(DfeModel("gamma").dfe_jacobian(np.log([0.5, 20.0])), 12).tolist()
+        [[0.5, 0.0], [0.0, 20.0]]
+        """
+        x = np.asarray(x, dtype=float)
+        k = self.n_free - (2 if self.beneficial else 0)
+        if self.family == "gamma":
+            base = np.diag(np.exp(x[:2]))
+        elif self.family == "lognormal":
+            base = np.diag([1.0, float(np.exp(x[1]))])
+        else:
+            z = np.concatenate([[0.0], x[:k]])
+            m = np.exp(z - z.max())
+            m /= m.sum()
+            base = (np.diag(m) - np.outer(m, m))[:, 1:]
+        if not self.beneficial:
+            return base
+        p = _expit(float(x[k]))
+        out = np.zeros((base.shape[0] + 2, self.n_free))
+        out[: base.shape[0], :k] = base
+        out[-2, k] = p * (1.0 - p)
+        out[-1, k + 1] = float(np.exp(x[k + 1]))
+        return out
+
     def natural(self, x: np.ndarray) -> dict[str, float]:
         """Natural-scale parameters (named) for an unconstrained vector."""
         d = self.to_dfe(x)

@@ -20,7 +20,15 @@ from scipy.special import gammaln, zeta
 
 from ..defaults import DEFAULT_EDGES_NES
 from .expected import SfsKernel, _log_binom, fixation_ratio, kernel
-from .families import BaseDfe, Dfe, DiscreteDfe, GammaDfe, check_band_edges, split_dfe
+from .families import (
+    BaseDfe,
+    Dfe,
+    DiscreteDfe,
+    GammaDfe,
+    LognormalDfe,
+    check_band_edges,
+    split_dfe,
+)
 
 __all__ = ["DfeExpectation", "mean_fixation_ratio"]
 
@@ -417,33 +425,64 @@ class DfeExpectation:
         return out
 
     def mean_g_grad(self, dfe: Dfe, rel_step: float = 1e-6) -> np.ndarray:
-        """Derivatives of :meth:`mean_g` with respect to the natural parameters.
+        r"""Derivatives of :meth:`mean_g` with respect to the natural parameters.
 
-        Central finite differences (relative step ``rel_step``) for the continuous
-        parameters; exact for the masses of a :class:`DiscreteDfe` (treated as free).
+        The derivative of the quadrature itself (so that it is the exact gradient of what
+        :meth:`mean_g` computes, on the same nodes): :math:`\partial_\theta \bar g
+        = \sum_j W_j f(t_j) t_j\, \partial_\theta \ln f(t_j)\, g(-t_j)` with the
+        families' :meth:`~driftband.prf.families.GammaDfe.dlogpdf_t`, plus the derivatives
+        of the two moments of the mass below 1e-8 (``small_t_grad`` of the family: exact
+        but for the gamma shape, a central difference of relative step ``rel_step``).
+        Exact for the masses of a
+        :class:`DiscreteDfe` (treated as free: the rows are the band means), for ``p_b``
+        (:math:`g(s_b) - \bar g_{del}`) and for ``s_b``
+        (:meth:`~driftband.prf.expected.SfsKernel.dg_beneficial`). The panel plan of a
+        narrow DFE is held fixed (it changes in steps with the parameters).
+
+        Parameters
+        ----------
+        dfe : DFE object
+        rel_step : float
+            Relative step of the differences for the mass below 1e-8.
 
         Returns
         -------
         ndarray, shape (len(dfe.param_names), n - 1), float64
         """
-        base, p_b, _ = split_dfe(dfe)
-        rows = []
-        for name in dfe.param_names:
-            if name.startswith("mass_") and isinstance(base, DiscreteDfe):
-                k = int(name.split("_")[1])
-                rows.append((1.0 - p_b) * self.band_means(base.edges_nes)[k])
-                continue
-            v = dfe.params[name]
-            h = rel_step * max(abs(v), 1e-3)
-            if name == "p_b" and v - h < 0:
-                lo, hi = v, v + h
-            else:
-                lo, hi = v - h, v + h
-            d = self.mean_g(dfe.with_params(**{name: hi})) - self.mean_g(
-                dfe.with_params(**{name: lo})
-            )
-            rows.append(d / (hi - lo))
-        return np.array(rows)
+        base, p_b, s_b = split_dfe(dfe)
+        if isinstance(base, DiscreteDfe):
+            rows = np.array(self.band_means(base.edges_nes), dtype=float)
+        else:
+            rows = self._quadrature_grad(base, rel_step)
+        if not p_b:
+            return rows
+        extra = np.stack(
+            [
+                self._g_plus(s_b) - self.mean_g(base),
+                p_b * self.kernel.dg_beneficial(s_b),
+            ]
+        )
+        return np.concatenate(((1.0 - p_b) * rows, extra))
+
+    def _quadrature_grad(self, base: GammaDfe | LognormalDfe, rel_step: float) -> np.ndarray:
+        """Derivatives of the quadrature of a continuous family, shape (2, n - 1)."""
+        nar = self._narrow(base)
+        if nar is not None:
+            w_std, blk = nar
+            segs: list[tuple[_Nodes, np.ndarray, np.ndarray]] = [
+                (self._std, w_std, self._std.G_nodes),
+                (blk, blk.node_weights(base), blk.G),
+            ]
+        else:
+            tab = self._table(_breaks(base))
+            segs = [(tab, tab.node_weights(base), tab.G_nodes)]
+        out = np.zeros((len(base.param_names), self.n - 1))
+        for nodes, w, G in segs:
+            live = w > 0
+            score = base.dlogpdf_t(nodes.t[live], nodes.log_t[live])
+            out += (score * w[live]) @ G[live]
+        # the mass below T_LO: P(T < T_LO) on row 0 of G, E[T; T < T_LO] on row 1
+        return out + base.small_t_grad(T_LO, rel_step) @ self.G[:2]
 
     def band_means(self, edges_nes: Iterable[float] = DEFAULT_EDGES_NES) -> np.ndarray:
         """Mean spectrum within each band of a :class:`DiscreteDfe`, shape (K, n - 1)."""

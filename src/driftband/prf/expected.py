@@ -217,6 +217,30 @@ class SfsKernel:
         S = np.asarray(S, dtype=float)
         return self._g_flat(S.reshape(-1)).reshape(S.shape + (self.n - 1,))
 
+    def dg_beneficial(self, s: float) -> np.ndarray:
+        r"""Derivative :math:`\partial g_i/\partial S` at one beneficial ``s > 0``.
+
+        The same trapezoid sum as :meth:`g` with the weight differentiated:
+        :math:`\partial_S w_S(x) = [e^{-S} (e^{-S u} - 1) - u e^{-S u} (e^{-S} - 1)]
+        / (e^{-S} - 1)^2`, :math:`u = 1 - x` (for the beneficial point mass of a DFE).
+
+        Parameters
+        ----------
+        s : float
+            Scaled coefficient, > 0.
+
+        Returns
+        -------
+        ndarray, shape (n - 1,), float64
+        """
+        if not s > 0:
+            raise ValueError(f"`s` must be > 0, got {s!r}")
+        u = self.one_minus_x
+        e_su = np.exp(-s * u)
+        em1 = math.expm1(-s)
+        dw = (math.exp(-s) * np.expm1(-s * u) - u * e_su * em1) / (em1 * em1)
+        return self.A @ dw
+
     def log_g(self, S: ArrayLike) -> np.ndarray:
         r"""Natural logarithm of :math:`g_i(S)`, accurate also where ``g`` underflows.
 

@@ -570,7 +570,9 @@ LINKAGE_GUIDE = (
     "each statistic is divided by a factor estimated from how much the blocks vary "
     "(composite-likelihood theory: Varin, Reid & Firth 2011; a Rao\u2013Scott-type "
     "correction), and its p-value is read off the adjusted statistic; a factor near 1 "
-    "means the sites behave as if unlinked. The table keeps both the raw and the adjusted "
+    "means the sites behave as if unlinked. The factor is never below 1: linked sites "
+    "cannot carry more information than as many independent sites, so an estimate below "
+    "1 is sampling error and counts as 1. The table keeps both the raw and the adjusted "
     "statistic. The neutral-share difference needs no such adjustment: its bootstrap "
     "resamples whole blocks."
 )
