@@ -142,6 +142,21 @@ def timed(cmd: list[str], stdout=subprocess.DEVNULL, env=None) -> tuple[float, f
     return wall, mem
 
 
+def interleaved(
+    runs: dict[str, list[str]], repeats: int, env=None
+) -> tuple[dict[str, list[float]], dict[str, float]]:
+    """Wall times of every command, ``repeats`` rounds interleaved (so that a change of
+    the machine's load hits all commands alike), and each command's peak memory (MB)."""
+    times: dict[str, list[float]] = {k: [] for k in runs}
+    mem: dict[str, float] = {}
+    for _ in range(repeats):
+        for name, cmd in runs.items():
+            w, m = timed(cmd, env=env)
+            times[name].append(w)
+            mem[name] = max(mem.get(name, 0.0), m)
+    return times, mem
+
+
 def bench(paths: dict[str, Path], repeats: int) -> None:
     env = dict(os.environ, OMP_NUM_THREADS="1", OPENBLAS_NUM_THREADS="1", MKL_NUM_THREADS="1")
     out = DATA / "bench.spectra.json"
@@ -168,13 +183,7 @@ def bench(paths: dict[str, Path], repeats: int) -> None:
         "driftband spectra": base,
         "driftband spectra --min-dp 10 --min-gq 20": base + ["--min-dp", "10", "--min-gq", "20"],
     }
-    times: dict[str, list[float]] = {k: [] for k in runs}
-    mem: dict[str, float] = {}
-    for _ in range(repeats):
-        for name, cmd in runs.items():
-            w, m = timed(cmd, env=env)
-            times[name].append(w)
-            mem[name] = max(mem.get(name, 0.0), m)
+    times, mem = interleaved(runs, repeats, env)
     floor_best = min(times["bcftools view -Ou"])
     floor_med = statistics.median(times["bcftools view -Ou"])
     size = paths["vcf"].stat().st_size / 1e6

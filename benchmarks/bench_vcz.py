@@ -38,7 +38,7 @@ from pathlib import Path
 
 HERE = Path(__file__).resolve().parent
 sys.path.insert(0, str(HERE))
-from bench_spectra import make_study, timed  # noqa: E402
+from bench_spectra import interleaved, make_study  # noqa: E402
 
 ENV = dict(os.environ, OMP_NUM_THREADS="1", OPENBLAS_NUM_THREADS="1", MKL_NUM_THREADS="1")
 COUNT_ONLY = """
@@ -107,13 +107,7 @@ def bench(paths: dict[str, Path], n_samples: int, n_snps: int, repeats: int) -> 
         "counting alone VCF, 1 worker": count(paths["vcf"]),
         "counting alone VCZ, 1 worker": count(store),
     }
-    times: dict[str, list[float]] = {k: [] for k in runs}
-    mem: dict[str, float] = {}
-    for _ in range(repeats):
-        for name, cmd in runs.items():
-            w, m = timed(cmd, env=ENV)
-            times[name].append(w)
-            mem[name] = max(mem.get(name, 0.0), m)
+    times, mem = interleaved(runs, repeats, ENV)
     same = _body(out["vcf"]) == _body(out["vcz"])
     floor = min(times["bcftools view -Ou (VCF)"]) if "bcftools view -Ou (VCF)" in runs else None
     vcf1 = min(times["spectra VCF, 1 worker"])
