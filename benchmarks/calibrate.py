@@ -38,10 +38,11 @@ from scipy.special import gammainc
 from driftband.compare import compare_pair
 from driftband.defaults import COMPARE_TESTS, DEFAULT_MODELS, DEFAULT_REPLICATES
 from driftband.fit.api import fit_population
-from driftband.fit.bootstrap import bootstrap_fits
+from driftband.fit.bootstrap import bootstrap_fits, mixture_interval, percentile_interval
 from driftband.fit.likelihood import SpectrumPair
 from driftband.fit.models import DfeModel
 from driftband.fit.options import FitOptions
+from driftband.fit.results import akaike_weights
 from driftband.simulate import build_populations, parse_dfe, simulate_study
 
 SHAPE, MEAN_S = 0.3, 200.0  # on S at the first population's size
@@ -55,6 +56,24 @@ def truth(scenario: str) -> dict[str, float]:
         "A": float(gammainc(SHAPE, 4 * SHAPE / MEAN_S)),
         "B": float(gammainc(SHAPE, 4 * SHAPE / (MEAN_S * scale))),
     }
+
+
+def _raw(pf) -> dict:
+    """The point fits and every family's bootstrap of the neutral-band share, so that
+    other interval constructions can be scored offline on the same replicates."""
+    boot = pf.bootstrap
+    fams = {}
+    for m, f in pf.fits.items():
+        mb = boot.models[m]
+        fams[m] = {
+            "share": float(f.shares[0]),
+            "aic": float(f.aic),
+            "n_params": int(f.n_params),
+            "shares": [None if not np.isfinite(v) else float(v) for v in mb.shares[:, 0]],
+            "loglik": [None if not np.isfinite(v) else float(v) for v in mb.loglik],
+            "ok": [bool(v) for v in mb.ok],
+        }
+    return fams
 
 
 def one_replicate(args) -> dict[str, float]:
@@ -88,10 +107,39 @@ def one_replicate(args) -> dict[str, float]:
         out[f"share_{pf.population}"] = float(h.shares[0])
         lo, hi = pf.model_bootstrap("gamma").shares_ci[0]
         out[f"cover_gamma_{pf.population}"] = float(lo <= tv[pf.population] <= hi)
+        out[f"raw_{pf.population}"] = _raw(pf)
     for r in rows:
         out[f"p_{r.test}"] = r.p_value
         out[f"praw_{r.test}"] = r.extra.get("p_raw", r.p_value)
     return out
+
+
+def _intervals_from_raw(raw: dict, level: float = 0.95) -> dict[str, tuple[float, float]]:
+    """The averaged share's interval two ways from one population's logged replicates:
+    percentiles of the per-replicate averages, and the weighted mixture of the families'
+    replicates (the library's :func:`mixture_interval`)."""
+    names = list(raw)
+    B = len(raw[names[0]]["shares"])
+    vals = np.full((B, len(names)), np.nan)
+    wts = np.full((B, len(names)), np.nan)
+    for r in range(B):
+        aic = {
+            m: 2 * raw[m]["n_params"] - 2 * raw[m]["loglik"][r]
+            if raw[m]["ok"][r] and raw[m]["loglik"][r] is not None
+            else float("nan")
+            for m in names
+        }
+        w = akaike_weights(aic)
+        for i, m in enumerate(names):
+            wts[r, i] = w[m]
+            x = raw[m]["shares"][r]
+            vals[r, i] = np.nan if x is None or not raw[m]["ok"][r] else x
+    avg = np.nansum(np.where(wts > 0, wts * np.nan_to_num(vals), 0.0), axis=1)
+    avg[~np.isfinite(wts).all(axis=1)] = np.nan
+    return {
+        "percentile": tuple(percentile_interval(avg, level)),
+        "mixture": tuple(mixture_interval(vals, wts, level)),
+    }
 
 
 LOG = os.path.join(os.path.dirname(os.path.abspath(__file__)), "_data", "calibration.jsonl")
@@ -141,6 +189,23 @@ def main() -> None:
             c = float(np.mean(v))
             label = f"(a) coverage of 95% CI of neutral share, {what}"
             print(f"{label:<58} {c:>7.3f} {'0.93-0.97':>10} {se(c, len(v))}")
+    for sc in SCENARIOS:
+        t = truth(sc)
+        for how in ("percentile", "mixture"):
+            hits, width = [], []
+            for r in res[sc]:
+                for k in "AB":
+                    if f"raw_{k}" in r:
+                        lo, hi = _intervals_from_raw(r[f"raw_{k}"])[how]
+                        hits.append(lo <= t[k] <= hi)
+                        width.append(hi - lo)
+            if hits:
+                c = float(np.mean(hits))
+                label = f"(a) {sc}: coverage, averaged share, {how} interval"
+                print(
+                    f"{label:<58} {c:>7.3f} {'0.93-0.97':>10} {se(c, len(hits))}"
+                    f"  (n = {len(hits)}, mean width {np.mean(width):.3f})"
+                )
     for test in COMPARE_TESTS:
         for key, kind in (("praw", "raw"), ("p", "adjusted")):
             v, m = rate("same", f"{key}_{test}", lambda p: p < 0.05)

@@ -8,8 +8,9 @@ from types import SimpleNamespace
 
 import numpy as np
 import pytest
+from scipy import optimize, stats
 
-from driftband.fit.bootstrap import _averaged, _summarise, percentile_interval
+from driftband.fit.bootstrap import _averaged, _summarise, mixture_interval, percentile_interval
 from driftband.fit.results import akaike_weights
 
 
@@ -70,6 +71,46 @@ def test_averaged_shares_reweigh_every_replicate():
     assert av.weights["b"][1] == pytest.approx(wb)
     # replicate 2: b failed, so a takes all the weight
     assert av.weights["a"][2] == 1.0 and av.shares[2, 0] == pytest.approx(0.1)
+
+
+def test_mixture_interval_solves_the_model_averaged_tail_areas():
+    """Turek & Fletcher (2012) define the model-averaged tail-area interval by
+    Σ_m w_m·P_m(θ ≤ end) = α/2 and 1 − α/2. With each model's bootstrap values set at the
+    quantiles of its normal sampling distribution (scipy.stats.norm), the mixture
+    interval solves the same equations (brentq on the normal CDFs) to the quantile grid's
+    resolution."""
+    B = 4000
+    u = (np.arange(B) + 0.5) / B
+    mus, sds, w = np.array([0.24, 0.25, 0.33]), np.array([0.010, 0.011, 0.015]), [0.6, 0.3, 0.1]
+    values = stats.norm.ppf(u[:, None], mus, sds)
+    lo, hi = mixture_interval(values, np.tile(w, (B, 1)), 0.95)
+
+    def tail(x: float, p: float) -> float:
+        return float(np.dot(w, stats.norm.cdf(x, mus, sds))) - p
+
+    assert lo == pytest.approx(optimize.brentq(tail, 0.0, 1.0, args=(0.025,)), abs=2e-4)
+    assert hi == pytest.approx(optimize.brentq(tail, 0.0, 1.0, args=(0.975,)), abs=2e-4)
+    # the per-replicate averages Σ w θ would give a narrower interval, centred on 0.252
+    avg = values @ np.array(w)
+    a_lo, a_hi = percentile_interval(avg, 0.95)
+    assert a_hi - a_lo < hi - lo
+
+
+def test_mixture_interval_of_one_model_is_its_percentile_interval():
+    # numpy's Hazen plotting positions: the same rule, one model, equal weights
+    x = np.random.default_rng(2).normal(size=(501, 1))
+    x[7] = np.nan  # a failed refit is left out
+    lo, hi = mixture_interval(x, np.ones_like(x), 0.9)
+    ref = np.quantile(x[np.isfinite(x)], [0.05, 0.95], method="hazen")
+    assert (lo, hi) == pytest.approx(tuple(ref), rel=1e-12)
+    # replicates whose weights are all NaN (no family converged) are left out, and no
+    # weight at all gives NaN ends
+    w = np.ones_like(x)
+    w[:250] = np.nan
+    assert mixture_interval(x, w, 0.9) == pytest.approx(
+        tuple(np.quantile(x[250:][np.isfinite(x[250:])], [0.05, 0.95], method="hazen"))
+    )
+    assert all(np.isnan(mixture_interval(x, np.full_like(x, np.nan), 0.9)))
 
 
 def test_a_family_failing_in_most_replicates_is_named_in_the_headline():

@@ -144,9 +144,10 @@ class AveragedBootstrap:
     """Model-averaged band shares per bootstrap replicate.
 
     In every replicate the Akaike weights are recomputed from that replicate's refits of
-    every family, so that the interval carries the uncertainty of the model choice
-    (Burnham & Anderson 2002, ch. 4, on model-averaged estimates and their unconditional
-    variance; here by the bootstrap instead of their variance formula).
+    every family (Burnham & Anderson 2002, ch. 4, on model-averaged estimates). The
+    intervals are those of the weighted mixture of the families' replicates
+    (:func:`driftband.fit.bootstrap.mixture_interval`, after Turek & Fletcher 2012), so
+    that they carry the disagreement between the families as well as sampling error.
 
     Attributes
     ----------

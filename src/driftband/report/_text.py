@@ -337,6 +337,8 @@ REFERENCES: list[str] = [
     "1022\u20131024.",
     "Tajima F (1989) Statistical method for testing the neutral mutation hypothesis by DNA "
     "polymorphism. Genetics 123: 585\u2013595.",
+    "Turek D, Fletcher D (2012) Model-averaged Wald confidence intervals. Computational "
+    "Statistics & Data Analysis 56: 2809\u20132815.",
     "Varin C, Reid N, Firth D (2011) An overview of composite likelihood methods. "
     "Statistica Sinica 21: 5\u201342.",
 ]
