@@ -64,8 +64,10 @@ def test_bounds_are_left_out():
     # shape at its upper bound 100 in one of the fits: only the mean's coordinate is used
     assert interior_coordinates(m, np.log([0.3, 200.0]), np.log([100.0, 50.0])) == [1]
     d = DfeModel("discrete")
-    x = d.from_natural({"mass_0": 0.2, "mass_1": 0.0, "mass_2": 0.3, "mass_3": 0.5})
-    assert interior_coordinates(d, x) == [1, 2]  # mass_1 = 0: its log ratio is dropped
+    x = d.from_natural(
+        {"mass_0": 0.05, "mass_1": 0.15, "mass_2": 0.0, "mass_3": 0.3, "mass_4": 0.5}
+    )
+    assert interior_coordinates(d, x) == [0, 2, 3]  # mass_2 = 0: its log ratio is dropped
     b = DfeModel("gamma", beneficial=True)
     x = b.from_natural(
         {"shape": 0.3, "mean_abs_S": 200.0, "beneficial_fraction": 1e-6, "beneficial_S": 10.0}
@@ -311,7 +313,7 @@ def test_replicate_pi_matches_the_spectrum_pair():
         (DfeModel("lognormal"), {"mean_log_abs_S": 2.5, "sd_log_abs_S": 1.7}),
         (
             DfeModel("discrete"),
-            {"mass_0": 0.25, "mass_1": 0.15, "mass_2": 0.1, "mass_3": 0.5},
+            {"mass_0": 0.05, "mass_1": 0.2, "mass_2": 0.15, "mass_3": 0.1, "mass_4": 0.5},
         ),
         (
             DfeModel("gamma", beneficial=True),

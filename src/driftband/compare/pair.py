@@ -331,6 +331,15 @@ def compare_pair(
                 "with --model"
             )
     fa, fb = pop_a.fits[model.name], pop_b.fits[model.name]
+    for pf, f in ((pop_a, fa), (pop_b, fb)):
+        if tuple(f.params) != model.param_names:
+            raise InputError(
+                f"population {pf.population!r}: its fit of {model.name} has the parameters "
+                f"{', '.join(f.params)}, where this driftband's {model.name} has "
+                f"{', '.join(model.param_names)} (a fit file of an older version: the "
+                "discrete family's first band is split since fit schema 4); refit it "
+                "with 'driftband fit', or compare another model with --model"
+            )
     edges = options.edges_nes
 
     def objective(d: SpectrumPair) -> Objective:

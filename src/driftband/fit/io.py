@@ -63,10 +63,13 @@ __all__ = [
 FIT_SCHEMA = "driftband-fit"
 #: Version 2 keeps every bootstrap replicate in its place (failed ones as null, with a
 #: ``converged`` mask), adds the model-averaged shares and the ``headline``. Version 3
-#: names the parameters and counts in words (:data:`RENAMED_KEYS`). Versions 1 and 2
-#: are still read, their keys translated.
-FIT_SCHEMA_VERSION = 3
-FIT_SCHEMA_VERSIONS_READ = (1, 2, 3)
+#: names the parameters and counts in words (:data:`RENAMED_KEYS`). Version 4 fits the
+#: discrete family on the report bands with the first band split
+#: (:func:`~driftband.prf.families.discrete_family_edges`): one more mass. Versions 1 to
+#: 3 are still read, their keys translated; their discrete fits are shown as written, but
+#: a comparison that refits them needs them refitted (it says so).
+FIT_SCHEMA_VERSION = 4
+FIT_SCHEMA_VERSIONS_READ = (1, 2, 3, 4)
 #: Keys (and parameter names in ``at_bounds``) of fit files before version 3 -> now.
 RENAMED_KEYS = {
     "eps": "misorientation_rate",
@@ -188,15 +191,19 @@ def upgrade_fit_doc(doc: dict[str, Any], path: str | os.PathLike | None = None) 
             return [walk(v) for v in o]
         return o
 
-    out = walk(doc)
+    out = walk(doc) if isinstance(version, int) and version < 3 else dict(doc)
     out["schema_version"] = FIT_SCHEMA_VERSION
     log.warning(
-        "%s: fit file of schema version %s (an older driftband), read with its keys "
-        "translated to version %d (e.g. eps -> misorientation_rate, p_b -> "
-        "beneficial_fraction); rerun 'driftband fit' to write the current version",
+        "%s: fit file of schema version %s (an older driftband), read as version %d%s; "
+        "its discrete fits have one band mass fewer than this version's discrete family "
+        "(whose first band is split), so a comparison of them needs a refit; rerun "
+        "'driftband fit' to write the current version",
         os.fspath(path) if path is not None else "fit document",
         version,
         FIT_SCHEMA_VERSION,
+        " with its keys translated (e.g. eps -> misorientation_rate, p_b -> beneficial_fraction)"
+        if isinstance(version, int) and version < 3
+        else "",
     )
     return out
 

@@ -15,7 +15,13 @@ import numpy as np
 
 from ..defaults import DEFAULT_EDGES_NES
 from ..exceptions import OptionError
-from ..prf.families import DiscreteDfe, GammaDfe, LognormalDfe, WithBeneficial
+from ..prf.families import (
+    DiscreteDfe,
+    GammaDfe,
+    LognormalDfe,
+    WithBeneficial,
+    discrete_family_edges,
+)
 
 if TYPE_CHECKING:
     from ..prf.dfe import BaseDfe, Dfe
@@ -55,7 +61,8 @@ class DfeModel:
     beneficial : bool
         Add a fraction ``beneficial_fraction`` of beneficial mutations at ``S = beneficial_S > 0``.
     edges_nes : tuple of float
-        Band edges on |Ne·s| for the discrete family (first edge 0).
+        The report's band edges on |Ne·s| (first edge 0); the discrete family's own bands
+        are :attr:`family_edges`.
     """
 
     family: str
@@ -67,6 +74,12 @@ class DfeModel:
             raise OptionError(
                 f"unknown DFE family {self.family!r}; choose from {', '.join(FAMILIES)}"
             )
+
+    @property
+    def family_edges(self) -> tuple[float, ...]:
+        """The discrete family's band edges on |Ne·s| (the report bands with the first one
+        split, :func:`~driftband.prf.families.discrete_family_edges`)."""
+        return discrete_family_edges(self.edges_nes)
 
     @property
     def name(self) -> str:
@@ -81,13 +94,13 @@ class DfeModel:
         elif self.family == "lognormal":
             base = ("mean_log_abs_S", "sd_log_abs_S")
         else:
-            base = tuple(f"mass_{k}" for k in range(len(self.edges_nes)))
+            base = tuple(f"mass_{k}" for k in range(len(self.family_edges)))
         return base + (("beneficial_fraction", "beneficial_S") if self.beneficial else ())
 
     @property
     def n_free(self) -> int:
         """Number of free DFE parameters (masses sum to one)."""
-        k = 2 if self.family != "discrete" else len(self.edges_nes) - 1
+        k = 2 if self.family != "discrete" else len(self.family_edges) - 1
         return k + (2 if self.beneficial else 0)
 
     def bounds(self) -> list[tuple[float, float]]:
@@ -97,7 +110,7 @@ class DfeModel:
         elif self.family == "lognormal":
             b = [(-12.0, 20.0), (_LOG(0.01), _LOG(30.0))]
         else:
-            b = [(-30.0, 30.0)] * (len(self.edges_nes) - 1)
+            b = [(-30.0, 30.0)] * (len(self.family_edges) - 1)
         if self.beneficial:
             b += [(_logit(1e-6), _logit(0.5)), (_LOG(0.01), _LOG(1e4))]
         return b
@@ -152,7 +165,7 @@ class DfeModel:
             z = np.concatenate([[0.0], base_x])
             w = np.exp(z - z.max())
             base = DiscreteDfe(
-                masses=tuple(float(v) for v in w / w.sum()), edges_nes=tuple(self.edges_nes)
+                masses=tuple(float(v) for v in w / w.sum()), edges_nes=self.family_edges
             )
         if not self.beneficial:
             return base
@@ -269,7 +282,7 @@ class DfeModel:
                 for mu, sd in itertools.product((0.0, 2.0, 4.0, 6.0, 8.0), (0.5, 1.5, 3.0))
             ]
         else:
-            k = len(self.edges_nes) - 1
+            k = len(self.family_edges) - 1
             base = [np.zeros(k)]
             for j in range(k):
                 e = np.full(k, -1.0)

@@ -15,6 +15,7 @@ from collections.abc import Iterable
 from typing import Any
 
 from ..effect import convention_text
+from ..prf.families import discrete_family_edges
 from ..spectra.callable import CALLABLE_SOURCES
 from ._plots import bands_figure, spectra_figure
 from ._spectra_made import spectra_made_rows
@@ -394,6 +395,10 @@ def _params_table(v: PopulationView) -> str:
         se = f.get("stderr") or {}
         ci = v.model_ci(m).get("params_ci") or {}
         items = list((f.get("params") or {}).items())
+        masses = sum(1 for k, _ in items if k.startswith("mass_"))
+        # the discrete family's own bands: the report's, the first one split (fit files
+        # of schema 4 on; older ones have one mass per report band)
+        labels = list(discrete_family_edges(edges)) if masses == len(edges) + 1 else edges
         if f.get("misorientation_free"):
             items.append(("misorientation_rate", f.get("misorientation_rate")))
         items.append(("theta", f.get("theta")))
@@ -416,7 +421,7 @@ def _params_table(v: PopulationView) -> str:
                     [
                         m,
                         name,
-                        param_label(name, edges),
+                        param_label(name, labels),
                         _num(est),
                         _num(se_text),
                         _num(ci_text),

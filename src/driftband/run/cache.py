@@ -57,8 +57,18 @@ def _canonical(obj: Any) -> str:
 
 
 def stage_key(stage: str, inputs: dict[str, str | None], options: dict[str, Any]) -> str:
-    """Checksum of a stage: its name, driftband's version, input checksums and options."""
-    blob = {"stage": stage, "driftband": __version__, "inputs": inputs, "options": options}
+    """Checksum of a stage: its name, driftband's version and output schemas, input
+    checksums and options (a stage written under another schema is redone)."""
+    from ..fit.io import FIT_SCHEMA_VERSION
+    from ..spectra.io import SCHEMA_VERSION as SPECTRA_SCHEMA_VERSION
+
+    blob = {
+        "stage": stage,
+        "driftband": __version__,
+        "schemas": [SPECTRA_SCHEMA_VERSION, FIT_SCHEMA_VERSION],
+        "inputs": inputs,
+        "options": options,
+    }
     return hashlib.sha256(_canonical(blob).encode()).hexdigest()
 
 

@@ -217,11 +217,16 @@ def population(rng, pop, n, folded, theta, ln, ls, g, lg, disc, fixed=None, disc
         "discrete": model_entry(
             pop,
             "discrete",
-            {f"mass_{k}": v for k, v in enumerate(disc[0])},
-            {f"mass_{k}": 0.05 for k in range(4)},
+            # the family's own bands: the report bands with the first split at |Ne·s| =
+            # 0.25 (fit schema 4), so the first band's mass is held by two masses
+            {
+                f"mass_{k}": v
+                for k, v in enumerate((0.3 * disc[0][0], 0.7 * disc[0][0]) + disc[0][1:])
+            },
+            {f"mass_{k}": 0.05 for k in range(5)},
             list(disc[0]),
-            disc[1],
-            3 + m + ke,
+            disc[1] + 1.0,  # one more mass than before schema 4, at the same AIC
+            4 + m + ke,
             eps,
             eps_free,
             theta,
@@ -250,7 +255,30 @@ def population(rng, pop, n, folded, theta, ln, ls, g, lg, disc, fixed=None, disc
             extra["omega_a"] = d_n / d_s - f["fixation_ratio"]
             extra["alpha_classic"] = 0.162
             extra["alpha_asymptotic"] = 0.21
-        b["models"][name] = boot(rng, f["params"], f["shares"], extra)
+        params = f["params"]
+        if name == "discrete":  # replicates drawn for the band masses, then the first split
+            m = list(params.values())
+            params = {f"mass_{k}": v for k, v in enumerate([m[0] + m[1], *m[2:]])}
+        b["models"][name] = boot(rng, params, f["shares"], extra)
+        if name == "discrete":
+            bp = b["models"][name]["params"]
+            first = np.array(bp.pop("mass_0"))
+            bp = (
+                {"mass_0": (0.3 * first).tolist(), "mass_1": (0.7 * first).tolist()}
+                | {f"mass_{int(k[5:]) + 1}": v for k, v in bp.items() if k.startswith("mass_")}
+                | {k: v for k, v in bp.items() if not k.startswith("mass_")}
+            )
+            b["models"][name]["params"] = bp
+            ci = b["models"][name]["params_ci"]
+            lo, hi = ci.pop("mass_0")
+            b["models"][name]["params_ci"] = (
+                {
+                    "mass_0": [0.3 * lo, 0.3 * hi],
+                    "mass_1": [0.7 * lo, 0.7 * hi],
+                }
+                | {f"mass_{int(k[5:]) + 1}": v for k, v in ci.items() if k.startswith("mass_")}
+                | {k: v for k, v in ci.items() if not k.startswith("mass_")}
+            )
     if not disc_ok:
         b["models"]["discrete"]["failed"] = 6
     data = {
