@@ -172,8 +172,10 @@ def _answer(view: ReportView) -> str:
         f"effect lies in the effectively neutral band |Ne\u00b7s| &lt; {b0.hi:g} "
         f"(|S| &lt; {b0.hi_s:g}), averaged over the DFE families by their Akaike "
         "weights (or under the AIC-best family where the fit asked for it), with "
-        f"{esc(lvl)} block-bootstrap percentile intervals in which the model choice is "
-        "redone in every replicate.</p>",
+        f"{esc(lvl)} block-bootstrap intervals in which the model choice is redone in "
+        "every replicate (for the averaged shares, percentiles of the families' replicates "
+        "weighted by each replicate's Akaike weights, so that disagreement between the "
+        "families widens them).</p>",
         _table("headline", "Effectively neutral share of new mutations", head, rows, "headline"),
         f'<p class="convention">{esc(convention_text(view.effect))}.</p>',
         '<ul class="answer">'

@@ -71,8 +71,9 @@ def render_markdown(view: ReportView) -> str:
         "",
         f"Share of new {md(sel)} (selected-class) mutations in the effectively neutral band "
         f"|Ne·s| < {b0.hi:g} (|S| < {b0.hi_s:g}), headline model (averaged over the DFE "
-        f"families by Akaike weight, or the AIC-best one), {lvl} block-bootstrap percentile "
-        "interval:",
+        f"families by Akaike weight, or the AIC-best one), {lvl} block-bootstrap interval "
+        "(for the averaged shares, of the families' replicates weighted by their Akaike "
+        "weights):",
         "",
         _row(
             [

@@ -129,7 +129,10 @@ def conventions(effect: str = DEFAULT_EFFECT) -> list[str]:
         "Shares are of new mutations at selected-class sites, not of polymorphisms or "
         "substitutions; they sum to 1 over the bands.",
         "Intervals are percentile intervals of a block bootstrap over genomic blocks "
-        "(blocks resampled with replacement, every model refitted).",
+        "(blocks resampled with replacement, every model refitted); for the averaged "
+        "shares, of every family's replicates weighted by that replicate's Akaike weights "
+        "(the bootstrap form of the model-averaged tail-area interval, Turek & Fletcher "
+        "2012).",
         "Expected spectra come from Poisson random field theory (Sawyer & Hartl 1992) with "
         "demographic nuisance factors r_i shared by both classes (Eyre-Walker, Woolfit & "
         "Phelps 2006); Pearson residuals are (observed \u2212 expected)/\u221aexpected.",
