@@ -38,6 +38,7 @@ from __future__ import annotations
 import csv
 import json
 import os
+import shutil
 import sys
 import tempfile
 import time
@@ -110,6 +111,10 @@ def one_study(args: tuple[int, int]) -> dict:
     with tempfile.TemporaryDirectory() as tmp:
         spath, fpath, cpath = (os.path.join(tmp, f) for f in ("spectra.json", "fit.json", "c.tsv"))
         write_spectra_json(_spectra_set(sims), spath)
+        # kept, so that a later version can refit the same studies without simulating
+        keep = os.path.join(os.path.dirname(LOG), "linked_spectra")
+        os.makedirs(keep, exist_ok=True)
+        shutil.copyfile(spath, os.path.join(keep, f"study_{rep:04d}.spectra.json"))
         t1 = time.perf_counter()
         fit_args = [spath, "--misorientation", "fixed:0", "--bootstrap", str(B)]
         rc = driftband_main(["fit", *fit_args, "--workers", "1", "-q", "-o", fpath])
