@@ -38,11 +38,10 @@ from scipy.special import gammainc
 from driftband.compare import compare_pair
 from driftband.defaults import COMPARE_TESTS, DEFAULT_MODELS, DEFAULT_REPLICATES
 from driftband.fit.api import fit_population
-from driftband.fit.bootstrap import bootstrap_fits, mixture_interval, percentile_interval
+from driftband.fit.bootstrap import averaged_replicates, bootstrap_fits, percentile_interval
 from driftband.fit.likelihood import SpectrumPair
 from driftband.fit.models import DfeModel
 from driftband.fit.options import FitOptions
-from driftband.fit.results import akaike_weights
 from driftband.simulate import build_populations, parse_dfe, simulate_study
 
 SHAPE, MEAN_S = 0.3, 200.0  # on S at the first population's size
@@ -117,29 +116,20 @@ def one_replicate(args) -> dict[str, float]:
 def _intervals_from_raw(raw: dict, level: float = 0.95) -> dict[str, tuple[float, float]]:
     """The averaged share's interval two ways from one population's logged replicates:
     percentiles of the per-replicate averages, and the weighted mixture of the families'
-    replicates (the library's :func:`mixture_interval`)."""
-    names = list(raw)
-    B = len(raw[names[0]]["shares"])
-    vals = np.full((B, len(names)), np.nan)
-    wts = np.full((B, len(names)), np.nan)
-    for r in range(B):
-        aic = {
-            m: 2 * raw[m]["n_params"] - 2 * raw[m]["loglik"][r]
-            if raw[m]["ok"][r] and raw[m]["loglik"][r] is not None
-            else float("nan")
-            for m in names
-        }
-        w = akaike_weights(aic)
-        for i, m in enumerate(names):
-            wts[r, i] = w[m]
-            x = raw[m]["shares"][r]
-            vals[r, i] = np.nan if x is None or not raw[m]["ok"][r] else x
-    avg = np.nansum(np.where(wts > 0, wts * np.nan_to_num(vals), 0.0), axis=1)
-    avg[~np.isfinite(wts).all(axis=1)] = np.nan
-    return {
-        "percentile": tuple(percentile_interval(avg, level)),
-        "mixture": tuple(mixture_interval(vals, wts, level)),
-    }
+    replicates (the library's own averaging, :func:`averaged_replicates`)."""
+    fams = list(raw.values())
+
+    def col(key: str) -> np.ndarray:
+        return np.array([[np.nan if v is None else v for v in f[key]] for f in fams]).T
+
+    avg, _w, mix = averaged_replicates(
+        col("shares")[:, :, None],
+        col("loglik"),
+        np.array([f["n_params"] for f in fams]),
+        np.array([f["ok"] for f in fams]).T & np.isfinite(col("shares")),
+        level,
+    )
+    return {"percentile": tuple(percentile_interval(avg[:, 0], level)), "mixture": tuple(mix[0])}
 
 
 LOG = os.path.join(os.path.dirname(os.path.abspath(__file__)), "_data", "calibration.jsonl")

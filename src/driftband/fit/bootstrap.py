@@ -45,6 +45,7 @@ __all__ = [
     "block_size_hint",
     "bootstrap_fits",
     "check_bootstrap_settings",
+    "averaged_replicates",
     "default_batch",
     "mixture_interval",
     "percentile_interval",
@@ -455,37 +456,72 @@ def _replicate_pi(
         return np.where(sites > 0, total / sites, np.nan)
 
 
+def averaged_replicates(
+    shares: np.ndarray, loglik: np.ndarray, n_params: np.ndarray, ok: np.ndarray, level: float
+) -> tuple[np.ndarray, np.ndarray, list[ConfidenceInterval]]:
+    """Model-averaged shares of every replicate and the intervals of their mixture.
+
+    In each replicate the Akaike weights (:func:`~driftband.fit.results.akaike_weights`)
+    come from that replicate's refits; a family whose refit does not count gets weight 0,
+    and a replicate where none counts is left out (NaN).
+
+    Parameters
+    ----------
+    shares : ndarray, shape (B, models, bands)
+    loglik : ndarray, shape (B, models)
+    n_params : ndarray, shape (models,)
+    ok : ndarray of bool, shape (B, models)
+        Whether each refit counts (converged, finite shares).
+    level : float
+
+    Returns
+    -------
+    averaged : ndarray, shape (B, bands)
+        Σ_m w_m·share_m per replicate.
+    weights : ndarray, shape (B, models)
+    intervals : list of ConfidenceInterval
+        One per band, from :func:`mixture_interval`.
+    """
+    B, M, K = shares.shape
+    averaged = np.full((B, K), np.nan)
+    weights = np.full((B, M), np.nan)
+    pooled = np.full((B, M, K), np.nan)
+    names = [str(i) for i in range(M)]
+    for r in range(B):
+        aic = {
+            names[i]: 2 * float(n_params[i]) - 2 * float(loglik[r, i]) if ok[r, i] else math.nan
+            for i in range(M)
+        }
+        w = np.array(list(akaike_weights(aic).values()))
+        if not np.isfinite(w).all():
+            continue
+        use = w > 0
+        averaged[r] = np.sum(w[use, None] * shares[r, use], axis=0)
+        weights[r] = w
+        pooled[r, use] = shares[r, use]
+    return averaged, weights, [mixture_interval(pooled[:, :, j], weights, level) for j in range(K)]
+
+
 def _averaged(
     pf: PopulationFit, models: dict[str, ModelBootstrap], level: float
 ) -> AveragedBootstrap:
-    """Model-averaged shares per replicate, with the Akaike weights of that replicate, and
-    the intervals of the weighted mixture of the families' replicates
-    (:func:`mixture_interval`)."""
+    """The families' replicates of one population, averaged (:func:`averaged_replicates`)."""
     names = list(models)
-    B = next(iter(models.values())).shares.shape[0]
+    mbs = list(models.values())
+    B = mbs[0].shares.shape[0]
     K = len(pf.best.shares)
-    shares = np.full((B, K), np.nan)
-    weights = {m: np.full(B, np.nan) for m in names}
-    pooled = np.full((B, len(names), K), np.nan)
-    for r in range(B):
-        aic = {
-            m: (2 * pf.fits[m].n_params - 2 * float(mb.loglik[r]))
-            if mb.loglik is not None and mb.ok[r]
-            else float("nan")
-            for m, mb in models.items()
-        }
-        w = akaike_weights(aic)
-        if not np.isfinite(list(w.values())).all():
-            continue
-        shares[r] = np.sum([w[m] * models[m].shares[r] for m in names if w[m] > 0], axis=0)
-        for i, m in enumerate(names):
-            weights[m][r] = w[m]
-            if w[m] > 0:
-                pooled[r, i] = models[m].shares[r]
-    wmat = np.column_stack([weights[m] for m in names])
-    return AveragedBootstrap(
-        shares, weights, [mixture_interval(pooled[:, :, j], wmat, level) for j in range(K)]
+    loglik = np.column_stack(
+        [mb.loglik if mb.loglik is not None else np.full(B, np.nan) for mb in mbs]
     )
+    ok = np.column_stack([mb.ok if mb.loglik is not None else np.zeros(B, bool) for mb in mbs])
+    shares, w, intervals = averaged_replicates(
+        np.stack([mb.shares.reshape(B, K) for mb in mbs], axis=1),
+        loglik,
+        np.array([pf.fits[m].n_params for m in names]),
+        ok,
+        level,
+    )
+    return AveragedBootstrap(shares, {m: w[:, i] for i, m in enumerate(names)}, intervals)
 
 
 def _summarise(f: Any, reps: list[dict[str, Any] | None], level: float) -> ModelBootstrap:
