@@ -79,3 +79,21 @@ def test_compare_refuses_a_discrete_fit_of_an_older_schema(tmp_path, capsys):
     assert code == 2 and not out.exists()
     last = err.strip().splitlines()[-1]
     assert "refit it with 'driftband fit'" in last and "mass_4" in last
+
+
+def test_old_schema_warning_names_discrete_fits_only_when_there_are_some(caplog):
+    from driftband.fit.io import upgrade_fit_doc
+
+    def doc(models):
+        return {
+            "schema": "driftband-fit",
+            "schema_version": 3,
+            "populations": {"p": {"models": {m: {} for m in models}}},
+        }
+
+    with caplog.at_level("WARNING", logger="driftband"):
+        upgrade_fit_doc(doc(["gamma", "discrete+beneficial"]), "a.json")
+        upgrade_fit_doc(doc(["gamma", "lognormal"]), "b.json")
+    a, b = (r.getMessage() for r in caplog.records[-2:])
+    assert "a.json" in a and "discrete fits" in a
+    assert "b.json" in b and "discrete" not in b and "schema version 3" in b

@@ -193,16 +193,25 @@ def upgrade_fit_doc(doc: dict[str, Any], path: str | os.PathLike | None = None) 
 
     out = walk(doc) if isinstance(version, int) and version < 3 else dict(doc)
     out["schema_version"] = FIT_SCHEMA_VERSION
+    pops = out.get("populations")
+    discrete = isinstance(pops, dict) and any(
+        str(m).startswith("discrete")
+        for p in pops.values()
+        if isinstance(p, dict) and isinstance(p.get("models"), dict)
+        for m in p["models"]
+    )
     log.warning(
-        "%s: fit file of schema version %s (an older driftband), read as version %d%s; "
-        "its discrete fits have one band mass fewer than this version's discrete family "
-        "(whose first band is split), so a comparison of them needs a refit; rerun "
-        "'driftband fit' to write the current version",
+        "%s: fit file of schema version %s (an older driftband), read as version %d%s%s; "
+        "rerun 'driftband fit' to write the current version",
         os.fspath(path) if path is not None else "fit document",
         version,
         FIT_SCHEMA_VERSION,
         " with its keys translated (e.g. eps -> misorientation_rate, p_b -> beneficial_fraction)"
         if isinstance(version, int) and version < 3
+        else "",
+        "; its discrete fits have one band mass fewer than this version's discrete family "
+        "(whose first band is split), so a comparison of them needs a refit"
+        if discrete
         else "",
     )
     return out
