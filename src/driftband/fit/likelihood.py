@@ -316,12 +316,18 @@ def _fold(data: SpectrumPair, v: np.ndarray) -> np.ndarray:
     return out
 
 
+def _neutral_shape(n: int, neutral_g: np.ndarray | None) -> np.ndarray:
+    """Neutral expectation per θL of the unfolded classes: ``1/i`` or the one given."""
+    return 1.0 / np.arange(1, n) if neutral_g is None else neutral_g
+
+
 def profile_counts(
     data: SpectrumPair,
     gbar: np.ndarray,
     eps: float = 0.0,
     equilibrium: bool = False,
     c0: np.ndarray | None = None,
+    neutral_g: np.ndarray | None = None,
 ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Profile out θ·r_i; return ``(c, lam_neutral, lam_selected)``.
 
@@ -336,6 +342,9 @@ def profile_counts(
         All r_i = 1: only θ is free.
     c0 : ndarray, optional
         Starting values of the Newton iteration (default: the ε = 0 profile).
+    neutral_g : ndarray, shape (n−1,), optional
+        Expected neutral counts per θL for i = 1..n−1 (default ``1/i``, the constant-size
+        spectrum; a size history's neutral spectrum otherwise).
 
     Returns
     -------
@@ -344,8 +353,7 @@ def profile_counts(
     lam_neutral, lam_selected : ndarray, shape (m,)
         Expected observed counts.
     """
-    n = data.n
-    a = _fold(data, data.sites_neutral / np.arange(1, n))
+    a = _fold(data, data.sites_neutral * _neutral_shape(data.n, neutral_g))
     b = _fold(data, data.sites_selected * gbar)
     if data.folded:
         eps = 0.0
@@ -380,7 +388,10 @@ class Objective:
         Fixed misorientation rate, or None to estimate it (unfolded data only).
     equilibrium : bool
     expectation : DfeExpectation, optional
-        Reuse a per-n table.
+        Reuse a per-n table (for a size history: its table).
+    neutral_g : ndarray, optional
+        The neutral spectrum per θL of a size history (default ``1/i``); see
+        :func:`profile_counts`.
 
     Attributes
     ----------
@@ -398,8 +409,10 @@ class Objective:
         eps: float | None = 0.0,
         equilibrium: bool = False,
         expectation: DfeExpectation | None = None,
+        neutral_g: np.ndarray | None = None,
     ) -> None:
         self.data = data
+        self.neutral_g = neutral_g
         self.model = model
         self.free_eps = eps is None and not data.folded
         self.eps = 0.0 if (eps is None or data.folded) else float(eps)
@@ -436,7 +449,9 @@ class Objective:
         xd, eps = self.split(x)
         dfe = self.model.to_dfe(xd)
         gbar = self.expect.mean_g(dfe)
-        c, ln, ls = profile_counts(self.data, gbar, eps, self.equilibrium, self._c_last)
+        c, ln, ls = profile_counts(
+            self.data, gbar, eps, self.equilibrium, self._c_last, self.neutral_g
+        )
         if self.free_eps and np.all(np.isfinite(c)) and np.all(c > 0):
             self._c_last = c
         ll = poisson_loglik(self.data.neutral, ln) + poisson_loglik(self.data.selected, ls)
@@ -520,7 +535,7 @@ class Objective:
         out = dls @ rs
         if not self.free_eps:
             return out
-        a = data.sites_neutral / np.arange(1, data.n)
+        a = data.sites_neutral * _neutral_shape(data.n, self.neutral_g)
         b = data.sites_selected * gbar
         with np.errstate(divide="ignore", invalid="ignore"):
             rn = np.where(ln > 0, data.neutral / ln, 0.0) - 1.0

@@ -17,7 +17,7 @@ from __future__ import annotations
 
 import warnings
 from dataclasses import dataclass, field
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
@@ -29,6 +29,9 @@ from ..prf.families import band_shares
 from .likelihood import Objective, SpectrumPair
 from .models import DfeModel, at_bound
 from .optimize import central_hessian, minimize_multistart
+
+if TYPE_CHECKING:
+    from .size_history import FittedHistory
 
 __all__ = ["FitResult", "fit_model", "params_at_bounds"]
 
@@ -72,6 +75,10 @@ class FitResult:
         Natural-scale names of the parameters (DFE parameters and ``eps``) whose estimate
         lies at a bound of the fit (see :func:`params_at_bounds`); they have no standard
         error.
+    size_history : dict or None
+        The explicit size history the DFE was fitted under
+        (:meth:`~driftband.fit.size_history.FittedHistory.summary`); None with nuisance
+        factors or at equilibrium. ``S`` and ``theta`` are then on the current size.
     """
 
     population: str
@@ -100,6 +107,7 @@ class FitResult:
     equilibrium: bool = False
     fixation_ratio_deleterious: float = float("nan")
     at_bounds: tuple[str, ...] = ()
+    size_history: dict[str, Any] | None = None
 
     def residuals(self) -> dict[str, np.ndarray]:
         """Pearson residuals (obs − exp)/√exp of both classes."""
@@ -130,6 +138,7 @@ class FitResult:
             "theta": self.theta,
             "nuisance_factors": self.nuisance.tolist(),
             "equilibrium": self.equilibrium,
+            "size_history": self.size_history,
             "loglik": self.loglik,
             "n_params": self.n_params,
             "aic": self.aic,
@@ -205,6 +214,7 @@ class FitResult:
             fixation_ratio_deleterious=_deleterious_ratio(d),
             # files written before the key existed list nothing
             at_bounds=tuple(str(v) for v in d.get("at_bounds") or ()),
+            size_history=d.get("size_history"),
         )
 
     def beneficial(self) -> tuple[float, float]:
@@ -315,6 +325,7 @@ def fit_model(
     stderr: bool = True,
     n_local: int = 3,
     grid_starts: int = 0,
+    history: FittedHistory | None = None,
 ) -> FitResult:
     """Fit one DFE model to one population by maximum likelihood.
 
@@ -354,7 +365,16 @@ def fit_model(
             f"model {model.name}: a beneficial class cannot be fitted to folded spectra "
             "(folding removes the sign of S); drop '+beneficial' or use unfolded spectra"
         )
-    obj = Objective(data, model, eps=eps, equilibrium=equilibrium, expectation=expectation)
+    if history is not None:
+        equilibrium, expectation = True, history.expectation
+    obj = Objective(
+        data,
+        model,
+        eps=eps,
+        equilibrium=equilibrium,
+        expectation=expectation,
+        neutral_g=None if history is None else history.neutral_g,
+    )
     grid = model.starts()
     if obj.free_eps:
         grid = [np.append(s, e) for s in grid for e in (np.log(0.01 / 0.99),)]
@@ -380,7 +400,8 @@ def fit_model(
     dfe = model.to_dfe(xd)
     nuis = c / c[0] if c[0] > 0 else np.full_like(c, np.nan)
     k_nuis = 1 if equilibrium else data.m
-    n_params = model.n_free + k_nuis + (1 if obj.free_eps else 0)
+    k_hist = 0 if history is None else history.n_params
+    n_params = model.n_free + k_nuis + k_hist + (1 if obj.free_eps else 0)
     se = _stderr(obj, xbest) if stderr else {}
     bound = params_at_bounds(obj, xbest)
     names = tuple(n for n, _s, _v in bound)
@@ -428,4 +449,5 @@ def fit_model(
         n_eval=obj.n_eval,
         equilibrium=equilibrium,
         at_bounds=names,
+        size_history=None if history is None else history.summary(),
     )

@@ -183,19 +183,22 @@ def evolve(
     cap_adv: float = 0.5,
     cap_nu: float = math.inf,
     a_max: float | None = None,
+    b_mesh: float = 0.0,
 ) -> tuple[np.ndarray, int]:
     """Advance departures ``d`` (shape (B, mi)) over an epoch of length ``T``.
 
     ``a_of_t(t)`` is ``1/nu(t)`` (a float; ``t`` from the start of the epoch) and
     ``src_of_t(t)`` the rate of change of the equilibrium profile, ``dG_eq/dt`` (shape
     (B, mi)), or ``None`` for a constant size. Returns the departures at ``T`` and the
-    number of macro steps.
+    number of macro steps. ``b_mesh`` raises the transport speed the time mesh is built
+    for to at least this value (the same mesh for every batch of a table: the
+    discretisation error then varies smoothly with ``S``).
     """
     if T <= 0:
         return d, 0
     B = d.shape[0]
     a_max = a_of_t(0.0) if a_max is None else a_max
-    H = step_mesh(T, a_max, float(np.max(np.abs(b))), grid, rho, cap_adv, cap_nu)
+    H = step_mesh(T, a_max, max(float(np.max(np.abs(b))), b_mesh), grid, rho, cap_adv, cap_nu)
     v = d.reshape(-1).copy()
     t = 0.0
     seq = list(range(1, levels + 1))

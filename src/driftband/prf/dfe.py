@@ -13,7 +13,7 @@ from __future__ import annotations
 import functools
 import math
 from collections.abc import Callable, Iterable
-from typing import Literal
+from typing import Any, Literal
 
 import numpy as np
 from scipy.special import gammaln, zeta
@@ -299,6 +299,11 @@ class DfeExpectation:
     ----------
     n : int
         Number of sampled gene copies.
+    spectra : SfsKernel or HistoryKernel, optional
+        Where the spectra :math:`g_i(S)` come from (default: the equilibrium
+        :func:`~driftband.prf.expected.kernel` of ``n``; a
+        :class:`~driftband.prf.history_table.HistoryKernel` for a size history). Above
+        :math:`t = 10^8` the equilibrium expansion is used either way.
 
     Attributes
     ----------
@@ -317,8 +322,10 @@ class DfeExpectation:
     the masses: ``masses @ band_means(edges_nes)``.
     """
 
-    def __init__(self, n: int) -> None:
-        self.kernel = kernel(n)
+    def __init__(self, n: int, spectra: Any = None) -> None:
+        self.kernel = kernel(n) if spectra is None else spectra
+        if self.kernel.n != n:
+            raise ValueError(f"`spectra` is for n = {self.kernel.n}, not n = {n}")
         self.n = self.kernel.n
         self._tables: dict[tuple[float, ...], _Table] = {}
         self._band_means: dict[tuple[float, ...], np.ndarray] = {}

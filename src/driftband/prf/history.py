@@ -391,6 +391,10 @@ class HistorySfs:
     resolution : _Resolution, optional
         Solver settings (:data:`DEFAULT_RESOLUTION`; :data:`REFERENCE_RESOLUTION` is the
         slow reference of the accuracy figures).
+    mesh_S : float
+        Build every batch's time mesh for at least this ``|S|`` (on the reference size),
+        so that the discretisation error varies smoothly with ``S`` across batches
+        (default 0: each batch's own largest ``|S|``).
 
     Notes
     -----
@@ -420,6 +424,7 @@ class HistorySfs:
         history: History,
         reference: Literal["current", "ancestral"] = "current",
         resolution: _Resolution | None = None,
+        mesh_S: float = 0.0,
     ) -> None:
         self.n = _check_n(n)
         if not isinstance(history, _HISTORY_TYPES):
@@ -435,6 +440,9 @@ class HistorySfs:
         self.history = history
         self.reference = reference
         self.res = DEFAULT_RESOLUTION if resolution is None else resolution
+        nu_ref = history.nu_now if reference == "current" else 1.0
+        # transport speed S_anc / 2 that every batch's time mesh is built for
+        self.b_mesh = abs(float(mesh_S)) / nu_ref / 2.0
         self._grid: _hs.Grid | None = None
         self._W: np.ndarray | None = None
 
@@ -492,7 +500,15 @@ class HistorySfs:
                     return a
 
                 d, _ = _hs.evolve(
-                    grid, d, T, const_a, b, levels=r.levels, rho=r.rho, cap_adv=r.cap_adv
+                    grid,
+                    d,
+                    T,
+                    const_a,
+                    b,
+                    levels=r.levels,
+                    rho=r.rho,
+                    cap_adv=r.cap_adv,
+                    b_mesh=self.b_mesh,
                 )
             else:
                 rate = math.log(nu1 / nu0) / T
@@ -524,6 +540,7 @@ class HistorySfs:
                     cap_adv=r.cap_adv,
                     cap_nu=cap,
                     a_max=1.0 / min(nu0, nu1),
+                    b_mesh=self.b_mesh,
                 )
             nu_prev = nu1
         return eq_now + d @ W.T
