@@ -17,7 +17,7 @@ log = logging.getLogger("driftband")
 
 EXAMPLES = """
 driftband fit spectra.json -o fit.json --bands-tsv bands.tsv
-driftband fit spectra.json --dfe gamma --misorientation fixed:0 --equilibrium -o fit.json
+driftband fit spectra.json --dfe gamma --misorientation fixed:0 --demography equilibrium -o fit.json
 driftband fit published_table.tsv --dfe gamma,discrete --bands 0,1,10,100 -o fit.json
 driftband fit a.json b.json --label a.json=lakesnail,b.json=pondsnail -o fit.json
 """
@@ -80,9 +80,14 @@ def add_parser(subparsers: Subparsers) -> None:
         "unfolded spectra only) or fixed, e.g. fixed:0",
     )
     p.add_argument(
-        "--equilibrium",
-        action="store_true",
-        help="no demographic nuisance parameters (all r_i = 1)",
+        "--demography",
+        default="nuisance",
+        metavar="MODEL",
+        help="how the size history enters: nuisance (per-class nuisance factors, "
+        "default), equilibrium (constant size), one-change, two-change or growth (a "
+        "size history fitted to the neutral class; S then refers to the current size), "
+        "auto (the history with the lowest AIC, per population) or demes:FILE (a fixed "
+        "history from a demes file, one deme per population)",
     )
     p.add_argument(
         "--headline",
@@ -171,7 +176,7 @@ def run(args: argparse.Namespace) -> int:
         args.selected,
         models,
         eps,
-        args.equilibrium,
+        args.demography,
         edges,
         args.headline,
         args.effect,

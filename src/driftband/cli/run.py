@@ -70,7 +70,7 @@ _FIT_FLAGS = {
     "dfe": "--dfe",
     "bands": "--bands",
     "misorientation": "--misorientation",
-    "equilibrium": "--equilibrium",
+    "demography": "--demography",
     "beneficial": "--beneficial",
     "headline": "--headline",
     "effect": "--effect",
@@ -196,10 +196,10 @@ def add_study_arguments(p: argparse.ArgumentParser) -> None:
         help="ancestral misidentification rate (default free)",
     )
     f.add_argument(
-        "--equilibrium",
-        action="store_true",
-        default=None,
-        help="no demographic nuisance parameters",
+        "--demography",
+        metavar="MODEL",
+        help="nuisance (default), equilibrium, one-change, two-change, growth, auto or "
+        "demes:FILE (see 'driftband fit --help')",
     )
     f.add_argument(
         "--beneficial",

@@ -19,18 +19,22 @@ from typing import Any
 from .._options import COMMAND_LINE, OptionSource
 from .._parallel import parallel_map
 from .._progress import Progress
+from ..demography import read_demes_history
 from ..exceptions import InputError
 from ..prf.dfe import DfeExpectation
+from ..prf.history import History
 from .likelihood import SpectrumPair
 from .mle import FitResult, fit_model
 from .options import FitOptions
 from .results import PopulationFit
+from .size_history import prepare_history
 
 __all__ = [
     "LabelledSpectra",
     "block_spectra",
     "covered_bp",
     "check_models_for_data",
+    "demes_histories",
     "fit_population",
     "fit_spectra",
     "pool_populations",
@@ -111,6 +115,7 @@ def fit_population(
     options: FitOptions,
     population: str = "",
     expectation: DfeExpectation | None = None,
+    demes_history: History | None = None,
 ) -> PopulationFit:
     """Fit every model of ``options`` to one population.
 
@@ -121,12 +126,26 @@ def fit_population(
     population : str
     expectation : DfeExpectation, optional
         Per-n table to reuse (default: one per n and process).
+    demes_history : History, optional
+        The population's history read from ``demes:FILE``.
 
     Returns
     -------
     PopulationFit
+
+    Notes
+    -----
+    With an explicit size history (``options.demography``) the history is fitted to the
+    neutral class once, and every model is fitted given it
+    (:func:`~driftband.fit.size_history.prepare_history`).
     """
     ex = expectation or _expectation(data.n)
+    history = None
+    if options.explicit_history:
+        history = prepare_history(data, options.demography, options.eps, demes_history)
+        log.info(
+            "size history of %s: %s %s", population or "population", history.model, history.params
+        )
     fits = {}
     for m in options.models:
         log.info("fitting %s to %s (n=%d)", m.name, population, data.n)
@@ -138,8 +157,29 @@ def fit_population(
             equilibrium=options.equilibrium,
             edges_nes=options.edges_nes,
             expectation=ex,
+            history=history,
         )
     return PopulationFit(population, data, fits, headline_method=options.headline)
+
+
+def demes_histories(
+    pooled: list[tuple[str, str, SpectrumPair]], options: FitOptions
+) -> dict[str, History]:
+    """The history of each population from ``--demography demes:FILE`` (else empty).
+
+    The deme of a population is named as the population (without a ``label/`` prefix).
+
+    Raises
+    ------
+    InputError
+        The file is not a usable demes graph or has no deme of that name.
+    """
+    if not options.demography.startswith("demes:"):
+        return {}
+    path = options.demography[len("demes:") :]
+    return {
+        name: read_demes_history(path, name.rsplit("/", 1)[-1]).history for name, _ds, _d in pooled
+    }
 
 
 def pool_populations(
@@ -229,10 +269,12 @@ def check_models_for_data(
         )
 
 
-def _fit_task(task: tuple[SpectrumPair, FitOptions, str]) -> dict[str, FitResult]:
+def _fit_task(
+    task: tuple[SpectrumPair, FitOptions, str, History | None],
+) -> dict[str, FitResult]:
     """Fit the models of ``options`` to one population (runs in a worker process)."""
-    data, options, name = task
-    return fit_population(data, options, name).fits
+    data, options, name, fixed = task
+    return fit_population(data, options, name, demes_history=fixed).fits
 
 
 def fit_spectra(
@@ -272,10 +314,13 @@ def fit_spectra(
     """
     pooled = pool_populations(spectra_sets, options, populations)
     check_models_for_data(pooled, options, source)
+    fixed = demes_histories(pooled, options)
+    # with an explicit history, one task per population: its history is fitted once
+    groups = [options.models] if options.explicit_history else [(m,) for m in options.models]
     tasks = [
-        (data, dataclasses.replace(options, models=(m,)), name)
+        (data, dataclasses.replace(options, models=g), name, fixed.get(name))
         for name, _ds, data in pooled
-        for m in options.models
+        for g in groups
     ]
     for name, _ds, data in pooled:
         log.info("fit: %s (n = %d): %s", name, data.n, ", ".join(m.name for m in options.models))
@@ -294,7 +339,7 @@ def fit_spectra(
     fits = []
     for name, dataset, data in pooled:
         pf = PopulationFit(name, data, {}, dataset=dataset, headline_method=options.headline)
-        for _m in options.models:
+        for _g in groups:
             pf.fits.update(next(done))
         for f in pf.fits.values():
             if not f.success:

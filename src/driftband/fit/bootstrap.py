@@ -21,7 +21,7 @@ from .._options import COMMAND_LINE, OptionSource
 from .._parallel import parallel_map, resolve_workers
 from .._progress import Progress
 from ..defaults import MIN_BLOCKS
-from ..exceptions import DriftbandWarning, InputError
+from ..exceptions import DriftbandWarning, InputError, OptionError
 from ..prf.dfe import DfeExpectation
 from .adaptive import ALPHA_KEYS, adaptive_replicate
 from .likelihood import Objective, SpectrumPair
@@ -37,6 +37,7 @@ from .results import (
     PopulationFit,
     akaike_weights,
 )
+from .size_history import FittedHistory, replicate_history
 
 if TYPE_CHECKING:
     from ..spectra import PopulationSpectra
@@ -57,7 +58,7 @@ log = logging.getLogger("driftband")
 #: One task of the refits: n, folded, the per-block neutral and selected spectra and
 #: callable sites, the block draws of a batch of replicates, the options of the models
 #: refitted and their warm starts (by model name; ``FitResult.x``, None for a fit read
-#: from a file without it).
+#: from a file without it), and the point fit's size history (its summary, or None).
 _ReplicateBatch = tuple[
     int,
     bool,
@@ -68,6 +69,7 @@ _ReplicateBatch = tuple[
     np.ndarray,
     FitOptions,
     dict[str, np.ndarray | None],
+    dict[str, Any] | None,
 ]
 
 
@@ -238,8 +240,9 @@ def _block_arrays(
 
 def _replicate_task(args: _ReplicateBatch) -> list[dict[str, Any]]:
     """Refit one batch of replicates of one population (runs in a worker)."""
-    (n, folded, bn, bs, ln, ls, idx_batch, options, starts) = args
+    (n, folded, bn, bs, ln, ls, idx_batch, options, starts, hist) = args
     ex = DfeExpectation(n)
+    fixed = None  # a history that is not refitted: its table is built once per task
     out: list[dict[str, Any]] = []
     for idx in idx_batch:
         counts = np.bincount(idx, minlength=bn.shape[0])
@@ -250,6 +253,17 @@ def _replicate_task(args: _ReplicateBatch) -> list[dict[str, Any]]:
         except InputError:
             out.append({})
             continue
+        history = None
+        if hist is not None:
+            try:
+                if fixed is None or hist["model"] not in ("demes", "equilibrium"):
+                    history = replicate_history(data, hist, options.eps)
+                    fixed = history
+                else:
+                    history = fixed
+            except (OptionError, ValueError, FloatingPointError):
+                out.append({})
+                continue
         rep: dict[str, dict[str, Any]] = {}
         for m in options.models:
             with warnings.catch_warnings():
@@ -266,6 +280,7 @@ def _replicate_task(args: _ReplicateBatch) -> list[dict[str, Any]]:
                     starts=[np.asarray(starts[m.name], dtype=float)],
                     grid_starts=1,  # and the best grid point: two dispersed starts
                     stderr=False,
+                    history=history,
                 )
             rep[m.name] = {
                 "params": f.params,
@@ -277,7 +292,9 @@ def _replicate_task(args: _ReplicateBatch) -> list[dict[str, Any]]:
                 "success": f.success,
             }
             rep[m.name].update(adaptive_replicate(data, f))
-            rep[m.name]["score"] = _score(data, m, options, ex, starts[m.name])
+            rep[m.name]["score"] = _score(data, m, options, ex, starts[m.name], history)
+            if history is not None:
+                rep[m.name]["size_history"] = history.params
         out.append(rep)
     return out
 
@@ -288,6 +305,7 @@ def _score(
     options: FitOptions,
     ex: DfeExpectation,
     x: np.ndarray | None,
+    history: FittedHistory | None = None,
 ) -> list[float] | None:
     """Gradient of the replicate's negative profile log-likelihood at the point estimate.
 
@@ -297,7 +315,14 @@ def _score(
     """
     if x is None:
         return None
-    obj = Objective(data, model, eps=options.eps, equilibrium=options.equilibrium, expectation=ex)
+    obj = Objective(
+        data,
+        model,
+        eps=options.eps,
+        equilibrium=options.equilibrium,
+        expectation=ex if history is None else history.expectation,
+        neutral_g=None if history is None else history.neutral_g,
+    )
     x = np.asarray(x, dtype=float)
     g = obj.gradient(x) if obj.analytic_gradient else central_gradient(obj, x)
     return g.tolist()
@@ -397,9 +422,21 @@ def bootstrap_fits(
         pis.append(_replicate_pi(pf.data, bn, ln, idx))
         opts = dataclasses.replace(options, models=tuple(options.model(n) for n in names))
         starts = {name: pf.fits[name].x for name in names}
+        hist = next((pf.fits[nm].size_history for nm in names), None)
         for b0 in range(0, replicates, batch):
             tasks.append(
-                (pf.data.n, pf.data.folded, bn, bs, ln, ls, idx[b0 : b0 + batch], opts, starts)
+                (
+                    pf.data.n,
+                    pf.data.folded,
+                    bn,
+                    bs,
+                    ln,
+                    ls,
+                    idx[b0 : b0 + batch],
+                    opts,
+                    starts,
+                    hist,
+                )
             )
             owners.append(k)
     log.info("bootstrap: %d replicates x %d populations", replicates, len(fits))
@@ -542,6 +579,9 @@ def _summarise(f: Any, reps: list[dict[str, Any] | None], level: float) -> Model
     for key in ALPHA_KEYS:
         if any(r and key in r for r in reps):
             params[key] = col(lambda r, key=key: r.get(key, nan))
+    # the refitted size history's parameters (e.g. history_nu, history_tau)
+    for hp in sorted({k for r in reps if r for k in r.get("size_history") or {}}):
+        params[f"history_{hp}"] = col(lambda r, hp=hp: (r.get("size_history") or {}).get(hp, nan))
     dim = max((len(r["score"]) for r in reps if r and r.get("score") is not None), default=0)
     score = np.array(
         [r["score"] if r and r.get("score") is not None else [nan] * dim for r in reps],

@@ -15,6 +15,7 @@ from ..defaults import DEFAULT_EDGES_NES, HEADLINES
 from ..effect import DEFAULT_EFFECT, check_effect, shown_edges
 from ..exceptions import OptionError
 from .models import DfeModel, parse_models
+from .size_history import check_demography, explicit
 
 __all__ = ["FitOptions", "check_edges", "format_misorientation", "parse_misorientation"]
 
@@ -106,8 +107,10 @@ class FitOptions:
     models : tuple of DfeModel
     eps : float or None
         Fixed misorientation rate or None (estimated).
-    equilibrium : bool
-        Fix nuisance factors r_i = 1.
+    demography : str
+        ``nuisance`` (nuisance factors r_i), ``equilibrium`` (all r_i = 1), an explicit
+        size history (``one-change``, ``two-change``, ``growth``, ``auto``) or
+        ``demes:FILE`` (:mod:`driftband.fit.size_history`).
     edges_nes : tuple of float
         Band edges on the core's |Ne·s| = |S|/4 (first 0; the last band is open), whatever
         the convention the user stated them in (see :mod:`driftband.effect`).
@@ -122,12 +125,13 @@ class FitOptions:
     selected: str = "0fold"
     models: tuple[DfeModel, ...] = (DfeModel("gamma"),)
     eps: float | None = None
-    equilibrium: bool = False
+    demography: str = "nuisance"
     edges_nes: tuple[float, ...] = DEFAULT_EDGES_NES
     headline: str = "averaged"
     effect: str = DEFAULT_EFFECT
 
     def __post_init__(self) -> None:
+        object.__setattr__(self, "demography", check_demography(self.demography))
         if self.headline not in HEADLINES:
             raise OptionError(f"--headline {self.headline!r}: choose {' or '.join(HEADLINES)}")
         try:
@@ -138,6 +142,16 @@ class FitOptions:
             raise OptionError(
                 f"--misorientation {format_misorientation(self.eps)}: the rate must be in [0, 0.5)"
             )
+
+    @property
+    def equilibrium(self) -> bool:
+        """No nuisance factors: all r_i = 1 (equilibrium or an explicit history)."""
+        return self.demography != "nuisance"
+
+    @property
+    def explicit_history(self) -> bool:
+        """An explicit size history (fitted to the neutral class, or from a demes file)."""
+        return explicit(self.demography)
 
     @property
     def shown_edges(self) -> tuple[float, ...]:
@@ -167,7 +181,7 @@ class FitOptions:
             "selected": self.selected,
             "models": [m.name for m in self.models],
             "misorientation": format_misorientation(self.eps),
-            "equilibrium": self.equilibrium,
+            "demography": self.demography,
             "band_edges_nes": list(self.edges_nes),
             "headline": self.headline,
             "effect": self.effect,
@@ -189,7 +203,8 @@ class FitOptions:
             str(d.get("selected", "0fold")),
             tuple(parse_models(",".join(names), False, edges)),
             parse_misorientation(str(d.get("misorientation", "free"))),
-            bool(d.get("equilibrium", False)),
+            # files before size histories: a flag for equilibrium
+            str(d.get("demography") or ("equilibrium" if d.get("equilibrium") else "nuisance")),
             edges,
             str(d.get("headline", "best")),  # files before the averaged headline: the best
             str(d.get("effect", DEFAULT_EFFECT)),

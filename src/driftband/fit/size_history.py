@@ -32,9 +32,9 @@ import numpy as np
 
 from ..exceptions import OptionError
 from ..prf.dfe import DfeExpectation
-from ..prf.history import ConstantSize, History
+from ..prf.history import ConstantSize, Epochs, History
 from ..prf.history_table import HistoryKernel
-from .history_fit import HISTORY_MODELS, HistoryFit, fit_neutral_history, history_of
+from .history_fit import HISTORY_MODELS, HistoryFit, fit_neutral_history
 from .likelihood import SpectrumPair
 
 __all__ = [
@@ -44,6 +44,7 @@ __all__ = [
     "choose_history",
     "explicit",
     "prepare_history",
+    "replicate_history",
 ]
 
 #: The values of ``--demography`` (besides ``demes:FILE``).
@@ -249,17 +250,36 @@ def choose_history(
     return best, {f.model: f.aic for f in fits}
 
 
-def refit_history(data: SpectrumPair, point: FittedHistory, eps: float | None) -> FittedHistory:
-    """The history of a bootstrap replicate: the point estimate's model refitted.
+def replicate_history(
+    data: SpectrumPair, point: dict[str, Any], eps: float | None
+) -> FittedHistory:
+    """The history of a bootstrap replicate, from the point fit's summary.
 
-    A history read from a file is kept as it is; ``auto`` keeps the model chosen on the
-    data (the choice itself is not resampled).
+    The point estimate's model is refitted to the replicate's neutral class (``auto``
+    keeps the model chosen on the data: the choice is not resampled); a history read
+    from a file, and equilibrium, are kept as they are.
+
+    Parameters
+    ----------
+    data : SpectrumPair
+        The replicate's spectra.
+    point : dict
+        :meth:`FittedHistory.summary` of the point fit.
+    eps : float or None
+        Misorientation rate fixed at this value, or None to estimate it.
+
+    Returns
+    -------
+    FittedHistory
     """
-    if point.fit is None or point.model == "equilibrium":
-        return point
-    return prepare_history(data, point.model, eps)
-
-
-def history_from_name(model: str, params: dict[str, float]) -> History:
-    """The history of a model name and its parameters (for fit files)."""
-    return history_of(model, params)
+    model = str(point["model"])
+    n = data.n
+    if model == "demes":
+        fixed = Epochs(tuple((float(d), float(a), float(b)) for d, a, b in point["epochs"]))
+        return prepare_history(data, str(point["requested"]), eps, fixed)
+    if model == "equilibrium":
+        best = fit_neutral_history(data, "equilibrium", eps)
+        return FittedHistory(
+            model, ConstantSize(), best, {}, model, DfeExpectation(n), 1.0 / np.arange(1, n)
+        )
+    return prepare_history(data, model, eps)

@@ -85,10 +85,10 @@ def fit_options(study: Study) -> Any:
         raise fail("dfe", OptionError("a model is named twice"))
     try:
         return FitOptions(
-            fs.neutral, fs.selected, models, eps, fs.equilibrium, edges, fs.headline, fs.effect
+            fs.neutral, fs.selected, models, eps, fs.demography, edges, fs.headline, fs.effect
         )
     except OptionError as err:
-        raise fail("headline", err) from None
+        raise fail("demography" if "--demography" in str(err) else "headline", err) from None
 
 
 def stage_classify(

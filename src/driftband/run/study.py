@@ -111,7 +111,10 @@ STUDY_KEYS: dict[str, dict[str, tuple[str, str]]] = {
         ),
         "beneficial": ("bool", "add a beneficial class to every family"),
         "misorientation": ("str", "'free' (default) or 'fixed:RATE'"),
-        "equilibrium": ("bool", "no demographic nuisance parameters"),
+        "demography": (
+            "str",
+            "nuisance (default), equilibrium, one-change, two-change, growth, auto or demes:FILE",
+        ),
         "bands": (
             "numlist",
             f"band edges on |Ne*s| (default [{format_edges().replace(',', ', ')}])",
@@ -234,7 +237,7 @@ class FitSettings:
     dfe: tuple[str, ...] = DEFAULT_MODELS
     beneficial: bool = False
     misorientation: str = "free"
-    equilibrium: bool = False
+    demography: str = "nuisance"
     bands: tuple[float, ...] = DEFAULT_EDGES_NES
     neutral: str = "4fold"
     selected: str = "0fold"
@@ -644,6 +647,9 @@ def study_from_dict(
     fit = _section(where, "fit", doc.get("fit", {}), "fit")
     boot = _section(where, "bootstrap", doc.get("bootstrap", {}), "bootstrap")
     comp = _section(where, "compare", doc.get("compare", {}), "compare")
+    if str(fit.get("demography", "")).startswith("demes:"):
+        # a demes file is found relative to the study file, as the other paths are
+        fit["demography"] = "demes:" + _resolve(base_dir, str(fit["demography"])[6:].strip())
     if "dfe" in fit:
         fit["dfe"] = tuple(fit["dfe"])
         if not fit["dfe"]:
