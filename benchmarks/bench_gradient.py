@@ -125,6 +125,7 @@ def main() -> None:
                     row[None, :],
                     options,
                     starts,
+                    None,
                 )
                 t0 = time.perf_counter()
                 _replicate_task(task)

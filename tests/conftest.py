@@ -8,6 +8,7 @@ the 2-core development machine under load, and the demo run's fit stage 10.9 s a
 3.5 s (same results). Set the variables in the environment to override.
 """
 
+import logging
 import os
 
 import pytest
@@ -30,3 +31,19 @@ def failing_optimizer(monkeypatch):
         return r
 
     monkeypatch.setattr(fit_optimize.optimize, "minimize", failing)
+
+
+@pytest.fixture(autouse=True)
+def _restore_loggers():
+    """Give each test the loggers as it found them: ``driftband.cli.main`` points the
+    "driftband" and "py.warnings" loggers at the sys.stderr of its call (a test's capture
+    stream, closed afterwards), which would otherwise receive the next test's records."""
+    saved = [
+        (lg, lg.handlers[:], lg.level, lg.propagate)
+        for lg in (logging.getLogger("driftband"), logging.getLogger("py.warnings"))
+    ]
+    yield
+    for lg, handlers, level, propagate in saved:
+        lg.handlers[:] = handlers
+        lg.setLevel(level)
+        lg.propagate = propagate

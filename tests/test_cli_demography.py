@@ -61,6 +61,13 @@ def test_one_change_history_is_fitted_recorded_and_bootstrapped(declined, tmp_pa
     boot = doc["populations"]["lake"]["bootstrap"]["models"]["gamma"]
     lo, hi = boot["params_ci"]["history_nu"]
     assert lo <= hi
+    # the report shows the history: a plot, the parameters with intervals, the reference
+    html, summary = tmp_path / "r.html", tmp_path / "r.md"
+    assert main(["report", str(fit), "-o", str(html), "--summary", str(summary), "-q"]) == 0
+    text = html.read_text()
+    assert "Size history of lake" in text and "N / N_anc" not in text  # the plot is SVG
+    assert "refer to the <strong>current</strong> size" in text
+    assert "- lake: one-change (nu = " in summary.read_text()
 
 
 def test_fixed_history_from_a_demes_file(declined, tmp_path):

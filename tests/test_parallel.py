@@ -566,7 +566,7 @@ def test_bootstrap_same_for_1_and_2_workers_and_cluster(fitted, cluster):
     starts = {name: f.x for name, f in pf.fits.items()}
     for k in (0, 5):
         (rep,) = _replicate_task(
-            (pf.data.n, pf.data.folded, bn, bs, ln, ls, idx[k : k + 1], options, starts)
+            (pf.data.n, pf.data.folded, bn, bs, ln, ls, idx[k : k + 1], options, starts, None)
         )
         assert rep["gamma"]["shares"] == boot["shares"][k]
     assert boot["shares"][0] != boot["shares"][5]

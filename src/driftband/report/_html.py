@@ -17,7 +17,7 @@ from typing import Any
 from ..effect import convention_text
 from ..prf.families import discrete_family_edges
 from ..spectra.callable import CALLABLE_SOURCES
-from ._plots import bands_figure, spectra_figure
+from ._plots import bands_figure, history_figure, spectra_figure
 from ._spectra_made import spectra_made_rows
 from ._text import (
     ALPHA_EXPLAINED,
@@ -440,6 +440,76 @@ def _params_table(v: PopulationView) -> str:
     )
 
 
+def _history(v: PopulationView) -> str:
+    """The explicit size history of the headline fit: a plot of N over time, the
+    parameters with their bootstrap intervals, and the AIC of the candidates."""
+    f = v.best_fit
+    h = f.get("size_history")
+    if not isinstance(h, dict):
+        return ""
+    ci = v.model_ci(v.best).get("params_ci") or {}
+    out = ["<h3>Size history</h3>"]
+    src = str(h.get("requested", ""))
+    how = (
+        f"read from {src[len('demes:') :]}"
+        if h.get("model") == "demes"
+        else "fitted to the neutral class"
+        + (" (chosen by AIC among the candidates below)" if h.get("candidates_aic") else "")
+    )
+    out.append(
+        f"<p>{esc(v.name)}: {esc(h.get('model'))} history, {esc(how)}. S = 4Ns and the "
+        "shares refer to the <strong>current</strong> size (at the sample); sizes are "
+        "ratios to the ancestral size N_anc, times in units of 2\u00b7N_anc generations "
+        "before the sample.</p>"
+    )
+    epochs = h.get("epochs") or []
+    if epochs:
+        uri = history_figure(v.name, epochs, str(h.get("model")), v.anchor)
+        out.append(
+            _figure(
+                uri,
+                f"Size history of {v.name}",
+                f"Size N over N_anc against time before the sample, {v.name}.",
+            )
+        )
+    rows = []
+    for name, val in (h.get("params") or {}).items():
+        c = ci.get(f"history_{name}")
+        c = c if isinstance(c, list) else [None, None]
+        rows.append(([name, _num(fsig(val)), _num(frange_sig(c[0], c[1]))], ""))
+    if rows:
+        out.append(
+            _table(
+                f"history-{v.anchor}",
+                f"Size history of {v.name}: estimate and {pct(v.level)} bootstrap interval "
+                "(each replicate refits the history)",
+                ["Parameter", "Estimate", "Interval"],
+                rows,
+            )
+        )
+    cand = h.get("candidates_aic") or {}
+    if cand:
+        best = min(cand.values())
+        crow = [
+            ([m, _num(fsig(a)), _num(fsig(a - best))], "best" if a == best else "")
+            for m, a in sorted(cand.items(), key=lambda kv: kv[1])
+        ]
+        out.append(
+            _table(
+                f"history-aic-{v.anchor}",
+                f"History models compared on the neutral class of {v.name} (AIC)",
+                ["History", "AIC", "\u0394AIC"],
+                crow,
+            )
+        )
+    out.append(
+        '<p class="note">A fitted history describes the neutral spectrum; it is not proof '
+        "of past events. Linked selection, structure and migration also shape spectra, "
+        "and different histories can fit about equally well.</p>"
+    )
+    return "\n".join(out)
+
+
 def _diversity(v: PopulationView, view: ReportView) -> str:
     if v.spectra is None:
         return (
@@ -702,6 +772,7 @@ def _population(v: PopulationView, view: ReportView) -> str:
         _aic_table(v),
         _shares_table(v),
         _params_table(v),
+        _history(v),
         "<h3>Diversity</h3>",
         _diversity(v, view),
         "<h3>Divergence: McDonald\u2013Kreitman and \u03b1</h3>",

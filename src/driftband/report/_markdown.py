@@ -101,6 +101,14 @@ def render_markdown(view: ReportView) -> str:
         )
     out += ["", f"{md(convention_text(view.effect))}.", ""]
     out += [f"- {md(answer_sentence(v, sel))}" for v in view.populations]
+    hist = [
+        (v, h) for v in view.populations if isinstance(h := v.best_fit.get("size_history"), dict)
+    ]
+    if hist:
+        out += ["", "Size histories (S and the shares refer to the current size):", ""]
+        for v, h in hist:
+            pars = ", ".join(f"{k} = {fsig(x)}" for k, x in (h.get("params") or {}).items())
+            out.append(f"- {md(v.name)}: {md(h.get('model'))}" + (f" ({md(pars)})" if pars else ""))
     out += ["", f"All bands (estimate and {lvl} interval):", ""]
     bands = view.populations[0].bands
     out.append(

@@ -23,7 +23,7 @@ from ._text import HATCHES, OKABE_ITO, is_num
 if TYPE_CHECKING:
     from matplotlib.typing import RcKeyType
 
-__all__ = ["bands_figure", "spectra_figure"]
+__all__ = ["bands_figure", "history_figure", "spectra_figure"]
 
 _RC: dict[RcKeyType, Any] = {
     "svg.fonttype": "path",  # text as paths: the same look in every browser
@@ -240,3 +240,65 @@ def spectra_figure(
             step = max(1, len(x) // 12 + (1 if len(x) > 12 else 0))
             rx.set_xticks(x[::step])
         return _to_data_uri(fig, anchor)
+
+
+def history_curve(epochs: list[list[float]], points: int = 40) -> tuple[list[float], list[float]]:
+    """Time before the sample (units of 2 N_anc generations) and size ratio N/N_anc of a
+    history given as ``(duration, nu_start, nu_end)`` epochs, oldest first; the ancestral
+    size holds before the oldest epoch (drawn for a further quarter of the history's
+    span, at least 0.1). Exponential epochs are sampled at ``points`` times."""
+    t_end = 0.0
+    rows = [(float(d), float(a), float(b)) for d, a, b in epochs]
+    # walk from the present back in time
+    out_t: list[float] = []
+    out_nu: list[float] = []
+    for d, a, b in reversed(rows):
+        k = points if a != b else 1
+        for j in range(k + 1):
+            f = j / k
+            out_t.append(t_end + f * d)
+            out_nu.append(b * (a / b) ** f)
+        t_end += d
+    span = max(0.1, 0.25 * t_end)
+    out_t += [t_end, t_end + span]
+    out_nu += [1.0, 1.0]
+    return out_t, out_nu
+
+
+def history_figure(name: str, epochs: list[list[float]], model: str, anchor: str) -> str:
+    """The fitted size history of one population: N/N_anc against time before the sample.
+
+    Parameters
+    ----------
+    name : str
+        Population.
+    epochs : list of (float, float, float)
+        ``(duration, nu_start, nu_end)`` epochs, oldest first (durations in units of
+        2 N_anc generations).
+    model : str
+        The history model (for the title).
+    anchor : str
+        Unique key (hash salt of the SVG).
+
+    Returns
+    -------
+    str
+        ``data:image/svg+xml;base64,...``
+    """
+    t, nu = history_curve(epochs)
+    with matplotlib.rc_context(_RC):
+        fig = Figure(figsize=(4.8, 2.6))
+        ax = fig.add_axes((0.15, 0.2, 0.8, 0.68))
+        ax.step(t, nu, where="post", color=OKABE_ITO[0], linewidth=1.6)
+        ax.set_yscale("log")
+        lo, hi = min(nu + [1.0]), max(nu + [1.0])
+        ax.set_ylim(lo / 2.0, hi * 2.0)
+        ax.yaxis.set_major_formatter(FuncFormatter(lambda y, _p: f"{y:g}"))
+        ax.yaxis.set_minor_formatter(NullFormatter())
+        ax.set_xlim(max(t), 0.0)  # the present on the right
+        ax.set_xlabel("time before the sample (units of 2·N_anc generations)")
+        ax.set_ylabel("N / N_anc")
+        ax.set_title(f"size history of {_label(name)} ({_label(model)})")
+        ax.grid(color="#eeeeee", linewidth=0.5)
+        ax.set_axisbelow(True)
+        return _to_data_uri(fig, anchor + "-history")
