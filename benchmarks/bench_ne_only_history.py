@@ -14,6 +14,12 @@ misspecification; scipy's ncx2). ``flagged``: whether compare's out-of-equilibri
 
     python benchmarks/bench_ne_only_history.py              # n = 20, two decline ages
     python benchmarks/bench_ne_only_history.py --nodes 120  # a finer quadrature
+    python benchmarks/bench_ne_only_history.py --demography auto   # explicit histories
+
+With ``--demography`` other than ``nuisance`` each population's history is fitted to
+its neutral class (:func:`driftband.fit.size_history.prepare_history`, tabulated spectra
+of :class:`~driftband.prf.history_table.HistoryKernel`, independent of the trapezoid
+average above) and the tests use it: ρ is then the ratio of the current sizes.
 """
 
 from __future__ import annotations
@@ -31,6 +37,7 @@ from driftband.fit.mle import fit_model
 from driftband.fit.models import DfeModel
 from driftband.fit.options import FitOptions
 from driftband.fit.results import PopulationFit
+from driftband.fit.size_history import prepare_history
 from driftband.prf.dfe import DfeExpectation
 from driftband.prf.history import ConstantSize, HistorySfs, OneChange
 
@@ -48,7 +55,9 @@ def gamma_average(hist_sfs: HistorySfs, shape: float, mean: float, nodes: int) -
     return w @ hist_sfs.g(-t)
 
 
-def population(name: str, n: int, history, N_now: float, nodes: int) -> PopulationFit:
+def population(
+    name: str, n: int, history, N_now: float, nodes: int, demography: str = "nuisance"
+) -> PopulationFit:
     hs = HistorySfs(n, history)
     theta = THETA_A * N_now / 400.0
     neutral = theta * SITES * hs.g(np.array([0.0]))[0]
@@ -57,7 +66,10 @@ def population(name: str, n: int, history, N_now: float, nodes: int) -> Populati
     ex = DfeExpectation(n)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
-        fits = {"gamma": fit_model(data, DfeModel("gamma"), eps=0.0, expectation=ex)}
+        fh = None if demography == "nuisance" else prepare_history(data, demography, eps=0.0)
+        if fh is not None:
+            print(f"  {name}: history {fh.model} {fh.params}")
+        fits = {"gamma": fit_model(data, DfeModel("gamma"), eps=0.0, expectation=ex, history=fh)}
     return PopulationFit(name, data, fits)
 
 
@@ -65,25 +77,28 @@ def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--n", type=int, default=20, help="gene copies (default 20)")
     ap.add_argument("--nodes", type=int, default=80, help="quadrature nodes in log|S|")
+    ap.add_argument(
+        "--demography", default="nuisance", help="nuisance (default), one-change or auto"
+    )
     args = ap.parse_args()
     n = args.n
     mass = stats.gamma.cdf(1e6, 0.3, scale=200 / 0.3) - stats.gamma.cdf(1e-6, 0.3, scale=200 / 0.3)
     print(f"gamma mass inside the quadrature range: {mass:.8f}")
     t0 = time.perf_counter()
-    a = population("A", n, ConstantSize(), 400.0, args.nodes)
+    a = population("A", n, ConstantSize(), 400.0, args.nodes, args.demography)
     cases = {
         "equilibrium pair (B at 100 for ever)": ConstantSize(),
         "B declined 400 -> 100, 40 generations ago": OneChange(0.25, 40 / 800),
         "B declined 400 -> 100, 200 generations ago": OneChange(0.25, 200 / 800),
     }
-    opts = FitOptions(eps=0.0)
+    opts = FitOptions(eps=0.0, demography=args.demography)
     tests = ("ne_only_free_lrt", "ne_only_lrt", "shared_dfe_lrt")
     print(f"n = {n}; {SITES:.0e} sites per class; size at 5 % for L sites per class")
     header = f"{'case':<46}{'test':<18}{'ratio':>7}{'pi ratio':>9}{'delta/1e6':>11}"
     header += "".join(f"{'L=' + f'{L:.0e}':>10}" for L in (1e6, 1e7, 1e8)) + "  flagged"
     print(header)
     for label, hist in cases.items():
-        b = population("B", n, hist, 100.0, args.nodes)
+        b = population("B", n, hist, 100.0, args.nodes, args.demography)
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")
             rows = compare_pair(a, b, DfeModel("gamma"), opts, tests=tests)

@@ -20,7 +20,7 @@ from .._options import COMMAND_LINE, OptionSource
 from .._parallel import parallel_map
 from .._progress import Progress
 from ..defaults import COMPARE_TESTS
-from ..exceptions import InputError, OptionError
+from ..exceptions import InputError
 from ..fit.options import FitOptions
 from ..fit.results import PopulationFit
 from ..prf.dfe import DfeExpectation
@@ -222,12 +222,6 @@ def compare_fits(
         Bad options, an unknown population, fewer than two populations.
     """
     check_compare_settings(tests, adjust, pairs, source)
-    if options.explicit_history:
-        raise OptionError(
-            f"the fits were made with an explicit size history (demography "
-            f"{options.demography}); comparisons between populations do not use explicit "
-            "histories yet: refit with --demography nuisance (or equilibrium) to compare"
-        )
     by_name = {pf.population: pf for pf in fits}
     names = list(by_name)
     mu = dict(relative_mu or {})

@@ -45,6 +45,7 @@ from ..fit.likelihood import Objective, SpectrumPair
 from ..fit.models import DfeModel
 from ..fit.options import FitOptions
 from ..fit.results import PopulationFit
+from ..fit.size_history import history_parts
 from ..prf.dfe import DfeExpectation
 from ..prf.families import band_shares
 from ..spectra.stats import pi_theta_counts, tajimas_d
@@ -177,6 +178,21 @@ def _log_ratio_draws(
     ma, mb = mu.get(pop_a.population, 1.0), mu.get(pop_b.population, 1.0)
     with np.errstate(divide="ignore", invalid="ignore"):
         return np.log((bb.neutral_pi / mb) / (ba.neutral_pi / ma))
+
+
+def _log_theta_draws(pop_a: PopulationFit, pop_b: PopulationFit, model: str) -> np.ndarray | None:
+    """log ρ from the refitted θ (current sizes) in each replicate, or None.
+
+    The relative mutation rates are constants and cancel in the draws about the
+    estimate."""
+    ma, mb = pop_a.model_bootstrap(model), pop_b.model_bootstrap(model)
+    if ma is None or mb is None or "theta" not in ma.params or "theta" not in mb.params:
+        return None
+    ta, tb = ma.params["theta"], mb.params["theta"]
+    if ta.shape != tb.shape:
+        return None
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return np.log(tb / ta)
 
 
 def _finish_lrt(
@@ -342,11 +358,19 @@ def compare_pair(
             )
     edges = options.edges_nes
 
-    def objective(d: SpectrumPair) -> Objective:
+    def objective(pf: PopulationFit) -> Objective:
+        d = pf.data
+        h = pf.fits[model.name].size_history
+        if h is not None:  # the fitted history, held fixed (the two-step approach)
+            ex, neutral_g = history_parts(d.n, h)
+            return Objective(
+                d, model, eps=options.eps, equilibrium=True, expectation=ex, neutral_g=neutral_g
+            )
         ex = expectations.setdefault(d.n, DfeExpectation(d.n))
         return Objective(d, model, eps=options.eps, equilibrium=options.equilibrium, expectation=ex)
 
-    objs = [objective(pop_a.data), objective(pop_b.data)]
+    objs = [objective(pop_a), objective(pop_b)]
+    histories = fa.size_history is not None and fb.size_history is not None
     lrts = {"shared_dfe_lrt", "ne_only_free_lrt", "ne_only_lrt"} & set(tests)
     link = _linkage_inputs(pop_a, pop_b, model, objs) if lrts else None
     # each replicate's ψ: the difference of the populations' DFE vectors, about the estimate
@@ -362,6 +386,11 @@ def compare_pair(
     mu = relative_mu or {}
     rho_pi = (neutral_pi(pop_b.data) / mu.get(name_b, 1.0)) / (
         neutral_pi(pop_a.data) / mu.get(name_a, 1.0)
+    )
+    # with explicit histories: the ratio of the current sizes, theta = 4 N_now mu of each
+    # fit; otherwise the ratio of neutral diversity
+    rho_ne = (
+        (fb.theta / mu.get(name_b, 1.0)) / (fa.theta / mu.get(name_a, 1.0)) if histories else rho_pi
     )
 
     def lrt_row(test: str, ll_null: float, dof: int, **kw: object) -> ComparisonRow:
@@ -389,7 +418,7 @@ def compare_pair(
                 objs,
                 model,
                 zero,
-                joint_starts(model, fa, fb, objs, zero, direction, (math.log(rho_pi),)),
+                joint_starts(model, fa, fb, objs, zero, direction, (math.log(rho_ne),)),
                 free=direction,
             )
             rho = math.exp(float(z[df]))
@@ -401,6 +430,7 @@ def compare_pair(
                 extra={
                     "ne_ratio": rho,
                     "ne_ratio_pi": float(rho_pi),
+                    **({"ne_ratio_history": float(rho_ne)} if histories else {}),
                     "predicted_share_b": float(
                         band_shares(model.to_dfe(z[:df] + z[df] * direction), edges)[0]
                     ),
@@ -414,7 +444,7 @@ def compare_pair(
                 row, model, z[:df], link or _Linkage(None, None, None, [], ""), diff, direction
             )
         else:  # ne_only_lrt
-            shift_b = scale_shift(model, float(np.log(rho_pi)))
+            shift_b = scale_shift(model, float(np.log(rho_ne)))
             shifts = [np.zeros(df), shift_b]
             ll, z, ok = joint_fit(objs, model, shifts, joint_starts(model, fa, fb, objs, shifts))
             assumption = (
@@ -426,9 +456,9 @@ def compare_pair(
                 test,
                 ll,
                 df,
-                estimate=float(rho_pi),
+                estimate=float(rho_ne),
                 extra={
-                    "ne_ratio": float(rho_pi),
+                    "ne_ratio": float(rho_ne),
                     "ne_ratio_pi": float(rho_pi),
                     "predicted_share_a": float(band_shares(model.to_dfe(z[:df]), edges)[0]),
                     "predicted_share_b": float(
@@ -439,10 +469,19 @@ def compare_pair(
                     "loglik_constrained": ll,
                     "loglik_separate": ll_sep,
                 },
-                note=f"estimate: Ne_B/Ne_A from neutral pi ratio, assuming {assumption}",
+                note=(
+                    "estimate: Ne_B/Ne_A, the ratio of the current sizes of the fitted "
+                    f"size histories (theta of each fit), assuming {assumption}"
+                    if histories
+                    else f"estimate: Ne_B/Ne_A from neutral pi ratio, assuming {assumption}"
+                ),
             )
             draws = diff
-            log_rho = _log_ratio_draws(pop_a, pop_b, mu)
+            log_rho = (
+                _log_theta_draws(pop_a, pop_b, model.name)
+                if histories
+                else _log_ratio_draws(pop_a, pop_b, mu)
+            )
             if draws is not None and log_rho is not None:
                 draws = draws - np.outer(log_rho, scale_shift(model, 1.0))
             elif draws is not None:
@@ -454,7 +493,7 @@ def compare_pair(
         _not_converged(row, ok)
         rows.append(row)
     ne_rows = [r for r in rows if r.test.startswith("ne_only")]
-    if ne_rows:
+    if ne_rows and not histories:  # explicit histories: no equilibrium assumed
         _departure_note(ne_rows, (pop_a, pop_b), model.name)
     failed = [p.population for p, f in ((pop_a, fa), (pop_b, fb)) if not f.success]
     if failed:

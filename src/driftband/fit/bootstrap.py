@@ -576,6 +576,9 @@ def _summarise(f: Any, reps: list[dict[str, Any] | None], level: float) -> Model
     params = {p: col(lambda r, p=p: r["params"][p]) for p in f.params}
     params["misorientation_rate"] = col(lambda r: r["misorientation_rate"])
     params["fixation_ratio"] = col(lambda r: r["fixation_ratio"])
+    if any(r and "size_history" in r for r in reps):
+        # theta on the current size: the Ne ratio of the comparisons on explicit histories
+        params["theta"] = col(lambda r: r["theta"])
     for key in ALPHA_KEYS:
         if any(r and key in r for r in reps):
             params[key] = col(lambda r, key=key: r.get(key, nan))

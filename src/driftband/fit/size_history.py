@@ -24,6 +24,7 @@ demes file.
 
 from __future__ import annotations
 
+import functools
 import math
 from dataclasses import dataclass, field
 from typing import Any
@@ -34,7 +35,7 @@ from ..exceptions import OptionError
 from ..prf.dfe import DfeExpectation
 from ..prf.history import ConstantSize, Epochs, History
 from ..prf.history_table import HistoryKernel
-from .history_fit import HISTORY_MODELS, HistoryFit, fit_neutral_history
+from .history_fit import HISTORY_MODELS, HistoryFit, fit_neutral_history, history_of
 from .likelihood import SpectrumPair
 
 __all__ = [
@@ -43,6 +44,8 @@ __all__ = [
     "check_demography",
     "choose_history",
     "explicit",
+    "history_of_summary",
+    "history_parts",
     "prepare_history",
     "replicate_history",
 ]
@@ -248,6 +251,42 @@ def choose_history(
     fits = [f for f in fits if math.isfinite(f.aic)]
     best = min(fits, key=lambda f: f.aic)
     return best, {f.model: f.aic for f in fits}
+
+
+def history_of_summary(summary: dict[str, Any]) -> History:
+    """The history recorded in a fit's ``size_history`` (:meth:`FittedHistory.summary`)."""
+    model = str(summary["model"])
+    if model in HISTORY_MODELS:
+        return history_of(model, {str(k): float(v) for k, v in summary["params"].items()})
+    epochs = tuple((float(d), float(a), float(b)) for d, a, b in summary.get("epochs") or ())
+    return Epochs(epochs) if epochs else ConstantSize()
+
+
+@functools.lru_cache(maxsize=16)
+def _parts(n: int, history: History) -> tuple[DfeExpectation, np.ndarray]:
+    if not history.epochs():
+        return DfeExpectation(n), 1.0 / np.arange(1, n)
+    k = HistoryKernel(n, history)
+    return DfeExpectation(n, k), k.neutral()
+
+
+def history_parts(n: int, summary: dict[str, Any]) -> tuple[DfeExpectation, np.ndarray]:
+    """The DFE averages and the neutral spectrum (per θL, current size) of a recorded
+    history, for likelihoods built after the fit (e.g. the comparisons); cached per
+    process.
+
+    Parameters
+    ----------
+    n : int
+        Gene copies.
+    summary : dict
+        A fit's ``size_history``.
+
+    Returns
+    -------
+    (DfeExpectation, ndarray of shape (n - 1,))
+    """
+    return _parts(int(n), history_of_summary(summary))
 
 
 def replicate_history(

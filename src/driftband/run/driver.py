@@ -52,7 +52,6 @@ from .._io import atomic_output
 from .._parallel import available_cores, connect, resolve_workers, scheduler_address
 from .._version import __version__
 from ..exceptions import InputError, OptionError
-from ..fit.size_history import explicit
 from .cache import StageCache, StageRunner, run_log
 from .stages import (
     fit_options,
@@ -433,13 +432,7 @@ def _run_stages(
     )
     npop = len(json.loads(paths["fit"].read_text(encoding="utf-8"))["populations"])
     compare = None
-    if npop >= 2 and study.compare.tests and explicit(study.fit.demography):
-        log.warning(
-            "compare: skipped: the fits use an explicit size history (demography = %r), "
-            "and comparisons between populations do not use explicit histories yet",
-            study.fit.demography,
-        )
-    elif npop >= 2 and study.compare.tests:
+    if npop >= 2 and study.compare.tests:
         c = study.compare
         runner.run(
             "compare",
