@@ -32,7 +32,7 @@ def test_an_old_change_leaves_the_equilibrium_at_the_current_size():
     # forgotten: the spectrum on the current size is the equilibrium one (Kimura 1964's
     # diffusion relaxes to its stationary density; common practice)
     n = 12
-    k = HistoryKernel(n, OneChange(0.25, 5.0))
+    k = HistoryKernel(n, OneChange(0.25, 5.0), beneficial=True)
     g, ref = k.g(OFF_NODE), kernel(n).g(OFF_NODE)
     big = ref >= 1e-6 * ref.sum(axis=1, keepdims=True)
     assert np.max(np.abs(g / ref - 1)[big]) < 1e-4
@@ -52,14 +52,21 @@ def test_table_follows_the_solver_between_its_nodes():
     # classes holding at least 1e-3 of each spectrum
     n = 12
     h = OneChange(0.25, 0.05)
-    k = HistoryKernel(n, h)
+    k = HistoryKernel(n, h, beneficial=True)
     ref = HistorySfs(n, h, "current", FIT_RESOLUTION).table(OFF_NODE)
     big = ref >= 1e-3 * ref.sum(axis=1, keepdims=True)
     assert np.max(np.abs(k.g(OFF_NODE) / ref - 1)[big]) < 2e-2
 
 
+def test_a_table_without_the_beneficial_side_refuses_positive_S():
+    k = HistoryKernel(8, OneChange(0.5, 0.1))
+    assert np.all(k.nodes <= 0)
+    with pytest.raises(ValueError, match="no beneficial S"):
+        k.g(3.0)
+
+
 def test_beneficial_derivative_matches_differences():
-    k = HistoryKernel(10, OneChange(0.5, 0.1))
+    k = HistoryKernel(10, OneChange(0.5, 0.1), beneficial=True)
     for s in (0.3, 7.0, 90.0):
         num = (k.g(s * (1 + 1e-6)) - k.g(s * (1 - 1e-6))) / (2e-6 * s)
         assert np.allclose(k.dg_beneficial(s), num, rtol=1e-4, atol=1e-12)

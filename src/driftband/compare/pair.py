@@ -362,7 +362,7 @@ def compare_pair(
         d = pf.data
         h = pf.fits[model.name].size_history
         if h is not None:  # the fitted history, held fixed (the two-step approach)
-            ex, neutral_g = history_parts(d.n, h)
+            ex, neutral_g = history_parts(d.n, h, model.beneficial)
             return Objective(
                 d, model, eps=options.eps, equilibrium=True, expectation=ex, neutral_g=neutral_g
             )

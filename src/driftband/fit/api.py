@@ -142,7 +142,13 @@ def fit_population(
     ex = expectation or _expectation(data.n)
     history = None
     if options.explicit_history:
-        history = prepare_history(data, options.demography, options.eps, demes_history)
+        history = prepare_history(
+            data,
+            options.demography,
+            options.eps,
+            demes_history,
+            beneficial=any(m.beneficial for m in options.models),
+        )
         log.info(
             "size history of %s: %s %s", population or "population", history.model, history.params
         )

@@ -257,7 +257,9 @@ def _replicate_task(args: _ReplicateBatch) -> list[dict[str, Any]]:
         if hist is not None:
             try:
                 if fixed is None or hist["model"] not in ("demes", "equilibrium"):
-                    history = replicate_history(data, hist, options.eps)
+                    history = replicate_history(
+                        data, hist, options.eps, any(m.beneficial for m in options.models)
+                    )
                     fixed = history
                 else:
                     history = fixed

@@ -165,6 +165,7 @@ def prepare_history(
     demography: str,
     eps: float | None = None,
     fixed: History | None = None,
+    beneficial: bool = False,
 ) -> FittedHistory:
     """Fit (or take) the size history of one population and tabulate its spectra.
 
@@ -179,6 +180,9 @@ def prepare_history(
         Misorientation rate fixed at this value, or None to estimate it.
     fixed : History, optional
         The history of ``demes:FILE`` for this population (read by the caller).
+    beneficial : bool
+        Tabulate the beneficial side of the spectra too (a model with a beneficial
+        class is fitted).
 
     Returns
     -------
@@ -201,7 +205,7 @@ def prepare_history(
             return FittedHistory(
                 "demes", fixed, None, {}, demography, DfeExpectation(n), 1.0 / np.arange(1, n)
             )
-        kf = HistoryKernel(n, fixed)
+        kf = HistoryKernel(n, fixed, beneficial=beneficial)
         return FittedHistory(
             "demes", fixed, None, {}, demography, DfeExpectation(n, kf), kf.neutral()
         )
@@ -217,7 +221,7 @@ def prepare_history(
             DfeExpectation(n),
             1.0 / np.arange(1, n),
         )
-    k = HistoryKernel(n, history)
+    k = HistoryKernel(n, history, beneficial=beneficial)
     return FittedHistory(
         best.model, history, best, candidates, demography, DfeExpectation(n, k), k.neutral()
     )
@@ -263,14 +267,16 @@ def history_of_summary(summary: dict[str, Any]) -> History:
 
 
 @functools.lru_cache(maxsize=16)
-def _parts(n: int, history: History) -> tuple[DfeExpectation, np.ndarray]:
+def _parts(n: int, history: History, beneficial: bool) -> tuple[DfeExpectation, np.ndarray]:
     if not history.epochs():
         return DfeExpectation(n), 1.0 / np.arange(1, n)
-    k = HistoryKernel(n, history)
+    k = HistoryKernel(n, history, beneficial=beneficial)
     return DfeExpectation(n, k), k.neutral()
 
 
-def history_parts(n: int, summary: dict[str, Any]) -> tuple[DfeExpectation, np.ndarray]:
+def history_parts(
+    n: int, summary: dict[str, Any], beneficial: bool = False
+) -> tuple[DfeExpectation, np.ndarray]:
     """The DFE averages and the neutral spectrum (per θL, current size) of a recorded
     history, for likelihoods built after the fit (e.g. the comparisons); cached per
     process.
@@ -281,16 +287,18 @@ def history_parts(n: int, summary: dict[str, Any]) -> tuple[DfeExpectation, np.n
         Gene copies.
     summary : dict
         A fit's ``size_history``.
+    beneficial : bool
+        Tabulate the beneficial side too (for a model with a beneficial class).
 
     Returns
     -------
     (DfeExpectation, ndarray of shape (n - 1,))
     """
-    return _parts(int(n), history_of_summary(summary))
+    return _parts(int(n), history_of_summary(summary), bool(beneficial))
 
 
 def replicate_history(
-    data: SpectrumPair, point: dict[str, Any], eps: float | None
+    data: SpectrumPair, point: dict[str, Any], eps: float | None, beneficial: bool = False
 ) -> FittedHistory:
     """The history of a bootstrap replicate, from the point fit's summary.
 
@@ -306,6 +314,8 @@ def replicate_history(
         :meth:`FittedHistory.summary` of the point fit.
     eps : float or None
         Misorientation rate fixed at this value, or None to estimate it.
+    beneficial : bool
+        Tabulate the beneficial side too.
 
     Returns
     -------
@@ -315,10 +325,10 @@ def replicate_history(
     n = data.n
     if model == "demes":
         fixed = Epochs(tuple((float(d), float(a), float(b)) for d, a, b in point["epochs"]))
-        return prepare_history(data, str(point["requested"]), eps, fixed)
+        return prepare_history(data, str(point["requested"]), eps, fixed, beneficial)
     if model == "equilibrium":
         best = fit_neutral_history(data, "equilibrium", eps)
         return FittedHistory(
             model, ConstantSize(), best, {}, model, DfeExpectation(n), 1.0 / np.arange(1, n)
         )
-    return prepare_history(data, model, eps)
+    return prepare_history(data, model, eps, beneficial=beneficial)

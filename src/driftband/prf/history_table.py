@@ -16,13 +16,20 @@ splines in :math:`u = \operatorname{asinh}(S / 0.01)`. ``S`` and :math:`\theta` 
 the current size, as :class:`~driftband.prf.history.HistorySfs` with
 ``reference="current"``.
 
-The grid (:data:`S_NODES`): ``S = 0`` and :math:`\pm 10^{k/4}` for :math:`|S|` from
-0.01 to :math:`10^5` on the deleterious side and to :math:`10^4` (the largest beneficial
-``S`` a fit allows) on the other, 53 nodes. Beyond the last node the log ratio is held at its
-value there (a DFE's mass beyond :math:`|S| = 10^5` contributes about :math:`1/|S|` per
-site). The solver runs at :data:`FIT_RESOLUTION`, coarser than
-:data:`~driftband.prf.history.DEFAULT_RESOLUTION`. Its error and the interpolation
-error are measured by ``benchmarks/bench_history_table.py`` and bounded in the tests.
+The grid starts at :data:`S_NODES`: ``S = 0`` and :math:`\pm 10^{k/2}` for :math:`|S|`
+from 0.01 to :math:`10^5` on the deleterious side and to :math:`10^4` (the largest
+beneficial ``S`` a fit allows) on the other, the beneficial side only when a beneficial
+class is fitted. Intervals are then halved (in ``u``) where the spline, before a
+midpoint is solved, misses it by more than :data:`TABLE_TOL` on a class holding at least
+:data:`SHARE_FLOOR` of the spectrum, up to :data:`MAX_NODES` values of ``S``. Beyond the
+last node the log ratio is held at its value there (a DFE's mass beyond
+:math:`|S| = 10^5` contributes about :math:`1/|S|` per site). The solver runs at
+:data:`FIT_RESOLUTION`, coarser than :data:`~driftband.prf.history.DEFAULT_RESOLUTION`.
+Its error and the interpolation error are measured by
+``benchmarks/bench_history_table.py`` and bounded in the tests: on DFE averages against
+every quadrature node solved at the default settings, 1e-6 to 6e-4 for a four-fold
+decline, a bottleneck with recovery and five-fold growth, but about 1e-2 for a 50-fold
+expansion (the grid reaches :data:`MAX_NODES` before the spline meets its tolerance).
 
 The neutral class of the same history comes from the coalescent
 (:func:`~driftband.prf.neutral_history.neutral_history_sfs`), exact to rounding, through
@@ -92,6 +99,9 @@ class HistoryKernel:
     refine : bool
         Halve the intervals of the grid (in ``u``) until the spline predicts each new
         midpoint within :data:`TABLE_TOL` (default ``True``).
+    beneficial : bool
+        Tabulate the beneficial side (``S > 0``) too, for a beneficial class (default
+        ``False``: about half the cost; :meth:`g` then refuses ``S > 0``).
 
     Notes
     -----
@@ -113,11 +123,15 @@ class HistoryKernel:
         resolution: _Resolution | None = None,
         nodes: ArrayLike | None = None,
         refine: bool = True,
+        beneficial: bool = False,
     ) -> None:
         self.n = _check_n(n)
         self.history = history
         self.eq: SfsKernel = kernel(self.n)
+        self.beneficial = bool(beneficial)
         S = np.asarray(S_NODES if nodes is None else nodes, dtype=float)
+        if not self.beneficial:
+            S = S[S <= 0.0]
         if S.ndim != 1 or np.any(np.diff(S) <= 0) or not np.any(S == 0.0):
             raise ValueError("`nodes` must be an increasing 1-D grid holding 0")
         self._constant = isinstance(history, ConstantSize) or not history.epochs()
@@ -227,6 +241,8 @@ class HistoryKernel:
         S = np.asarray(S, dtype=float)
         if self._spline is None:
             return self.eq.g(S)
+        if not self.beneficial and np.any(S > 0):
+            raise ValueError("this table holds no beneficial S: build it with beneficial=True")
         return np.exp(self._floor_log_eq(S) + self.log_ratio(S))
 
     def dg_beneficial(self, s: float) -> np.ndarray:
