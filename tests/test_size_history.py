@@ -116,3 +116,16 @@ def test_demography_choices_are_checked():
         prepare_history(
             SpectrumPair(10, True, np.ones(5), np.ones(5), 1e4, 1e4, None, None), "one-change"
         )
+
+
+def test_auto_keeps_the_history_when_it_fits_better_than_nuisance_factors():
+    # data made under a one-change history (exact model): auto's history beats the
+    # nuisance factors on AIC (n - 2 extra parameters buy nothing), and says so
+    from driftband.fit.api import fit_population
+    from driftband.fit.options import FitOptions
+
+    d = _data(10, OneChange(0.25, 0.1), GammaDfe(0.3, 400.0), seed=7)
+    pf = fit_population(d, FitOptions(eps=0.0, demography="auto"), "lake")
+    h = pf.fits["gamma"].size_history
+    assert h is not None and h["model"] != "nuisance"
+    assert min(h["aic_history"].values()) < min(h["aic_nuisance_factors"].values())

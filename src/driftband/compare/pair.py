@@ -45,7 +45,7 @@ from ..fit.likelihood import Objective, SpectrumPair
 from ..fit.models import DfeModel
 from ..fit.options import FitOptions
 from ..fit.results import PopulationFit
-from ..fit.size_history import history_parts
+from ..fit.size_history import history_parts, recorded_history
 from ..prf.dfe import DfeExpectation
 from ..prf.families import band_shares
 from ..spectra.stats import pi_theta_counts, tajimas_d
@@ -360,7 +360,7 @@ def compare_pair(
 
     def objective(pf: PopulationFit) -> Objective:
         d = pf.data
-        h = pf.fits[model.name].size_history
+        h = recorded_history(pf.fits[model.name])
         if h is not None:  # the fitted history, held fixed (the two-step approach)
             ex, neutral_g = history_parts(d.n, h, model.beneficial)
             return Objective(
@@ -370,7 +370,7 @@ def compare_pair(
         return Objective(d, model, eps=options.eps, equilibrium=options.equilibrium, expectation=ex)
 
     objs = [objective(pop_a), objective(pop_b)]
-    histories = fa.size_history is not None and fb.size_history is not None
+    histories = recorded_history(fa) is not None and recorded_history(fb) is not None
     lrts = {"shared_dfe_lrt", "ne_only_free_lrt", "ne_only_lrt"} & set(tests)
     link = _linkage_inputs(pop_a, pop_b, model, objs) if lrts else None
     # each replicate's ψ: the difference of the populations' DFE vectors, about the estimate

@@ -13,6 +13,7 @@ import dataclasses
 import functools
 import logging
 import os
+import warnings
 from dataclasses import dataclass
 from typing import Any
 
@@ -165,7 +166,70 @@ def fit_population(
             expectation=ex,
             history=history,
         )
+    if options.demography == "auto":
+        fits = _auto_against_nuisance(data, options, population, ex, fits)
     return PopulationFit(population, data, fits, headline_method=options.headline)
+
+
+def _auto_against_nuisance(
+    data: SpectrumPair,
+    options: FitOptions,
+    population: str,
+    ex: DfeExpectation,
+    fits: dict[str, FitResult],
+) -> dict[str, FitResult]:
+    """``auto``: the fits under the chosen history against those with nuisance factors,
+    by the lowest AIC of any family; the winners, with the comparison recorded."""
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")  # the losing set's own warnings are not the user's
+        nuis = {
+            m.name: fit_model(
+                data,
+                m,
+                population=population,
+                eps=options.eps,
+                equilibrium=False,
+                edges_nes=options.edges_nes,
+                expectation=ex,
+            )
+            for m in options.models
+        }
+    aic_hist = min(f.aic for f in fits.values())
+    aic_nuis = min(f.aic for f in nuis.values())
+    hist = next(iter(fits.values())).size_history or {}
+    record = {
+        "aic_nuisance_factors": {k: f.aic for k, f in nuis.items()},
+        "aic_history": {k: f.aic for k, f in fits.items()},
+    }
+    if aic_nuis < aic_hist:
+        log.info(
+            "size history of %s: nuisance factors kept (AIC %.2f against %.2f for %s)",
+            population or "population",
+            aic_nuis,
+            aic_hist,
+            hist.get("model"),
+        )
+        # warnings of the kept fits, as a plain fit would have given them
+        kept = {
+            m.name: fit_model(
+                data,
+                m,
+                population=population,
+                eps=options.eps,
+                equilibrium=False,
+                edges_nes=options.edges_nes,
+                expectation=ex,
+            )
+            for m in options.models
+        }
+        note = {"requested": "auto", "model": "nuisance", "rejected_history": hist} | record
+        for f in kept.values():
+            f.size_history = note
+        return kept
+    for f in fits.values():
+        if f.size_history is not None:
+            f.size_history = f.size_history | record
+    return fits
 
 
 def demes_histories(

@@ -37,7 +37,7 @@ from .results import (
     PopulationFit,
     akaike_weights,
 )
-from .size_history import FittedHistory, replicate_history
+from .size_history import FittedHistory, recorded_history, replicate_history
 
 if TYPE_CHECKING:
     from ..spectra import PopulationSpectra
@@ -424,7 +424,7 @@ def bootstrap_fits(
         pis.append(_replicate_pi(pf.data, bn, ln, idx))
         opts = dataclasses.replace(options, models=tuple(options.model(n) for n in names))
         starts = {name: pf.fits[name].x for name in names}
-        hist = next((pf.fits[nm].size_history for nm in names), None)
+        hist = next((recorded_history(pf.fits[nm]) for nm in names), None)
         for b0 in range(0, replicates, batch):
             tasks.append(
                 (

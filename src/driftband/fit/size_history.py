@@ -10,8 +10,11 @@ r"""The size history a DFE is fitted under: nuisance factors, equilibrium or exp
   (:mod:`driftband.prf.history`) fitted to the neutral class first, then the DFE fitted
   to the selected class given it (the two-step approach of Keightley & Eyre-Walker 2007
   and Boyko et al. 2008); ``S = 4Ns`` and :math:`\theta` are on the **current** size;
-- ``auto``: the explicit history (or equilibrium) with the lowest AIC on the neutral
-  class, per population;
+- ``auto``: per population, the explicit history (or equilibrium) with the lowest AIC
+  on the neutral class; then the DFE fits under it against those with nuisance factors,
+  by the lowest AIC of any family (both are likelihoods of both classes): the nuisance
+  factors are kept when they win, and ``size_history`` then says so (model
+  ``nuisance``);
 - ``demes:FILE``: a fixed history read from a demes file (Gower et al. 2022), one deme
   named as the population.
 
@@ -44,6 +47,7 @@ __all__ = [
     "check_demography",
     "choose_history",
     "explicit",
+    "recorded_history",
     "history_of_summary",
     "history_parts",
     "prepare_history",
@@ -55,6 +59,13 @@ DEMOGRAPHY_CHOICES = ("nuisance", "equilibrium", "one-change", "two-change", "gr
 #: The models ``auto`` chooses among (by AIC on the neutral class).
 AUTO_MODELS = ("equilibrium", "one-change", "two-change", "growth")
 _DEMES = "demes:"
+
+
+def recorded_history(fit: Any) -> dict[str, Any] | None:
+    """The explicit history a fit was made under (its ``size_history``), or None: for
+    nuisance factors, equilibrium, or ``auto`` when it kept the nuisance factors."""
+    h = getattr(fit, "size_history", None)
+    return h if isinstance(h, dict) and h.get("model") != "nuisance" else None
 
 
 def check_demography(value: Any, name: str = "--demography") -> str:

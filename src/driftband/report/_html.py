@@ -447,8 +447,20 @@ def _history(v: PopulationView) -> str:
     h = f.get("size_history")
     if not isinstance(h, dict):
         return ""
-    ci = v.model_ci(v.best).get("params_ci") or {}
     out = ["<h3>Size history</h3>"]
+    aic_n = h.get("aic_nuisance_factors") or {}
+    aic_h = h.get("aic_history") or {}
+    if h.get("model") == "nuisance":
+        rej = h.get("rejected_history") or {}
+        out.append(
+            f"<p>{esc(v.name)}: with <code>auto</code>, the nuisance factors fit better "
+            f"(lowest AIC {esc(fsig(min(aic_n.values(), default=math.nan)))}) than the best "
+            f"explicit history, {esc(rej.get('model'))} (lowest AIC "
+            f"{esc(fsig(min(aic_h.values(), default=math.nan)))}): S is tied to no "
+            "particular size for this population.</p>"
+        )
+        return "\n".join(out)
+    ci = v.model_ci(v.best).get("params_ci") or {}
     src = str(h.get("requested", ""))
     how = (
         f"read from {src[len('demes:') :]}"
@@ -486,6 +498,12 @@ def _history(v: PopulationView) -> str:
                 ["Parameter", "Estimate", "Interval"],
                 rows,
             )
+        )
+    if aic_n:
+        out.append(
+            f"<p>Against nuisance factors: lowest AIC {esc(fsig(min(aic_h.values())))} "
+            f"with this history, {esc(fsig(min(aic_n.values())))} with nuisance factors "
+            "(both of the two classes together).</p>"
         )
     cand = h.get("candidates_aic") or {}
     if cand:

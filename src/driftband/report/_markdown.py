@@ -107,6 +107,9 @@ def render_markdown(view: ReportView) -> str:
     if hist:
         out += ["", "Size histories (S and the shares refer to the current size):", ""]
         for v, h in hist:
+            if h.get("model") == "nuisance":
+                out.append(f"- {md(v.name)}: nuisance factors (kept by auto: lower AIC)")
+                continue
             pars = ", ".join(f"{k} = {fsig(x)}" for k, x in (h.get("params") or {}).items())
             out.append(f"- {md(v.name)}: {md(h.get('model'))}" + (f" ({md(pars)})" if pars else ""))
     out += ["", f"All bands (estimate and {lvl} interval):", ""]
