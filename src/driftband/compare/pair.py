@@ -296,8 +296,9 @@ def _departure_note(
     text = (
         "; ".join(found)
         + ": the population looks out of equilibrium, and the 'only Ne differs' tests "
-        "assume equilibrium (explicit size histories are not yet available); the version "
-        "with the ratio from pi rejects a true null after a recent change of size"
+        "assume equilibrium (refit with explicit size histories, --demography auto, for "
+        "tests that do not); the version with the ratio from pi rejects a true null after "
+        "a recent change of size"
     )
     for row in rows:
         row.note += "; " + text

@@ -559,7 +559,8 @@ NE_ONLY_GUIDE = (
     "size both reject a true null once there are enough sites (with exact spectra of a "
     "four-fold decline 200 generations ago in a population of 400, at 10 million sites "
     "per class), so where a population is flagged as out of equilibrium neither can be "
-    "trusted until explicit size histories are fitted."
+    "trusted as it is: refit with explicit size histories (--demography auto), under "
+    "which both versions use each population's fitted history and its current size."
 )
 
 
