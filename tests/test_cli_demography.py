@@ -68,6 +68,8 @@ def test_one_change_history_is_fitted_recorded_and_bootstrapped(declined, tmp_pa
     text = html.read_text()
     assert "Size history of lake" in text and "N / N_anc" not in text  # the plot is SVG
     assert "refer to the <strong>current</strong> size" in text
+    # the same parameterisation as simulate's histories: a command to simulate from it
+    assert "driftband simulate --history lake=0:" in text
     assert "- lake: one-change (nu = " in summary.read_text()
 
 

@@ -129,3 +129,23 @@ def test_auto_keeps_the_history_when_it_fits_better_than_nuisance_factors():
     h = pf.fits["gamma"].size_history
     assert h is not None and h["model"] != "nuisance"
     assert min(h["aic_history"].values()) < min(h["aic_nuisance_factors"].values())
+
+
+def test_a_fitted_history_reads_back_as_simulate_history():
+    # one parameterisation: tau in units of 2 N_anc generations, nu = N / N_anc, as
+    # simulate's `--history AGO:SIZE` epochs (a change tau ago is 2 * N_anc * tau
+    # generations before the sample)
+    from driftband.fit.size_history import simulate_history_option
+    from driftband.simulate._model import parse_history
+
+    summary = {
+        "model": "two-change",
+        "params": {"nu1": 0.1, "tau1": 0.02, "nu2": 1.5, "tau2": 0.05},
+    }
+    text = simulate_history_option(summary, "lake", ancestral_size=1000)
+    name, epochs = parse_history(text)
+    assert name == "lake"
+    # 1,500 for the last 2 * 1000 * 0.05 = 100 generations, 100 for the 40 before
+    assert sorted(epochs) == [(0, 1500), (100, 100), (140, 1000)]
+    growth = {"model": "growth", "params": {"nu": 2.0, "tau": 0.1}}
+    assert simulate_history_option(growth, "lake") is None

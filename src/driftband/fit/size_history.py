@@ -48,6 +48,7 @@ __all__ = [
     "choose_history",
     "explicit",
     "recorded_history",
+    "simulate_history_option",
     "history_of_summary",
     "history_parts",
     "prepare_history",
@@ -275,6 +276,28 @@ def history_of_summary(summary: dict[str, Any]) -> History:
         return history_of(model, {str(k): float(v) for k, v in summary["params"].items()})
     epochs = tuple((float(d), float(a), float(b)) for d, a, b in summary.get("epochs") or ())
     return Epochs(epochs) if epochs else ConstantSize()
+
+
+def simulate_history_option(
+    summary: dict[str, Any], population: str, ancestral_size: int = 1000
+) -> str | None:
+    """The ``driftband simulate --history`` value of a recorded history, for an ancestral
+    size of ``ancestral_size`` (the spectra fix only 4·N_anc·μ, so N_anc is a choice), or
+    None for a history with an exponential epoch (one epoch per generation) or none.
+
+    Examples
+    --------
+    >>> simulate_history_option(
+    ...     {"model": "one-change", "params": {"nu": 0.25, "tau": 0.05}}, "lake"
+    ... )
+    'lake=0:250,100:1000'
+    """
+    history = history_of_summary(summary)
+    parts = history.epochs()
+    if not parts or any(a != b for _d, a, b in parts):
+        return None
+    epochs = history.simulator_epochs(ancestral_size)
+    return f"{population}=" + ",".join(f"{g}:{size}" for g, size in epochs)
 
 
 @functools.lru_cache(maxsize=16)

@@ -15,6 +15,7 @@ from collections.abc import Iterable
 from typing import Any
 
 from ..effect import convention_text
+from ..fit.size_history import simulate_history_option
 from ..prf.families import discrete_family_edges
 from ..spectra.callable import CALLABLE_SOURCES
 from ._plots import bands_figure, history_figure, spectra_figure
@@ -519,6 +520,14 @@ def _history(v: PopulationView) -> str:
                 ["History", "AIC", "\u0394AIC"],
                 crow,
             )
+        )
+    sim = simulate_history_option(h, v.name.rsplit("/", 1)[-1])
+    if sim:
+        out.append(
+            "<p>To simulate from this history (power or sanity checks), with an ancestral "
+            "size of 1,000 chosen for the simulation: <code>driftband simulate --history "
+            f"{esc(sim)}</code> (generations before the sample and sizes; the spectra fix "
+            "only 4\u00b7N_anc\u00b7\u03bc, so the ancestral size is a choice).</p>"
         )
     out.append(
         '<p class="note">A fitted history describes the neutral spectrum; it is not proof '
