@@ -180,9 +180,9 @@ def _auto_against_nuisance(
 ) -> dict[str, FitResult]:
     """``auto``: the fits under the chosen history against those with nuisance factors,
     by the lowest AIC of any family; the winners, with the comparison recorded."""
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore")  # the losing set's own warnings are not the user's
-        nuis = {
+
+    def nuisance_fits() -> dict[str, FitResult]:
+        return {
             m.name: fit_model(
                 data,
                 m,
@@ -194,6 +194,10 @@ def _auto_against_nuisance(
             )
             for m in options.models
         }
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")  # the losing set's own warnings are not the user's
+        nuis = nuisance_fits()
     aic_hist = min(f.aic for f in fits.values())
     aic_nuis = min(f.aic for f in nuis.values())
     hist = next(iter(fits.values())).size_history or {}
@@ -210,18 +214,7 @@ def _auto_against_nuisance(
             hist.get("model"),
         )
         # warnings of the kept fits, as a plain fit would have given them
-        kept = {
-            m.name: fit_model(
-                data,
-                m,
-                population=population,
-                eps=options.eps,
-                equilibrium=False,
-                edges_nes=options.edges_nes,
-                expectation=ex,
-            )
-            for m in options.models
-        }
+        kept = nuisance_fits()
         note = {"requested": "auto", "model": "nuisance", "rejected_history": hist} | record
         for f in kept.values():
             f.size_history = note
