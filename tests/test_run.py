@@ -580,3 +580,21 @@ def test_run_log_has_the_progress_of_each_stage(demo_run):
     log = (demo_run / "run.log").read_text(encoding="utf-8")
     for stage in ("classify", "spectra", "fit", "bootstrap", "compare"):
         assert f"INFO {stage}: " in log and " done in " in log, stage
+
+
+def test_study_demography_key(tmp_path, capsys):
+    from driftband.run.stages import fit_options
+
+    text = DEMO.read_text(encoding="utf-8")
+    base = text.replace("[fit]\n", '[fit]\ndemography = "demes:lake.yaml"\n', 1)
+    assert base != text
+    study_file = tmp_path / "demes.toml"
+    study_file.write_text(base.replace('"example_vcfs/', f'"{EX}/'), encoding="utf-8")
+    study = runmod.read_study(study_file)
+    # a demes file is found relative to the study file
+    assert study.fit.demography == f"demes:{tmp_path / 'lake.yaml'}"
+    bad = tmp_path / "bad.toml"
+    bad.write_text(text.replace("[fit]\n", '[fit]\ndemography = "bottleneck"\n', 1))
+    with pytest.raises(Exception, match="demography") as err:
+        fit_options(runmod.read_study(bad))
+    assert "choose one of nuisance" in str(err.value)

@@ -393,7 +393,12 @@ def _run_stages(
         )
         spectra.append((d.name, d.name if study.several else "", dp["spectra"]))
     nworkers = workers or study.bootstrap.workers or available_cores()
-    sp_inputs = {f"spectra {n}": p for n, _l, p in spectra}
+    sp_inputs: dict[str, Path | str | None] = {f"spectra {n}": p for n, _l, p in spectra}
+    demes = (
+        study.fit.demography[len("demes:") :] if study.fit.demography.startswith("demes:") else ""
+    )
+    if demes and os.path.isfile(demes):  # an edited demes file refits (a missing one: the
+        sp_inputs["demes"] = demes  # fit stage names it)
     labels = {n: lab for n, lab, _p in spectra}
     fit_opts = options.to_dict() | {"labels": labels, "populations": study.fit.populations}
     runner.run(
