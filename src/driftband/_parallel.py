@@ -545,8 +545,20 @@ def _run(
     lowest_open = [0]  # smallest index not finished yet (for the window)
     state = {"next": 0, "exhausted": False}
 
+    # after a worker died: the tasks to submit again, and the suspects (tasks that were
+    # running or queued in the pool that broke). While there are suspects one task at a
+    # time is in flight, so that a task that kills its worker is found and blamed alone.
+    retry: list[tuple[int, Any, int]] = []
+    suspects: set[int] = set()
+
     def fill() -> None:
-        while not state["exhausted"] and len(pending) < 2 * backend.slots + 1:
+        while len(pending) < (1 if suspects else 2 * backend.slots + 1):
+            if retry:
+                i, task, attempts = retry.pop(0)
+                pending[backend.submit(fn, task, i, attempts)] = (i, task, attempts)
+                continue
+            if state["exhausted"]:
+                return
             if window is not None and state["next"] >= lowest_open[0] + window:
                 return
             try:
@@ -578,6 +590,7 @@ def _run(
                     # per index at a time
                     raise RuntimeError(f"task {i} returned twice")
                 finished.add(i)
+                suspects.discard(i)
                 on_result(i, value)
             if broken:
                 if not isinstance(backend, _LocalBackend):
@@ -593,10 +606,13 @@ def _run(
                     len(broken),
                 )
                 backend.restart()
+                alone = len(broken) == 1  # the only task in flight: it killed its worker
                 for i, task, attempts, why in sorted(broken, key=lambda x: x[0]):
-                    if attempts >= retries:
+                    if alone and attempts >= retries:
                         raise _lost(i, attempts + 1, why)
-                    pending[backend.submit(fn, task, i, attempts + 1)] = (i, task, attempts + 1)
+                    suspects.add(i)
+                    retry.append((i, task, attempts + 1))
+                retry.sort(key=lambda x: x[0])
             while lowest_open[0] in finished:
                 finished.discard(lowest_open[0])
                 lowest_open[0] += 1
