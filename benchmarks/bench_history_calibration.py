@@ -74,7 +74,7 @@ def replicate(args: tuple[int, dict]) -> dict:
     return {
         "share_A": float(pops[0].fits["gamma"].shares[0]),
         "share_B": float(pops[1].fits["gamma"].shares[0]),
-        **{r.test: float(r.p_raw) for r in rows},
+        **{r.test: float(r.extra.get("p_raw", r.p_value)) for r in rows},
     }
 
 

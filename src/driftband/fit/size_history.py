@@ -21,8 +21,8 @@ r"""The size history a DFE is fitted under: nuisance factors, equilibrium or exp
 With an explicit history the neutral expectation is the history's neutral spectrum
 (:func:`~driftband.prf.neutral_history.neutral_history_sfs`) and the selected one the
 DFE average of the history's spectra (:class:`~driftband.prf.history_table.HistoryKernel`),
-with one :math:`\theta` shared by both classes. No I/O happens here but for reading the
-demes file.
+with one :math:`\theta` shared by both classes. No I/O happens here (the fit stage,
+:func:`driftband.fit.api.demes_histories`, reads a demes file).
 """
 
 from __future__ import annotations
