@@ -233,10 +233,9 @@ def prepare_history(
             DfeExpectation(n),
             1.0 / np.arange(1, n),
         )
-    k = HistoryKernel(n, history, beneficial=beneficial)
-    return FittedHistory(
-        best.model, history, best, candidates, demography, DfeExpectation(n, k), k.neutral()
-    )
+    # the process's cache: a comparison after the fit reuses the table
+    ex, neutral_g = _parts(n, history, bool(beneficial))
+    return FittedHistory(best.model, history, best, candidates, demography, ex, neutral_g)
 
 
 def choose_history(
