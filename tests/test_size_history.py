@@ -149,3 +149,13 @@ def test_a_fitted_history_reads_back_as_simulate_history():
     assert sorted(epochs) == [(0, 1500), (100, 100), (140, 1000)]
     growth = {"model": "growth", "params": {"nu": 2.0, "tau": 0.1}}
     assert simulate_history_option(growth, "lake") is None
+
+
+def test_only_equilibrium_fixes_the_nuisance_factors_of_fits_without_a_history():
+    # a bootstrap refit or a comparison of a population for which auto kept the nuisance
+    # factors has no history: it must refit with nuisance factors, not at equilibrium
+    from driftband.fit.options import FitOptions
+
+    assert FitOptions(demography="equilibrium").equilibrium
+    for d in ("nuisance", "auto", "one-change", "demes:x.yaml"):
+        assert not FitOptions(demography=d).equilibrium

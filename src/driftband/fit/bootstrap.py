@@ -24,8 +24,8 @@ from ..defaults import MIN_BLOCKS
 from ..exceptions import DriftbandWarning, InputError, OptionError
 from ..prf.dfe import DfeExpectation
 from .adaptive import ALPHA_KEYS, adaptive_replicate
-from .likelihood import Objective, SpectrumPair
-from .mle import fit_model
+from .likelihood import SpectrumPair
+from .mle import fit_model, make_objective
 from .models import DfeModel
 from .optimize import central_gradient
 from .options import FitOptions
@@ -317,14 +317,7 @@ def _score(
     """
     if x is None:
         return None
-    obj = Objective(
-        data,
-        model,
-        eps=options.eps,
-        equilibrium=options.equilibrium,
-        expectation=ex if history is None else history.expectation,
-        neutral_g=None if history is None else history.neutral_g,
-    )
+    obj = make_objective(data, model, options.eps, options.equilibrium, ex, history)
     x = np.asarray(x, dtype=float)
     g = obj.gradient(x) if obj.analytic_gradient else central_gradient(obj, x)
     return g.tolist()

@@ -33,7 +33,7 @@ from .optimize import central_hessian, minimize_multistart
 if TYPE_CHECKING:
     from .size_history import FittedHistory
 
-__all__ = ["FitResult", "fit_model", "params_at_bounds"]
+__all__ = ["FitResult", "fit_model", "make_objective", "params_at_bounds"]
 
 
 @dataclass
@@ -312,6 +312,45 @@ def _bound_message(label: str, found: list[tuple[str, str, float]]) -> str:
     return text
 
 
+def make_objective(
+    data: SpectrumPair,
+    model: DfeModel,
+    eps: float | None,
+    equilibrium: bool,
+    expectation: DfeExpectation | None,
+    history: FittedHistory | None = None,
+) -> Objective:
+    """The objective :func:`fit_model` maximises: under a size history its table, its
+    neutral spectrum and all r_i = 1 (``equilibrium`` and ``expectation`` then unused).
+
+    Parameters
+    ----------
+    data : SpectrumPair
+    model : DfeModel
+    eps : float or None
+        Fixed misorientation rate, or None to estimate it.
+    equilibrium : bool
+        Fix all nuisance factors r_i = 1 (without a history).
+    expectation : DfeExpectation or None
+        Per-n table (without a history).
+    history : FittedHistory, optional
+
+    Returns
+    -------
+    Objective
+    """
+    if history is not None:
+        return Objective(
+            data,
+            model,
+            eps=eps,
+            equilibrium=True,
+            expectation=history.expectation,
+            neutral_g=history.neutral_g,
+        )
+    return Objective(data, model, eps=eps, equilibrium=equilibrium, expectation=expectation)
+
+
 def fit_model(
     data: SpectrumPair,
     model: DfeModel,
@@ -365,16 +404,8 @@ def fit_model(
             f"model {model.name}: a beneficial class cannot be fitted to folded spectra "
             "(folding removes the sign of S); drop '+beneficial' or use unfolded spectra"
         )
-    if history is not None:
-        equilibrium, expectation = True, history.expectation
-    obj = Objective(
-        data,
-        model,
-        eps=eps,
-        equilibrium=equilibrium,
-        expectation=expectation,
-        neutral_g=None if history is None else history.neutral_g,
-    )
+    obj = make_objective(data, model, eps, equilibrium, expectation, history)
+    equilibrium = obj.equilibrium
     grid = model.starts()
     if obj.free_eps:
         grid = [np.append(s, e) for s in grid for e in (np.log(0.01 / 0.99),)]

@@ -145,8 +145,10 @@ class FitOptions:
 
     @property
     def equilibrium(self) -> bool:
-        """No nuisance factors: all r_i = 1 (equilibrium or an explicit history)."""
-        return self.demography != "nuisance"
+        """Constant size, all r_i = 1, for fits without an explicit history (a fit under
+        one has all r_i = 1 whatever this says; ``auto`` that kept the nuisance factors
+        has them)."""
+        return self.demography == "equilibrium"
 
     @property
     def explicit_history(self) -> bool:
