@@ -28,7 +28,7 @@ from .likelihood import SpectrumPair
 from .mle import FitResult, fit_model
 from .options import FitOptions
 from .results import PopulationFit
-from .size_history import prepare_history
+from .size_history import demes_path, prepare_history
 
 __all__ = [
     "LabelledSpectra",
@@ -237,9 +237,9 @@ def demes_histories(
     InputError
         The file is not a usable demes graph or has no deme of that name.
     """
-    if not options.demography.startswith("demes:"):
+    path = demes_path(options.demography)
+    if path is None:
         return {}
-    path = options.demography[len("demes:") :]
     return {
         name: read_demes_history(path, name.rsplit("/", 1)[-1]).history for name, _ds, _d in pooled
     }

@@ -242,7 +242,6 @@ def _replicate_task(args: _ReplicateBatch) -> list[dict[str, Any]]:
     """Refit one batch of replicates of one population (runs in a worker)."""
     (n, folded, bn, bs, ln, ls, idx_batch, options, starts, hist) = args
     ex = DfeExpectation(n)
-    fixed = None  # a history that is not refitted: its table is built once per task
     out: list[dict[str, Any]] = []
     for idx in idx_batch:
         counts = np.bincount(idx, minlength=bn.shape[0])
@@ -256,13 +255,9 @@ def _replicate_task(args: _ReplicateBatch) -> list[dict[str, Any]]:
         history = None
         if hist is not None:
             try:
-                if fixed is None or hist["model"] not in ("demes", "equilibrium"):
-                    history = replicate_history(
-                        data, hist, options.eps, any(m.beneficial for m in options.models)
-                    )
-                    fixed = history
-                else:
-                    history = fixed
+                history = replicate_history(
+                    data, hist, options.eps, any(m.beneficial for m in options.models)
+                )
             except (OptionError, ValueError, FloatingPointError):
                 out.append({})
                 continue

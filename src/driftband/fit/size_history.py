@@ -46,6 +46,7 @@ __all__ = [
     "FittedHistory",
     "check_demography",
     "choose_history",
+    "demes_path",
     "explicit",
     "recorded_history",
     "simulate_history_option",
@@ -102,6 +103,17 @@ def check_demography(value: Any, name: str = "--demography") -> str:
         f"{name} {value!r}: choose one of {', '.join(DEMOGRAPHY_CHOICES)}, or demes:FILE "
         "(a demes file with one deme per population)"
     )
+
+
+def demes_path(demography: str) -> str | None:
+    """The file of ``demes:FILE``, or None for any other choice.
+
+    Examples
+    --------
+    >>> demes_path("demes:lake.yaml"), demes_path("auto")
+    ('lake.yaml', None)
+    """
+    return demography[len(_DEMES) :].strip() if demography.startswith(_DEMES) else None
 
 
 def explicit(demography: str) -> bool:
@@ -213,29 +225,13 @@ def prepare_history(
     if demography.startswith(_DEMES):
         if fixed is None:
             raise OptionError(f"--demography {demography}: the demes history was not read")
-        if not fixed.epochs():
-            return FittedHistory(
-                "demes", fixed, None, {}, demography, DfeExpectation(n), 1.0 / np.arange(1, n)
-            )
-        kf = HistoryKernel(n, fixed, beneficial=beneficial)
-        return FittedHistory(
-            "demes", fixed, None, {}, demography, DfeExpectation(n, kf), kf.neutral()
-        )
+        ex, neutral_g = _parts(n, fixed, bool(beneficial))
+        return FittedHistory("demes", fixed, None, {}, demography, ex, neutral_g)
     best, candidates = choose_history(data, demography, eps)
-    history = best.history
-    if isinstance(history, ConstantSize):
-        return FittedHistory(
-            best.model,
-            history,
-            best,
-            candidates,
-            demography,
-            DfeExpectation(n),
-            1.0 / np.arange(1, n),
-        )
-    # the process's cache: a comparison after the fit reuses the table
-    ex, neutral_g = _parts(n, history, bool(beneficial))
-    return FittedHistory(best.model, history, best, candidates, demography, ex, neutral_g)
+    # the process's cache: bootstrap replicates of a fixed history and a comparison
+    # after the fit reuse the table
+    ex, neutral_g = _parts(n, best.history, bool(beneficial))
+    return FittedHistory(best.model, best.history, best, candidates, demography, ex, neutral_g)
 
 
 def choose_history(
@@ -355,13 +351,11 @@ def replicate_history(
     FittedHistory
     """
     model = str(point["model"])
-    n = data.n
     if model == "demes":
-        fixed = Epochs(tuple((float(d), float(a), float(b)) for d, a, b in point["epochs"]))
+        fixed = history_of_summary(point)
         return prepare_history(data, str(point["requested"]), eps, fixed, beneficial)
     if model == "equilibrium":
         best = fit_neutral_history(data, "equilibrium", eps)
-        return FittedHistory(
-            model, ConstantSize(), best, {}, model, DfeExpectation(n), 1.0 / np.arange(1, n)
-        )
+        ex, neutral_g = _parts(data.n, ConstantSize(), False)
+        return FittedHistory(model, ConstantSize(), best, {}, model, ex, neutral_g)
     return prepare_history(data, model, eps, beneficial=beneficial)

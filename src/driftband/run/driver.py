@@ -52,6 +52,7 @@ from .._io import atomic_output
 from .._parallel import available_cores, connect, resolve_workers, scheduler_address
 from .._version import __version__
 from ..exceptions import InputError, OptionError
+from ..fit.size_history import demes_path
 from .cache import StageCache, StageRunner, run_log
 from .stages import (
     fit_options,
@@ -394,9 +395,7 @@ def _run_stages(
         spectra.append((d.name, d.name if study.several else "", dp["spectra"]))
     nworkers = workers or study.bootstrap.workers or available_cores()
     sp_inputs: dict[str, Path | str | None] = {f"spectra {n}": p for n, _l, p in spectra}
-    demes = (
-        study.fit.demography[len("demes:") :] if study.fit.demography.startswith("demes:") else ""
-    )
+    demes = demes_path(study.fit.demography)
     if demes and os.path.isfile(demes):  # an edited demes file refits (a missing one: the
         sp_inputs["demes"] = demes  # fit stage names it)
     labels = {n: lab for n, lab, _p in spectra}

@@ -36,6 +36,7 @@ from ..defaults import (
 from ..effect import DEFAULT_EFFECT
 from ..exceptions import DriftbandError, InputError, OptionError
 from ..fit.bootstrap import check_bootstrap_settings
+from ..fit.size_history import demes_path
 
 __all__ = [
     "FILE_KEYS",
@@ -647,9 +648,9 @@ def study_from_dict(
     fit = _section(where, "fit", doc.get("fit", {}), "fit")
     boot = _section(where, "bootstrap", doc.get("bootstrap", {}), "bootstrap")
     comp = _section(where, "compare", doc.get("compare", {}), "compare")
-    if str(fit.get("demography", "")).startswith("demes:"):
-        # a demes file is found relative to the study file, as the other paths are
-        fit["demography"] = "demes:" + _resolve(base_dir, str(fit["demography"])[6:].strip())
+    demes = demes_path(str(fit.get("demography", "")))
+    if demes:  # a demes file is found relative to the study file, as the other paths are
+        fit["demography"] = "demes:" + _resolve(base_dir, demes)
     if "dfe" in fit:
         fit["dfe"] = tuple(fit["dfe"])
         if not fit["dfe"]:
