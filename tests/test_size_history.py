@@ -159,3 +159,25 @@ def test_only_equilibrium_fixes_the_nuisance_factors_of_fits_without_a_history()
     assert FitOptions(demography="equilibrium").equilibrium
     for d in ("nuisance", "auto", "one-change", "demes:x.yaml"):
         assert not FitOptions(demography=d).equilibrium
+
+
+def test_auto_keeps_nuisance_factors_when_no_history_explains_the_distortion():
+    # both classes distorted class by class alike (r_i, as by sampling or structure;
+    # Eyre-Walker, Woolfit & Phelps 2006): the nuisance factors fit, a size history cannot
+    from driftband.fit.api import fit_population
+    from driftband.fit.options import FitOptions
+
+    n, L, theta = 8, 1e7, 0.01
+    dfe = GammaDfe(0.3, 400.0)
+    r = np.array([1.0, 1.6, 0.7, 1.5, 0.6, 1.4, 0.8])
+    xn = theta * L * r / np.arange(1, n)
+    xs = theta * L * r * DfeExpectation(n).mean_g(dfe)
+    d = SpectrumPair(n, False, np.round(xn), np.round(xs), L, L, None, None)
+    pf = fit_population(d, FitOptions(eps=0.0, demography="auto"), "pond")
+    f = pf.fits["gamma"]
+    assert f.size_history is not None and f.size_history["model"] == "nuisance"
+    assert not f.equilibrium  # the nuisance factors are free
+    assert min(f.size_history["aic_nuisance_factors"].values()) < min(
+        f.size_history["aic_history"].values()
+    )
+    assert np.max(np.abs(f.shares - band_shares(dfe, f.band_edges))) < 0.01

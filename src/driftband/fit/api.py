@@ -181,8 +181,10 @@ def _auto_against_nuisance(
     """``auto``: the fits under the chosen history against those with nuisance factors,
     by the lowest AIC of any family; the winners, with the comparison recorded."""
 
-    def nuisance_fits() -> dict[str, FitResult]:
-        return {
+    # the nuisance-factor fits' warnings are the user's only if those fits are kept
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        nuis = {
             m.name: fit_model(
                 data,
                 m,
@@ -194,10 +196,6 @@ def _auto_against_nuisance(
             )
             for m in options.models
         }
-
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore")  # the losing set's own warnings are not the user's
-        nuis = nuisance_fits()
     aic_hist = min(f.aic for f in fits.values())
     aic_nuis = min(f.aic for f in nuis.values())
     hist = next(iter(fits.values())).size_history or {}
@@ -213,12 +211,12 @@ def _auto_against_nuisance(
             aic_hist,
             hist.get("model"),
         )
-        # warnings of the kept fits, as a plain fit would have given them
-        kept = nuisance_fits()
+        for w in caught:  # as a plain nuisance-factor fit would have given them
+            warnings.warn_explicit(w.message, w.category, w.filename, w.lineno)
         note = {"requested": "auto", "model": "nuisance", "rejected_history": hist} | record
-        for f in kept.values():
+        for f in nuis.values():
             f.size_history = note
-        return kept
+        return nuis
     for f in fits.values():
         if f.size_history is not None:
             f.size_history = f.size_history | record
