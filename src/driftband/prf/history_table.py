@@ -134,11 +134,10 @@ class HistoryKernel:
             S = S[S <= 0.0]
         if S.ndim != 1 or np.any(np.diff(S) <= 0) or not np.any(S == 0.0):
             raise ValueError("`nodes` must be an increasing 1-D grid holding 0")
-        self._constant = isinstance(history, ConstantSize) or not history.epochs()
         self._spline: CubicSpline | None = None
         self.nodes = S
         self.rounds = 0
-        if self._constant:
+        if isinstance(history, ConstantSize) or not history.epochs():
             return
         self._solver = HistorySfs(
             self.n, history, "current", resolution or FIT_RESOLUTION, mesh_S=float(np.abs(S).max())
@@ -146,16 +145,19 @@ class HistoryKernel:
         self._fit_table(S, refine)
 
     # -- building ---------------------------------------------------------------------
-    def _floor_log_eq(self, S: np.ndarray) -> np.ndarray:
-        """ln max(g_eq, floor * row total): the base the log ratio is taken against."""
+    def _log_base(self, S: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """``ln max(g_eq, floor * row total)``, the base the log ratio is taken against,
+        and the log of the row total of ``g_eq``."""
         log_g = self.eq.log_g(S)
         log_tot = np.logaddexp.reduce(log_g, axis=-1, keepdims=True)
-        return np.maximum(log_g, log_tot + math.log(_LOG_FLOOR))
+        return np.maximum(log_g, log_tot + math.log(_LOG_FLOOR)), log_tot
+
+    def _floor_log_eq(self, S: np.ndarray) -> np.ndarray:
+        return self._log_base(S)[0]
 
     def _log_ratio_of(self, S: np.ndarray, g_hist: np.ndarray) -> np.ndarray:
-        base = self._floor_log_eq(S)
-        tot = np.exp(np.logaddexp.reduce(self.eq.log_g(S), axis=-1, keepdims=True))
-        floor = np.maximum(_LOG_FLOOR * tot, np.finfo(float).tiny)
+        base, log_tot = self._log_base(S)
+        floor = np.maximum(_LOG_FLOOR * np.exp(log_tot), np.finfo(float).tiny)
         return np.log(np.maximum(g_hist, floor)) - base
 
     def _solve(self, S: np.ndarray) -> np.ndarray:
@@ -166,51 +168,36 @@ class HistoryKernel:
 
     def _fit_table(self, S: np.ndarray, refine: bool) -> None:
         g = self._solve(S)
+        # intervals already checked, by their left end in u: whether the spline met the
+        # tolerance there (a good interval's two halves need no further check)
+        good: dict[float, bool] = {}
         while True:
             lr = self._log_ratio_of(S, g)
             u = np.arcsinh(S / U_SCALE)
             spline = CubicSpline(u, lr, axis=0, bc_type="not-a-knot")
             if not refine or S.size >= MAX_NODES:
                 break
-            # midpoints of intervals not yet checked (all, in the first round)
-            u_mid = 0.5 * (u[:-1] + u[1:])
-            todo = self._unchecked(u)
+            todo = np.array([not good.get(round(float(v), 12), False) for v in u[:-1]])
             if not todo.any():
                 break
             take = np.flatnonzero(todo)[: MAX_NODES - S.size]
-            S_mid = U_SCALE * np.sinh(u_mid[take])
+            u_mid = 0.5 * (u[take] + u[take + 1])
+            S_mid = U_SCALE * np.sinh(u_mid)
             g_mid = self._solve(S_mid)
-            pred = np.exp(spline(u_mid[take]) + self._floor_log_eq(S_mid))
+            pred = np.exp(spline(u_mid) + self._floor_log_eq(S_mid))
             rel = np.abs(pred / g_mid - 1.0)
             big = g_mid >= SHARE_FLOOR * g_mid.sum(axis=1, keepdims=True)
             bad = np.any(big & (rel > TABLE_TOL), axis=1)
-            self._mark(u, take, bad)
+            for lo, mid, b in zip(u[take], u_mid, bad):
+                good[round(float(lo), 12)] = good[round(float(mid), 12)] = not b
             S = np.concatenate((S, S_mid))
             g = np.concatenate((g, g_mid))
             order = np.argsort(S)
             S, g = S[order], g[order]
             self.rounds += 1
         self.nodes = S
-        self._u = u
         self._spline = spline
         self._dspline = spline.derivative()
-
-    def _unchecked(self, u: np.ndarray) -> np.ndarray:
-        """Intervals of the grid ``u`` whose midpoint still needs a check."""
-        if not hasattr(self, "_ok"):
-            return np.ones(u.size - 1, dtype=bool)
-        lo = np.round(u[:-1], 12)
-        return np.array([not self._ok.get(float(v), False) for v in lo])
-
-    def _mark(self, u: np.ndarray, take: np.ndarray, bad: np.ndarray) -> None:
-        """Record the checked intervals: good ones (and their halves) are done."""
-        ok: dict[float, bool] = getattr(self, "_ok", {})
-        for j, b in zip(take, bad):
-            mid = 0.5 * (u[j] + u[j + 1])
-            ok[float(np.round(u[j], 12))] = not b
-            ok[float(np.round(mid, 12))] = not b
-        # intervals that were good before keep their mark under the new left ends
-        self._ok = ok
 
     def neutral(self) -> np.ndarray:
         r"""Neutral spectrum per unit :math:`\theta L` on the current size, shape (n - 1,)."""
